@@ -1,0 +1,35 @@
+"""noiselab: plan energy experiments on noisy quantum devices.
+
+Heavy dependencies (qiskit, pyscf) are imported lazily: ``import noiselab`` is cheap.
+The public study API (``noiselab.assess`` and friends) is resolved on first use.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+__version__ = "0.1.0"
+
+# name -> "module:attribute"; filled in by the study layer.
+_LAZY: dict[str, str] = {
+    "assess": "noiselab.study.assess:assess",
+    "tune": "noiselab.study.tune:tune",
+    "sweep": "noiselab.study.sweep:sweep",
+    "budget": "noiselab.study.budget:budget",
+    "load_study": "noiselab.study.spec:load_study",
+    "load_profile": "noiselab.device.profile:load_profile",
+}
+
+
+def __getattr__(name: str) -> Any:
+    target = _LAZY.get(name)
+    if target is None:
+        raise AttributeError(f"module 'noiselab' has no attribute {name!r}")
+    import importlib
+
+    module_name, attr = target.split(":")
+    return getattr(importlib.import_module(module_name), attr)
+
+
+def __dir__() -> list[str]:
+    return sorted([*globals(), *_LAZY])

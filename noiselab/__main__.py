@@ -1,0 +1,3 @@
+from noiselab.cli.app import main
+
+main()

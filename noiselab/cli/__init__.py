@@ -1,0 +1,1 @@
+"""The noiselab command line (typer). Imports of heavy layers happen inside commands."""

@@ -1,0 +1,91 @@
+"""The ``noiselab`` command: one typer app; each layer's commands live in their own module.
+
+Only typer/rich are imported at start-up so that ``noiselab --help`` is fast; the command
+modules import qiskit, pyscf and the rest inside the command functions.
+"""
+
+from __future__ import annotations
+
+import os
+import sys
+
+import typer
+
+from noiselab import __version__
+
+app = typer.Typer(
+    name="noiselab",
+    help=(
+        "Plan energy experiments on noisy quantum devices: will this variational energy "
+        "calculation reach chemical accuracy on this device, with which error mitigation "
+        "and how many shots?\n\n"
+        "Predictions are only as good as the device noise profile: planning input, not a guarantee."
+    ),
+    no_args_is_help=True,
+    add_completion=False,
+    pretty_exceptions_enable=False,
+    rich_markup_mode="rich",
+    context_settings={"help_option_names": ["-h", "--help"]},
+)
+
+
+def _version_callback(value: bool) -> None:
+    if value:
+        typer.echo(f"noiselab {__version__}")
+        raise typer.Exit()
+
+
+@app.callback()
+def _root(
+    version: bool = typer.Option(
+        False, "--version", callback=_version_callback, is_eager=True, help="Print the version and exit."
+    ),
+) -> None:
+    """noiselab command line."""
+
+
+def _register_commands() -> None:
+    # Each module defines ``register(app)``; keep this list in data-flow order.
+    from noiselab.cli import commands  # noqa: F401  (imports the command modules below)
+
+    for register in commands.REGISTRY:
+        register(app)
+
+
+def main(argv: list[str] | None = None) -> None:
+    """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
+    import click
+
+    from noiselab.common.errors import NoiselabError
+
+    _register_commands()
+    command = typer.main.get_command(app)
+    args = sys.argv[1:] if argv is None else argv
+    try:
+        rc = command.main(args=args, prog_name="noiselab", standalone_mode=False)
+    except NoiselabError as exc:
+        typer.echo(f"noiselab: error: {exc.message}", err=True)
+        sys.exit(exc.exit_code)
+    except click.exceptions.UsageError as exc:
+        hint = f" (see '{exc.ctx.command_path} --help')" if exc.ctx is not None else ""
+        typer.echo(f"noiselab: error: {exc.format_message()}{hint}", err=True)
+        sys.exit(2)
+    except click.exceptions.Abort:
+        typer.echo("noiselab: interrupted", err=True)
+        sys.exit(130)
+    except KeyboardInterrupt:
+        typer.echo("noiselab: interrupted; finished results are kept in the cache", err=True)
+        sys.exit(130)
+    except click.exceptions.ClickException as exc:
+        typer.echo(f"noiselab: error: {exc.format_message()}", err=True)
+        sys.exit(exc.exit_code)
+    except Exception as exc:  # an internal failure: still one line unless debugging
+        if os.environ.get("NOISELAB_DEBUG"):
+            raise
+        typer.echo(
+            f"noiselab: internal error: {type(exc).__name__}: {exc} "
+            "(set NOISELAB_DEBUG=1 to see the traceback)",
+            err=True,
+        )
+        sys.exit(1)
+    sys.exit(rc if isinstance(rc, int) else 0)

@@ -1,0 +1,11 @@
+"""The list of command modules. Each exposes ``register(app: typer.Typer) -> None``."""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+
+import typer
+
+REGISTRY: list[Callable[[typer.Typer], None]] = []
+# Command modules append themselves here, in data-flow order, e.g.:
+#   from noiselab.cli import profile_cmd; REGISTRY.append(profile_cmd.register)

@@ -1,0 +1,1 @@
+"""Lowest layer: errors, units, safe YAML loading, atomic file writes. Imports nothing of noiselab."""

@@ -1,0 +1,49 @@
+"""Atomic file writes: write to a temporary file beside the target, then rename."""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import tempfile
+from collections.abc import Iterator
+from pathlib import Path
+
+
+@contextlib.contextmanager
+def atomic_path(target: str | Path) -> Iterator[Path]:
+    """Yield a temporary path in the target's folder; on success rename it over ``target``.
+
+    On an exception the temporary file is removed and ``target`` is left as it was.
+    Use for writers that need a file name (matplotlib ``savefig``).
+    """
+    target = Path(target)
+    target.parent.mkdir(parents=True, exist_ok=True)
+    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent)
+    os.close(fd)
+    tmp_path = Path(tmp)
+    try:
+        yield tmp_path
+        os.replace(tmp_path, target)
+    finally:
+        with contextlib.suppress(FileNotFoundError):
+            tmp_path.unlink()
+
+
+def write_text_atomic(target: str | Path, text: str) -> Path:
+    """Write ``text`` (UTF-8) to ``target`` atomically; return the path."""
+    with atomic_path(target) as tmp:
+        with open(tmp, "w", encoding="utf-8") as fh:
+            fh.write(text)
+            fh.flush()
+            os.fsync(fh.fileno())
+    return Path(target)
+
+
+def write_bytes_atomic(target: str | Path, data: bytes) -> Path:
+    """Write ``data`` to ``target`` atomically; return the path."""
+    with atomic_path(target) as tmp:
+        with open(tmp, "wb") as fh:
+            fh.write(data)
+            fh.flush()
+            os.fsync(fh.fileno())
+    return Path(target)

@@ -1,0 +1,1 @@
+"""Density-matrix (and trajectory) emulation: exact measured distributions per measurement basis."""

@@ -1,0 +1,1 @@
+"""Measurement plans, finite-shot statistics and mitigation passes, scored against exact energies."""
