@@ -1,0 +1,268 @@
+"""Results cache: emulated measurement data and expensive context steps in one SQLite file.
+
+One file (WAL mode) in the user cache folder, shared by every process: each process (and thread)
+opens its own connection, waits on a busy timeout, and writes one entry per transaction, so a
+reader never sees a half-written entry. Keys are SHA-256 digests of everything that determines
+the stored value, including the versions of the packages that computed it.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import dataclasses
+import hashlib
+import io
+import json
+import os
+import sqlite3
+import threading
+import time
+from collections.abc import Iterator
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+
+from noiselab.common.errors import InputError
+
+CACHE_FILE_NAME = "results-v1.sqlite"
+BUSY_TIMEOUT_S = 60.0
+_SCHEMA = (
+    "CREATE TABLE IF NOT EXISTS entries ("
+    " kind TEXT NOT NULL, key TEXT NOT NULL, payload BLOB NOT NULL,"
+    " engine_seconds REAL NOT NULL DEFAULT 0, created_unix REAL NOT NULL,"
+    " PRIMARY KEY (kind, key))"
+)
+
+
+def default_cache_path() -> Path:
+    """The cache file in the user cache folder (``platformdirs.user_cache_dir('noiselab')``)."""
+    env = os.environ.get("NOISELAB_CACHE")
+    if env:
+        return Path(env)
+    import platformdirs
+
+    return Path(platformdirs.user_cache_dir("noiselab")) / CACHE_FILE_NAME
+
+
+@dataclasses.dataclass(frozen=True)
+class Versions:
+    """Versions of the packages whose output the cache stores."""
+
+    items: tuple[tuple[str, str], ...]
+
+    def as_text(self) -> str:
+        return ";".join(f"{k}={v}" for k, v in self.items)
+
+
+_VERSIONS: Versions | None = None
+
+
+def package_versions() -> Versions:
+    """Versions of noiselab, qiskit, qiskit-aer and numpy (part of every simulation key)."""
+    global _VERSIONS
+    if _VERSIONS is None:
+        from importlib import metadata
+
+        items = []
+        for dist in ("noiselab", "qiskit", "qiskit-aer", "numpy"):
+            try:
+                items.append((dist, metadata.version(dist)))
+            except metadata.PackageNotFoundError:
+                items.append((dist, "absent"))
+        _VERSIONS = Versions(tuple(items))
+    return _VERSIONS
+
+
+def digest(*parts: Any) -> str:
+    """SHA-256 hex digest of ``parts`` (bytes, str, or JSON-able values) plus package versions."""
+    h = hashlib.sha256()
+    h.update(package_versions().as_text().encode())
+    for part in parts:
+        h.update(b"\x1f")
+        h.update(_as_bytes(part))
+    return h.hexdigest()
+
+
+def _as_bytes(part: Any) -> bytes:
+    if isinstance(part, bytes | bytearray | memoryview):
+        return bytes(part)
+    if isinstance(part, str):
+        return part.encode("utf-8")
+    return json.dumps(part, sort_keys=True, default=_json_default, separators=(",", ":")).encode()
+
+
+def _json_default(obj: Any) -> Any:
+    if isinstance(obj, np.ndarray):
+        return {"__array__": obj.tolist(), "dtype": str(obj.dtype)}
+    if isinstance(obj, np.generic):
+        return obj.item()
+    if dataclasses.is_dataclass(obj) and not isinstance(obj, type):
+        return dataclasses.asdict(obj)
+    if hasattr(obj, "model_dump"):
+        return obj.model_dump(mode="json")
+    if isinstance(obj, set | frozenset):
+        return sorted(obj, key=repr)
+    return repr(obj)
+
+
+# ---------------------------------------------------------------- record (de)serialization
+
+
+def pack_record(record: Any) -> bytes:
+    """Serialize a frozen dataclass of arrays and plain values (e.g. BasisDistributions) to bytes.
+
+    Arrays go into an ``np.savez`` archive; the other fields into a JSON header inside it.
+    """
+    arrays: dict[str, np.ndarray] = {}
+    plain: dict[str, Any] = {}
+    for field in dataclasses.fields(record):
+        value = getattr(record, field.name)
+        if isinstance(value, np.ndarray):
+            arrays[field.name] = value
+        else:
+            plain[field.name] = value
+    header = json.dumps(plain, default=_json_default, sort_keys=True)
+    buf = io.BytesIO()
+    np.savez(buf, __header__=np.frombuffer(header.encode(), dtype=np.uint8), **arrays)
+    return buf.getvalue()
+
+
+def unpack_record(cls: type, payload: bytes) -> Any:
+    """Inverse of :func:`pack_record` for dataclass ``cls`` (lists become tuples)."""
+    with np.load(io.BytesIO(payload), allow_pickle=False) as archive:
+        plain = json.loads(bytes(archive["__header__"]).decode())
+        arrays = {k: archive[k] for k in archive.files if k != "__header__"}
+    names = {f.name for f in dataclasses.fields(cls)}
+    kwargs: dict[str, Any] = {k: _tuplify(v) for k, v in plain.items() if k in names}
+    kwargs.update({k: v for k, v in arrays.items() if k in names})
+    return cls(**kwargs)
+
+
+def _tuplify(value: Any) -> Any:
+    if isinstance(value, list):
+        return tuple(_tuplify(v) for v in value)
+    return value
+
+
+# ---------------------------------------------------------------- the store
+
+
+class ResultsCache:
+    """A key-value store of bytes in SQLite, safe for concurrent processes and threads.
+
+    ``path=None`` gives a disabled cache (every lookup misses, nothing is written).
+    """
+
+    def __init__(self, path: str | Path | None) -> None:
+        self.path: Path | None = None if path is None else Path(path).expanduser()
+        self._local = threading.local()
+        if self.path is not None:
+            self._prepare()
+
+    @classmethod
+    def disabled(cls) -> ResultsCache:
+        return cls(None)
+
+    @property
+    def enabled(self) -> bool:
+        return self.path is not None
+
+    def __getstate__(self) -> dict[str, Any]:
+        # Connections do not cross process boundaries; the child reopens its own.
+        return {"path": self.path}
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        self.path = state["path"]
+        self._local = threading.local()
+
+    def _prepare(self) -> None:
+        assert self.path is not None
+        if self.path.exists() and self.path.is_dir():
+            raise InputError(f"{self.path}: --cache: is a folder; allowed: a cache file path")
+        try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            with self._connection() as conn:
+                conn.execute(_SCHEMA)
+        except (OSError, sqlite3.DatabaseError) as exc:
+            raise InputError(
+                f"{self.path}: --cache: cannot open the results cache ({exc}); "
+                "allowed: a writable SQLite file path, or --no-cache"
+            ) from None
+
+    @contextlib.contextmanager
+    def _connection(self) -> Iterator[sqlite3.Connection]:
+        conn = getattr(self._local, "conn", None)
+        pid = getattr(self._local, "pid", None)
+        if conn is None or pid != os.getpid():
+            conn = sqlite3.connect(
+                str(self.path),
+                timeout=BUSY_TIMEOUT_S,
+                isolation_level=None,
+                check_same_thread=False,
+            )
+            conn.execute(f"PRAGMA busy_timeout = {int(BUSY_TIMEOUT_S * 1000)}")
+            conn.execute("PRAGMA journal_mode = WAL")
+            conn.execute("PRAGMA synchronous = NORMAL")
+            self._local.conn = conn
+            self._local.pid = os.getpid()
+        yield conn
+
+    def get(self, kind: str, key: str) -> tuple[bytes, float] | None:
+        """The stored payload and engine seconds for ``(kind, key)``, or None."""
+        if self.path is None:
+            return None
+        try:
+            with self._connection() as conn:
+                row = conn.execute(
+                    "SELECT payload, engine_seconds FROM entries WHERE kind = ? AND key = ?",
+                    (kind, key),
+                ).fetchone()
+        except sqlite3.DatabaseError:
+            return None  # a damaged cache only costs a recomputation
+        return None if row is None else (bytes(row[0]), float(row[1]))
+
+    def put(self, kind: str, key: str, payload: bytes, engine_seconds: float = 0.0) -> None:
+        """Store one entry in its own transaction (first writer wins)."""
+        if self.path is None:
+            return
+        try:
+            with self._connection() as conn:
+                conn.execute("BEGIN IMMEDIATE")
+                try:
+                    conn.execute(
+                        "INSERT OR IGNORE INTO entries"
+                        " (kind, key, payload, engine_seconds, created_unix)"
+                        " VALUES (?, ?, ?, ?, ?)",
+                        (kind, key, sqlite3.Binary(payload), float(engine_seconds), time.time()),
+                    )
+                    conn.execute("COMMIT")
+                except BaseException:
+                    conn.execute("ROLLBACK")
+                    raise
+        except sqlite3.DatabaseError:
+            return  # caching is an optimisation; never fail a run because of it
+
+    def count(self, kind: str | None = None) -> int:
+        """Number of stored entries (of one kind)."""
+        if self.path is None:
+            return 0
+        with self._connection() as conn:
+            if kind is None:
+                return int(conn.execute("SELECT COUNT(*) FROM entries").fetchone()[0])
+            return int(
+                conn.execute("SELECT COUNT(*) FROM entries WHERE kind = ?", (kind,)).fetchone()[0]
+            )
+
+    def close(self) -> None:
+        conn = getattr(self._local, "conn", None)
+        if conn is not None:
+            conn.close()
+            self._local.conn = None
+
+
+def open_cache(path: str | Path | None = None, *, enabled: bool = True) -> ResultsCache:
+    """The cache at ``path`` (default: the user cache folder), or a disabled one."""
+    if not enabled:
+        return ResultsCache.disabled()
+    return ResultsCache(default_cache_path() if path is None else path)

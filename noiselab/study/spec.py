@@ -1,0 +1,431 @@
+"""Study files: one YAML file says which molecule, which device, which budget and which recipes.
+
+``load_study(path)`` reads and validates the file and returns a resolved :class:`Study` (device
+profile loaded, molecule and recipes validated by their own layers). Every problem is one
+:class:`~noiselab.common.errors.InputError` line naming the study file and the key.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from collections.abc import Mapping
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    BaseModel,
+    ConfigDict,
+    Field,
+    StrictBool,
+    StrictInt,
+    ValidationError,
+    field_validator,
+    model_validator,
+)
+
+from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.yamlio import load_yaml_mapping
+
+ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
+MAX_SHOTS = 10**12
+_NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class UccsdAnsatz(_Strict):
+    """Unitary coupled cluster, singles and doubles, from the Hartree-Fock state."""
+
+    kind: Literal["uccsd"]
+    reps: StrictInt = Field(default=1, ge=1, le=4, description="Trotter repetitions")
+    starts: StrictInt = Field(default=1, ge=1, le=32, description="optimizer starting points")
+    maxiter: StrictInt = Field(default=400, ge=1, le=20000)
+
+
+class LayeredAnsatz(_Strict):
+    """Hardware-efficient layers of rotations and entangling pairs, from the Hartree-Fock state."""
+
+    kind: Literal["layered"]
+    layers: StrictInt = Field(default=2, ge=1, le=20)
+    pairs: Literal["linear", "ring", "all"] = "linear"
+    starts: StrictInt = Field(default=3, ge=1, le=32, description="optimizer starting points")
+    maxiter: StrictInt = Field(default=600, ge=1, le=20000)
+
+
+AnsatzSpec = Annotated[UccsdAnsatz | LayeredAnsatz, Field(discriminator="kind")]
+
+
+class CompileOptions(_Strict):
+    """How the trial circuit is compiled to the device."""
+
+    optimization_level: StrictInt = Field(default=1, ge=0, le=3)
+
+
+class TuneGrid(_Strict):
+    """Axes of the mitigation settings grid that ``noiselab tune`` ranks (all combinations).
+
+    ``None`` on an axis means the built-in default for that axis.
+    """
+
+    readout: list[str] | None = Field(default=None, min_length=1)
+    postselect: list[str] | None = Field(default=None, min_length=1)
+    amplification: list[str] | None = Field(default=None, min_length=1)
+    scales: list[list[float]] | None = Field(default=None, min_length=1)
+    fit: list[str] | None = Field(default=None, min_length=1)
+
+    @field_validator("scales")
+    @classmethod
+    def _check_scales(cls, value: list[list[float]] | None) -> list[list[float]] | None:
+        if value is None:
+            return value
+        for i, scales in enumerate(value):
+            if len(scales) < 2:
+                raise ValueError(
+                    f"scale set {i} has {len(scales)} factor(s); allowed: at least 2 factors >= 1"
+                )
+            if any(not math.isfinite(s) or s < 1.0 for s in scales):
+                raise ValueError(f"scale set {i} = {scales}: allowed: finite factors >= 1")
+            if len(set(scales)) != len(scales):
+                raise ValueError(
+                    f"scale set {i} = {scales} repeats a factor; allowed: distinct factors"
+                )
+        return value
+
+
+class SweepDefaults(_Strict):
+    """Defaults for ``noiselab sweep``: device noise scale factors and which recipes to follow."""
+
+    factors: list[float] | None = Field(default=None, min_length=1)
+    channels: (
+        list[Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]] | None
+    ) = None
+    recipes: list[str] | None = Field(default=None, min_length=1)
+
+    @field_validator("factors")
+    @classmethod
+    def _check_factors(cls, value: list[float] | None) -> list[float] | None:
+        if value is not None and any(not math.isfinite(f) or f < 0 for f in value):
+            raise ValueError(f"factors {value}: allowed: finite numbers >= 0")
+        return value
+
+
+class StudyFile(_Strict):
+    """The study file as written (before the molecule, device and recipes are resolved)."""
+
+    name: str
+    description: str | None = None
+    molecule: dict[str, Any]
+    encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
+    two_qubit_reduction: StrictBool = False
+    ansatz: AnsatzSpec
+    device: str | dict[str, Any]
+    layout: list[StrictInt] | None = Field(default=None, min_length=1)
+    compile: CompileOptions = CompileOptions()
+    shots: StrictInt = Field(gt=0, le=MAX_SHOTS, description="total shots per energy estimate")
+    target_mha: float = Field(default=CHEMICAL_ACCURACY_MHA, gt=0, le=1000.0)
+    confidence: float = Field(default=0.95, gt=0.0, lt=1.0)
+    recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
+    seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    tune: TuneGrid | None = None
+    sweep: SweepDefaults | None = None
+
+    @field_validator("name")
+    @classmethod
+    def _check_name(cls, value: str) -> str:
+        if not _NAME_RE.match(value):
+            raise ValueError(
+                f"{value!r} is not a valid study name; allowed: letters, digits, '_', '-', '.', "
+                "at most 64 characters, starting with a letter or digit"
+            )
+        return value
+
+    @field_validator("target_mha", "confidence", mode="before")
+    @classmethod
+    def _no_bool(cls, value: Any) -> Any:
+        if isinstance(value, bool):
+            raise ValueError("expected a number, got a boolean")
+        return value
+
+    @field_validator("layout")
+    @classmethod
+    def _check_layout(cls, value: list[int] | None) -> list[int] | None:
+        if value is None:
+            return value
+        if any(q < 0 for q in value):
+            raise ValueError(f"layout {value}: allowed: physical qubit ids >= 0")
+        if len(set(value)) != len(value):
+            raise ValueError(
+                f"layout {value} names a qubit twice; allowed: distinct physical qubits"
+            )
+        return value
+
+    @field_validator("recipes")
+    @classmethod
+    def _check_recipe_names(
+        cls, value: dict[str, list[dict[str, Any]]]
+    ) -> dict[str, list[dict[str, Any]]]:
+        for name in value:
+            if not re.match(r"^[A-Za-z][A-Za-z0-9_-]{0,47}$", name):
+                raise ValueError(
+                    f"recipe name {name!r}: allowed: letters, digits, '_' and '-', "
+                    "starting with a letter"
+                )
+        return value
+
+    @model_validator(mode="after")
+    def _check_reduction(self) -> StudyFile:
+        if self.two_qubit_reduction and self.encoding != "parity":
+            raise ValueError(
+                f"two_qubit_reduction needs encoding parity (got {self.encoding}); "
+                "allowed: two_qubit_reduction: false, or encoding: parity"
+            )
+        return self
+
+
+@dataclass(frozen=True)
+class Study:
+    """A resolved study: validated molecule, loaded device profile, validated recipes."""
+
+    name: str
+    source: Path
+    molecule: Any  # noiselab.chem.molecule.MoleculeSpec
+    encoding: str
+    two_qubit_reduction: bool
+    ansatz: UccsdAnsatz | LayeredAnsatz
+    profile: Any  # noiselab.device.profile.DeviceProfile
+    device_source: str  # resolved profile path, or "<inline>"
+    layout: tuple[int, ...] | None
+    optimization_level: int
+    shots: int
+    target_mha: float
+    confidence: float
+    recipes: dict[str, tuple[dict[str, Any], ...]]
+    seed: int
+    num_qubits: int
+    tune: TuneGrid | None = None
+    sweep: SweepDefaults | None = None
+    description: str | None = None
+    raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
+
+    def with_seed(self, seed: int | None) -> Study:
+        """The same study with another seed (None keeps the file's)."""
+        if seed is None or seed == self.seed:
+            return self
+        import dataclasses
+
+        return dataclasses.replace(self, seed=int(seed))
+
+    def with_shots(self, shots: int | None) -> Study:
+        """The same study with another shot budget (None keeps the file's)."""
+        if shots is None or shots == self.shots:
+            return self
+        if shots <= 0:
+            raise input_error(str(self.source), "shots", f"{shots} shots", "a positive integer")
+        import dataclasses
+
+        return dataclasses.replace(self, shots=int(shots))
+
+
+def load_study(path: str | Path) -> Study:
+    """Read, validate and resolve a study file; bad input raises a one-line InputError."""
+    src_path = Path(path)
+    data = load_yaml_mapping(src_path, what="study file")
+    return study_from_mapping(data, src_path)
+
+
+def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
+    """Validate a study mapping; relative device paths are resolved against ``source``'s folder."""
+    src_path = Path(source)
+    src = str(src_path)
+    try:
+        spec = StudyFile.model_validate(dict(data))
+    except ValidationError as exc:
+        raise from_validation_error(exc, src) from None
+
+    from noiselab.chem.molecule import molecule_from_mapping
+
+    molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
+    profile, device_source = _resolve_device(spec.device, src_path)
+    recipes = {
+        name: validate_recipe(passes, src, f"recipes.{name}")
+        for name, passes in spec.recipes.items()
+    }
+    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.two_qubit_reduction)
+    device_qubits = _device_qubits(profile)
+    if num_qubits > len(device_qubits):
+        raise input_error(
+            src,
+            "device",
+            f"the problem needs {num_qubits} qubits but device {_profile_name(profile)!r} has "
+            f"{len(device_qubits)}",
+            f"a device with at least {num_qubits} qubits, a smaller active space, "
+            "or two_qubit_reduction",
+        )
+    layout = None
+    if spec.layout is not None:
+        missing = [q for q in spec.layout if q not in device_qubits]
+        if missing:
+            raise input_error(
+                src,
+                "layout",
+                f"physical qubit(s) {missing} are not on device {_profile_name(profile)!r}",
+                f"qubit ids {_id_range(device_qubits)}",
+            )
+        if len(spec.layout) != num_qubits:
+            raise input_error(
+                src,
+                "layout",
+                f"{len(spec.layout)} physical qubits given for a {num_qubits}-qubit problem",
+                f"exactly {num_qubits} distinct qubit ids",
+            )
+        layout = tuple(spec.layout)
+    if spec.sweep is not None and spec.sweep.recipes is not None:
+        for i, name in enumerate(spec.sweep.recipes):
+            if name not in recipes:
+                raise input_error(
+                    src, f"sweep.recipes[{i}]", f"unknown recipe {name!r}", ", ".join(recipes)
+                )
+    return Study(
+        name=spec.name,
+        source=src_path,
+        molecule=molecule,
+        encoding=spec.encoding,
+        two_qubit_reduction=spec.two_qubit_reduction,
+        ansatz=spec.ansatz,
+        profile=profile,
+        device_source=device_source,
+        layout=layout,
+        optimization_level=spec.compile.optimization_level,
+        shots=spec.shots,
+        target_mha=float(spec.target_mha),
+        confidence=float(spec.confidence),
+        recipes=recipes,
+        seed=spec.seed,
+        num_qubits=num_qubits,
+        tune=spec.tune,
+        sweep=spec.sweep,
+        description=spec.description,
+        raw=dict(data),
+    )
+
+
+def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
+    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
+    if molecule.active_space is not None:
+        n_orb = molecule.active_space.orbitals
+    else:
+        from noiselab.chem.molecule import _count_orbitals
+
+        n_orb = _count_orbitals(molecule.geometry, molecule.basis, molecule.charge, molecule.spin)
+    n = 2 * n_orb
+    return n - 2 if two_qubit_reduction and encoding == "parity" else n
+
+
+def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
+    from noiselab.device import profile as device_profile
+
+    src = str(study_path)
+    if isinstance(value, dict):
+        try:
+            return device_profile.profile_from_mapping(value, src, prefix="device"), "<inline>"
+        except TypeError:  # a profile_from_mapping without the prefix argument
+            return device_profile.profile_from_mapping(value, src), "<inline>"
+    if not value.strip():
+        raise input_error(
+            src, "device", "empty profile path", "a path to a device profile YAML file"
+        )
+    p = Path(value).expanduser()
+    resolved = p if p.is_absolute() else (study_path.parent / p)
+    resolved = Path(_normpath(resolved))
+    if not resolved.is_file():
+        what = "is a folder" if resolved.is_dir() else "no such file"
+        raise input_error(
+            src,
+            "device",
+            f"device profile {resolved} not found ({what})",
+            "a profile path relative to the study file, or an inline profile mapping",
+        )
+    return device_profile.load_profile(resolved), str(resolved)
+
+
+def _normpath(p: Path) -> str:
+    import os
+
+    return os.path.normpath(str(p))
+
+
+def _device_qubits(profile: Any) -> list[int]:
+    """Physical qubit ids of a profile (adapts to the profile's shape)."""
+    for attr in ("qubit_ids", "physical_qubits"):
+        ids = getattr(profile, attr, None)
+        if ids is not None:
+            ids = ids() if callable(ids) else ids
+            return [int(q) for q in ids]
+    qubits = getattr(profile, "qubits", None)
+    if isinstance(qubits, Mapping):
+        return sorted(int(q) for q in qubits)
+    if isinstance(qubits, list | tuple):
+        out = []
+        for i, q in enumerate(qubits):
+            out.append(int(getattr(q, "id", getattr(q, "index", i))))
+        return out
+    n = getattr(profile, "num_qubits", None)
+    if n is not None:
+        return list(range(int(n)))
+    raise InputError("device: cannot tell the qubits of this profile")
+
+
+def _profile_name(profile: Any) -> str:
+    return str(getattr(profile, "name", "device"))
+
+
+def _id_range(ids: list[int]) -> str:
+    ids = sorted(ids)
+    if ids and ids == list(range(ids[0], ids[-1] + 1)):
+        return f"{ids[0]}..{ids[-1]}"
+    return ", ".join(map(str, ids))
+
+
+def validate_recipe(
+    passes: list[dict[str, Any]], source: str, key: str
+) -> tuple[dict[str, Any], ...]:
+    """Validate a recipe's passes with the mitigation registry; errors name ``key[i].option``."""
+    from noiselab.mitigate import registry
+
+    checker = getattr(registry, "validate_recipe", None)
+    if checker is not None:
+        out = checker(passes, source=source, key=key)
+        return tuple(out)
+    return tuple(_validate_passes_generic(registry, passes, source, key))
+
+
+def _validate_passes_generic(
+    registry: Any, passes: list[dict[str, Any]], source: str, key: str
+) -> list[dict[str, Any]]:
+    out: list[dict[str, Any]] = []
+    table = registry.PASSES
+    for i, item in enumerate(passes):
+        where = f"{key}[{i}]"
+        name = item.get("pass")
+        if not isinstance(name, str):
+            raise input_error(
+                source, f"{where}.pass", "missing pass name", ", ".join(sorted(table))
+            )
+        if name not in table:
+            raise input_error(
+                source, f"{where}.pass", f"unknown pass {name!r}", ", ".join(sorted(table))
+            )
+        options = {k: v for k, v in item.items() if k != "pass"}
+        model = getattr(table[name], "options_model", None) or getattr(table[name], "Options", None)
+        if model is not None:
+            try:
+                model.model_validate(options)
+            except ValidationError as exc:
+                raise from_validation_error(exc, source, prefix=where) from None
+        out.append(dict(item))
+    return out
