@@ -1,0 +1,397 @@
+"""Executors for the independent simulations of tune, sweep and budget.
+
+One interface, three back ends:
+
+* in-process (default): a plain loop in the calling process;
+* a local process pool (``workers=N``): ``concurrent.futures.ProcessPoolExecutor`` with the
+  ``spawn`` start method (qiskit-aer's OpenMP threads and BLAS do not survive ``fork``); each
+  worker runs with one engine thread so N workers share the cores instead of fighting for them;
+* a Dask distributed cluster (``cluster="tcp://HOST:PORT"`` or a ``distributed.Client``); dask is
+  the optional ``cluster`` extra and is imported only when asked for.
+
+``map(fn, items)`` preserves order and returns the same values whichever back end runs it, as
+long as ``fn`` is deterministic given its item (carry seeds in the items; never draw fresh
+randomness inside a worker). ``fn`` must be a module-level function and the items picklable.
+A task whose worker process dies is run again (bounded attempts): a killed worker never loses a
+point. Exceptions raised by ``fn`` itself are not retried; they propagate to the caller.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import os
+import re
+from collections.abc import Callable, Iterator, Sequence
+from typing import Any, Protocol, TypeVar, runtime_checkable
+
+from noiselab.common.errors import InputError, NoiselabError, input_error
+
+T = TypeVar("T")
+R = TypeVar("R")
+
+ResultCallback = Callable[[int, Any], None]
+
+#: Environment variables that cap the thread pools of OpenMP (qiskit-aer), BLAS and numexpr.
+THREAD_ENV_VARS: tuple[str, ...] = (
+    "OMP_NUM_THREADS",
+    "OPENBLAS_NUM_THREADS",
+    "MKL_NUM_THREADS",
+    "BLIS_NUM_THREADS",
+    "VECLIB_MAXIMUM_THREADS",
+    "NUMEXPR_NUM_THREADS",
+)
+
+#: Read by the emulator: the qiskit-aer ``max_parallel_threads`` a worker should use (0 = all).
+ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
+
+#: How many times a task is started in total when worker processes die under it.
+DEFAULT_ATTEMPTS = 3
+
+_CLUSTER_ADDRESS = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s/]+$")
+
+
+def engine_threads() -> int:
+    """The qiskit-aer ``max_parallel_threads`` for this process: 0 (all cores) unless a worker."""
+    try:
+        return max(0, int(os.environ.get(ENGINE_THREADS_ENV, "0")))
+    except ValueError:
+        return 0
+
+
+@runtime_checkable
+class Executor(Protocol):
+    """Runs ``fn`` over ``items``; see the module docstring for the guarantees."""
+
+    #: Human-readable description for logs and provenance, e.g. ``"process pool (2 workers)"``.
+    description: str
+    #: How many tasks may run at once (1 for in-process).
+    parallelism: int
+
+    def map(
+        self,
+        fn: Callable[[Any], Any],
+        items: Sequence[Any],
+        *,
+        on_result: ResultCallback | None = None,
+    ) -> list[Any]:
+        """Return ``[fn(item) for item in items]``; call ``on_result(index, result)`` per result."""
+        ...
+
+    def close(self) -> None:
+        """Release workers and connections (idempotent)."""
+        ...
+
+    def __enter__(self) -> Executor: ...
+
+    def __exit__(self, *exc: object) -> None: ...
+
+
+class _Base:
+    description = "executor"
+    parallelism = 1
+
+    def __enter__(self) -> _Base:
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
+
+    def close(self) -> None:  # pragma: no cover - overridden
+        pass
+
+
+class InProcessExecutor(_Base):
+    """Run every task in the calling process, one after the other."""
+
+    description = "in-process"
+    parallelism = 1
+
+    def map(
+        self,
+        fn: Callable[[Any], Any],
+        items: Sequence[Any],
+        *,
+        on_result: ResultCallback | None = None,
+    ) -> list[Any]:
+        results: list[Any] = []
+        for index, item in enumerate(items):
+            result = fn(item)
+            results.append(result)
+            if on_result is not None:
+                on_result(index, result)
+        return results
+
+    def close(self) -> None:
+        pass
+
+
+# --------------------------------------------------------------------------- process pool
+
+
+def _worker_init(threads: int) -> None:
+    """Process-pool initializer: cap OpenMP / BLAS threads before any engine is loaded."""
+    for name in THREAD_ENV_VARS:
+        os.environ[name] = str(threads)
+    os.environ[ENGINE_THREADS_ENV] = str(threads)
+
+
+@contextlib.contextmanager
+def _environment(values: dict[str, str]) -> Iterator[None]:
+    """Set environment variables for the duration (inherited by processes spawned meanwhile)."""
+    saved = {name: os.environ.get(name) for name in values}
+    os.environ.update(values)
+    try:
+        yield
+    finally:
+        for name, old in saved.items():
+            if old is None:
+                os.environ.pop(name, None)
+            else:
+                os.environ[name] = old
+
+
+class ProcessPoolExecutor(_Base):
+    """A pool of ``workers`` local processes (``spawn`` start method), rebuilt if a worker dies."""
+
+    def __init__(
+        self,
+        workers: int,
+        *,
+        threads_per_worker: int = 1,
+        attempts: int = DEFAULT_ATTEMPTS,
+        start_method: str = "spawn",
+    ) -> None:
+        if workers < 1:
+            raise input_error(None, "workers", f"{workers} workers", "an integer >= 1")
+        if attempts < 1:
+            raise input_error(None, "attempts", f"{attempts}", "an integer >= 1")
+        self.workers = workers
+        self.threads_per_worker = threads_per_worker
+        self.attempts = attempts
+        self.start_method = start_method
+        self.parallelism = workers
+        self.description = f"process pool ({workers} worker{'s' if workers != 1 else ''})"
+        self._pool: Any = None
+        #: How many times the pool had to be rebuilt because a worker died (for tests and logs).
+        self.restarts = 0
+
+    def _env(self) -> dict[str, str]:
+        values = {name: str(self.threads_per_worker) for name in THREAD_ENV_VARS}
+        values[ENGINE_THREADS_ENV] = str(self.threads_per_worker)
+        return values
+
+    def _ensure_pool(self) -> Any:
+        if self._pool is None:
+            import concurrent.futures
+            import multiprocessing
+
+            self._pool = concurrent.futures.ProcessPoolExecutor(
+                max_workers=self.workers,
+                mp_context=multiprocessing.get_context(self.start_method),
+                initializer=_worker_init,
+                initargs=(self.threads_per_worker,),
+            )
+        return self._pool
+
+    def _drop_pool(self) -> None:
+        pool, self._pool = self._pool, None
+        if pool is not None:
+            pool.shutdown(wait=True, cancel_futures=True)
+
+    def map(
+        self,
+        fn: Callable[[Any], Any],
+        items: Sequence[Any],
+        *,
+        on_result: ResultCallback | None = None,
+    ) -> list[Any]:
+        import concurrent.futures
+        from concurrent.futures.process import BrokenProcessPool
+
+        items = list(items)
+        results: dict[int, Any] = {}
+        tries = dict.fromkeys(range(len(items)), 0)
+        pending = list(range(len(items)))
+        while pending:
+            pool = self._ensure_pool()
+            # Spawned workers inherit the environment at start: cap their threads from the start.
+            with _environment(self._env()):
+                futures = {pool.submit(fn, items[i]): i for i in pending}
+            for i in pending:
+                tries[i] += 1
+            broken = False
+            try:
+                for future in concurrent.futures.as_completed(futures):
+                    index = futures[future]
+                    try:
+                        result = future.result()
+                    except BrokenProcessPool:
+                        broken = True
+                        continue
+                    results[index] = result
+                    if on_result is not None:
+                        on_result(index, result)
+            except BaseException:
+                for future in futures:
+                    future.cancel()
+                self._drop_pool()
+                raise
+            pending = [i for i in pending if i not in results]
+            if broken or pending:
+                self._drop_pool()
+                self.restarts += 1
+                worst = max((tries[i] for i in pending), default=0)
+                if worst >= self.attempts:
+                    raise NoiselabError(
+                        f"{self.description}: a worker process died {worst} times while running "
+                        f"{len(pending)} unfinished task(s) (first: #{pending[0]}); "
+                        "likely out of memory or a crash in the engine"
+                    )
+        return [results[i] for i in range(len(items))]
+
+    def close(self) -> None:
+        self._drop_pool()
+
+
+# --------------------------------------------------------------------------- dask
+
+
+def _import_distributed() -> Any:
+    try:
+        import distributed
+    except ImportError as exc:
+        raise InputError(
+            f"cluster: dask.distributed is not installed ({exc.name or 'distributed'} missing); "
+            'allowed: install it with pip install "noiselab[cluster]"'
+        ) from None
+    return distributed
+
+
+class DaskExecutor(_Base):
+    """Tasks submitted to a Dask distributed cluster, each retried if its worker dies."""
+
+    def __init__(
+        self, cluster: Any, *, retries: int = DEFAULT_ATTEMPTS - 1, timeout_s: float = 30.0
+    ) -> None:
+        distributed = _import_distributed()
+        self.retries = retries
+        if isinstance(cluster, distributed.Client):
+            self._client = cluster
+            self._owns_client = False
+            address = getattr(cluster.scheduler, "address", None) or "client"
+        elif isinstance(cluster, str):
+            address = cluster.strip()
+            if not _CLUSTER_ADDRESS.match(address):
+                raise input_error(
+                    None,
+                    "cluster",
+                    f"{cluster!r} is not a scheduler address",
+                    "tcp://HOST:PORT (or tls://HOST:PORT) of a running dask scheduler",
+                )
+            try:
+                self._client = distributed.Client(address, timeout=timeout_s, set_as_default=False)
+            except (OSError, TimeoutError) as exc:
+                raise input_error(
+                    None,
+                    "cluster",
+                    f"cannot reach the dask scheduler at {address} ({type(exc).__name__})",
+                    "the address of a running dask scheduler",
+                ) from None
+            self._owns_client = True
+        else:
+            raise input_error(
+                None,
+                "cluster",
+                f"unsupported value of type {type(cluster).__name__}",
+                "a scheduler address tcp://HOST:PORT or a distributed.Client",
+            )
+        self.description = f"dask cluster {address}"
+        try:
+            n = len(self._client.scheduler_info().get("workers", {}))
+        except Exception:  # the cluster may still be starting: size is informative only
+            n = 0
+        self.parallelism = max(1, n)
+
+    @property
+    def client(self) -> Any:
+        return self._client
+
+    def map(
+        self,
+        fn: Callable[[Any], Any],
+        items: Sequence[Any],
+        *,
+        on_result: ResultCallback | None = None,
+    ) -> list[Any]:
+        distributed = _import_distributed()
+        items = list(items)
+        if not items:
+            return []
+        # pure=False: never let the scheduler merge two tasks, nor reuse results of an earlier map.
+        futures = [
+            self._client.submit(fn, item, retries=self.retries, pure=False) for item in items
+        ]
+        index_of = {future.key: i for i, future in enumerate(futures)}
+        results: dict[int, Any] = {}
+        try:
+            for future in distributed.as_completed(futures, loop=self._client.loop):
+                index = index_of[future.key]
+                result = future.result()
+                results[index] = result
+                if on_result is not None:
+                    on_result(index, result)
+        except distributed.client.FutureCancelledError as exc:  # pragma: no cover
+            raise NoiselabError(f"{self.description}: tasks were cancelled ({exc})") from None
+        except BaseException as exc:
+            self._client.cancel(futures)
+            killed = getattr(distributed, "KilledWorker", None)
+            if killed is not None and isinstance(exc, killed):
+                raise NoiselabError(
+                    f"{self.description}: workers died repeatedly while running a task "
+                    "(likely out of memory or a crash in the engine)"
+                ) from None
+            raise
+        return [results[i] for i in range(len(items))]
+
+    def close(self) -> None:
+        if self._owns_client and self._client is not None:
+            with contextlib.suppress(Exception):
+                self._client.close()
+        self._owns_client = False
+
+
+# --------------------------------------------------------------------------- factory
+
+
+def make_executor(workers: int | None = None, cluster: Any = None) -> Executor:
+    """Pick the back end: ``cluster`` (address or Client) > ``workers`` > 1 > in-process.
+
+    ``workers=None`` or ``1`` runs in-process; ``workers=N>1`` starts a local pool of N processes.
+    Giving both is refused.
+    """
+    if cluster is not None and workers is not None and workers != 1:
+        raise input_error(
+            None, "workers", "given together with cluster", "one of workers or cluster"
+        )
+    if cluster is not None:
+        return DaskExecutor(cluster)
+    if workers is not None and (
+        isinstance(workers, bool) or not isinstance(workers, int) or workers < 1
+    ):
+        raise input_error(None, "workers", f"{workers!r}", "an integer >= 1")
+    if workers is None or workers == 1:
+        return InProcessExecutor()
+    return ProcessPoolExecutor(workers)
+
+
+__all__ = [
+    "DEFAULT_ATTEMPTS",
+    "ENGINE_THREADS_ENV",
+    "THREAD_ENV_VARS",
+    "DaskExecutor",
+    "Executor",
+    "InProcessExecutor",
+    "ProcessPoolExecutor",
+    "engine_threads",
+    "make_executor",
+]

@@ -1,0 +1,213 @@
+"""Executors: in-process, process pool and a Dask LocalCluster agree; dead workers are retried."""
+
+from __future__ import annotations
+
+import os
+import sys
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from noiselab.common.errors import InputError, NoiselabError
+from noiselab.study.executor import (
+    ENGINE_THREADS_ENV,
+    DaskExecutor,
+    InProcessExecutor,
+    ProcessPoolExecutor,
+    make_executor,
+)
+
+# --------------------------------------------------------------------------- task functions
+# Module level so that worker processes can import them.
+
+
+def seeded_task(item: tuple[int, int]) -> dict[str, object]:
+    """A deterministic numerical task: all randomness comes from the seed in the item."""
+    index, seed = item
+    rng = np.random.default_rng(seed)
+    a = rng.standard_normal((6, 6))
+    h = a + a.T
+    eigenvalues = np.linalg.eigvalsh(h)
+    return {"index": index, "lowest": float(eigenvalues[0]), "trace": float(np.trace(h))}
+
+
+def dies_once_task(item: tuple[str, int]) -> int:
+    """Kill the worker process the first time item 2 runs (marker file records the first try)."""
+    marker_dir, index = item
+    marker = Path(marker_dir) / f"started-{index}"
+    if index == 2 and not marker.exists():
+        marker.write_text("first attempt")
+        os._exit(1)
+    return index * index
+
+
+def always_dies_task(item: int) -> int:
+    os._exit(1)
+
+
+def raises_task(item: int) -> int:
+    if item == 1:
+        raise ValueError("bad item 1")
+    return item
+
+
+def thread_env_task(item: int) -> tuple[str | None, str | None]:
+    return os.environ.get("OMP_NUM_THREADS"), os.environ.get(ENGINE_THREADS_ENV)
+
+
+ITEMS = [(i, 1000 + 7 * i) for i in range(8)]
+
+
+def _expected() -> list[dict[str, object]]:
+    # Reference: the same function called directly in this process (common practice, no source).
+    return [seeded_task(item) for item in ITEMS]
+
+
+# --------------------------------------------------------------------------- fixtures
+
+
+@pytest.fixture(scope="module")
+def pool() -> ProcessPoolExecutor:
+    executor = ProcessPoolExecutor(2)
+    yield executor
+    executor.close()
+
+
+@pytest.fixture(scope="module")
+def dask_client():
+    distributed = pytest.importorskip("distributed")
+    import cloudpickle
+
+    # The workers may not find this test module on their path: ship its functions by value.
+    cloudpickle.register_pickle_by_value(sys.modules[__name__])
+    cluster = distributed.LocalCluster(
+        n_workers=2,
+        threads_per_worker=1,
+        processes=True,
+        dashboard_address=None,
+        silence_logs=40,
+    )
+    client = distributed.Client(cluster, set_as_default=False)
+    yield client
+    client.close()
+    cluster.close()
+    cloudpickle.unregister_pickle_by_value(sys.modules[__name__])
+
+
+# --------------------------------------------------------------------------- in-process
+
+
+def test_in_process_map_order_and_callback() -> None:
+    seen: list[int] = []
+    with make_executor() as executor:
+        assert isinstance(executor, InProcessExecutor)
+        out = executor.map(seeded_task, ITEMS, on_result=lambda i, r: seen.append(i))
+    assert out == _expected()
+    assert seen == list(range(len(ITEMS)))
+    assert executor.map(seeded_task, []) == []
+
+
+# --------------------------------------------------------------------------- process pool
+
+
+def test_pool_matches_in_process(pool: ProcessPoolExecutor) -> None:
+    seen: dict[int, object] = {}
+    out = pool.map(seeded_task, ITEMS, on_result=seen.__setitem__)
+    assert out == _expected()  # identical floats, not merely close
+    assert sorted(seen) == list(range(len(ITEMS)))
+    assert [seen[i] for i in range(len(ITEMS))] == out
+
+
+def test_pool_caps_worker_threads(pool: ProcessPoolExecutor) -> None:
+    out = pool.map(thread_env_task, [0, 1])
+    assert out == [("1", "1"), ("1", "1")]
+    assert os.environ.get(ENGINE_THREADS_ENV) is None  # the parent is left as it was
+
+
+def test_pool_retries_a_killed_worker(tmp_path: Path) -> None:
+    items = [(str(tmp_path), i) for i in range(5)]
+    seen: list[int] = []
+    with ProcessPoolExecutor(2) as executor:
+        out = executor.map(dies_once_task, items, on_result=lambda i, r: seen.append(i))
+        assert executor.restarts == 1
+    assert (tmp_path / "started-2").exists()  # the task really did kill its worker once
+    assert out == [i * i for i in range(5)]
+    assert sorted(seen) == list(range(5))  # each result reported exactly once
+
+
+def test_pool_gives_up_after_bounded_attempts() -> None:
+    with (
+        ProcessPoolExecutor(1, attempts=2) as executor,
+        pytest.raises(NoiselabError, match="died 2 times"),
+    ):
+        executor.map(always_dies_task, [0])
+
+
+def test_pool_propagates_task_exceptions(pool: ProcessPoolExecutor) -> None:
+    with pytest.raises(ValueError, match="bad item 1"):
+        pool.map(raises_task, [0, 1, 2])
+    assert pool.map(raises_task, [0, 2]) == [0, 2]  # the pool is usable afterwards
+
+
+# --------------------------------------------------------------------------- argument checks
+
+
+@pytest.mark.parametrize("workers", [0, -2, 2.5, True])
+def test_bad_worker_counts_are_refused(workers: object) -> None:
+    with pytest.raises(InputError, match="workers"):
+        make_executor(workers=workers)  # type: ignore[arg-type]
+
+
+def test_workers_and_cluster_together_refused() -> None:
+    with pytest.raises(InputError, match="one of workers or cluster"):
+        make_executor(workers=2, cluster="tcp://127.0.0.1:8786")
+
+
+@pytest.mark.parametrize("address", ["localhost:8786", "http//x", "tcp://"])
+def test_bad_cluster_address_refused(address: str) -> None:
+    with pytest.raises(InputError, match="cluster"):
+        make_executor(cluster=address)
+
+
+def test_missing_dask_names_the_extra(monkeypatch: pytest.MonkeyPatch) -> None:
+    monkeypatch.setitem(sys.modules, "distributed", None)  # import now raises ImportError
+    with pytest.raises(InputError, match=r'pip install "noiselab\[cluster\]"'):
+        make_executor(cluster="tcp://127.0.0.1:8786")
+
+
+@pytest.mark.cluster
+def test_unreachable_scheduler_is_an_input_error() -> None:
+    pytest.importorskip("distributed")
+    with pytest.raises(InputError, match="cannot reach"):
+        DaskExecutor("tcp://127.0.0.1:9", timeout_s=1.0)
+
+
+# --------------------------------------------------------------------------- dask
+
+
+@pytest.mark.cluster
+def test_dask_matches_in_process(dask_client) -> None:
+    seen: dict[int, object] = {}
+    with make_executor(cluster=dask_client) as executor:
+        assert isinstance(executor, DaskExecutor)
+        out = executor.map(seeded_task, ITEMS, on_result=seen.__setitem__)
+    assert out == _expected()
+    assert [seen[i] for i in range(len(ITEMS))] == out
+    assert dask_client.status != "closed"  # a Client handed in is not closed by the executor
+
+
+@pytest.mark.cluster
+def test_dask_retries_a_killed_worker(dask_client, tmp_path: Path) -> None:
+    items = [(str(tmp_path), i) for i in range(5)]
+    with DaskExecutor(dask_client) as executor:
+        out = executor.map(dies_once_task, items)
+    assert (tmp_path / "started-2").exists()  # the first attempt really killed its worker
+    assert out == [i * i for i in range(5)]
+
+
+@pytest.mark.cluster
+def test_dask_propagates_task_exceptions(dask_client) -> None:
+    executor = DaskExecutor(dask_client, retries=0)
+    with pytest.raises(ValueError, match="bad item 1"):
+        executor.map(raises_task, [0, 1, 2])
