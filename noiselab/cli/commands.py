@@ -9,3 +9,7 @@ import typer
 REGISTRY: list[Callable[[typer.Typer], None]] = []
 # Command modules append themselves here, in data-flow order, e.g.:
 #   from noiselab.cli import profile_cmd; REGISTRY.append(profile_cmd.register)
+
+from noiselab.cli import study_cmds  # noqa: E402  (assess, tune, demo)
+
+REGISTRY.append(study_cmds.register)

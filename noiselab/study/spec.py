@@ -25,7 +25,7 @@ from pydantic import (
     model_validator,
 )
 
-from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 
@@ -327,21 +327,16 @@ def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool)
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
-    from noiselab.device import profile as device_profile
+    from noiselab.device.profile import load_profile, profile_from_mapping
 
     src = str(study_path)
     if isinstance(value, dict):
-        try:
-            return device_profile.profile_from_mapping(value, src, prefix="device"), "<inline>"
-        except TypeError:  # a profile_from_mapping without the prefix argument
-            return device_profile.profile_from_mapping(value, src), "<inline>"
+        # the profile layer names "<source>: <key>"; with this source its keys read device.<key>
+        return profile_from_mapping(value, f"{src}: device"), "<inline>"
     if not value.strip():
-        raise input_error(
-            src, "device", "empty profile path", "a path to a device profile YAML file"
-        )
+        raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
-    resolved = p if p.is_absolute() else (study_path.parent / p)
-    resolved = Path(_normpath(resolved))
+    resolved = Path(_normpath(p if p.is_absolute() else study_path.parent / p))
     if not resolved.is_file():
         what = "is a folder" if resolved.is_dir() else "no such file"
         raise input_error(
@@ -350,7 +345,7 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             f"device profile {resolved} not found ({what})",
             "a profile path relative to the study file, or an inline profile mapping",
         )
-    return device_profile.load_profile(resolved), str(resolved)
+    return load_profile(resolved), str(resolved)
 
 
 def _normpath(p: Path) -> str:
@@ -360,24 +355,8 @@ def _normpath(p: Path) -> str:
 
 
 def _device_qubits(profile: Any) -> list[int]:
-    """Physical qubit ids of a profile (adapts to the profile's shape)."""
-    for attr in ("qubit_ids", "physical_qubits"):
-        ids = getattr(profile, attr, None)
-        if ids is not None:
-            ids = ids() if callable(ids) else ids
-            return [int(q) for q in ids]
-    qubits = getattr(profile, "qubits", None)
-    if isinstance(qubits, Mapping):
-        return sorted(int(q) for q in qubits)
-    if isinstance(qubits, list | tuple):
-        out = []
-        for i, q in enumerate(qubits):
-            out.append(int(getattr(q, "id", getattr(q, "index", i))))
-        return out
-    n = getattr(profile, "num_qubits", None)
-    if n is not None:
-        return list(range(int(n)))
-    raise InputError("device: cannot tell the qubits of this profile")
+    """Physical qubit ids of a profile: 0 .. qubit_count-1."""
+    return list(range(int(profile.qubit_count)))
 
 
 def _profile_name(profile: Any) -> str:

@@ -1,0 +1,401 @@
+"""``noiselab assess``, ``noiselab tune`` and ``noiselab demo``.
+
+Only typer is imported here at start-up; the study layer (and through it qiskit and PySCF) is
+imported inside the command functions so that ``noiselab --help`` stays fast.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import sys
+from collections.abc import Callable, Iterator
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+DEMO_DIR = "noiselab-demo"
+
+StudyArg = Annotated[
+    Path,
+    typer.Argument(
+        help="Study file (YAML): molecule, device profile, shot budget, recipes.",
+        show_default=False,
+    ),
+]
+CacheOpt = Annotated[
+    Path | None,
+    typer.Option(
+        "--cache",
+        help="Results cache file (SQLite). Default: noiselab's folder in the user cache directory.",
+        show_default=False,
+    ),
+]
+NoCacheOpt = Annotated[
+    bool, typer.Option("--no-cache", help="Neither read nor write the results cache.")
+]
+SeedOpt = Annotated[
+    int | None, typer.Option("--seed", help="Override the study's seed.", show_default=False)
+]
+ShotsOpt = Annotated[
+    int | None,
+    typer.Option(
+        "--shots", help="Override the study's total shot budget per estimate.", show_default=False
+    ),
+]
+QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")]
+JsonOpt = Annotated[
+    bool, typer.Option("--json", help="Print one JSON object to stdout instead of the table.")
+]
+TimingsOpt = Annotated[
+    bool,
+    typer.Option(
+        "--timings", help="Add simulation counts and seconds (a 'run' object) to the JSON."
+    ),
+]
+WorkersOpt = Annotated[
+    int | None,
+    typer.Option(
+        "--workers",
+        min=1,
+        help="Run independent simulations in N local processes.",
+        show_default=False,
+    ),
+]
+ListOpt = list[str] | None
+
+
+# ---------------------------------------------------------------- helpers shared by the commands
+
+
+def _open_cache(cache: Path | None, no_cache: bool) -> Any:
+    from noiselab.study.cache import open_cache
+
+    if no_cache and cache is not None:
+        from noiselab.common.errors import InputError
+
+        raise InputError("--cache: given together with --no-cache; allowed: one of them")
+    return open_cache(cache, enabled=not no_cache)
+
+
+def _stdout_is_terminal() -> bool:
+    return sys.stdout.isatty()
+
+
+@contextlib.contextmanager
+def _progress(quiet: bool) -> Iterator[Callable[[str, int, int], None] | None]:
+    """A progress hook ``(description, done, total)`` drawing a rich bar on stderr, or None."""
+    if quiet or not sys.stderr.isatty():
+        yield None
+        return
+    from rich.console import Console
+    from rich.progress import (
+        BarColumn,
+        MofNCompleteColumn,
+        Progress,
+        TextColumn,
+        TimeElapsedColumn,
+        TimeRemainingColumn,
+    )
+
+    console = Console(stderr=True)
+    columns = (
+        TextColumn("{task.description}"),
+        BarColumn(),
+        MofNCompleteColumn(),
+        TimeElapsedColumn(),
+        TextColumn("ETA"),
+        TimeRemainingColumn(),
+    )
+    tasks: dict[str, Any] = {}
+    with Progress(*columns, console=console, transient=True) as bar:
+
+        def hook(description: str, done: int, total: int) -> None:
+            task = tasks.get(description)
+            if task is None:
+                task = tasks[description] = bar.add_task(description, total=max(total, 1))
+            bar.update(task, completed=done, total=max(total, 1))
+
+        yield hook
+
+
+def _console() -> Any:
+    from rich.console import Console
+
+    if _stdout_is_terminal():
+        return Console()
+    return Console(no_color=True, highlight=False, width=140, soft_wrap=False)
+
+
+def _print_table(title: str, headers: tuple[str, ...], rows: list[tuple[str, ...]]) -> None:
+    from rich import box
+    from rich.table import Table
+
+    terminal = _stdout_is_terminal()
+    table = Table(title=title, box=box.ROUNDED if terminal else box.ASCII, title_justify="left")
+    for i, h in enumerate(headers):
+        table.add_column(h, justify="left" if i < 2 else "right", no_wrap=i == 0)
+    for row in rows:
+        table.add_row(*row)
+    _console().print(table)
+
+
+def _print_json(obj: dict[str, Any]) -> None:
+    import json
+
+    sys.stdout.write(json.dumps(obj, indent=2, sort_keys=False) + "\n")
+    sys.stdout.flush()
+
+
+def _context_lines(ctx: Any) -> list[str]:
+    c = ctx
+    return [
+        f"Study {c.study}: {c.qubits} qubits ({c.encoding}), {c.ansatz} ansatz with "
+        f"{c.n_parameters} parameters, device {c.device} (patch {list(c.patch)}, "
+        f"{c.two_qubit_count} two-qubit gates, {c.duration_ns / 1000:.2f} us)",
+        f"Energies (Ha): exact {c.exact_energy_ha:.6f}, Hartree-Fock {c.hf_energy_ha:.6f}, "
+        f"noiseless ansatz {c.ansatz_energy_ha:.6f} ({c.ansatz_error_mha:+.3f} mHa from exact)",
+    ]
+
+
+def _write_assess_outputs(result: Any, out: Path) -> list[Path]:
+    """assess.json, assess.csv and the figures (from noiselab.report) into ``out``."""
+    from noiselab.study.assess import write_assess_outputs
+
+    return write_assess_outputs(result, out)
+
+
+# ---------------------------------------------------------------- assess
+
+
+def assess_cmd(
+    study: StudyArg,
+    json_out: JsonOpt = False,
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out", help="Folder for assess.json, assess.csv and figures.", show_default=False
+        ),
+    ] = None,
+    cache: CacheOpt = None,
+    no_cache: NoCacheOpt = False,
+    seed: SeedOpt = None,
+    shots: ShotsOpt = None,
+    quiet: QuietOpt = False,
+    timings: TimingsOpt = False,
+) -> None:
+    """Emulate the study's experiment on its device and score every recipe at the shot budget."""
+    from noiselab.study.assess import assess
+
+    store = _open_cache(cache, no_cache)
+    with _progress(quiet or json_out) as hook:
+        result = assess(study, cache=store, seed=seed, shots=shots, progress=hook)
+    written = _write_assess_outputs(result, out) if out is not None else []
+    if json_out:
+        _print_json(result.to_json(with_stats=timings))
+        return
+    _show_assess(result, written)
+
+
+def _show_assess(result: Any, written: list[Path]) -> None:
+    from noiselab.study.results import TABLE_HEADERS, format_count
+
+    for line in _context_lines(result.context):
+        typer.echo(line)
+    title = (
+        f"{result.study}: {format_count(result.shots)} shots per estimate, target "
+        f"±{result.target_mha:.4g} mHa at confidence {result.confidence:g}"
+    )
+    _print_table(title, TABLE_HEADERS, result.table_rows())
+    typer.echo(result.verdict)
+    typer.echo(result.caution)
+    s = result.stats
+    typer.echo(
+        f"({s.simulations} new simulation(s), {s.cache_hits} from cache, {s.wall_seconds:.1f} s)"
+    )
+    if written:
+        typer.echo(
+            f"Wrote {len(written)} file(s) to {written[0].parent}: "
+            + ", ".join(p.name for p in written)
+        )
+
+
+# ---------------------------------------------------------------- tune
+
+
+def _parse_scale_sets(values: list[str] | None) -> list[list[float]] | None:
+    if not values:
+        return None
+    from noiselab.common.errors import input_error
+
+    out = []
+    for text in values:
+        try:
+            out.append([float(x) for x in text.replace(" ", "").split(",") if x])
+        except ValueError:
+            raise input_error(
+                None, "--scales", f"{text!r} is not a comma-separated list of numbers", "e.g. 1,2,3"
+            ) from None
+    return out
+
+
+def tune_cmd(
+    study: StudyArg,
+    readout: Annotated[
+        ListOpt,
+        typer.Option(
+            "--readout",
+            help="Readout correction method(s) to try (repeat the option).",
+            show_default=False,
+        ),
+    ] = None,
+    postselect: Annotated[
+        ListOpt,
+        typer.Option(
+            "--postselect", help="Symmetry post-selection mode(s) to try.", show_default=False
+        ),
+    ] = None,
+    amplification: Annotated[
+        ListOpt,
+        typer.Option(
+            "--amplification", help="Noise amplification method(s) to try.", show_default=False
+        ),
+    ] = None,
+    scales: Annotated[
+        ListOpt,
+        typer.Option(
+            "--scales",
+            help="Noise scale set(s) to try, comma-separated, e.g. 1,2,3.",
+            show_default=False,
+        ),
+    ] = None,
+    fit: Annotated[
+        ListOpt, typer.Option("--fit", help="Extrapolation fit(s) to try.", show_default=False)
+    ] = None,
+    top: Annotated[int, typer.Option("--top", min=1, help="How many settings to print.")] = 10,
+    out: Annotated[
+        Path | None,
+        typer.Option(
+            "--out", help="Folder for tune.csv (ranked) and tune.json.", show_default=False
+        ),
+    ] = None,
+    json_out: JsonOpt = False,
+    cache: CacheOpt = None,
+    no_cache: NoCacheOpt = False,
+    seed: SeedOpt = None,
+    shots: ShotsOpt = None,
+    workers: WorkersOpt = None,
+    quiet: QuietOpt = False,
+    timings: TimingsOpt = False,
+) -> None:
+    """Rank a grid of mitigation settings by the probability of reaching the target."""
+    from noiselab.study.tune import GridOverride, tune, write_tune_outputs
+
+    override = GridOverride(
+        readout=readout or None,
+        postselect=postselect or None,
+        amplification=amplification or None,
+        scales=_parse_scale_sets(scales),
+        fit=fit or None,
+    )
+    store = _open_cache(cache, no_cache)
+    with _progress(quiet or json_out) as hook:
+        result = tune(
+            study,
+            grid=override,
+            cache=store,
+            seed=seed,
+            shots=shots,
+            workers=workers,
+            progress=hook,
+        )
+    written = write_tune_outputs(result, out) if out is not None else []
+    if json_out:
+        _print_json(result.to_json(with_stats=timings))
+        return
+    from noiselab.study.results import TUNE_HEADERS, format_count
+
+    for line in _context_lines(result.context):
+        typer.echo(line)
+    title = (
+        f"{result.context.study}: top {min(top, len(result.entries))} of {len(result.entries)} "
+        f"settings at {format_count(result.shots)} shots, target ±{result.target_mha:.4g} mHa"
+    )
+    _print_table(title, TUNE_HEADERS, result.table_rows(top))
+    typer.echo(result.verdict)
+    typer.echo(result.caution)
+    s = result.stats
+    typer.echo(
+        f"({len(result.entries)} settings from {result.distinct_variants} distinct circuit "
+        f"variant(s): {s.simulations} new simulation(s), {s.cache_hits} from cache, "
+        f"{s.wall_seconds:.1f} s, {s.executor})"
+    )
+    if written:
+        typer.echo(f"Wrote {', '.join(str(p) for p in written)}")
+
+
+# ---------------------------------------------------------------- demo
+
+
+def demo_cmd(
+    out: Annotated[
+        Path, typer.Option("--out", help="Folder for the demo's files (in the current directory).")
+    ] = Path(DEMO_DIR),
+    cache: CacheOpt = None,
+    no_cache: NoCacheOpt = False,
+    quiet: QuietOpt = False,
+) -> None:
+    """Assess the shipped demo study (H2 on an invented chip) and write its table and figures."""
+    from noiselab.study.assess import assess, demo_study_path
+
+    path = demo_study_path()
+    typer.echo(f"Demo study: {path}")
+    store = _open_cache(cache, no_cache)
+    with _progress(quiet) as hook:
+        result = assess(path, cache=store, progress=hook)
+    written = _write_assess_outputs(result, out)
+    _show_assess(result, [])
+    typer.echo(f"Demo files are in {out.resolve()}: " + ", ".join(p.name for p in written))
+
+
+# ---------------------------------------------------------------- registration
+
+
+_ASSESS_HELP = (
+    "Emulate the study's experiment on its device and score every recipe at the shot budget.\n\n"
+    "Prints per recipe the mitigated energy, the bias against the exact energy, the standard "
+    "error at the budget, the probability of landing within the target, the shots needed and "
+    "what limits it; then a verdict line naming the best recipe. The study is prepared once "
+    "(exact energy, noiseless optimum, compilation) and every simulation goes through the "
+    "results cache, so a repeated run is fast."
+)
+_TUNE_HELP = (
+    "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
+    "The grid is readout method x post-selection mode x amplification method x scale set x "
+    "fit, from the options here, else the study's tune: section, else a built-in grid of "
+    "more than 50 settings. Settings that need the same circuits share their simulations."
+)
+
+
+def register(app: typer.Typer) -> None:
+    """Add assess, tune and demo to the ``noiselab`` app."""
+    app.command(
+        "assess",
+        help=_ASSESS_HELP,
+        epilog=(
+            "Example: noiselab assess configs/studies/h2-equilibrium.yaml --out results/h2\n\n"
+            "Exit codes: 0 done, 1 failure, 2 bad input (one line naming the file and key)."
+        ),
+    )(assess_cmd)
+    app.command(
+        "tune",
+        help=_TUNE_HELP,
+        epilog=(
+            "Example: noiselab tune configs/studies/h2-equilibrium.yaml --fit linear "
+            "--fit richardson --scales 1,2,3 --scales 1,3,5 --out results/h2-tune"
+        ),
+    )(tune_cmd)
+    app.command(
+        "demo",
+        epilog="Example: noiselab demo --out my-demo",
+    )(demo_cmd)

@@ -1,0 +1,428 @@
+"""Result records of the study jobs (frozen dataclasses) and their JSON / table forms.
+
+Energies in Hartree (``_ha``), biases and standard errors in milli-Hartree (``_mha``). The JSON
+form is deterministic for a given study and seed: timings and cache statistics are kept apart
+(``RunStats``) and only added on request.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+
+CAUTION = (
+    "Caution: this prediction is only as good as the device noise model; real devices drift "
+    "and have errors a profile does not describe."
+)
+
+
+@dataclasses.dataclass(frozen=True)
+class RunStats:
+    """How a job ran: new simulations, cache hits, seconds (not part of the deterministic JSON)."""
+
+    simulations: int
+    cache_hits: int
+    engine_seconds: float
+    wall_seconds: float
+    executor: str = "in-process"
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "simulations": self.simulations,
+            "cache_hits": self.cache_hits,
+            "engine_seconds": round(self.engine_seconds, 4),
+            "wall_seconds": round(self.wall_seconds, 4),
+            "executor": self.executor,
+        }
+
+
+@dataclasses.dataclass(frozen=True)
+class ContextSummary:
+    """What the context found before any noise: energies (Ha) and the compiled circuit."""
+
+    study: str
+    source: str
+    device: str
+    device_source: str
+    qubits: int
+    encoding: str
+    two_qubit_reduction: bool
+    ansatz: str
+    n_parameters: int
+    exact_energy_ha: float
+    hf_energy_ha: float
+    ansatz_energy_ha: float
+    patch: tuple[int, ...]
+    two_qubit_count: int
+    depth: int
+    duration_ns: float
+    estimated_fidelity: float | None
+    n_groups: int
+
+    @property
+    def ansatz_error_mha(self) -> float:
+        return (self.ansatz_energy_ha - self.exact_energy_ha) * 1000.0
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "study": self.study,
+            "source": self.source,
+            "device": self.device,
+            "device_source": self.device_source,
+            "qubits": self.qubits,
+            "encoding": self.encoding,
+            "two_qubit_reduction": self.two_qubit_reduction,
+            "ansatz": self.ansatz,
+            "n_parameters": self.n_parameters,
+            "exact_energy": self.exact_energy_ha,
+            "hartree_fock_energy": self.hf_energy_ha,
+            "ansatz_energy": self.ansatz_energy_ha,
+            "ansatz_error_mha": self.ansatz_error_mha,
+            "compiled": {
+                "patch": list(self.patch),
+                "two_qubit_count": self.two_qubit_count,
+                "depth": self.depth,
+                "duration_ns": self.duration_ns,
+                "estimated_fidelity": self.estimated_fidelity,
+            },
+            "measurement_groups": self.n_groups,
+        }
+
+
+def rank_key(result: Any) -> tuple[float, float]:
+    """Sort key: highest probability within target first, then fewest shots needed."""
+    needed = result.shots_needed
+    return (-float(result.p_within_target), math.inf if needed is None else float(needed))
+
+
+def best_of(results: Mapping[str, Any]) -> str:
+    """Name of the best recipe (order of ``results`` breaks exact ties)."""
+    names = list(results)
+    return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
+
+
+def _target_words(target_mha: float) -> str:
+    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-9:
+        return f"chemical accuracy (±{target_mha:.4g} mHa)"
+    return f"the ±{target_mha:.4g} mHa target"
+
+
+def verdict_line(
+    best_name: str, best: Any, target_mha: float, confidence: float, shots: int
+) -> tuple[bool, str]:
+    """(reachable at the budget, one plain sentence naming the best recipe)."""
+    goal = _target_words(target_mha)
+    p = float(best.p_within_target)
+    needed = best.shots_needed
+    if p >= confidence:
+        more = f"; {format_count(needed)} shots would do" if needed is not None else ""
+        return True, (
+            f"Verdict: {goal} is reachable with {format_count(shots)} shots: best recipe "
+            f"'{best_name}' lands within target with probability {p:.3f} "
+            f"(>= {confidence:g}){more}."
+        )
+    if needed is not None:
+        return False, (
+            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best recipe "
+            f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
+            f"{format_count(needed)} shots."
+        )
+    return False, (
+        f"Verdict: {goal} is NOT reachable at any shot count: the best recipe '{best_name}' "
+        f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
+        f"{format_count(shots)} shots)."
+    )
+
+
+def format_count(n: int | float | None) -> str:
+    """Shot counts as people read them: 1,000,000 -> '1.0e6'; small counts in full."""
+    if n is None:
+        return "-"
+    n = float(n)
+    if not math.isfinite(n):
+        return "inf"
+    if n < 100_000:
+        return f"{round(n):,}"
+    exp = math.floor(math.log10(n))
+    return f"{n / 10**exp:.1f}e{exp}"
+
+
+def jsonable(value: Any) -> Any:
+    """Plain JSON types from numpy arrays/scalars, tuples, dataclasses and pydantic models."""
+    if isinstance(value, Mapping):
+        return {str(k): jsonable(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [jsonable(v) for v in value]
+    if isinstance(value, np.ndarray):
+        return jsonable(value.tolist())
+    if isinstance(value, np.bool_ | bool):
+        return bool(value)
+    if isinstance(value, np.integer):
+        return int(value)
+    if isinstance(value, np.floating | float):
+        v = float(value)
+        return v if math.isfinite(v) else None
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return jsonable(dataclasses.asdict(value))
+    if hasattr(value, "model_dump"):
+        return jsonable(value.model_dump(mode="json"))
+    if value is None or isinstance(value, str | int):
+        return value
+    return repr(value)
+
+
+def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) -> dict[str, Any]:
+    """One recipe's entry in the assess JSON (energy in Ha, the rest in mHa / counts)."""
+    out = {
+        "energy": float(result.energy_ha),
+        "bias_mha": float(result.bias_exact_mha),
+        "bias_ansatz_mha": float(result.bias_ansatz_mha),
+        "std_mha": float(result.std_mha),
+        "shots": int(result.shots_total),
+        "shots_per_circuit": jsonable(result.shots_per_circuit),
+        "n_circuits": int(result.n_circuits),
+        "p_within_target": float(result.p_within_target),
+        "shots_needed": None if result.shots_needed is None else int(result.shots_needed),
+        "limited_by": str(result.limited_by),
+    }
+    if passes is not None:
+        out["passes"] = jsonable(list(passes))
+    out["details"] = jsonable(getattr(result, "details", {}) or {})
+    return out
+
+
+TABLE_HEADERS = (
+    "recipe",
+    "energy (Ha)",
+    "bias (mHa)",
+    "std. error (mHa)",
+    "P(within target)",
+    "shots needed",
+    "limited by",
+)
+
+
+@dataclasses.dataclass(frozen=True)
+class AssessResult:
+    """``assess``: every recipe of a study at its shot budget, the best one and the verdict."""
+
+    context: ContextSummary
+    target_mha: float
+    confidence: float
+    shots: int
+    seed: int
+    recipes: dict[str, Any]  # name -> noiselab.mitigate RecipeResult
+    passes: dict[str, tuple[dict[str, Any], ...]]
+    best_recipe: str
+    reachable: bool
+    verdict: str
+    stats: RunStats
+    caution: str = CAUTION
+
+    @property
+    def study(self) -> str:
+        return self.context.study
+
+    @property
+    def exact_energy_ha(self) -> float:
+        return self.context.exact_energy_ha
+
+    def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
+        """The ``assess --json`` object (deterministic unless ``with_stats``)."""
+        out = self.context.to_json()
+        out.update(
+            {
+                "target_mha": self.target_mha,
+                "confidence": self.confidence,
+                "shots_budget": self.shots,
+                "seed": self.seed,
+                "units": {"energy": "Ha", "bias, std": "mHa", "shots": "total per estimate"},
+                "recipes": {
+                    name: recipe_json(r, self.passes.get(name)) for name, r in self.recipes.items()
+                },
+                "best_recipe": self.best_recipe,
+                "reachable": self.reachable,
+                "verdict": self.verdict,
+                "caution": self.caution,
+            }
+        )
+        if with_stats:
+            out["run"] = self.stats.to_json()
+        return jsonable(out)
+
+    def table_rows(self) -> list[tuple[str, ...]]:
+        """Rows for TABLE_HEADERS, formatted for people."""
+        return [_row(name, r) for name, r in self.recipes.items()]
+
+    def csv_rows(self) -> list[dict[str, Any]]:
+        """Unformatted rows for the CSV (units in the column names)."""
+        rows = []
+        for name, r in self.recipes.items():
+            rows.append(
+                {
+                    "recipe": name,
+                    "energy_ha": float(r.energy_ha),
+                    "bias_mha": float(r.bias_exact_mha),
+                    "bias_ansatz_mha": float(r.bias_ansatz_mha),
+                    "std_mha": float(r.std_mha),
+                    "shots_total": int(r.shots_total),
+                    "n_circuits": int(r.n_circuits),
+                    "p_within_target": float(r.p_within_target),
+                    "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
+                    "limited_by": str(r.limited_by),
+                }
+            )
+        return rows
+
+
+def _row(name: str, r: Any) -> tuple[str, ...]:
+    return (
+        name,
+        f"{float(r.energy_ha):.6f}",
+        f"{float(r.bias_exact_mha):+.3f}",
+        f"{float(r.std_mha):.3f}",
+        f"{float(r.p_within_target):.3f}",
+        format_count(r.shots_needed) if r.shots_needed is not None else "never (bias)",
+        str(r.limited_by),
+    )
+
+
+@dataclasses.dataclass(frozen=True)
+class TuneEntry:
+    """One mitigation setting of a tune grid and its result."""
+
+    rank: int
+    label: str
+    setting: dict[str, Any]
+    passes: tuple[dict[str, Any], ...]
+    result: Any  # RecipeResult
+
+
+TUNE_HEADERS = (
+    "rank",
+    "setting",
+    "bias (mHa)",
+    "std. error (mHa)",
+    "P(within target)",
+    "shots needed",
+    "limited by",
+)
+
+
+@dataclasses.dataclass(frozen=True)
+class TuneResult:
+    """``tune``: every setting of the grid, ranked (best first)."""
+
+    context: ContextSummary
+    target_mha: float
+    confidence: float
+    shots: int
+    seed: int
+    entries: tuple[TuneEntry, ...]
+    distinct_variants: int
+    stats: RunStats
+    verdict: str
+    caution: str = CAUTION
+
+    @property
+    def best(self) -> TuneEntry:
+        return self.entries[0]
+
+    def csv_rows(self) -> list[dict[str, Any]]:
+        rows = []
+        for e in self.entries:
+            r = e.result
+            row: dict[str, Any] = {"rank": e.rank, "setting": e.label}
+            row.update({k: _csv_value(v) for k, v in e.setting.items()})
+            row.update(
+                {
+                    "energy_ha": float(r.energy_ha),
+                    "bias_mha": float(r.bias_exact_mha),
+                    "std_mha": float(r.std_mha),
+                    "p_within_target": float(r.p_within_target),
+                    "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
+                    "limited_by": str(r.limited_by),
+                    "n_circuits": int(r.n_circuits),
+                }
+            )
+            rows.append(row)
+        return rows
+
+    def table_rows(self, top: int = 10) -> list[tuple[str, ...]]:
+        out = []
+        for e in self.entries[:top]:
+            r = e.result
+            out.append(
+                (
+                    str(e.rank),
+                    e.label,
+                    f"{float(r.bias_exact_mha):+.3f}",
+                    f"{float(r.std_mha):.3f}",
+                    f"{float(r.p_within_target):.3f}",
+                    format_count(r.shots_needed) if r.shots_needed is not None else "never (bias)",
+                    str(r.limited_by),
+                )
+            )
+        return out
+
+    def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
+        out = self.context.to_json()
+        out.update(
+            {
+                "target_mha": self.target_mha,
+                "confidence": self.confidence,
+                "shots_budget": self.shots,
+                "seed": self.seed,
+                "settings": len(self.entries),
+                "distinct_variants": self.distinct_variants,
+                "ranking": [
+                    {
+                        "rank": e.rank,
+                        "setting": e.label,
+                        "options": e.setting,
+                        "passes": list(e.passes),
+                        **{
+                            k: v
+                            for k, v in recipe_json(e.result).items()
+                            if k not in {"details", "passes"}
+                        },
+                    }
+                    for e in self.entries
+                ],
+                "verdict": self.verdict,
+                "caution": self.caution,
+            }
+        )
+        if with_stats:
+            out["run"] = self.stats.to_json()
+        return jsonable(out)
+
+
+def _csv_value(v: Any) -> Any:
+    if isinstance(v, list | tuple):
+        return " ".join(f"{x:g}" if isinstance(x, float) else str(x) for x in v)
+    return v
+
+
+def csv_text(rows: Sequence[Mapping[str, Any]]) -> str:
+    """CSV text of ``rows`` (columns from the first row, then any new keys in order)."""
+    import csv
+    import io
+
+    columns: list[str] = []
+    for row in rows:
+        for k in row:
+            if k not in columns:
+                columns.append(k)
+    buf = io.StringIO()
+    writer = csv.DictWriter(buf, fieldnames=columns, lineterminator="\n")
+    writer.writeheader()
+    for row in rows:
+        writer.writerow({k: row.get(k, "") for k in columns})
+    return buf.getvalue()
