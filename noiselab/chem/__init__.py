@@ -1,3 +1,3 @@
-"""Molecule -> fermionic integrals -> qubit Hamiltonian, exact reference energies, trial-state circuits.
+"""Molecule -> integrals -> qubit Hamiltonian, exact reference energies, trial-state circuits.
 
 Nothing in this layer knows about noise."""
