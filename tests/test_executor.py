@@ -56,6 +56,18 @@ def thread_env_task(item: int) -> tuple[str | None, str | None]:
     return os.environ.get("OMP_NUM_THREADS"), os.environ.get(ENGINE_THREADS_ENV)
 
 
+def aer_threads_task(item: int) -> int:
+    """Threads qiskit-aer used for one 8-qubit density-matrix run (16-qubit internal state)."""
+    from qiskit import QuantumCircuit
+    from qiskit_aer import AerSimulator
+
+    qc = QuantumCircuit(8)
+    qc.h(range(8))
+    qc.save_density_matrix()
+    result = AerSimulator(method="density_matrix").run(qc, shots=1).result()
+    return int(result.results[0].metadata["parallel_state_update"])
+
+
 ITEMS = [(i, 1000 + 7 * i) for i in range(8)]
 
 
@@ -123,6 +135,13 @@ def test_pool_caps_worker_threads(pool: ProcessPoolExecutor) -> None:
     out = pool.map(thread_env_task, [0, 1])
     assert out == [("1", "1"), ("1", "1")]
     assert os.environ.get(ENGINE_THREADS_ENV) is None  # the parent is left as it was
+
+
+@pytest.mark.slow
+def test_pool_workers_run_aer_single_threaded(pool: ProcessPoolExecutor) -> None:
+    # Two workers on a shared machine: each engine must stay on one thread (qiskit-aer reports
+    # the threads it used for the state update in the result metadata; qiskit-aer docs).
+    assert pool.map(aer_threads_task, [0, 1]) == [1, 1]
 
 
 def test_pool_retries_a_killed_worker(tmp_path: Path) -> None:
