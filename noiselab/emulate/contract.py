@@ -1,0 +1,161 @@
+"""Measured distributions of many bases from one state: the analytic measurement kernel.
+
+Density matrix: ``p(b) = Tr(rho (x)_q E_q^{b_q})`` with per-qubit effect tensors ``E_q`` of shape
+``(2, 2, 2)`` (``[b, row, col]``). The density matrix, reshaped to ``2k`` axes, is contracted one
+qubit at a time (each step turns a row and a column axis into one outcome axis), O(4**k) per basis.
+Bases that share effects on the first contracted qubits share those intermediate tensors (the
+qubits are contracted in order of fewest distinct effects first, bases grouped as a prefix tree).
+
+Pure states (trajectories): ``E^1 = I - E^0`` commutes with ``E^0``, so both are diagonal in the
+eigenbasis ``V`` of ``E^0``; ``p(b) = sum_r C(b|r) |<r|V^dagger psi>|^2`` with the classical
+2x2 matrix ``C[b, r] = (V^dagger E^b V)[r, r]``: a rotation per qubit, ``|.|^2``, then a
+column-stochastic matrix per qubit (applied after averaging over trajectories, it is linear).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Hashable, Sequence
+
+import numpy as np
+
+from noiselab.emulate.readout import apply_readout
+
+#: Negative probabilities above this (in magnitude) are rounding noise and are clipped to 0.
+CLIP_TOL = 1e-9
+
+
+def _order_by_sharing(keys: Sequence[Sequence[Hashable]], n: int) -> list[int]:
+    distinct = [len({kk[l] for kk in keys}) for l in range(n)]
+    return sorted(range(n), key=lambda l: (distinct[l], l))
+
+
+def _final_perm(order: Sequence[int], n: int) -> list[int]:
+    # after contraction, axis j holds logical qubit order[n-1-j]; we want axis p <-> qubit n-1-p
+    where = {order[n - 1 - j]: j for j in range(n)}
+    return [where[n - 1 - p] for p in range(n)]
+
+
+def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndarray:
+    """Real part, clip rounding negatives, renormalize each row (last axis) to sum 1."""
+    p = np.asarray(p)
+    if np.iscomplexobj(p):
+        p = p.real
+    p = np.array(p, dtype=float)
+    low = p.min() if p.size else 0.0
+    if low < -CLIP_TOL:
+        raise ArithmeticError(f"{what}: negative probability {low:.3e}; the state is not valid")
+    np.clip(p, 0.0, None, out=p)
+    s = p.sum(axis=-1, keepdims=True)
+    return p / np.where(s > 0, s, 1.0)
+
+
+def dm_distributions(
+    rho: np.ndarray,
+    qubits: Sequence[int],
+    effects: Sequence[Sequence[np.ndarray]],
+    keys: Sequence[Sequence[Hashable]],
+) -> np.ndarray:
+    """Distributions ``(n_bases, 2**n)`` of measuring circuit qubits ``qubits`` of ``rho``.
+
+    ``rho``: ``(2**k, 2**k)`` density matrix (qiskit order). ``qubits[l]``: circuit qubit holding
+    logical qubit l. ``effects[i][l]``: effect tensor of logical qubit l in basis i;
+    ``keys[i][l]``: a hashable naming it (equal keys must mean equal tensors). Unmeasured circuit
+    qubits are traced out. Entry k of a row has ``bit_l = (k >> l) & 1``.
+    """
+    dim = rho.shape[0]
+    k = dim.bit_length() - 1
+    n = len(qubits)
+    x = np.asarray(rho).reshape((2,) * (2 * k))
+    rem = list(range(k - 1, -1, -1))  # circuit qubit of each row axis (qiskit: MSB first)
+    for c in range(k):
+        if c in qubits:
+            continue
+        idx = rem.index(c)
+        x = np.trace(x, axis1=idx, axis2=len(rem) + idx)
+        rem.pop(idx)
+    order = _order_by_sharing(keys, n)
+    out = np.empty((len(effects), 2**n))
+    perm = _final_perm(order, n)
+
+    def rec(x: np.ndarray, depth: int, nb: int, rem: list[int], members: list[int]) -> None:
+        if depth == n:
+            flat = np.transpose(x, perm).reshape(-1)
+            for i in members:
+                out[i] = flat.real
+            return
+        l = order[depth]
+        idx = rem.index(qubits[l])
+        m = len(rem)
+        groups: dict[Hashable, list[int]] = {}
+        for i in members:
+            groups.setdefault(keys[i][l], []).append(i)
+        sub = rem[:idx] + rem[idx + 1 :]
+        for members_g in groups.values():
+            t = effects[members_g[0]][l]  # [b, j(row of E) , i(col of E)]
+            # p = sum rho[i, j] E[j, i]: E's row index meets rho's column axis
+            y = np.tensordot(t, x, axes=([1, 2], [nb + m + idx, nb + idx]))
+            rec(y, depth + 1, nb + 1, sub, members_g)
+
+    rec(x, 0, 0, rem, list(range(len(effects))))
+    return clean_probabilities(out, what="density-matrix distribution")
+
+
+def effect_rotation(e: np.ndarray, tol: float = 1e-12) -> tuple[np.ndarray | None, np.ndarray]:
+    """``(V, C)`` with ``E^b = V diag(C[b]) V^dagger``; V is ``None`` for the identity."""
+    e0 = np.asarray(e[0])
+    if abs(e0[0, 1]) < tol and abs(e0[1, 0]) < tol:
+        v = None
+        c = np.array([[e[b][r, r].real for r in (0, 1)] for b in (0, 1)])
+    else:
+        _, v = np.linalg.eigh(e0)
+        c = np.array([[(v.conj().T @ e[b] @ v)[r, r].real for r in (0, 1)] for b in (0, 1)])
+    return v, np.clip(c, 0.0, 1.0)
+
+
+def sv_batch_mean_distributions(
+    psis: np.ndarray,
+    qubits: Sequence[int],
+    rotations: Sequence[Sequence[tuple[np.ndarray | None, np.ndarray]]],
+    keys: Sequence[Sequence[Hashable]],
+) -> np.ndarray:
+    """Mean over a batch of pure states ``psis (B, 2**k)`` of each basis' distribution.
+
+    ``rotations[i][l] = (V, C)`` from :func:`effect_rotation` for logical qubit l in basis i.
+    Returns ``(n_bases, 2**n)``.
+    """
+    bsz, dim = psis.shape
+    k = dim.bit_length() - 1
+    n = len(qubits)
+    x = np.asarray(psis).reshape((bsz,) + (2,) * k)
+    order = _order_by_sharing(keys, n)
+    out = np.empty((len(rotations), 2**n))
+    unmeasured = tuple(1 + (k - 1 - c) for c in range(k) if c not in qubits)
+    # measured axes after summing the unmeasured ones, in qiskit order (logical MSB first)
+    kept = [c for c in range(k - 1, -1, -1) if c in qubits]
+    perm = [kept.index(qubits[n - 1 - p]) for p in range(n)]
+
+    def rec(x: np.ndarray, depth: int, members: list[int]) -> None:
+        if depth == n:
+            pr = (np.abs(x) ** 2).mean(axis=0)
+            if unmeasured:
+                pr = pr.sum(axis=tuple(a - 1 for a in unmeasured))
+            flat = np.transpose(pr, perm).reshape(-1) if n else pr.reshape(-1)
+            for i in members:
+                mats = [rotations[i][l][1] for l in range(n)]
+                out[i] = apply_readout(flat, mats)
+            return
+        l = order[depth]
+        ax = 1 + (k - 1 - qubits[l])
+        groups: dict[Hashable, list[int]] = {}
+        for i in members:
+            groups.setdefault(keys[i][l], []).append(i)
+        for members_g in groups.values():
+            v = rotations[members_g[0]][l][0]
+            if v is None:
+                rec(x, depth + 1, members_g)
+            else:
+                y = np.moveaxis(np.tensordot(v.conj().T, x, axes=([1], [ax])), 0, ax)
+                rec(y, depth + 1, members_g)
+
+    rec(x, 0, list(range(len(rotations))))
+    return out

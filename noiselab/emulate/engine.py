@@ -1,0 +1,352 @@
+"""Measured distributions of a compiled circuit in many Pauli bases from ONE state simulation.
+
+``emulate_bases(compiled, profile, bases)`` runs the compiled circuit once (qiskit-aer density
+matrix with the profile's noise model, no shots) and then, for every basis, contracts the density
+matrix with the Heisenberg-evolved effects of the noisy basis-change layer (see
+:mod:`noiselab.emulate.channels` and :mod:`noiselab.emulate.contract`). Readout assignment error
+(per-qubit confusion and pair crosstalk) is applied analytically afterwards
+(:mod:`noiselab.emulate.readout`). Past the memory guard, ``method="auto"`` switches to Monte Carlo
+wavefunction trajectories (:mod:`noiselab.emulate.trajectory`), whose statistical error is kept
+apart from shot noise in ``trajectory_batches``.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable, Hashable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from noiselab.common.errors import InputError, ProblemTooLargeError
+from noiselab.emulate.channels import BasisLayerSpec, EffectCache, layer_duration_ns
+from noiselab.emulate.contract import dm_distributions
+from noiselab.emulate.memory import GIB, check_memory, estimate_memory_bytes, fits_in_memory
+from noiselab.emulate.readout import PairMatrix, apply_readout
+
+METHODS = ("auto", "density_matrix", "trajectory")
+
+_ENGINE_CALLS = [0]
+
+
+def engine_call_count() -> int:
+    """Total number of simulator runs made by this module since import (for tests and reports)."""
+    return _ENGINE_CALLS[0]
+
+
+@dataclass(frozen=True)
+class BasisDistributions:
+    """Exact (or trajectory-averaged) measured distributions, one row per basis.
+
+    ``bases``: Pauli labels over logical qubits (qiskit order; 'I' and 'Z' measured in Z).
+    ``probs_ideal`` ``(n_bases, 2**n)``: after the noisy basis layer, before readout error.
+    ``probs`` ``(n_bases, 2**n)``: after readout assignment error (confusion and crosstalk).
+    Entry k of a row has ``bit_l = (k >> l) & 1`` for logical qubit l.
+    ``engine_seconds``: wall time of the simulation and contraction; ``engine_calls``: simulator
+    runs (1 for the density matrix, one per batch for trajectories).
+    ``method``: "density_matrix" or "trajectory"; ``notice``: one line for the user, or None.
+    ``trajectory_batches`` / ``trajectory_batches_ideal`` ``(n_batches, n_bases, 2**n)``: batch
+    means of the trajectory distributions (``probs`` is their mean); the trajectory standard error
+    of any estimator f linear in the distributions is ``std(f(batch), ddof=1) / sqrt(n_batches)``
+    (:meth:`trajectory_std`). ``None`` for the exact method.
+    """
+
+    bases: tuple[str, ...]
+    probs_ideal: np.ndarray
+    probs: np.ndarray
+    num_qubits: int
+    engine_seconds: float
+    engine_calls: int
+    method: str = "density_matrix"
+    notice: str | None = None
+    trajectory_batches: np.ndarray | None = None
+    trajectory_batches_ideal: np.ndarray | None = None
+    num_trajectories: int = 0
+
+    @property
+    def is_exact(self) -> bool:
+        return self.trajectory_batches is None
+
+    def row(self, basis: str, *, ideal: bool = False) -> np.ndarray:
+        """The distribution measured in ``basis``."""
+        i = self.bases.index(basis)
+        return (self.probs_ideal if ideal else self.probs)[i]
+
+    def trajectory_std(
+        self, estimator: Callable[[np.ndarray], float], *, ideal: bool = False
+    ) -> float:
+        """Trajectory standard error of ``estimator(probs)`` (0.0 for the exact method).
+
+        ``estimator`` maps an ``(n_bases, 2**n)`` array to a number; for a linear estimator the
+        batch-means formula is exact up to the usual sampling of the error itself.
+        """
+        batches = self.trajectory_batches_ideal if ideal else self.trajectory_batches
+        if batches is None:
+            return 0.0
+        vals = np.array([estimator(b) for b in batches])
+        return float(vals.std(ddof=1) / np.sqrt(len(vals)))
+
+
+def validate_bases(bases: Sequence[str], num_qubits: int) -> tuple[str, ...]:
+    """Check Pauli labels (letters IXYZ, one per logical qubit); return them as a tuple."""
+    if isinstance(bases, str):
+        bases = [bases]
+    out = tuple(str(b).upper() for b in bases)
+    if not out:
+        raise InputError("emulation: bases: empty list; allowed: at least one Pauli label")
+    for b in out:
+        if len(b) != num_qubits or set(b) - set("IXYZ"):
+            raise InputError(
+                f"emulation: bases: {b!r} is not a Pauli label on {num_qubits} qubits; "
+                f"allowed: {num_qubits} letters from I, X, Y, Z"
+            )
+    return out
+
+
+def check_circuit(circuit: Any) -> None:
+    """Refuse circuits the engine cannot run: unbound parameters, measurements."""
+    params = list(circuit.parameters)
+    if params:
+        names = ", ".join(p.name for p in params[:3]) + (", ..." if len(params) > 3 else "")
+        raise InputError(
+            f"emulation: circuit: {len(params)} unbound parameter(s) ({names}); "
+            f"allowed: a bound circuit (call assign_parameters first)"
+        )
+    if any(inst.operation.name == "measure" for inst in circuit.data):
+        raise InputError(
+            "emulation: circuit: contains measurements; allowed: a circuit without measurements "
+            "(the emulator measures every basis itself)"
+        )
+
+
+def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
+    """One qiskit-aer density-matrix run (no shots); returns rho ``(2**k, 2**k)``."""
+    from qiskit_aer import AerSimulator
+
+    qc = circuit.copy()
+    qc.save_density_matrix(label="rho")
+    sim = AerSimulator(method="density_matrix", noise_model=noise_model)
+    _ENGINE_CALLS[0] += 1
+    result = sim.run(qc, shots=1).result()
+    if not result.success:
+        raise RuntimeError(f"qiskit-aer density-matrix run failed: {result.status}")
+    rho = result.data(0)["rho"]
+    return np.asarray(getattr(rho, "data", rho))
+
+
+def _basis_tables(
+    bases: Sequence[str],
+    qubits: Sequence[int],
+    cache: EffectCache,
+) -> tuple[list[list[np.ndarray]], list[list[Hashable]]]:
+    effects: list[list[np.ndarray]] = []
+    keys: list[list[Hashable]] = []
+    for b in bases:
+        letters = {qubits[l]: b[len(b) - 1 - l] for l in range(len(qubits))}
+        layer_ns = layer_duration_ns(letters, cache.spec)
+        row_e, row_k = [], []
+        for l in range(len(qubits)):
+            letter = letters[qubits[l]]
+            letter = "Z" if letter == "I" else letter
+            row_e.append(cache.get(qubits[l], letter, layer_ns))
+            row_k.append((letter, round(layer_ns, 6)))
+        effects.append(row_e)
+        keys.append(row_k)
+    return effects, keys
+
+
+def choose_method(
+    num_circuit_qubits: int, method: str, *, max_density_matrix_qubits: int | None = None
+) -> tuple[str, str | None]:
+    """``(method, notice)``: resolve "auto" with the memory guard; refuse impossible requests."""
+    if method not in METHODS:
+        raise InputError(f"emulation: method: {method!r}; allowed: {', '.join(METHODS)}")
+    k = num_circuit_qubits
+    over_cap = max_density_matrix_qubits is not None and k > max_density_matrix_qubits
+    if method == "density_matrix":
+        if over_cap:
+            raise ProblemTooLargeError(
+                f"emulation: {k} qubits exceed the density-matrix limit of "
+                f"{max_density_matrix_qubits} qubits (about {estimate_memory_bytes(k) / GIB:.2f} "
+                f"GiB); allowed: method 'auto' or 'trajectory', or fewer qubits"
+            )
+        check_memory(k, "density_matrix")
+        return "density_matrix", None
+    if method == "trajectory":
+        return "trajectory", None
+    if not over_cap and fits_in_memory(k, "density_matrix"):
+        return "density_matrix", None
+    need = estimate_memory_bytes(k, "density_matrix") / GIB
+    return "trajectory", (
+        f"{k} qubits: the density matrix would need about {need:.2f} GiB, beyond the memory "
+        f"guard; using Monte Carlo trajectories (results carry a trajectory error bar)"
+    )
+
+
+def emulate_circuit_bases(
+    circuit: Any,
+    noise_model: Any,
+    bases: Sequence[str],
+    *,
+    layer: BasisLayerSpec,
+    logical_to_circuit: Sequence[int] | None = None,
+    readout_matrices: Sequence[np.ndarray | None] | None = None,
+    readout_crosstalk: Sequence[PairMatrix] = (),
+    method: str = "auto",
+    basis_noise: bool = True,
+    num_trajectories: int = 256,
+    num_batches: int = 16,
+    seed: int | None = None,
+    max_density_matrix_qubits: int | None = None,
+) -> BasisDistributions:
+    """Lower-level :func:`emulate_bases` on a circuit and a qiskit-aer noise model.
+
+    ``logical_to_circuit[l]``: circuit qubit of logical qubit l (default: the identity over all
+    circuit qubits). ``readout_matrices[l]`` / ``readout_crosstalk``: readout error in LOGICAL
+    indices (``None``: no readout error). ``basis_noise=False`` makes the basis layer noiseless.
+    """
+    check_circuit(circuit)
+    k = circuit.num_qubits
+    qubits = list(range(k)) if logical_to_circuit is None else [int(c) for c in logical_to_circuit]
+    n = len(qubits)
+    if len(set(qubits)) != n or any(not 0 <= c < k for c in qubits):
+        raise InputError(
+            f"emulation: logical_to_circuit: {qubits}; allowed: distinct circuit qubits 0..{k - 1}"
+        )
+    bases_t = validate_bases(bases, n)
+    chosen, notice = choose_method(k, method, max_density_matrix_qubits=max_density_matrix_qubits)
+    cache = EffectCache(noise_model, k, layer, noisy=basis_noise)
+    effects, keys = _basis_tables(bases_t, qubits, cache)
+    mats = list(readout_matrices) if readout_matrices is not None else [None] * n
+    t0 = time.perf_counter()
+    if chosen == "density_matrix":
+        calls0 = engine_call_count()
+        rho = simulate_density_matrix(circuit, noise_model)
+        ideal = dm_distributions(rho, qubits, effects, keys)
+        del rho
+        probs = apply_readout(ideal, mats, readout_crosstalk)
+        return BasisDistributions(
+            bases=bases_t,
+            probs_ideal=ideal,
+            probs=probs,
+            num_qubits=n,
+            engine_seconds=time.perf_counter() - t0,
+            engine_calls=engine_call_count() - calls0,
+            method="density_matrix",
+            notice=notice,
+        )
+    from noiselab.emulate.trajectory import trajectory_distributions
+
+    check_memory(
+        k,
+        "trajectory",
+        trajectories_per_batch=max(1, num_trajectories // max(1, num_batches)),
+        num_bases=len(bases_t),
+        num_batches=num_batches,
+    )
+    calls0 = engine_call_count()
+    batches_ideal = trajectory_distributions(
+        circuit,
+        noise_model,
+        qubits,
+        effects,
+        keys,
+        num_trajectories=num_trajectories,
+        num_batches=num_batches,
+        seed=seed,
+        counter=_ENGINE_CALLS,
+    )
+    batches = apply_readout(batches_ideal, mats, readout_crosstalk)
+    return BasisDistributions(
+        bases=bases_t,
+        probs_ideal=batches_ideal.mean(axis=0),
+        probs=batches.mean(axis=0),
+        num_qubits=n,
+        engine_seconds=time.perf_counter() - t0,
+        engine_calls=engine_call_count() - calls0,
+        method="trajectory",
+        notice=notice,
+        trajectory_batches=batches,
+        trajectory_batches_ideal=batches_ideal,
+        num_trajectories=int(num_trajectories // num_batches * num_batches),
+    )
+
+
+# ---- device-profile entry points -----------------------------------------------------------
+
+
+def layer_spec_for(profile: Any, num_qubits: int) -> BasisLayerSpec:
+    """Basis-layer spec of a device profile: its native single-qubit gates and their durations."""
+    gates = tuple(profile.single_qubit_gates)
+    durations = {
+        (g, i): float(profile.gate_duration_ns(g)) for g in gates for i in range(num_qubits)
+    }
+    return BasisLayerSpec(native_1q=gates, durations_ns=durations)
+
+
+def logical_readout(
+    profile: Any, patch: Sequence[int], qubits: Sequence[int]
+) -> tuple[list[np.ndarray], list[PairMatrix]]:
+    """Readout matrices and joint-flip terms in LOGICAL indices.
+
+    ``qubits[l]`` is the circuit position of logical qubit l; circuit position i is physical
+    ``patch[i]``. Crosstalk terms touching an unmeasured patch qubit are dropped (that qubit is
+    not read out).
+    """
+    from noiselab.device.noise import readout_crosstalk, readout_matrices
+
+    mats = readout_matrices(profile, patch)
+    where = {c: l for l, c in enumerate(qubits)}
+    terms: list[PairMatrix] = [
+        (where[i], where[j], c)
+        for i, j, c in readout_crosstalk(profile, patch)
+        if i in where and j in where
+    ]
+    return [mats[c] for c in qubits], terms
+
+
+def emulate_bases(
+    compiled: Any,
+    profile: Any,
+    bases: Sequence[str],
+    *,
+    method: str = "auto",
+    basis_noise: bool = True,
+    readout: bool = True,
+    noise_model: Any = None,
+    num_trajectories: int = 256,
+    num_batches: int = 16,
+    seed: int | None = None,
+    max_density_matrix_qubits: int | None = None,
+) -> BasisDistributions:
+    """Measured distributions of ``compiled`` (a ``CompiledCircuit``) in every basis of ``bases``.
+
+    ``bases``: Pauli labels over logical qubits. One state simulation whatever their number
+    (density matrix), or one trajectory set (``method="trajectory"``, or "auto" past the memory
+    guard). The basis layer is noisy (the profile's gate channels, relaxation of idle qubits over
+    its duration) unless ``basis_noise=False``; ``readout=False`` makes ``probs`` equal
+    ``probs_ideal``. ``noise_model`` overrides the one built from ``profile`` and the patch.
+    """
+    from noiselab.device.noise import build_noise_model
+
+    circuit = compiled.circuit
+    patch = tuple(compiled.patch)
+    qubits = list(compiled.logical_to_circuit)
+    nm = build_noise_model(profile, patch) if noise_model is None else noise_model
+    mats, terms = logical_readout(profile, patch, qubits) if readout else (None, ())
+    return emulate_circuit_bases(
+        circuit,
+        nm,
+        bases,
+        layer=layer_spec_for(profile, circuit.num_qubits),
+        logical_to_circuit=qubits,
+        readout_matrices=mats,
+        readout_crosstalk=terms,
+        method=method,
+        basis_noise=basis_noise,
+        num_trajectories=num_trajectories,
+        num_batches=num_batches,
+        seed=seed,
+        max_density_matrix_qubits=max_density_matrix_qubits,
+    )

@@ -1,0 +1,111 @@
+"""Memory guard: refuse an emulation that does not fit this machine instead of swapping or crashing.
+
+The density-matrix estimate is ``DM_COPIES * 16 * 4**k`` bytes for a k-qubit circuit plus a fixed
+overhead. ``DM_COPIES`` counts the simulator's own state, the copy it makes for
+``save_density_matrix``, the numpy array we receive and the contraction temporaries; it was
+calibrated from the measured peak resident memory at 10 and 11 qubits (see
+``benchmarks/emulate_memory.py``).
+"""
+
+from __future__ import annotations
+
+import os
+from pathlib import Path
+
+from noiselab.common.errors import ProblemTooLargeError
+
+#: Environment variable that overrides the available memory (bytes); used by tests.
+MEMORY_LIMIT_ENV = "NOISELAB_MEMORY_LIMIT_BYTES"
+#: Copies of a 16 * 4**k byte density matrix alive at the peak (measured, rounded up).
+DM_COPIES = 4.0
+#: Fixed overhead of the interpreter, qiskit and aer (bytes).
+BASE_OVERHEAD_BYTES = 300 * 2**20
+#: Statevector copies per trajectory in flight (simulator state, saved copy, numpy copy).
+SV_COPIES = 3.0
+
+GIB = float(2**30)
+
+
+def estimate_memory_bytes(
+    num_qubits: int,
+    method: str = "density_matrix",
+    *,
+    trajectories_per_batch: int = 1,
+    num_bases: int = 1,
+    num_batches: int = 1,
+) -> int:
+    """Estimated peak memory in bytes of emulating ``num_qubits`` circuit qubits with ``method``.
+
+    ``method`` is ``"density_matrix"`` or ``"trajectory"``; for trajectories the per-batch
+    statevectors and the stored batch distributions (``num_batches x num_bases x 2**k`` floats,
+    twice: before and after readout) are counted.
+    """
+    k = int(num_qubits)
+    if method == "density_matrix":
+        return int(DM_COPIES * 16 * 4**k + BASE_OVERHEAD_BYTES)
+    if method == "trajectory":
+        states = SV_COPIES * 16 * 2**k * max(1, trajectories_per_batch)
+        dists = 8 * 2**k * max(1, num_bases) * (2 * max(1, num_batches) + 4)
+        return int(states + dists + BASE_OVERHEAD_BYTES)
+    raise ValueError(f"unknown method {method!r}")
+
+
+def _cgroup_available_bytes() -> int | None:
+    root = Path("/sys/fs/cgroup")
+    try:
+        limit = (root / "memory.max").read_text().strip()
+        if limit == "max":
+            return None
+        current = int((root / "memory.current").read_text().strip())
+        return max(0, int(limit) - current)
+    except (OSError, ValueError):
+        return None
+
+
+def available_memory_bytes() -> int:
+    """Memory available to this process in bytes.
+
+    ``$NOISELAB_MEMORY_LIMIT_BYTES`` wins when set; otherwise ``MemAvailable`` from
+    ``/proc/meminfo`` (or ``os.sysconf``), capped by a cgroup v2 limit when one applies.
+    """
+    override = os.environ.get(MEMORY_LIMIT_ENV)
+    if override:
+        try:
+            return int(float(override))
+        except ValueError as exc:
+            raise ProblemTooLargeError(
+                f"${MEMORY_LIMIT_ENV}: {override!r} is not a number; allowed: bytes, e.g. 8e9"
+            ) from exc
+    avail: int | None = None
+    try:
+        for line in Path("/proc/meminfo").read_text().splitlines():
+            if line.startswith("MemAvailable:"):
+                avail = int(line.split()[1]) * 1024
+                break
+    except (OSError, ValueError, IndexError):
+        avail = None
+    if avail is None:
+        try:
+            avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
+        except (ValueError, OSError, AttributeError):
+            avail = 8 * 2**30  # unknown platform: assume a modest laptop
+    cg = _cgroup_available_bytes()
+    return min(avail, cg) if cg is not None else avail
+
+
+def fits_in_memory(num_qubits: int, method: str = "density_matrix", **kwargs: int) -> bool:
+    """Whether :func:`estimate_memory_bytes` fits in :func:`available_memory_bytes`."""
+    return estimate_memory_bytes(num_qubits, method, **kwargs) <= available_memory_bytes()
+
+
+def check_memory(num_qubits: int, method: str = "density_matrix", **kwargs: int) -> None:
+    """Raise :class:`ProblemTooLargeError` (one line) when the emulation would not fit."""
+    need = estimate_memory_bytes(num_qubits, method, **kwargs)
+    have = available_memory_bytes()
+    if need > have:
+        what = "density matrix" if method == "density_matrix" else "trajectory emulation"
+        raise ProblemTooLargeError(
+            f"emulation: {num_qubits} qubits need about {need / GIB:.2f} GiB for the {what} but "
+            f"only {have / GIB:.2f} GiB is available; allowed: fewer qubits (a smaller active "
+            f"space or patch), method 'auto' or 'trajectory', or more memory"
+        )
