@@ -12,7 +12,7 @@ import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Annotated, Any, Literal
+from typing import Any, Literal
 
 from pydantic import (
     BaseModel,
@@ -22,7 +22,6 @@ from pydantic import (
     StrictInt,
     ValidationError,
     field_validator,
-    model_validator,
 )
 
 from noiselab.common.errors import from_validation_error, input_error
@@ -57,7 +56,7 @@ class LayeredAnsatz(_Strict):
     maxiter: StrictInt = Field(default=600, ge=1, le=20000)
 
 
-AnsatzSpec = Annotated[UccsdAnsatz | LayeredAnsatz, Field(discriminator="kind")]
+ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": LayeredAnsatz}
 
 
 class CompileOptions(_Strict):
@@ -122,13 +121,13 @@ class StudyFile(_Strict):
     molecule: dict[str, Any]
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
     two_qubit_reduction: StrictBool = False
-    ansatz: AnsatzSpec
+    ansatz: dict[str, Any]
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
     compile: CompileOptions = CompileOptions()
-    shots: StrictInt = Field(gt=0, le=MAX_SHOTS, description="total shots per energy estimate")
-    target_mha: float = Field(default=CHEMICAL_ACCURACY_MHA, gt=0, le=1000.0)
-    confidence: float = Field(default=0.95, gt=0.0, lt=1.0)
+    shots: StrictInt = Field(description="total shots per energy estimate")
+    target_mha: float = CHEMICAL_ACCURACY_MHA
+    confidence: float = 0.95
     recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
     seed: StrictInt = Field(default=0, ge=0, lt=2**32)
     tune: TuneGrid | None = None
@@ -149,6 +148,30 @@ class StudyFile(_Strict):
     def _no_bool(cls, value: Any) -> Any:
         if isinstance(value, bool):
             raise ValueError("expected a number, got a boolean")
+        return value
+
+    @field_validator("shots")
+    @classmethod
+    def _check_shots(cls, value: int) -> int:
+        if not 0 < value <= MAX_SHOTS:
+            raise ValueError(f"{value} shots; allowed: an integer from 1 to {MAX_SHOTS:.0e}")
+        return value
+
+    @field_validator("target_mha")
+    @classmethod
+    def _check_target(cls, value: float) -> float:
+        if not (math.isfinite(value) and 0 < value <= 1000.0):
+            raise ValueError(
+                f"target {value} mHa; allowed: a number of mHa > 0 and <= 1000 "
+                f"(chemical accuracy is {CHEMICAL_ACCURACY_MHA:.4f})"
+            )
+        return value
+
+    @field_validator("confidence")
+    @classmethod
+    def _check_confidence(cls, value: float) -> float:
+        if not (math.isfinite(value) and 0.0 < value < 1.0):
+            raise ValueError(f"{value}; allowed: a probability strictly between 0 and 1, e.g. 0.95")
         return value
 
     @field_validator("layout")
@@ -176,15 +199,6 @@ class StudyFile(_Strict):
                     "starting with a letter"
                 )
         return value
-
-    @model_validator(mode="after")
-    def _check_reduction(self) -> StudyFile:
-        if self.two_qubit_reduction and self.encoding != "parity":
-            raise ValueError(
-                f"two_qubit_reduction needs encoding parity (got {self.encoding}); "
-                "allowed: two_qubit_reduction: false, or encoding: parity"
-            )
-        return self
 
 
 @dataclass(frozen=True)
@@ -247,6 +261,15 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
     except ValidationError as exc:
         raise from_validation_error(exc, src) from None
 
+    if spec.two_qubit_reduction and spec.encoding != "parity":
+        raise input_error(
+            src,
+            "two_qubit_reduction",
+            f"needs encoding parity (the study has {spec.encoding})",
+            "two_qubit_reduction: false, or encoding: parity",
+        )
+    ansatz = _validate_ansatz(spec.ansatz, src)
+
     from noiselab.chem.molecule import molecule_from_mapping
 
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
@@ -296,7 +319,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         molecule=molecule,
         encoding=spec.encoding,
         two_qubit_reduction=spec.two_qubit_reduction,
-        ansatz=spec.ansatz,
+        ansatz=ansatz,
         profile=profile,
         device_source=device_source,
         layout=layout,
@@ -312,6 +335,17 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         description=spec.description,
         raw=dict(data),
     )
+
+
+def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | LayeredAnsatz:
+    kind = data.get("kind")
+    if kind not in ANSATZ_KINDS:
+        problem = "missing kind" if kind is None else f"unknown kind {kind!r}"
+        raise input_error(source, "ansatz.kind", problem, ", ".join(ANSATZ_KINDS))
+    try:
+        return ANSATZ_KINDS[kind].model_validate(data)  # type: ignore[return-value]
+    except ValidationError as exc:
+        raise from_validation_error(exc, source, prefix="ansatz") from None
 
 
 def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
