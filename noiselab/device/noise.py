@@ -1,0 +1,330 @@
+"""qiskit-aer noise model from a device profile, plus the channels it is built from.
+
+Per native gate, the error channel applied after the ideal gate is, in this order:
+
+1. thermal relaxation of every qubit the gate acts on, over the gate duration;
+2. a depolarizing channel on all those qubits, with parameter p chosen so that (1)+(2) have the
+   quoted average infidelity exactly. The average infidelity of a composition with a
+   depolarizing channel is affine in p (see :mod:`noiselab.device.thermal`), so p is solved in
+   closed form. When relaxation alone exceeds the quoted error, p = 0 (a profile warning);
+3. coherent terms on top: exp(-i theta/2 Z x Z) after the two-qubit gate (``zz_angle_rad``) and
+   rx(f * angle) after sx (angle pi/2) and x (angle pi) (``over_rotation_fraction``).
+
+rz is virtual: no error, zero duration. Readout assignment errors are not in the noise model;
+:func:`readout_matrices` and :func:`readout_crosstalk` describe them for the emulator.
+
+Idle qubits: scheduled circuits (see :mod:`noiselab.device.compile`) carry ``delay``
+instructions. :func:`build_noise_model` registers a noise pass that aer runs on every circuit
+containing delays (``idle_relaxation=True``, the default): after each delay of duration t on a
+qubit it appends thermal relaxation over t. Delay units s/ms/us/ns/ps are converted exactly;
+``dt`` needs ``dt_s``. Alternatively call :func:`attach_idle_relaxation` on the circuit yourself
+and build the model with ``idle_relaxation=False`` (never both: that doubles the idle decay).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from noiselab.common.errors import InputError, input_error
+from noiselab.device import thermal
+from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
+
+_UNIT_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
+_ROTATION_ANGLE_RAD = {"sx": math.pi / 2, "x": math.pi}
+
+
+@dataclass(frozen=True)
+class GateNoise:
+    """How the error of one native gate on given physical qubits is made up."""
+
+    gate: str
+    qubits: tuple[int, ...]
+    duration_ns: float
+    quoted_error: float
+    relaxation_infidelity: float
+    depolarizing_param: float
+    relaxation_limited: bool  # quoted error below the relaxation floor: relaxation alone used
+    zz_angle_rad: float
+    over_rotation_rad: float
+
+
+def gate_noise(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> GateNoise:
+    """Decompose the noise of native ``gate`` on physical ``qubits`` (pure, no qiskit)."""
+    qubits = tuple(int(q) for q in qubits)
+    duration_ns = profile.gate_duration_ns(gate)
+    if gate in VIRTUAL_GATES:
+        return GateNoise(gate, qubits, 0.0, 0.0, 0.0, 0.0, False, 0.0, 0.0)
+    if gate == profile.two_qubit_gate:
+        if len(qubits) != 2:
+            raise input_error(
+                profile.source, "native_gates.two_qubit", f"{gate} needs 2 qubits, got {qubits}"
+            )
+        pp = profile.pair(*qubits)
+        quoted, zz, over = pp.gate_error, pp.zz_angle_rad, 0.0
+    else:
+        if len(qubits) != 1:
+            raise input_error(
+                profile.source, "native_gates.single_qubit", f"{gate} needs 1 qubit, got {qubits}"
+            )
+        qp = profile.qubit(qubits[0])
+        quoted, zz = qp.gate_error, 0.0
+        over = qp.over_rotation_fraction * _ROTATION_ANGLE_RAD[gate]
+    coh = [(profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in qubits]
+    r_relax = thermal.relaxation_infidelity(duration_ns, coh)
+    p = thermal.depolarizing_for_total(r_relax, quoted, len(qubits))
+    return GateNoise(gate, qubits, duration_ns, quoted, r_relax, p, quoted < r_relax, zz, over)
+
+
+def relaxation_error(t_ns: float, t1_us: float | None, t2_us: float | None) -> Any:
+    """qiskit-aer thermal relaxation (to |0>) over ``t_ns``; ``None`` for infinite coherence."""
+    from qiskit_aer.noise import thermal_relaxation_error
+
+    if t_ns <= 0.0 or (t1_us is None and t2_us is None):
+        return None
+    t1_s = math.inf if t1_us is None else t1_us * 1e-6
+    t2_s = math.inf if t2_us is None else t2_us * 1e-6
+    t2_s = min(t2_s, 2.0 * t1_s)  # guard rounding at T2 = 2 T1
+    return thermal_relaxation_error(t1_s, t2_s, t_ns * 1e-9)
+
+
+def _identity_error(num_qubits: int) -> Any:
+    from qiskit import QuantumCircuit
+    from qiskit_aer.noise import QuantumError
+
+    return QuantumError([(QuantumCircuit(num_qubits), 1.0)])
+
+
+def channel_from_noise(
+    profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None = None
+) -> Any:
+    """Build the qiskit-aer ``QuantumError`` for a :class:`GateNoise`.
+
+    ``parts`` picks a subset of {"relaxation", "depolarizing", "coherent"} (default all); used by
+    tests and by the emulator's cross-checks. The channel's qubit 0 is ``noise.qubits[0]``.
+    """
+    from qiskit.circuit.library import RXGate, RZZGate
+    from qiskit_aer.noise import coherent_unitary_error, depolarizing_error
+
+    chosen = {"relaxation", "depolarizing", "coherent"} if parts is None else set(parts)
+    k = len(noise.qubits)
+    err = _identity_error(k)
+    if "relaxation" in chosen and noise.duration_ns > 0.0:
+        per_qubit = []
+        for q in noise.qubits:
+            qp = profile.qubit(q)
+            per_qubit.append(
+                relaxation_error(noise.duration_ns, qp.t1_us, qp.t2_us) or _identity_error(1)
+            )
+        relax = per_qubit[0]
+        for e in per_qubit[1:]:
+            relax = relax.expand(e)  # later qubits on higher indices
+        err = relax
+    if "depolarizing" in chosen and noise.depolarizing_param > 0.0:
+        err = err.compose(depolarizing_error(noise.depolarizing_param, k))
+    if "coherent" in chosen:
+        if noise.zz_angle_rad != 0.0:
+            err = err.compose(coherent_unitary_error(RZZGate(noise.zz_angle_rad).to_matrix()))
+        if noise.over_rotation_rad != 0.0:
+            err = err.compose(coherent_unitary_error(RXGate(noise.over_rotation_rad).to_matrix()))
+    return err
+
+
+def gate_channel(
+    profile: DeviceProfile, gate: str, qubits: Sequence[int], parts: Iterable[str] | None = None
+) -> Any:
+    """The qiskit-aer ``QuantumError`` applied after native ``gate`` on physical ``qubits``.
+
+    An identity error for rz. ``error.to_quantumchannel()`` gives the ``qiskit.quantum_info``
+    SuperOp for independent checks.
+    """
+    return channel_from_noise(profile, gate_noise(profile, gate, qubits), parts)
+
+
+def gate_infidelity(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> float:
+    """Average infidelity of the full error channel of ``gate`` (quoted + coherent terms)."""
+    from qiskit.quantum_info import average_gate_fidelity
+
+    noise = gate_noise(profile, gate, qubits)
+    if noise.gate in VIRTUAL_GATES:
+        return 0.0
+    if noise.zz_angle_rad == 0.0 and noise.over_rotation_rad == 0.0:
+        return max(noise.quoted_error, noise.relaxation_infidelity)
+    chan = channel_from_noise(profile, noise).to_quantumchannel()
+    return float(max(0.0, 1.0 - average_gate_fidelity(chan)))
+
+
+# ---- idle relaxation on delays --------------------------------------------------------------
+
+
+def delay_seconds(op: Any, dt_s: float | None = None) -> float:
+    """Duration of a ``delay`` instruction in seconds, whatever its unit."""
+    unit = getattr(op, "unit", "dt")
+    duration = op.duration
+    try:
+        duration = float(duration)
+    except TypeError:
+        raise InputError(
+            f"delay: duration {duration!r} is not a number; bind parameters first"
+        ) from None
+    if unit == "dt":
+        if dt_s is None:
+            raise InputError(
+                "delay: duration in 'dt' units but no dt_s given; "
+                "allowed: s, ms, us, ns, ps or dt_s"
+            )
+        return duration * dt_s
+    if unit not in _UNIT_SECONDS:
+        raise InputError(f"delay: unknown unit {unit!r}; allowed: dt, {', '.join(_UNIT_SECONDS)}")
+    return duration * _UNIT_SECONDS[unit]
+
+
+def idle_relaxation_pass(
+    profile: DeviceProfile, patch: Sequence[int], dt_s: float | None = None
+) -> Any:
+    """A qiskit-aer ``LocalNoisePass`` appending thermal relaxation after every delay.
+
+    Circuit qubit i has the coherence of physical qubit ``patch[i]``.
+    """
+    from qiskit.circuit import Delay
+    from qiskit_aer.noise.passes import LocalNoisePass
+
+    patch = check_patch(profile, patch)
+    coherence = [(profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in patch]
+
+    def func(op: Any, qubits: Sequence[int]) -> Any:
+        t_ns = delay_seconds(op, dt_s) * 1e9
+        if t_ns <= 0.0:
+            return None
+        errs = [relaxation_error(t_ns, *coherence[q]) for q in qubits]
+        if all(e is None for e in errs):
+            return None
+        out = errs[0] or _identity_error(1)
+        for e in errs[1:]:
+            out = out.expand(e or _identity_error(1))
+        return out
+
+    return LocalNoisePass(func, op_types=Delay, method="append")
+
+
+def attach_idle_relaxation(
+    circuit: Any, profile: DeviceProfile, patch: Sequence[int], dt_s: float | None = None
+) -> Any:
+    """Return a copy of ``circuit`` with relaxation error instructions after each delay."""
+    return idle_relaxation_pass(profile, patch, dt_s)(circuit)
+
+
+# ---- the noise model ------------------------------------------------------------------------
+
+
+def build_noise_model(
+    profile: DeviceProfile,
+    patch: Sequence[int],
+    *,
+    idle_relaxation: bool = True,
+    dt_s: float | None = None,
+) -> Any:
+    """qiskit-aer ``NoiseModel`` on circuit qubits 0..k-1, circuit qubit i = physical ``patch[i]``.
+
+    Gate errors on every native gate of the patch (both directions of each linked pair) and,
+    with ``idle_relaxation``, relaxation on delays (a noise pass aer applies at run time).
+    """
+    from qiskit_aer.noise import NoiseModel
+
+    patch = check_patch(profile, patch)
+    model = NoiseModel(basis_gates=list(profile.native_gate_names))
+    for i, q in enumerate(patch):
+        for gate in profile.single_qubit_gates:
+            if gate in VIRTUAL_GATES:
+                continue
+            err = gate_channel(profile, gate, (q,))
+            if not err.ideal():
+                model.add_quantum_error(err, gate, [i])
+    g2 = profile.two_qubit_gate
+    for i, qi in enumerate(patch):
+        for j, qj in enumerate(patch):
+            if i != j and profile.has_pair(qi, qj):
+                err = gate_channel(profile, g2, (qi, qj))
+                if not err.ideal():
+                    model.add_quantum_error(err, g2, [i, j])
+    if idle_relaxation and any(
+        profile.qubit(q).t1_us is not None or profile.qubit(q).t2_us is not None for q in patch
+    ):
+        # aer runs these passes on circuits that contain delays (as NoiseModel.from_backend does)
+        model._custom_noise_passes.append(idle_relaxation_pass(profile, patch, dt_s))
+    return model
+
+
+# ---- readout --------------------------------------------------------------------------------
+
+
+def readout_matrices(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray:
+    """Per-qubit assignment matrices, shape (k, 2, 2); columns are the prepared state:
+    A = [[1 - P(1|0), P(0|1)], [P(1|0), 1 - P(0|1)]]."""
+    patch = check_patch(profile, patch)
+    out = np.empty((len(patch), 2, 2))
+    for i, q in enumerate(patch):
+        qp = profile.qubit(q)
+        out[i] = [
+            [1.0 - qp.p_read1_prep0, qp.p_read0_prep1],
+            [qp.p_read1_prep0, 1.0 - qp.p_read0_prep1],
+        ]
+    return out
+
+
+def readout_crosstalk(
+    profile: DeviceProfile, patch: Sequence[int]
+) -> tuple[tuple[int, int, float], ...]:
+    """Joint-flip terms ``(i, j, c)`` on circuit qubits i < j of the patch (c > 0 only).
+
+    On a probability vector p over the k circuit qubits (entry m has bit_q = (m >> q) & 1) each
+    term maps p -> (1 - c) p + c p[m ^ (1<<i) ^ (1<<j)], applied after the per-qubit matrices.
+    """
+    patch = check_patch(profile, patch)
+    out = []
+    for i, qi in enumerate(patch):
+        for j in range(i + 1, len(patch)):
+            c = profile.joint_flip(qi, patch[j])
+            if c > 0.0:
+                out.append((i, j, c))
+    return tuple(out)
+
+
+MAX_DENSE_READOUT_QUBITS = 12
+
+
+def readout_transfer_matrix(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray:
+    """Dense readout map M (2^k x 2^k, columns = true outcome) including crosstalk.
+
+    M = (prod of C_ij) @ (A_{k-1} x ... x A_0), C_ij = (1 - c) I + c F_ij. For checks; k <= 12.
+    """
+    from noiselab.common.errors import ProblemTooLargeError
+
+    patch = check_patch(profile, patch)
+    k = len(patch)
+    if k > MAX_DENSE_READOUT_QUBITS:
+        raise ProblemTooLargeError(
+            f"readout matrix: {k} qubits; "
+            f"allowed: at most {MAX_DENSE_READOUT_QUBITS} for the dense form"
+        )
+    mats = readout_matrices(profile, patch)
+    m = np.ones((1, 1))
+    for a in mats:  # qubit 0 ends up least significant
+        m = np.kron(a, m)
+    idx = np.arange(2**k)
+    for i, j, c in readout_crosstalk(profile, patch):
+        flipped = idx ^ (1 << i) ^ (1 << j)
+        m = (1.0 - c) * m + c * m[flipped, :]
+    return m
+
+
+def apply_readout_reference(
+    probs: np.ndarray, profile: DeviceProfile, patch: Sequence[int]
+) -> np.ndarray:
+    """Readout-distorted distribution(s) over circuit qubits, with the dense matrix (reference)."""
+    m = readout_transfer_matrix(profile, patch)
+    return np.asarray(probs) @ m.T

@@ -1,0 +1,710 @@
+"""Device noise profile: the YAML schema, its validation, per-qubit/per-pair resolution and scaling.
+
+A profile file looks like this (units are in the key names; rates are probabilities 0..1)::
+
+    schema_version: 1
+    name: my-chip
+    description: what this is
+    qubit_count: 4
+    links: [[0, 1], [1, 2], [2, 3]]      # undirected pairs, or the string all-to-all
+    native_gates:
+      single_qubit: [rz, sx, x]          # rz is virtual (zero duration, no error)
+      two_qubit: cz                      # one of cz, cx, ecr
+    durations:
+      single_qubit_ns: 35
+      two_qubit_ns: 300
+      readout_ns: 1500
+    qubits:
+      default:
+        t1_us: 100
+        t2_us: 90
+        gate_error: 3.0e-4               # average infidelity of sx/x, relaxation included
+        p_read1_prep0: 0.015             # P(read 1 | prepared 0)
+        p_read0_prep1: 0.03              # P(read 0 | prepared 1)
+        over_rotation_fraction: 0.0      # optional: sx/x rotate by (1 + f) x their angle
+      overrides:
+        2: {t1_us: 60, t2_us: 45}
+    couplers:
+      default:
+        gate_error: 8.0e-3               # average infidelity of the two-qubit gate
+        zz_angle_rad: 0.0                # optional: residual exp(-i theta/2 ZZ) after each gate
+      overrides:
+        - {pair: [1, 2], gate_error: 1.2e-2}
+    readout_crosstalk:                   # optional
+      - {pair: [0, 1], joint_flip: 0.004}
+
+Readout crosstalk model (``joint_flip`` c for a linked pair (a, b)): after the independent
+per-qubit assignment errors, with probability c both reported bits a and b are flipped
+together (a common disturbance on a shared readout line). On a probability vector over the
+measured qubits this is C_ab = (1 - c) I + c F_ab, F_ab the permutation k -> k ^ (1<<a) ^ (1<<b).
+The full readout map is M = (prod over pairs of C_ab) @ (A_{n-1} x ... x A_0); the C_ab commute
+with each other. A joint flip keeps the parity Z_a Z_b, so a per-qubit (tensor-product)
+inversion, which sees it as an extra symmetric flip on each qubit, over-corrects correlations.
+
+Quoted gate errors are the stochastic part (relaxation during the gate included); coherent terms
+(ZZ angle, over-rotation) come on top of them.
+"""
+
+from __future__ import annotations
+
+import itertools
+import math
+from collections.abc import Iterable, Mapping
+from dataclasses import dataclass
+from pathlib import Path
+from typing import Annotated, Any, Literal
+
+from pydantic import (
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    PrivateAttr,
+    StrictInt,
+    ValidationError,
+    ValidationInfo,
+    field_validator,
+    model_validator,
+)
+
+from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.device import thermal
+
+SCHEMA_VERSION = 1
+SINGLE_QUBIT_GATES: tuple[str, ...] = ("rz", "sx", "x")
+TWO_QUBIT_GATES: tuple[str, ...] = ("cz", "cx", "ecr")
+VIRTUAL_GATES: frozenset[str] = frozenset({"rz"})
+CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
+ALL_TO_ALL = "all-to-all"
+
+# Physical maxima: a fully depolarizing channel on d dimensions has average infidelity (d-1)/d;
+# a readout worse than a coin toss is a relabelling, not an error.
+MAX_SINGLE_QUBIT_ERROR = 0.5
+MAX_TWO_QUBIT_ERROR = 0.75
+MAX_READOUT_ERROR = 0.5
+MAX_JOINT_FLIP = 0.5
+MAX_OVER_ROTATION = 0.5
+MAX_ZZ_ANGLE_RAD = math.pi
+MAX_QUBITS = 1000
+
+_CFG = ConfigDict(frozen=True, extra="forbid")
+_CTX_ALLOW_INFINITE = "allow_infinite_coherence"
+
+
+def _reject_bool(value: Any) -> Any:
+    if isinstance(value, bool):
+        raise ValueError("expected a number, got true/false")
+    return value
+
+
+def _num(lo: float | None = None, hi: float | None = None, gt: float | None = None) -> Any:
+    return Annotated[
+        float, BeforeValidator(_reject_bool), Field(ge=lo, le=hi, gt=gt, allow_inf_nan=False)
+    ]
+
+
+Rate1Q = _num(0.0, MAX_SINGLE_QUBIT_ERROR)
+Rate2Q = _num(0.0, MAX_TWO_QUBIT_ERROR)
+ReadoutRate = _num(0.0, MAX_READOUT_ERROR)
+JointFlip = _num(0.0, MAX_JOINT_FLIP)
+OverRotation = _num(-MAX_OVER_ROTATION, MAX_OVER_ROTATION)
+ZZAngle = _num(-MAX_ZZ_ANGLE_RAD, MAX_ZZ_ANGLE_RAD)
+PositiveTime = _num(gt=0.0)
+Pair = tuple[StrictInt, StrictInt]
+
+
+class ProfileCheckError(InputError):
+    """A cross-field problem found after the schema check; carries the key path."""
+
+    def __init__(self, path: str, problem: str, allowed: str | None = None) -> None:
+        self.path = path
+        self.problem = problem
+        self.allowed = allowed
+        super().__init__(str(input_error(None, path, problem, allowed)))
+
+    def with_source(self, source: str) -> InputError:
+        return input_error(source, self.path, self.problem, self.allowed)
+
+
+def _coherence_time_check(
+    value: float | None, info: ValidationInfo, required: bool
+) -> float | None:
+    if value is None:
+        ctx = info.context or {}
+        if required and not ctx.get(_CTX_ALLOW_INFINITE, False):
+            raise ValueError("a positive time is required (infinite coherence only via scaling)")
+    return value
+
+
+class QubitValues(BaseModel):
+    """Per-qubit parameters (all qubits unless overridden). Times in us, rates 0..1."""
+
+    model_config = _CFG
+    t1_us: PositiveTime | None
+    t2_us: PositiveTime | None
+    gate_error: Rate1Q
+    p_read1_prep0: ReadoutRate
+    p_read0_prep1: ReadoutRate
+    over_rotation_fraction: OverRotation = 0.0
+
+    @field_validator("t1_us", "t2_us", mode="after")
+    @classmethod
+    def _finite_unless_scaled(cls, v: float | None, info: ValidationInfo) -> float | None:
+        return _coherence_time_check(v, info, required=True)
+
+
+class QubitOverride(BaseModel):
+    """Per-qubit overrides; a key left out keeps the default."""
+
+    model_config = _CFG
+    t1_us: PositiveTime | None = None
+    t2_us: PositiveTime | None = None
+    gate_error: Rate1Q | None = None
+    p_read1_prep0: ReadoutRate | None = None
+    p_read0_prep1: ReadoutRate | None = None
+    over_rotation_fraction: OverRotation | None = None
+
+    @model_validator(mode="before")
+    @classmethod
+    def _no_nulls(cls, data: Any, info: ValidationInfo) -> Any:
+        if isinstance(data, Mapping) and not (info.context or {}).get(_CTX_ALLOW_INFINITE):
+            for key, value in data.items():
+                if value is None:
+                    raise ValueError(f"{key}: empty value; give a number or leave the key out")
+        return data
+
+
+class QubitSection(BaseModel):
+    model_config = _CFG
+    default: QubitValues
+    overrides: dict[StrictInt, QubitOverride] = Field(default_factory=dict)
+
+
+class PairValues(BaseModel):
+    """Two-qubit gate parameters for every linked pair unless overridden."""
+
+    model_config = _CFG
+    gate_error: Rate2Q
+    zz_angle_rad: ZZAngle = 0.0
+
+
+class PairOverride(BaseModel):
+    model_config = _CFG
+    pair: Pair
+    gate_error: Rate2Q | None = None
+    zz_angle_rad: ZZAngle | None = None
+
+
+class PairSection(BaseModel):
+    model_config = _CFG
+    default: PairValues
+    overrides: tuple[PairOverride, ...] = ()
+
+
+class CrosstalkEntry(BaseModel):
+    """Correlated readout error on a linked pair: both bits flip together with ``joint_flip``."""
+
+    model_config = _CFG
+    pair: Pair
+    joint_flip: JointFlip
+
+
+class NativeGates(BaseModel):
+    model_config = _CFG
+    single_qubit: tuple[Literal["rz", "sx", "x"], ...]
+    two_qubit: Literal["cz", "cx", "ecr"]
+
+
+class Durations(BaseModel):
+    """Gate and readout durations in ns (rz is virtual: zero)."""
+
+    model_config = _CFG
+    single_qubit_ns: PositiveTime
+    two_qubit_ns: PositiveTime
+    readout_ns: PositiveTime
+
+
+@dataclass(frozen=True)
+class QubitParams:
+    """Resolved parameters of one physical qubit (times in us; None = infinite)."""
+
+    index: int
+    t1_us: float | None
+    t2_us: float | None
+    gate_error: float
+    p_read1_prep0: float
+    p_read0_prep1: float
+    over_rotation_fraction: float
+
+
+@dataclass(frozen=True)
+class PairParams:
+    """Resolved parameters of one linked pair (a < b)."""
+
+    pair: tuple[int, int]
+    gate_error: float
+    zz_angle_rad: float
+
+
+def _norm(a: int, b: int) -> tuple[int, int]:
+    return (a, b) if a <= b else (b, a)
+
+
+class DeviceProfile(BaseModel):
+    """A device noise profile (see the module docstring for the YAML layout)."""
+
+    model_config = _CFG
+    schema_version: Literal[1]
+    name: str = Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9][A-Za-z0-9._-]*$")
+    description: str = ""
+    qubit_count: StrictInt = Field(ge=1, le=MAX_QUBITS)
+    links: Literal["all-to-all"] | tuple[tuple[int, int], ...]
+    native_gates: NativeGates
+    durations: Durations
+    qubits: QubitSection
+    couplers: PairSection
+    readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
+    _source: str = PrivateAttr(default="<profile>")
+
+    @field_validator("links", mode="before")
+    @classmethod
+    def _parse_links(cls, value: Any) -> Any:
+        if isinstance(value, str):
+            if value != ALL_TO_ALL:
+                raise ValueError(
+                    f"unknown connectivity {value!r}; allowed: a list of pairs or {ALL_TO_ALL}"
+                )
+            return value
+        if not isinstance(value, list | tuple):
+            raise ValueError(f"expected a list of pairs or {ALL_TO_ALL}")
+        out = []
+        for i, item in enumerate(value):
+            ok = (
+                isinstance(item, list | tuple)
+                and len(item) == 2
+                and all(isinstance(x, int) and not isinstance(x, bool) for x in item)
+            )
+            if not ok:
+                raise ValueError(
+                    f"entry [{i}] is {item!r}; allowed: a pair of qubit indices like [0, 1]"
+                )
+            out.append((int(item[0]), int(item[1])))
+        return tuple(out)
+
+    @model_validator(mode="after")
+    def _check(self) -> DeviceProfile:
+        _check_semantics(self)
+        return self
+
+    # ---- resolution helpers -------------------------------------------------------------
+    @property
+    def source(self) -> str:
+        """Where the profile came from (file path), for messages."""
+        return self._source
+
+    @property
+    def single_qubit_gates(self) -> tuple[str, ...]:
+        return self.native_gates.single_qubit
+
+    @property
+    def two_qubit_gate(self) -> str:
+        return self.native_gates.two_qubit
+
+    @property
+    def native_gate_names(self) -> tuple[str, ...]:
+        return (*self.native_gates.single_qubit, self.native_gates.two_qubit)
+
+    @property
+    def is_all_to_all(self) -> bool:
+        return self.links == ALL_TO_ALL
+
+    def qubit(self, q: int) -> QubitParams:
+        """Resolved parameters of physical qubit ``q`` (default merged with its override)."""
+        if not 0 <= q < self.qubit_count:
+            raise input_error(
+                self._source, "qubit", f"qubit {q} does not exist", f"0..{self.qubit_count - 1}"
+            )
+        values = self.qubits.default.model_dump()
+        override = self.qubits.overrides.get(q)
+        if override is not None:
+            values.update(
+                {k: v for k, v in override.model_dump().items() if k in override.model_fields_set}
+            )
+        return QubitParams(index=q, **values)
+
+    def pairs(self) -> tuple[tuple[int, int], ...]:
+        """All linked pairs, each as (a, b) with a < b, sorted."""
+        if self.is_all_to_all:
+            return tuple(itertools.combinations(range(self.qubit_count), 2))
+        return tuple(sorted(_norm(a, b) for a, b in self.links))
+
+    def has_pair(self, a: int, b: int) -> bool:
+        if a == b or not (0 <= a < self.qubit_count and 0 <= b < self.qubit_count):
+            return False
+        if self.is_all_to_all:
+            return True
+        return _norm(a, b) in set(self.pairs())
+
+    def neighbours(self, q: int) -> tuple[int, ...]:
+        """Physical qubits linked to ``q``, sorted."""
+        out = set()
+        for a, b in self.pairs():
+            if a == q:
+                out.add(b)
+            elif b == q:
+                out.add(a)
+        return tuple(sorted(out))
+
+    def pair(self, a: int, b: int) -> PairParams:
+        """Resolved two-qubit parameters of the linked pair (a, b), either order."""
+        if not self.has_pair(a, b):
+            raise input_error(
+                self._source, "links", f"qubits ({a}, {b}) are not linked", "a pair listed in links"
+            )
+        key = _norm(a, b)
+        values = self.couplers.default.model_dump()
+        for ov in self.couplers.overrides:
+            if _norm(*ov.pair) == key:
+                values.update(
+                    {
+                        k: getattr(ov, k)
+                        for k in ("gate_error", "zz_angle_rad")
+                        if k in ov.model_fields_set
+                    }
+                )
+        return PairParams(pair=key, **values)
+
+    def pair_error(self, a: int, b: int) -> float:
+        """Quoted two-qubit gate error of the linked pair (a, b)."""
+        return self.pair(a, b).gate_error
+
+    def joint_flip(self, a: int, b: int) -> float:
+        """Readout joint-flip probability of pair (a, b); 0.0 when none is given."""
+        key = _norm(a, b)
+        for entry in self.readout_crosstalk:
+            if _norm(*entry.pair) == key:
+                return entry.joint_flip
+        return 0.0
+
+    def gate_duration_ns(self, gate: str) -> float:
+        """Duration of a native gate in ns (0 for the virtual rz)."""
+        if gate in VIRTUAL_GATES:
+            return 0.0
+        if gate == self.native_gates.two_qubit:
+            return self.durations.two_qubit_ns
+        if gate in self.native_gates.single_qubit:
+            return self.durations.single_qubit_ns
+        raise input_error(
+            self._source,
+            "native_gates",
+            f"{gate!r} is not a native gate",
+            ", ".join(self.native_gate_names),
+        )
+
+
+def _qubit_key_owner(p: DeviceProfile, q: int, keys: tuple[str, ...]) -> str:
+    """Key path of the section that sets ``keys`` for qubit ``q`` (its override or the default)."""
+    ov = p.qubits.overrides.get(q)
+    if ov is not None and any(k in ov.model_fields_set for k in keys):
+        return f"qubits.overrides.{q}"
+    return "qubits.default"
+
+
+def _check_semantics(p: DeviceProfile) -> None:
+    n = p.qubit_count
+    allowed_q = f"qubit indices 0..{n - 1}"
+
+    def check_qubits(path: str, pair: tuple[int, int]) -> None:
+        for q in pair:
+            if not 0 <= q < n:
+                raise ProfileCheckError(path, f"qubit {q} does not exist", allowed_q)
+        if pair[0] == pair[1]:
+            raise ProfileCheckError(
+                path, f"pair {list(pair)} links a qubit to itself", "two different qubits"
+            )
+
+    gates = p.native_gates.single_qubit
+    if len(set(gates)) != len(gates):
+        raise ProfileCheckError(
+            "native_gates.single_qubit", "a gate is listed twice", "each of rz, sx, x at most once"
+        )
+    for needed in ("rz", "sx"):
+        if needed not in gates:
+            raise ProfileCheckError(
+                "native_gates.single_qubit",
+                f"{needed} is missing",
+                "a set containing rz and sx (x optional)",
+            )
+
+    if not p.is_all_to_all:
+        seen: dict[tuple[int, int], int] = {}
+        for i, pair in enumerate(p.links):
+            check_qubits(f"links[{i}]", pair)
+            key = _norm(*pair)
+            if key in seen:
+                raise ProfileCheckError(
+                    f"links[{i}]",
+                    f"pair {list(pair)} repeats links[{seen[key]}]",
+                    "each undirected pair once",
+                )
+            seen[key] = i
+        if n >= 2 and not p.links:
+            raise ProfileCheckError(
+                "links", "no pairs given", f"at least one pair, or {ALL_TO_ALL}"
+            )
+    linked = set(p.pairs())
+
+    for q in p.qubits.overrides:
+        if not 0 <= q < n:
+            raise ProfileCheckError(f"qubits.overrides.{q}", f"qubit {q} does not exist", allowed_q)
+
+    def check_linked_list(section: str, entries: Iterable[Any]) -> None:
+        seen_pairs: dict[tuple[int, int], int] = {}
+        for i, entry in enumerate(entries):
+            path = f"{section}[{i}].pair"
+            check_qubits(path, entry.pair)
+            key = _norm(*entry.pair)
+            if key not in linked:
+                raise ProfileCheckError(
+                    path, f"pair {list(entry.pair)} is not in links", "a linked pair"
+                )
+            if key in seen_pairs:
+                raise ProfileCheckError(
+                    path,
+                    f"pair {list(entry.pair)} repeats {section}[{seen_pairs[key]}]",
+                    "each pair once",
+                )
+            seen_pairs[key] = i
+
+    check_linked_list("couplers.overrides", p.couplers.overrides)
+    check_linked_list("readout_crosstalk", p.readout_crosstalk)
+
+    for q in range(n):
+        rq = p.qubit(q)
+        where = _qubit_key_owner(p, q, ("t1_us", "t2_us"))
+        if rq.t1_us is None and rq.t2_us is not None:
+            raise ProfileCheckError(f"{where}.t2_us", "finite T2 with infinite T1", "T2 <= 2 T1")
+        if rq.t1_us is not None and rq.t2_us is None:
+            raise ProfileCheckError(f"{where}.t2_us", "infinite T2 with finite T1", "T2 <= 2 T1")
+        if (
+            rq.t1_us is not None
+            and rq.t2_us is not None
+            and rq.t2_us > 2.0 * rq.t1_us * (1 + 1e-12)
+        ):
+            raise ProfileCheckError(
+                f"{where}.t2_us",
+                f"T2 = {rq.t2_us:g} us exceeds 2 T1 = {2 * rq.t1_us:g} us on qubit {q}",
+                "T2 <= 2 T1 (Nielsen & Chuang sec. 8.3)",
+            )
+
+
+def check_patch(
+    profile: DeviceProfile, patch: Iterable[Any], what: str = "patch"
+) -> tuple[int, ...]:
+    """Validate an ordered tuple of distinct, existing physical qubits; return it as ints."""
+    items = list(patch)
+    out = []
+    n = profile.qubit_count
+    for i, q in enumerate(items):
+        if isinstance(q, bool) or not isinstance(q, int):
+            raise input_error(
+                profile.source,
+                f"{what}[{i}]",
+                f"{q!r} is not a qubit index",
+                f"integers 0..{n - 1}",
+            )
+        if not 0 <= q < n:
+            raise input_error(
+                profile.source,
+                f"{what}[{i}]",
+                f"qubit {q} does not exist on '{profile.name}'",
+                f"0..{n - 1}",
+            )
+        out.append(int(q))
+    if len(set(out)) != len(out):
+        raise input_error(
+            profile.source, what, f"qubits repeat in {out}", "distinct physical qubits"
+        )
+    if not out:
+        raise input_error(profile.source, what, "no qubits given", "at least one physical qubit")
+    return tuple(out)
+
+
+# ---- loading --------------------------------------------------------------------------------
+
+
+def profile_from_mapping(
+    data: Mapping[str, Any], source: str = "<profile>", *, allow_infinite_coherence: bool = False
+) -> DeviceProfile:
+    """Validate a mapping into a :class:`DeviceProfile`; one-line :class:`InputError` on failure."""
+    if not isinstance(data, Mapping):
+        raise input_error(
+            source, None, f"top level is a {type(data).__name__}, not a mapping", "a YAML mapping"
+        )
+    try:
+        profile = DeviceProfile.model_validate(
+            dict(data), context={_CTX_ALLOW_INFINITE: allow_infinite_coherence}
+        )
+    except ValidationError as exc:
+        raise from_validation_error(exc, source) from None
+    except ProfileCheckError as exc:
+        raise exc.with_source(source) from None
+    except (TypeError, ValueError, OverflowError, RecursionError) as exc:  # defensive: odd inputs
+        raise input_error(source, None, f"invalid profile ({type(exc).__name__}: {exc})") from None
+    profile._source = source
+    return profile
+
+
+def load_profile(path: str | Path) -> DeviceProfile:
+    """Read and validate a device profile YAML file."""
+    from noiselab.common.yamlio import load_yaml_mapping
+
+    data = load_yaml_mapping(path, what="device profile")
+    return profile_from_mapping(data, str(path))
+
+
+# ---- warnings -------------------------------------------------------------------------------
+
+
+def relaxation_gate_infidelity(profile: DeviceProfile, gate: str, qubits: tuple[int, ...]) -> float:
+    """Average infidelity T1/T2 alone cause over the duration of ``gate`` on physical ``qubits``."""
+    t_ns = profile.gate_duration_ns(gate)
+    if t_ns == 0.0:
+        return 0.0
+    coh = [(profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in qubits]
+    return thermal.relaxation_infidelity(t_ns, coh)
+
+
+def profile_warnings(profile: DeviceProfile) -> list[str]:
+    """Quoted gate errors below what relaxation alone causes over the gate (the noise model then
+    uses relaxation alone for that gate). One line per affected qubit or pair."""
+    out: list[str] = []
+    physical_1q = [g for g in profile.single_qubit_gates if g not in VIRTUAL_GATES]
+    if physical_1q:
+        gate = physical_1q[0]
+        for q in range(profile.qubit_count):
+            quoted = profile.qubit(q).gate_error
+            floor = relaxation_gate_infidelity(profile, gate, (q,))
+            if quoted < floor:
+                where = _qubit_key_owner(profile, q, ("gate_error",))
+                out.append(
+                    f"{profile.source}: {where}.gate_error: qubit {q}: quoted {quoted:.3g} "
+                    f"is below the {floor:.3g} that T1/T2 alone cause over "
+                    f"{profile.durations.single_qubit_ns:g} ns; "
+                    "relaxation alone is used for this gate"
+                )
+    g2 = profile.two_qubit_gate
+    override_pairs = {
+        _norm(*ov.pair) for ov in profile.couplers.overrides if "gate_error" in ov.model_fields_set
+    }
+    for a, b in profile.pairs():
+        quoted = profile.pair_error(a, b)
+        floor = relaxation_gate_infidelity(profile, g2, (a, b))
+        if quoted < floor:
+            where = "couplers.overrides" if (a, b) in override_pairs else "couplers.default"
+            out.append(
+                f"{profile.source}: {where}.gate_error: pair ({a}, {b}): quoted {quoted:.3g} "
+                f"is below the {floor:.3g} that T1/T2 alone cause over "
+                f"{profile.durations.two_qubit_ns:g} ns; "
+                "relaxation alone is used for this gate"
+            )
+    return out
+
+
+# ---- scaling --------------------------------------------------------------------------------
+
+
+def _scaled_rate(value: float | None, s: float, hi: float) -> float | None:
+    return None if value is None else min(value * s, hi)
+
+
+def _scaled_signed(value: float | None, s: float, hi: float) -> float | None:
+    return None if value is None else max(-hi, min(value * s, hi))
+
+
+def _scaled_time(value: float | None, s: float) -> float | None:
+    if value is None or s == 0.0:
+        return None
+    return value / s
+
+
+def scale_profile(
+    profile: DeviceProfile, factor: float, channels: Iterable[str] | None = None
+) -> DeviceProfile:
+    """Scale the noise of chosen channel groups by ``factor`` s >= 0 (``None``: all CHANNELS).
+
+    * relaxation: T1 and T2 divided by s (s = 0: infinite coherence, stored as ``None``);
+    * single_qubit / two_qubit: quoted gate errors times s, clipped at 0.5 / 0.75 (the
+      average infidelity of full depolarization);
+    * coherent: ZZ angles and over-rotation fractions times s, clipped at +-pi / +-0.5;
+    * readout: P(1|0), P(0|1) and joint flips times s, clipped at 0.5.
+
+    s = 0 on all channels is noiseless; s = 1 returns an equal profile.
+    """
+    import copy
+
+    try:
+        s = float(factor)
+    except (TypeError, ValueError):
+        raise input_error(
+            None, "noise scale factor", f"{factor!r} is not a number", "a number >= 0"
+        ) from None
+    if not math.isfinite(s) or s < 0.0:
+        raise input_error(
+            None, "noise scale factor", f"{factor!r} is not allowed", "a finite number >= 0"
+        )
+    if channels is None:
+        chosen = set(CHANNELS)
+    else:
+        if isinstance(channels, str):
+            channels = [channels]
+        chosen = set(channels)
+        unknown = sorted(chosen - set(CHANNELS))
+        if unknown:
+            raise input_error(
+                None, "channels", f"unknown channel {unknown[0]!r}", ", ".join(CHANNELS)
+            )
+
+    data = copy.deepcopy(profile.model_dump(exclude_unset=True))
+    qd = data["qubits"]["default"]
+    q_entries = [qd, *data["qubits"].get("overrides", {}).values()]
+    p_entries = [data["couplers"]["default"], *data["couplers"].get("overrides", [])]
+    if "relaxation" in chosen:
+        for e in q_entries:
+            for key in ("t1_us", "t2_us"):
+                if key in e:
+                    e[key] = _scaled_time(e[key], s)
+        if s == 0.0:  # overrides of infinite times are just the (infinite) default
+            for e in q_entries[1:]:
+                e.pop("t1_us", None)
+                e.pop("t2_us", None)
+    if "single_qubit" in chosen:
+        for e in q_entries:
+            if "gate_error" in e:
+                e["gate_error"] = _scaled_rate(e["gate_error"], s, MAX_SINGLE_QUBIT_ERROR)
+    if "two_qubit" in chosen:
+        for e in p_entries:
+            if "gate_error" in e:
+                e["gate_error"] = _scaled_rate(e["gate_error"], s, MAX_TWO_QUBIT_ERROR)
+    if "coherent" in chosen:
+        for e in q_entries:
+            if "over_rotation_fraction" in e:
+                e["over_rotation_fraction"] = _scaled_signed(
+                    e["over_rotation_fraction"], s, MAX_OVER_ROTATION
+                )
+        for e in p_entries:
+            if "zz_angle_rad" in e:
+                e["zz_angle_rad"] = _scaled_signed(e["zz_angle_rad"], s, MAX_ZZ_ANGLE_RAD)
+    if "readout" in chosen:
+        for e in q_entries:
+            for key in ("p_read1_prep0", "p_read0_prep1"):
+                if key in e:
+                    e[key] = _scaled_rate(e[key], s, MAX_READOUT_ERROR)
+        for e in data.get("readout_crosstalk", []):
+            e["joint_flip"] = _scaled_rate(e["joint_flip"], s, MAX_JOINT_FLIP)
+    try:
+        out = DeviceProfile.model_validate(data, context={_CTX_ALLOW_INFINITE: True})
+    except ValidationError as exc:  # pragma: no cover - scaling keeps values in range
+        raise from_validation_error(exc, profile.source) from None
+    out._source = profile.source
+    return out
