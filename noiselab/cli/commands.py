@@ -13,3 +13,6 @@ REGISTRY: list[Callable[[typer.Typer], None]] = []
 from noiselab.cli import study_cmds  # noqa: E402  (assess, tune, demo)
 
 REGISTRY.append(study_cmds.register)
+from noiselab.cli import profile_cmd  # noqa: E402  (profile check, profile show)
+
+REGISTRY.append(profile_cmd.register)

@@ -1,0 +1,180 @@
+"""``noiselab profile check`` and ``noiselab profile show``: validate and inspect device profiles.
+
+Only typer is imported at start-up; pydantic/rich and the device layer are imported inside the
+command functions.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated, Any
+
+import typer
+
+ProfileArg = Annotated[
+    Path, typer.Argument(help="Device noise profile (YAML).", show_default=False)
+]
+
+IDLE_TARGET_INFIDELITY = 0.01  # the "coherence-limited time": idle error reaches 1 %
+
+
+def _fmt(value: float | None, spec: str = ".3g") -> str:
+    return "inf" if value is None else format(value, spec)
+
+
+def check(
+    file: ProfileArg,
+    strict: Annotated[
+        bool, typer.Option("--strict", help="Treat warnings as errors (exit code 2).")
+    ] = False,
+) -> None:
+    """Validate a device profile; print warnings; exit 0 when valid, 2 when not.
+
+    Example: noiselab profile check configs/devices/amberline-10.yaml
+    """
+    from noiselab.common.errors import InputError
+    from noiselab.device.profile import load_profile, profile_warnings
+
+    profile = load_profile(file)
+    warnings = profile_warnings(profile)
+    for line in warnings:
+        typer.echo(f"noiselab: warning: {line}", err=True)
+    if strict and warnings:
+        raise InputError(f"{file}: {len(warnings)} warning(s) with --strict; allowed: none")
+    typer.echo(
+        f"ok: {file}: device '{profile.name}', {profile.qubit_count} qubits, "
+        f"{len(profile.pairs())} links, natives {', '.join(profile.native_gate_names)}; "
+        f"{len(warnings)} warning(s)"
+    )
+
+
+def _qubit_table(profile: Any) -> Any:
+    from rich.table import Table
+
+    from noiselab.device import thermal
+    from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity
+
+    gate = next((g for g in profile.single_qubit_gates if g not in VIRTUAL_GATES), None)
+    table = Table(title=f"Qubits of {profile.name}")
+    for head in (
+        "qubit",
+        "T1 (us)",
+        "T2 (us)",
+        "1q error",
+        "1q relaxation-only error",
+        "P(1|0)",
+        "P(0|1)",
+        "over-rotation (fraction)",
+        "idle time to 1% error (us)",
+    ):
+        table.add_column(head, justify="right")
+    for q in range(profile.qubit_count):
+        qp = profile.qubit(q)
+        relax = relaxation_gate_infidelity(profile, gate, (q,)) if gate else 0.0
+        t_ns = thermal.idle_time_for_infidelity_ns(IDLE_TARGET_INFIDELITY, qp.t1_us, qp.t2_us)
+        table.add_row(
+            str(q),
+            _fmt(qp.t1_us),
+            _fmt(qp.t2_us),
+            _fmt(qp.gate_error),
+            _fmt(relax),
+            _fmt(qp.p_read1_prep0),
+            _fmt(qp.p_read0_prep1),
+            _fmt(qp.over_rotation_fraction),
+            _fmt(None if t_ns is None else t_ns * 1e-3),
+        )
+    return table
+
+
+def _pair_table(profile: Any) -> Any:
+    from rich.table import Table
+
+    from noiselab.device.profile import relaxation_gate_infidelity
+
+    g2 = profile.two_qubit_gate
+    table = Table(title=f"Linked pairs of {profile.name} ({g2})")
+    for head in (
+        "pair",
+        "2q error",
+        "2q relaxation-only error",
+        "ZZ angle (rad)",
+        "readout joint flip (probability)",
+    ):
+        table.add_column(head, justify="right")
+    for a, b in profile.pairs():
+        pp = profile.pair(a, b)
+        table.add_row(
+            f"{a}-{b}",
+            _fmt(pp.gate_error),
+            _fmt(relaxation_gate_infidelity(profile, g2, (a, b))),
+            _fmt(pp.zz_angle_rad),
+            _fmt(profile.joint_flip(a, b)),
+        )
+    return table
+
+
+def _summary_table(profile: Any) -> Any:
+    from rich.table import Table
+
+    from noiselab.device import thermal
+
+    d = profile.durations
+    idle = [
+        thermal.idle_time_for_infidelity_ns(
+            IDLE_TARGET_INFIDELITY, profile.qubit(q).t1_us, profile.qubit(q).t2_us
+        )
+        for q in range(profile.qubit_count)
+    ]
+    finite = [t for t in idle if t is not None]
+    worst_ns = min(finite) if finite else None
+    table = Table(title=f"Device {profile.name}", show_header=True)
+    table.add_column("quantity")
+    table.add_column("value", justify="right")
+    table.add_row("qubits", str(profile.qubit_count))
+    table.add_row("links", "all-to-all" if profile.is_all_to_all else str(len(profile.pairs())))
+    table.add_row("native gates", ", ".join(profile.native_gate_names))
+    table.add_row("single-qubit gate (ns)", _fmt(d.single_qubit_ns, "g"))
+    table.add_row("two-qubit gate (ns)", _fmt(d.two_qubit_ns, "g"))
+    table.add_row("readout (ns)", _fmt(d.readout_ns, "g"))
+    table.add_row(
+        "coherence-limited time, worst qubit idle to 1% error (us)",
+        _fmt(None if worst_ns is None else worst_ns * 1e-3),
+    )
+    table.add_row(
+        "two-qubit gate layers within that time",
+        "inf" if worst_ns is None else str(int(worst_ns // d.two_qubit_ns)),
+    )
+    return table
+
+
+def show(file: ProfileArg) -> None:
+    """Print a device profile as tables: qubits, linked pairs, derived thermal limits.
+
+    Example: noiselab profile show configs/devices/amberline-10.yaml
+    """
+    from rich.console import Console
+
+    from noiselab.device.profile import load_profile, profile_warnings
+
+    profile = load_profile(file)
+    console = Console(width=max(120, Console().width))
+    if profile.description:
+        console.print(profile.description)
+    console.print(_summary_table(profile))
+    console.print(_qubit_table(profile))
+    console.print(_pair_table(profile))
+    for line in profile_warnings(profile):
+        typer.echo(f"noiselab: warning: {line}", err=True)
+
+
+def register(app: typer.Typer) -> None:
+    """Add the ``profile`` command group to the main app."""
+    group = typer.Typer(
+        name="profile",
+        help="Validate and inspect device noise profiles (YAML).",
+        no_args_is_help=True,
+        add_completion=False,
+    )
+    group.command("check")(check)
+    group.command("show")(show)
+    app.add_typer(group, name="profile")
