@@ -86,11 +86,19 @@ def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.grid(True, which="major", alpha=0.3)
 
 
+def _savefig(fig: Any, target: Path, fmt: str) -> None:
+    import matplotlib
+
+    # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42
+    with matplotlib.rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
+        fig.savefig(target, format=fmt, dpi=_DPI)
+
+
 def _save(fig: Any, path: str | Path, fmt: str | None = None) -> Path:
     path = Path(path)
     fmt = fmt or path.suffix.lstrip(".").lower() or "png"
     with atomic_path(path) as tmp:
-        fig.savefig(tmp, format=fmt, dpi=_DPI)
+        _savefig(fig, tmp, fmt)
     fig.clear()
     return path
 
@@ -103,7 +111,7 @@ def _save_all(fig: Any, stem: str | Path) -> tuple[Path, ...]:
     for fmt in _FORMATS:
         target = stem.with_name(f"{stem.name}.{fmt}")
         with atomic_path(target) as tmp:
-            fig.savefig(tmp, format=fmt, dpi=_DPI)
+            _savefig(fig, tmp, fmt)
         out.append(target)
     fig.clear()
     return tuple(out)

@@ -22,6 +22,7 @@ from typing import Any
 
 from noiselab.common.errors import input_error
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.device.profile import MAX_READOUT_ERROR, MAX_SINGLE_QUBIT_ERROR, MAX_TWO_QUBIT_ERROR
 
 # ---------------------------------------------------------------- knobs
 
@@ -68,7 +69,7 @@ KNOBS: dict[str, Knob] = {
         unit="%",
         channels=("two_qubit",),
         display_factor=100.0,
-        upper=1.0,
+        upper=MAX_TWO_QUBIT_ERROR,
     ),
     "one-qubit-error": Knob(
         name="one-qubit-error",
@@ -77,7 +78,7 @@ KNOBS: dict[str, Knob] = {
         unit="%",
         channels=("single_qubit",),
         display_factor=100.0,
-        upper=1.0,
+        upper=MAX_SINGLE_QUBIT_ERROR,
     ),
     "coherence-us": Knob(
         name="coherence-us",
@@ -95,7 +96,7 @@ KNOBS: dict[str, Knob] = {
         unit="%",
         channels=("readout",),
         display_factor=100.0,
-        upper=1.0,
+        upper=MAX_READOUT_ERROR,
     ),
 }
 KNOB_ALIASES = {"scale": "noise-scale"}
@@ -126,7 +127,7 @@ def knob_values(knob: Knob, start: float, stop: float, points: int, log: bool) -
                 "sweep",
                 opt,
                 f"{v} is out of range for {knob.name}",
-                f"0..{knob.upper:g} (a probability)",
+                f"0..{knob.upper:g} (a probability; larger is not an error rate)",
             )
     if start == stop:
         raise input_error("sweep", "--from/--to", "the range is empty", "two different values")

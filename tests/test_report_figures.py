@@ -1,0 +1,183 @@
+"""Figures and tables from hand-made result records (no simulation)."""
+
+from __future__ import annotations
+
+import csv
+import math
+import xml.etree.ElementTree as ET
+from pathlib import Path
+
+import numpy as np
+import pytest
+
+from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.report import figures as F  # noqa: N812
+from noiselab.report import tables as T  # noqa: N812
+from noiselab.report.outputs import write_budget_outputs, write_sweep_outputs
+from noiselab.study.budget import CHANNELS, BudgetResult, BudgetRow, dominant_channel
+from noiselab.study.sweep import (
+    SweepEntry,
+    SweepPoint,
+    SweepResult,
+    get_knob,
+    knob_values,
+    recipe_crossing,
+)
+
+PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"  # source: PNG specification (RFC 2083), sec. 3.1
+EXACT_HA = -1.137
+
+
+def _hand_sweep(log: bool = True) -> SweepResult:
+    knob = get_knob("two-qubit-error")
+    values = knob_values(knob, 1e-3, 5e-2, 6, log)
+    points = []
+    for v in values:
+        x = v / 0.01
+        entries = tuple(
+            SweepEntry(name, EXACT_HA + e / 1000, e, s, e, 0.5, "bias")
+            for name, e, s in (("raw", 40 * x, 0.3), ("zne", 3 * x * x, 1.0))
+        )
+        points.append(SweepPoint(v, x, entries))
+    recipes = ("raw", "zne")
+    crossings = tuple(recipe_crossing(r, knob, points, CHEMICAL_ACCURACY_MHA, log) for r in recipes)
+    return SweepResult(
+        "h2-hand", "toy-chip", "two-qubit-error", log, 0.01, CHEMICAL_ACCURACY_MHA, 100_000,
+        EXACT_HA, EXACT_HA + 1e-4, recipes, tuple(points), crossings,
+    )  # fmt: skip
+
+
+def _hand_budget() -> BudgetResult:
+    rows = [BudgetRow("all channels", "total", None, (30.0, 1.2), (0.3, 1.0))]
+    rows += [
+        BudgetRow(f"{c} alone", "alone", c, (2.0 * (i + 1), 0.5), (0.3, 0.8))
+        for i, c in enumerate(CHANNELS)
+    ]
+    rows += [
+        BudgetRow(f"without {c}", "removed", c, (30 - 2.0 * (i + 1), 1.0), (0.3, 0.8))
+        for i, c in enumerate(CHANNELS)
+    ]
+    rows.append(BudgetRow("noiseless", "noiseless", None, (0.1, 0.1), (0.0, 0.0)))
+    dom, sentence = dominant_channel(tuple(rows))
+    return BudgetResult(
+        "h2-hand", "toy-chip", ("raw", "zne"), CHEMICAL_ACCURACY_MHA, 100_000, EXACT_HA,
+        EXACT_HA + 1e-4, tuple(rows), dom, sentence,
+    )  # fmt: skip
+
+
+def _check_png(path: Path) -> None:
+    import matplotlib.image
+
+    assert path.read_bytes()[:8] == PNG_SIGNATURE
+    img = matplotlib.image.imread(path)
+    assert img.ndim == 3 and img.shape[0] > 200 and img.shape[1] > 200
+    # not a blank canvas
+    assert float(np.std(img[..., :3])) > 0.01
+
+
+def _svg_text(path: Path) -> str:
+    root = ET.parse(path).getroot()  # raises on malformed XML
+    assert root.tag.endswith("svg")
+    return " ".join(t for t in root.itertext())
+
+
+def test_sweep_figure_three_formats(tmp_path: Path) -> None:
+    paths = F.plot_sweep(_hand_sweep(), tmp_path / "sw")
+    assert [p.suffix for p in paths] == [".svg", ".pdf", ".png"]
+    _check_png(tmp_path / "sw.png")
+    text = _svg_text(tmp_path / "sw.svg")
+    assert "two-qubit gate error (%)" in text
+    assert "(mHa)" in text
+    assert "h2-hand" in text and "toy-chip" in text
+    assert F.CAUTION in text
+    assert (tmp_path / "sw.pdf").read_bytes()[:5] == b"%PDF-"
+    # no temporary files left behind by the atomic writes
+    assert sorted(p.name for p in tmp_path.iterdir()) == ["sw.pdf", "sw.png", "sw.svg"]
+
+
+def test_budget_figure(tmp_path: Path) -> None:
+    b = _hand_budget()
+    _check_png(F.plot_budget(b, tmp_path / "b.png"))
+    text = _svg_text(F.plot_budget(b, tmp_path / "b.svg"))
+    assert "energy − exact energy (mHa)" in text
+    assert "without two_qubit" in text and "readout alone" in text
+
+
+def test_extrapolation_figure_from_records(tmp_path: Path) -> None:
+    scales = (1.0, 2.0, 3.0)
+    # records shaped like mitigate's RecipeResult: details with per-scale energies and the fit
+    zne = {
+        "energy_ha": EXACT_HA + 0.0004,
+        "bias_exact_mha": 0.4,
+        "std_mha": 0.9,
+        "details": {
+            "scales": scales,
+            "energies_ha": [EXACT_HA + 0.02 * x for x in scales],
+            "stds_ha": [4e-4] * 3,
+            "fit": {"model": "polynomial", "coefficients": [EXACT_HA + 0.0004, 0.02]},
+        },
+    }
+    raw = {"energy_ha": EXACT_HA + 0.02, "bias_exact_mha": 20.0, "std_mha": 0.3, "details": {}}
+    data = F.extrapolation_data({"raw": raw, "zne-linear": zne})
+    assert [s.recipe for s in data.series] == ["zne-linear"]
+    s = data.series[0]
+    # the sampled fit starts at scale 0 with the constant coefficient
+    assert s.curve_scales[0] == 0.0
+    assert s.curve_energies_ha[0] == pytest.approx(EXACT_HA + 0.0004)
+    # exact energy recovered from the first record: E - bias (common practice, no source)
+    assert data.exact_energy_ha == pytest.approx(EXACT_HA)
+    path = F.plot_extrapolation({"raw": raw, "zne-linear": zne}, tmp_path / "x.png")
+    _check_png(path)
+    text = _svg_text(F.plot_extrapolation(data, tmp_path / "x.svg"))
+    assert "noise scale factor" in text and "energy − exact energy (mHa)" in text
+
+
+def test_bias_bars_log_and_linear(tmp_path: Path) -> None:
+    wide = [F.BiasBar("raw", 35.0, 0.4), F.BiasBar("zne", 0.02, 0.9)]
+    narrow = [F.BiasBar("raw", 3.0, 0.4), F.BiasBar("zne", 1.0, 0.3)]
+    for name, bars in (("wide", wide), ("narrow", narrow)):
+        _check_png(F.plot_bias_bars(bars, tmp_path / f"{name}.png", "h2-hand", "toy-chip"))
+        text = _svg_text(F.plot_bias_bars(bars, tmp_path / f"{name}.svg", "h2-hand", "toy-chip"))
+        assert "|energy − exact energy| (mHa)" in text
+    assert F._wide_range([35.0, 0.02, CHEMICAL_ACCURACY_MHA])
+    assert not F._wide_range([3.0, 1.0, CHEMICAL_ACCURACY_MHA])
+
+
+def test_sweep_outputs_and_csv(tmp_path: Path) -> None:
+    res = _hand_sweep()
+    written = write_sweep_outputs(res, tmp_path)
+    names = sorted(p.name for p in written)
+    stem = "sweep-two-qubit-error"
+    assert names == sorted(f"{stem}.{e}" for e in ("csv", "json", "svg", "pdf", "png"))
+    with open(tmp_path / f"{stem}.csv", newline="") as fh:
+        rows = list(csv.DictReader(fh))
+    assert len(rows) == len(res.points) * len(res.recipes)
+    assert "two_qubit_error_percent" in rows[0] and "error_mha" in rows[0]
+    # the CSV value is the knob in percent: 0.1 % for the first point
+    assert float(rows[0]["two_qubit_error_percent"]) == pytest.approx(0.1)
+    assert float(rows[0]["error_mha"]) == pytest.approx(res.points[0].entry("raw").error_mha)
+
+
+def test_budget_outputs_and_tables(tmp_path: Path) -> None:
+    b = _hand_budget()
+    written = write_budget_outputs(b, tmp_path)
+    assert {p.suffix for p in written} == {".csv", ".json", ".png", ".svg"}
+    text = T.render_text(T.budget_table(b, plain=True))
+    assert "error ± std (mHa)" in text and "without readout" in text
+    stext = T.render_text(T.sweep_table(_hand_sweep(), plain=True))
+    assert "two-qubit gate error (%)" in stext
+
+
+def test_dominant_channel_is_the_largest_removal_gain() -> None:
+    b = _hand_budget()
+    # readout: the largest error alone (10 mHa) and the largest drop when removed (30 -> 20)
+    assert b.dominant == "readout"
+    assert "readout" in b.sentence
+
+
+def test_csv_text_roundtrip() -> None:
+    rows = [{"a_mha": 1.5, "b": "x"}, {"a_mha": math.nan, "c": 3}]
+    text = T.csv_text(rows)
+    parsed = list(csv.DictReader(text.splitlines()))
+    assert parsed[0] == {"a_mha": "1.5", "b": "x", "c": ""}
+    assert parsed[1]["a_mha"] == ""  # NaN written as an empty cell

@@ -1,0 +1,108 @@
+"""Knob values and target crossings of a sweep, against hand-computed analytic cases."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from noiselab.common.errors import InputError
+from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.study.sweep import (
+    SweepEntry,
+    SweepPoint,
+    crossing_sentence,
+    find_crossings,
+    get_knob,
+    knob_factor,
+    knob_values,
+    recipe_crossing,
+)
+
+
+def test_power_law_crossing_is_exact_in_log_log() -> None:
+    # |error| = a x^2 is a straight line in log-log, so log interpolation is exact:
+    # a x^2 = t  =>  x = sqrt(t / a)   (hand computation)
+    a, t = 4.0, CHEMICAL_ACCURACY_MHA
+    xs = [10 ** (-2 + 2 * i / 6) for i in range(7)]  # 0.01 .. 1, log spaced
+    ys = [a * x * x for x in xs]
+    (x_cross,) = find_crossings(xs, ys, t, log_x=True)
+    assert x_cross == pytest.approx(math.sqrt(t / a), rel=1e-12)
+
+
+def test_exponential_crossing_is_exact_with_linear_x() -> None:
+    # |error| = exp(k x): log10|error| is linear in x, crossing at x = ln(t) / k (hand computation)
+    k, t = 1.3, 2.0
+    xs = [0.25 * i for i in range(9)]
+    ys = [math.exp(k * x) for x in xs]
+    (x_cross,) = find_crossings(xs, ys, t, log_x=False)
+    assert x_cross == pytest.approx(math.log(t) / k, rel=1e-12)
+
+
+def test_linear_interpolation_between_two_points_by_hand() -> None:
+    # two points (1, 1 mHa) and (3, 100 mHa), target 10 mHa: log10 goes 0 -> 2, crossing at
+    # the midpoint x = 2 (hand computation)
+    assert find_crossings([1.0, 3.0], [1.0, 100.0], 10.0) == pytest.approx((2.0,))
+    # sign of the error does not matter, only its size
+    assert find_crossings([1.0, 3.0], [-1.0, -100.0], 10.0) == pytest.approx((2.0,))
+
+
+def test_no_crossing_and_two_crossings() -> None:
+    assert find_crossings([1, 2, 3], [0.1, 0.2, 0.3], 1.0) == ()
+    # error dips below the target and comes back (a ZNE bias changing sign, say)
+    out = find_crossings([1, 2, 3, 4], [5.0, 0.5, 0.5, 5.0], 1.0)
+    assert len(out) == 2 and 1 < out[0] < 2 and 3 < out[1] < 4
+
+
+def test_sentences_in_device_units() -> None:
+    knob = get_knob("two-qubit-error")
+    s = crossing_sentence("zne", knob, [0.001, 0.01], [0.5, 5.0], [0.0042], CHEMICAL_ACCURACY_MHA)
+    assert s == "zne stays within chemical accuracy while the two-qubit gate error is below 0.42 %"
+    coh = get_knob("coherence-us")
+    # error falls as T1 grows: within target above the crossing
+    s = crossing_sentence("raw", coh, [20.0, 200.0], [8.0, 0.8], [120.0], CHEMICAL_ACCURACY_MHA)
+    assert "above 120 us" in s
+    s = crossing_sentence("raw", knob, [0.001, 0.01], [5.0, 9.0], [], CHEMICAL_ACCURACY_MHA)
+    assert "does not reach chemical accuracy" in s
+
+
+def test_recipe_crossing_band_is_earlier_than_central() -> None:
+    knob = get_knob("noise-scale")
+    pts = [
+        SweepPoint(x, x, (SweepEntry("raw", 0.0, 1.0 * x, 0.5, 0.0, 0.5, "bias"),))
+        for x in (0.5, 1.0, 2.0, 4.0)
+    ]
+    c = recipe_crossing("raw", knob, pts, CHEMICAL_ACCURACY_MHA, log_x=True)
+    assert len(c.crossings) == 1 and len(c.band_crossings) == 1
+    # |error| = x crosses t at x = t exactly (a power law, log-log interpolation exact)
+    assert c.crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA)
+    assert c.band_crossings[0] < c.crossings[0]
+
+
+@pytest.mark.parametrize(
+    ("knob", "start", "stop"),
+    [
+        ("two-qubit-error", -0.01, 0.02),  # a negative error rate
+        ("two-qubit-error", 0.001, 1.5),  # an error above 1
+        ("readout-error", 0.01, 0.7),  # readout worse than a coin toss
+        ("coherence-us", 0.0, 100.0),  # zero coherence time
+        ("noise-scale", 0.0, 2.0),  # zero with log spacing (below)
+    ],
+)
+def test_bad_ranges_are_input_errors(knob: str, start: float, stop: float) -> None:
+    with pytest.raises(InputError):
+        knob_values(get_knob(knob), start, stop, 3, log=knob == "noise-scale")
+
+
+def test_unknown_knob() -> None:
+    with pytest.raises(InputError, match="allowed: noise-scale"):
+        get_knob("gate-fidelity")
+
+
+def test_knob_values_and_factors() -> None:
+    vals = knob_values(get_knob("coherence-us"), 10.0, 1000.0, 3, log=True)
+    assert vals == pytest.approx((10.0, 100.0, 1000.0))
+    # coherence: twice the T1 halves the relaxation rate
+    assert knob_factor(get_knob("coherence-us"), 200.0, 100.0) == pytest.approx(0.5)
+    assert knob_factor(get_knob("two-qubit-error"), 0.02, 0.01) == pytest.approx(2.0)
+    assert knob_factor(get_knob("scale"), 1.7, 123.0) == pytest.approx(1.7)
