@@ -266,3 +266,112 @@ def open_cache(path: str | Path | None = None, *, enabled: bool = True) -> Resul
     if not enabled:
         return ResultsCache.disabled()
     return ResultsCache(default_cache_path() if path is None else path)
+
+
+# ---------------------------------------------------------------- the caching runner
+
+SIMULATION_KIND = "basis-distributions-v1"
+
+
+def _simulate(item: tuple[Any, Any]) -> Any:
+    """Executor task: one simulation of ``variant`` for ``experiment`` (module level: picklable)."""
+    from noiselab.mitigate.recipe import make_runner
+
+    experiment, variant = item
+    return make_runner(experiment)(variant)
+
+
+class CachingRunner:
+    """``runner(variant) -> BasisDistributions``, shared by every recipe of a job.
+
+    Looks in memory, then in the results cache, and only then simulates. ``simulations`` counts
+    the simulations actually run; ``requested`` the distinct variants asked for.
+    """
+
+    def __init__(
+        self, experiment: Any, cache: ResultsCache | None = None, base: Any = None
+    ) -> None:
+        from noiselab.mitigate.recipe import make_runner
+
+        self.experiment = experiment
+        self.cache = cache if cache is not None else ResultsCache.disabled()
+        self._base = base if base is not None else make_runner(experiment)
+        self._memory: dict[Any, Any] = {}
+        self._lock = threading.Lock()
+        self.simulations = 0
+        self.cache_hits = 0
+        self.engine_seconds = 0.0
+        self.requested: set[Any] = set()
+
+    def key(self, variant: Any) -> str:
+        """SHA-256 of everything that determines this variant's simulation."""
+        from noiselab.mitigate.recipe import variant_key_material
+
+        return digest(SIMULATION_KIND, variant_key_material(self.experiment, variant))
+
+    def _lookup(self, variant: Any) -> Any:
+        from noiselab.emulate.engine import BasisDistributions
+
+        if variant in self._memory:
+            return self._memory[variant]
+        hit = self.cache.get(SIMULATION_KIND, self.key(variant))
+        if hit is None:
+            return None
+        try:
+            value = unpack_record(BasisDistributions, hit[0])
+        except (ValueError, TypeError, KeyError, OSError, json.JSONDecodeError):
+            return None  # unreadable entry: simulate again
+        self.cache_hits += 1
+        self._memory[variant] = value
+        return value
+
+    def _store(self, variant: Any, value: Any) -> None:
+        self._memory[variant] = value
+        self.simulations += 1
+        seconds = float(getattr(value, "engine_seconds", 0.0) or 0.0)
+        self.engine_seconds += seconds
+        self.cache.put(SIMULATION_KIND, self.key(variant), pack_record(value), seconds)
+
+    def __call__(self, variant: Any) -> Any:
+        with self._lock:
+            self.requested.add(variant)
+            value = self._lookup(variant)
+            if value is None:
+                value = self._base(variant)
+                self._store(variant, value)
+            return value
+
+    def prefetch(self, variants: Any, executor: Any = None, on_done: Any = None) -> int:
+        """Simulate the distinct ``variants`` not yet known, through ``executor`` if given.
+
+        Returns how many were simulated. ``on_done(done, total)`` reports progress.
+        """
+        with self._lock:
+            todo = []
+            for v in dict.fromkeys(variants):
+                self.requested.add(v)
+                if self._lookup(v) is None:
+                    todo.append(v)
+        if not todo:
+            return 0
+        total = len(todo)
+        if executor is None or getattr(executor, "parallelism", 1) <= 1:
+            for i, v in enumerate(todo):
+                with self._lock:
+                    if v not in self._memory:
+                        self._store(v, self._base(v))
+                if on_done is not None:
+                    on_done(i + 1, total)
+            return total
+        done = [0]
+
+        def finished(index: int, value: Any) -> None:
+            with self._lock:
+                if todo[index] not in self._memory:
+                    self._store(todo[index], value)
+            done[0] += 1
+            if on_done is not None:
+                on_done(done[0], total)
+
+        executor.map(_simulate, [(self.experiment, v) for v in todo], on_result=finished)
+        return total

@@ -24,7 +24,7 @@ from pydantic import (
     field_validator,
 )
 
-from noiselab.common.errors import from_validation_error, input_error
+from noiselab.common.errors import InputError, from_validation_error, input_error
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 
@@ -38,22 +38,43 @@ class _Strict(BaseModel):
 
 
 class UccsdAnsatz(_Strict):
-    """Unitary coupled cluster, singles and doubles, from the Hartree-Fock state."""
+    """Unitary coupled cluster (first-order Trotterized), singles and doubles, from Hartree-Fock."""
 
     kind: Literal["uccsd"]
-    reps: StrictInt = Field(default=1, ge=1, le=4, description="Trotter repetitions")
+    singles: StrictBool = True
+    doubles: StrictBool = True
     starts: StrictInt = Field(default=1, ge=1, le=32, description="optimizer starting points")
-    maxiter: StrictInt = Field(default=400, ge=1, le=20000)
+    max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+
+    def label(self) -> str:
+        parts = "".join(c for c, on in (("S", self.singles), ("D", self.doubles)) if on)
+        return f"UCC{parts}"
 
 
 class LayeredAnsatz(_Strict):
-    """Hardware-efficient layers of rotations and entangling pairs, from the Hartree-Fock state."""
+    """Hardware-efficient layers of ry/rz rotations and entangling pairs, from Hartree-Fock."""
 
     kind: Literal["layered"]
     layers: StrictInt = Field(default=2, ge=1, le=20)
-    pairs: Literal["linear", "ring", "all"] = "linear"
+    pairs: Literal["linear", "ring", "all"] | list[tuple[StrictInt, StrictInt]] = "linear"
+    entangler: Literal["cz", "cx"] = "cz"
     starts: StrictInt = Field(default=3, ge=1, le=32, description="optimizer starting points")
-    maxiter: StrictInt = Field(default=600, ge=1, le=20000)
+    max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+
+    def label(self) -> str:
+        pairs = self.pairs if isinstance(self.pairs, str) else "custom"
+        return f"layered x{self.layers} ({pairs} {self.entangler})"
+
+    def pair_list(self, num_qubits: int) -> list[tuple[int, int]]:
+        """Entangling pairs on ``num_qubits`` logical qubits."""
+        n = num_qubits
+        if self.pairs == "linear":
+            return [(q, q + 1) for q in range(n - 1)]
+        if self.pairs == "ring":
+            return [(q, (q + 1) % n) for q in range(n)] if n > 2 else [(0, 1)][: n - 1]
+        if self.pairs == "all":
+            return [(a, b) for a in range(n) for b in range(a + 1, n)]
+        return [tuple(p) for p in self.pairs]  # type: ignore[misc]
 
 
 ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": LayeredAnsatz}
@@ -365,8 +386,15 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
 
     src = str(study_path)
     if isinstance(value, dict):
-        # the profile layer names "<source>: <key>"; with this source its keys read device.<key>
-        return profile_from_mapping(value, f"{src}: device"), "<inline>"
+        # the profile layer writes "<source>: <key>: ..."; make its keys read device.<key>
+        try:
+            return profile_from_mapping(value, f"{src}: device"), "<inline>"
+        except InputError as exc:
+            head = f"{src}: device: "
+            text = str(exc)
+            if text.startswith(head) and not text.startswith(head + "(top level)"):
+                text = f"{src}: device." + text.removeprefix(head)
+            raise InputError(text) from None
     if not value.strip():
         raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
@@ -407,38 +435,16 @@ def _id_range(ids: list[int]) -> str:
 def validate_recipe(
     passes: list[dict[str, Any]], source: str, key: str
 ) -> tuple[dict[str, Any], ...]:
-    """Validate a recipe's passes with the mitigation registry; errors name ``key[i].option``."""
-    from noiselab.mitigate import registry
+    """Validate a recipe's passes with the mitigation registry; errors name ``key[i].option``.
 
-    checker = getattr(registry, "validate_recipe", None)
-    if checker is not None:
-        out = checker(passes, source=source, key=key)
-        return tuple(out)
-    return tuple(_validate_passes_generic(registry, passes, source, key))
+    Returns the passes with every option filled in (the registry's defaults).
+    """
+    from noiselab.mitigate.registry import make_pass
 
-
-def _validate_passes_generic(
-    registry: Any, passes: list[dict[str, Any]], source: str, key: str
-) -> list[dict[str, Any]]:
-    out: list[dict[str, Any]] = []
-    table = registry.PASSES
+    out = []
     for i, item in enumerate(passes):
-        where = f"{key}[{i}]"
-        name = item.get("pass")
-        if not isinstance(name, str):
-            raise input_error(
-                source, f"{where}.pass", "missing pass name", ", ".join(sorted(table))
-            )
-        if name not in table:
-            raise input_error(
-                source, f"{where}.pass", f"unknown pass {name!r}", ", ".join(sorted(table))
-            )
-        options = {k: v for k, v in item.items() if k != "pass"}
-        model = getattr(table[name], "options_model", None) or getattr(table[name], "Options", None)
-        if model is not None:
-            try:
-                model.model_validate(options)
-            except ValidationError as exc:
-                raise from_validation_error(exc, source, prefix=where) from None
-        out.append(dict(item))
-    return out
+        try:
+            out.append(make_pass(item, where=f"{key}[{i}]").spec())
+        except InputError as exc:
+            raise InputError(f"{source}: {exc}") from None
+    return tuple(out)

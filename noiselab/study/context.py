@@ -1,0 +1,205 @@
+"""The experiment context of a study, computed once and reused by every job.
+
+Steps: PySCF problem and exact energy -> qubit Hamiltonian -> trial circuit -> noiseless optimum
+(cached in the results cache: it is the slow step for larger ansatzes) -> compiled, scheduled
+circuit on the device -> measurement plan -> mitigation's ``ExperimentContext``.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import time
+from collections.abc import Callable
+from typing import Any
+
+from noiselab.common.errors import input_error
+from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
+from noiselab.study.results import ContextSummary
+from noiselab.study.spec import LayeredAnsatz, Study
+
+OPTIMUM_KIND = "noiseless-optimum-v1"
+
+ProgressHook = Callable[[str, int, int], None]
+
+
+@dataclasses.dataclass(frozen=True)
+class StudyContext:
+    """Everything a job needs about a study before any noise is applied."""
+
+    study: Study
+    problem: Any  # noiselab.chem.molecule.ElectronicProblem
+    qubit_problem: Any  # noiselab.chem.encode.QubitProblem
+    ansatz_circuit: Any  # parameterized qiskit QuantumCircuit (logical qubits)
+    optimum: Any  # noiselab.chem.optimize.OptimizationResult
+    compiled: Any  # noiselab.device.compile.CompiledCircuit (bound at the optimum)
+    plan: Any  # noiselab.mitigate.plan.MeasurementPlan
+    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    seconds: dict[str, float]
+
+    @property
+    def exact_energy_ha(self) -> float:
+        return float(self.qubit_problem.exact_energy_ha)
+
+    @property
+    def ansatz_energy_ha(self) -> float:
+        return float(self.optimum.energy_ha)
+
+    def summary(self) -> ContextSummary:
+        s, qp, c = self.study, self.qubit_problem, self.compiled
+        return ContextSummary(
+            study=s.name,
+            source=str(s.source),
+            device=str(s.profile.name),
+            device_source=s.device_source,
+            qubits=int(qp.num_qubits),
+            encoding=str(qp.encoding)
+            + (" + two-qubit reduction" if qp.two_qubit_reduction else ""),
+            two_qubit_reduction=bool(qp.two_qubit_reduction),
+            ansatz=s.ansatz.label(),
+            n_parameters=int(self.ansatz_circuit.num_parameters),
+            exact_energy_ha=float(qp.exact_energy_ha),
+            hf_energy_ha=float(qp.hf_energy_ha),
+            ansatz_energy_ha=float(self.optimum.energy_ha),
+            patch=tuple(int(q) for q in c.patch),
+            two_qubit_count=int(c.two_qubit_count),
+            depth=int(c.depth),
+            duration_ns=float(c.duration_ns),
+            estimated_fidelity=(
+                None if c.estimated_fidelity is None else float(c.estimated_fidelity)
+            ),
+            n_groups=int(self.plan.n_groups),
+        )
+
+
+def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
+    """The study's parameterized trial circuit on the logical qubits."""
+    from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
+
+    a = study.ansatz
+    if isinstance(a, LayeredAnsatz):
+        n = int(qubit_problem.num_qubits)
+        return layered_circuit(
+            n,
+            a.layers,
+            pairs=a.pair_list(n),
+            entangler=a.entangler,
+            initial_bitstring=list(qubit_problem.hf_bitstring),
+        )
+    return uccsd_circuit(qubit_problem, singles=a.singles, doubles=a.doubles)
+
+
+def _optimum_key(study: Study) -> str:
+    return digest(
+        OPTIMUM_KIND,
+        study.molecule.model_dump(mode="json"),
+        study.encoding,
+        study.two_qubit_reduction,
+        study.ansatz.model_dump(mode="json"),
+        study.seed,
+    )
+
+
+def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache | None) -> Any:
+    """Noiseless optimum of the trial circuit (read from / written to the cache)."""
+    from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
+
+    key = _optimum_key(study)
+    if cache is not None:
+        hit = cache.get(OPTIMUM_KIND, key)
+        if hit is not None:
+            try:
+                result = unpack_record(OptimizationResult, hit[0])
+                if len(result.parameters) == circuit.num_parameters:
+                    return result
+            except (ValueError, TypeError, KeyError, json.JSONDecodeError):
+                pass  # an unreadable entry is recomputed
+    result = optimize_noiseless(
+        qubit_problem,
+        circuit,
+        starts=study.ansatz.starts,
+        seed=study.seed,
+        max_iterations=study.ansatz.max_iterations,
+    )
+    if cache is not None:
+        cache.put(OPTIMUM_KIND, key, pack_record(result), result.seconds)
+    return result
+
+
+def build_context(
+    study: Study,
+    *,
+    cache: ResultsCache | None = None,
+    progress: ProgressHook | None = None,
+) -> StudyContext:
+    """Compute the study's problem, optimum, compiled circuit, plan and mitigation context."""
+    from noiselab.chem.encode import encode
+    from noiselab.chem.molecule import compute_problem
+    from noiselab.device.compile import compile_to_device
+    from noiselab.mitigate.plan import build_plan
+
+    steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
+    seconds: dict[str, float] = {}
+
+    def tick(i: int) -> None:
+        if progress is not None:
+            progress("preparing the study", i, len(steps))
+
+    tick(0)
+    t = time.perf_counter()
+    problem = compute_problem(study.molecule)
+    qp = encode(problem, study.encoding, study.two_qubit_reduction)
+    if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
+        raise input_error(
+            str(study.source),
+            "molecule",
+            f"encodes to {qp.num_qubits} qubits, not {study.num_qubits}",
+        )
+    seconds["problem"] = time.perf_counter() - t
+    tick(1)
+    t = time.perf_counter()
+    circuit = ansatz_circuit(study, qp)
+    optimum = optimize(study, qp, circuit, cache)
+    seconds["optimize"] = time.perf_counter() - t
+    tick(2)
+    t = time.perf_counter()
+    bound = circuit.assign_parameters(list(optimum.parameters), inplace=False)
+    compiled = compile_to_device(
+        bound,
+        study.profile,
+        layout=study.layout,
+        optimization_level=study.optimization_level,
+        seed=study.seed,
+    )
+    plan = build_plan(qp.hamiltonian)
+    seconds["compile"] = time.perf_counter() - t
+    tick(3)
+    experiment = make_experiment(study, qp, compiled, plan, optimum)
+    return StudyContext(
+        study=study,
+        problem=problem,
+        qubit_problem=qp,
+        ansatz_circuit=circuit,
+        optimum=optimum,
+        compiled=compiled,
+        plan=plan,
+        experiment=experiment,
+        seconds=seconds,
+    )
+
+
+def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: Any) -> Any:
+    """Mitigation's ExperimentContext for this study (budget, target, seed included)."""
+    from noiselab.mitigate.recipe import ExperimentContext
+
+    return ExperimentContext(
+        problem=qp,
+        plan=plan,
+        compiled=compiled,
+        profile=study.profile,
+        shots_total=study.shots,
+        target_mha=study.target_mha,
+        confidence=study.confidence,
+        ansatz_energy_ha=float(optimum.energy_ha),
+        seed=study.seed,
+    )
