@@ -49,6 +49,7 @@ from __future__ import annotations
 
 import itertools
 import math
+import re
 from collections.abc import Iterable, Mapping
 from dataclasses import dataclass
 from pathlib import Path
@@ -87,6 +88,7 @@ MAX_OVER_ROTATION = 0.5
 MAX_ZZ_ANGLE_RAD = math.pi
 MAX_QUBITS = 1000
 
+_NAME_RE = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,79}")
 _CFG = ConfigDict(frozen=True, extra="forbid")
 _CTX_ALLOW_INFINITE = "allow_infinite_coherence"
 
@@ -255,7 +257,7 @@ class DeviceProfile(BaseModel):
 
     model_config = _CFG
     schema_version: Literal[1]
-    name: str = Field(min_length=1, max_length=80, pattern=r"^[A-Za-z0-9][A-Za-z0-9._-]*$")
+    name: str
     description: str = ""
     qubit_count: StrictInt = Field(ge=1, le=MAX_QUBITS)
     links: Literal["all-to-all"] | tuple[tuple[int, int], ...]
@@ -265,6 +267,16 @@ class DeviceProfile(BaseModel):
     couplers: PairSection
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
     _source: str = PrivateAttr(default="<profile>")
+
+    @field_validator("name", mode="after")
+    @classmethod
+    def _check_name(cls, value: str) -> str:
+        if not _NAME_RE.fullmatch(value):
+            raise ValueError(
+                f"{value!r} is not a device name; allowed: 1-80 characters, letters, digits, "
+                "'.', '_' or '-', starting with a letter or digit"
+            )
+        return value
 
     @field_validator("links", mode="before")
     @classmethod
@@ -406,7 +418,7 @@ def _qubit_key_owner(p: DeviceProfile, q: int, keys: tuple[str, ...]) -> str:
     """Key path of the section that sets ``keys`` for qubit ``q`` (its override or the default)."""
     ov = p.qubits.overrides.get(q)
     if ov is not None and any(k in ov.model_fields_set for k in keys):
-        return f"qubits.overrides.{q}"
+        return f"qubits.overrides[{q}]"
     return "qubits.default"
 
 
@@ -456,7 +468,9 @@ def _check_semantics(p: DeviceProfile) -> None:
 
     for q in p.qubits.overrides:
         if not 0 <= q < n:
-            raise ProfileCheckError(f"qubits.overrides.{q}", f"qubit {q} does not exist", allowed_q)
+            raise ProfileCheckError(
+                f"qubits.overrides[{q}]", f"qubit {q} does not exist", allowed_q
+            )
 
     def check_linked_list(section: str, entries: Iterable[Any]) -> None:
         seen_pairs: dict[tuple[int, int], int] = {}
