@@ -111,10 +111,13 @@ def test_extrapolation_figure_from_records(tmp_path: Path) -> None:
         "bias_exact_mha": 0.4,
         "std_mha": 0.9,
         "details": {
-            "scales": scales,
-            "energies_ha": [EXACT_HA + 0.02 * x for x in scales],
-            "stds_ha": [4e-4] * 3,
-            "fit": {"model": "polynomial", "coefficients": [EXACT_HA + 0.0004, 0.02]},
+            "extrapolation": {
+                "fit": "linear",
+                "scales": scales,
+                "energies_ha": [EXACT_HA + 0.02 * x for x in scales],
+                "stds_ha": [4e-4] * 3,
+                "poly_coeffs_low_first": [EXACT_HA + 0.0004, 0.02],
+            }
         },
     }
     raw = {"energy_ha": EXACT_HA + 0.02, "bias_exact_mha": 20.0, "std_mha": 0.3, "details": {}}
@@ -126,6 +129,18 @@ def test_extrapolation_figure_from_records(tmp_path: Path) -> None:
     assert s.curve_energies_ha[0] == pytest.approx(EXACT_HA + 0.0004)
     # exact energy recovered from the first record: E - bias (common practice, no source)
     assert data.exact_energy_ha == pytest.approx(EXACT_HA)
+    # Richardson: the curve is the interpolating polynomial through the points
+    rich = F.extrapolation_series(
+        {
+            "details": {
+                "extrapolation": {"fit": "richardson", "scales": [1, 3], "energies_ha": [1.0, 2.0]}
+            }
+        },
+        "r",
+    )
+    assert rich is not None
+    # the line through (1, 1) and (3, 2) meets scale 0 at 0.5 (hand computation)
+    assert rich.curve_energies_ha[0] == pytest.approx(0.5)
     path = F.plot_extrapolation({"raw": raw, "zne-linear": zne}, tmp_path / "x.png")
     _check_png(path)
     text = _svg_text(F.plot_extrapolation(data, tmp_path / "x.svg"))

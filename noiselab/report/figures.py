@@ -180,55 +180,66 @@ def _recipe_name(result: Any) -> str:
 
 
 def _fit_curve(
-    details: Any, scales: Sequence[float]
+    fit: Any, scales: Sequence[float], energies_ha: Sequence[float]
 ) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    """Sample an extrapolation fit described in a recipe's details on [0, max scale]."""
+    """Sample the extrapolation fit described by ``fit`` (mitigate's details) on [0, max scale].
+
+    Knows: ``poly_coeffs_low_first`` (linear, polynomial), ``exp_a_ha``/``exp_b_ha``/``exp_k``
+    (E = a + b exp(-k c)), Richardson (the interpolating polynomial through the points), and an
+    explicit ``curve`` ([xs], [ys]).
+    """
     import numpy as np
 
-    fit = _first(details, ("fit", "extrapolation"), None)
-    src = fit if fit is not None else details
     xmax = max(scales) if scales else 1.0
-    xs = np.linspace(0.0, xmax * 1.05, 80)
-    curve = _get(src, "curve")
+    xs = np.linspace(0.0, xmax * 1.03, 90)
+    curve = _get(fit, "curve")
     if curve is not None:
         cx, cy = curve
         return tuple(map(float, cx)), tuple(map(float, cy))
-    model = str(_first(src, ("model", "kind", "method"), "polynomial")).lower()
-    coeffs = _first(src, ("coefficients", "coeffs", "fit_coefficients", "params"), None)
-    if coeffs is None:
-        return (), ()
-    c = [float(v) for v in coeffs]
-    if "exp" in model and len(c) == 3:
-        # E(x) = a + b * exp(-c x)  (coefficients a, b, c)
-        ys = c[0] + c[1] * np.exp(-c[2] * xs)
+    poly = _first(fit, ("poly_coeffs_low_first", "coefficients"), None)
+    if _get(fit, "exp_k") is not None:
+        a, b, k = (float(_get(fit, n)) for n in ("exp_a_ha", "exp_b_ha", "exp_k"))
+        ys = a + b * np.exp(-k * xs)
+    elif poly is not None:
+        ys = np.polynomial.polynomial.polyval(xs, [float(c) for c in poly])
+    elif str(_get(fit, "fit", "")).lower() == "richardson" and len(scales) >= 2:
+        # Richardson is the value at 0 of the polynomial of degree m-1 through the m points
+        coeffs = np.polynomial.polynomial.polyfit(
+            np.asarray(scales, float), np.asarray(energies_ha, float), len(scales) - 1
+        )
+        ys = np.polynomial.polynomial.polyval(xs, coeffs)
     else:
-        # polynomial, coefficients lowest order first: E(x) = sum_k c_k x^k
-        ys = np.polynomial.polynomial.polyval(xs, c)
+        return (), ()
     return tuple(map(float, xs)), tuple(map(float, ys))
 
 
 def extrapolation_series(result: Any, name: str | None = None) -> ExtrapolationSeries | None:
-    """An :class:`ExtrapolationSeries` from a RecipeResult-like record (None if no scales)."""
+    """An :class:`ExtrapolationSeries` from a RecipeResult-like record (None if it does not
+    extrapolate). Reads ``details["extrapolation"]`` (or the details themselves)."""
     if isinstance(result, ExtrapolationSeries):
         return result
     details = _get(result, "details") or {}
-    scales = _first(details, ("scales", "noise_scales", "scale_factors"), None)
-    if scales is None:
+    ext = _get(details, "extrapolation") or details
+    scales = _first(ext, ("scales", "noise_scales", "scale_factors"), None)
+    energies = _first(ext, ("energies_ha", "scale_energies_ha"), None)
+    if scales is None or energies is None:
         return None
-    energies = _first(details, ("energies_ha", "scale_energies_ha", "energy_per_scale_ha"), None)
-    stds = _first(details, ("stds_ha", "scale_stds_ha", "std_per_scale_ha"), None)
-    if energies is None:
-        return None
+    stds = _first(ext, ("stds_ha", "scale_stds_ha"), None)
     if stds is None:
-        std_mha = _first(details, ("stds_mha", "scale_stds_mha"), None)
-        stds = [s / HA_TO_MHA for s in std_mha] if std_mha is not None else [0.0] * len(scales)
-    cx, cy = _fit_curve(details, [float(s) for s in scales])
+        std_mha = _first(ext, ("stds_mha", "scale_stds_mha", "std_mha"), None)
+        if isinstance(std_mha, list | tuple):
+            stds = [float(s) / HA_TO_MHA for s in std_mha]
+        else:
+            stds = [0.0] * len(scales)
+    scales_f = [float(x) for x in scales]
+    energies_f = [float(e) for e in energies]
+    cx, cy = _fit_curve(ext, scales_f, energies_f)
     std_mha = _get(result, "std_mha")
     return ExtrapolationSeries(
         recipe=name or _recipe_name(result),
-        scales=tuple(float(s) for s in scales),
-        energies_ha=tuple(float(e) for e in energies),
-        stds_ha=tuple(float(s) for s in stds),
+        scales=tuple(scales_f),
+        energies_ha=tuple(energies_f),
+        stds_ha=tuple(float(x) for x in stds),
         estimate_ha=_get(result, "energy_ha"),
         estimate_std_ha=None if std_mha is None else float(std_mha) / HA_TO_MHA,
         curve_scales=cx,

@@ -40,6 +40,7 @@ class BudgetResult:
     rows: tuple[BudgetRow, ...]
     dominant: str  # the channel whose presence costs the most error in the first recipe
     sentence: str
+    stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:

@@ -212,6 +212,7 @@ class SweepResult:
     recipes: tuple[str, ...]
     points: tuple[SweepPoint, ...]
     crossings: tuple[RecipeCrossing, ...]
+    stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
 
     @property
     def knob_spec(self) -> Knob:
