@@ -160,9 +160,10 @@ def _context_lines(ctx: Any) -> list[str]:
 
 def _write_assess_outputs(result: Any, out: Path) -> list[Path]:
     """assess.json, assess.csv and the figures (from noiselab.report) into ``out``."""
-    from noiselab.study.assess import write_assess_outputs
+    from noiselab.report.outputs import write_assess_figures
+    from noiselab.study.assess import write_assess_data
 
-    return write_assess_outputs(result, out)
+    return [*write_assess_data(result, out), *write_assess_figures(result, out)]
 
 
 # ---------------------------------------------------------------- assess

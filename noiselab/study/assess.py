@@ -1,0 +1,132 @@
+"""The assess job: every recipe of a study at its shot budget, the best one, and the verdict.
+
+The context (exact energy, noiseless optimum, compiled circuit, plan) is built once; all recipes
+share one caching runner, so a circuit variant two recipes need is simulated once, and a
+repeated assess reads every simulation from the results cache.
+"""
+
+from __future__ import annotations
+
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+from noiselab.study.cache import CachingRunner, ResultsCache, open_cache
+from noiselab.study.context import StudyContext, build_context
+from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
+from noiselab.study.spec import Study, load_study
+
+ProgressHook = Callable[[str, int, int], None]
+
+DEMO_STUDY = "h2-equilibrium.yaml"
+
+
+def demo_study_path() -> Path:
+    """The shipped demo study (configs/studies/ of the source tree)."""
+    here = Path(__file__).resolve()
+    for root in (here.parents[2], Path.cwd()):
+        p = root / "configs" / "studies" / DEMO_STUDY
+        if p.is_file():
+            return p
+    from noiselab.common.errors import NoiselabError
+
+    raise NoiselabError(
+        f"demo: the shipped study configs/studies/{DEMO_STUDY} was not found next to the package"
+    )
+
+
+def resolve_study(study_or_path: Study | str | Path, seed: int | None, shots: int | None) -> Study:
+    """A Study from a Study or a path, with optional seed and shot overrides."""
+    study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
+    return study.with_seed(seed).with_shots(shots)
+
+
+def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCache:
+    if isinstance(cache, ResultsCache):
+        return cache
+    if cache is False:
+        return ResultsCache.disabled()
+    if cache is None or cache is True:
+        return open_cache()
+    return open_cache(cache)
+
+
+def run_recipes(
+    ctx: StudyContext,
+    recipes: dict[str, tuple[dict[str, Any], ...]],
+    runner: CachingRunner,
+    progress: ProgressHook | None = None,
+    label: str = "recipes",
+) -> dict[str, Any]:
+    """``run_recipe`` for each named recipe with the shared runner; results in study order."""
+    from noiselab.mitigate.recipe import run_recipe
+
+    out: dict[str, Any] = {}
+    total = len(recipes)
+    if progress is not None:
+        progress(label, 0, total)
+    for i, (name, passes) in enumerate(recipes.items()):
+        out[name] = run_recipe(list(passes), ctx.experiment, runner)
+        if progress is not None:
+            progress(label, i + 1, total)
+    return out
+
+
+def assess(
+    study_or_path: Study | str | Path,
+    *,
+    cache: ResultsCache | str | Path | bool | None = None,
+    seed: int | None = None,
+    shots: int | None = None,
+    progress: ProgressHook | None = None,
+    context: StudyContext | None = None,
+) -> AssessResult:
+    """Run every recipe of the study at its budget and name the best.
+
+    ``cache``: a ResultsCache, a path, None (the user cache folder) or False (no cache).
+    ``seed`` / ``shots`` override the study's. ``progress(description, done, total)`` is called
+    as steps finish. ``context`` reuses an already built context of the same study.
+    """
+    t0 = time.perf_counter()
+    study = resolve_study(study_or_path, seed, shots)
+    store = _default_cache(cache)
+    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    runner = CachingRunner(ctx.experiment, store)
+    results = run_recipes(ctx, study.recipes, runner, progress)
+    best = best_of(results)
+    reachable, verdict = verdict_line(
+        best, results[best], study.target_mha, study.confidence, study.shots
+    )
+    stats = RunStats(
+        simulations=runner.simulations,
+        cache_hits=runner.cache_hits,
+        engine_seconds=runner.engine_seconds,
+        wall_seconds=time.perf_counter() - t0,
+    )
+    return AssessResult(
+        context=ctx.summary(),
+        target_mha=study.target_mha,
+        confidence=study.confidence,
+        shots=study.shots,
+        seed=study.seed,
+        recipes=results,
+        passes=dict(study.recipes),
+        best_recipe=best,
+        reachable=reachable,
+        verdict=verdict,
+        stats=stats,
+    )
+
+
+def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
+    """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
+    import json
+
+    from noiselab.common.atomic import write_text_atomic
+
+    folder = Path(out)
+    return [
+        write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),
+        write_text_atomic(folder / "assess.csv", csv_text(result.csv_rows())),
+    ]
