@@ -1,0 +1,302 @@
+"""The tune job: rank a grid of mitigation settings by the probability of reaching the target.
+
+A setting is one choice on each axis: readout correction method, symmetry post-selection mode,
+noise amplification method, set of noise scale factors and extrapolation fit. Each becomes a
+recipe (readout, post-selection, extrapolation passes in that order). The distinct circuit
+variants of the whole grid are simulated first, in parallel through the executor when asked,
+and cached; evaluating a setting afterwards costs no further simulation.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import itertools
+import time
+from collections.abc import Callable, Sequence
+from pathlib import Path
+from typing import Any
+
+from noiselab.common.errors import InputError
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.cache import CachingRunner, ResultsCache
+from noiselab.study.context import StudyContext, build_context
+from noiselab.study.results import (
+    RunStats,
+    TuneEntry,
+    TuneResult,
+    csv_text,
+    rank_key,
+    verdict_line,
+)
+from noiselab.study.spec import Study, TuneGrid
+
+ProgressHook = Callable[[str, int, int], None]
+
+NONE = "none"
+DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
+DEFAULT_POSTSELECT = (NONE, "discard", "verify")
+DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
+DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
+DEFAULT_FIT = ("linear", "richardson")
+
+
+@dataclasses.dataclass(frozen=True)
+class GridOverride:
+    """Axes given on the command line (None: take the study's ``tune:`` section or the default)."""
+
+    readout: Sequence[str] | None = None
+    postselect: Sequence[str] | None = None
+    amplification: Sequence[str] | None = None
+    scales: Sequence[Sequence[float]] | None = None
+    fit: Sequence[str] | None = None
+
+
+@dataclasses.dataclass(frozen=True)
+class Grid:
+    """The resolved axes of a tune grid."""
+
+    readout: tuple[str, ...]
+    postselect: tuple[str, ...]
+    amplification: tuple[str, ...]
+    scales: tuple[tuple[float, ...], ...]
+    fit: tuple[str, ...]
+
+
+def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
+    """Axes from the command line, else the study's tune section, else the defaults.
+
+    Returns the grid and, per axis, where it came from (for messages: '--fit' or 'tune.fit').
+    """
+    override = override or GridOverride()
+    section = study.tune or TuneGrid()
+    defaults = {
+        "readout": DEFAULT_READOUT,
+        "postselect": DEFAULT_POSTSELECT,
+        "amplification": DEFAULT_AMPLIFICATION,
+        "scales": DEFAULT_SCALES,
+        "fit": DEFAULT_FIT,
+    }
+    values: dict[str, Any] = {}
+    origin: dict[str, str] = {}
+    for axis, default in defaults.items():
+        cli = getattr(override, axis)
+        file_value = getattr(section, axis)
+        if cli is not None:
+            values[axis], origin[axis] = cli, f"--{axis}"
+        elif file_value is not None:
+            values[axis], origin[axis] = file_value, f"{study.source}: tune.{axis}"
+        else:
+            values[axis], origin[axis] = default, f"default {axis}"
+    grid = Grid(
+        readout=tuple(dict.fromkeys(str(v) for v in values["readout"])),
+        postselect=tuple(dict.fromkeys(str(v) for v in values["postselect"])),
+        amplification=tuple(dict.fromkeys(str(v) for v in values["amplification"])),
+        scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
+        fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
+    )
+    _check_axes(grid, origin)
+    return grid, origin
+
+
+def _check_axes(grid: Grid, origin: dict[str, str]) -> None:
+    """Refuse unknown names on an axis, naming the axis and what is allowed."""
+    from noiselab.mitigate.passes.extrapolate import ExtrapolateOptions
+    from noiselab.mitigate.passes.postselect import PostselectOptions
+    from noiselab.mitigate.passes.readout import ReadoutOptions
+
+    def allowed(model: Any, field: str) -> tuple[str, ...]:
+        return tuple(model.model_fields[field].annotation.__args__)
+
+    checks = {
+        "readout": (NONE, *allowed(ReadoutOptions, "method")),
+        "postselect": (NONE, *allowed(PostselectOptions, "mode")),
+        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier")),
+        "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
+    }
+    for axis, ok in checks.items():
+        for i, value in enumerate(getattr(grid, axis)):
+            if value not in ok:
+                where = origin[axis]
+                where = f"{where}[{i}]" if "tune." in where else where
+                raise InputError(f"{where}: unknown value {value!r}; allowed: {', '.join(ok)}")
+    for i, scales in enumerate(grid.scales):
+        bad = len(scales) < 2 or any(s < 1.0 for s in scales) or len(set(scales)) != len(scales)
+        if bad:
+            raise InputError(
+                f"{origin['scales']}: scale set {i} = {list(scales)}; "
+                "allowed: at least 2 distinct factors >= 1, e.g. 1,2,3"
+            )
+
+
+@dataclasses.dataclass(frozen=True)
+class Setting:
+    """One point of the grid as options and as a recipe."""
+
+    label: str
+    options: dict[str, Any]
+    passes: tuple[dict[str, Any], ...]
+
+
+def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[Setting], list[str]]:
+    """Every valid combination of the axes, and notes on what was left out and why."""
+    from noiselab.mitigate.registry import make_pass
+
+    notes: list[str] = []
+    post_axis = grid.postselect
+    if not symmetries_available and any(p != NONE for p in post_axis):
+        notes.append("post-selection left out: the encoding keeps no symmetry to check")
+        post_axis = (NONE,)
+    settings: list[Setting] = []
+    skipped = 0
+    for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
+        zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
+        if amp == NONE:
+            zne_choices = [(None, None)]
+        else:
+            zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
+        for scales, fit in zne_choices:
+            passes: list[dict[str, Any]] = []
+            if ro != NONE:
+                passes.append({"pass": "readout", "method": ro})
+            if ps != NONE:
+                passes.append({"pass": "postselect", "mode": ps})
+            if amp != NONE:
+                passes.append(
+                    {"pass": "extrapolate", "amplifier": amp, "scales": list(scales), "fit": fit}
+                )
+            try:
+                specs = tuple(make_pass(p, where="tune").spec() for p in passes)
+            except InputError:
+                skipped += 1  # e.g. an exponential fit given only two scale factors
+                continue
+            options = {
+                "readout": ro,
+                "postselect": ps,
+                "amplification": amp,
+                "scales": list(scales) if scales is not None else [],
+                "fit": fit or NONE,
+            }
+            settings.append(Setting(_label(options), options, specs))
+    if skipped:
+        notes.append(f"{skipped} combination(s) left out: the fit needs more scale factors")
+    return settings, notes
+
+
+def _label(o: dict[str, Any]) -> str:
+    parts = [f"readout={o['readout']}", f"post={o['postselect']}"]
+    if o["amplification"] == NONE:
+        parts.append("zne=none")
+    else:
+        scales = ",".join(f"{s:g}" for s in o["scales"])
+        parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
+    return " ".join(parts)
+
+
+def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:
+    """The distinct circuit variants the settings need (combination passes declare theirs)."""
+    from noiselab.mitigate.base import STAGE_COMBINE
+    from noiselab.mitigate.registry import make_pass
+    from noiselab.mitigate.variants import CircuitVariant
+
+    out: dict[Any, None] = {}
+    for s in settings:
+        combine = [p for p in (make_pass(d) for d in s.passes) if p.stage == STAGE_COMBINE]
+        variants = combine[-1].variants(ctx.experiment) if combine else (CircuitVariant(),)
+        out.update(dict.fromkeys(variants))
+    return list(out)
+
+
+def tune(
+    study_or_path: Study | str | Path,
+    *,
+    grid: GridOverride | None = None,
+    cache: ResultsCache | str | Path | bool | None = None,
+    seed: int | None = None,
+    shots: int | None = None,
+    workers: int | None = None,
+    executor: Any = None,
+    progress: ProgressHook | None = None,
+    context: StudyContext | None = None,
+) -> TuneResult:
+    """Evaluate every setting of the grid at the study's budget and rank them.
+
+    Rank: highest probability within target first, then fewest shots needed, then label.
+    ``workers`` > 1 (or an ``executor`` from :mod:`noiselab.study.executor`) runs the distinct
+    simulations in parallel.
+    """
+    t0 = time.perf_counter()
+    study = resolve_study(study_or_path, seed, shots)
+    store = _default_cache(cache)
+    resolved, _ = resolve_grid(study, grid)
+    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    settings, notes = grid_settings(resolved, bool(getattr(ctx.qubit_problem, "symmetries", ())))
+    if not settings:
+        raise InputError(f"{study.source}: tune: the grid has no valid setting")
+    runner = CachingRunner(ctx.experiment, store)
+    variants = needed_variants(ctx, settings)
+
+    own_executor = executor is None
+    if executor is None:
+        from noiselab.study.executor import make_executor
+
+        executor = make_executor(workers)
+    try:
+
+        def sim_progress(done: int, total: int) -> None:
+            if progress is not None:
+                progress("simulating circuit variants", done, total)
+
+        runner.prefetch(variants, executor, on_done=sim_progress)
+    finally:
+        if own_executor:
+            executor.close()
+
+    from noiselab.mitigate.recipe import run_recipe
+
+    results: list[tuple[Setting, Any]] = []
+    for i, s in enumerate(settings):
+        results.append((s, run_recipe(list(s.passes), ctx.experiment, runner)))
+        if progress is not None:
+            progress("scoring settings", i + 1, len(settings))
+    results.sort(key=lambda sr: (*rank_key(sr[1]), sr[0].label))
+    entries = tuple(
+        TuneEntry(rank=i + 1, label=s.label, setting=s.options, passes=s.passes, result=r)
+        for i, (s, r) in enumerate(results)
+    )
+    best = entries[0]
+    _, verdict = verdict_line(
+        best.label, best.result, study.target_mha, study.confidence, study.shots
+    )
+    if notes:
+        verdict += " (" + "; ".join(notes) + ")"
+    stats = RunStats(
+        simulations=runner.simulations,
+        cache_hits=runner.cache_hits,
+        engine_seconds=runner.engine_seconds,
+        wall_seconds=time.perf_counter() - t0,
+        executor=getattr(executor, "description", "in-process"),
+    )
+    return TuneResult(
+        context=ctx.summary(),
+        target_mha=study.target_mha,
+        confidence=study.confidence,
+        shots=study.shots,
+        seed=study.seed,
+        entries=entries,
+        distinct_variants=len(runner.requested),
+        stats=stats,
+        verdict=verdict,
+    )
+
+
+def write_tune_outputs(result: TuneResult, out: str | Path) -> list[Path]:
+    """tune.csv (ranked, one row per setting) and tune.json into ``out`` (atomic writes)."""
+    import json
+
+    from noiselab.common.atomic import write_text_atomic
+
+    folder = Path(out)
+    return [
+        write_text_atomic(folder / "tune.csv", csv_text(result.csv_rows())),
+        write_text_atomic(folder / "tune.json", json.dumps(result.to_json(), indent=2) + "\n"),
+    ]
