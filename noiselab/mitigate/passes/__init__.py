@@ -1,0 +1,1 @@
+"""Mitigation passes, one module each; registered by name in ``noiselab.mitigate.registry``."""

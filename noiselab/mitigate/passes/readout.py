@@ -1,0 +1,190 @@
+"""Readout correction from emulated, finite-shot calibration circuits.
+
+Methods:
+
+* ``per_qubit_inverse``: two calibration circuits (all qubits in 0, all in 1) give one 2x2
+  assignment matrix per qubit (from the marginals); the measured distribution is multiplied by the
+  tensor product of their inverses (applied axis by axis, never formed).
+* ``full_inverse``: 2**n calibration circuits give the full assignment matrix over the measured
+  qubits (correlated errors and crosstalk included); refused above 10 qubits.
+* ``nearest_probability``: the per-qubit inverse, then the Euclidean projection of the
+  quasi-probabilities onto the probability simplex (Smolin, Gambetta and Smith, PRL 108, 070502
+  (2012): the nearest valid distribution, found by the sort-based algorithm).
+
+Variance: the inversions are linear in the measured distribution, so a weight vector u on the
+corrected distribution becomes A^-T u on the raw one; the calibration's own sampling noise enters
+through dA^-1 = -A^-1 dA A^-1 (first order, exact in the limit of many calibration shots). For the
+projection the delta method is used: on the support S of the projected vector the projection is
+the affine map x -> x - mean_S(x) restricted to S, so u becomes 1_S (u - mean_S(u)) before the
+inversion's pullback (valid while small perturbations do not change the support).
+"""
+
+from __future__ import annotations
+
+from typing import ClassVar, Literal
+
+import numpy as np
+from pydantic import Field
+
+from noiselab.common.errors import InputError
+from noiselab.mitigate.base import (
+    STAGE_CORRECT,
+    CorrectedDistribution,
+    MitigationPass,
+    PassOptions,
+    VariantData,
+    Workspace,
+    cal_key,
+)
+from noiselab.mitigate.estimate import SourceKey
+from noiselab.mitigate.variants import CircuitVariant
+
+MAX_FULL_QUBITS = 10
+
+
+class ReadoutOptions(PassOptions):
+    method: Literal["per_qubit_inverse", "full_inverse", "nearest_probability"] = "per_qubit_inverse"
+    calibration_shots: int | None = Field(
+        default=4000, ge=0, description="shots per calibration circuit; 0 or null: exact matrices"
+    )
+
+
+def apply_per_qubit(mats: list[np.ndarray], vec: np.ndarray) -> np.ndarray:
+    """(M_{n-1} x ... x M_0) vec, with ``mats[q]`` acting on qubit q (bit q of the index)."""
+    n = len(mats)
+    t = np.asarray(vec, dtype=float).reshape((2,) * n)
+    for q, m in enumerate(mats):
+        axis = n - 1 - q  # C order: the first axis is the most significant bit
+        t = np.moveaxis(np.tensordot(m, t, axes=([1], [axis])), 0, axis)
+    return t.reshape(-1)
+
+
+def per_qubit_matrices(p_all0: np.ndarray, p_all1: np.ndarray, n: int) -> list[np.ndarray]:
+    """2x2 assignment matrices A_q[measured, prepared] from the all-0 and all-1 calibration runs."""
+    k = np.arange(2**n)
+    mats = []
+    for q in range(n):
+        bit = (k >> q) & 1
+        e0 = float(np.dot(p_all0, bit))  # P(1 | 0)
+        e1 = float(np.dot(p_all1, 1 - bit))  # P(0 | 1)
+        mats.append(np.array([[1.0 - e0, e1], [e0, 1.0 - e1]]))
+    return mats
+
+
+def project_to_simplex(x: np.ndarray) -> np.ndarray:
+    """Euclidean projection onto {p >= 0, sum p = 1} (sort-based)."""
+    u = np.sort(x)[::-1]
+    css = np.cumsum(u) - 1.0
+    j = np.arange(1, len(x) + 1)
+    rho = int(np.nonzero(u - css / j > 0)[0][-1])
+    theta = css[rho] / (rho + 1.0)
+    return np.maximum(x - theta, 0.0)
+
+
+def _invertible(mat: np.ndarray, what: str) -> None:
+    if not np.isfinite(np.linalg.cond(mat)) or np.linalg.cond(mat) > 1e12:
+        raise InputError(f"{what}: the estimated assignment matrix is singular (readout error near 50%)")
+
+
+class ReadoutPass(MitigationPass):
+    """Readout correction with calibration estimated from its own finite-shot circuits."""
+
+    name: ClassVar[str] = "readout"
+    stage: ClassVar[int] = STAGE_CORRECT
+    Options: ClassVar[type[PassOptions]] = ReadoutOptions
+    options: ReadoutOptions
+
+    def describe(self) -> str:
+        return f"readout({self.options.method})"
+
+    def check(self, ctx, where: str) -> None:
+        n = ctx.plan.num_qubits
+        if self.options.method == "full_inverse" and n > MAX_FULL_QUBITS:
+            raise InputError(
+                f"{where}.method: full_inverse needs 2**n calibration circuits and is limited to "
+                f"{MAX_FULL_QUBITS} measured qubits (this problem has {n}); allowed: "
+                "per_qubit_inverse, nearest_probability"
+            )
+
+    def calibration_states(self, n: int) -> tuple[int, ...]:
+        if self.options.method == "full_inverse":
+            return tuple(range(2**n))
+        return (0, 2**n - 1)
+
+    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> VariantData:
+        n = ws.ctx.plan.num_qubits
+        states = self.calibration_states(n)
+        shots = self.options.calibration_shots or None
+        cal = ws.calibration(variant, states, shots)
+        keys = [cal_key(variant, s) for s in states]
+        if self.options.method == "full_inverse":
+            return {b: _full_inverse(d, cal, keys) for b, d in data.items()}
+        mats = per_qubit_matrices(cal[0], cal[1], n)
+        for q, m in enumerate(mats):
+            _invertible(m, f"readout calibration of logical qubit {q}")
+        inv = [np.linalg.inv(m) for m in mats]
+        out = {b: _per_qubit_inverse(d, inv, keys, n) for b, d in data.items()}
+        if self.options.method == "nearest_probability":
+            out = {b: _project(d) for b, d in out.items()}
+        ws.details.setdefault("readout_assignment", {})[variant.label()] = [
+            {"p1_given0": float(m[1, 0]), "p0_given1": float(m[0, 1])} for m in mats
+        ]
+        return out
+
+
+def _per_qubit_inverse(
+    d: CorrectedDistribution, inv: list[np.ndarray], keys: list[SourceKey], n: int
+) -> CorrectedDistribution:
+    q = apply_per_qubit(inv, d.probs)
+    inv_t = [m.T for m in inv]
+    qt = q.reshape((2,) * n)
+    k = np.arange(2**n)
+
+    def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
+        v = apply_per_qubit(inv_t, u)
+        out = dict(d.pullback(v))
+        vt = v.reshape((2,) * n)
+        u0 = np.zeros(2**n)
+        u1 = np.zeros(2**n)
+        for qb in range(n):
+            axis = n - 1 - qb
+            others = [a for a in range(n) if a != axis]
+            g = np.tensordot(vt, qt, axes=(others, others))  # G[a, b] = sum v[..a..] q[..b..]
+            bits = (k >> qb) & 1
+            u0 -= g[bits, 0]
+            u1 -= g[bits, 1]
+        for key, val in ((keys[0], u0), (keys[1], u1)):
+            out[key] = out[key] + val if key in out else val
+        return out
+
+    return CorrectedDistribution(q, pullback)
+
+
+def _full_inverse(
+    d: CorrectedDistribution, cal: np.ndarray, keys: list[SourceKey]
+) -> CorrectedDistribution:
+    a = np.asarray(cal, dtype=float).T  # column j: measured distribution when preparing j
+    _invertible(a, "readout calibration (full matrix)")
+    q = np.linalg.solve(a, d.probs)
+
+    def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
+        v = np.linalg.solve(a.T, u)
+        out = dict(d.pullback(v))
+        for j, key in enumerate(keys):
+            if q[j] != 0.0:
+                val = -q[j] * v
+                out[key] = out[key] + val if key in out else val
+        return out
+
+    return CorrectedDistribution(q, pullback)
+
+
+def _project(d: CorrectedDistribution) -> CorrectedDistribution:
+    p = project_to_simplex(d.probs)
+    support = p > 0
+
+    def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
+        ju = np.where(support, u - u[support].mean(), 0.0)
+        return d.pullback(ju)
+
+    return CorrectedDistribution(p, pullback)

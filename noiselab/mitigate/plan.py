@@ -1,0 +1,236 @@
+"""Measurement plan: qubit-wise commuting groups, one basis per group, weight vectors, shot allocation.
+
+Conventions (qiskit's): qubit 0 is the rightmost character of a Pauli label and the least
+significant bit of an outcome index. A basis label has one of X, Y, Z per qubit; outcome bit q is 0
+for the +1 eigenvalue of the basis Pauli on qubit q.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Iterable, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from qiskit.quantum_info import SparsePauliOp
+
+from noiselab.common.errors import InputError
+
+_IMAG_TOL = 1e-9
+
+
+@dataclass(frozen=True, eq=False)
+class MeasurementGroup:
+    """Terms measured together in one basis; ``weights[k]`` is their summed eigenvalue on outcome k (Ha)."""
+
+    basis: str
+    labels: tuple[str, ...]
+    coeffs: np.ndarray
+    weights: np.ndarray
+
+
+@dataclass(frozen=True, eq=False)
+class MeasurementPlan:
+    """A Pauli-sum observable split into a constant (Ha) and qubit-wise commuting groups."""
+
+    num_qubits: int
+    constant: float
+    groups: tuple[MeasurementGroup, ...]
+
+    @property
+    def bases(self) -> tuple[str, ...]:
+        return tuple(g.basis for g in self.groups)
+
+    @property
+    def n_groups(self) -> int:
+        return len(self.groups)
+
+    def weights(self) -> dict[str, np.ndarray]:
+        """Weight vector per basis label."""
+        return {g.basis: g.weights for g in self.groups}
+
+
+def _real_coeffs(op: SparsePauliOp, what: str) -> np.ndarray:
+    coeffs = np.asarray(op.coeffs)
+    if np.max(np.abs(coeffs.imag), initial=0.0) > _IMAG_TOL:
+        raise InputError(f"{what}: coefficients must be real (a Hermitian Pauli sum)")
+    return coeffs.real.astype(float)
+
+
+def support_mask(label: str) -> int:
+    """Bit mask of the qubits where a Pauli label is not the identity."""
+    n = len(label)
+    return sum(1 << q for q in range(n) if label[n - 1 - q] != "I")
+
+
+def parity_signs(masks: Sequence[int] | np.ndarray, num_qubits: int) -> np.ndarray:
+    """Array (n_masks, 2**n) of (-1)**popcount(k & mask): eigenvalues of Z-strings on outcomes k."""
+    k = np.arange(2**num_qubits, dtype=np.uint64)
+    m = np.asarray(masks, dtype=np.uint64).reshape(-1, 1)
+    parity = np.bitwise_count(k[None, :] & m) & 1
+    return 1.0 - 2.0 * parity.astype(float)
+
+
+def weight_vector(labels: Sequence[str], coeffs: np.ndarray, num_qubits: int) -> np.ndarray:
+    """w[k] = sum_t c_t (-1)**(parity of the bits of k on term t's support)."""
+    if len(labels) == 0:
+        return np.zeros(2**num_qubits)
+    masks = [support_mask(lab) for lab in labels]
+    return np.asarray(coeffs, dtype=float) @ parity_signs(masks, num_qubits)
+
+
+def basis_of(labels: Iterable[str], num_qubits: int) -> str:
+    """Measurement basis of qubit-wise commuting labels: their letter per qubit, Z where all are I."""
+    chars = ["Z"] * num_qubits
+    for lab in labels:
+        for i, ch in enumerate(lab):
+            if ch != "I":
+                if chars[i] != "Z" and chars[i] != ch:
+                    raise ValueError(f"labels do not commute qubit-wise at position {i}")
+                chars[i] = ch
+    return "".join(chars)
+
+
+def measurable_in(label: str, basis: str) -> bool:
+    """True when a Pauli label's eigenvalue is read off a measurement in ``basis``."""
+    return all(a == "I" or a == b for a, b in zip(label, basis, strict=True))
+
+
+def _split_constant(op: SparsePauliOp, what: str) -> tuple[float, SparsePauliOp | None]:
+    op = op.simplify(atol=1e-14)
+    labels = op.paulis.to_labels()
+    coeffs = _real_coeffs(op, what)
+    n = op.num_qubits
+    ident = "I" * n
+    constant = float(sum(c for lab, c in zip(labels, coeffs, strict=True) if lab == ident))
+    keep = [i for i, lab in enumerate(labels) if lab != ident]
+    if not keep:
+        return constant, None
+    return constant, SparsePauliOp([labels[i] for i in keep], coeffs[keep])
+
+
+def _groups_from(op: SparsePauliOp) -> list[MeasurementGroup]:
+    n = op.num_qubits
+    groups = []
+    for part in op.group_commuting(qubit_wise=True):
+        labels = tuple(part.paulis.to_labels())
+        coeffs = part.coeffs.real.astype(float)
+        groups.append(
+            MeasurementGroup(
+                basis=basis_of(labels, n),
+                labels=labels,
+                coeffs=coeffs,
+                weights=weight_vector(labels, coeffs, n),
+            )
+        )
+    # deterministic order, independent of the colouring's order
+    groups.sort(key=lambda g: g.basis)
+    merged: dict[str, MeasurementGroup] = {}
+    for g in groups:
+        if g.basis in merged:  # two colour classes may share a basis; measure them once
+            h = merged[g.basis]
+            labels = h.labels + g.labels
+            coeffs = np.concatenate([h.coeffs, g.coeffs])
+            merged[g.basis] = MeasurementGroup(g.basis, labels, coeffs, h.weights + g.weights)
+        else:
+            merged[g.basis] = g
+    return list(merged.values())
+
+
+def build_plan(op: SparsePauliOp, what: str = "hamiltonian") -> MeasurementPlan:
+    """Measurement plan of a Hermitian Pauli sum (coefficients in Ha)."""
+    constant, rest = _split_constant(op, what)
+    groups = _groups_from(rest) if rest is not None else []
+    return MeasurementPlan(num_qubits=op.num_qubits, constant=constant, groups=tuple(groups))
+
+
+def assign_to_bases(
+    op: SparsePauliOp, bases: Sequence[str], what: str = "operator"
+) -> tuple[float, dict[str, np.ndarray], tuple[str, ...]]:
+    """Spread the terms of ``op`` over existing ``bases``; group the rest into new bases.
+
+    Returns the constant, a weight vector per basis that receives terms (existing or new), and the
+    new basis labels (in a deterministic order). Each term goes to the first compatible basis.
+    """
+    n = op.num_qubits
+    constant, rest = _split_constant(op, what)
+    weights: dict[str, np.ndarray] = {}
+    if rest is None:
+        return constant, weights, ()
+    per_basis: dict[str, tuple[list[str], list[float]]] = {}
+    left_labels: list[str] = []
+    left_coeffs: list[float] = []
+    for lab, c in zip(rest.paulis.to_labels(), rest.coeffs.real, strict=True):
+        for b in bases:
+            if measurable_in(lab, b):
+                per_basis.setdefault(b, ([], []))
+                per_basis[b][0].append(lab)
+                per_basis[b][1].append(float(c))
+                break
+        else:
+            left_labels.append(lab)
+            left_coeffs.append(float(c))
+    for b, (labs, cs) in per_basis.items():
+        weights[b] = weight_vector(labs, np.array(cs), n)
+    new: list[str] = []
+    if left_labels:
+        for g in _groups_from(SparsePauliOp(left_labels, np.array(left_coeffs))):
+            weights[g.basis] = weights.get(g.basis, 0.0) + g.weights
+            new.append(g.basis)
+    return constant, weights, tuple(new)
+
+
+def largest_remainder(shares: np.ndarray, total: int, minimum: int = 1) -> np.ndarray:
+    """Integers >= ``minimum`` summing to ``total``, close to ``total * shares / sum(shares)``."""
+    shares = np.asarray(shares, dtype=float)
+    m = len(shares)
+    if m == 0:
+        return np.zeros(0, dtype=int)
+    if total < minimum * m:
+        raise InputError(
+            f"shots: a budget of {total} shots cannot give {minimum} shot(s) to each of {m} "
+            f"circuits; allowed: at least {minimum * m}"
+        )
+    shares = np.where(np.isfinite(shares) & (shares > 0), shares, 0.0)
+    if shares.sum() <= 0:
+        shares = np.ones(m)
+    free = total - minimum * m
+    ideal = free * shares / shares.sum()
+    base = np.floor(ideal).astype(int)
+    remainder = free - int(base.sum())
+    order = np.argsort(-(ideal - base), kind="stable")
+    base[order[:remainder]] += 1
+    return base + minimum
+
+
+def allocate_shots(
+    sigmas: Sequence[float] | np.ndarray, total: int, rule: str = "by_deviation"
+) -> np.ndarray:
+    """Integer shots per group summing to ``total`` (at least one each).
+
+    ``"uniform"``: equal shares. ``"by_deviation"``: N_g proportional to the single-shot standard
+    deviation sigma_g, which minimizes sum_g sigma_g**2 / N_g at fixed sum N_g (Lagrange
+    multipliers; Wecker, Hastings and Troyer, PRA 92, 042303 (2015)).
+    """
+    sig = np.asarray(sigmas, dtype=float)
+    if rule == "uniform":
+        return largest_remainder(np.ones(len(sig)), total)
+    if rule == "by_deviation":
+        return largest_remainder(sig, total)
+    raise InputError(f"allocation: unknown rule {rule!r}; allowed: uniform, by_deviation")
+
+
+def split_across_circuits(
+    gammas: Sequence[float], sigmas: Sequence[float], total: int, rule: str = "equal"
+) -> np.ndarray:
+    """Shots per circuit for a linear combination sum_i gamma_i E_i with single-shot stds sigma_i.
+
+    ``"equal"``: the same share each. ``"weighted"``: N_i proportional to |gamma_i| sigma_i, the
+    minimizer of sum_i gamma_i**2 sigma_i**2 / N_i at fixed sum N_i.
+    """
+    g = np.abs(np.asarray(gammas, dtype=float))
+    s = np.asarray(sigmas, dtype=float)
+    if rule == "equal":
+        return largest_remainder(np.ones(len(g)), total)
+    if rule == "weighted":
+        return largest_remainder(g * s, total)
+    raise InputError(f"shot_split: unknown rule {rule!r}; allowed: equal, weighted")

@@ -1,0 +1,644 @@
+"""Recipes: ordered mitigation passes applied to emulated measurement data, scored against exact
+energies with bias and shot noise kept apart.
+
+``run_recipe(recipe, ctx, runner)`` asks ``runner(variant)`` for the measured distributions of
+each circuit variant its passes need, applies the correction passes per variant and basis, the
+estimator pass per variant and the combination pass across variants, allocates the shot budget,
+and returns a :class:`RecipeResult`. ``sampled=False`` (default): exact distributions, analytic
+standard error. ``sampled=True``: multinomial counts are drawn from ``rng`` and pushed through
+the same code (the spread of such estimates is the analytic standard error).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import functools
+import hashlib
+import json
+import math
+import zlib
+from collections.abc import Callable, Mapping, Sequence
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+import numpy as np
+from pydantic import BaseModel, ConfigDict, Field
+
+from noiselab.common.errors import InputError, NoiselabError
+from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.mitigate.base import (
+    STAGE_COMBINE,
+    STAGE_CORRECT,
+    STAGE_ESTIMATE,
+    STAGE_NAMES,
+    MitigationPass,
+    VariantData,
+    Workspace,
+    cal_key,
+    meas_key,
+    plan_estimate,
+    raw_distribution,
+)
+from noiselab.mitigate.estimate import (
+    Estimate,
+    estimate_variance,
+    sample_distribution,
+    single_shot_variance,
+)
+from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
+from noiselab.mitigate.target import assess_target
+from noiselab.mitigate.variants import CircuitVariant
+
+Runner = Callable[[CircuitVariant], Any]  # -> BasisDistributions over ctx.measured_bases
+Calibrator = Callable[[CircuitVariant, tuple[int, ...]], np.ndarray]
+Allocation = Literal["uniform", "by_deviation"]
+
+
+# ---- context ----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class ExperimentContext:
+    """Everything fixed across the recipes of one experiment.
+
+    ``compiled``: the CompiledCircuit bound at the optimized parameters; ``shots``: the
+    measurement budget of one energy estimate, all circuits and noise scales together;
+    ``allocation``: how a circuit's shots are split over its bases ("uniform", or
+    "by_deviation": proportional to each basis' single-shot standard deviation, computed from the
+    exact emulated distributions, i.e. the allocation a good pilot run would give).
+    ``emulation_method``: passed to ``emulate_bases``.
+    """
+
+    problem: Any
+    compiled: Any
+    profile: Any
+    plan: MeasurementPlan
+    exact_energy_ha: float
+    ansatz_energy_ha: float
+    shots: int
+    target_mha: float = CHEMICAL_ACCURACY_MHA
+    confidence: float = 0.95
+    seed: int = 0
+    allocation: Allocation = "by_deviation"
+    emulation_method: str = "auto"
+
+    def __post_init__(self) -> None:
+        if int(self.shots) < 1:
+            raise InputError(f"shots: {self.shots}; allowed: a positive integer")
+        if not 0.0 < float(self.confidence) < 1.0:
+            raise InputError(f"confidence: {self.confidence}; allowed: strictly between 0 and 1")
+        if not float(self.target_mha) > 0.0:
+            raise InputError(f"target_mha: {self.target_mha}; allowed: a positive number (mHa)")
+        if self.allocation not in ("uniform", "by_deviation"):
+            raise InputError(f"allocation: {self.allocation!r}; allowed: uniform, by_deviation")
+
+    @functools.cached_property
+    def measured_bases(self) -> tuple[str, ...]:
+        """Every basis the runner measures: the plan's, then the extra ones symmetry
+        verification needs (for any subset of the symmetries), so that all recipes share the
+        same simulations."""
+        from noiselab.mitigate.passes.postselect import verification_bases
+
+        extra = verification_bases(self.plan, self.problem) if _has_symmetries(self.problem) else ()
+        return tuple(self.plan.bases) + tuple(b for b in extra if b not in self.plan.bases)
+
+
+def _has_symmetries(problem: Any) -> bool:
+    return bool(getattr(problem, "symmetries", None))
+
+
+def build_context(
+    problem: Any,
+    compiled: Any,
+    profile: Any,
+    *,
+    ansatz_energy_ha: float,
+    shots: int,
+    **kwargs: Any,
+) -> ExperimentContext:
+    """Context with the measurement plan of ``problem.hamiltonian`` (other fields as keywords)."""
+    return ExperimentContext(
+        problem=problem,
+        compiled=compiled,
+        profile=profile,
+        plan=build_plan(problem.hamiltonian),
+        exact_energy_ha=float(problem.exact_energy_ha),
+        ansatz_energy_ha=float(ansatz_energy_ha),
+        shots=int(shots),
+        **kwargs,
+    )
+
+
+# ---- circuit variants: folded / scaled inputs, runner, cache keys -----------------------------
+
+
+def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tuple[Any, float]:
+    """(CompiledCircuit folded in native gates and re-scheduled, scale actually reached).
+
+    Re-scheduling transpiles at optimization level 0 on the patch's target with the trivial
+    layout (nothing is optimized away, idle delays recomputed); the two-qubit count is checked.
+    """
+    from qiskit import transpile
+
+    from noiselab.device.compile import (
+        build_target,
+        circuit_duration_ns,
+        estimate_fidelity,
+    )
+    from noiselab.mitigate.folding import fold_circuit
+
+    res = fold_circuit(compiled.circuit, method, scale)
+    target = build_target(profile, compiled.patch)
+    k = compiled.circuit.num_qubits
+    out = transpile(
+        res.circuit,
+        target=target,
+        initial_layout=list(range(k)),
+        optimization_level=0,
+        scheduling_method="alap",
+        seed_transpiler=0,
+    )
+    n2 = int(out.count_ops().get(profile.two_qubit_gate, 0))
+    if n2 != res.n_two_qubit:
+        raise NoiselabError(
+            f"folding: re-scheduling changed the two-qubit count ({n2}, expected {res.n_two_qubit})"
+        )
+    depth = int(out.depth(filter_function=lambda i: i.operation.name not in ("delay", "barrier")))
+    folded = dataclasses.replace(
+        compiled,
+        circuit=out,
+        two_qubit_count=n2,
+        depth=depth,
+        duration_ns=circuit_duration_ns(out, profile),
+        estimated_fidelity=estimate_fidelity(out, profile, compiled.patch),
+    )
+    scale_reached = res.actual_scale
+    return folded, scale_reached
+
+
+@functools.lru_cache(maxsize=256)
+def variant_inputs(ctx: ExperimentContext, variant: CircuitVariant) -> tuple[Any, Any, float]:
+    """(CompiledCircuit, DeviceProfile, scale factor reached) that simulate ``variant``."""
+    profile = ctx.profile
+    if variant.noise_scale != 1.0:
+        from noiselab.device.profile import scale_profile
+
+        profile = scale_profile(ctx.profile, variant.noise_scale, variant.scaled_channels)
+    compiled = ctx.compiled
+    scale = variant.noise_scale
+    if variant.fold_method != "none":
+        if compiled is None:  # synthetic contexts (tests): nominal scale
+            return compiled, profile, scale * variant.fold_scale
+        compiled, reached = fold_compiled(compiled, profile, variant.fold_method, variant.fold_scale)
+        scale *= reached
+    return compiled, profile, scale
+
+
+def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
+    """Noise scale factor of a variant as reached (folded gate counts are integers)."""
+    if variant.fold_method == "none":
+        return variant.noise_scale
+    return variant_inputs(ctx, variant)[2]
+
+
+def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:
+    """JSON-serializable description of everything that determines ``runner(variant)``.
+
+    Hash ``json.dumps(material, sort_keys=True)`` for a cache key. The circuit enters as the
+    SHA-256 of its QPY serialization (exact parameters), with its QASM3 text hash as a backup.
+    """
+    import io
+
+    from qiskit import qpy
+
+    compiled, profile, _ = variant_inputs(ctx, variant)
+    buf = io.BytesIO()
+    qpy.dump(compiled.circuit, buf)
+    return {
+        "variant": variant.as_dict(),
+        "circuit_qpy_sha256": hashlib.sha256(buf.getvalue()).hexdigest(),
+        "patch": list(compiled.patch),
+        "logical_to_circuit": list(compiled.logical_to_circuit),
+        "profile": json.loads(profile.model_dump_json()),
+        "bases": list(ctx.measured_bases),
+        "method": ctx.emulation_method,
+        "seed": ctx.seed,
+    }
+
+
+def make_runner(ctx: ExperimentContext) -> Runner:
+    """Default runner: emulate_bases over ``ctx.measured_bases``, memoized in-process by variant."""
+    memo: dict[CircuitVariant, Any] = {}
+
+    def runner(variant: CircuitVariant) -> Any:
+        if variant not in memo:
+            from noiselab.emulate.engine import emulate_bases
+
+            compiled, profile, _ = variant_inputs(ctx, variant)
+            memo[variant] = emulate_bases(
+                compiled,
+                profile,
+                list(ctx.measured_bases),
+                method=ctx.emulation_method,
+                seed=ctx.seed,
+            )
+        return memo[variant]
+
+    return runner
+
+
+def make_calibrator(ctx: ExperimentContext) -> Calibrator:
+    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
+    memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
+
+    def calibrator(variant: CircuitVariant, states: tuple[int, ...]) -> np.ndarray:
+        key = (variant, tuple(states))
+        if key not in memo:
+            from noiselab.emulate.readout import calibration_distributions
+
+            _, profile, _ = variant_inputs(ctx, variant)
+            cal = calibration_distributions(
+                profile,
+                ctx.compiled.patch,
+                list(states),
+                measured=list(ctx.compiled.logical_to_circuit),
+            )
+            memo[key] = np.asarray(cal.probs, dtype=float)
+        return memo[key]
+
+    return calibrator
+
+
+# ---- recipe specification ---------------------------------------------------------------------
+
+
+class RecipeSpec(BaseModel):
+    """A named recipe: ordered pass entries ``{"pass": name, **options}``."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    name: str | None = None
+    passes: tuple[dict[str, Any], ...] = Field(default_factory=tuple)
+
+
+@dataclass(frozen=True, eq=False)
+class ParsedRecipe:
+    name: str
+    passes: tuple[MitigationPass, ...]
+
+    def spec(self) -> list[dict[str, Any]]:
+        return [p.spec() for p in self.passes]
+
+    def of_stage(self, stage: int) -> MitigationPass | None:
+        found = [p for p in self.passes if p.stage == stage]
+        return found[0] if found else None
+
+
+def parse_recipe(recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = "recipe") -> ParsedRecipe:
+    """Validate a recipe; InputError naming ``recipe[i].<option>`` on the first problem.
+
+    Order: correction passes (readout), then at most one estimator (postselect), then at most
+    one combination (extrapolate); each pass at most once.
+    """
+    from noiselab.mitigate.registry import make_pass
+
+    name = None
+    if isinstance(recipe, RecipeSpec):
+        name, entries = recipe.name, list(recipe.passes)
+    elif isinstance(recipe, Mapping):
+        raise InputError(f"{where}: expected a list of passes, got a mapping; allowed: a list of {{pass: ...}}")
+    else:
+        entries = list(recipe)
+    passes = []
+    last_stage = -1
+    seen: set[str] = set()
+    for i, entry in enumerate(entries):
+        p = make_pass(entry, f"{where}[{i}]")
+        if p.name in seen:
+            raise InputError(f"{where}[{i}].pass: {p.name!r} appears twice; allowed: each pass once")
+        if p.stage < last_stage:
+            raise InputError(
+                f"{where}[{i}].pass: {p.name!r} ({STAGE_NAMES[p.stage]}) must come before the "
+                f"{STAGE_NAMES[last_stage]} pass; allowed order: readout, postselect, extrapolate"
+            )
+        if p.stage == last_stage and p.stage != STAGE_CORRECT:
+            raise InputError(
+                f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe"
+            )
+        last_stage = p.stage
+        seen.add(p.name)
+        passes.append(p)
+    if not name:
+        name = "+".join(p.describe() for p in passes) or "raw"
+    return ParsedRecipe(name=name, passes=tuple(passes))
+
+
+# ---- result -----------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class RecipeResult:
+    """Outcome of one recipe on one experiment (energies in Ha, biases and stds in mHa).
+
+    ``bias_*_mha``: energy - reference (signed). ``std_mha``: standard error at the budget
+    (measurement shots and calibration shots). ``shots_total``: the measurement budget (the
+    calibration circuits' shots are in ``details["calibration_shots_total"]``).
+    ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
+    (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
+    ``p_within_target >= confidence`` (None when the bias prevents it).
+    """
+
+    recipe: str
+    spec: tuple[dict[str, Any], ...]
+    energy_ha: float
+    bias_exact_mha: float
+    bias_ansatz_mha: float
+    std_mha: float
+    shots_total: int
+    shots_per_circuit: dict[str, int]
+    n_circuits: int
+    engine_seconds: float
+    p_within_target: float
+    shots_needed: int | None
+    limited_by: Literal["bias", "shots", "none"]
+    details: dict[str, Any] = field(default_factory=dict)
+    sampled: bool = False
+
+    def to_dict(self) -> dict[str, Any]:
+        return _jsonable(dataclasses.asdict(self))
+
+
+def _jsonable(x: Any) -> Any:
+    if isinstance(x, dict):
+        return {str(k): _jsonable(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [_jsonable(v) for v in x]
+    if isinstance(x, np.ndarray):
+        return _jsonable(x.tolist())
+    if isinstance(x, np.integer):
+        return int(x)
+    if isinstance(x, np.floating | float):
+        v = float(x)
+        return v if math.isfinite(v) else None
+    return x
+
+
+# ---- evaluation -------------------------------------------------------------------------------
+
+
+def _row(dist: Any, basis: str) -> np.ndarray:
+    return np.asarray(dist.probs[dist.bases.index(basis)], dtype=float)
+
+
+class _CalibrationSource:
+    """Calibration distributions for one evaluation: exact, seeded-sampled or rng-sampled."""
+
+    def __init__(self, ctx: ExperimentContext, calibrator: Calibrator, mode: str, rng: Any) -> None:
+        self.ctx = ctx
+        self.calibrator = calibrator
+        self.mode = mode  # "exact" | "seeded" | "rng"
+        self.rng = rng
+        self.exact: dict[Any, np.ndarray] = {}
+        self.used: dict[Any, np.ndarray] = {}
+        self.shots: dict[Any, int | None] = {}
+
+    def __call__(self, variant: CircuitVariant, states: tuple[int, ...], shots: int | None) -> np.ndarray:
+        cal_v = variant.calibration_variant()
+        exact = np.asarray(self.calibrator(cal_v, tuple(states)), dtype=float)
+        out = np.empty_like(exact)
+        for i, s in enumerate(states):
+            key = cal_key(variant, s)
+            if key not in self.used:
+                self.exact[key] = exact[i]
+                self.shots[key] = shots
+                if shots is None or self.mode == "exact":
+                    self.used[key] = exact[i]
+                else:
+                    rng = self.rng
+                    if self.mode == "seeded":
+                        tag = zlib.crc32(f"{cal_v.label()}|{s}|{shots}".encode())
+                        rng = np.random.default_rng([int(self.ctx.seed), 0xCA1B, tag])
+                    self.used[key] = sample_distribution(exact[i], shots, rng)
+            out[i] = self.used[key]
+        return out
+
+
+@dataclass(eq=False)
+class _Evaluation:
+    estimate: Estimate
+    per_variant: dict[CircuitVariant, Estimate]
+    details: dict[str, Any]
+    cal: _CalibrationSource
+
+
+def _evaluate(
+    parsed: ParsedRecipe,
+    ctx: ExperimentContext,
+    variants: tuple[CircuitVariant, ...],
+    bases: tuple[str, ...],
+    measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]],
+    cal: _CalibrationSource,
+) -> _Evaluation:
+    ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
+    corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
+    estimator = parsed.of_stage(STAGE_ESTIMATE)
+    combiner = parsed.of_stage(STAGE_COMBINE)
+    per_variant: dict[CircuitVariant, Estimate] = {}
+    for v in variants:
+        data: VariantData = {b: raw_distribution(meas_key(v, b), measured[v][b]) for b in bases}
+        for p in corrects:
+            data = p.correct(v, data, ws)
+        per_variant[v] = estimator.estimate(v, data, ws) if estimator else plan_estimate(ctx, data)
+    if combiner is not None:
+        est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
+    else:
+        est = per_variant[variants[0]]
+    return _Evaluation(est, per_variant, ws.details, cal)
+
+
+def _allocate(
+    ctx: ExperimentContext,
+    est: Estimate,
+    measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]],
+    variants: tuple[CircuitVariant, ...],
+    bases: tuple[str, ...],
+    split: str,
+) -> dict[Any, int]:
+    """Integer shots per (variant, basis) source, summing to ctx.shots."""
+    zeros = np.zeros(2**ctx.plan.num_qubits)
+    within: list[np.ndarray] = []
+    cost: list[float] = []
+    for v in variants:
+        var = np.array(
+            [single_shot_variance(measured[v][b], est.influence.get(meas_key(v, b), zeros)) for b in bases]
+        )
+        sd = np.sqrt(var)
+        if ctx.allocation == "uniform" or sd.sum() <= 0:
+            within.append(np.full(len(bases), 1.0 / len(bases)))
+            cost.append(len(bases) * float(var.sum()))
+        else:
+            within.append(sd / sd.sum())
+            cost.append(float(sd.sum()) ** 2)
+    k = len(variants)
+    if split == "weighted" and sum(cost) > 0:
+        frac = np.sqrt(np.array(cost))
+        frac = frac / frac.sum()
+    else:
+        frac = np.full(k, 1.0 / k)
+    shares = np.concatenate([frac[i] * within[i] for i in range(k)])
+    counts = largest_remainder(shares, int(ctx.shots))
+    keys = [meas_key(v, b) for v in variants for b in bases]
+    return dict(zip(keys, (int(c) for c in counts), strict=True))
+
+
+def _split_variance(
+    est: Estimate, probs: Mapping[Any, np.ndarray], shots: Mapping[Any, int | None]
+) -> tuple[float, float]:
+    """(measurement variance, calibration variance) at the given shots (Ha**2)."""
+    meas = {k: v for k, v in est.influence.items() if k[0] == "meas"}
+    calib = {k: v for k, v in est.influence.items() if k[0] == "cal"}
+    return (
+        estimate_variance(Estimate(0.0, meas), probs, shots),
+        estimate_variance(Estimate(0.0, calib), probs, shots),
+    )
+
+
+def run_recipe(
+    recipe: Sequence[Mapping[str, Any]] | RecipeSpec,
+    ctx: ExperimentContext,
+    runner: Runner,
+    *,
+    sampled: bool = False,
+    rng: np.random.Generator | None = None,
+    calibrator: Calibrator | None = None,
+) -> RecipeResult:
+    """Apply a recipe to the runner's data and score it (see the module docstring).
+
+    ``calibrator(variant, states)``: exact readout-calibration distributions; default
+    :func:`make_calibrator` (emulate's calibration circuits on ``ctx.profile``).
+    """
+    parsed = parse_recipe(recipe)
+    for i, p in enumerate(parsed.passes):
+        p.check(ctx, f"recipe[{i}]")
+    estimator = parsed.of_stage(STAGE_ESTIMATE)
+    combiner = parsed.of_stage(STAGE_COMBINE)
+    variants = combiner.variants(ctx) if combiner else (CircuitVariant(),)
+    bases = tuple(estimator.bases(ctx) if estimator else ctx.plan.bases)
+    calibrator = calibrator or make_calibrator(ctx)
+
+    dists = {v: runner(v) for v in variants}
+    for v, d in dists.items():
+        missing = [b for b in bases if b not in d.bases]
+        if missing:
+            raise NoiselabError(f"runner: variant {v.label()} lacks bases {', '.join(missing)}")
+    exact_meas = {v: {b: _row(dists[v], b) for b in bases} for v in variants}
+
+    # phase 1: exact distributions everywhere -> influences, allocation, analytic variance
+    ev1 = _evaluate(parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "exact", None))
+    split = getattr(combiner.options, "shot_split", "equal") if combiner else "equal"
+    shots = _allocate(ctx, ev1.estimate, exact_meas, variants, bases, split)
+    all_shots: dict[Any, int | None] = {**shots, **ev1.cal.shots}
+    exact_probs: dict[Any, np.ndarray] = {meas_key(v, b): exact_meas[v][b] for v in variants for b in bases}
+    exact_probs.update(ev1.cal.exact)
+    var_meas, var_cal = _split_variance(ev1.estimate, exact_probs, all_shots)
+
+    cal_finite = any(n is not None for n in ev1.cal.shots.values())
+    if not sampled:
+        if cal_finite:
+            ev = _evaluate(parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "seeded", None))
+        else:
+            ev = ev1
+        probs_for_std = exact_probs
+        est_for_std = ev1.estimate
+        per_variant_std = ev1.per_variant
+    else:
+        rng = rng if rng is not None else np.random.default_rng(ctx.seed)
+        sampled_meas = {
+            v: {b: sample_distribution(exact_meas[v][b], shots[meas_key(v, b)], rng) for b in bases}
+            for v in variants
+        }
+        ev = _evaluate(parsed, ctx, variants, bases, sampled_meas, _CalibrationSource(ctx, calibrator, "rng", rng))
+        probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
+        probs_for_std.update(ev.cal.used)
+        est_for_std = ev.estimate
+        per_variant_std = ev.per_variant
+        var_meas, var_cal = _split_variance(est_for_std, probs_for_std, all_shots)
+
+    energy = float(ev.estimate.value)
+    std_ha = math.sqrt(var_meas + var_cal)
+    bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
+    bias_ansatz = (energy - ctx.ansatz_energy_ha) * HA_TO_MHA
+    mha2 = HA_TO_MHA**2
+    verdict = assess_target(
+        bias_exact,
+        var_meas * ctx.shots * mha2,
+        var_cal * mha2,
+        int(ctx.shots),
+        ctx.target_mha,
+        ctx.confidence,
+    )
+
+    details = dict(ev.details)
+    per = {}
+    for v in variants:
+        e_v = per_variant_std[v]
+        per[v.label()] = {
+            "energy_ha": float(ev.per_variant[v].value),
+            "std_mha": math.sqrt(estimate_variance(e_v, probs_for_std, all_shots)) * HA_TO_MHA,
+            "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
+            "scale": float(actual_scale(ctx, v)),
+            "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
+            "two_qubit_count": _two_qubit_count(ctx, v),
+        }
+    details["variants"] = per
+    details["bases"] = list(bases)
+    details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
+    details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
+    cal_total = int(sum(n for n in ev1.cal.shots.values() if n is not None))
+    details["calibration_shots_total"] = cal_total
+    details["calibration_circuits"] = len(ev1.cal.shots)
+    if verdict.note:
+        details["limited_by_note"] = verdict.note
+    if "acceptance" in details:
+        kept = 0.0
+        for v in variants:
+            acc = details["acceptance"].get(v.label(), {})
+            kept += sum(shots[meas_key(v, b)] * acc.get(b, 1.0) for b in bases)
+        details["effective_shots"] = kept
+        accepted_bases = [
+            (shots[meas_key(v, b)], a)
+            for v in variants
+            for b, a in details["acceptance"].get(v.label(), {}).items()
+        ]
+        n_sel = sum(n for n, _ in accepted_bases)
+        details["acceptance_rate"] = (
+            sum(n * a for n, a in accepted_bases) / n_sel if n_sel else 1.0
+        )
+    extra = [b for b in bases if b not in ctx.plan.bases]
+    if extra:
+        details["extra_bases"] = extra
+        details["extra_basis_shots"] = int(sum(shots[meas_key(v, b)] for v in variants for b in extra))
+
+    return RecipeResult(
+        recipe=parsed.name,
+        spec=tuple(parsed.spec()),
+        energy_ha=energy,
+        bias_exact_mha=bias_exact,
+        bias_ansatz_mha=bias_ansatz,
+        std_mha=std_ha * HA_TO_MHA,
+        shots_total=int(ctx.shots),
+        shots_per_circuit={f"{k[1].label()}|{k[2]}": int(n) for k, n in shots.items()},
+        n_circuits=len(shots) + len(ev1.cal.shots),
+        engine_seconds=float(sum(getattr(d, "engine_seconds", 0.0) for d in dists.values())),
+        p_within_target=verdict.p_within_target,
+        shots_needed=verdict.shots_needed,
+        limited_by=verdict.limited_by,
+        details=_jsonable(details),
+        sampled=bool(sampled),
+    )
+
+
+def _two_qubit_count(ctx: ExperimentContext, variant: CircuitVariant) -> int | None:
+    if ctx.compiled is None:
+        return None
+    compiled = variant_inputs(ctx, variant)[0]
+    return int(getattr(compiled, "two_qubit_count", 0))

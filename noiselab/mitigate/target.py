@@ -1,0 +1,84 @@
+"""Probability of landing within the target, and the shots needed to reach a confidence.
+
+An experiment's estimate is modelled as bias b plus Gaussian noise of standard deviation s:
+P(|E - E_exact| < t) = Phi((t - b)/s) - Phi((-t - b)/s). With a measurement budget of N shots,
+s(N)**2 = A / N + C: A the single-shot-normalized measurement variance (the allocation's
+proportions held fixed as N changes) and C the variance that does not shrink with N (readout
+calibration with its own fixed shot count).
+
+``limited_by``: "bias" when no measurement budget reaches the confidence (|b| >= t, or the bias
+with the fixed calibration noise C alone keeps the probability below it); "shots" when the
+confidence needs more shots than the budget; "none" when the budget suffices.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+from typing import Literal
+
+LimitedBy = Literal["bias", "shots", "none"]
+MAX_SHOTS = 10**15
+
+
+def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
+    """Phi((t - b)/s) - Phi((-t - b)/s); a step function when s = 0."""
+    from scipy.stats import norm
+
+    b, s, t = float(bias_mha), float(std_mha), float(target_mha)
+    if not math.isfinite(b) or not math.isfinite(s):
+        return 0.0
+    if s <= 0.0:
+        return 1.0 if abs(b) < t else 0.0
+    return float(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
+
+
+@dataclass(frozen=True)
+class TargetAssessment:
+    """Probability at the budget, shots needed (None when unreachable) and what limits."""
+
+    p_within_target: float
+    shots_needed: int | None
+    limited_by: LimitedBy
+    note: str
+
+
+def assess_target(
+    bias_mha: float,
+    var_per_shot_mha2: float,
+    var_fixed_mha2: float,
+    budget: int,
+    target_mha: float,
+    confidence: float,
+) -> TargetAssessment:
+    """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N)."""
+    from scipy.optimize import brentq
+
+    b, t = float(bias_mha), float(target_mha)
+    a, c = max(float(var_per_shot_mha2), 0.0), max(float(var_fixed_mha2), 0.0)
+
+    def p_at(n: float) -> float:
+        return p_within(b, math.sqrt(a / n + c), t)
+
+    p_budget = p_at(budget)
+    if abs(b) >= t:
+        return TargetAssessment(p_budget, None, "bias", "|bias| >= target")
+    p_inf = p_within(b, math.sqrt(c), t)
+    if p_inf < confidence:
+        note = "bias with the fixed calibration noise" if c > 0 else "bias"
+        return TargetAssessment(p_budget, None, "bias", f"{note} keeps P below the confidence")
+    if p_at(1.0) >= confidence:
+        n_needed = 1
+    elif p_at(MAX_SHOTS) < confidence:
+        return TargetAssessment(p_budget, None, "bias", "needs more than 1e15 shots")
+    else:
+        root = brentq(
+            lambda x: p_at(math.exp(x)) - confidence, 0.0, math.log(MAX_SHOTS), xtol=1e-10
+        )
+        n_needed = math.ceil(math.exp(root) * (1 - 1e-12))
+        while n_needed > 1 and p_at(n_needed - 1) >= confidence:
+            n_needed -= 1
+        while p_at(n_needed) < confidence:
+            n_needed += 1
+    limited: LimitedBy = "none" if n_needed <= budget else "shots"
+    return TargetAssessment(p_budget, n_needed, limited, "")
