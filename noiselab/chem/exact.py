@@ -21,7 +21,7 @@ if TYPE_CHECKING:
     from noiselab.chem.encode import QubitProblem
 
 MAX_EXACT_QUBITS = 22
-_DENSE_LIMIT = 400
+_DENSE_LIMIT = 200
 
 
 def diagonal_values(op: SparsePauliOp) -> np.ndarray:
