@@ -1,1 +1,2 @@
-"""Measurement plans, finite-shot statistics and mitigation passes, scored against exact energies."""
+"""Measurement plans, finite-shot statistics and mitigation passes, scored against exact
+energies."""

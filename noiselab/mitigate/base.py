@@ -33,7 +33,11 @@ if TYPE_CHECKING:
 STAGE_CORRECT = 0
 STAGE_ESTIMATE = 1
 STAGE_COMBINE = 2
-STAGE_NAMES = {STAGE_CORRECT: "correction", STAGE_ESTIMATE: "estimator", STAGE_COMBINE: "combination"}
+STAGE_NAMES = {
+    STAGE_CORRECT: "correction",
+    STAGE_ESTIMATE: "estimator",
+    STAGE_COMBINE: "combination",
+}
 
 Pullback = Callable[[np.ndarray], dict[SourceKey, np.ndarray]]
 
@@ -46,7 +50,7 @@ class PassOptions(BaseModel):
 
 @dataclass(frozen=True, eq=False)
 class CorrectedDistribution:
-    """A (quasi-)probability vector over outcomes and the pullback of weights on it to raw sources."""
+    """A (quasi-)probability vector; ``pullback`` maps weights on it to raw sources."""
 
     probs: np.ndarray
     pullback: Pullback
@@ -106,7 +110,7 @@ class MitigationPass(ABC):
         """Short label for the recipe name."""
         return self.name
 
-    def check(self, ctx: ExperimentContext, where: str) -> None:
+    def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
 
     # STAGE_COMBINE

@@ -70,7 +70,9 @@ def ratio(num: Estimate, den: Estimate) -> Estimate:
     return Estimate(r, influence)
 
 
-def source_variances(est: Estimate, probs: Mapping[SourceKey, np.ndarray]) -> dict[SourceKey, float]:
+def source_variances(
+    est: Estimate, probs: Mapping[SourceKey, np.ndarray]
+) -> dict[SourceKey, float]:
     """Single-shot variance of the estimate's influence on each source (Ha**2 per shot)."""
     return {k: single_shot_variance(probs[k], u) for k, u in est.influence.items()}
 
@@ -95,7 +97,7 @@ def estimate_variance(
 
 
 def sample_counts(probs: np.ndarray, shots: int, rng: np.random.Generator) -> np.ndarray:
-    """Multinomial counts of ``shots`` draws from a distribution (negative rounding noise clipped)."""
+    """Multinomial counts of ``shots`` draws (negative rounding noise clipped)."""
     p = np.clip(np.asarray(probs, dtype=float), 0.0, None)
     s = p.sum()
     if s <= 0:

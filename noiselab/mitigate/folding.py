@@ -118,7 +118,7 @@ def spread_indices(count: int, total: int) -> set[int]:
 
 
 def fold_two_qubit(circuit: QuantumCircuit, scale: float) -> FoldResult:
-    """Every two-qubit gate G -> G (G^dag G)^k, one more fold on a spread selection for fractions."""
+    """Every two-qubit gate G -> G (G^dag G)^k; one more fold on a spread selection (fractions)."""
     if scale < 1:
         raise ValueError("fold scale must be >= 1")
     gates = unitary_instructions(circuit)

@@ -1,4 +1,4 @@
-"""Measurement plan: qubit-wise commuting groups, one basis per group, weight vectors, shot allocation.
+"""Measurement plan: qubit-wise commuting groups, one basis each, weight vectors, shot allocation.
 
 Conventions (qiskit's): qubit 0 is the rightmost character of a Pauli label and the least
 significant bit of an outcome index. A basis label has one of X, Y, Z per qubit; outcome bit q is 0
@@ -20,7 +20,7 @@ _IMAG_TOL = 1e-9
 
 @dataclass(frozen=True, eq=False)
 class MeasurementGroup:
-    """Terms measured together in one basis; ``weights[k]`` is their summed eigenvalue on outcome k (Ha)."""
+    """Terms measured in one basis; ``weights[k]``: their summed eigenvalue on outcome k (Ha)."""
 
     basis: str
     labels: tuple[str, ...]
@@ -79,7 +79,7 @@ def weight_vector(labels: Sequence[str], coeffs: np.ndarray, num_qubits: int) ->
 
 
 def basis_of(labels: Iterable[str], num_qubits: int) -> str:
-    """Measurement basis of qubit-wise commuting labels: their letter per qubit, Z where all are I."""
+    """Basis of qubit-wise commuting labels: their letter per qubit, Z where all are I."""
     chars = ["Z"] * num_qubits
     for lab in labels:
         for i, ch in enumerate(lab):

@@ -189,7 +189,9 @@ def variant_inputs(ctx: ExperimentContext, variant: CircuitVariant) -> tuple[Any
     if variant.fold_method != "none":
         if compiled is None:  # synthetic contexts (tests): nominal scale
             return compiled, profile, scale * variant.fold_scale
-        compiled, reached = fold_compiled(compiled, profile, variant.fold_method, variant.fold_scale)
+        compiled, reached = fold_compiled(
+            compiled, profile, variant.fold_method, variant.fold_scale
+        )
         scale *= reached
     return compiled, profile, scale
 
@@ -293,7 +295,9 @@ class ParsedRecipe:
         return found[0] if found else None
 
 
-def parse_recipe(recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = "recipe") -> ParsedRecipe:
+def parse_recipe(
+    recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = "recipe"
+) -> ParsedRecipe:
     """Validate a recipe; InputError naming ``recipe[i].<option>`` on the first problem.
 
     Order: correction passes (readout), then at most one estimator (postselect), then at most
@@ -305,7 +309,9 @@ def parse_recipe(recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = 
     if isinstance(recipe, RecipeSpec):
         name, entries = recipe.name, list(recipe.passes)
     elif isinstance(recipe, Mapping):
-        raise InputError(f"{where}: expected a list of passes, got a mapping; allowed: a list of {{pass: ...}}")
+        raise InputError(
+            f"{where}: expected a list of passes, got a mapping; allowed: a list of {{pass: ...}}"
+        )
     else:
         entries = list(recipe)
     passes = []
@@ -314,16 +320,16 @@ def parse_recipe(recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = 
     for i, entry in enumerate(entries):
         p = make_pass(entry, f"{where}[{i}]")
         if p.name in seen:
-            raise InputError(f"{where}[{i}].pass: {p.name!r} appears twice; allowed: each pass once")
+            raise InputError(
+                f"{where}[{i}].pass: {p.name!r} appears twice; allowed: each pass once"
+            )
         if p.stage < last_stage:
             raise InputError(
                 f"{where}[{i}].pass: {p.name!r} ({STAGE_NAMES[p.stage]}) must come before the "
                 f"{STAGE_NAMES[last_stage]} pass; allowed order: readout, postselect, extrapolate"
             )
         if p.stage == last_stage and p.stage != STAGE_CORRECT:
-            raise InputError(
-                f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe"
-            )
+            raise InputError(f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe")
         last_stage = p.stage
         seen.add(p.name)
         passes.append(p)
@@ -401,7 +407,9 @@ class _CalibrationSource:
         self.used: dict[Any, np.ndarray] = {}
         self.shots: dict[Any, int | None] = {}
 
-    def __call__(self, variant: CircuitVariant, states: tuple[int, ...], shots: int | None) -> np.ndarray:
+    def __call__(
+        self, variant: CircuitVariant, states: tuple[int, ...], shots: int | None
+    ) -> np.ndarray:
         cal_v = variant.calibration_variant()
         exact = np.asarray(self.calibrator(cal_v, tuple(states)), dtype=float)
         out = np.empty_like(exact)
@@ -469,7 +477,10 @@ def _allocate(
     cost: list[float] = []
     for v in variants:
         var = np.array(
-            [single_shot_variance(measured[v][b], est.influence.get(meas_key(v, b), zeros)) for b in bases]
+            [
+                single_shot_variance(measured[v][b], est.influence.get(meas_key(v, b), zeros))
+                for b in bases
+            ]
         )
         sd = np.sqrt(var)
         if ctx.allocation == "uniform" or sd.sum() <= 0:
@@ -533,18 +544,29 @@ def run_recipe(
     exact_meas = {v: {b: _row(dists[v], b) for b in bases} for v in variants}
 
     # phase 1: exact distributions everywhere -> influences, allocation, analytic variance
-    ev1 = _evaluate(parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "exact", None))
+    ev1 = _evaluate(
+        parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "exact", None)
+    )
     split = getattr(combiner.options, "shot_split", "equal") if combiner else "equal"
     shots = _allocate(ctx, ev1.estimate, exact_meas, variants, bases, split)
     all_shots: dict[Any, int | None] = {**shots, **ev1.cal.shots}
-    exact_probs: dict[Any, np.ndarray] = {meas_key(v, b): exact_meas[v][b] for v in variants for b in bases}
+    exact_probs: dict[Any, np.ndarray] = {
+        meas_key(v, b): exact_meas[v][b] for v in variants for b in bases
+    }
     exact_probs.update(ev1.cal.exact)
     var_meas, var_cal = _split_variance(ev1.estimate, exact_probs, all_shots)
 
     cal_finite = any(n is not None for n in ev1.cal.shots.values())
     if not sampled:
         if cal_finite:
-            ev = _evaluate(parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "seeded", None))
+            ev = _evaluate(
+                parsed,
+                ctx,
+                variants,
+                bases,
+                exact_meas,
+                _CalibrationSource(ctx, calibrator, "seeded", None),
+            )
         else:
             ev = ev1
         probs_for_std = exact_probs
@@ -556,7 +578,14 @@ def run_recipe(
             v: {b: sample_distribution(exact_meas[v][b], shots[meas_key(v, b)], rng) for b in bases}
             for v in variants
         }
-        ev = _evaluate(parsed, ctx, variants, bases, sampled_meas, _CalibrationSource(ctx, calibrator, "rng", rng))
+        ev = _evaluate(
+            parsed,
+            ctx,
+            variants,
+            bases,
+            sampled_meas,
+            _CalibrationSource(ctx, calibrator, "rng", rng),
+        )
         probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
         probs_for_std.update(ev.cal.used)
         est_for_std = ev.estimate
@@ -590,6 +619,14 @@ def run_recipe(
             "two_qubit_count": _two_qubit_count(ctx, v),
         }
     details["variants"] = per
+    if "extrapolation" in details:
+        details["extrapolation"]["stds_mha"] = [per[v.label()]["std_mha"] for v in variants]
+        details["extrapolation"]["engine_seconds"] = [
+            per[v.label()]["engine_seconds"] for v in variants
+        ]
+        details["extrapolation"]["two_qubit_counts"] = [
+            per[v.label()]["two_qubit_count"] for v in variants
+        ]
     details["bases"] = list(bases)
     details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
     details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
@@ -610,13 +647,13 @@ def run_recipe(
             for b, a in details["acceptance"].get(v.label(), {}).items()
         ]
         n_sel = sum(n for n, _ in accepted_bases)
-        details["acceptance_rate"] = (
-            sum(n * a for n, a in accepted_bases) / n_sel if n_sel else 1.0
-        )
+        details["acceptance_rate"] = sum(n * a for n, a in accepted_bases) / n_sel if n_sel else 1.0
     extra = [b for b in bases if b not in ctx.plan.bases]
     if extra:
         details["extra_bases"] = extra
-        details["extra_basis_shots"] = int(sum(shots[meas_key(v, b)] for v in variants for b in extra))
+        details["extra_basis_shots"] = int(
+            sum(shots[meas_key(v, b)] for v in variants for b in extra)
+        )
 
     return RecipeResult(
         recipe=parsed.name,

@@ -50,7 +50,7 @@ class CircuitVariant:
         return self.scaled_channels is None or "readout" in self.scaled_channels
 
     def calibration_variant(self) -> CircuitVariant:
-        """The variant whose readout the calibration circuits see (folding never touches readout)."""
+        """The variant whose readout calibration circuits see (folding never touches readout)."""
         if self.scales_readout:
             return CircuitVariant(noise_scale=self.noise_scale, scaled_channels=("readout",))
         return CircuitVariant()

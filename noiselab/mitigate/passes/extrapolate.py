@@ -11,9 +11,9 @@ Fits and their zero-noise estimate as a linear functional of the per-scale energ
 E(0) = sum_i gamma_i E(c_i):
 ``richardson``: gamma_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
 ``linear`` and ``polynomial`` (least squares of the given degree): gamma = first row of the
-Vandermonde pseudo-inverse; ``exponential``: E(c) = a + b exp(-k c) by scipy curve_fit, E(0) = a + b,
-gamma from the Gauss-Newton linearization (delta method); when the fit fails, or gives k <= 0,
-the linear fit is used and ``fit_warning`` says so. The variance of E(0) is then
+Vandermonde pseudo-inverse; ``exponential``: E(c) = a + b exp(-k c) by scipy curve_fit,
+E(0) = a + b, gamma from the Gauss-Newton linearization (delta method); when the fit fails,
+or gives k <= 0, the linear fit is used and ``fit_warning`` says so. The variance of E(0) is then
 sum_i gamma_i**2 Var(E_i) with each scale's shots (variance amplification).
 """
 
@@ -63,12 +63,15 @@ class ExtrapolateOptions(PassOptions):
             need = MIN_POINTS[self.fit]
         if len(self.scales) < need:
             raise ValueError(
-                f"scales: fit {self.fit!r} needs at least {need} scale factors, got {len(self.scales)}"
+                f"scales: fit {self.fit!r} needs at least {need} scale factors, "
+                f"got {len(self.scales)}"
             )
         if self.channels is not None and self.amplifier != "stretch":
             raise ValueError("channels: only used by amplifier 'stretch'")
         if self.channels is not None and len(self.channels) == 0:
-            raise ValueError("channels: empty; allowed: relaxation, single_qubit, two_qubit, coherent, readout")
+            raise ValueError(
+                "channels: empty; allowed: relaxation, single_qubit, two_qubit, coherent, readout"
+            )
         return self
 
 
@@ -94,8 +97,12 @@ def _exp_model(c: np.ndarray, a: float, b: float, k: float) -> np.ndarray:
     return a + b * np.exp(-k * c)
 
 
-def exponential_fit(scales: np.ndarray, energies: np.ndarray) -> tuple[float, np.ndarray, np.ndarray]:
-    """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c); ValueError on failure."""
+def exponential_fit(
+    scales: np.ndarray, energies: np.ndarray
+) -> tuple[float, np.ndarray, np.ndarray]:
+    """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
+
+    Raises ValueError when the fit fails."""
     from scipy.optimize import curve_fit
 
     c = np.asarray(scales, dtype=float)
@@ -145,7 +152,9 @@ class ExtrapolatePass(MitigationPass):
         method = "global" if o.amplifier == "whole_circuit" else "two_qubit"
         return tuple(CircuitVariant(fold_method=method, fold_scale=c) for c in o.scales)
 
-    def coefficients(self, scales: np.ndarray, energies: np.ndarray) -> tuple[float | None, np.ndarray, dict[str, Any]]:
+    def coefficients(
+        self, scales: np.ndarray, energies: np.ndarray
+    ) -> tuple[float | None, np.ndarray, dict[str, Any]]:
         """(nonlinear value or None, gamma, fit details)."""
         o = self.options
         if o.fit == "richardson":

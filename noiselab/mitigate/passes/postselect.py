@@ -10,7 +10,8 @@ Modes:
   the projector onto the sector of the symmetries revealed by group g's basis.
 * ``verify``: symmetry verification in post-processing (Bonet-Monroig, Sagastizabal, Singh and
   O'Brien, PRA 98, 062339 (2018)): with P = prod_s (1 + lambda_s S_s) / 2 and [H, S_s] = 0,
-  E = <H P> / <P> = Tr(P rho P H) / Tr(P rho); for one symmetry (<H> + lambda <H S>) / (1 + lambda <S>).
+  E = <H P> / <P> = Tr(P rho P H) / Tr(P rho); for one symmetry
+  E = (<H> + lambda <H S>) / (1 + lambda <S>).
   The Pauli terms of H P and P are measured in the plan's bases where they fit and in extra bases
   otherwise; the extra bases share the shot budget of the circuit (their cost is reported).
 """
@@ -58,7 +59,7 @@ def symmetry_table(problem) -> dict[str, tuple[str, int]]:
         sign = 1 if c.real > 0 else -1
         if abs(abs(c) - 1.0) > 1e-9 or abs(c.imag) > 1e-9:
             raise InputError(f"symmetry {name!r}: Pauli coefficient must be +-1")
-        out[str(name)] = (label, int(round(eig)) * sign)
+        out[str(name)] = (label, round(float(eig)) * sign)
     return out
 
 

@@ -43,7 +43,9 @@ MAX_FULL_QUBITS = 10
 
 
 class ReadoutOptions(PassOptions):
-    method: Literal["per_qubit_inverse", "full_inverse", "nearest_probability"] = "per_qubit_inverse"
+    method: Literal["per_qubit_inverse", "full_inverse", "nearest_probability"] = (
+        "per_qubit_inverse"
+    )
     calibration_shots: int | None = Field(
         default=4000, ge=0, description="shots per calibration circuit; 0 or null: exact matrices"
     )
@@ -83,7 +85,9 @@ def project_to_simplex(x: np.ndarray) -> np.ndarray:
 
 def _invertible(mat: np.ndarray, what: str) -> None:
     if not np.isfinite(np.linalg.cond(mat)) or np.linalg.cond(mat) > 1e12:
-        raise InputError(f"{what}: the estimated assignment matrix is singular (readout error near 50%)")
+        raise InputError(
+            f"{what}: the estimated assignment matrix is singular (readout error near 50%)"
+        )
 
 
 class ReadoutPass(MitigationPass):
