@@ -108,3 +108,26 @@ def test_bad_molecule_is_one_line_input_error(data, key):
     msg = str(info.value)
     assert "\n" not in msg
     assert msg.startswith(f"study.yaml: {key}:")
+
+
+def test_too_large_exact_problem_is_refused_before_scf():
+    from noiselab.common.errors import ProblemTooLargeError
+
+    spec = MoleculeSpec(
+        geometry="O 0 0 0.1173; H 0 0.7572 -0.4692; H 0 -0.7572 -0.4692", basis="cc-pvdz"
+    )
+    # 24 orbitals, 5 alpha + 5 beta: C(24, 5)^2 = 1.8e9 determinants (combinatorics)
+    with pytest.raises(ProblemTooLargeError) as info:
+        compute_problem(spec)
+    assert str(info.value).startswith("molecule.active_space:") and "allowed:" in str(info.value)
+
+
+def test_count_orbitals():
+    from noiselab.chem.molecule import count_orbitals
+
+    # STO-3G: one function per H, five per Li (1s 2s 2p) (common practice, no source)
+    assert count_orbitals(MoleculeSpec(geometry="Li 0 0 0; H 0 0 1.6")) == 6
+    spec = MoleculeSpec(
+        geometry="Li 0 0 0; H 0 0 1.6", active_space={"electrons": 2, "orbitals": 3}
+    )
+    assert count_orbitals(spec) == 3

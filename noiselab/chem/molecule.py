@@ -18,11 +18,12 @@ from typing import Any
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, ValidationInfo, field_validator
 
-from noiselab.common.errors import NoiselabError, from_validation_error
+from noiselab.common.errors import NoiselabError, ProblemTooLargeError, from_validation_error
 
 Atom = tuple[str, float, float, float]
 
 _BASIS_HINT = "a PySCF basis name such as sto-3g, 6-31g, cc-pvdz"
+MAX_DETERMINANTS = 20_000_000
 
 
 def _element_numbers() -> dict[str, int]:
@@ -191,6 +192,13 @@ def _count_orbitals(atoms: tuple[Atom, ...], basis: str, charge: int, spin: int)
     return int(mol.nao_nr())
 
 
+def count_orbitals(spec: MoleculeSpec) -> int:
+    """Spatial orbitals the qubit Hamiltonian will have (active ones, or all of the basis)."""
+    if spec.active_space is not None:
+        return spec.active_space.orbitals
+    return _count_orbitals(spec.geometry, spec.basis, spec.charge, spec.spin)
+
+
 def _build_mole(atoms: tuple[Atom, ...], basis: str, charge: int, spin: int, symmetry: bool) -> Any:
     from pyscf import gto
 
@@ -259,6 +267,23 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
     from pyscf import ao2mo, fci, mcscf, scf
 
     mol = _build_mole(spec.geometry, spec.basis, spec.charge, spec.spin, spec.symmetry)
+    n_elec = int(mol.nelectron)
+    n_mo = int(mol.nao_nr())
+    if spec.active_space is None:
+        n_cas, ne_cas = n_mo, n_elec
+    else:
+        n_cas, ne_cas = spec.active_space.orbitals, spec.active_space.electrons
+    n_alpha = (ne_cas + spec.spin) // 2
+    n_beta = (ne_cas - spec.spin) // 2
+    n_core = (n_elec - ne_cas) // 2
+    n_det = _binom(n_cas, n_alpha) * _binom(n_cas, n_beta)
+    if n_det > MAX_DETERMINANTS:
+        raise ProblemTooLargeError(
+            f"molecule.active_space: {n_cas} orbitals give {n_det} determinants for the "
+            "exact energy; "
+            f"allowed: at most {MAX_DETERMINANTS} (choose a smaller active_space)"
+        )
+
     mf = scf.RHF(mol) if spec.spin == 0 else scf.ROHF(mol)
     mf.conv_tol = 1e-12
     mf.max_cycle = 200
@@ -271,15 +296,8 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
             "molecule: Hartree-Fock did not converge; check the geometry, charge and spin"
         )
 
-    n_elec = int(mol.nelectron)
-    n_mo = int(mf.mo_coeff.shape[1])
-    if spec.active_space is None:
-        n_cas, ne_cas = n_mo, n_elec
-    else:
-        n_cas, ne_cas = spec.active_space.orbitals, spec.active_space.electrons
-    n_alpha = (ne_cas + spec.spin) // 2
-    n_beta = (ne_cas - spec.spin) // 2
-    n_core = (n_elec - ne_cas) // 2
+    if int(mf.mo_coeff.shape[1]) < n_core + n_cas:
+        raise NoiselabError("molecule: basis is linearly dependent; fewer orbitals than requested")
 
     # Doubly occupied first, then singly occupied, then virtual (stable within each class), so the
     # active space starts right after the core and the HF determinant fills its lowest orbitals.
@@ -294,7 +312,6 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
     solver = fci.direct_spin1.FCI()
     solver.conv_tol = 1e-12
     solver.max_cycle = 500
-    n_det = _binom(n_cas, n_alpha) * _binom(n_cas, n_beta)
     solver.nroots = min(3, n_det)
     energies, vecs = solver.kernel(h1, h2, n_cas, (n_alpha, n_beta), ecore=e_core)
     energies = np.atleast_1d(energies)
