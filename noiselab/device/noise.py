@@ -23,6 +23,7 @@ and build the model with ``idle_relaxation=False`` (never both: that doubles the
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
@@ -99,39 +100,99 @@ def _identity_error(num_qubits: int) -> Any:
     return QuantumError([(QuantumCircuit(num_qubits), 1.0)])
 
 
+_PARTS = frozenset({"relaxation", "depolarizing", "coherent"})
+
+
+@functools.lru_cache(maxsize=4096)
+def _relaxation_superop(t_ns: float, t1_us: float | None, t2_us: float | None) -> Any:
+    from qiskit.quantum_info import SuperOp
+
+    err = relaxation_error(t_ns, t1_us, t2_us)
+    return SuperOp(np.eye(4)) if err is None else SuperOp(err.to_quantumchannel())
+
+
+@functools.lru_cache(maxsize=4096)
+def _noise_superop(
+    duration_ns: float,
+    coherence: tuple[tuple[float | None, float | None], ...],
+    depolarizing_param: float,
+    zz_angle_rad: float,
+    over_rotation_rad: float,
+    parts: frozenset[str],
+) -> Any:
+    from qiskit.circuit.library import RXGate, RZZGate
+    from qiskit.quantum_info import Operator, SuperOp
+
+    k = len(coherence)
+    d = 2**k
+    total = SuperOp(np.eye(d * d))
+    if "relaxation" in parts and duration_ns > 0.0:
+        relax = _relaxation_superop(duration_ns, *coherence[0])
+        for t1_us, t2_us in coherence[1:]:
+            relax = relax.expand(_relaxation_superop(duration_ns, t1_us, t2_us))
+        total = relax
+    if "depolarizing" in parts and depolarizing_param > 0.0:
+        # rho -> (1 - p) rho + p Tr(rho) I/d; Tr(rho) = <<I|rho>> in any vectorization
+        vec_i = np.eye(d).reshape(-1)
+        p = depolarizing_param
+        total = total.compose(SuperOp((1.0 - p) * np.eye(d * d) + (p / d) * np.outer(vec_i, vec_i)))
+    if "coherent" in parts:
+        if zz_angle_rad != 0.0:
+            total = total.compose(SuperOp(Operator(RZZGate(zz_angle_rad))))
+        if over_rotation_rad != 0.0:
+            total = total.compose(SuperOp(Operator(RXGate(over_rotation_rad))))
+    return total
+
+
+def _noise_key(profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None) -> tuple:
+    chosen = _PARTS if parts is None else frozenset(parts)
+    unknown = chosen - _PARTS
+    if unknown:
+        raise InputError(
+            f"parts: unknown {sorted(unknown)[0]!r}; allowed: {', '.join(sorted(_PARTS))}"
+        )
+    coh = tuple((profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in noise.qubits)
+    return (
+        noise.duration_ns,
+        coh,
+        noise.depolarizing_param,
+        noise.zz_angle_rad,
+        noise.over_rotation_rad,
+        chosen,
+    )
+
+
+def _is_noiseless(key: tuple) -> bool:
+    duration_ns, coh, p, zz, over, parts = key
+    relax = "relaxation" in parts and duration_ns > 0.0 and any(t != (None, None) for t in coh)
+    depol = "depolarizing" in parts and p > 0.0
+    coherent = "coherent" in parts and (zz != 0.0 or over != 0.0)
+    return not (relax or depol or coherent)
+
+
+def gate_superop(
+    profile: DeviceProfile, gate: str, qubits: Sequence[int], parts: Iterable[str] | None = None
+) -> Any:
+    """``qiskit.quantum_info.SuperOp`` of the error applied after native ``gate`` on ``qubits``.
+
+    ``parts`` picks a subset of {"relaxation", "depolarizing", "coherent"} (default all).
+    The channel's qubit 0 is ``qubits[0]``. Cached on the numerical parameters.
+    """
+    noise = gate_noise(profile, gate, qubits)
+    return _noise_superop(*_noise_key(profile, noise, parts))
+
+
 def channel_from_noise(
     profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None = None
 ) -> Any:
-    """Build the qiskit-aer ``QuantumError`` for a :class:`GateNoise`.
+    """qiskit-aer ``QuantumError`` (one Kraus instruction) for a :class:`GateNoise`."""
+    from qiskit.quantum_info import Kraus
+    from qiskit_aer.noise import QuantumError
 
-    ``parts`` picks a subset of {"relaxation", "depolarizing", "coherent"} (default all); used by
-    tests and by the emulator's cross-checks. The channel's qubit 0 is ``noise.qubits[0]``.
-    """
-    from qiskit.circuit.library import RXGate, RZZGate
-    from qiskit_aer.noise import coherent_unitary_error, depolarizing_error
-
-    chosen = {"relaxation", "depolarizing", "coherent"} if parts is None else set(parts)
-    k = len(noise.qubits)
-    err = _identity_error(k)
-    if "relaxation" in chosen and noise.duration_ns > 0.0:
-        per_qubit = []
-        for q in noise.qubits:
-            qp = profile.qubit(q)
-            per_qubit.append(
-                relaxation_error(noise.duration_ns, qp.t1_us, qp.t2_us) or _identity_error(1)
-            )
-        relax = per_qubit[0]
-        for e in per_qubit[1:]:
-            relax = relax.expand(e)  # later qubits on higher indices
-        err = relax
-    if "depolarizing" in chosen and noise.depolarizing_param > 0.0:
-        err = err.compose(depolarizing_error(noise.depolarizing_param, k))
-    if "coherent" in chosen:
-        if noise.zz_angle_rad != 0.0:
-            err = err.compose(coherent_unitary_error(RZZGate(noise.zz_angle_rad).to_matrix()))
-        if noise.over_rotation_rad != 0.0:
-            err = err.compose(coherent_unitary_error(RXGate(noise.over_rotation_rad).to_matrix()))
-    return err
+    key = _noise_key(profile, noise, parts)
+    if _is_noiseless(key):
+        return _identity_error(len(noise.qubits))
+    return QuantumError(Kraus(_noise_superop(*key)))
 
 
 def gate_channel(
@@ -139,8 +200,9 @@ def gate_channel(
 ) -> Any:
     """The qiskit-aer ``QuantumError`` applied after native ``gate`` on physical ``qubits``.
 
-    An identity error for rz. ``error.to_quantumchannel()`` gives the ``qiskit.quantum_info``
-    SuperOp for independent checks.
+    An identity error for rz and for noiseless gates (``error.ideal()`` is then true).
+    ``error.to_quantumchannel()`` (or :func:`gate_superop`) gives the ``qiskit.quantum_info``
+    channel for independent checks.
     """
     return channel_from_noise(profile, gate_noise(profile, gate, qubits), parts)
 
@@ -154,7 +216,7 @@ def gate_infidelity(profile: DeviceProfile, gate: str, qubits: Sequence[int]) ->
         return 0.0
     if noise.zz_angle_rad == 0.0 and noise.over_rotation_rad == 0.0:
         return max(noise.quoted_error, noise.relaxation_infidelity)
-    chan = channel_from_noise(profile, noise).to_quantumchannel()
+    chan = _noise_superop(*_noise_key(profile, noise, None))
     return float(max(0.0, 1.0 - average_gate_fidelity(chan)))
 
 
