@@ -52,6 +52,26 @@ def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCac
     return open_cache(cache)
 
 
+def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
+    """Refuse recipes that do not fit this experiment (e.g. post-selection without symmetries).
+
+    The error names the study file and ``recipes.<name>[i].<option>``.
+    """
+    from noiselab.common.errors import InputError
+    from noiselab.mitigate.recipe import parse_recipe
+
+    source = str(ctx.study.source)
+    for name, passes in recipes.items():
+        where = f"recipes.{name}"
+        try:
+            parsed = parse_recipe(list(passes), where=where)
+            for i, p in enumerate(parsed.passes):
+                p.check(ctx.experiment, f"{where}[{i}]")
+        except InputError as exc:
+            text = str(exc)
+            raise InputError(text if text.startswith(source) else f"{source}: {text}") from None
+
+
 def run_recipes(
     ctx: StudyContext,
     recipes: dict[str, tuple[dict[str, Any], ...]],
@@ -67,7 +87,7 @@ def run_recipes(
     if progress is not None:
         progress(label, 0, total)
     for i, (name, passes) in enumerate(recipes.items()):
-        out[name] = run_recipe(list(passes), ctx.experiment, runner)
+        out[name] = run_recipe(list(passes), ctx.experiment, runner, calibrator=runner.calibrator)
         if progress is not None:
             progress(label, i + 1, total)
     return out
@@ -92,6 +112,7 @@ def assess(
     study = resolve_study(study_or_path, seed, shots)
     store = _default_cache(cache)
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
     results = run_recipes(ctx, study.recipes, runner, progress)
     best = best_of(results)

@@ -291,9 +291,11 @@ class CachingRunner:
     def __init__(
         self, experiment: Any, cache: ResultsCache | None = None, base: Any = None
     ) -> None:
-        from noiselab.mitigate.recipe import make_runner
+        from noiselab.mitigate.recipe import make_calibrator, make_runner
 
         self.experiment = experiment
+        #: readout-calibration distributions, memoized for the whole job (pass to run_recipe)
+        self.calibrator = make_calibrator(experiment)
         self.cache = cache if cache is not None else ResultsCache.disabled()
         self._base = base if base is not None else make_runner(experiment)
         self._memory: dict[Any, Any] = {}

@@ -194,12 +194,13 @@ def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: An
 
     return ExperimentContext(
         problem=qp,
-        plan=plan,
         compiled=compiled,
         profile=study.profile,
-        shots_total=study.shots,
-        target_mha=study.target_mha,
-        confidence=study.confidence,
+        plan=plan,
+        exact_energy_ha=float(qp.exact_energy_ha),
         ansatz_energy_ha=float(optimum.energy_ha),
-        seed=study.seed,
+        shots=int(study.shots),
+        target_mha=float(study.target_mha),
+        confidence=float(study.confidence),
+        seed=int(study.seed),
     )

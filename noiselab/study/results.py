@@ -108,7 +108,7 @@ def best_of(results: Mapping[str, Any]) -> str:
 
 
 def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-9:
+    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 5e-4:
         return f"chemical accuracy (±{target_mha:.4g} mHa)"
     return f"the ±{target_mha:.4g} mHa target"
 
@@ -177,6 +177,18 @@ def jsonable(value: Any) -> Any:
     return repr(value)
 
 
+_TIMING_KEYS = frozenset({"engine_seconds", "seconds", "wall_seconds"})
+
+
+def without_timings(value: Any) -> Any:
+    """``value`` with every timing entry removed (they differ from run to run)."""
+    if isinstance(value, Mapping):
+        return {k: without_timings(v) for k, v in value.items() if k not in _TIMING_KEYS}
+    if isinstance(value, list | tuple):
+        return [without_timings(v) for v in value]
+    return value
+
+
 def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) -> dict[str, Any]:
     """One recipe's entry in the assess JSON (energy in Ha, the rest in mHa / counts)."""
     out = {
@@ -193,7 +205,7 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     }
     if passes is not None:
         out["passes"] = jsonable(list(passes))
-    out["details"] = jsonable(getattr(result, "details", {}) or {})
+    out["details"] = without_timings(jsonable(getattr(result, "details", {}) or {}))
     return out
 
 

@@ -255,7 +255,9 @@ def tune(
 
     results: list[tuple[Setting, Any]] = []
     for i, s in enumerate(settings):
-        results.append((s, run_recipe(list(s.passes), ctx.experiment, runner)))
+        results.append(
+            (s, run_recipe(list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator))
+        )
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
     results.sort(key=lambda sr: (*rank_key(sr[1]), sr[0].label))
