@@ -374,3 +374,19 @@ def test_fuzz_random_text(text):
 def test_thermal_idle_time_inverts_infidelity():
     t = thermal.idle_time_for_infidelity_ns(0.01, 100.0, 80.0)
     assert thermal.relaxation_infidelity(t, [(100.0, 80.0)]) == pytest.approx(0.01, rel=1e-9)
+
+
+def test_profiles_hash_by_content(profile: DeviceProfile):
+    again = profile_from_mapping(base_mapping(), "unit")
+    assert again == profile and hash(again) == hash(profile)
+    assert again.fingerprint == profile.fingerprint
+    assert scale_profile(profile, 0.5).fingerprint != profile.fingerprint
+    assert len({profile: 1, again: 2}) == 1
+
+
+def test_profile_commands_import_no_qiskit():
+    code = (
+        "import sys, noiselab.cli.profile_cmd, noiselab.device, noiselab.device.profile; "
+        "sys.exit(1 if 'qiskit' in sys.modules else 0)"
+    )
+    assert subprocess.run([sys.executable, "-c", code], timeout=60).returncode == 0

@@ -308,6 +308,18 @@ class DeviceProfile(BaseModel):
         _check_semantics(self)
         return self
 
+    def __hash__(self) -> int:  # the overrides mapping is a dict: hash the canonical JSON
+        return hash(self.fingerprint)
+
+    @property
+    def fingerprint(self) -> str:
+        """SHA-256 of the canonical JSON of every value (for cache keys); source not included."""
+        import hashlib
+        import json
+
+        text = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode()).hexdigest()
+
     # ---- resolution helpers -------------------------------------------------------------
     @property
     def source(self) -> str:
