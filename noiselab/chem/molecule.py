@@ -226,7 +226,7 @@ def molecule_from_mapping(
         raise from_validation_error(exc, source, prefix=prefix) from None
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class ElectronicProblem:
     """Active-space electronic Hamiltonian in the (RO)HF molecular-orbital basis (Hartree).
 

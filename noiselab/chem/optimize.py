@@ -27,7 +27,7 @@ if TYPE_CHECKING:
 METHODS = ("BFGS", "L-BFGS-B")
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)
 class OptimizationResult:
     """Best parameters (``circuit.parameters`` order) and energy of a noiseless optimization."""
 
