@@ -221,3 +221,22 @@ def test_target_carries_durations_and_errors(amber: DeviceProfile):
     assert target["rz"][(1,)].duration == 0.0
     assert target["cz"][(1, 0)].error >= amber.pair_error(2, 3)
     assert set(target.operation_names) == {"rz", "sx", "x", "cz", "delay", "measure"}
+
+
+def test_bind_uses_input_circuit_parameters(amber: DeviceProfile):
+    a, b = ParameterVector("a", 2)
+    qc = QuantumCircuit(2)
+    qc.rz(a, 0)
+    qc.rz(-a, 0)  # cancels: the transpiled circuit may lose parameter a
+    qc.ry(b, 1)
+    qc.cx(0, 1)
+    compiled = compile_to_device(qc, amber)
+    assert compiled.parameters == tuple(qc.parameters)
+    bound = compiled.bind([0.3, 1.1])
+    assert not bound.circuit.parameters
+    # source: qiskit.quantum_info
+    assert Operator.from_circuit(_without_delays(bound.circuit)).equiv(
+        Operator(qc.assign_parameters([0.3, 1.1]))
+    )
+    with pytest.raises(InputError, match="2 values"):
+        compiled.bind([0.3])

@@ -38,10 +38,14 @@ class CompiledCircuit:
     estimated_fidelity: float
     num_qubits: int
     device_name: str = ""
+    source_parameters: tuple[Any, ...] = ()  # the input circuit's parameters, in its order
 
     @property
     def parameters(self) -> tuple[Any, ...]:
-        """Unbound parameters, in the circuit's (sorted) order."""
+        """Parameters to bind: those of the input circuit (qiskit's sorted order), so a value
+        vector for the logical circuit binds here too, even if transpiling dropped one."""
+        if self.source_parameters:
+            return self.source_parameters
         return tuple(self.circuit.parameters)
 
     @property
@@ -50,7 +54,7 @@ class CompiledCircuit:
 
     def bind(self, values: Mapping[Any, float] | Sequence[float]) -> CompiledCircuit:
         """Assign parameter values (a mapping, or a sequence in :attr:`parameters` order)."""
-        params = self.circuit.parameters
+        params = self.parameters
         if not isinstance(values, Mapping):
             values = list(values)
             if len(values) != len(params):
@@ -60,8 +64,12 @@ class CompiledCircuit:
                     f"{len(values)} values for {len(params)} parameters",
                     f"{len(params)} values",
                 )
-        bound = self.circuit.assign_parameters(values, inplace=False, strict=False)
-        return dataclasses.replace(self, circuit=bound)
+            values = dict(zip(params, values, strict=True))
+        present = set(self.circuit.parameters)
+        bound = self.circuit.assign_parameters(
+            {p: v for p, v in values.items() if p in present}, inplace=False
+        )
+        return dataclasses.replace(self, circuit=bound, source_parameters=())
 
 
 def build_target(profile: DeviceProfile, patch: Sequence[int]) -> Any:
@@ -308,4 +316,5 @@ def compile_to_device(
         estimated_fidelity=estimate_fidelity(out, profile, patch),
         num_qubits=out.num_qubits,
         device_name=profile.name,
+        source_parameters=tuple(circ.parameters),
     )
