@@ -70,5 +70,7 @@ def test_bad_optimizer_options(h2):
         optimize_noiseless(qp, qc, method="nelder")
     with pytest.raises(InputError, match=r"optimizer\.starts"):
         optimize_noiseless(qp, qc, starts=0)
+    with pytest.raises(InputError, match=r"optimizer\.initial"):
+        optimize_noiseless(qp, qc, initial=np.zeros(5))
     with pytest.raises(InputError, match="ansatz"):
         optimize_noiseless(qp, layered_circuit(3, 1))

@@ -65,6 +65,11 @@ def optimize_noiseless(
             f"ansatz: circuit has {circuit.num_qubits} qubits; "
             f"allowed: {qubit_problem.num_qubits} (the Hamiltonian's)"
         )
+    if initial is not None and np.size(initial) != circuit.num_parameters:
+        raise InputError(
+            f"optimizer.initial: {np.size(initial)} values; "
+            f"allowed: {circuit.num_parameters} (one per circuit parameter)"
+        )
     t0 = time.perf_counter()
     program = compile_statevector(circuit)
     hmat = qubit_problem.hamiltonian.to_matrix(sparse=True).tocsr()
