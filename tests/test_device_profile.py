@@ -390,3 +390,21 @@ def test_profile_commands_import_no_qiskit():
         "sys.exit(1 if 'qiskit' in sys.modules else 0)"
     )
     assert subprocess.run([sys.executable, "-c", code], timeout=60).returncode == 0
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    st.one_of(st.floats(0, 1e6), st.sampled_from([0.0, 1e-300, 1.0, 5e-324])),
+    st.sets(st.sampled_from(CHANNELS)),
+)
+def test_fuzz_scale_stays_valid(factor, channels):
+    base = profile_from_mapping(base_mapping(), "unit")
+    s = scale_profile(base, factor, sorted(channels))
+    for q in range(s.qubit_count):
+        qp = s.qubit(q)
+        assert 0 <= qp.gate_error <= 0.5 and 0 <= qp.p_read0_prep1 <= 0.5
+        if qp.t1_us is not None:
+            # source: Nielsen & Chuang sec. 8.3 (T2 <= 2 T1 survives scaling)
+            assert qp.t2_us <= 2 * qp.t1_us * (1 + 1e-12)
+    for a, b in s.pairs():
+        assert 0 <= s.pair_error(a, b) <= 0.75

@@ -11,7 +11,8 @@ Per native gate, the error channel applied after the ideal gate is, in this orde
    rx(f * angle) after sx (angle pi/2) and x (angle pi) (``over_rotation_fraction``).
 
 rz is virtual: no error, zero duration. Readout assignment errors are not in the noise model;
-:func:`readout_matrices` and :func:`readout_crosstalk` describe them for the emulator.
+:func:`readout_matrices` and :func:`readout_crosstalk` describe them for the emulator (decay
+during the readout is part of P(0|1); ``readout_ns`` only sets the Target's Measure duration).
 
 Idle qubits: scheduled circuits (see :mod:`noiselab.device.compile`) carry ``delay``
 instructions. :func:`build_noise_model` registers a noise pass that aer runs on every circuit

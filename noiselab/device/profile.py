@@ -651,7 +651,8 @@ def _scaled_signed(value: float | None, s: float, hi: float) -> float | None:
 def _scaled_time(value: float | None, s: float) -> float | None:
     if value is None or s == 0.0:
         return None
-    return value / s
+    out = value / s
+    return out if math.isfinite(out) else None  # tiny s: coherence beyond float range
 
 
 def scale_profile(
