@@ -129,7 +129,7 @@ def capture_engine() -> Iterator[EngineLog]:
 
     def wrapped(self: Any, circuits: Any, *args: Any, **kwargs: Any) -> Any:
         circuit_list = list(circuits) if isinstance(circuits, list | tuple) else [circuits]
-        options = dict(self.options.__dict__) if hasattr(self.options, "__dict__") else {}
+        options = dict(self.options.items())
         job = original(self, circuits, *args, **kwargs)
         start = time.perf_counter()
         result = job.result()  # aer jobs run asynchronously: time until the result is there

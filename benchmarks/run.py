@@ -1,0 +1,506 @@
+"""noiselab benchmarks: each one a ratio measured in one run, on one machine.
+
+    python benchmarks/run.py [--quick] [--only NAME [NAME ...]] [--list]
+
+Benchmarks (targets from the project's "Speed and scale" issue):
+
+  overhead  full assess wall time / bare qiskit-aer time of the distinct simulations it ran  <= 1.3
+  sampling  time to pin a recipe's bias to +-0.1 mHa (95 %) by shot sampling / noiselab     >= 100
+  grid      tune over 100 mitigation settings / the most expensive setting alone            <= 1.5
+  memory    (peak RSS of a 12-qubit assess - interpreter baseline) / (16 x 4^12 bytes)     <= 3
+  scaling   assess wall time against qubit count (4..12), with a figure (PNG + SVG)
+
+Results are merged into benchmarks/results/<UTC date>.json (atomic rewrite) and printed.
+``--quick`` uses smaller problems (for checking the scripts, not for quoting). Not part of the
+test suite: timings depend on the machine and on what else runs on it.
+"""
+
+from __future__ import annotations
+
+import argparse
+import dataclasses
+import json
+import math
+import subprocess
+import sys
+import tempfile
+import time
+from collections.abc import Callable
+from pathlib import Path
+from typing import Any
+
+sys.path.insert(0, str(Path(__file__).resolve().parent))
+
+from common import (  # benchmarks/ is a folder of scripts, not a package
+    HERE,
+    RESULTS,
+    STUDIES,
+    capture_engine,
+    machine_info,
+    now_utc,
+    record,
+    rerun_bare,
+    results_path,
+)
+
+Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
+BIAS_TOLERANCE_MHA = 0.1
+
+
+def study_path(qubits: int) -> Path:
+    return STUDIES / f"hchain-{qubits}.yaml"
+
+
+def load(qubits: int, recipes: dict[str, Any] | None = None) -> Any:
+    """The benchmark study of that size, optionally with only some recipes."""
+    from noiselab.study.spec import load_study
+
+    study = load_study(study_path(qubits))
+    if recipes is not None:
+        study = dataclasses.replace(study, recipes=recipes)
+    return study
+
+
+def _say(text: str) -> None:
+    print(text, flush=True)
+
+
+# --------------------------------------------------------------------------- overhead
+
+
+def bench_overhead(quick: bool) -> dict[str, Any]:
+    """Full assess / engine-only time of the distinct density-matrix runs it needed."""
+    from noiselab.study.assess import assess
+    from noiselab.study.cache import open_cache
+    from noiselab.study.context import build_context
+
+    qubits = 8 if quick else 12
+    study = load(qubits)
+    with tempfile.TemporaryDirectory() as tmp:
+        store = open_cache(Path(tmp) / "cache.sqlite")
+        # The noiseless optimum is cached first: it is chemistry, not emulation (reported apart).
+        t = time.perf_counter()
+        ctx = build_context(study, cache=store)
+        context_first_s = time.perf_counter() - t
+        _say(f"  context (first run, optimizer included): {context_first_s:.2f} s {ctx.seconds}")
+        with capture_engine() as log:
+            t = time.perf_counter()
+            result = assess(study, cache=store)
+            assess_s = time.perf_counter() - t
+        store.close()
+    distinct = log.distinct()
+    _say(f"  assess: {assess_s:.2f} s, {len(log.calls)} engine calls, {len(distinct)} distinct")
+    bare_s = rerun_bare(distinct)
+    _say(f"  bare qiskit-aer re-run of the distinct calls: {bare_s:.2f} s")
+    ratio = assess_s / bare_s
+    optimize_s = float(ctx.seconds.get("optimize", 0.0))
+    return {
+        "ratio": ratio,
+        "target": "<= 1.3",
+        "met": ratio <= 1.3,
+        "qubits": qubits,
+        "study": str(study_path(qubits).relative_to(HERE.parent)),
+        "assess_wall_s": assess_s,
+        "engine_bare_s": bare_s,
+        "engine_inside_noiselab_s": log.seconds,
+        "noiselab_engine_seconds_reported": result.stats.engine_seconds,
+        "engine_calls": len(log.calls),
+        "distinct_simulations": len(distinct),
+        "recipes": list(study.recipes),
+        "context_first_run_s": context_first_s,
+        "context_breakdown_s": dict(ctx.seconds),
+        "ratio_first_run_estimate": (assess_s + optimize_s) / bare_s,
+        "notes": [
+            "assess ran with the noiseless optimum already cached (a fresh cache otherwise); "
+            "ratio_first_run_estimate adds the optimizer's time measured in the first context",
+            "engine_bare_s: the same circuits and noise models handed to a fresh AerSimulator "
+            "with the same options, outside noiselab",
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- sampling
+
+
+def _measurement_circuits(ctx: Any) -> list[Any]:
+    """The compiled circuit + a basis-change layer in native gates + measurement, per basis."""
+    from qiskit import ClassicalRegister, QuantumCircuit, transpile
+
+    compiled, plan = ctx.compiled, ctx.plan
+    k = compiled.circuit.num_qubits
+    logical = list(compiled.logical_to_circuit)
+    n = len(logical)
+    out = []
+    for basis in plan.bases:
+        rot = QuantumCircuit(k)
+        for l, c in enumerate(logical):
+            letter = basis[n - 1 - l]
+            if letter == "X":
+                rot.h(c)
+            elif letter == "Y":
+                rot.sdg(c)
+                rot.h(c)
+        rot = transpile(rot, basis_gates=["rz", "sx", "x"], optimization_level=1)
+        qc = compiled.circuit.copy()
+        creg = ClassicalRegister(n, "m")
+        qc.add_register(creg)
+        qc.compose(rot, qubits=list(range(k)), inplace=True)
+        for l, c in enumerate(logical):
+            qc.measure(c, creg[l])
+        out.append(qc)
+    return out
+
+
+def _sampling_noise_model(ctx: Any) -> Any:
+    """The device noise model plus the per-qubit readout assignment errors (crosstalk left out)."""
+    from qiskit_aer.noise import ReadoutError
+
+    from noiselab.device.noise import build_noise_model, readout_matrices
+
+    patch = ctx.compiled.patch
+    model = build_noise_model(ctx.study.profile, patch)
+    mats = readout_matrices(ctx.study.profile, patch)
+    for i in range(len(patch)):
+        model.add_readout_error(ReadoutError(mats[i].T.tolist()), [i])  # rows: prepared state
+    return model
+
+
+def bench_sampling(quick: bool) -> dict[str, Any]:
+    """Shot sampling until the standard error is 0.1 mHa (95 %) / noiselab's one analytic run."""
+    from qiskit_aer import AerSimulator
+
+    from noiselab.study.assess import assess
+    from noiselab.study.context import build_context
+
+    qubits = 4 if quick else 8
+    full = load(qubits)
+    recipe = "raw"  # the fewest shots of all recipes: the ratio least favourable to noiselab
+    single = load(qubits, {recipe: full.recipes[recipe]})
+    t = time.perf_counter()
+    one = assess(single, cache=False)
+    noiselab_s = time.perf_counter() - t
+    _say(f"  noiselab, recipe {recipe!r} alone, fresh: {noiselab_s:.2f} s")
+    t = time.perf_counter()
+    every = assess(full, cache=False)
+    noiselab_all_s = time.perf_counter() - t
+
+    ctx = build_context(full, cache=None)
+    circuits = _measurement_circuits(ctx)
+    sim = AerSimulator(noise_model=_sampling_noise_model(ctx))
+    sim.run(circuits[:1], shots=100).result()  # warm-up
+    batch = 20_000 if quick else 100_000
+    t = time.perf_counter()
+    res = sim.run(circuits, shots=batch).result()
+    batch_s = time.perf_counter() - t
+    methods = sorted({str(r.metadata.get("method")) for r in res.results})
+    rate = batch * len(circuits) / batch_s
+    _say(
+        f"  shot sampling: {len(circuits)} circuits x {batch} shots in {batch_s:.2f} s "
+        f"= {rate:.3g} shots/s (aer method {methods})"
+    )
+
+    def shots_needed(r: Any) -> float:
+        # std_mha is the standard error at shots_total: SE scales as 1/sqrt(N)
+        return r.shots_total * (r.std_mha * Z_95 / BIAS_TOLERANCE_MHA) ** 2
+
+    per_recipe = {}
+    for name, r in every.recipes.items():
+        n_shots = shots_needed(r)
+        t_shots = n_shots / rate
+        per_recipe[name] = {
+            "std_mha_at_budget": r.std_mha,
+            "shots_budget": r.shots_total,
+            "shots_needed": n_shots,
+            "sampling_s_extrapolated": t_shots,
+            "ratio_vs_full_assess": t_shots / noiselab_all_s,
+        }
+    primary = one.recipes[recipe]
+    n_primary = shots_needed(primary)
+    t_primary = n_primary / rate
+    ratio = t_primary / noiselab_s
+    return {
+        "ratio": ratio,
+        "target": ">= 100",
+        "met": ratio >= 100,
+        "qubits": qubits,
+        "recipe": recipe,
+        "noiselab_s": noiselab_s,
+        "noiselab_full_assess_s": noiselab_all_s,
+        "shots_needed": n_primary,
+        "sampling_s_extrapolated": t_primary,
+        "sampling_rate_shots_per_s": rate,
+        "measurement_circuits": len(circuits),
+        "batch_shots_per_circuit": batch,
+        "aer_methods": methods,
+        "per_recipe": per_recipe,
+        "notes": [
+            "the shot-sampling time is EXTRAPOLATED: shots needed = budget x (z * std / 0.1 mHa)^2 "
+            "from the recipe's standard error, divided by a rate measured on the real measurement "
+            f"circuits ({len(circuits)} bases x {batch} shots, noisy AerSimulator, default method)",
+            "noiselab_s: one assess of that recipe alone with no cache (problem, optimizer, "
+            "compile and simulation included)",
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- grid
+
+
+GRID_SCALES = [
+    [1, 2], [1, 2, 3], [1, 2, 4], [1, 2, 5], [1, 3, 4], [1, 3, 5], [1, 4, 5],
+    [1, 2, 3, 4], [1, 2, 3, 5], [1, 2, 4, 5], [1, 3, 4, 5], [1, 2, 3, 4, 5],
+]  # fmt: skip
+
+
+def bench_grid(quick: bool) -> dict[str, Any]:
+    """A tune over 100 settings / the single most expensive of them run alone."""
+    from noiselab.study.assess import assess
+    from noiselab.study.tune import GridOverride, tune
+
+    qubits = 6 if quick else 10
+    study = load(qubits)
+    # 2 readout x 2 post-selection x (no ZNE + 12 scale sets x 2 fits) = 100 settings; the scale
+    # sets are subsets of 1..5, so the grid needs the variants of its largest setting only.
+    grid = GridOverride(
+        readout=["none", "per_qubit_inverse"],
+        postselect=["none", "discard"],
+        amplification=["none", "stretch"],
+        scales=[[float(s) for s in sc] for sc in GRID_SCALES],
+        fit=["linear", "richardson"],
+    )
+    t = time.perf_counter()
+    tuned = tune(study, grid=grid, cache=False)
+    tune_s = time.perf_counter() - t
+    n_settings = len(tuned.entries)
+    heaviest = max(tuned.entries, key=lambda e: (e.result.engine_seconds, len(e.passes)))
+    _say(
+        f"  tune: {n_settings} settings, {tuned.distinct_variants} distinct variants, "
+        f"{tune_s:.2f} s; heaviest: {heaviest.label}"
+    )
+    single = dataclasses.replace(study, recipes={"heaviest": tuple(heaviest.passes)})
+    t = time.perf_counter()
+    alone = assess(single, cache=False)
+    single_s = time.perf_counter() - t
+    ratio = tune_s / single_s
+    _say(f"  heaviest setting alone: {single_s:.2f} s ({alone.stats.simulations} simulations)")
+    return {
+        "ratio": ratio,
+        "target": "<= 1.5",
+        "met": ratio <= 1.5,
+        "qubits": qubits,
+        "settings": n_settings,
+        "distinct_variants": tuned.distinct_variants,
+        "tune_simulations": tuned.stats.simulations,
+        "tune_wall_s": tune_s,
+        "heaviest_setting": heaviest.label,
+        "heaviest_wall_s": single_s,
+        "heaviest_simulations": alone.stats.simulations,
+        "notes": [
+            "both runs start from nothing (no cache): problem, optimizer, compile included",
+            "grid: readout {none, per_qubit_inverse} x postselect {none, discard} x "
+            "(no ZNE + stretch x 12 scale sets from 1..5 x fit {linear, richardson})",
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- memory
+
+
+def _child(args: list[str]) -> dict[str, Any]:
+    cmd = [sys.executable, str(HERE / "memory_child.py"), *args]
+    proc = subprocess.run(cmd, capture_output=True, text=True, check=False)
+    if proc.returncode != 0:
+        raise RuntimeError(f"{' '.join(cmd)} failed:\n{proc.stderr[-2000:]}")
+    return json.loads(proc.stdout.strip().splitlines()[-1])
+
+
+def bench_memory(quick: bool) -> dict[str, Any]:
+    """(peak RSS of an assess - interpreter baseline) / density-matrix size 16 x 4^n bytes."""
+    qubits = 8 if quick else 12
+    baseline = _child(["baseline"])
+    run = _child(["assess", str(study_path(qubits))])
+    dm_bytes = 16 * 4**qubits
+    extra = run["maxrss_bytes"] - baseline["maxrss_bytes"]
+    ratio = extra / dm_bytes
+    _say(
+        f"  baseline {baseline['maxrss_bytes'] / 2**20:.0f} MiB, "
+        f"assess {run['maxrss_bytes'] / 2**20:.0f} MiB, density matrix {dm_bytes / 2**20:.0f} MiB"
+    )
+    return {
+        "ratio": ratio,
+        "target": "<= 3 (above the interpreter baseline)",
+        "met": ratio <= 3,
+        "qubits": qubits,
+        "baseline_maxrss_mib": baseline["maxrss_bytes"] / 2**20,
+        "assess_maxrss_mib": run["maxrss_bytes"] / 2**20,
+        "density_matrix_mib": dm_bytes / 2**20,
+        "assess_wall_s": run.get("wall_s"),
+        "notes": [
+            "peak resident memory from resource.getrusage(RUSAGE_SELF).ru_maxrss in a fresh child "
+            "process; baseline = python + numpy, scipy, qiskit, qiskit-aer, pyscf and noiselab "
+            "imported, nothing run",
+        ],
+    }
+
+
+# --------------------------------------------------------------------------- scaling
+
+
+def bench_scaling(quick: bool) -> dict[str, Any]:
+    """Assess wall time (context + recipes) against qubit count, and a figure of it."""
+    from noiselab.study.assess import assess
+    from noiselab.study.context import build_context
+
+    sizes = [4, 6, 8] if quick else [4, 6, 8, 10, 12]
+    rows = []
+    for q in sizes:
+        study = load(q)
+        t = time.perf_counter()
+        ctx = build_context(study, cache=None)
+        context_s = time.perf_counter() - t
+        t = time.perf_counter()
+        result = assess(study, cache=False, context=ctx)
+        recipes_s = time.perf_counter() - t
+        rows.append({
+            "qubits": q,
+            "total_s": context_s + recipes_s,
+            "context_s": context_s,
+            "recipes_s": recipes_s,
+            "engine_s": result.stats.engine_seconds,
+            "simulations": result.stats.simulations,
+            "two_qubit_gates": ctx.compiled.two_qubit_count,
+            "depth": ctx.compiled.depth,
+        })  # fmt: skip
+        _say(
+            f"  {q:2d} qubits: total {context_s + recipes_s:7.2f} s (context {context_s:.2f} s, "
+            f"recipes {recipes_s:.2f} s, engine {result.stats.engine_seconds:.2f} s, "
+            f"{result.stats.simulations} simulations)"
+        )
+    figure = _scaling_figure(rows, quick)
+    growth = rows[-1]["total_s"] / rows[0]["total_s"]
+    return {
+        "ratio": growth,
+        "target": "none (reported: total time at the largest size / at the smallest)",
+        "met": None,
+        "rows": rows,
+        "figures": figure,
+        "notes": [
+            "context = problem (PySCF), noiseless optimizer, compile; recipes = assess "
+            "with that context (simulations and mitigation)"
+        ],
+    }
+
+
+def _scaling_figure(rows: list[dict[str, Any]], quick: bool) -> list[str]:
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    from noiselab.common.atomic import atomic_path
+
+    q = [r["qubits"] for r in rows]
+    fig, ax = plt.subplots(figsize=(6.0, 4.2), dpi=120)
+    ax.semilogy(q, [r["total_s"] for r in rows], "o-", label="assess, total (context + recipes)")
+    ax.semilogy(q, [r["recipes_s"] for r in rows], "s--", label="assess, recipes (context given)")
+    ax.semilogy(q, [max(r["engine_s"], 1e-4) for r in rows], "^:", label="density-matrix engine")
+    # reference slope: memory and work per gate of a density matrix grow as 4^n
+    ref = rows[-1]["engine_s"]
+    if ref > 0:
+        ax.semilogy(
+            q,
+            [ref * 4.0 ** (x - q[-1]) for x in q],
+            color="0.6",
+            lw=0.8,
+            label="4^n reference (through the last engine point)",
+        )
+    ax.set_xlabel("logical qubits (H chain, STO-3G, Jordan-Wigner)")
+    ax.set_ylabel("wall time (s)")
+    ax.set_xticks(q)
+    ax.grid(True, which="both", alpha=0.3)
+    ax.legend(fontsize=8)
+    import os
+
+    title = f"noiselab assess time vs qubits ({os.cpu_count()} cores)"
+    ax.set_title(title + (" [quick]" if quick else ""), fontsize=10)
+    fig.tight_layout()
+    stem = results_path().stem + ("-quick" if quick else "")
+    written = []
+    for ext in ("png", "svg"):
+        target = RESULTS / f"scaling-{stem}.{ext}"
+        with atomic_path(target) as tmp:
+            fig.savefig(tmp, format=ext)
+        written.append(str(target.relative_to(HERE.parent)))
+    plt.close(fig)
+    return written
+
+
+# --------------------------------------------------------------------------- driver
+
+BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
+    "overhead": bench_overhead,
+    "sampling": bench_sampling,
+    "grid": bench_grid,
+    "memory": bench_memory,
+    "scaling": bench_scaling,
+}
+
+
+def main(argv: list[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n")[0])
+    parser.add_argument("--quick", action="store_true", help="small problems, to check the scripts")
+    parser.add_argument(
+        "--only",
+        nargs="+",
+        choices=list(BENCHMARKS),
+        metavar="NAME",
+        help=f"run only these ({', '.join(BENCHMARKS)})",
+    )
+    parser.add_argument("--list", action="store_true", help="list the benchmarks and exit")
+    args = parser.parse_args(argv)
+    if args.list:
+        for name, fn in BENCHMARKS.items():
+            print(f"{name:9s} {(fn.__doc__ or '').strip()}")
+        return 0
+    names = args.only or list(BENCHMARKS)
+    machine = machine_info()
+    _say(
+        f"machine: {machine.get('cpu_count')} cores, {machine.get('memory_gib')} GiB, "
+        f"load {machine.get('load_average_1min')}"
+    )
+    failures = 0
+    summary = []
+    out = results_path()
+    for name in names:
+        _say(f"[{name}]{' (quick)' if args.quick else ''}")
+        started = now_utc()
+        t = time.perf_counter()
+        try:
+            entry = BENCHMARKS[name](args.quick)
+        except Exception as exc:  # report and go on with the others
+            failures += 1
+            entry = {"error": f"{type(exc).__name__}: {exc}"}
+            _say(f"  FAILED: {entry['error']}")
+        entry.update(
+            started_utc=started,
+            seconds=round(time.perf_counter() - t, 2),
+            quick=args.quick,
+            machine=machine | {"load_average_1min_after": machine_info().get("load_average_1min")},
+        )
+        record(name + ("-quick" if args.quick else ""), entry, out)
+        summary.append((name, entry))
+    _say("")
+    _say(f"{'benchmark':10s} {'ratio':>10s}  {'target':<40s} met")
+    for name, entry in summary:
+        if "error" in entry:
+            _say(f"{name:10s} {'error':>10s}  {entry['error'][:60]}")
+            continue
+        ratio = entry["ratio"]
+        shown = f"{ratio:.3g}" if math.isfinite(ratio) else str(ratio)
+        _say(f"{name:10s} {shown:>10s}  {entry['target']:<40s} {entry['met']}")
+    _say(f"results: {out}")
+    return 1 if failures else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())
