@@ -73,16 +73,14 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
     from matplotlib.figure import Figure
 
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
-    fig.get_layout_engine().set(rect=(0.0, 0.035, 1.0, 0.965))  # room for the footnote
     FigureCanvasAgg(fig)
     return fig
 
 
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
-    fig.text(
-        0.995, 0.005, CAUTION, ha="right", va="bottom", fontsize=7, style="italic", color="0.4"
-    )
+    # a figure-level x label is laid out below everything else (outside legends included)
+    fig.supxlabel(CAUTION, x=0.995, ha="right", fontsize=7, style="italic", color="0.4")
     ax.grid(True, which="major", alpha=0.3)
 
 
@@ -318,8 +316,15 @@ def _draw_extrapolation(
     ax: Any, data: ExtrapolationFigureData, colors: dict[str, Any], legend: bool
 ) -> None:
     t = data.target_mha
-    ax.axhspan(-t, t, color="tab:green", alpha=0.18, label=f"target band ±{t:.3g} mHa")
-    ax.axhline(0.0, color="k", lw=1.0, label=f"exact energy {data.exact_energy_ha:.6f} Ha")
+    ax.axhspan(
+        -t, t, color="tab:green", alpha=0.18, label=f"target band ±{t:.3g} mHa" if legend else None
+    )
+    ax.axhline(
+        0.0,
+        color="k",
+        lw=1.0,
+        label=f"exact energy {data.exact_energy_ha:.6f} Ha" if legend else None,
+    )
     for s in data.series:
         c = colors[s.recipe]
         ys = [(e - data.exact_energy_ha) * HA_TO_MHA for e in s.energies_ha]
@@ -365,39 +370,39 @@ def plot_extrapolation(assess_result_or_records: Any, path: str | Path) -> Path:
     """Energy error against noise scale for every extrapolating recipe; fit curves to 0.
 
     Points carry error bars of one standard error at the shot budget; the exact energy is the
-    zero line and the target band (exact ± target) is shaded; an inset zooms on the band near
-    zero noise. Returns the path written (format from its suffix).
+    zero line and the target band (exact ± target) is shaded. When the band is thin at full
+    scale a second panel zooms on it. Returns the path written (format from its suffix).
     """
     data = extrapolation_data(assess_result_or_records)
-    fig = _new_figure(7.2, 4.8)
-    ax = fig.add_subplot(1, 1, 1)
     colors = _colors([s.recipe for s in data.series])
+    xmax = max([1.0, *[max(s.scales) for s in data.series if s.scales]])
+    all_y = [0.0] + [
+        (e - data.exact_energy_ha) * HA_TO_MHA for s in data.series for e in s.energies_ha
+    ]
+    zoom = bool(data.series) and (max(all_y) - min(all_y)) > 12 * data.target_mha
+    fig = _new_figure(11.0 if zoom else 8.6, 4.8)
+    if zoom:
+        ax, zx = fig.subplots(1, 2, width_ratios=(1.7, 1.0))
+    else:
+        ax, zx = fig.add_subplot(1, 1, 1), None
     _draw_extrapolation(ax, data, colors, legend=True)
     if not data.series:
         ax.text(
             0.5, 0.5, "no extrapolating recipe in this study", transform=ax.transAxes, ha="center"
         )
-    xmax = max([1.0, *[max(s.scales) for s in data.series if s.scales]])
-    ax.set_xlim(-0.05 * xmax, xmax * 1.08)
-    ax.set_xlabel("noise scale factor (1 = device as profiled)")
+    for a in (ax, zx):
+        if a is not None:
+            a.set_xlim(-0.05 * xmax, xmax * 1.08)
+            a.set_xlabel("noise scale factor (1 = device as profiled)")
     ax.set_ylabel("energy − exact energy (mHa)")
-    ax.legend(fontsize=7, loc="lower right", framealpha=0.9)
-    lo, hi = ax.get_ylim()
-    if data.series and (hi - lo) > 12 * data.target_mha:
-        # the band is thin at full scale: zoom on zero noise
-        ins = ax.inset_axes((0.07, 0.56, 0.34, 0.36))
-        _draw_extrapolation(ins, data, colors, legend=False)
-        ests = [
-            (s.estimate_ha - data.exact_energy_ha) * HA_TO_MHA
-            for s in data.series
-            if s.estimate_ha is not None
-        ]
-        span = max([3.0 * data.target_mha, *[1.3 * abs(e) for e in ests]])
-        ins.set_xlim(-0.05 * xmax, 0.3 * xmax)
-        ins.set_ylim(-span, span)
-        ins.tick_params(labelsize=6)
-        ins.set_title("near zero noise (mHa)", fontsize=7)
-        ins.grid(True, alpha=0.3)
+    if zx is not None:
+        _draw_extrapolation(zx, data, colors, legend=False)
+        zx.set_ylim(-4.0 * data.target_mha, 4.0 * data.target_mha)
+        smallest = min(min(s.scales) for s in data.series if s.scales)
+        zx.set_xlim(-0.08 * smallest, 0.6 * smallest)
+        zx.set_title(f"zoom on the target band (±{4 * data.target_mha:.3g} mHa)", fontsize=9)
+        zx.grid(True, alpha=0.3)
+    fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
     _decorate(fig, ax, "Zero-noise extrapolation", data.study_name, data.device_name)
     return _save(fig, path)
 
@@ -471,7 +476,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     recipe with a ± one-standard-error band at the budget, the target band shaded, crossings
     marked, the device's current value as a vertical line. Writes SVG, PDF and PNG."""
     knob = sweep_result.knob_spec
-    fig = _new_figure(7.2, 4.8)
+    fig = _new_figure(9.4, 4.8)
     ax = fig.add_subplot(1, 1, 1)
     d = knob.display_factor
     xs = [v * d for v in sweep_result.values]
@@ -488,7 +493,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         c = colors[name]
         ls = "--" if _is_raw(name) else "-"
         ax.plot(xs, mag, ls, marker="o", ms=3.5, color=c, lw=1.6, label=name)
-        ax.fill_between(xs, lo, hi, color=c, alpha=0.18, lw=0)
+        ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
     ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
     k = 0
@@ -515,6 +520,17 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         lw=1.3,
         label=f"device now: {knob.show(sweep_result.current_value)}",
     )
+    low = [p.value * d for p in sweep_result.points if getattr(p, "floored", False)]
+    if low:
+        ax.axvspan(
+            min(xs),
+            max(low),
+            color="0.85",
+            alpha=0.5,
+            lw=0,
+            zorder=0,
+            label="gate error below the T1/T2 floor (relaxation alone)",
+        )
     ax.set_yscale("log")
     positive = [v for v in all_vals if v > floor]
     ax.set_ylim(max(min(positive) / 3.0, floor), max(positive) * 3.0)
@@ -523,7 +539,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     ax.set_xlabel(knob.axis_label)
     ax.set_ylabel("|energy − exact energy| (mHa)")
     ax.plot([], [], "X", color="0.5", markeredgecolor="k", label="crossing of the target")
-    ax.legend(fontsize=7, loc="best", framealpha=0.85)
+    fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
     _decorate(
         fig,
         ax,

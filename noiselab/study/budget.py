@@ -10,6 +10,7 @@ in mHa. The compiled circuit and measurement plan are those of the study, reused
 from __future__ import annotations
 
 import dataclasses
+from collections.abc import Callable
 from typing import Any
 
 CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
@@ -87,3 +88,98 @@ def dominant_channel(rows: tuple[BudgetRow, ...], recipe_index: int = 0) -> tupl
         f"against {total.errors_mha[recipe_index]:+.3g} mHa with every channel)"
     )
     return best, sentence
+
+
+def configurations(profile: Any) -> list[tuple[str, str, str | None, Any]]:
+    """(label, kind, channel, profile) for the device as profiled, each channel alone, each
+    channel removed, and the noiseless limit."""
+    from noiselab.device.profile import scale_profile
+
+    out: list[tuple[str, str, str | None, Any]] = [("all channels", "total", None, profile)]
+    for c in CHANNELS:
+        others = [o for o in CHANNELS if o != c]
+        out.append((f"{c} alone", "alone", c, scale_profile(profile, 0.0, others)))
+    for c in CHANNELS:
+        out.append((f"without {c}", "removed", c, scale_profile(profile, 0.0, [c])))
+    out.append(("noiseless", "noiseless", None, scale_profile(profile, 0.0, None)))
+    return out
+
+
+def budget(
+    study_or_path: Any,
+    recipe: str | None = None,
+    *,
+    cache: Any = None,
+    seed: int | None = None,
+    shots: int | None = None,
+    workers: int | None = None,
+    executor: Any = None,
+    progress: Callable[[str, int, int], None] | None = None,
+    context: Any = None,
+) -> BudgetResult:
+    """The error budget of the raw energy (and of ``recipe``, a mitigated recipe of the study).
+
+    ``cache``: a ResultsCache, a path, None (the user cache folder) or False. Every
+    configuration's simulations go through the cache; ``workers`` > 1 runs them in processes.
+    """
+    import time
+
+    from noiselab.study.assess import _default_cache, resolve_study
+    from noiselab.study.context import build_context
+    from noiselab.study.results import RunStats
+    from noiselab.study.sweep import ConfigTask, chosen_recipes, run_configs, stable_experiment
+
+    t0 = time.perf_counter()
+    study = resolve_study(study_or_path, seed, shots)
+    picked = chosen_recipes(study, [] if recipe is None else [recipe])
+    store = _default_cache(cache)
+    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    configs = configurations(study.profile)
+    experiment = stable_experiment(ctx.experiment)
+    tasks = [ConfigTask(experiment, prof, picked, store) for _, _, _, prof in configs]
+    done = [0]
+
+    def finished(i: int, out: Any) -> None:
+        done[0] += 1
+        if progress is not None:
+            progress("error budget", done[0], len(tasks))
+
+    if progress is not None:
+        progress("error budget", 0, len(tasks))
+    outs, described = run_configs(tasks, workers, finished, executor)
+    rows = tuple(
+        BudgetRow(
+            label=label,
+            kind=kind,
+            channel=channel,
+            errors_mha=tuple(float(r.bias_exact_mha) for _, r in out.results),
+            stds_mha=tuple(float(r.std_mha) for _, r in out.results),
+        )
+        for (label, kind, channel, _), out in zip(configs, outs, strict=True)
+    )
+    names = tuple(n for n, _ in picked)
+    dom, sentence = dominant_channel(rows)
+    sentence = f"{names[0]}: {sentence}"
+    if len(names) > 1:
+        _, sentence2 = dominant_channel(rows, 1)
+        sentence += f"; {names[1]}: {sentence2}"
+    stats = RunStats(
+        simulations=sum(o.simulations for o in outs),
+        cache_hits=sum(o.cache_hits for o in outs),
+        engine_seconds=sum(o.engine_seconds for o in outs),
+        wall_seconds=time.perf_counter() - t0,
+        executor=described,
+    )
+    return BudgetResult(
+        study_name=study.name,
+        device_name=str(study.profile.name),
+        recipes=names,
+        target_mha=float(study.target_mha),
+        shots_total=int(study.shots),
+        exact_energy_ha=float(ctx.exact_energy_ha),
+        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
+        rows=rows,
+        dominant=dom,
+        sentence=sentence,
+        stats=stats,
+    )

@@ -110,25 +110,34 @@ def get_knob(name: str) -> Knob:
     return KNOBS[key]
 
 
+def check_value(knob: Knob, value: float, option: str, log: bool = False) -> float:
+    """``value`` (base units) if the knob allows it, else InputError naming ``option``."""
+    v = float(value)
+    if not math.isfinite(v):
+        raise input_error("sweep", option, f"{value} is not a finite number")
+    strict = not knob.allow_zero or log
+    if v < 0 or (v == 0 and strict):
+        raise input_error(
+            "sweep", option, f"{value} is out of range for {knob.name}", "> 0" if strict else ">= 0"
+        )
+    if knob.upper is not None and v > knob.upper:
+        raise input_error(
+            "sweep",
+            option,
+            f"{value} is out of range for {knob.name}",
+            f"0..{knob.upper:g} (a probability; larger is not an error rate)",
+        )
+    return v
+
+
 def knob_values(knob: Knob, start: float, stop: float, points: int, log: bool) -> tuple[float, ...]:
     """``points`` knob values from ``start`` to ``stop`` (base units), evenly or log spaced.
 
-    Raises InputError for values outside the knob's range (negative rates, errors above 1,
-    zero coherence time, zero or negative ends with ``log``) and for fewer than 2 points.
+    Raises InputError for values outside the knob's range (negative rates, errors above the
+    physical maximum, zero coherence time, zero ends with ``log``) and for fewer than 2 points.
     """
-    for opt, v in (("--from", start), ("--to", stop)):
-        if not math.isfinite(v):
-            raise input_error("sweep", opt, f"{v} is not a finite number")
-        if v < 0 or (v == 0 and (not knob.allow_zero or log)):
-            allowed = "> 0" if (not knob.allow_zero or log) else ">= 0"
-            raise input_error("sweep", opt, f"{v} is out of range for {knob.name}", allowed)
-        if knob.upper is not None and v > knob.upper:
-            raise input_error(
-                "sweep",
-                opt,
-                f"{v} is out of range for {knob.name}",
-                f"0..{knob.upper:g} (a probability; larger is not an error rate)",
-            )
+    start = check_value(knob, start, "--from", log)
+    stop = check_value(knob, stop, "--to", log)
     if start == stop:
         raise input_error("sweep", "--from/--to", "the range is empty", "two different values")
     if points < 2:
@@ -178,6 +187,7 @@ class SweepPoint:
     value: float
     factor: float
     entries: tuple[SweepEntry, ...]
+    floored: bool = False  # quoted gate error below the T1/T2 floor: relaxation alone is used
 
     def entry(self, recipe: str) -> SweepEntry:
         for e in self.entries:
@@ -218,6 +228,18 @@ class SweepResult:
     def knob_spec(self) -> Knob:
         return get_knob(self.knob)
 
+    def notes(self) -> tuple[str, ...]:
+        """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
+        knob = self.knob_spec
+        low = [p.value for p in self.points if p.floored]
+        if not low:
+            return ()
+        return (
+            f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what T1/T2 "
+            "alone cause during the gate: the noise model uses relaxation alone there, so the "
+            "error no longer falls with the knob (use coherence-us to lower that floor)",
+        )
+
     @property
     def values(self) -> tuple[float, ...]:
         return tuple(p.value for p in self.points)
@@ -249,6 +271,7 @@ class SweepResult:
                 {
                     "value": p.value,
                     "channel_factor": p.factor,
+                    "below_relaxation_floor": p.floored,
                     "results": [dataclasses.asdict(e) for e in p.entries],
                 }
                 for p in self.points
@@ -351,3 +374,310 @@ def recipe_crossing(
 
 
 PointHook = Callable[[int, SweepPoint], None]
+
+
+# ---------------------------------------------------------------- running configurations
+
+
+@dataclasses.dataclass(frozen=True)
+class ConfigTask:
+    """One noise configuration to evaluate: the study's experiment with ``profile`` swapped in,
+    every recipe run through a caching runner on ``cache`` (picklable: executor task)."""
+
+    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    profile: Any  # DeviceProfile of this configuration
+    recipes: tuple[tuple[str, tuple[dict[str, Any], ...]], ...]
+    cache: Any  # ResultsCache (reopened in a worker process)
+
+
+@dataclasses.dataclass(frozen=True)
+class ConfigOutcome:
+    """Every recipe's result for one configuration and what it cost."""
+
+    results: tuple[tuple[str, Any], ...]  # (recipe name, RecipeResult)
+    simulations: int
+    cache_hits: int
+    engine_seconds: float
+
+
+def run_config(task: ConfigTask) -> ConfigOutcome:
+    """Run ``task`` (module level, so process pools and dask can run it)."""
+    from noiselab.mitigate.recipe import run_recipe
+    from noiselab.study.cache import CachingRunner
+
+    experiment = dataclasses.replace(task.experiment, profile=task.profile)
+    runner = CachingRunner(experiment, task.cache)
+    results = tuple(
+        (name, run_recipe(list(passes), experiment, runner)) for name, passes in task.recipes
+    )
+    return ConfigOutcome(results, runner.simulations, runner.cache_hits, runner.engine_seconds)
+
+
+RAW_RECIPE = "raw"
+STABLE_CIRCUIT_NAME = "noiselab-compiled"
+
+
+def stable_experiment(experiment: Any) -> Any:
+    """The experiment with its compiled circuit renamed to a fixed name.
+
+    qiskit names unnamed circuits ``circuit-<counter>``, and the name enters the circuit's QPY
+    bytes and so the simulation cache key: without this, a second build of the same study in
+    one process (a resumed sweep in a notebook, say) would miss every cached simulation.
+    """
+    compiled = experiment.compiled
+    circuit = compiled.circuit
+    if circuit.name == STABLE_CIRCUIT_NAME:
+        return experiment
+    renamed = dataclasses.replace(compiled, circuit=circuit.copy(name=STABLE_CIRCUIT_NAME))
+    return dataclasses.replace(experiment, compiled=renamed)
+
+
+def chosen_recipes(
+    study: Any, names: Sequence[str] | None, where: str = "--recipe"
+) -> tuple[tuple[str, tuple[dict[str, Any], ...]], ...]:
+    """Raw (no passes) first, then the named recipes of the study (default: all of them).
+
+    A study recipe with no passes already is the raw one; otherwise ``raw`` is added.
+    """
+    all_recipes = dict(study.recipes)
+    if names is None:
+        picked = list(all_recipes)
+        defaults = getattr(getattr(study, "sweep", None), "recipes", None)
+        if defaults:
+            picked = list(defaults)
+    else:
+        picked = list(dict.fromkeys(names))
+    for n in picked:
+        if n not in all_recipes and n != RAW_RECIPE:
+            raise input_error(
+                str(study.source), where, f"unknown recipe {n!r}", ", ".join(all_recipes)
+            )
+    raw_name = next((n for n, p in all_recipes.items() if len(p) == 0), None)
+    out: list[tuple[str, tuple[dict[str, Any], ...]]] = [(raw_name or RAW_RECIPE, ())]
+    for n in picked:
+        if n == out[0][0] or n == RAW_RECIPE:
+            continue
+        out.append((n, tuple(all_recipes[n])))
+    return tuple(out)
+
+
+def run_configs(
+    tasks: Sequence[ConfigTask],
+    workers: int | None,
+    on_done: Callable[[int, ConfigOutcome], None] | None = None,
+    executor: Any = None,
+) -> tuple[list[ConfigOutcome], str]:
+    """Evaluate ``tasks`` in order, in-process or through the study executor; ``on_done(i, out)``
+    runs in the calling process after each task (in task order for in-process runs)."""
+    from noiselab.study.executor import make_executor
+
+    own = executor is None
+    ex = make_executor(workers) if own else executor
+    try:
+        if getattr(ex, "parallelism", 1) <= 1:
+            outs = []
+            for i, t in enumerate(tasks):
+                out = run_config(t)
+                outs.append(out)
+                if on_done is not None:
+                    on_done(i, out)
+            return outs, str(getattr(ex, "description", "in-process"))
+        cb = None if on_done is None else (lambda i, out: on_done(i, out))
+        return list(ex.map(run_config, list(tasks), on_result=cb)), str(ex.description)
+    finally:
+        if own:
+            ex.close()
+
+
+def entry_from(name: str, r: Any) -> SweepEntry:
+    """A SweepEntry from a RecipeResult."""
+    return SweepEntry(
+        recipe=name,
+        energy_ha=float(r.energy_ha),
+        error_mha=float(r.bias_exact_mha),
+        std_mha=float(r.std_mha),
+        bias_ansatz_mha=float(r.bias_ansatz_mha),
+        p_within_target=float(r.p_within_target),
+        limited_by=str(r.limited_by),
+    )
+
+
+# ---------------------------------------------------------------- reference values
+
+
+def _patch_pairs(profile: Any, patch: Sequence[int]) -> list[tuple[int, int]]:
+    inside = set(patch)
+    pairs = [p for p in profile.pairs() if p[0] in inside and p[1] in inside]
+    return pairs or list(profile.pairs())
+
+
+def reference_value(knob: Knob, profile: Any, patch: Sequence[int]) -> float:
+    """The device's value of the knob (base units): its mean over the circuit's qubits or pairs."""
+    if knob.channels is None:
+        return 1.0
+    qubits = [profile.qubit(q) for q in patch]
+    if knob.name == "two-qubit-error":
+        pairs = _patch_pairs(profile, patch)
+        return sum(profile.pair_error(a, b) for a, b in pairs) / max(len(pairs), 1)
+    if knob.name == "one-qubit-error":
+        return sum(q.gate_error for q in qubits) / len(qubits)
+    if knob.name == "readout-error":
+        return sum(0.5 * (q.p_read1_prep0 + q.p_read0_prep1) for q in qubits) / len(qubits)
+    if knob.name == "coherence-us":
+        t1 = [q.t1_us for q in qubits]
+        if any(t is None for t in t1):
+            raise input_error(
+                profile.source,
+                "qubits.default.t1_us",
+                "infinite T1 cannot be swept",
+                "finite T1 and T2",
+            )
+        return sum(t1) / len(t1)  # type: ignore[arg-type]
+    raise AssertionError(knob.name)  # pragma: no cover
+
+
+def below_relaxation_floor(knob: Knob, profile: Any, patch: Sequence[int]) -> bool:
+    """True when a gate-error knob's scaled value is below what T1/T2 alone cause over the gate
+    on some qubit or pair of the patch (the noise model then uses relaxation alone, so lowering
+    the knob further changes nothing)."""
+    from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity
+
+    if knob.name == "two-qubit-error":
+        gate = profile.two_qubit_gate
+        return any(
+            profile.pair_error(a, b) < relaxation_gate_infidelity(profile, gate, (a, b))
+            for a, b in _patch_pairs(profile, patch)
+        )
+    if knob.name == "one-qubit-error":
+        physical = [g for g in profile.single_qubit_gates if g not in VIRTUAL_GATES]
+        if not physical:
+            return False
+        return any(
+            profile.qubit(q).gate_error < relaxation_gate_infidelity(profile, physical[0], (q,))
+            for q in patch
+        )
+    return False
+
+
+def default_range(knob: Knob, reference: float) -> tuple[float, float]:
+    """A quarter to four times the device's value (clipped to the knob's range)."""
+    lo, hi = reference / 4.0, reference * 4.0
+    if knob.upper is not None:
+        hi = min(hi, knob.upper)
+    return lo, hi
+
+
+# ---------------------------------------------------------------- the job
+
+
+ProgressHook = Callable[[str, int, int], None]
+
+
+def sweep(
+    study_or_path: Any,
+    knob: str = "noise-scale",
+    start: float | None = None,
+    stop: float | None = None,
+    points: int = 5,
+    log: bool = False,
+    *,
+    recipes: Sequence[str] | None = None,
+    values: Sequence[float] | None = None,
+    cache: Any = None,
+    seed: int | None = None,
+    shots: int | None = None,
+    workers: int | None = None,
+    executor: Any = None,
+    progress: ProgressHook | None = None,
+    on_point: PointHook | None = None,
+    context: Any = None,
+) -> SweepResult:
+    """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
+
+    ``values`` gives the knob values explicitly instead. ``cache``: a ResultsCache, a path, None
+    (the user cache folder) or False. ``workers`` > 1 runs points in local processes.
+    ``on_point(index, point)`` is called in the calling process as each point finishes.
+    Defaults: a quarter to four times the device's value; for ``noise-scale`` the study's
+    ``sweep.factors`` when given.
+    """
+    import time
+
+    from noiselab.device.profile import scale_profile
+    from noiselab.study.assess import _default_cache, resolve_study
+    from noiselab.study.context import build_context
+    from noiselab.study.results import RunStats
+
+    t0 = time.perf_counter()
+    spec = get_knob(knob)
+    study = resolve_study(study_or_path, seed, shots)
+    picked = chosen_recipes(study, recipes)
+    store = _default_cache(cache)
+    if points < 2 and values is None:
+        raise input_error("sweep", "--points", f"{points} points", "2 or more")
+    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    profile = study.profile
+    patch = tuple(ctx.compiled.patch)
+    ref = reference_value(spec, profile, patch)
+    if values is None:
+        factors = getattr(getattr(study, "sweep", None), "factors", None)
+        if spec.channels is None and start is None and stop is None and factors:
+            values = sorted(check_value(spec, f, "sweep.factors", log) for f in factors)
+        else:
+            d_lo, d_hi = default_range(spec, ref)
+            values = knob_values(
+                spec, d_lo if start is None else start, d_hi if stop is None else stop, points, log
+            )
+    values = tuple(float(v) for v in values)
+    factors_used = tuple(knob_factor(spec, v, ref) for v in values)
+    channels = None if spec.channels is None else list(spec.channels)
+    profiles = [scale_profile(profile, f, channels) for f in factors_used]
+    floored = [below_relaxation_floor(spec, p, patch) for p in profiles]
+    experiment = stable_experiment(ctx.experiment)
+    tasks = [ConfigTask(experiment, p, picked, store) for p in profiles]
+    label = f"sweep {spec.name}"
+    done_points: dict[int, SweepPoint] = {}
+
+    def finished(i: int, out: ConfigOutcome) -> None:
+        point = SweepPoint(
+            values[i], factors_used[i], tuple(entry_from(n, r) for n, r in out.results), floored[i]
+        )
+        done_points[i] = point
+        if progress is not None:
+            progress(label, len(done_points), len(tasks))
+        if on_point is not None:
+            on_point(i, point)
+
+    if progress is not None:
+        progress(label, 0, len(tasks))
+    outs, described = run_configs(tasks, workers, finished, executor)
+    pts = tuple(
+        done_points.get(i)
+        or SweepPoint(
+            values[i], factors_used[i], tuple(entry_from(n, r) for n, r in o.results), floored[i]
+        )
+        for i, o in enumerate(outs)
+    )
+    names = tuple(n for n, _ in picked)
+    crossings = tuple(recipe_crossing(n, spec, pts, study.target_mha, log) for n in names)
+    stats = RunStats(
+        simulations=sum(o.simulations for o in outs),
+        cache_hits=sum(o.cache_hits for o in outs),
+        engine_seconds=sum(o.engine_seconds for o in outs),
+        wall_seconds=time.perf_counter() - t0,
+        executor=described,
+    )
+    return SweepResult(
+        study_name=study.name,
+        device_name=str(profile.name),
+        knob=spec.name,
+        log=log,
+        current_value=ref,
+        target_mha=float(study.target_mha),
+        shots_total=int(study.shots),
+        exact_energy_ha=float(ctx.exact_energy_ha),
+        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
+        recipes=names,
+        points=pts,
+        crossings=crossings,
+        stats=stats,
+    )
