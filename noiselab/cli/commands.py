@@ -16,3 +16,6 @@ REGISTRY.append(study_cmds.register)
 from noiselab.cli import profile_cmd  # noqa: E402  (profile check, profile show)
 
 REGISTRY.append(profile_cmd.register)
+from noiselab.cli import sweep_cmds  # noqa: E402  (sweep, budget)
+
+REGISTRY.append(sweep_cmds.register)
