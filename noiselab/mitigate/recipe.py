@@ -132,6 +132,9 @@ def build_context(
 # ---- circuit variants: folded / scaled inputs, runner, cache keys -----------------------------
 
 
+_TARGETS: dict[tuple[str, tuple[int, ...]], Any] = {}
+
+
 def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tuple[Any, float]:
     """(CompiledCircuit folded in native gates and re-scheduled, scale actually reached).
 
@@ -148,7 +151,11 @@ def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tup
     from noiselab.mitigate.folding import fold_circuit
 
     res = fold_circuit(compiled.circuit, method, scale)
-    target = build_target(profile, compiled.patch)
+    key = (profile.model_dump_json(), tuple(compiled.patch))
+    if key not in _TARGETS:  # building a target evaluates every gate channel: keep it
+        _TARGETS.clear()
+        _TARGETS[key] = build_target(profile, compiled.patch)
+    target = _TARGETS[key]
     k = compiled.circuit.num_qubits
     out = transpile(
         res.circuit,
@@ -216,6 +223,13 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
     compiled, profile, _ = variant_inputs(ctx, variant)
     buf = io.BytesIO()
     qpy.dump(compiled.circuit, buf)
+    method = ctx.emulation_method
+    try:
+        from noiselab.emulate.engine import choose_method
+
+        method = choose_method(compiled.circuit.num_qubits, method)[0]
+    except (ImportError, InputError):
+        pass
     return {
         "variant": variant.as_dict(),
         "circuit_qpy_sha256": hashlib.sha256(buf.getvalue()).hexdigest(),
@@ -223,8 +237,9 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
         "logical_to_circuit": list(compiled.logical_to_circuit),
         "profile": json.loads(profile.model_dump_json()),
         "bases": list(ctx.measured_bases),
-        "method": ctx.emulation_method,
-        "seed": ctx.seed,
+        "method": method,
+        # density-matrix results do not depend on the seed; trajectories do
+        "seed": ctx.seed if method != "density_matrix" else None,
     }
 
 
@@ -592,6 +607,7 @@ def run_recipe(
         per_variant_std = ev.per_variant
         var_meas, var_cal = _split_variance(est_for_std, probs_for_std, all_shots)
 
+    traj_std = _trajectory_std(ev1.estimate, dists, variants, bases)
     energy = float(ev.estimate.value)
     std_ha = math.sqrt(var_meas + var_cal)
     bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
@@ -630,6 +646,9 @@ def run_recipe(
     details["bases"] = list(bases)
     details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
     details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
+    if traj_std is not None:
+        # emulation error of the trajectory method (not part of std_mha: no device has it)
+        details["trajectory_std_mha"] = traj_std * HA_TO_MHA
     cal_total = int(sum(n for n in ev1.cal.shots.values() if n is not None))
     details["calibration_shots_total"] = cal_total
     details["calibration_circuits"] = len(ev1.cal.shots)
@@ -672,6 +691,31 @@ def run_recipe(
         details=_jsonable(details),
         sampled=bool(sampled),
     )
+
+
+def _trajectory_std(
+    est: Estimate,
+    dists: Mapping[CircuitVariant, Any],
+    variants: tuple[CircuitVariant, ...],
+    bases: tuple[str, ...],
+) -> float | None:
+    """Trajectory standard error of the estimate (linearized), or None for exact emulation."""
+    total = 0.0
+    found = False
+    for v in variants:
+        batches = getattr(dists[v], "trajectory_batches", None)
+        if batches is None:
+            continue
+        found = True
+        d = dists[v]
+        vals = np.zeros(batches.shape[0])
+        for b in bases:
+            u = est.influence.get(meas_key(v, b))
+            if u is not None:
+                vals += batches[:, d.bases.index(b), :] @ u
+        if len(vals) > 1:
+            total += float(vals.var(ddof=1)) / len(vals)
+    return math.sqrt(total) if found else None
 
 
 def _two_qubit_count(ctx: ExperimentContext, variant: CircuitVariant) -> int | None:
