@@ -146,8 +146,13 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
     from noiselab.mitigate.recipe import build_context, make_calibrator, make_runner, run_recipe
     from noiselab.mitigate.registry import make_pass
 
+    from noiselab.device.compile import compile_to_device
+
     qp, opt, profile, compiled = h2_device
     readout_only = scale_profile(profile, 0.0, STRETCH_CHANNELS)  # all but readout switched off
+    # a patch whose pairs (5, 6) and (6, 7) carry correlated readout flips in the profile
+    compiled = compile_to_device(compiled.circuit, profile, layout=[5, 6, 7, 2], seed=7)
+    assert compiled.patch == (5, 6, 7, 2)
     ctx = build_context(qp, compiled, readout_only, ansatz_energy_ha=opt.energy_ha, shots=10_000)
     runner = make_runner(ctx)
     raw = run_recipe([], ctx, runner)
@@ -158,8 +163,8 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
     # source: PySCF FCI (the noiseless UCCSD optimum equals it for H2)
     assert abs(fixed.energy_ha - qp.exact_energy_ha) < 1e-8
     per_qubit = run_recipe([{"pass": "readout", "calibration_shots": 0}], ctx, runner)
-    # per-qubit inversion cannot undo the profile's correlated joint flips (crosstalk)
-    assert abs(per_qubit.bias_exact_mha) < abs(raw.bias_exact_mha)
+    # per-qubit inversion cannot undo correlated joint flips (crosstalk): it helps, not fully
+    assert 1e-3 < abs(per_qubit.bias_exact_mha) < abs(raw.bias_exact_mha)
 
     d = runner(CircuitVariant())
     cal = make_calibrator(ctx)
