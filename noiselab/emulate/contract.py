@@ -19,7 +19,7 @@ from collections.abc import Hashable, Sequence
 
 import numpy as np
 
-from noiselab.emulate.readout import apply_readout
+from noiselab.emulate.readout import apply_on_axis, apply_readout
 
 #: Negative probabilities above this (in magnitude) are rounding noise and are clipped to 0.
 CLIP_TOL = 1e-9
@@ -162,7 +162,7 @@ def sv_batch_mean_distributions(
             if v is None:
                 rec(x, depth + 1, members_g)
             else:
-                y = np.moveaxis(np.tensordot(v.conj().T, x, axes=([1], [ax])), 0, ax)
+                y = apply_on_axis(x, v.conj().T, ax)
                 rec(y, depth + 1, members_g)
 
     rec(x, 0, list(range(len(rotations))))
