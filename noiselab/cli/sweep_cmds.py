@@ -115,6 +115,8 @@ def sweep_cmd(
     _print(sweep_table(result))
     for c in result.crossings:
         typer.echo(c.sentence + ".")
+    for note in result.notes():
+        typer.echo(f"Note: {note}.")
     typer.echo("Caution: emulated; only as good as the device noise model.")
     if result.stats is not None:
         s = result.stats

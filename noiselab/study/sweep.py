@@ -614,6 +614,15 @@ def sweep(
     store = _default_cache(cache)
     if points < 2 and values is None:
         raise input_error("sweep", "--points", f"{points} points", "2 or more")
+    # refuse a bad range before the (slow) context is built
+    if start is not None:
+        check_value(spec, start, "--from", log)
+    if stop is not None:
+        check_value(spec, stop, "--to", log)
+    if values is not None:
+        values = [check_value(spec, v, "values", log) for v in values]
+        if len(values) < 1:
+            raise input_error("sweep", "values", "no knob values", "at least one value")
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     profile = study.profile
     patch = tuple(ctx.compiled.patch)
