@@ -17,7 +17,12 @@ BAD = ROOT / "tests" / "data" / "bad_studies"
 STUDIES = ROOT / "configs" / "studies"
 BAD_FILES = sorted(BAD.glob("*.yaml"))
 # a few go through a real subprocess (python -m noiselab), the rest through main() in-process
-SUBPROCESS_FILES = {"bad_profile_path.yaml", "unknown_pass.yaml", "empty.yaml", "too_many_qubits.yaml"}
+SUBPROCESS_FILES = {
+    "bad_profile_path.yaml",
+    "unknown_pass.yaml",
+    "empty.yaml",
+    "too_many_qubits.yaml",
+}
 
 
 def _expected(path: Path) -> str:

@@ -56,6 +56,17 @@ def main(argv: list[str] | None = None) -> None:
     """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
     import click
 
+    # recent typer vendors its own copy of click (typer._click): catch both kinds
+    usage_errors: tuple[type[Exception], ...] = (click.exceptions.UsageError,)
+    click_errors: tuple[type[Exception], ...] = (click.exceptions.ClickException,)
+    try:
+        from typer._click import exceptions as typer_click_exceptions
+
+        usage_errors += (typer_click_exceptions.UsageError,)
+        click_errors += (typer_click_exceptions.ClickException,)
+    except ImportError:  # pragma: no cover - typer using click itself
+        pass
+
     from noiselab.common.errors import NoiselabError
 
     _register_commands()
@@ -66,7 +77,7 @@ def main(argv: list[str] | None = None) -> None:
     except NoiselabError as exc:
         typer.echo(f"noiselab: error: {exc.message}", err=True)
         sys.exit(exc.exit_code)
-    except click.exceptions.UsageError as exc:
+    except usage_errors as exc:
         hint = f" (see '{exc.ctx.command_path} --help')" if exc.ctx is not None else ""
         typer.echo(f"noiselab: error: {exc.format_message()}{hint}", err=True)
         sys.exit(2)
@@ -76,7 +87,7 @@ def main(argv: list[str] | None = None) -> None:
     except KeyboardInterrupt:
         typer.echo("noiselab: interrupted; finished results are kept in the cache", err=True)
         sys.exit(130)
-    except click.exceptions.ClickException as exc:
+    except click_errors as exc:
         typer.echo(f"noiselab: error: {exc.format_message()}", err=True)
         sys.exit(exc.exit_code)
     except Exception as exc:  # an internal failure: still one line unless debugging
