@@ -1,0 +1,103 @@
+"""``noiselab sweep`` / ``noiselab budget`` on the command line: exit codes, one-line errors."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pytest
+
+from noiselab.cli.app import main
+
+# H2 / STO-3G, parity with the two-qubit reduction: 2 qubits (REFERENCES.md); invented chip
+TINY_STUDY = """\
+name: h2-tiny-cli
+molecule:
+  geometry: "H 0 0 0; H 0 0 0.735"
+  basis: sto-3g
+encoding: parity
+two_qubit_reduction: true
+ansatz: {kind: uccsd}
+device:
+  schema_version: 1
+  name: tiny-cli-chip
+  qubit_count: 2
+  links: [[0, 1]]
+  native_gates: {single_qubit: [rz, sx, x], two_qubit: cz}
+  durations: {single_qubit_ns: 35, two_qubit_ns: 300, readout_ns: 1500}
+  qubits:
+    default: {t1_us: 150, t2_us: 120, gate_error: 3.0e-4, p_read1_prep0: 0.005,
+              p_read0_prep1: 0.01}
+  couplers:
+    default: {gate_error: 1.0e-2}
+shots: 100000
+seed: 2
+recipes:
+  raw: []
+  zne:
+    - {pass: readout, calibration_shots: 0}
+    - {pass: extrapolate, scales: [1, 2, 3], fit: richardson}
+"""
+
+
+@pytest.fixture(scope="module")
+def study(tmp_path_factory: pytest.TempPathFactory) -> Path:
+    p = tmp_path_factory.mktemp("cli") / "h2-tiny-cli.yaml"
+    p.write_text(TINY_STUDY, encoding="utf-8")
+    return p
+
+
+def _run(argv: list[str], capsys: pytest.CaptureFixture[str]) -> tuple[int, str, str]:
+    with pytest.raises(SystemExit) as info:
+        main(argv)
+    out, err = capsys.readouterr()
+    return int(info.value.code or 0), out, err
+
+
+@pytest.mark.parametrize(
+    ("extra", "needle"),
+    [
+        (["--vary", "gate-fidelity"], "--vary"),  # not a knob
+        (["--vary", "two-qubit-error", "--from", "-0.01", "--to", "0.02"], "--from"),  # negative
+        (["--vary", "one-qubit-error", "--from", "0.001", "--to", "1.5"], "--to"),  # error > 1
+        (["--vary", "readout-error", "--from", "0.01", "--to", "0.6"], "--to"),  # worse than a coin
+        (["--vary", "coherence-us", "--from", "0", "--to", "100"], "--from"),  # zero T1
+        (["--vary", "noise-scale", "--from", "0", "--to", "2", "--log"], "--from"),  # log of 0
+        (["--vary", "noise-scale", "--points", "1"], "--points"),
+        (["--vary", "noise-scale", "--recipe", "nonesuch"], "--recipe"),
+    ],
+)
+def test_bad_sweep_input_exits_2_with_one_line(
+    study: Path, tmp_path: Path, extra: list[str], needle: str, capsys: pytest.CaptureFixture[str]
+) -> None:
+    rc, out, err = _run(["sweep", str(study), "--no-cache", "--quiet", *extra], capsys)
+    assert rc == 2
+    assert out == ""
+    lines = err.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("noiselab: error:") and needle in lines[0]
+
+
+def test_bad_budget_recipe_and_missing_study(
+    study: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    rc, _, err = _run(["budget", str(study), "--no-cache", "--recipe", "nonesuch"], capsys)
+    assert rc == 2 and "nonesuch" in err and len(err.strip().splitlines()) == 1
+    rc, _, err = _run(["sweep", str(tmp_path / "missing.yaml"), "--vary", "scale"], capsys)
+    assert rc == 2 and "not found" in err
+
+
+def test_sweep_writes_files_and_states_the_crossing(
+    study: Path, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    out_dir = tmp_path / "out"
+    argv = ["sweep", str(study), "--cache", str(tmp_path / "c.sqlite"), "--quiet"]
+    argv += ["--vary", "two-qubit-error", "--from", "0.005", "--to", "0.05", "--points", "3"]
+    argv += ["--log", "--out", str(out_dir)]
+    rc, out, err = _run(argv, capsys)
+    assert rc == 0, err
+    assert "two-qubit gate error (%)" in out  # the table header, with its unit
+    assert "raw " in out and "zne " in out
+    sentences = [line for line in out.splitlines() if "chemical accuracy" in line]
+    assert any(line.startswith("zne ") for line in sentences)
+    stem = "sweep-two-qubit-error"
+    for ext in ("csv", "json", "svg", "pdf", "png"):
+        assert (out_dir / f"{stem}.{ext}").is_file()
