@@ -145,7 +145,9 @@ def test_noise_scale_one_is_the_device(study_path: Path, tmp_path: Path) -> None
     store = open_cache(tmp_path / "c.sqlite")
     a = assess(study_path, cache=store)
     res = sweep(study_path, knob="noise-scale", values=[1.0], recipes=["raw"], cache=store)
-    # a sweep point at scale 1 is the assessed experiment itself: the same energy
+    # a sweep point at scale 1 is the assessed experiment itself: the same simulation (read
+    # from the cache) and the same energy
+    assert res.stats.simulations == 0
     assert res.points[0].entry("raw").energy_ha == pytest.approx(
         a.recipes["raw"].energy_ha, abs=1e-12
     )

@@ -127,7 +127,7 @@ def budget(
     from noiselab.study.assess import _default_cache, resolve_study
     from noiselab.study.context import build_context
     from noiselab.study.results import RunStats
-    from noiselab.study.sweep import ConfigTask, chosen_recipes, run_configs, stable_experiment
+    from noiselab.study.sweep import ConfigTask, chosen_recipes, run_configs
 
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots)
@@ -135,8 +135,7 @@ def budget(
     store = _default_cache(cache)
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     configs = configurations(study.profile)
-    experiment = stable_experiment(ctx.experiment)
-    tasks = [ConfigTask(experiment, prof, picked, store) for _, _, _, prof in configs]
+    tasks = [ConfigTask(ctx.experiment, prof, picked, store) for _, _, _, prof in configs]
     done = [0]
 
     def finished(i: int, out: Any) -> None:

@@ -414,22 +414,6 @@ def run_config(task: ConfigTask) -> ConfigOutcome:
 
 
 RAW_RECIPE = "raw"
-STABLE_CIRCUIT_NAME = "noiselab-compiled"
-
-
-def stable_experiment(experiment: Any) -> Any:
-    """The experiment with its compiled circuit renamed to a fixed name.
-
-    qiskit names unnamed circuits ``circuit-<counter>``, and the name enters the circuit's QPY
-    bytes and so the simulation cache key: without this, a second build of the same study in
-    one process (a resumed sweep in a notebook, say) would miss every cached simulation.
-    """
-    compiled = experiment.compiled
-    circuit = compiled.circuit
-    if circuit.name == STABLE_CIRCUIT_NAME:
-        return experiment
-    renamed = dataclasses.replace(compiled, circuit=circuit.copy(name=STABLE_CIRCUIT_NAME))
-    return dataclasses.replace(experiment, compiled=renamed)
 
 
 def chosen_recipes(
@@ -641,8 +625,7 @@ def sweep(
     channels = None if spec.channels is None else list(spec.channels)
     profiles = [scale_profile(profile, f, channels) for f in factors_used]
     floored = [below_relaxation_floor(spec, p, patch) for p in profiles]
-    experiment = stable_experiment(ctx.experiment)
-    tasks = [ConfigTask(experiment, p, picked, store) for p in profiles]
+    tasks = [ConfigTask(ctx.experiment, p, picked, store) for p in profiles]
     label = f"sweep {spec.name}"
     done_points: dict[int, SweepPoint] = {}
 
