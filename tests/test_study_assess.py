@@ -147,10 +147,16 @@ def test_second_assess_runs_no_simulation(cli_runs: dict) -> None:
     from noiselab.study.assess import assess
     from noiselab.study.cache import open_cache
 
-    result = assess(H2, cache=open_cache(cli_runs["cache_a"]), seed=11)
+    store = open_cache(cli_runs["cache_a"])
+    # recomputed from the cached simulations (and cached noiseless optimum)
+    result = assess(H2, cache=store, seed=11, reuse=False)
     assert result.stats.simulations == 0
     assert result.stats.cache_hits > 0
     assert result.to_json() == cli_runs["a"]
+    # or the whole stored result of the identical earlier command
+    reused = assess(H2, cache=store, seed=11)
+    assert reused.stats.reused and reused.stats.simulations == 0
+    assert reused.to_json() == cli_runs["a"]
 
 
 def test_cache_keys_follow_what_is_simulated(study, context, tmp_path: Path) -> None:

@@ -7,12 +7,14 @@ repeated assess reads every simulation from the results cache.
 
 from __future__ import annotations
 
+import contextlib
+import json
 import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
-from noiselab.study.cache import CachingRunner, ResultsCache, open_cache
+from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
 from noiselab.study.context import StudyContext, build_context
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study, load_study
@@ -101,16 +103,27 @@ def assess(
     shots: int | None = None,
     progress: ProgressHook | None = None,
     context: StudyContext | None = None,
+    reuse: bool = True,
 ) -> AssessResult:
     """Run every recipe of the study at its budget and name the best.
 
     ``cache``: a ResultsCache, a path, None (the user cache folder) or False (no cache).
     ``seed`` / ``shots`` override the study's. ``progress(description, done, total)`` is called
     as steps finish. ``context`` reuses an already built context of the same study.
+    ``reuse``: return the stored result of an identical earlier assess of the same files (a
+    study given as a path; False recomputes, still reading simulations from the cache).
     """
     t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots)
     store = _default_cache(cache)
+    key = None
+    if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
+        key = job_key("assess", study_or_path, {"seed": seed, "shots": shots})
+        hit = store.get(JOB_KIND, key) if key is not None else None
+        if hit is not None:
+            with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
+                return AssessResult.from_record(json.loads(hit[0]), stats)
+    study = resolve_study(study_or_path, seed, shots)
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
@@ -125,7 +138,7 @@ def assess(
         engine_seconds=runner.engine_seconds,
         wall_seconds=time.perf_counter() - t0,
     )
-    return AssessResult(
+    result = AssessResult(
         context=ctx.summary(),
         target_mha=study.target_mha,
         confidence=study.confidence,
@@ -138,6 +151,9 @@ def assess(
         verdict=verdict,
         stats=stats,
     )
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    return result
 
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:

@@ -393,3 +393,49 @@ class CachingRunner:
 
         executor.map(_simulate, [(self.experiment, v) for v in todo], on_result=finished)
         return total
+
+
+# ---------------------------------------------------------------- whole-job results
+
+JOB_KIND = "job-result-v1"
+_SOURCE_DIGEST: str | None = None
+
+
+def source_digest() -> str:
+    """SHA-256 over noiselab's own source files (an edited checkout invalidates job results)."""
+    global _SOURCE_DIGEST
+    if _SOURCE_DIGEST is None:
+        root = Path(__file__).resolve().parents[1]
+        h = hashlib.sha256()
+        for p in sorted(root.rglob("*.py")):
+            h.update(str(p.relative_to(root)).encode())
+            h.update(p.read_bytes())
+        _SOURCE_DIGEST = h.hexdigest()
+    return _SOURCE_DIGEST
+
+
+def job_key(job: str, study_path: str | Path, options: dict[str, Any]) -> str | None:
+    """Key of a whole job on a study file: the file's bytes, its device file's bytes, the
+    options, noiselab's source and the package versions (PySCF included). None when the
+    inputs cannot be read cheaply (the job then runs and reports the problem itself)."""
+    from noiselab.common.yamlio import parse_yaml_mapping
+
+    p = Path(study_path)
+    try:
+        raw = p.read_bytes()
+        data = parse_yaml_mapping(raw.decode("utf-8"), str(p))
+        device = data.get("device")
+        device_bytes = b""
+        if isinstance(device, str):
+            dp = Path(device).expanduser()
+            dp = dp if dp.is_absolute() else p.parent / dp
+            device_bytes = dp.read_bytes()
+    except (OSError, UnicodeDecodeError, InputError):
+        return None
+    from importlib import metadata
+
+    try:
+        pyscf_version = metadata.version("pyscf")
+    except metadata.PackageNotFoundError:
+        pyscf_version = "absent"
+    return digest(JOB_KIND, job, str(p), raw, device_bytes, options, source_digest(), pyscf_version)

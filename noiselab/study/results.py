@@ -23,6 +23,28 @@ CAUTION = (
 
 
 @dataclasses.dataclass(frozen=True)
+class StoredRecipe:
+    """A recipe result read back from the results cache: the fields of mitigate's RecipeResult
+    (energies in Ha, biases and standard errors in mHa), without importing that layer."""
+
+    recipe: str
+    spec: tuple[dict[str, Any], ...]
+    energy_ha: float
+    bias_exact_mha: float
+    bias_ansatz_mha: float
+    std_mha: float
+    shots_total: int
+    shots_per_circuit: dict[str, int]
+    n_circuits: int
+    engine_seconds: float
+    p_within_target: float
+    shots_needed: int | None
+    limited_by: str
+    details: dict[str, Any] = dataclasses.field(default_factory=dict)
+    sampled: bool = False
+
+
+@dataclasses.dataclass(frozen=True)
 class RunStats:
     """How a job ran: new simulations, cache hits, seconds (not part of the deterministic JSON)."""
 
@@ -31,6 +53,7 @@ class RunStats:
     engine_seconds: float
     wall_seconds: float
     executor: str = "in-process"
+    reused: bool = False  # the whole result came from the results cache
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -39,6 +62,7 @@ class RunStats:
             "engine_seconds": round(self.engine_seconds, 4),
             "wall_seconds": round(self.wall_seconds, 4),
             "executor": self.executor,
+            "reused_cached_result": self.reused,
         }
 
 
@@ -114,7 +138,12 @@ def _target_words(target_mha: float) -> str:
 
 
 def verdict_line(
-    best_name: str, best: Any, target_mha: float, confidence: float, shots: int
+    best_name: str,
+    best: Any,
+    target_mha: float,
+    confidence: float,
+    shots: int,
+    what: str = "recipe",
 ) -> tuple[bool, str]:
     """(reachable at the budget, one plain sentence naming the best recipe)."""
     goal = _target_words(target_mha)
@@ -123,18 +152,18 @@ def verdict_line(
     if p >= confidence:
         more = f"; {format_count(needed)} shots would do" if needed is not None else ""
         return True, (
-            f"Verdict: {goal} is reachable with {format_count(shots)} shots: best recipe "
+            f"Verdict: {goal} is reachable with {format_count(shots)} shots: best {what} "
             f"'{best_name}' lands within target with probability {p:.3f} "
             f"(>= {confidence:g}){more}."
         )
     if needed is not None:
         return False, (
-            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best recipe "
+            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best {what} "
             f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
             f"{format_count(needed)} shots."
         )
     return False, (
-        f"Verdict: {goal} is NOT reachable at any shot count: the best recipe '{best_name}' "
+        f"Verdict: {goal} is NOT reachable at any shot count: the best {what} '{best_name}' "
         f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
         f"{format_count(shots)} shots)."
     )
@@ -268,6 +297,44 @@ class AssessResult:
             out["run"] = self.stats.to_json()
         return jsonable(out)
 
+    def to_record(self) -> dict[str, Any]:
+        """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
+        return jsonable(
+            {
+                "context": dataclasses.asdict(self.context),
+                "target_mha": self.target_mha,
+                "confidence": self.confidence,
+                "shots": self.shots,
+                "seed": self.seed,
+                "recipes": {n: dataclasses.asdict(r) for n, r in self.recipes.items()},
+                "passes": {n: list(p) for n, p in self.passes.items()},
+                "best_recipe": self.best_recipe,
+                "reachable": self.reachable,
+                "verdict": self.verdict,
+                "caution": self.caution,
+            }
+        )
+
+    @classmethod
+    def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> AssessResult:
+        """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
+        ctx = dict(rec["context"])
+        ctx["patch"] = tuple(ctx["patch"])
+        return cls(
+            context=ContextSummary(**ctx),
+            target_mha=rec["target_mha"],
+            confidence=rec["confidence"],
+            shots=rec["shots"],
+            seed=rec["seed"],
+            recipes={n: _rebuild(StoredRecipe, r) for n, r in rec["recipes"].items()},
+            passes={n: tuple(p) for n, p in rec["passes"].items()},
+            best_recipe=rec["best_recipe"],
+            reachable=rec["reachable"],
+            verdict=rec["verdict"],
+            stats=stats,
+            caution=rec["caution"],
+        )
+
     def table_rows(self) -> list[tuple[str, ...]]:
         """Rows for TABLE_HEADERS, formatted for people."""
         return [_row(name, r) for name, r in self.recipes.items()]
@@ -291,6 +358,19 @@ class AssessResult:
                 }
             )
         return rows
+
+
+def _rebuild(cls: Any, data: Mapping[str, Any]) -> Any:
+    """A frozen dataclass from its ``asdict`` form (tuple fields restored)."""
+    names = {f.name: f for f in dataclasses.fields(cls)}
+    kwargs = {}
+    for k, v in data.items():
+        if k not in names:
+            continue
+        if isinstance(v, list) and "tuple" in str(names[k].type):
+            v = tuple(v)
+        kwargs[k] = v
+    return cls(**kwargs)
 
 
 def _row(name: str, r: Any) -> tuple[str, ...]:

@@ -267,7 +267,7 @@ def tune(
     )
     best = entries[0]
     _, verdict = verdict_line(
-        best.label, best.result, study.target_mha, study.confidence, study.shots
+        best.label, best.result, study.target_mha, study.confidence, study.shots, what="setting"
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
