@@ -141,12 +141,11 @@ def test_h2_bias_table_and_combined_reduction(h2_ctx, capsys):
 
 
 def test_readout_only_profile_is_corrected_exactly(h2_device):
+    from noiselab.device.compile import compile_to_device
     from noiselab.device.profile import scale_profile
     from noiselab.mitigate.base import Workspace, raw_distribution
     from noiselab.mitigate.recipe import build_context, make_calibrator, make_runner, run_recipe
     from noiselab.mitigate.registry import make_pass
-
-    from noiselab.device.compile import compile_to_device
 
     qp, opt, profile, compiled = h2_device
     readout_only = scale_profile(profile, 0.0, STRETCH_CHANNELS)  # all but readout switched off

@@ -32,6 +32,7 @@ from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
 
 ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
 MIN_POINTS = {"linear": 2, "richardson": 2, "exponential": 3}
+EXP_MAX_DECAY = 4.0  # largest k (c_max - c_min) the exponential fit may reach
 
 
 class ExtrapolateOptions(PassOptions):
@@ -102,13 +103,17 @@ def exponential_fit(
 ) -> tuple[float, np.ndarray, np.ndarray]:
     """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
 
-    Raises ValueError when the fit fails."""
+    k is kept in (0, EXP_MAX_DECAY / (c_max - c_min)]: a steeper decay is not resolved by the
+    points (the data beyond the first would be flat) and would amplify noise without bound.
+    Raises ValueError when the fit fails or k ends on a bound."""
     from scipy.optimize import curve_fit
 
     c = np.asarray(scales, dtype=float)
     y = np.asarray(energies, dtype=float)
+    k_max = EXP_MAX_DECAY / float(c.max() - c.min())
     best = None
     for k0 in (0.02, 0.05, 0.1, 0.2, 0.5, 1.0, 2.0):
+        k0 = min(k0, 0.5 * k_max)
         basis = np.column_stack([np.ones_like(c), np.exp(-k0 * c)])
         ab, *_ = np.linalg.lstsq(basis, y, rcond=None)
         res = float(np.sum((basis @ ab - y) ** 2))
@@ -117,12 +122,21 @@ def exponential_fit(
     with warnings.catch_warnings():
         warnings.simplefilter("ignore")
         try:
-            popt, _ = curve_fit(_exp_model, c, y, p0=best[1], maxfev=20000)
+            popt, _ = curve_fit(
+                _exp_model,
+                c,
+                y,
+                p0=best[1],
+                bounds=([-np.inf, -np.inf, 0.0], [np.inf, np.inf, k_max]),
+                maxfev=20000,
+            )
         except (RuntimeError, ValueError) as exc:
             raise ValueError(f"curve_fit did not converge ({exc})") from exc
     a, b, k = (float(x) for x in popt)
-    if not all(math.isfinite(x) for x in popt) or k <= 0:
+    if not all(math.isfinite(x) for x in popt) or k <= 1e-9:
         raise ValueError(f"fit gave a non-decaying exponential (k = {k:.3g})")
+    if k >= 0.999 * k_max:
+        raise ValueError(f"the points do not resolve the decay (k = {k:.3g} at its bound)")
     e = np.exp(-k * c)
     jac = np.column_stack([np.ones_like(c), e, -b * c * e])
     if np.linalg.cond(jac) > 1e12:
