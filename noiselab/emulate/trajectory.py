@@ -1,6 +1,7 @@
 """Monte Carlo wavefunction (quantum trajectory) method for circuits past the density-matrix guard.
 
-qiskit-aer's statevector method with a noise model samples one Kraus branch per error per shot
+The circuit's noise is written into it as explicit Kraus instructions (the noise model's own
+channels); qiskit-aer's statevector method samples one Kraus branch per instruction per shot
 (with the state-dependent probabilities), so the average of ``|psi><psi|`` over shots is the
 noisy density matrix. We run the circuit in ``num_batches`` batches of
 ``num_trajectories // num_batches`` shots with ``save_statevector(pershot=True)``; every
@@ -25,15 +26,54 @@ from noiselab.emulate.contract import (
 )
 
 
-def simulate_trajectories(
-    circuit: Any, noise_model: Any, shots: int, seed: int | None
-) -> np.ndarray:
-    """One qiskit-aer statevector run of ``shots`` noisy trajectories; returns ``(shots, 2**k)``."""
+def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
+    """``circuit`` with its noise written in: every error as an explicit Kraus instruction.
+
+    Same channels as qiskit-aer attaches at run time: the noise model's passes (relaxation on
+    delays) first, then after each gate its local error on those qubits, else the all-qubit one.
+    Needed because qiskit-aer 0.18's statevector method failed on some composed two-qubit errors
+    of the device layer when given as a noise model ("heevx ... not hermitian", "Kraus is
+    empty"); explicit ``kraus`` instructions (canonical Kraus operators from qiskit.quantum_info)
+    are sampled per shot with the state-dependent branch probabilities and run cleanly.
+    """
+    from qiskit import QuantumCircuit
+    from qiskit.quantum_info import Kraus, SuperOp
+
+    if noise_model is None:
+        return circuit
+    passes = noise_model._pass_manager()
+    if passes is not None and any(inst.operation.name == "delay" for inst in circuit.data):
+        circuit = passes.run(circuit)
+    out = QuantumCircuit(circuit.num_qubits)
+    cache: dict[tuple[str, tuple[int, ...]], Any] = {}
+    for inst in circuit.data:
+        op = inst.operation
+        qs = tuple(circuit.find_bit(q).index for q in inst.qubits)
+        if op.name in ("delay", "barrier"):
+            continue
+        if op.name == "quantum_channel":
+            out.append(Kraus(SuperOp(op._quantum_error)).to_instruction(), list(qs))
+            continue
+        out.append(op, list(qs))
+        key = (op.name, qs)
+        if key not in cache:
+            err = noise_model._local_quantum_errors.get(op.name, {}).get(qs)
+            if err is None:
+                err = noise_model._default_quantum_errors.get(op.name)
+            cache[key] = None if err is None else Kraus(SuperOp(err)).to_instruction()
+        if cache[key] is not None:
+            out.append(cache[key], list(qs))
+    return out
+
+
+def simulate_trajectories(circuit: Any, shots: int, seed: int | None) -> np.ndarray:
+    """One qiskit-aer statevector run of ``shots`` trajectories of an unravelled circuit (see
+    :func:`unravelled_circuit`); returns the final states ``(shots, 2**k)``."""
     from qiskit_aer import AerSimulator
 
     qc = circuit.copy()
     qc.save_statevector(label="psi", pershot=True)
-    sim = AerSimulator(method="statevector", noise_model=noise_model)
+    sim = AerSimulator(method="statevector")
     opts: dict[str, Any] = {"shots": int(shots)}
     if seed is not None:
         opts["seed_simulator"] = int(seed)
@@ -64,13 +104,14 @@ def trajectory_distributions(
         )
     per_batch = num_trajectories // num_batches
     rotations = [[effect_rotation(e) for e in row] for row in effects]
+    noisy = unravelled_circuit(circuit, noise_model)
     rng = np.random.default_rng(seed)
     out = np.empty((num_batches, len(effects), 2 ** len(qubits)))
     for b in range(num_batches):
         batch_seed = int(rng.integers(0, 2**31 - 1))
         if counter is not None:
             counter[0] += 1
-        psis = simulate_trajectories(circuit, noise_model, per_batch, batch_seed)
+        psis = simulate_trajectories(noisy, per_batch, batch_seed)
         out[b] = sv_batch_mean_distributions(psis, qubits, rotations, keys)
         del psis
     return clean_probabilities(out, what="trajectory distribution")
