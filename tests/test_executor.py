@@ -230,3 +230,67 @@ def test_dask_propagates_task_exceptions(dask_client) -> None:
     executor = DaskExecutor(dask_client, retries=0)
     with pytest.raises(ValueError, match="bad item 1"):
         executor.map(raises_task, [0, 1, 2])
+
+
+# --------------------------------------------------------------------------- study jobs
+# The study's own jobs through each back end: the same numbers and the same CSV as in-process.
+
+DEMO_STUDY = Path(__file__).resolve().parents[1] / "configs" / "studies" / "h2-equilibrium.yaml"
+
+
+@pytest.fixture(scope="module")
+def demo_context():
+    from noiselab.study.context import build_context
+    from noiselab.study.spec import load_study
+
+    study = load_study(DEMO_STUDY)
+    return study, build_context(study, cache=None)
+
+
+def _small_grid():
+    from noiselab.study.tune import GridOverride
+
+    return GridOverride(
+        readout=["none", "per_qubit_inverse"],
+        postselect=["none"],
+        amplification=["none", "stretch", "two_qubit_gates"],
+        scales=[[1.0, 2.0, 3.0]],
+        fit=["linear"],
+    )
+
+
+def _tune_json(study, ctx, executor) -> dict:
+    from noiselab.study.tune import tune
+
+    result = tune(study, grid=_small_grid(), cache=False, context=ctx, executor=executor)
+    return result.to_json()
+
+
+def _sweep_csv(study, ctx, executor) -> str:
+    from noiselab.report.tables import csv_text, sweep_rows
+    from noiselab.study.sweep import sweep
+
+    result = sweep(
+        study, "noise-scale", values=[0.5, 1.0, 2.0], cache=False, context=ctx, executor=executor
+    )
+    return csv_text(sweep_rows(result))
+
+
+@pytest.mark.slow
+def test_tune_through_pool_matches_in_process(demo_context, pool: ProcessPoolExecutor) -> None:
+    study, ctx = demo_context
+    # Reference: the in-process run of the same job (common practice, no source).
+    assert _tune_json(study, ctx, pool) == _tune_json(study, ctx, InProcessExecutor())
+
+
+@pytest.mark.slow
+@pytest.mark.cluster
+def test_tune_and_sweep_through_dask_match_in_process(demo_context, dask_client) -> None:
+    study, ctx = demo_context
+    with DaskExecutor(dask_client) as executor:
+        tuned = _tune_json(study, ctx, executor)
+        swept = _sweep_csv(study, ctx, executor)
+    assert tuned == _tune_json(study, ctx, InProcessExecutor())
+    local_csv = _sweep_csv(study, ctx, InProcessExecutor())
+    assert swept == local_csv
+    assert len(local_csv.strip().splitlines()) > 3  # a header and rows for every point

@@ -64,8 +64,11 @@ class Executor(Protocol):
 
     #: Human-readable description for logs and provenance, e.g. ``"process pool (2 workers)"``.
     description: str
-    #: How many tasks may run at once (1 for in-process).
+    #: How many tasks may run at once (1 for in-process; for dask the worker threads seen at
+    #: connection time, at least 1).
     parallelism: int
+    #: True only for the in-process back end: callers may then skip the task wrapping.
+    in_process: bool
 
     def map(
         self,
@@ -89,6 +92,7 @@ class Executor(Protocol):
 class _Base:
     description = "executor"
     parallelism = 1
+    in_process = False
 
     def __enter__(self) -> _Base:
         return self
@@ -105,6 +109,7 @@ class InProcessExecutor(_Base):
 
     description = "in-process"
     parallelism = 1
+    in_process = True
 
     def map(
         self,
@@ -307,7 +312,8 @@ class DaskExecutor(_Base):
             )
         self.description = f"dask cluster {address}"
         try:
-            n = len(self._client.scheduler_info().get("workers", {}))
+            workers = self._client.scheduler_info().get("workers", {})
+            n = sum(int(w.get("nthreads", 1)) for w in workers.values())
         except Exception:  # the cluster may still be starting: size is informative only
             n = 0
         self.parallelism = max(1, n)
