@@ -134,10 +134,15 @@ def _print_table(title: str, headers: tuple[str, ...], rows: list[tuple[str, ...
     terminal = _stdout_is_terminal()
     table = Table(title=title, box=box.ROUNDED if terminal else box.ASCII, title_justify="left")
     for i, h in enumerate(headers):
-        table.add_column(h, justify="left" if i < 2 else "right", no_wrap=i == 0)
+        numeric = i > 0 and h != "setting"
+        table.add_column(h, justify="right" if numeric else "left", no_wrap=numeric)
     for row in rows:
         table.add_row(*row)
-    _console().print(table)
+    console = _console()
+    natural = console.measure(table, options=console.options.update(max_width=10_000)).maximum
+    if natural > console.width:  # never cut numbers: let a narrow terminal wrap the lines
+        console.width = natural
+    console.print(table)
 
 
 def _print_json(obj: dict[str, Any]) -> None:

@@ -380,7 +380,7 @@ def _row(name: str, r: Any) -> tuple[str, ...]:
         f"{float(r.bias_exact_mha):+.3f}",
         f"{float(r.std_mha):.3f}",
         f"{float(r.p_within_target):.3f}",
-        format_count(r.shots_needed) if r.shots_needed is not None else "never (bias)",
+        format_count(r.shots_needed) if r.shots_needed is not None else "never",
         str(r.limited_by),
     )
 
@@ -457,7 +457,7 @@ class TuneResult:
                     f"{float(r.bias_exact_mha):+.3f}",
                     f"{float(r.std_mha):.3f}",
                     f"{float(r.p_within_target):.3f}",
-                    format_count(r.shots_needed) if r.shots_needed is not None else "never (bias)",
+                    format_count(r.shots_needed) if r.shots_needed is not None else "never",
                     str(r.limited_by),
                 )
             )
