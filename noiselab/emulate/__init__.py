@@ -1,1 +1,36 @@
-"""Density-matrix (and trajectory) emulation: exact measured distributions per measurement basis."""
+"""Density-matrix (and trajectory) emulation: exact measured distributions per measurement basis.
+
+Names are loaded lazily so that ``import noiselab.emulate`` does not import qiskit.
+"""
+
+from __future__ import annotations
+
+from typing import Any
+
+_EXPORTS = {
+    "BasisDistributions": "engine",
+    "emulate_bases": "engine",
+    "emulate_circuit_bases": "engine",
+    "engine_call_count": "engine",
+    "BasisLayerSpec": "channels",
+    "apply_readout": "readout",
+    "assignment_matrix": "readout",
+    "CalibrationDistributions": "readout",
+    "calibration_distributions": "readout",
+    "calibration_states": "readout",
+    "estimate_memory_bytes": "memory",
+    "available_memory_bytes": "memory",
+    "check_memory": "memory",
+    "MEMORY_LIMIT_ENV": "memory",
+}
+
+__all__ = sorted(_EXPORTS)
+
+
+def __getattr__(name: str) -> Any:
+    if name in _EXPORTS:
+        import importlib
+
+        module = importlib.import_module(f"noiselab.emulate.{_EXPORTS[name]}")
+        return getattr(module, name)
+    raise AttributeError(f"module 'noiselab.emulate' has no attribute {name!r}")

@@ -216,10 +216,10 @@ def emulate_circuit_bases(
         )
     bases_t = validate_bases(bases, n)
     chosen, notice = choose_method(k, method, max_density_matrix_qubits=max_density_matrix_qubits)
+    t0 = time.perf_counter()
     cache = EffectCache(noise_model, k, layer, noisy=basis_noise)
     effects, keys = _basis_tables(bases_t, qubits, cache)
     mats = list(readout_matrices) if readout_matrices is not None else [None] * n
-    t0 = time.perf_counter()
     if chosen == "density_matrix":
         calls0 = engine_call_count()
         rho = simulate_density_matrix(circuit, noise_model)
