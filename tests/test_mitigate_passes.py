@@ -296,6 +296,8 @@ def test_discard_equals_per_group_projected_expectation(setup, h2):
 RECIPES = {
     "raw": [],
     "readout": [{"pass": "readout", "calibration_shots": 5000}],
+    "full_inverse": [{"pass": "readout", "method": "full_inverse", "calibration_shots": 5000}],
+    "discard": [{"pass": "readout", "calibration_shots": 5000}, {"pass": "postselect"}],
     "extrapolated": [
         {"pass": "readout", "calibration_shots": 5000},
         {"pass": "postselect", "mode": "verify"},

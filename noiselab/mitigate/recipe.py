@@ -264,6 +264,12 @@ def make_runner(ctx: ExperimentContext) -> Runner:
     return runner
 
 
+@functools.lru_cache(maxsize=64)
+def default_calibrator(ctx: ExperimentContext) -> Calibrator:
+    """The context's :func:`make_calibrator`, shared by every recipe run on it."""
+    return make_calibrator(ctx)
+
+
 def make_calibrator(ctx: ExperimentContext) -> Calibrator:
     """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
     memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
@@ -549,7 +555,7 @@ def run_recipe(
     combiner = parsed.of_stage(STAGE_COMBINE)
     variants = combiner.variants(ctx) if combiner else (CircuitVariant(),)
     bases = tuple(estimator.bases(ctx) if estimator else ctx.plan.bases)
-    calibrator = calibrator or make_calibrator(ctx)
+    calibrator = calibrator or default_calibrator(ctx)
 
     dists = {v: runner(v) for v in variants}
     for v, d in dists.items():
