@@ -47,6 +47,14 @@ def test_linear_interpolation_between_two_points_by_hand() -> None:
     assert find_crossings([1.0, 3.0], [-1.0, -100.0], 10.0) == pytest.approx((2.0,))
 
 
+def test_sign_change_interpolates_the_signed_error() -> None:
+    # -1 mHa at x = 0 to +3 mHa at x = 1, target 2 mHa: the signed error is linear,
+    # -1 + 4 x = 2 at x = 0.75 (hand computation); log|error| would not be linear here
+    assert find_crossings([0.0, 1.0], [-1.0, 3.0], 2.0) == pytest.approx((0.75,))
+    # +5 to -5 across the band: in at x = 0.3, out at x = 0.7 (hand computation: 5 - 10 x = +-2)
+    assert find_crossings([0.0, 1.0], [5.0, -5.0], 2.0) == pytest.approx((0.3, 0.7))
+
+
 def test_no_crossing_and_two_crossings() -> None:
     assert find_crossings([1, 2, 3], [0.1, 0.2, 0.3], 1.0) == ()
     # error dips below the target and comes back (a ZNE bias changing sign, say)

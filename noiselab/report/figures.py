@@ -484,6 +484,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     colors = _colors(sweep_result.recipes)
     all_vals: list[float] = [t]
     floor = t * 1e-3
+    any_negative = False
     for name in sweep_result.recipes:
         err, std = sweep_result.series(name)
         mag = [max(abs(e), floor) for e in err]
@@ -492,8 +493,12 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         hi = [abs(e) + s for e, s in zip(err, std, strict=True)]
         c = colors[name]
         ls = "--" if _is_raw(name) else "-"
-        ax.plot(xs, mag, ls, marker="o", ms=3.5, color=c, lw=1.6, label=name)
+        ax.plot(xs, mag, ls, color=c, lw=1.6, label=name)
+        # filled: energy above the exact one; open: below it (over-correction)
+        for x, e, m in zip(xs, err, mag, strict=True):
+            ax.plot([x], [m], "o", ms=4.5, color=c, mfc=c if e >= 0 else "white", mew=1.2)
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
+        any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
     ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
     k = 0
@@ -539,6 +544,8 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     ax.set_xlabel(knob.axis_label)
     ax.set_ylabel("|energy − exact energy| (mHa)")
     ax.plot([], [], "X", color="0.5", markeredgecolor="k", label="crossing of the target")
+    if any_negative:
+        ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
     fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
     _decorate(
         fig,
@@ -562,7 +569,7 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
         r for kind in ("total", "alone", "removed", "noiseless") for r in rows if r.kind == kind
     ]
     n = len(b.recipes)
-    fig = _new_figure(7.2, 2.0 + 0.2 * len(order) * max(1, n))
+    fig = _new_figure(8.8, 2.0 + 0.2 * len(order) * max(1, n))
     ax = fig.add_subplot(1, 1, 1)
     height = 0.8 / n
     colors = _colors(b.recipes)
@@ -599,11 +606,24 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     if any(r.errors_mha[k] < 0 for r in order for k in range(n)):
         ax.axvline(-t, color="tab:green", ls="--", lw=1.2)
     ax.axvline(0.0, color="k", lw=0.6)
+    values = [abs(v) for r in order for v in r.errors_mha]
+    symlog = bool(values) and max(values) > 30 * t
+    if symlog:
+        # raw errors of 100 mHa beside mitigated ones inside the target: linear up to the
+        # target, logarithmic beyond, so both stay readable
+        ax.set_xscale("symlog", linthresh=t, linscale=1.0)
+    signed = [v for r in order for v in r.errors_mha]
+    hi_x, lo_x = max([*signed, t]), min([*signed, -t])
+    # room for the value labels beyond the bars
+    ax.set_xlim(lo_x * (3.0 if symlog else 1.25), hi_x * (3.0 if symlog else 1.15))
     for sep in (0.5, 0.5 + len([r for r in order if r.kind == "alone"])):
         ax.axhline(sep, color="0.6", lw=0.6)
     ax.set_yticks(range(len(order)), [r.label for r in order], fontsize=8)
     ax.invert_yaxis()
-    ax.set_xlabel("energy − exact energy (mHa), error bars: 1 std at the shot budget")
+    ax.set_xlabel(
+        "energy − exact energy (mHa), error bars: 1 std at the shot budget"
+        + ("\n(linear within ±target, logarithmic beyond)" if symlog else "")
+    )
     ax.set_ylabel("noise channels present")
     handles = [Patch(facecolor=colors[nm], edgecolor="k", label=nm) for nm in b.recipes]
     handles.append(
@@ -612,6 +632,6 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     from matplotlib.lines import Line2D
 
     handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
-    ax.legend(handles=handles, fontsize=7, loc="lower right", framealpha=0.9)
+    fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
     return _save(fig, path)

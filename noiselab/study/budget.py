@@ -64,28 +64,36 @@ class BudgetResult:
         }
 
 
-def dominant_channel(rows: tuple[BudgetRow, ...], recipe_index: int = 0) -> tuple[str, str]:
+def dominant_channel(
+    rows: tuple[BudgetRow, ...], recipe_index: int = 0, target_mha: float | None = None
+) -> tuple[str, str]:
     """(channel, sentence): the channel whose removal lowers |error| the most, with its numbers.
 
-    Ties and the case where removal barely matters fall back to the largest error alone.
+    When removal barely matters the largest error alone decides. With ``target_mha`` and an
+    error already within it, the sentence says so instead of naming a cost inside the noise.
     """
     total = next(r for r in rows if r.kind == "total")
     floor = next(r for r in rows if r.kind == "noiseless")
     alone = {r.channel: r for r in rows if r.kind == "alone"}
     removed = {r.channel: r for r in rows if r.kind == "removed"}
-    t = abs(total.errors_mha[recipe_index])
-    gain = {c: t - abs(removed[c].errors_mha[recipe_index]) for c in removed}
-    solo = {
-        c: abs(alone[c].errors_mha[recipe_index] - floor.errors_mha[recipe_index]) for c in alone
-    }
+    k = recipe_index
+    t = abs(total.errors_mha[k])
+    gain = {c: t - abs(removed[c].errors_mha[k]) for c in removed}
+    solo = {c: abs(alone[c].errors_mha[k] - floor.errors_mha[k]) for c in alone}
     best = max(gain, key=lambda c: (round(gain[c], 9), solo.get(c, 0.0)))
     if gain[best] <= 1e-9:
         best = max(solo, key=lambda c: solo[c])
-    a = alone[best].errors_mha[recipe_index]
-    w = removed[best].errors_mha[recipe_index]
+    a = alone[best].errors_mha[k]
+    w = removed[best].errors_mha[k]
+    if target_mha is not None and t <= target_mha:
+        return best, (
+            f"within the {target_mha:.3g} mHa target with every channel present "
+            f"({total.errors_mha[k]:+.3g} mHa); largest single cost {best} "
+            f"(without it {w:+.3g} mHa)"
+        )
     sentence = (
         f"dominant error source: {best} (alone {a:+.3g} mHa; without it {w:+.3g} mHa, "
-        f"against {total.errors_mha[recipe_index]:+.3g} mHa with every channel)"
+        f"against {total.errors_mha[k]:+.3g} mHa with every channel)"
     )
     return best, sentence
 
@@ -157,10 +165,11 @@ def budget(
         for (label, kind, channel, _), out in zip(configs, outs, strict=True)
     )
     names = tuple(n for n, _ in picked)
-    dom, sentence = dominant_channel(rows)
+    target = float(study.target_mha)
+    dom, sentence = dominant_channel(rows, 0, target)
     sentence = f"{names[0]}: {sentence}"
     if len(names) > 1:
-        _, sentence2 = dominant_channel(rows, 1)
+        _, sentence2 = dominant_channel(rows, 1, target)
         sentence += f"; {names[1]}: {sentence2}"
     stats = RunStats(
         simulations=sum(o.simulations for o in outs),

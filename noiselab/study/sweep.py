@@ -289,26 +289,36 @@ _TINY_MHA = 1e-9
 def find_crossings(
     values: Sequence[float], errors_mha: Sequence[float], target_mha: float, log_x: bool = False
 ) -> tuple[float, ...]:
-    """Knob values where |error| crosses ``target_mha``.
+    """Knob values where |error| crosses ``target_mha``, in the order of ``values``.
 
-    Between adjacent points whose |error| lies on opposite sides of the target, log10 |error|
-    is interpolated linearly against the value (against log10 value when ``log_x``). A point
-    exactly on the target counts once.
+    Between adjacent points of the same sign whose |error| lies on opposite sides of the
+    target, log10 |error| is interpolated linearly against the value (against log10 value when
+    ``log_x``); where the signed error changes sign (passing through zero: a mitigated estimate
+    over-correcting) the signed error is interpolated linearly instead, which can give two
+    crossings in one interval. A point exactly on the target counts once.
     """
     if len(values) != len(errors_mha):
         raise ValueError("values and errors differ in length")
-    lt = math.log10(target_mha)
+    t = float(target_mha)
+    lt = math.log10(t)
     xs = [math.log10(v) if log_x else float(v) for v in values]
-    ys = [math.log10(max(abs(e), _TINY_MHA)) - lt for e in errors_mha]
-    out: list[float] = []
+    es = [float(e) for e in errors_mha]
+    ys = [math.log10(max(abs(e), _TINY_MHA)) - lt for e in es]
+    fractions: list[tuple[int, float]] = []
     for i in range(len(xs) - 1):
-        y0, y1 = ys[i], ys[i + 1]
-        if y0 == 0.0:
-            out.append(float(values[i]))
+        e0, e1 = es[i], es[i + 1]
+        if ys[i] == 0.0:
+            fractions.append((i, 0.0))
             continue
-        if y0 * y1 < 0:
-            x = xs[i] + (xs[i + 1] - xs[i]) * (-y0) / (y1 - y0)
-            out.append(10**x if log_x else x)
+        if e0 * e1 < 0:
+            hits = [(lv - e0) / (e1 - e0) for lv in (t, -t) if (e0 - lv) * (e1 - lv) < 0]
+            fractions += [(i, f) for f in sorted(hits)]
+        elif ys[i] * ys[i + 1] < 0:
+            fractions.append((i, -ys[i] / (ys[i + 1] - ys[i])))
+    out = []
+    for i, f in fractions:
+        x = xs[i] + f * (xs[i + 1] - xs[i])
+        out.append(float(values[i]) if f == 0.0 else (10**x if log_x else x))
     if ys and ys[-1] == 0.0:
         out.append(float(values[-1]))
     return tuple(out)
