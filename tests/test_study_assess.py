@@ -261,3 +261,63 @@ def test_assess_out_writes_files(cli_runs: dict, tmp_path: Path, capsys) -> None
     assert header.startswith("recipe,energy_ha,bias_mha")
     assert (out / "assess-bias.png").stat().st_size > 1000
     assert not list(out.glob(".*.tmp*"))  # atomic writes leave no temporary files
+
+
+def test_tune_cli_writes_ranked_csv(cli_runs: dict, tmp_path: Path) -> None:
+    import csv
+    import io
+
+    argv = [
+        "tune",
+        str(H2),
+        "--readout",
+        "none",
+        "--readout",
+        "per_qubit_inverse",
+        "--postselect",
+        "discard",
+        "--amplification",
+        "stretch",
+        "--scales",
+        "1,3,5",
+        "--fit",
+        "linear",
+        "--fit",
+        "richardson",
+        "--cache",
+        str(cli_runs["cache_a"]),
+        "--seed",
+        "11",
+        "--out",
+        str(tmp_path),
+        "--json",
+    ]
+    data = _cli_json(argv)
+    assert data["settings"] == 4  # 2 readout x 1 x 1 x 1 scale set x 2 fits (by hand)
+    rows = list(csv.DictReader(io.StringIO((tmp_path / "tune.csv").read_text())))
+    assert [int(r["rank"]) for r in rows] == [1, 2, 3, 4]
+    p = [float(r["p_within_target"]) for r in rows]
+    assert p == sorted(p, reverse=True)
+    assert rows[0]["setting"] == data["ranking"][0]["setting"]
+
+
+def test_demo_writes_its_files(cli_runs: dict, tmp_path: Path) -> None:
+    import contextlib
+    import io
+
+    from noiselab.cli.app import main
+
+    out, err = io.StringIO(), io.StringIO()
+    target = tmp_path / "demo"
+    with (
+        contextlib.redirect_stdout(out),
+        contextlib.redirect_stderr(err),
+        pytest.raises(SystemExit) as info,
+    ):
+        main(["demo", "--out", str(target), "--cache", str(cli_runs["cache_a"])])
+    assert info.value.code in (0, None), err.getvalue()
+    text = out.getvalue()
+    assert "Verdict:" in text and str(target.resolve()) in text
+    assert json.loads((target / "assess.json").read_text())["study"] == "h2-equilibrium"
+    assert (target / "assess.csv").is_file()
+    assert "ETA" not in err.getvalue()  # no progress bars when stderr is not a terminal
