@@ -193,6 +193,11 @@ def test_folded_variants_in_native_gates(h2_ctx):
     assert whole.duration_ns > 2.5 * ctx.compiled.duration_ns  # re-scheduled, idle time included
     natives = set(ctx.profile.single_qubit_gates) | {ctx.profile.two_qubit_gate, "delay"}
     assert set(whole.circuit.count_ops()) <= natives
+    from qiskit.quantum_info import Operator
+
+    # the folds are identities: same unitary up to a global phase (source: qiskit.quantum_info)
+    reference = Operator(ctx.compiled.circuit)
+    assert Operator(whole.circuit).equiv(reference) and Operator(two.circuit).equiv(reference)
     res = run_recipe(
         [
             {

@@ -409,3 +409,31 @@ def test_full_inverse_refuses_many_qubits():
     fake = SimpleNamespace(plan=SimpleNamespace(num_qubits=12))
     with pytest.raises(InputError, match=r"recipe\[0\]\.method: full_inverse.*limited to 10"):
         p.check(fake, "recipe[0]")
+
+
+def test_verify_with_extra_bases_lih():
+    """LiH (2 electrons in 3 orbitals, 6 qubits, JW): some terms of H P need bases of their own."""
+    from noiselab.chem.encode import encode
+    from noiselab.chem.molecule import MoleculeSpec, compute_problem
+
+    spec = MoleculeSpec(
+        geometry=[("Li", 0, 0, 0), ("H", 0, 0, 1.6)],
+        active_space={"electrons": 2, "orbitals": 3},
+    )
+    qp = encode(compute_problem(spec), "jordan_wigner")
+    w, v = np.linalg.eigh(qp.hamiltonian.to_matrix())
+    ground = Statevector(v[:, int(np.argmin(np.abs(w - qp.exact_energy_ha)))])
+    ctx = _ctx(qp, shots=50_000)
+    rho = _noisy_state(ground, 1.0)
+    runner = make_synthetic_runner(lambda _v: rho, ctx.measured_bases)
+    res = run_recipe([{"pass": "postselect", "mode": "verify"}], ctx, runner)
+    syms = [(s.pauli.paulis.to_labels()[0], s.eigenvalue) for s in qp.symmetries]
+    proj = _projector(syms, 6)
+    h = qp.hamiltonian.to_matrix()
+    # source: qiskit.quantum_info matrices; Bonet-Monroig et al. 2018
+    expected = np.trace(proj @ rho.data @ proj @ h).real / np.trace(proj @ rho.data).real
+    assert res.energy_ha == pytest.approx(expected, abs=1e-10)
+    extra = res.details["extra_bases"]
+    assert extra and set(extra) <= set(ctx.measured_bases) - set(ctx.plan.bases)
+    assert res.n_circuits == ctx.plan.n_groups + len(extra)
+    assert 0 < res.details["extra_basis_shots"] < ctx.shots
