@@ -196,3 +196,23 @@ def test_csv_text_roundtrip() -> None:
     parsed = list(csv.DictReader(text.splitlines()))
     assert parsed[0] == {"a_mha": "1.5", "b": "x", "c": ""}
     assert parsed[1]["a_mha"] == ""  # NaN written as an empty cell
+
+
+def test_tune_and_assess_tables_from_duck_typed_results() -> None:
+    from types import SimpleNamespace
+
+    tune = SimpleNamespace(
+        context=SimpleNamespace(study="h2-hand"),
+        entries=[1, 2, 3],
+        table_rows=lambda top: [("1", "readout+zne", "+0.100", "0.500", "0.950", "1.0e5", "shots")],
+    )
+    text = T.render_text(T.tune_table(tune, top=1, plain=True))
+    assert "best 1 of 3 settings" in text and "std. error (mHa)" in text
+    r = SimpleNamespace(
+        energy_ha=-1.1, bias_exact_mha=2.5, std_mha=0.4, p_within_target=0.1, shots_needed=None,
+        limited_by="bias",
+    )  # fmt: skip
+    assess = SimpleNamespace(study="h2-hand", recipes={"raw": r})
+    rows = T.assess_rows(assess)
+    assert rows[0]["recipe"] == "raw" and rows[0]["bias_mha"] == 2.5
+    assert "never (bias)" in T.render_text(T.assess_table(assess, plain=True))

@@ -151,3 +151,13 @@ def test_noise_scale_one_is_the_device(study_path: Path, tmp_path: Path) -> None
     assert res.points[0].entry("raw").energy_ha == pytest.approx(
         a.recipes["raw"].energy_ha, abs=1e-12
     )
+
+
+@pytest.mark.slow
+def test_worker_processes_give_the_same_sweep(study_path: Path, tmp_path: Path) -> None:
+    args = {**SWEEP_ARGS, "points": 2}
+    here = sweep(study_path, cache=open_cache(tmp_path / "a.sqlite"), **args)
+    pool = sweep(study_path, cache=open_cache(tmp_path / "b.sqlite"), workers=2, **args)
+    assert "process pool" in pool.stats.executor
+    assert pool.stats.simulations == here.stats.simulations  # run in the workers, cached here
+    assert sweep_rows(pool) == sweep_rows(here)
