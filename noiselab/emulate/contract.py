@@ -50,6 +50,43 @@ def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndar
     return p / np.where(s > 0, s, 1.0)
 
 
+def _contract_qubit(x: np.ndarray, p: int, m: int, e: np.ndarray) -> np.ndarray:
+    """Contract qubit position ``p`` (0 = most significant of ``m``) of ``x`` ``(B, D, D)``.
+
+    ``e`` ``(n_out, 2, 2)``: effects ``E[b]`` (``n_out = 1`` with the identity traces the qubit
+    out). Returns ``(B * n_out, D/2, D/2)``; the new outcome is the least significant part of the
+    leading index. Works on strided views of ``x`` (no transposed copy): ``y[b] = sum_ij
+    E[b][j, i] x[.., i, .., .., j, ..]``, zero coefficients skipped.
+    """
+    bsz = x.shape[0]
+    hi, lo = 2**p, 2 ** (m - 1 - p)
+    x6 = x.reshape(bsz, hi, 2, lo, hi, 2, lo)
+    n_out = e.shape[0]
+    y = np.empty((bsz, n_out, hi, lo, hi, lo), dtype=np.result_type(x.dtype, e.dtype))
+    tmp: np.ndarray | None = None
+    for b in range(n_out):
+        yb = y[:, b]
+        first = True
+        for i in (0, 1):
+            for j in (0, 1):
+                c = e[b, j, i]  # p = sum_ij rho[i, j] E[j, i]
+                if c == 0:
+                    continue
+                v = x6[:, :, i, :, :, j, :]
+                if first:
+                    np.multiply(v, c, out=yb)
+                    first = False
+                else:
+                    if tmp is None:
+                        tmp = np.empty_like(yb)
+                    np.multiply(v, c, out=tmp)
+                    yb += tmp
+        if first:
+            yb[...] = 0
+    d = hi * lo
+    return y.reshape(bsz * n_out, d, d)
+
+
 def dm_distributions(
     rho: np.ndarray,
     qubits: Sequence[int],
@@ -63,48 +100,44 @@ def dm_distributions(
     ``keys[i][l]``: a hashable naming it (equal keys must mean equal tensors). Unmeasured circuit
     qubits are traced out. Entry k of a row has ``bit_l = (k >> l) & 1``.
 
-    Implementation: one transpose puts each qubit's (row, column) index pair next to each other,
-    in contraction order, so that every step is a batched ``(2, 4) @ (4, R)`` matrix product on
-    the leading axis without further copies.
+    Each step keeps the matrix form ``(outcomes so far, D, D)`` of the remaining qubits and
+    halves D; intermediates of one prefix-tree branch total at most one density matrix.
     """
     dim = rho.shape[0]
     k = dim.bit_length() - 1
     n = len(qubits)
     order = _order_by_sharing(keys, n)
-    traced = [c for c in range(k) if c not in qubits]
-    seq = traced + [qubits[l] for l in order]
-    axes: list[int] = []
-    for c in seq:  # row axis of circuit qubit c is k-1-c (qiskit: MSB first), column axis k + that
-        axes += [k - 1 - c, 2 * k - 1 - c]
-    x = np.ascontiguousarray(np.asarray(rho).reshape((2,) * (2 * k)).transpose(axes))
-    x = x.reshape(-1)
-    trace_row = np.array([[1.0, 0.0, 0.0, 1.0]], dtype=x.dtype)  # sum_i rho[i, i]
-    for _ in traced:
-        x = (trace_row @ x.reshape(4, -1)).reshape(-1)
+    x = np.asarray(rho).reshape(1, dim, dim)
+    rem = list(range(k - 1, -1, -1))  # circuit qubit at each position, most significant first
+    trace = np.eye(2, dtype=complex)[None]
+    for c in range(k):
+        if c not in qubits:
+            pos = rem.index(c)
+            x = _contract_qubit(x, pos, len(rem), trace)
+            rem.pop(pos)
     out = np.empty((len(effects), 2**n))
-    # after contraction, axis j of the (2,)*n result is logical qubit order[j]
+    # after contraction, bit j (from the most significant) of the index is logical order[j]
     perm = [order.index(n - 1 - p) for p in range(n)]
 
-    def rec(x: np.ndarray, depth: int, members: list[int]) -> None:
+    def rec(x: np.ndarray, depth: int, rem: list[int], members: list[int]) -> None:
         if depth == n:
-            flat = np.transpose(x.reshape((2,) * n), perm).reshape(-1).real if n else x.real
+            flat = x.real.reshape(-1)
+            if n:
+                flat = np.transpose(flat.reshape((2,) * n), perm).reshape(-1)
             for i in members:
                 out[i] = flat
             return
         l = order[depth]
+        pos = rem.index(qubits[l])
+        sub = rem[:pos] + rem[pos + 1 :]
         groups: dict[Hashable, list[int]] = {}
         for i in members:
             groups.setdefault(keys[i][l], []).append(i)
-        xv = x.reshape(2**depth, 4, -1)
         for members_g in groups.values():
-            e = effects[members_g[0]][l]
-            # p = sum_ij rho[i, j] E[j, i]: w[b, 2 i + j] = E[b][j, i]
-            w = np.transpose(e, (0, 2, 1)).reshape(2, 4)
-            # measured on 2 cores: BLAS matmul wins for few leading blocks, einsum's loops after
-            y = np.matmul(w, xv) if depth < 2 else np.einsum("bm,Bmr->Bbr", w, xv)
-            rec(y.reshape(-1), depth + 1, members_g)
+            y = _contract_qubit(x, pos, len(rem), effects[members_g[0]][l])
+            rec(y, depth + 1, sub, members_g)
 
-    rec(x, 0, list(range(len(effects))))
+    rec(x, 0, rem, list(range(len(effects))))
     return clean_probabilities(out, what="density-matrix distribution")
 
 
