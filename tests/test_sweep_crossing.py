@@ -55,6 +55,23 @@ def test_sign_change_interpolates_the_signed_error() -> None:
     assert find_crossings([0.0, 1.0], [5.0, -5.0], 2.0) == pytest.approx((0.3, 0.7))
 
 
+def test_band_crossing_by_hand() -> None:
+    from noiselab.study.sweep import band_crossings
+
+    # error 0 -> 4 mHa (signed, linear), std 1 mHa, target 2 mHa: |e| + s = 4 x + 1 = 2 at
+    # x = 0.25, the central value 4 x = 2 at x = 0.5 (hand computation)
+    assert band_crossings([0.0, 1.0], [0.0, 4.0], [1.0, 1.0], 2.0) == pytest.approx(
+        (0.25,), abs=1e-9
+    )
+    assert find_crossings([0.0, 1.0], [0.0, 4.0], 2.0) == pytest.approx((0.5,))
+    # a power law with a constant std: (x / 2)^2 + 0.5 = 2 at x = 2 sqrt(1.5), exact in log-log
+    # only for the central part, so allow the grid's accuracy (hand computation)
+    xs = [1.0, 4.0]
+    es = [(x / 2) ** 2 for x in xs]
+    (b,) = band_crossings(xs, es, [0.5, 0.5], 2.0, log_x=True)
+    assert b == pytest.approx(2 * 1.5**0.5, rel=1e-4)
+
+
 def test_no_crossing_and_two_crossings() -> None:
     assert find_crossings([1, 2, 3], [0.1, 0.2, 0.3], 1.0) == ()
     # error dips below the target and comes back (a ZNE bias changing sign, say)

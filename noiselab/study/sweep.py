@@ -277,6 +277,8 @@ class SweepResult:
                 for p in self.points
             ],
             "crossings": [dataclasses.asdict(c) for c in self.crossings],
+            "notes": list(self.notes()),
+            "caution": "emulated: only as good as the device noise model",
         }
 
 
@@ -310,7 +312,7 @@ def find_crossings(
         if ys[i] == 0.0:
             fractions.append((i, 0.0))
             continue
-        if e0 * e1 < 0:
+        if e0 * e1 <= 0:
             hits = [(lv - e0) / (e1 - e0) for lv in (t, -t) if (e0 - lv) * (e1 - lv) < 0]
             fractions += [(i, f) for f in sorted(hits)]
         elif ys[i] * ys[i + 1] < 0:
@@ -321,6 +323,51 @@ def find_crossings(
         out.append(float(values[i]) if f == 0.0 else (10**x if log_x else x))
     if ys and ys[-1] == 0.0:
         out.append(float(values[-1]))
+    return tuple(out)
+
+
+def _interpolated_abs_error(e0: float, e1: float, f: float) -> float:
+    """|error| a fraction ``f`` of the way between two points, by the rule of find_crossings."""
+    if e0 * e1 <= 0:
+        return abs(e0 + f * (e1 - e0))
+    a0, a1 = max(abs(e0), _TINY_MHA), max(abs(e1), _TINY_MHA)
+    return 10 ** (math.log10(a0) + f * (math.log10(a1) - math.log10(a0)))
+
+
+def band_crossings(
+    values: Sequence[float],
+    errors_mha: Sequence[float],
+    stds_mha: Sequence[float],
+    target_mha: float,
+    log_x: bool = False,
+    steps: int = 400,
+) -> tuple[float, ...]:
+    """Knob values where |error| + one standard error crosses the target.
+
+    |error| between points follows :func:`find_crossings`' rule, the standard error is
+    interpolated linearly; roots are located on a fine grid in each interval and refined
+    linearly. Always at or inside the central crossings where the error grows.
+    """
+    xs = [math.log10(v) if log_x else float(v) for v in values]
+    out: list[float] = []
+    for i in range(len(xs) - 1):
+        e0, e1 = float(errors_mha[i]), float(errors_mha[i + 1])
+        s0, s1 = float(stds_mha[i]), float(stds_mha[i + 1])
+
+        def g(f: float, e0: float = e0, e1: float = e1, s0: float = s0, s1: float = s1) -> float:
+            return _interpolated_abs_error(e0, e1, f) + s0 + f * (s1 - s0) - target_mha
+
+        fs = [k / steps for k in range(steps + 1)]
+        gs = [g(f) for f in fs]
+        for k in range(steps):
+            if gs[k] == 0.0 and (k > 0 or i == 0):
+                f = fs[k]
+            elif gs[k] * gs[k + 1] < 0:
+                f = fs[k] + (fs[k + 1] - fs[k]) * (-gs[k]) / (gs[k + 1] - gs[k])
+            else:
+                continue
+            x = xs[i] + f * (xs[i + 1] - xs[i])
+            out.append(10**x if log_x else x)
     return tuple(out)
 
 
@@ -372,9 +419,9 @@ def recipe_crossing(
     """Crossings and the sentence for one recipe of a sweep."""
     values = [p.value for p in points]
     errs = [p.entry(recipe).error_mha for p in points]
-    upper = [abs(p.entry(recipe).error_mha) + p.entry(recipe).std_mha for p in points]
+    stds = [p.entry(recipe).std_mha for p in points]
     central = find_crossings(values, errs, target_mha, log_x)
-    band = find_crossings(values, upper, target_mha, log_x)
+    band = band_crossings(values, errs, stds, target_mha, log_x)
     sentence = crossing_sentence(recipe, knob, values, errs, central, target_mha)
     if band and len(central) == 1 and len(band) == 1:
         sentence += (
