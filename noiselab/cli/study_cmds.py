@@ -216,9 +216,13 @@ def _show_assess(result: Any, written: list[Path]) -> None:
     typer.echo(result.verdict)
     typer.echo(result.caution)
     s = result.stats
-    typer.echo(
-        f"({s.simulations} new simulation(s), {s.cache_hits} from cache, {s.wall_seconds:.1f} s)"
-    )
+    if s.reused:
+        typer.echo("(result of an identical earlier run, read from the results cache)")
+    else:
+        typer.echo(
+            f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
+            f"{s.wall_seconds:.1f} s)"
+        )
     if written:
         typer.echo(
             f"Wrote {len(written)} file(s) to {written[0].parent}: "
@@ -331,11 +335,17 @@ def tune_cmd(
     typer.echo(result.verdict)
     typer.echo(result.caution)
     s = result.stats
-    typer.echo(
-        f"({len(result.entries)} settings from {result.distinct_variants} distinct circuit "
-        f"variant(s): {s.simulations} new simulation(s), {s.cache_hits} from cache, "
-        f"{s.wall_seconds:.1f} s, {s.executor})"
-    )
+    if s.reused:
+        typer.echo(
+            f"({len(result.entries)} settings: result of an identical earlier run, read from "
+            "the results cache)"
+        )
+    else:
+        typer.echo(
+            f"({len(result.entries)} settings from {result.distinct_variants} distinct circuit "
+            f"variant(s): {s.simulations} new simulation(s), {s.cache_hits} from cache, "
+            f"{s.wall_seconds:.1f} s, {s.executor})"
+        )
     if written:
         typer.echo(f"Wrote {', '.join(str(p) for p in written)}")
 

@@ -463,6 +463,59 @@ class TuneResult:
             )
         return out
 
+    def to_record(self) -> dict[str, Any]:
+        """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
+        return jsonable(
+            {
+                "context": dataclasses.asdict(self.context),
+                "target_mha": self.target_mha,
+                "confidence": self.confidence,
+                "shots": self.shots,
+                "seed": self.seed,
+                "entries": [
+                    {
+                        "rank": e.rank,
+                        "label": e.label,
+                        "setting": e.setting,
+                        "passes": list(e.passes),
+                        "result": dataclasses.asdict(e.result),
+                    }
+                    for e in self.entries
+                ],
+                "distinct_variants": self.distinct_variants,
+                "verdict": self.verdict,
+                "caution": self.caution,
+            }
+        )
+
+    @classmethod
+    def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> TuneResult:
+        """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
+        ctx = dict(rec["context"])
+        ctx["patch"] = tuple(ctx["patch"])
+        entries = tuple(
+            TuneEntry(
+                rank=e["rank"],
+                label=e["label"],
+                setting=e["setting"],
+                passes=tuple(e["passes"]),
+                result=_rebuild(StoredRecipe, e["result"]),
+            )
+            for e in rec["entries"]
+        )
+        return cls(
+            context=ContextSummary(**ctx),
+            target_mha=rec["target_mha"],
+            confidence=rec["confidence"],
+            shots=rec["shots"],
+            seed=rec["seed"],
+            entries=entries,
+            distinct_variants=rec["distinct_variants"],
+            stats=stats,
+            verdict=rec["verdict"],
+            caution=rec["caution"],
+        )
+
     def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
         out = self.context.to_json()
         out.update(

@@ -9,8 +9,10 @@ and cached; evaluating a setting afterwards costs no further simulation.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import itertools
+import json
 import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
@@ -18,13 +20,14 @@ from typing import Any
 
 from noiselab.common.errors import InputError
 from noiselab.study.assess import _default_cache, resolve_study
-from noiselab.study.cache import CachingRunner, ResultsCache
+from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
     TuneResult,
     csv_text,
+    jsonable,
     rank_key,
     verdict_line,
 )
@@ -217,16 +220,27 @@ def tune(
     executor: Any = None,
     progress: ProgressHook | None = None,
     context: StudyContext | None = None,
+    reuse: bool = True,
 ) -> TuneResult:
     """Evaluate every setting of the grid at the study's budget and rank them.
 
     Rank: highest probability within target first, then fewest shots needed, then label.
     ``workers`` > 1 (or an ``executor`` from :mod:`noiselab.study.executor`) runs the distinct
-    simulations in parallel.
+    simulations in parallel. ``reuse``: return the stored result of an identical earlier tune
+    of the same files (False recomputes, still reading simulations from the cache).
     """
     t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots)
     store = _default_cache(cache)
+    key = None
+    if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
+        options = {"seed": seed, "shots": shots, "grid": dataclasses.asdict(grid or GridOverride())}
+        key = job_key("tune", study_or_path, jsonable(options))
+        hit = store.get(JOB_KIND, key) if key is not None else None
+        if hit is not None:
+            with contextlib.suppress(ValueError, TypeError, KeyError):
+                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
+                return TuneResult.from_record(json.loads(hit[0]), stats)
+    study = resolve_study(study_or_path, seed, shots)
     resolved, _ = resolve_grid(study, grid)
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     settings, notes = grid_settings(resolved, bool(getattr(ctx.qubit_problem, "symmetries", ())))
@@ -278,7 +292,7 @@ def tune(
         wall_seconds=time.perf_counter() - t0,
         executor=getattr(executor, "description", "in-process"),
     )
-    return TuneResult(
+    result = TuneResult(
         context=ctx.summary(),
         target_mha=study.target_mha,
         confidence=study.confidence,
@@ -289,6 +303,9 @@ def tune(
         stats=stats,
         verdict=verdict,
     )
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    return result
 
 
 def write_tune_outputs(result: TuneResult, out: str | Path) -> list[Path]:
