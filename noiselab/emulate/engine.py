@@ -29,6 +29,19 @@ METHODS = ("auto", "density_matrix", "trajectory")
 
 _ENGINE_CALLS = [0]
 
+#: qiskit-aer ``max_parallel_threads`` (0 = all cores); set by the study layer's worker processes.
+ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
+
+
+def engine_threads() -> int:
+    """Threads qiskit-aer may use in this process (0 = all), from ``$NOISELAB_ENGINE_THREADS``."""
+    import os
+
+    try:
+        return max(0, int(os.environ.get(ENGINE_THREADS_ENV, "0")))
+    except ValueError:
+        return 0
+
 
 def engine_call_count() -> int:
     """Total number of simulator runs made by this module since import (for tests and reports)."""
@@ -126,7 +139,9 @@ def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
 
     qc = circuit.copy()
     qc.save_density_matrix(label="rho")
-    sim = AerSimulator(method="density_matrix", noise_model=noise_model)
+    sim = AerSimulator(
+        method="density_matrix", noise_model=noise_model, max_parallel_threads=engine_threads()
+    )
     _ENGINE_CALLS[0] += 1
     result = sim.run(qc, shots=1).result()
     if not result.success:

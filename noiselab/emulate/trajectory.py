@@ -73,7 +73,9 @@ def simulate_trajectories(circuit: Any, shots: int, seed: int | None) -> np.ndar
 
     qc = circuit.copy()
     qc.save_statevector(label="psi", pershot=True)
-    sim = AerSimulator(method="statevector")
+    from noiselab.emulate.engine import engine_threads
+
+    sim = AerSimulator(method="statevector", max_parallel_threads=engine_threads())
     opts: dict[str, Any] = {"shots": int(shots)}
     if seed is not None:
         opts["seed_simulator"] = int(seed)
