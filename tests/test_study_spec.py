@@ -186,3 +186,19 @@ def test_help_does_not_import_heavy_modules() -> None:
     )
     proc = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, timeout=60)
     assert proc.stdout.strip().splitlines()[-1] == "heavy=", proc.stdout
+
+
+def test_postselect_without_symmetries_is_refused_with_its_key(tmp_path: Path) -> None:
+    import yaml
+
+    from noiselab.study.assess import assess
+
+    data = yaml.safe_load((BAD / "unknown_pass.yaml").read_text(encoding="utf-8"))
+    data.update(encoding="parity", two_qubit_reduction=True)
+    # the two-qubit reduction fixes the parities post-selection would check (Bravyi et al. 2017)
+    data["recipes"] = {"raw": [], "ps": [{"pass": "postselect"}]}
+    path = tmp_path / "reduced.yaml"
+    path.write_text(yaml.safe_dump(data), encoding="utf-8")
+    with pytest.raises(InputError) as info:
+        assess(path, cache=False)
+    assert str(path) in str(info.value) and "recipes.ps[0]" in str(info.value)

@@ -439,12 +439,12 @@ def validate_recipe(
 
     Returns the passes with every option filled in (the registry's defaults).
     """
-    from noiselab.mitigate.registry import make_pass
+    from noiselab.mitigate.recipe import parse_recipe
 
-    out = []
-    for i, item in enumerate(passes):
-        try:
-            out.append(make_pass(item, where=f"{key}[{i}]").spec())
-        except InputError as exc:
-            raise InputError(f"{source}: {exc}") from None
-    return tuple(out)
+    try:
+        return tuple(parse_recipe(list(passes), where=key).spec())
+    except InputError as exc:
+        text = str(exc)
+        # a check across options reads "key[i]: option: ..."; name it key[i].option
+        text = re.sub(rf"^({re.escape(key)}\[\d+\]): ([a-z_]+): ", r"\1.\2: ", text)
+        raise InputError(f"{source}: {text}") from None
