@@ -59,8 +59,13 @@ def h2() -> dict:
     spec = MoleculeSpec(geometry="H 0 0 0; H 0 0 0.7408")
     qp = encode(compute_problem(spec), "jordan_wigner")
     circ = uccsd_circuit(qp)
+    from qiskit.quantum_info import Statevector
+
     opt = optimize_noiseless(qp, circ)
-    return {"qp": qp, "bound": circ.assign_parameters(opt.parameters), "opt": opt}
+    bound = circ.assign_parameters(opt.parameters)
+    # source: qiskit.quantum_info.Statevector expectation of the noiseless circuit
+    e0 = Statevector(bound).expectation_value(qp.hamiltonian).real
+    return {"qp": qp, "bound": bound, "opt": opt, "e0": e0}
 
 
 # ---- kernel exactness on a hand-built noise model -------------------------------------------
@@ -261,16 +266,14 @@ def test_one_simulator_run_serves_every_basis(monkeypatch: pytest.MonkeyPatch) -
 # ---- noise scaling -----------------------------------------------------------------------------
 
 
-def test_zero_noise_reproduces_statevector_energy_and_error_grows(h2: dict) -> None:
-    from qiskit.quantum_info import Statevector
-
+@pytest.mark.parametrize("device", sorted(p.stem for p in DEVICES.glob("*.yaml")))
+def test_zero_noise_reproduces_statevector_energy_and_error_grows(h2: dict, device: str) -> None:
     from noiselab.device.compile import compile_to_device
     from noiselab.device.profile import load_profile, scale_profile
 
     H = h2["qp"].hamiltonian
-    # source: qiskit.quantum_info.Statevector expectation of the noiseless circuit
-    e0 = Statevector(h2["bound"]).expectation_value(H).real
-    prof = load_profile(DEVICES / "tallowtrap-8.yaml")
+    e0 = h2["e0"]
+    prof = load_profile(DEVICES / f"{device}.yaml")
     comp = compile_to_device(h2["bound"], prof)
     errors = []
     for s in (0.0, 0.3, 1.0, 2.0):
