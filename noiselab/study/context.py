@@ -13,7 +13,7 @@ import time
 from collections.abc import Callable
 from typing import Any
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import InputError, input_error
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
@@ -164,13 +164,19 @@ def build_context(
     tick(2)
     t = time.perf_counter()
     bound = circuit.assign_parameters(list(optimum.parameters), inplace=False)
-    compiled = compile_to_device(
-        bound,
-        study.profile,
-        layout=study.layout,
-        optimization_level=study.optimization_level,
-        seed=study.seed,
-    )
+    try:
+        compiled = compile_to_device(
+            bound,
+            study.profile,
+            layout=study.layout,
+            optimization_level=study.optimization_level,
+            seed=study.seed,
+        )
+    except InputError as exc:
+        text = str(exc)
+        if study.layout is not None and "layout: " in text:  # the study's key, not the profile's
+            raise InputError(f"{study.source}: layout: {text.split('layout: ', 1)[1]}") from None
+        raise
     plan = build_plan(qp.hamiltonian)
     seconds["compile"] = time.perf_counter() - t
     tick(3)
