@@ -131,3 +131,44 @@ def test_knob_values_and_factors() -> None:
     assert knob_factor(get_knob("coherence-us"), 200.0, 100.0) == pytest.approx(0.5)
     assert knob_factor(get_knob("two-qubit-error"), 0.02, 0.01) == pytest.approx(2.0)
     assert knob_factor(get_knob("scale"), 1.7, 123.0) == pytest.approx(1.7)
+
+
+def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
+    from noiselab.device.profile import profile_from_mapping
+
+    return profile_from_mapping(
+        {
+            "schema_version": 1,
+            "name": "floor-chip",
+            "qubit_count": 2,
+            "links": [[0, 1]],
+            "native_gates": {"single_qubit": ["rz", "sx"], "two_qubit": "cz"},
+            "durations": {"single_qubit_ns": 35, "two_qubit_ns": 300, "readout_ns": 1000},
+            "qubits": {
+                "default": {
+                    "t1_us": 50,
+                    "t2_us": 40,
+                    "gate_error": gate_error_1q,
+                    "p_read1_prep0": 0.01,
+                    "p_read0_prep1": 0.02,
+                }
+            },
+            "couplers": {"default": {"gate_error": gate_error_2q}},
+        }  # fmt: skip
+    )
+
+
+def test_relaxation_floor_and_reference_values() -> None:
+    from noiselab.study.sweep import below_relaxation_floor, reference_value
+
+    knob = get_knob("two-qubit-error")
+    # T1 = 50 us over a 300 ns gate costs of order t / T1 = 0.6 % of fidelity (Nielsen & Chuang
+    # sec. 8.3, to first order): 1e-5 is far below that floor, 5 % far above
+    assert below_relaxation_floor(knob, _profile(1e-5), (0, 1))
+    assert not below_relaxation_floor(knob, _profile(5e-2), (0, 1))
+    assert not below_relaxation_floor(get_knob("readout-error"), _profile(1e-5), (0, 1))
+    p = _profile(2e-2)
+    assert reference_value(knob, p, (0, 1)) == pytest.approx(2e-2)
+    # readout knob: the mean of P(1|0) and P(0|1), (0.01 + 0.02) / 2
+    assert reference_value(get_knob("readout-error"), p, (0, 1)) == pytest.approx(0.015)
+    assert reference_value(get_knob("coherence-us"), p, (0, 1)) == pytest.approx(50.0)

@@ -515,6 +515,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
                 fontsize=7,
                 color=col,
                 fontweight="bold",
+                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8},
             )
             k += 1
     cur = sweep_result.current_value * d
@@ -527,9 +528,15 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     )
     low = [p.value * d for p in sweep_result.points if getattr(p, "floored", False)]
     if low:
+        # shade up to halfway to the first point above the floor (geometric mean on a log axis)
+        above = [x for x in xs if x > max(low)]
+        edge = max(low)
+        if above:
+            nxt = min(above)
+            edge = math.sqrt(edge * nxt) if sweep_result.log else 0.5 * (edge + nxt)
         ax.axvspan(
             min(xs),
-            max(low),
+            edge,
             color="0.85",
             alpha=0.5,
             lw=0,

@@ -50,7 +50,7 @@ class Knob:
     def show(self, value: float) -> str:
         """``value`` (base units) in display units with three significant digits."""
         v = value * self.display_factor
-        text = f"{v:.3g}"
+        text = f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
         return f"{text} {self.unit}" if self.unit else text
 
 
