@@ -154,7 +154,7 @@ def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
                 }
             },
             "couplers": {"default": {"gate_error": gate_error_2q}},
-        }  # fmt: skip
+        }
     )
 
 
