@@ -30,12 +30,6 @@ def _order_by_sharing(keys: Sequence[Sequence[Hashable]], n: int) -> list[int]:
     return sorted(range(n), key=lambda l: (distinct[l], l))
 
 
-def _final_perm(order: Sequence[int], n: int) -> list[int]:
-    # after contraction, axis j holds logical qubit order[n-1-j]; we want axis p <-> qubit n-1-p
-    where = {order[n - 1 - j]: j for j in range(n)}
-    return [where[n - 1 - p] for p in range(n)]
-
-
 def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndarray:
     """Real part, clip rounding negatives, renormalize each row (last axis) to sum 1."""
     p = np.asarray(p)

@@ -48,7 +48,7 @@ def engine_call_count() -> int:
     return _ENGINE_CALLS[0]
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # arrays inside: compare fields explicitly
 class BasisDistributions:
     """Exact (or trajectory-averaged) measured distributions, one row per basis.
 

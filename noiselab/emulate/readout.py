@@ -128,7 +128,7 @@ def kron_readout_matrix(matrices: Sequence[np.ndarray]) -> np.ndarray:
 MAX_FULL_CALIBRATION_QUBITS = 10
 
 
-@dataclass(frozen=True)
+@dataclass(frozen=True, eq=False)  # arrays inside: compare fields explicitly
 class CalibrationDistributions:
     """Exact outcome distributions of readout-calibration circuits.
 
