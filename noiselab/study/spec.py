@@ -118,19 +118,36 @@ class TuneGrid(_Strict):
 
 
 class SweepDefaults(_Strict):
-    """Defaults for ``noiselab sweep``: device noise scale factors and which recipes to follow."""
+    """Defaults for ``noiselab sweep`` on this study (the command line overrides each).
 
-    factors: list[float] | None = Field(default=None, min_length=1)
-    channels: (
-        list[Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]] | None
-    ) = None
+    ``vary``: the knob (noise-scale, two-qubit-error, one-qubit-error, coherence-us,
+    readout-error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
+    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow.
+    """
+
+    vary: str | None = None
+    start: float | None = None
+    stop: float | None = None
+    points: StrictInt | None = Field(default=None, ge=2, le=200)
+    log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
 
-    @field_validator("factors")
+    @field_validator("vary")
     @classmethod
-    def _check_factors(cls, value: list[float] | None) -> list[float] | None:
-        if value is not None and any(not math.isfinite(f) or f < 0 for f in value):
-            raise ValueError(f"factors {value}: allowed: finite numbers >= 0")
+    def _check_vary(cls, value: str | None) -> str | None:
+        if value is None:
+            return value
+        from noiselab.study.sweep import KNOB_ALIASES, KNOBS
+
+        if KNOB_ALIASES.get(value, value) not in KNOBS:
+            raise ValueError(f"unknown knob {value!r}; allowed: {', '.join(KNOBS)}")
+        return value
+
+    @field_validator("start", "stop")
+    @classmethod
+    def _check_ends(cls, value: float | None) -> float | None:
+        if value is not None and (not math.isfinite(value) or value < 0):
+            raise ValueError(f"{value}; allowed: a finite number >= 0 in the knob's base units")
         return value
 
 
