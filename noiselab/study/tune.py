@@ -224,7 +224,7 @@ def tune(
 ) -> TuneResult:
     """Evaluate every setting of the grid at the study's budget and rank them.
 
-    Rank: highest probability within target first, then fewest shots needed, then label.
+    Rank: highest probability within target first, then fewest shots needed, then grid order.
     ``workers`` > 1 (or an ``executor`` from :mod:`noiselab.study.executor`) runs the distinct
     simulations in parallel. ``reuse``: return the stored result of an identical earlier tune
     of the same files (False recomputes, still reading simulations from the cache).
@@ -274,7 +274,8 @@ def tune(
         )
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
-    results.sort(key=lambda sr: (*rank_key(sr[1]), sr[0].label))
+    order = {s.label: i for i, s in enumerate(settings)}  # exact ties: the grid's own order
+    results.sort(key=lambda sr: (*rank_key(sr[1]), order[sr[0].label]))
     entries = tuple(
         TuneEntry(rank=i + 1, label=s.label, setting=s.options, passes=s.passes, result=r)
         for i, (s, r) in enumerate(results)
