@@ -30,6 +30,8 @@ def test_notebook_executes(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> N
     assert not [o for o in outputs if o.get("output_type") == "error"]
     text = "".join(o.get("text", "") for o in outputs if o.get("output_type") == "stream")
     assert "Verdict:" in text and "chemical accuracy" in text
+    assert "two-qubit gate error (%)" in text  # the sweep table, printed as plain text
+    assert "\x1b[" not in text  # no terminal escape codes inside a notebook
     images = [o for o in outputs if "image/png" in o.get("data", {})]
     svgs = [o for o in outputs if "image/svg+xml" in o.get("data", {})]
     assert images and svgs  # the figures are shown inline

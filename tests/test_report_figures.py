@@ -179,6 +179,7 @@ def test_budget_outputs_and_tables(tmp_path: Path) -> None:
     assert {p.suffix for p in written} == {".csv", ".json", ".png", ".svg"}
     text = T.render_text(T.budget_table(b, plain=True))
     assert "error ± std (mHa)" in text and "without readout" in text
+    assert "\x1b" not in text  # plain text, no terminal escape codes
     stext = T.render_text(T.sweep_table(_hand_sweep(), plain=True))
     assert "two-qubit gate error (%)" in stext
 

@@ -234,6 +234,12 @@ def render_text(table: Any, width: int = 140) -> str:
     """A rich table as plain text (no colour), for logs and tests."""
     from rich.console import Console
 
-    console = Console(file=io.StringIO(), width=width, no_color=True, highlight=False)
+    console = Console(
+        file=io.StringIO(),
+        width=width,
+        color_system=None,
+        highlight=False,
+        force_jupyter=False,
+    )
     console.print(table)
     return console.file.getvalue()

@@ -639,7 +639,7 @@ def sweep(
     (the user cache folder) or False. ``workers`` > 1 runs points in local processes.
     ``on_point(index, point)`` is called in the calling process as each point finishes.
     Defaults: a quarter to four times the device's value; for ``noise-scale`` the study's
-    ``sweep.factors`` when given.
+    ``sweep.factors`` and ``sweep.channels`` when given.
     """
     import time
 
@@ -680,6 +680,9 @@ def sweep(
     values = tuple(float(v) for v in values)
     factors_used = tuple(knob_factor(spec, v, ref) for v in values)
     channels = None if spec.channels is None else list(spec.channels)
+    defaults = getattr(study, "sweep", None)
+    if spec.channels is None and defaults is not None and defaults.channels:
+        channels = list(defaults.channels)  # the study's sweep.channels for a uniform scale
     profiles = [scale_profile(profile, f, channels) for f in factors_used]
     floored = [below_relaxation_floor(spec, p, patch) for p in profiles]
     tasks = [ConfigTask(ctx.experiment, p, picked, store) for p in profiles]
