@@ -161,3 +161,19 @@ def test_worker_processes_give_the_same_sweep(study_path: Path, tmp_path: Path) 
     assert "process pool" in pool.stats.executor
     assert pool.stats.simulations == here.stats.simulations  # run in the workers, cached here
     assert sweep_rows(pool) == sweep_rows(here)
+
+
+def test_study_sweep_section_gives_the_defaults(tmp_path: Path) -> None:
+    p = tmp_path / "with-sweep.yaml"
+    section = (
+        "sweep:\n  vary: two-qubit-error\n  start: 0.004\n  stop: 0.016\n  points: 2\n"
+        "  log: true\n  recipes: [raw]\n"
+    )
+    p.write_text(TINY_STUDY + section, encoding="utf-8")
+    res = sweep(p, cache=open_cache(tmp_path / "c.sqlite"))
+    assert res.knob == "two-qubit-error" and res.log
+    assert res.values == pytest.approx((0.004, 0.016))
+    assert res.recipes == ("raw",)
+    # the command line (here: arguments) overrides the study's section
+    res2 = sweep(p, points=3, log=False, cache=open_cache(tmp_path / "c.sqlite"))
+    assert res2.values == pytest.approx((0.004, 0.010, 0.016))

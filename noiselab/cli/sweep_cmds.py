@@ -57,13 +57,20 @@ def _print(table: Any) -> None:
 
 def sweep_cmd(
     study: StudyArg,
-    vary: Annotated[str, typer.Option("--vary", help=KNOB_HELP, show_default=False)],
+    vary: Annotated[
+        str | None,
+        typer.Option(
+            "--vary",
+            help=KNOB_HELP + " Default: the study's sweep.vary, else noise-scale.",
+            show_default=False,
+        ),
+    ] = None,
     start: Annotated[
         float | None,
         typer.Option(
             "--from",
             help="First knob value (base units: probability, us or factor). "
-            "Default: a quarter of the device's value.",
+            "Default: the study's sweep.start, else a quarter of the device's value.",
             show_default=False,
         ),
     ] = None,
@@ -71,15 +78,28 @@ def sweep_cmd(
         float | None,
         typer.Option(
             "--to",
-            help="Last knob value. Default: four times the device's value.",
+            help="Last knob value. Default: the study's sweep.stop, else four times the "
+            "device's value.",
             show_default=False,
         ),
     ] = None,
-    points: Annotated[int, typer.Option("--points", help="Number of knob values.")] = 5,
+    points: Annotated[
+        int | None,
+        typer.Option(
+            "--points",
+            help="Number of knob values. Default: the study's, else 5.",
+            show_default=False,
+        ),
+    ] = None,
     log: Annotated[
-        bool,
-        typer.Option("--log", help="Space the values logarithmically (and the figure's axis)."),
-    ] = False,
+        bool | None,
+        typer.Option(
+            "--log/--linear",
+            help="Log or even spacing of the values (and the figure's axis). "
+            "Default: the study's, else even.",
+            show_default=False,
+        ),
+    ] = None,
     recipe: RecipeOpt = None,
     out: OutOpt = None,
     cache: CacheOpt = None,
@@ -93,7 +113,8 @@ def sweep_cmd(
     from noiselab.cli.study_cmds import _open_cache, _progress
     from noiselab.study.sweep import get_knob, sweep
 
-    get_knob(vary)  # a bad knob fails before any work
+    if vary is not None:
+        get_knob(vary)  # a bad knob fails before any work
     store = _open_cache(cache, no_cache)
     with _progress(quiet) as hook:
         result = sweep(

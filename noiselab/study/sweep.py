@@ -616,11 +616,11 @@ ProgressHook = Callable[[str, int, int], None]
 
 def sweep(
     study_or_path: Any,
-    knob: str = "noise-scale",
+    knob: str | None = None,
     start: float | None = None,
     stop: float | None = None,
-    points: int = 5,
-    log: bool = False,
+    points: int | None = None,
+    log: bool | None = None,
     *,
     recipes: Sequence[str] | None = None,
     values: Sequence[float] | None = None,
@@ -635,11 +635,13 @@ def sweep(
 ) -> SweepResult:
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
-    ``values`` gives the knob values explicitly instead. ``cache``: a ResultsCache, a path, None
-    (the user cache folder) or False. ``workers`` > 1 runs points in local processes.
-    ``on_point(index, point)`` is called in the calling process as each point finishes.
-    Defaults: a quarter to four times the device's value; for ``noise-scale`` the study's
-    ``sweep.factors`` and ``sweep.channels`` when given.
+    Every argument left as None comes from the study's ``sweep:`` section, else the built-in
+    default: knob ``noise-scale``, a quarter to four times the device's value, 5 points, even
+    spacing, all of the study's recipes (raw always first). ``values`` gives the knob values
+    explicitly instead. ``cache``: a ResultsCache, a path, None (the user cache folder) or
+    False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
+    e.g. a dask one). ``on_point(index, point)`` is called in the calling process as each
+    point finishes.
     """
     import time
 
@@ -649,8 +651,22 @@ def sweep(
     from noiselab.study.results import RunStats
 
     t0 = time.perf_counter()
-    spec = get_knob(knob)
     study = resolve_study(study_or_path, seed, shots)
+    defaults = getattr(study, "sweep", None)
+
+    def default(name: str, given: Any, fallback: Any) -> Any:
+        if given is not None:
+            return given
+        from_study = getattr(defaults, name, None)
+        return fallback if from_study is None else from_study
+
+    spec = get_knob(default("vary", knob, "noise-scale"))
+    same_knob = knob is None or getattr(defaults, "vary", None) in (None, knob)
+    # the study's range belongs to the study's knob; another knob gets the built-in range
+    start = start if not same_knob else default("start", start, None)
+    stop = stop if not same_knob else default("stop", stop, None)
+    points = int(default("points", points, 5))
+    log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     store = _default_cache(cache)
     if points < 2 and values is None:
@@ -669,20 +685,13 @@ def sweep(
     patch = tuple(ctx.compiled.patch)
     ref = reference_value(spec, profile, patch)
     if values is None:
-        factors = getattr(getattr(study, "sweep", None), "factors", None)
-        if spec.channels is None and start is None and stop is None and factors:
-            values = sorted(check_value(spec, f, "sweep.factors", log) for f in factors)
-        else:
-            d_lo, d_hi = default_range(spec, ref)
-            values = knob_values(
-                spec, d_lo if start is None else start, d_hi if stop is None else stop, points, log
-            )
+        d_lo, d_hi = default_range(spec, ref)
+        values = knob_values(
+            spec, d_lo if start is None else start, d_hi if stop is None else stop, points, log
+        )
     values = tuple(float(v) for v in values)
     factors_used = tuple(knob_factor(spec, v, ref) for v in values)
     channels = None if spec.channels is None else list(spec.channels)
-    defaults = getattr(study, "sweep", None)
-    if spec.channels is None and defaults is not None and defaults.channels:
-        channels = list(defaults.channels)  # the study's sweep.channels for a uniform scale
     profiles = [scale_profile(profile, f, channels) for f in factors_used]
     floored = [below_relaxation_floor(spec, p, patch) for p in profiles]
     tasks = [ConfigTask(ctx.experiment, p, picked, store) for p in profiles]
