@@ -277,7 +277,7 @@ class Study:
         if shots is None or shots == self.shots:
             return self
         if shots <= 0:
-            raise input_error(str(self.source), "shots", f"{shots} shots", "a positive integer")
+            raise input_error(str(self.source), "--shots", f"{shots} shots", "a positive integer")
         import dataclasses
 
         return dataclasses.replace(self, shots=int(shots))
@@ -345,6 +345,10 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
                 f"exactly {num_qubits} distinct qubit ids",
             )
         layout = tuple(spec.layout)
+    if spec.tune is not None:
+        from noiselab.study.tune import check_tune_section
+
+        check_tune_section(spec.tune, src)
     if spec.sweep is not None and spec.sweep.recipes is not None:
         for i, name in enumerate(spec.sweep.recipes):
             if name not in recipes:

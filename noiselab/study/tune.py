@@ -101,6 +101,26 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     return grid, origin
 
 
+def check_tune_section(section: TuneGrid, source: str) -> None:
+    """Refuse unknown values in a study's ``tune:`` section (errors name tune.<axis>[i])."""
+    defaults = {
+        "readout": DEFAULT_READOUT,
+        "postselect": DEFAULT_POSTSELECT,
+        "amplification": DEFAULT_AMPLIFICATION,
+        "scales": DEFAULT_SCALES,
+        "fit": DEFAULT_FIT,
+    }
+    values = {a: getattr(section, a) or d for a, d in defaults.items()}
+    grid = Grid(
+        readout=tuple(values["readout"]),
+        postselect=tuple(values["postselect"]),
+        amplification=tuple(values["amplification"]),
+        scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
+        fit=tuple(values["fit"]),
+    )
+    _check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
+
+
 def _check_axes(grid: Grid, origin: dict[str, str]) -> None:
     """Refuse unknown names on an axis, naming the axis and what is allowed."""
     from noiselab.mitigate.passes.extrapolate import ExtrapolateOptions
