@@ -89,6 +89,8 @@ def test_sentences_in_device_units() -> None:
     assert "above 120 us" in s
     s = crossing_sentence("raw", knob, [0.001, 0.01], [5.0, 9.0], [], CHEMICAL_ACCURACY_MHA)
     assert "does not reach chemical accuracy" in s
+    s = crossing_sentence("raw", knob, [0.01], [0.5], [], CHEMICAL_ACCURACY_MHA)
+    assert s == "raw is within chemical accuracy at the two-qubit gate error of 1 %"
 
 
 def test_recipe_crossing_band_is_earlier_than_central() -> None:

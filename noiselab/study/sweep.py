@@ -391,6 +391,9 @@ def crossing_sentence(
     inside = [abs(e) <= target_mha for e in errors_mha]
     lo, hi = min(values), max(values)
     span = f"{knob.show(lo)} to {knob.show(hi)}"
+    if lo == hi:
+        verdict = f"is within {goal}" if all(inside) else f"is outside {goal}"
+        return f"{recipe} {verdict} at {knob.phrase} of {knob.show(lo)}"
     if not crossings:
         if all(inside):
             return f"{recipe} stays within {goal} over the whole range of {knob.phrase} ({span})"
