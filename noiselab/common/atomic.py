@@ -21,6 +21,10 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent)
     os.close(fd)
     tmp_path = Path(tmp)
+    # mkstemp creates 0600; give the final file the permissions an ordinary open() would.
+    umask = os.umask(0)
+    os.umask(umask)
+    os.chmod(tmp_path, 0o666 & ~umask)
     try:
         yield tmp_path
         os.replace(tmp_path, target)
