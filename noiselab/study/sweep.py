@@ -144,7 +144,8 @@ def knob_values(knob: Knob, start: float, stop: float, points: int, log: bool) -
         raise input_error("sweep", "--points", f"{points} points", "2 or more")
     if log:
         a, b = math.log10(start), math.log10(stop)
-        return tuple(10 ** (a + (b - a) * i / (points - 1)) for i in range(points))
+        inner = [10 ** (a + (b - a) * i / (points - 1)) for i in range(1, points - 1)]
+        return (start, *inner, stop)  # the ends exactly as given
     return tuple(start + (stop - start) * i / (points - 1) for i in range(points))
 
 
