@@ -330,3 +330,10 @@ def test_bad_bases_are_refused(bases: list[str]) -> None:
     dev = toy_device(2)
     with pytest.raises(InputError, match="bases"):
         emulate_circuit_bases(QuantumCircuit(2), dev.noise_model, bases, layer=dev.layer)
+
+
+def test_natives_that_cannot_change_basis_are_refused() -> None:
+    from noiselab.emulate.channels import native_basis_change
+
+    with pytest.raises(InputError, match="cannot express"):
+        native_basis_change("X", ("rz", "x"))

@@ -62,7 +62,18 @@ def native_basis_change(
         return ()
     else:
         raise ValueError(f"unknown basis letter {letter!r}")
-    out = transpile(qc, basis_gates=list(native_1q), optimization_level=1)
+    from qiskit.transpiler.exceptions import TranspilerError
+
+    try:
+        out = transpile(qc, basis_gates=list(native_1q), optimization_level=1)
+    except TranspilerError:
+        from noiselab.common.errors import InputError
+
+        raise InputError(
+            f"emulation: native single-qubit gates {list(native_1q)} cannot express the "
+            f"{'X gate' if letter == 'FLIP' else letter + '-basis change'}; allowed: natives "
+            f"that include sx (with rz)"
+        ) from None
     return tuple(
         (inst.operation.name, tuple(float(p) for p in inst.operation.params)) for inst in out.data
     )

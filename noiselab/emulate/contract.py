@@ -101,7 +101,13 @@ def dm_distributions(
     k = dim.bit_length() - 1
     n = len(qubits)
     order = _order_by_sharing(keys, n)
-    x = np.asarray(rho).reshape(1, dim, dim)
+    rho = np.asarray(rho)
+    transposed = not rho.flags.c_contiguous and rho.flags.f_contiguous
+    if transposed:
+        # qiskit-aer hands back a column-major matrix: work on its C-ordered transpose (a view)
+        # with transposed effects, Tr(rho E) = sum_ab rho^T[a, b] E^T[b, a]
+        rho = rho.T
+    x = rho.reshape(1, dim, dim)
     rem = list(range(k - 1, -1, -1))  # circuit qubit at each position, most significant first
     trace = np.eye(2, dtype=complex)[None]
     for c in range(k):
@@ -128,7 +134,8 @@ def dm_distributions(
         for i in members:
             groups.setdefault(keys[i][l], []).append(i)
         for members_g in groups.values():
-            y = _contract_qubit(x, pos, len(rem), effects[members_g[0]][l])
+            e = effects[members_g[0]][l]
+            y = _contract_qubit(x, pos, len(rem), e.transpose(0, 2, 1) if transposed else e)
             rec(y, depth + 1, sub, members_g)
 
     rec(x, 0, rem, list(range(len(effects))))
