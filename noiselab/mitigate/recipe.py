@@ -214,15 +214,20 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
     """JSON-serializable description of everything that determines ``runner(variant)``.
 
     Hash ``json.dumps(material, sort_keys=True)`` for a cache key. The circuit enters as the
-    SHA-256 of its QPY serialization (exact parameters), with its QASM3 text hash as a backup.
+    SHA-256 of its QPY serialization (exact parameters), independent of the circuit's name.
     """
     import io
 
     from qiskit import qpy
 
     compiled, profile, _ = variant_inputs(ctx, variant)
+    # qiskit names new circuits from a process-wide counter ("circuit-43") and QPY stores the
+    # name: hash a copy under a fixed name so equal circuits give equal keys in any process.
+    circuit = compiled.circuit.copy()
+    circuit.name = "noiselab"
+    circuit.metadata = {}
     buf = io.BytesIO()
-    qpy.dump(compiled.circuit, buf)
+    qpy.dump(circuit, buf)
     method = ctx.emulation_method
     try:
         from noiselab.emulate.engine import choose_method

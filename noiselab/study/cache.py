@@ -273,18 +273,6 @@ def open_cache(path: str | Path | None = None, *, enabled: bool = True) -> Resul
 SIMULATION_KIND = "basis-distributions-v1"
 
 
-def circuit_sha256(compiled: Any) -> str:
-    """SHA-256 of a compiled circuit's QPY form, independent of its auto-generated name."""
-    from qiskit import qpy
-
-    circuit = compiled.circuit.copy()
-    circuit.name = "noiselab"
-    circuit.metadata = {}
-    buf = io.BytesIO()
-    qpy.dump(circuit, buf)
-    return hashlib.sha256(buf.getvalue()).hexdigest()
-
-
 def _simulate(item: tuple[Any, Any]) -> Any:
     """Executor task: one simulation of ``variant`` for ``experiment`` (module level: picklable)."""
     from noiselab.mitigate.recipe import make_runner
@@ -319,13 +307,9 @@ class CachingRunner:
 
     def key(self, variant: Any) -> str:
         """SHA-256 of everything that determines this variant's simulation."""
-        from noiselab.mitigate.recipe import variant_inputs, variant_key_material
+        from noiselab.mitigate.recipe import variant_key_material
 
-        material = dict(variant_key_material(self.experiment, variant))
-        # qiskit names new circuits from a process-wide counter ("circuit-43"), which QPY
-        # stores: hash the circuit under a fixed name so that keys agree between runs
-        material["circuit_qpy_sha256"] = circuit_sha256(variant_inputs(self.experiment, variant)[0])
-        return digest(SIMULATION_KIND, material)
+        return digest(SIMULATION_KIND, variant_key_material(self.experiment, variant))
 
     def _lookup(self, variant: Any) -> Any:
         from noiselab.emulate.engine import BasisDistributions
