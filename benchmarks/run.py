@@ -90,8 +90,9 @@ def bench_overhead(quick: bool) -> dict[str, Any]:
         store.close()
     distinct = log.distinct()
     _say(f"  assess: {assess_s:.2f} s, {len(log.calls)} engine calls, {len(distinct)} distinct")
-    bare_s = rerun_bare(distinct)
-    _say(f"  bare qiskit-aer re-run of the distinct calls: {bare_s:.2f} s")
+    repeats = 1 if quick else 2
+    bare_s = rerun_bare(distinct, repeats=repeats)
+    _say(f"  bare qiskit-aer re-run of the distinct calls (best of {repeats}): {bare_s:.2f} s")
     ratio = assess_s / bare_s
     optimize_s = float(ctx.seconds.get("optimize", 0.0))
     return {
@@ -110,11 +111,14 @@ def bench_overhead(quick: bool) -> dict[str, Any]:
         "context_first_run_s": context_first_s,
         "context_breakdown_s": dict(ctx.seconds),
         "ratio_first_run_estimate": (assess_s + optimize_s) / bare_s,
+        "ratio_vs_engine_inside": assess_s / log.seconds if log.seconds else None,
         "notes": [
             "assess ran with the noiseless optimum already cached (a fresh cache otherwise); "
             "ratio_first_run_estimate adds the optimizer's time measured in the first context",
             "engine_bare_s: the same circuits and noise models handed to a fresh AerSimulator "
-            "with the same options, outside noiselab",
+            "with the same options, outside noiselab (best of the repeats)",
+            "ratio_vs_engine_inside: the same wall time over the qiskit-aer time measured "
+            "inside this assess (same machine load as the assess itself)",
         ],
     }
 
@@ -437,6 +441,25 @@ def _scaling_figure(rows: list[dict[str, Any]], quick: bool) -> list[str]:
 
 # --------------------------------------------------------------------------- driver
 
+
+def _start_profiler() -> Any:
+    from pyinstrument import Profiler
+
+    profiler = Profiler(interval=0.005)
+    profiler.start()
+    return profiler
+
+
+def _stop_profiler(profiler: Any, name: str, quick: bool) -> str:
+    from noiselab.common.atomic import write_text_atomic
+
+    profiler.stop()
+    stem = results_path().stem + ("-quick" if quick else "")
+    target = RESULTS / f"profile-{name}-{stem}.txt"
+    write_text_atomic(target, profiler.output_text(unicode=False, color=False))
+    return str(target.relative_to(HERE.parent))
+
+
 BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "overhead": bench_overhead,
     "sampling": bench_sampling,
@@ -457,6 +480,11 @@ def main(argv: list[str] | None = None) -> int:
         help=f"run only these ({', '.join(BENCHMARKS)})",
     )
     parser.add_argument("--list", action="store_true", help="list the benchmarks and exit")
+    parser.add_argument(
+        "--profile",
+        action="store_true",
+        help="profile each benchmark with pyinstrument; text profile beside the results file",
+    )
     args = parser.parse_args(argv)
     if args.list:
         for name, fn in BENCHMARKS.items():
@@ -475,8 +503,11 @@ def main(argv: list[str] | None = None) -> int:
         _say(f"[{name}]{' (quick)' if args.quick else ''}")
         started = now_utc()
         t = time.perf_counter()
+        profiler = _start_profiler() if args.profile else None
         try:
             entry = BENCHMARKS[name](args.quick)
+            if profiler is not None:
+                entry["profile"] = _stop_profiler(profiler, name, args.quick)
         except Exception as exc:  # report and go on with the others
             failures += 1
             entry = {"error": f"{type(exc).__name__}: {exc}"}
