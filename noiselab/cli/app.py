@@ -38,7 +38,11 @@ def _version_callback(value: bool) -> None:
 @app.callback()
 def _root(
     version: bool = typer.Option(
-        False, "--version", callback=_version_callback, is_eager=True, help="Print the version and exit."
+        False,
+        "--version",
+        callback=_version_callback,
+        is_eager=True,
+        help="Print the version and exit.",
     ),
 ) -> None:
     """noiselab command line."""
@@ -46,7 +50,7 @@ def _root(
 
 def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
-    from noiselab.cli import commands  # noqa: F401  (imports the command modules below)
+    from noiselab.cli import commands
 
     for register in commands.REGISTRY:
         register(app)

@@ -1,1 +1,1 @@
-"""Lowest layer: errors, units, safe YAML loading, atomic file writes. Imports nothing of noiselab."""
+"""Lowest layer: errors, units, safe YAML loading, atomic writes. Imports nothing of noiselab."""

@@ -18,7 +18,9 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
     """
     target = Path(target)
     target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent)
+    fd, tmp = tempfile.mkstemp(
+        prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent
+    )
     os.close(fd)
     tmp_path = Path(tmp)
     # mkstemp creates 0600; give the final file the permissions an ordinary open() would.
@@ -35,19 +37,17 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
 
 def write_text_atomic(target: str | Path, text: str) -> Path:
     """Write ``text`` (UTF-8) to ``target`` atomically; return the path."""
-    with atomic_path(target) as tmp:
-        with open(tmp, "w", encoding="utf-8") as fh:
-            fh.write(text)
-            fh.flush()
-            os.fsync(fh.fileno())
+    with atomic_path(target) as tmp, open(tmp, "w", encoding="utf-8") as fh:
+        fh.write(text)
+        fh.flush()
+        os.fsync(fh.fileno())
     return Path(target)
 
 
 def write_bytes_atomic(target: str | Path, data: bytes) -> Path:
     """Write ``data`` to ``target`` atomically; return the path."""
-    with atomic_path(target) as tmp:
-        with open(tmp, "wb") as fh:
-            fh.write(data)
-            fh.flush()
-            os.fsync(fh.fileno())
+    with atomic_path(target) as tmp, open(tmp, "wb") as fh:
+        fh.write(data)
+        fh.flush()
+        os.fsync(fh.fileno())
     return Path(target)

@@ -32,7 +32,9 @@ class ProblemTooLargeError(InputError):
     """The requested emulation does not fit this machine (exit code 2)."""
 
 
-def input_error(source: str | None, key: str | None, problem: str, allowed: str | None = None) -> InputError:
+def input_error(
+    source: str | None, key: str | None, problem: str, allowed: str | None = None
+) -> InputError:
     """Build an :class:`InputError` with the standard one-line layout."""
     parts = [p for p in (source, key) if p]
     text = ": ".join([*parts, problem])
@@ -72,5 +74,9 @@ def from_validation_error(exc: Any, source: str | None, prefix: str = "") -> Inp
         msg = "unknown key (check the spelling)"
     elif first.get("type") == "missing":
         msg = "required key is missing"
-    more = f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})" if len(errors) > 1 else ""
+    more = (
+        f" (and {len(errors) - 1} more problem{'s' if len(errors) > 2 else ''})"
+        if len(errors) > 1
+        else ""
+    )
     return InputError(f"{': '.join(p for p in (source, path) if p)}: {msg}{more}")

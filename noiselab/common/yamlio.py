@@ -17,7 +17,6 @@ def load_yaml_mapping(path: str | Path, what: str = "file") -> dict[str, Any]:
     non-UTF-8 bytes, invalid YAML, tags that construct Python objects, an empty file or a
     top level that is not a mapping.
     """
-    import yaml
 
     p = Path(path)
     src = str(p)
@@ -45,7 +44,9 @@ def parse_yaml_mapping(text: str, source: str, what: str = "file") -> dict[str, 
     except yaml.constructor.ConstructorError as exc:
         tag = getattr(exc, "problem", "") or "unsupported tag"
         line = f" (line {exc.problem_mark.line + 1})" if getattr(exc, "problem_mark", None) else ""
-        raise input_error(source, None, f"YAML tag not allowed{line}: {tag}", "plain YAML") from None
+        raise input_error(
+            source, None, f"YAML tag not allowed{line}: {tag}", "plain YAML"
+        ) from None
     except yaml.YAMLError as exc:
         mark = getattr(exc, "problem_mark", None)
         where = f" at line {mark.line + 1}, column {mark.column + 1}" if mark else ""
@@ -57,7 +58,10 @@ def parse_yaml_mapping(text: str, source: str, what: str = "file") -> dict[str, 
         raise input_error(source, None, f"{what} is empty", "a YAML mapping of keys")
     if not isinstance(data, dict):
         raise input_error(
-            source, None, f"top level is a {type(data).__name__}, not a mapping", "a YAML mapping of keys"
+            source,
+            None,
+            f"top level is a {type(data).__name__}, not a mapping",
+            "a YAML mapping of keys",
         )
     bad = [k for k in data if not isinstance(k, str)]
     if bad:
