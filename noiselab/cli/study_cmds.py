@@ -62,10 +62,58 @@ WorkersOpt = Annotated[
         show_default=False,
     ),
 ]
+MethodOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--method",
+        help="Emulation method: auto (density matrix while it fits in memory, else Monte Carlo "
+        "trajectories), density_matrix (exact; refuse when too large) or trajectory. "
+        "Default: the study's emulation.method, else auto.",
+        show_default=False,
+    ),
+]
+TrajectoriesOpt = Annotated[
+    int | None,
+    typer.Option(
+        "--trajectories",
+        min=2,
+        help="Trajectories per circuit variant when the trajectory method runs. "
+        "Default: the study's emulation.trajectories, else 256.",
+        show_default=False,
+    ),
+]
+ClusterOpt = Annotated[
+    str | None,
+    typer.Option(
+        "--cluster",
+        help="Run independent simulations on a running Dask scheduler, tcp://HOST:PORT "
+        "(needs the 'cluster' extra). Not together with --workers.",
+        show_default=False,
+    ),
+]
 ListOpt = list[str] | None
 
 
 # ---------------------------------------------------------------- helpers shared by the commands
+
+
+def _check_method(method: str | None) -> None:
+    """Refuse a bad --method before any work (one line, exit 2)."""
+    if method is None:
+        return
+    from noiselab.study.spec import EMULATION_METHODS
+
+    if method not in EMULATION_METHODS:
+        from noiselab.common.errors import input_error
+
+        raise input_error(None, "--method", f"{method!r}", ", ".join(EMULATION_METHODS))
+
+
+def emit_notice(result: Any) -> None:
+    """The job's emulation notice (auto switched to trajectories), once, on stderr."""
+    notice = getattr(result, "emulation_notice", None)
+    if notice:
+        typer.echo(f"noiselab: note: {notice}", err=True)
 
 
 def _open_cache(cache: Path | None, no_cache: bool) -> Any:
@@ -189,13 +237,25 @@ def assess_cmd(
     shots: ShotsOpt = None,
     quiet: QuietOpt = False,
     timings: TimingsOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
     from noiselab.study.assess import assess
 
+    _check_method(method)
     store = _open_cache(cache, no_cache)
     with _progress(quiet or json_out) as hook:
-        result = assess(study, cache=store, seed=seed, shots=shots, progress=hook)
+        result = assess(
+            study,
+            cache=store,
+            seed=seed,
+            shots=shots,
+            progress=hook,
+            method=method,
+            trajectories=trajectories,
+        )
+    emit_notice(result)
     written = _write_assess_outputs(result, out) if out is not None else []
     if json_out:
         _print_json(result.to_json(with_stats=timings))
@@ -204,7 +264,7 @@ def assess_cmd(
 
 
 def _show_assess(result: Any, written: list[Path]) -> None:
-    from noiselab.study.results import TABLE_HEADERS, format_count
+    from noiselab.study.results import format_count
 
     for line in _context_lines(result.context):
         typer.echo(line)
@@ -212,7 +272,21 @@ def _show_assess(result: Any, written: list[Path]) -> None:
         f"{result.study}: {format_count(result.shots)} shots per estimate, target "
         f"±{result.target_mha:.4g} mHa at confidence {result.confidence:g}"
     )
-    _print_table(title, TABLE_HEADERS, result.table_rows())
+    _print_table(title, result.table_headers(), result.table_rows())
+    if getattr(result, "uses_trajectories", False):
+        from noiselab.study.results import trajectory_std_of
+
+        worst = max((trajectory_std_of(r) or 0.0 for r in result.recipes.values()), default=0.0)
+        more = (
+            f" The largest ({worst:.3g} mHa) exceeds the target: the bias and the verdict are "
+            "uncertain; raise --trajectories (emulation.trajectories)."
+            if worst > result.target_mha
+            else ""
+        )
+        typer.echo(
+            "Emulated with Monte Carlo trajectories: 'trajectory error' is the emulator's own "
+            "standard error, apart from the shot-noise standard error." + more
+        )
     typer.echo(result.verdict)
     typer.echo(result.caution)
     s = result.stats
@@ -295,11 +369,16 @@ def tune_cmd(
     seed: SeedOpt = None,
     shots: ShotsOpt = None,
     workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
     quiet: QuietOpt = False,
     timings: TimingsOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Rank a grid of mitigation settings by the probability of reaching the target."""
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
+
+    _check_method(method)
 
     override = GridOverride(
         readout=readout or None,
@@ -317,8 +396,12 @@ def tune_cmd(
             seed=seed,
             shots=shots,
             workers=workers,
+            cluster=cluster,
             progress=hook,
+            method=method,
+            trajectories=trajectories,
         )
+    emit_notice(result)
     written = write_tune_outputs(result, out) if out is not None else []
     if json_out:
         _print_json(result.to_json(with_stats=timings))
@@ -408,7 +491,9 @@ def register(app: typer.Typer) -> None:
         help=_TUNE_HELP,
         epilog=(
             "Example: noiselab tune configs/studies/h2-equilibrium.yaml --fit linear "
-            "--fit richardson --scales 1,2,3 --scales 1,3,5 --out results/h2-tune"
+            "--fit richardson --scales 1,2,3 --scales 1,3,5 --out results/h2-tune\n\n"
+            "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is "
+            "malformed or reaches no scheduler, and a missing dask install)."
         ),
     )(tune_cmd)
     app.command(

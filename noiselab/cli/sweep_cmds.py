@@ -13,11 +13,14 @@ import typer
 
 from noiselab.cli.study_cmds import (
     CacheOpt,
+    ClusterOpt,
+    MethodOpt,
     NoCacheOpt,
     QuietOpt,
     SeedOpt,
     ShotsOpt,
     StudyArg,
+    TrajectoriesOpt,
     WorkersOpt,
 )
 
@@ -107,11 +110,16 @@ def sweep_cmd(
     seed: SeedOpt = None,
     shots: ShotsOpt = None,
     workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
     quiet: QuietOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import _open_cache, _progress
+    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.sweep import get_knob, sweep
+
+    _check_method(method)
 
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
@@ -129,8 +137,12 @@ def sweep_cmd(
             seed=seed,
             shots=shots,
             workers=workers,
+            cluster=cluster,
             progress=hook,
+            method=method,
+            trajectories=trajectories,
         )
+    emit_notice(result)
     from noiselab.report.tables import sweep_table
 
     _print(sweep_table(result))
@@ -167,11 +179,16 @@ def budget_cmd(
     seed: SeedOpt = None,
     shots: ShotsOpt = None,
     workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
     quiet: QuietOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import _open_cache, _progress
+    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.budget import budget
+
+    _check_method(method)
 
     store = _open_cache(cache, no_cache)
     with _progress(quiet) as hook:
@@ -182,8 +199,12 @@ def budget_cmd(
             seed=seed,
             shots=shots,
             workers=workers,
+            cluster=cluster,
             progress=hook,
+            method=method,
+            trajectories=trajectories,
         )
+    emit_notice(result)
     from noiselab.report.tables import budget_table
 
     _print(budget_table(result))
@@ -220,8 +241,9 @@ def register(app: typer.Typer) -> None:
         epilog=(
             "Example: noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
             "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input, 130 interrupted (finished points stay "
-            "in the cache)."
+            "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is "
+            "malformed or reaches no scheduler, and a missing dask install), 130 interrupted "
+            "(finished points stay in the cache)."
         ),
     )(sweep_cmd)
     app.command(

@@ -66,7 +66,8 @@ class ExperimentContext:
     ``allocation``: how a circuit's shots are split over its bases ("uniform", or
     "by_deviation": proportional to each basis' single-shot standard deviation, computed from the
     exact emulated distributions, i.e. the allocation a good pilot run would give).
-    ``emulation_method``: passed to ``emulate_bases``.
+    ``emulation_method``: passed to ``emulate_bases``, with ``num_trajectories``,
+    ``num_batches`` (trajectory method) and ``max_density_matrix_qubits`` (None: memory guard only).
     """
 
     problem: Any
@@ -81,6 +82,9 @@ class ExperimentContext:
     seed: int = 0
     allocation: Allocation = "by_deviation"
     emulation_method: str = "auto"
+    num_trajectories: int = 256
+    num_batches: int = 16
+    max_density_matrix_qubits: int | None = None
 
     def __post_init__(self) -> None:
         if int(self.shots) < 1:
@@ -232,10 +236,14 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
     try:
         from noiselab.emulate.engine import choose_method
 
-        method = choose_method(compiled.circuit.num_qubits, method)[0]
+        method = choose_method(
+            compiled.circuit.num_qubits,
+            method,
+            max_density_matrix_qubits=ctx.max_density_matrix_qubits,
+        )[0]
     except (ImportError, InputError):
         pass
-    return {
+    material: dict[str, Any] = {
         "variant": variant.as_dict(),
         "circuit_qpy_sha256": hashlib.sha256(buf.getvalue()).hexdigest(),
         "patch": list(compiled.patch),
@@ -246,6 +254,9 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
         # density-matrix results do not depend on the seed; trajectories do
         "seed": ctx.seed if method != "density_matrix" else None,
     }
+    if method != "density_matrix":
+        material["trajectories"] = [int(ctx.num_trajectories), int(ctx.num_batches)]
+    return material
 
 
 def make_runner(ctx: ExperimentContext) -> Runner:
@@ -263,6 +274,9 @@ def make_runner(ctx: ExperimentContext) -> Runner:
                 list(ctx.measured_bases),
                 method=ctx.emulation_method,
                 seed=ctx.seed,
+                num_trajectories=ctx.num_trajectories,
+                num_batches=ctx.num_batches,
+                max_density_matrix_qubits=ctx.max_density_matrix_qubits,
             )
         return memo[variant]
 

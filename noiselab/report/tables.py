@@ -83,6 +83,9 @@ def sweep_rows(result: Any) -> list[dict[str, Any]]:
                     "limited_by": e.limited_by,
                 }
             )
+            if getattr(result, "emulation_method", "density_matrix") == "trajectory":
+                t = getattr(e, "trajectory_std_mha", None)
+                rows[-1]["trajectory_std_mha"] = "" if t is None else t
     return rows
 
 
@@ -193,8 +196,10 @@ ASSESS_HEADERS = (
 
 def assess_table(result: Any, plain: bool = False) -> Any:
     """Rich table of an assess result (one row per recipe)."""
+    headers: Sequence[str] = ASSESS_HEADERS
     if hasattr(result, "table_rows"):
         rows = result.table_rows()
+        headers = result.table_headers() if hasattr(result, "table_headers") else headers
     else:
         rows = [
             (
@@ -209,7 +214,7 @@ def assess_table(result: Any, plain: bool = False) -> Any:
             for r in assess_rows(result)
         ]
     study = getattr(result, "study", "study")
-    return _table(f"{study}: recipes at the shot budget", ASSESS_HEADERS, rows, plain)
+    return _table(f"{study}: recipes at the shot budget", headers, rows, plain)
 
 
 TUNE_HEADERS = (

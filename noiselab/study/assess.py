@@ -38,10 +38,30 @@ def demo_study_path() -> Path:
     )
 
 
-def resolve_study(study_or_path: Study | str | Path, seed: int | None, shots: int | None) -> Study:
-    """A Study from a Study or a path, with optional seed and shot overrides."""
+def resolve_study(
+    study_or_path: Study | str | Path,
+    seed: int | None,
+    shots: int | None,
+    method: str | None = None,
+    trajectories: int | None = None,
+) -> Study:
+    """A Study from a Study or a path, with optional seed, shot and emulation overrides."""
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    return study.with_seed(seed).with_shots(shots)
+    return study.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
+
+
+def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
+    """Job-key options of the emulation overrides; "auto" depends on the memory available, so
+    the test override of the memory guard enters too."""
+    import os
+
+    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+
+    return {
+        "method": method,
+        "trajectories": trajectories,
+        "memory_limit": os.environ.get(MEMORY_LIMIT_ENV),
+    }
 
 
 def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCache:
@@ -104,6 +124,8 @@ def assess(
     progress: ProgressHook | None = None,
     context: StudyContext | None = None,
     reuse: bool = True,
+    method: str | None = None,
+    trajectories: int | None = None,
 ) -> AssessResult:
     """Run every recipe of the study at its budget and name the best.
 
@@ -112,18 +134,20 @@ def assess(
     as steps finish. ``context`` reuses an already built context of the same study.
     ``reuse``: return the stored result of an identical earlier assess of the same files (a
     study given as a path; False recomputes, still reading simulations from the cache).
+    ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     """
     t0 = time.perf_counter()
     store = _default_cache(cache)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
-        key = job_key("assess", study_or_path, {"seed": seed, "shots": shots})
+        options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
+        key = job_key("assess", study_or_path, options)
         hit = store.get(JOB_KIND, key) if key is not None else None
         if hit is not None:
             with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
                 stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
                 return AssessResult.from_record(json.loads(hit[0]), stats)
-    study = resolve_study(study_or_path, seed, shots)
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
@@ -150,6 +174,8 @@ def assess(
         reachable=reachable,
         verdict=verdict,
         stats=stats,
+        emulation_method=ctx.emulation_method,
+        emulation_notice=ctx.emulation_notice,
     )
     if key is not None:
         store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)

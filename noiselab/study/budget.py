@@ -42,6 +42,8 @@ class BudgetResult:
     dominant: str  # the channel whose presence costs the most error in the first recipe
     sentence: str
     stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
+    emulation_method: str = "density_matrix"  # or "trajectory"
+    emulation_notice: str | None = None
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:
@@ -54,6 +56,7 @@ class BudgetResult:
             "study": self.study_name,
             "device": self.device_name,
             "recipes": list(self.recipes),
+            "emulation_method": self.emulation_method,
             "target_mha": self.target_mha,
             "shots_total": self.shots_total,
             "exact_energy_ha": self.exact_energy_ha,
@@ -124,23 +127,45 @@ def budget(
     executor: Any = None,
     progress: Callable[[str, int, int], None] | None = None,
     context: Any = None,
+    method: str | None = None,
+    trajectories: int | None = None,
+    cluster: Any = None,
 ) -> BudgetResult:
     """The error budget of the raw energy (and of ``recipe``, a mitigated recipe of the study).
 
     ``cache``: a ResultsCache, a path, None (the user cache folder) or False. Every
-    configuration's simulations go through the cache; ``workers`` > 1 runs them in processes.
+    configuration's simulations go through the cache; ``workers`` > 1 runs them in processes,
+    ``cluster`` (a Dask scheduler address or Client) on a cluster. ``method`` /
+    ``trajectories`` override the study's ``emulation:`` section.
     """
     import time
 
     from noiselab.study.assess import _default_cache, resolve_study
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats
-    from noiselab.study.sweep import ConfigTask, chosen_recipes, run_configs
+    from noiselab.study.sweep import chosen_recipes, own_executor
 
     t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots)
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     picked = chosen_recipes(study, [] if recipe is None else [recipe])
     store = _default_cache(cache)
+    with own_executor(workers, cluster, executor) as ex:
+        return _budget_with(study, picked, store, ex, progress, context, t0)
+
+
+def _budget_with(
+    study: Any,
+    picked: tuple[tuple[str, tuple[dict[str, Any], ...]], ...],
+    store: Any,
+    executor: Any,
+    progress: Callable[[str, int, int], None] | None,
+    context: Any,
+    t0: float,
+) -> BudgetResult:
+    import time
+
+    from noiselab.study.context import build_context
+    from noiselab.study.results import RunStats
+    from noiselab.study.sweep import ConfigTask, run_configs
+
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     configs = configurations(study.profile)
     tasks = [ConfigTask(ctx.experiment, prof, picked, store) for _, _, _, prof in configs]
@@ -153,7 +178,7 @@ def budget(
 
     if progress is not None:
         progress("error budget", 0, len(tasks))
-    outs, described = run_configs(tasks, workers, finished, executor)
+    outs, described = run_configs(tasks, None, finished, executor)
     rows = tuple(
         BudgetRow(
             label=label,
@@ -190,4 +215,6 @@ def budget(
         dominant=dom,
         sentence=sentence,
         stats=stats,
+        emulation_method=ctx.emulation_method,
+        emulation_notice=ctx.emulation_notice,
     )

@@ -36,6 +36,11 @@ class StudyContext:
     plan: Any  # noiselab.mitigate.plan.MeasurementPlan
     experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
     seconds: dict[str, float]
+    #: "density_matrix" or "trajectory": what the emulator will use (the study's method resolved
+    #: against the memory guard for this circuit width), and the one-line notice when "auto"
+    #: switched to trajectories.
+    emulation_method: str = "density_matrix"
+    emulation_notice: str | None = None
 
     @property
     def exact_energy_ha(self) -> float:
@@ -181,6 +186,9 @@ def build_context(
     seconds["compile"] = time.perf_counter() - t
     tick(3)
     experiment = make_experiment(study, qp, compiled, plan, optimum)
+    method, notice = resolve_emulation(
+        study, int(compiled.circuit.num_qubits), len(experiment.measured_bases)
+    )
     return StudyContext(
         study=study,
         problem=problem,
@@ -191,7 +199,41 @@ def build_context(
         plan=plan,
         experiment=experiment,
         seconds=seconds,
+        emulation_method=method,
+        emulation_notice=notice,
     )
+
+
+def resolve_emulation(
+    study: Study, circuit_qubits: int, num_bases: int = 1
+) -> tuple[str, str | None]:
+    """(method, notice) the emulator will use for ``circuit_qubits`` compiled qubits.
+
+    An emulation that cannot fit (``density_matrix`` beyond the memory guard or beyond
+    ``emulation.max_density_matrix_qubits``; trajectories beyond the memory guard) is refused
+    here, before any simulation: one line naming the study file, the qubit count and the
+    memory estimate in GiB.
+    """
+    from noiselab.common.errors import ProblemTooLargeError
+    from noiselab.emulate.engine import choose_method
+    from noiselab.emulate.memory import check_memory
+
+    e = study.emulation
+    try:
+        method, notice = choose_method(
+            circuit_qubits, e.method, max_density_matrix_qubits=e.max_density_matrix_qubits
+        )
+        if method == "trajectory":
+            check_memory(
+                circuit_qubits,
+                "trajectory",
+                trajectories_per_batch=max(1, e.trajectories // e.batches),
+                num_bases=num_bases,
+                num_batches=e.batches,
+            )
+    except ProblemTooLargeError as exc:
+        raise ProblemTooLargeError(f"{study.source}: {exc.message}") from None
+    return method, notice
 
 
 def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: Any) -> Any:
@@ -209,4 +251,8 @@ def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: An
         target_mha=float(study.target_mha),
         confidence=float(study.confidence),
         seed=int(study.seed),
+        emulation_method=study.emulation.method,
+        num_trajectories=int(study.emulation.trajectories),
+        num_batches=int(study.emulation.batches),
+        max_density_matrix_qubits=study.emulation.max_density_matrix_qubits,
     )

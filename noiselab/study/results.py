@@ -232,6 +232,11 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
         "shots_needed": None if result.shots_needed is None else int(result.shots_needed),
         "limited_by": str(result.limited_by),
     }
+    details = getattr(result, "details", {}) or {}
+    # the emulator's own statistical error (trajectory method), apart from std_mha (shot noise);
+    # null under the exact density-matrix method
+    traj = details.get("trajectory_std_mha") if isinstance(details, Mapping) else None
+    out["trajectory_std_mha"] = None if traj is None else float(traj)
     if passes is not None:
         out["passes"] = jsonable(list(passes))
     out["details"] = without_timings(jsonable(getattr(result, "details", {}) or {}))
@@ -247,6 +252,15 @@ TABLE_HEADERS = (
     "shots needed",
     "limited by",
 )
+#: Extra assess column when the trajectory method was used (its own statistical error).
+TRAJECTORY_HEADER = "trajectory error (mHa)"
+
+
+def trajectory_std_of(result: Any) -> float | None:
+    """A recipe result's trajectory standard error (mHa), None under exact emulation."""
+    details = getattr(result, "details", {}) or {}
+    value = details.get("trajectory_std_mha") if isinstance(details, Mapping) else None
+    return None if value is None else float(value)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -265,6 +279,12 @@ class AssessResult:
     verdict: str
     stats: RunStats
     caution: str = CAUTION
+    emulation_method: str = "density_matrix"  # or "trajectory"
+    emulation_notice: str | None = None  # why auto switched to trajectories
+
+    @property
+    def uses_trajectories(self) -> bool:
+        return self.emulation_method == "trajectory"
 
     @property
     def study(self) -> str:
@@ -283,7 +303,13 @@ class AssessResult:
                 "confidence": self.confidence,
                 "shots_budget": self.shots,
                 "seed": self.seed,
-                "units": {"energy": "Ha", "bias, std": "mHa", "shots": "total per estimate"},
+                "emulation_method": self.emulation_method,
+                "emulation_notice": self.emulation_notice,
+                "units": {
+                    "energy": "Ha",
+                    "bias, std, trajectory_std": "mHa",
+                    "shots": "total per estimate",
+                },
                 "recipes": {
                     name: recipe_json(r, self.passes.get(name)) for name, r in self.recipes.items()
                 },
@@ -312,6 +338,8 @@ class AssessResult:
                 "reachable": self.reachable,
                 "verdict": self.verdict,
                 "caution": self.caution,
+                "emulation_method": self.emulation_method,
+                "emulation_notice": self.emulation_notice,
             }
         )
 
@@ -333,11 +361,24 @@ class AssessResult:
             verdict=rec["verdict"],
             stats=stats,
             caution=rec["caution"],
+            emulation_method=rec.get("emulation_method", "density_matrix"),
+            emulation_notice=rec.get("emulation_notice"),
         )
 
+    def table_headers(self) -> tuple[str, ...]:
+        """TABLE_HEADERS, plus the trajectory-error column when trajectories were used."""
+        return (*TABLE_HEADERS, TRAJECTORY_HEADER) if self.uses_trajectories else TABLE_HEADERS
+
     def table_rows(self) -> list[tuple[str, ...]]:
-        """Rows for TABLE_HEADERS, formatted for people."""
-        return [_row(name, r) for name, r in self.recipes.items()]
+        """Rows for :meth:`table_headers`, formatted for people."""
+        rows = []
+        for name, r in self.recipes.items():
+            row = _row(name, r)
+            if self.uses_trajectories:
+                t = trajectory_std_of(r)
+                row = (*row, "-" if t is None else f"{t:.3f}")
+            rows.append(row)
+        return rows
 
     def csv_rows(self) -> list[dict[str, Any]]:
         """Unformatted rows for the CSV (units in the column names)."""
@@ -357,6 +398,9 @@ class AssessResult:
                     "limited_by": str(r.limited_by),
                 }
             )
+            if self.uses_trajectories:
+                t = trajectory_std_of(r)
+                rows[-1]["trajectory_std_mha"] = "" if t is None else t
         return rows
 
 
@@ -421,6 +465,8 @@ class TuneResult:
     stats: RunStats
     verdict: str
     caution: str = CAUTION
+    emulation_method: str = "density_matrix"  # or "trajectory"
+    emulation_notice: str | None = None
 
     @property
     def best(self) -> TuneEntry:
@@ -485,6 +531,8 @@ class TuneResult:
                 "distinct_variants": self.distinct_variants,
                 "verdict": self.verdict,
                 "caution": self.caution,
+                "emulation_method": self.emulation_method,
+                "emulation_notice": self.emulation_notice,
             }
         )
 
@@ -514,6 +562,8 @@ class TuneResult:
             stats=stats,
             verdict=rec["verdict"],
             caution=rec["caution"],
+            emulation_method=rec.get("emulation_method", "density_matrix"),
+            emulation_notice=rec.get("emulation_notice"),
         )
 
     def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
@@ -524,6 +574,8 @@ class TuneResult:
                 "confidence": self.confidence,
                 "shots_budget": self.shots,
                 "seed": self.seed,
+                "emulation_method": self.emulation_method,
+                "emulation_notice": self.emulation_notice,
                 "settings": len(self.entries),
                 "distinct_variants": self.distinct_variants,
                 "ranking": [

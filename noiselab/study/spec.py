@@ -22,6 +22,7 @@ from pydantic import (
     StrictInt,
     ValidationError,
     field_validator,
+    model_validator,
 )
 
 from noiselab.common.errors import InputError, from_validation_error, input_error
@@ -151,6 +152,37 @@ class SweepDefaults(_Strict):
         return value
 
 
+EMULATION_METHODS = ("auto", "density_matrix", "trajectory")
+#: Engine defaults (noiselab.emulate.engine.emulate_bases) for the trajectory method.
+DEFAULT_TRAJECTORIES = 256
+DEFAULT_BATCHES = 16
+
+
+class EmulationSettings(_Strict):
+    """How the noisy circuits are emulated.
+
+    ``method``: ``auto`` (density matrix while it fits the memory guard, else Monte Carlo
+    trajectories), ``density_matrix`` (exact; refuse when too large) or ``trajectory``.
+    ``trajectories``: trajectories per circuit variant, in ``batches`` batches (the batch
+    spread gives the trajectory error bar). ``max_density_matrix_qubits``: a cap on the
+    circuit width for the density matrix (None: the memory guard alone decides).
+    """
+
+    method: Literal["auto", "density_matrix", "trajectory"] = "auto"
+    trajectories: StrictInt = Field(default=DEFAULT_TRAJECTORIES, ge=2, le=10**7)
+    batches: StrictInt = Field(default=DEFAULT_BATCHES, ge=2, le=10**4)
+    max_density_matrix_qubits: StrictInt | None = Field(default=None, ge=1, le=64)
+
+    @model_validator(mode="after")
+    def _check_batches(self) -> EmulationSettings:
+        if self.trajectories < self.batches:
+            raise ValueError(
+                f"trajectories: {self.trajectories} is fewer than batches ({self.batches}); "
+                "allowed: trajectories >= batches"
+            )
+        return self
+
+
 class StudyFile(_Strict):
     """The study file as written (before the molecule, device and recipes are resolved)."""
 
@@ -170,6 +202,7 @@ class StudyFile(_Strict):
     seed: StrictInt = Field(default=0, ge=0, lt=2**32)
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
+    emulation: EmulationSettings = EmulationSettings()
 
     @field_validator("name")
     @classmethod
@@ -262,6 +295,7 @@ class Study:
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
     description: str | None = None
+    emulation: EmulationSettings = field(default_factory=EmulationSettings)
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
 
     def with_seed(self, seed: int | None) -> Study:
@@ -271,6 +305,29 @@ class Study:
         import dataclasses
 
         return dataclasses.replace(self, seed=int(seed))
+
+    def with_emulation(self, method: str | None = None, trajectories: int | None = None) -> Study:
+        """The same study with the emulation method and/or trajectory count overridden
+        (command-line ``--method`` / ``--trajectories``; None keeps the study's)."""
+        if method is None and trajectories is None:
+            return self
+        import dataclasses
+
+        data = self.emulation.model_dump()
+        if method is not None:
+            if method not in EMULATION_METHODS:
+                raise input_error(
+                    str(self.source), "--method", f"{method!r}", ", ".join(EMULATION_METHODS)
+                )
+            data["method"] = method
+        if trajectories is not None:
+            data["trajectories"] = trajectories
+            data["batches"] = min(int(data["batches"]), max(2, int(trajectories)))
+        try:
+            emulation = EmulationSettings.model_validate(data)
+        except ValidationError as exc:
+            raise from_validation_error(exc, str(self.source), prefix="--trajectories") from None
+        return dataclasses.replace(self, emulation=emulation)
 
     def with_shots(self, shots: int | None) -> Study:
         """The same study with another shot budget (None keeps the file's)."""
@@ -375,6 +432,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         tune=spec.tune,
         sweep=spec.sweep,
         description=spec.description,
+        emulation=spec.emulation,
         raw=dict(data),
     )
 

@@ -14,10 +14,11 @@ against the knob value (against log10 of the knob value with ``log=True``).
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import itertools
 import math
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 from noiselab.common.errors import input_error
@@ -179,6 +180,7 @@ class SweepEntry:
     bias_ansatz_mha: float
     p_within_target: float
     limited_by: str
+    trajectory_std_mha: float | None = None  # emulator's own error (trajectory method only)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -224,6 +226,8 @@ class SweepResult:
     points: tuple[SweepPoint, ...]
     crossings: tuple[RecipeCrossing, ...]
     stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
+    emulation_method: str = "density_matrix"  # or "trajectory"
+    emulation_notice: str | None = None
 
     @property
     def knob_spec(self) -> Knob:
@@ -268,6 +272,7 @@ class SweepResult:
             "exact_energy_ha": self.exact_energy_ha,
             "ansatz_energy_ha": self.ansatz_energy_ha,
             "recipes": list(self.recipes),
+            "emulation_method": self.emulation_method,
             "points": [
                 {
                     "value": p.value,
@@ -536,6 +541,8 @@ def run_configs(
 
 def entry_from(name: str, r: Any) -> SweepEntry:
     """A SweepEntry from a RecipeResult."""
+    from noiselab.study.results import trajectory_std_of
+
     return SweepEntry(
         recipe=name,
         energy_ha=float(r.energy_ha),
@@ -544,6 +551,7 @@ def entry_from(name: str, r: Any) -> SweepEntry:
         bias_ansatz_mha=float(r.bias_ansatz_mha),
         p_within_target=float(r.p_within_target),
         limited_by=str(r.limited_by),
+        trajectory_std_mha=trajectory_std_of(r),
     )
 
 
@@ -636,6 +644,9 @@ def sweep(
     progress: ProgressHook | None = None,
     on_point: PointHook | None = None,
     context: Any = None,
+    method: str | None = None,
+    trajectories: int | None = None,
+    cluster: Any = None,
 ) -> SweepResult:
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
@@ -644,18 +655,16 @@ def sweep(
     spacing, all of the study's recipes (raw always first). ``values`` gives the knob values
     explicitly instead. ``cache``: a ResultsCache, a path, None (the user cache folder) or
     False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
-    e.g. a dask one). ``on_point(index, point)`` is called in the calling process as each
-    point finishes.
+    e.g. a dask one; ``cluster``: a Dask scheduler address or Client). ``on_point(index,
+    point)`` is called in the calling process as each point finishes. ``method`` /
+    ``trajectories`` override the study's ``emulation:`` section.
     """
     import time
 
-    from noiselab.device.profile import scale_profile
     from noiselab.study.assess import _default_cache, resolve_study
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats
 
     t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots)
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     defaults = getattr(study, "sweep", None)
 
     def default(name: str, given: Any, fallback: Any) -> Any:
@@ -684,6 +693,51 @@ def sweep(
         values = [check_value(spec, v, "values", log) for v in values]
         if len(values) < 1:
             raise input_error("sweep", "values", "no knob values", "at least one value")
+    with own_executor(workers, cluster, executor) as ex:
+        return _sweep_with(
+            study, spec, start, stop, points, log, picked, values, store, ex, progress,
+            on_point, context, t0,
+        )
+
+
+@contextlib.contextmanager
+def own_executor(workers: int | None, cluster: Any, executor: Any) -> Iterator[Any]:
+    """``executor`` if given, else one made (and closed) here from ``workers`` / ``cluster``;
+    made before the slow context so that a bad cluster address fails at once."""
+    if executor is not None:
+        yield executor
+        return
+    from noiselab.study.executor import make_executor
+
+    ex = make_executor(workers, cluster)
+    try:
+        yield ex
+    finally:
+        ex.close()
+
+
+def _sweep_with(
+    study: Any,
+    spec: Knob,
+    start: float | None,
+    stop: float | None,
+    points: int,
+    log: bool,
+    picked: tuple[tuple[str, tuple[dict[str, Any], ...]], ...],
+    values: Sequence[float] | None,
+    store: Any,
+    executor: Any,
+    progress: ProgressHook | None,
+    on_point: PointHook | None,
+    context: Any,
+    t0: float,
+) -> SweepResult:
+    import time
+
+    from noiselab.device.profile import scale_profile
+    from noiselab.study.context import build_context
+    from noiselab.study.results import RunStats
+
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     profile = study.profile
     patch = tuple(ctx.compiled.patch)
@@ -714,7 +768,7 @@ def sweep(
 
     if progress is not None:
         progress(label, 0, len(tasks))
-    outs, described = run_configs(tasks, workers, finished, executor)
+    outs, described = run_configs(tasks, None, finished, executor)
     pts = tuple(
         done_points.get(i)
         or SweepPoint(
@@ -745,4 +799,6 @@ def sweep(
         points=pts,
         crossings=crossings,
         stats=stats,
+        emulation_method=ctx.emulation_method,
+        emulation_notice=ctx.emulation_notice,
     )

@@ -19,7 +19,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.errors import InputError
-from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.assess import _default_cache, emulation_key_options, resolve_study
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context
 from noiselab.study.results import (
@@ -241,6 +241,9 @@ def tune(
     progress: ProgressHook | None = None,
     context: StudyContext | None = None,
     reuse: bool = True,
+    method: str | None = None,
+    trajectories: int | None = None,
+    cluster: Any = None,
 ) -> TuneResult:
     """Evaluate every setting of the grid at the study's budget and rank them.
 
@@ -248,33 +251,45 @@ def tune(
     ``workers`` > 1 (or an ``executor`` from :mod:`noiselab.study.executor`) runs the distinct
     simulations in parallel. ``reuse``: return the stored result of an identical earlier tune
     of the same files (False recomputes, still reading simulations from the cache).
+    ``cluster``: a Dask scheduler address (``tcp://HOST:PORT``) or ``distributed.Client``.
+    ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     """
     t0 = time.perf_counter()
     store = _default_cache(cache)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
-        options = {"seed": seed, "shots": shots, "grid": dataclasses.asdict(grid or GridOverride())}
+        options = {
+            "seed": seed,
+            "shots": shots,
+            "grid": dataclasses.asdict(grid or GridOverride()),
+            **emulation_key_options(method, trajectories),
+        }
         key = job_key("tune", study_or_path, jsonable(options))
         hit = store.get(JOB_KIND, key) if key is not None else None
         if hit is not None:
             with contextlib.suppress(ValueError, TypeError, KeyError):
                 stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
                 return TuneResult.from_record(json.loads(hit[0]), stats)
-    study = resolve_study(study_or_path, seed, shots)
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     resolved, _ = resolve_grid(study, grid)
-    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
-    settings, notes = grid_settings(resolved, bool(getattr(ctx.qubit_problem, "symmetries", ())))
-    if not settings:
-        raise InputError(f"{study.source}: tune: the grid has no valid setting")
-    runner = CachingRunner(ctx.experiment, store)
-    variants = needed_variants(ctx, settings)
-
     own_executor = executor is None
-    if executor is None:
+    if executor is None:  # before the (slow) context: a bad cluster address fails at once
         from noiselab.study.executor import make_executor
 
-        executor = make_executor(workers)
+        executor = make_executor(workers, cluster)
     try:
+        ctx = (
+            context
+            if context is not None
+            else build_context(study, cache=store, progress=progress)
+        )
+        settings, notes = grid_settings(
+            resolved, bool(getattr(ctx.qubit_problem, "symmetries", ()))
+        )
+        if not settings:
+            raise InputError(f"{study.source}: tune: the grid has no valid setting")
+        runner = CachingRunner(ctx.experiment, store)
+        variants = needed_variants(ctx, settings)
 
         def sim_progress(done: int, total: int) -> None:
             if progress is not None:
@@ -323,6 +338,8 @@ def tune(
         distinct_variants=len(runner.requested),
         stats=stats,
         verdict=verdict,
+        emulation_method=ctx.emulation_method,
+        emulation_notice=ctx.emulation_notice,
     )
     if key is not None:
         store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
