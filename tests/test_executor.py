@@ -294,3 +294,23 @@ def test_tune_and_sweep_through_dask_match_in_process(demo_context, dask_client)
     local_csv = _sweep_csv(study, ctx, InProcessExecutor())
     assert swept == local_csv
     assert len(local_csv.strip().splitlines()) > 3  # a header and rows for every point
+
+
+def slow_or_raise_task(item: int) -> int:
+    import time
+
+    if item == 0:
+        raise ValueError("fails at once")
+    time.sleep(30)
+    return item
+
+
+def test_pool_error_does_not_wait_for_running_tasks() -> None:
+    import time
+
+    with ProcessPoolExecutor(2) as executor:
+        start = time.perf_counter()
+        with pytest.raises(ValueError, match="fails at once"):
+            executor.map(slow_or_raise_task, [0, 1])
+        # the 30 s task was stopped, not awaited (common practice, no source)
+        assert time.perf_counter() - start < 20

@@ -198,10 +198,17 @@ class ProcessPoolExecutor(_Base):
             )
         return self._pool
 
-    def _drop_pool(self) -> None:
+    def _drop_pool(self, kill: bool = False) -> None:
+        """Shut the pool down; ``kill`` stops running tasks too (error or Ctrl-C in the caller)."""
         pool, self._pool = self._pool, None
-        if pool is not None:
-            pool.shutdown(wait=True, cancel_futures=True)
+        if pool is None:
+            return
+        if kill:
+            # a 12-qubit simulation can run for minutes: do not wait for it to finish
+            for process in list(getattr(pool, "_processes", {}).values()):
+                with contextlib.suppress(Exception):
+                    process.terminate()
+        pool.shutdown(wait=True, cancel_futures=True)
 
     def map(
         self,
@@ -239,7 +246,7 @@ class ProcessPoolExecutor(_Base):
             except BaseException:
                 for future in futures:
                     future.cancel()
-                self._drop_pool()
+                self._drop_pool(kill=True)
                 raise
             pending = [i for i in pending if i not in results]
             if broken or pending:
