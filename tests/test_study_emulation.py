@@ -243,3 +243,43 @@ def test_trajectory_count_enters_the_cache_key(tmp_path: Path) -> None:
         dataclasses.replace(base, max_density_matrix_qubits=3, emulation_method="auto"), v
     )
     assert capped["method"] == "trajectory"  # the key follows what the runner will do
+
+
+# ---------------------------------------------------------------- the other jobs
+
+
+def test_sweep_carries_the_trajectory_error(tmp_path: Path) -> None:
+    from noiselab.report.tables import sweep_rows
+    from noiselab.study.sweep import sweep
+
+    result = sweep(
+        _demo_copy(tmp_path, None),
+        "noise-scale",
+        values=[1.0],
+        recipes=["raw"],
+        cache=False,
+        method="trajectory",
+        trajectories=32,
+    )
+    assert result.emulation_method == "trajectory"
+    entry = result.points[0].entries[0]
+    assert entry.trajectory_std_mha is not None and entry.trajectory_std_mha > 0.0
+    assert result.to_json()["emulation_method"] == "trajectory"
+    assert sweep_rows(result)[0]["trajectory_std_mha"] == entry.trajectory_std_mha
+
+
+@pytest.mark.parametrize("job", ["tune", "sweep", "budget"])
+def test_jobs_refuse_density_matrix_before_simulating(
+    job: str, tmp_path: Path, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    import importlib
+
+    from noiselab.common.errors import ProblemTooLargeError
+    from noiselab.emulate.engine import engine_call_count
+
+    fn = getattr(importlib.import_module(f"noiselab.study.{job}"), job)
+    monkeypatch.setenv(MEMORY_LIMIT_ENV, "1000")
+    calls = engine_call_count()
+    with pytest.raises(ProblemTooLargeError, match=r"4 qubits need about .* GiB"):
+        fn(_demo_copy(tmp_path, None), cache=False, method="density_matrix")
+    assert engine_call_count() == calls  # refused before any simulation

@@ -30,6 +30,11 @@ KNOB_HELP = (
     "T2 scaled with it)."
 )
 
+TRAJECTORY_NOTE = (
+    "Note: emulated with Monte Carlo trajectories; '± std' is shot noise only, the "
+    "trajectory error of each value is in the JSON (trajectory_std_mha)."
+)
+
 RecipeOpt = Annotated[
     list[str] | None,
     typer.Option(
@@ -150,6 +155,8 @@ def sweep_cmd(
         typer.echo(c.sentence + ".")
     for note in result.notes():
         typer.echo(f"Note: {note}.")
+    if result.emulation_method == "trajectory":
+        typer.echo(TRAJECTORY_NOTE)
     typer.echo("Caution: emulated; only as good as the device noise model.")
     if result.stats is not None:
         s = result.stats
@@ -209,6 +216,8 @@ def budget_cmd(
 
     _print(budget_table(result))
     typer.echo(result.sentence + ".")
+    if result.emulation_method == "trajectory":
+        typer.echo(TRAJECTORY_NOTE)
     typer.echo("Caution: emulated; only as good as the device noise model.")
     if out is not None:
         from noiselab.report.outputs import write_budget_outputs

@@ -105,6 +105,10 @@ def budget_rows(result: Any) -> list[dict[str, Any]]:
                     "within_target": abs(r.errors_mha[k]) <= result.target_mha,
                 }
             )
+            if getattr(result, "emulation_method", "density_matrix") == "trajectory":
+                stds = getattr(r, "trajectory_stds_mha", ())
+                t = stds[k] if k < len(stds) else None
+                rows[-1]["trajectory_std_mha"] = "" if t is None else t
     return rows
 
 

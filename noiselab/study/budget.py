@@ -25,6 +25,8 @@ class BudgetRow:
     channel: str | None
     errors_mha: tuple[float, ...]  # one per recipe, energy - exact
     stds_mha: tuple[float, ...]  # standard error at the budget
+    #: the emulator's own error per recipe (trajectory method), None under the density matrix
+    trajectory_stds_mha: tuple[float | None, ...] = ()
 
 
 @dataclasses.dataclass(frozen=True)
@@ -163,7 +165,7 @@ def _budget_with(
     import time
 
     from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats
+    from noiselab.study.results import RunStats, trajectory_std_of
     from noiselab.study.sweep import ConfigTask, run_configs
 
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
@@ -186,6 +188,7 @@ def _budget_with(
             channel=channel,
             errors_mha=tuple(float(r.bias_exact_mha) for _, r in out.results),
             stds_mha=tuple(float(r.std_mha) for _, r in out.results),
+            trajectory_stds_mha=tuple(trajectory_std_of(r) for _, r in out.results),
         )
         for (label, kind, channel, _), out in zip(configs, outs, strict=True)
     )

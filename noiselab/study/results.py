@@ -489,6 +489,9 @@ class TuneResult:
                     "n_circuits": int(r.n_circuits),
                 }
             )
+            if self.emulation_method == "trajectory":
+                t = trajectory_std_of(r)
+                row["trajectory_std_mha"] = "" if t is None else t
             rows.append(row)
         return rows
 
