@@ -415,6 +415,15 @@ def tune_cmd(
         f"settings at {format_count(result.shots)} shots, target ±{result.target_mha:.4g} mHa"
     )
     _print_table(title, TUNE_HEADERS, result.table_rows(top))
+    if result.emulation_method == "trajectory":
+        from noiselab.study.results import trajectory_std_of
+
+        shown = [trajectory_std_of(e.result) or 0.0 for e in result.entries[:top]]
+        typer.echo(
+            "Emulated with Monte Carlo trajectories: the bias of each setting carries a "
+            f"trajectory error of up to {max(shown, default=0.0):.3g} mHa (tune.csv: "
+            "trajectory_std_mha), apart from the shot-noise standard error."
+        )
     typer.echo(result.verdict)
     typer.echo(result.caution)
     s = result.stats
