@@ -193,9 +193,14 @@ def choose_method(
     if not over_cap and fits_in_memory(k, "density_matrix"):
         return "density_matrix", None
     need = estimate_memory_bytes(k, "density_matrix") / GIB
+    why = (
+        f"above the density-matrix limit of {max_density_matrix_qubits} qubits"
+        if over_cap
+        else "beyond the memory guard"
+    )
     return "trajectory", (
-        f"{k} qubits: the density matrix would need about {need:.2f} GiB, beyond the memory "
-        f"guard; using Monte Carlo trajectories (results carry a trajectory error bar)"
+        f"{k} qubits: the density matrix would need about {need:.2f} GiB, {why}; "
+        f"using Monte Carlo trajectories (results carry a trajectory error bar)"
     )
 
 
