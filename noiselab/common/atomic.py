@@ -8,6 +8,8 @@ import tempfile
 from collections.abc import Iterator
 from pathlib import Path
 
+from noiselab.common.errors import InputError
+
 
 @contextlib.contextmanager
 def atomic_path(target: str | Path) -> Iterator[Path]:
@@ -17,10 +19,15 @@ def atomic_path(target: str | Path) -> Iterator[Path]:
     Use for writers that need a file name (matplotlib ``savefig``).
     """
     target = Path(target)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(
-        prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent
-    )
+    try:
+        target.parent.mkdir(parents=True, exist_ok=True)
+        fd, tmp = tempfile.mkstemp(
+            prefix=f".{target.name}.", suffix=".tmp" + target.suffix, dir=target.parent
+        )
+    except OSError as exc:
+        raise InputError(
+            f"{target}: cannot write here ({exc.strerror or exc}); allowed: a writable folder"
+        ) from None
     os.close(fd)
     tmp_path = Path(tmp)
     # mkstemp creates 0600; give the final file the permissions an ordinary open() would.
