@@ -12,6 +12,22 @@ import sys
 import time
 
 
+def peak_rss_bytes() -> int:
+    """Peak resident memory of this process (bytes).
+
+    /proc/self/status VmHWM belongs to this program's own address space; ru_maxrss would also
+    carry the parent's peak over fork + exec (Linux keeps the larger of the two).
+    """
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith("VmHWM:"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024  # KiB on Linux
+
+
 def main(argv: list[str]) -> int:
     import numpy  # noqa: F401
     import pyscf  # noqa: F401
@@ -28,9 +44,7 @@ def main(argv: list[str]) -> int:
         wall = time.perf_counter() - t
     elif argv[0] != "baseline":
         raise SystemExit("usage: memory_child.py baseline | assess STUDY")
-    # Linux reports ru_maxrss in KiB
-    peak = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss * 1024
-    print(json.dumps({"mode": argv[0], "maxrss_bytes": peak, "wall_s": wall}))
+    print(json.dumps({"mode": argv[0], "maxrss_bytes": peak_rss_bytes(), "wall_s": wall}))
     return 0
 
 

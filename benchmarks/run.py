@@ -340,7 +340,7 @@ def bench_memory(quick: bool) -> dict[str, Any]:
         "density_matrix_mib": dm_bytes / 2**20,
         "assess_wall_s": run.get("wall_s"),
         "notes": [
-            "peak resident memory from resource.getrusage(RUSAGE_SELF).ru_maxrss in a fresh child "
+            "peak resident memory (VmHWM of /proc/self/status) of a fresh child "
             "process; baseline = python + numpy, scipy, qiskit, qiskit-aer, pyscf and noiselab "
             "imported, nothing run",
         ],
