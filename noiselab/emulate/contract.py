@@ -137,6 +137,7 @@ def dm_distributions(
             e = effects[members_g[0]][l]
             y = _contract_qubit(x, pos, len(rem), e.transpose(0, 2, 1) if transposed else e)
             rec(y, depth + 1, sub, members_g)
+            del y  # free this branch before the next one is built (peak memory)
 
     rec(x, 0, rem, list(range(len(effects))))
     return clean_probabilities(out, what="density-matrix distribution")
