@@ -150,7 +150,10 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
     qp, opt, profile, compiled = h2_device
     readout_only = scale_profile(profile, 0.0, STRETCH_CHANNELS)  # all but readout switched off
     # a patch whose pairs (5, 6) and (6, 7) carry correlated readout flips in the profile
-    compiled = compile_to_device(compiled.circuit, profile, layout=[5, 6, 7, 2], seed=7)
+    from noiselab.chem.ansatz import uccsd_circuit
+
+    bound = uccsd_circuit(qp).assign_parameters(list(opt.parameters))
+    compiled = compile_to_device(bound, profile, layout=[5, 6, 7, 2], seed=7)
     assert compiled.patch == (5, 6, 7, 2)
     ctx = build_context(qp, compiled, readout_only, ansatz_energy_ha=opt.energy_ha, shots=10_000)
     runner = make_runner(ctx)

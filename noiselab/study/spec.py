@@ -84,7 +84,7 @@ ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": Lay
 class CompileOptions(_Strict):
     """How the trial circuit is compiled to the device."""
 
-    optimization_level: StrictInt = Field(default=1, ge=0, le=3)
+    optimization_level: StrictInt = Field(default=2, ge=0, le=3)
 
 
 class TuneGrid(_Strict):
