@@ -121,6 +121,9 @@ def test_shots_needed_and_limits():
     assert assess_target(0.5, 100.0**2, 0.0, n, t, conf).limited_by == "none"
     biased = assess_target(2.0, 1.0, 0.0, 10**6, t, conf)
     assert biased.limited_by == "bias" and biased.shots_needed is None
-    # a calibration noise floor that alone keeps P below the confidence is a bias-type limit
+    # a calibration noise floor (std 1 mHa, fixed) keeps P(|Z| < 1.6) = 0.89 < 0.95 at any
+    # measurement budget although the bias is zero: limited by calibration, not by bias
     floor = assess_target(0.0, 1.0, 1.0**2, 10**6, t, conf)
-    assert floor.limited_by == "bias" and floor.shots_needed is None
+    assert floor.limited_by == "calibration" and floor.shots_needed is None
+    # the same floor with a bias beyond the target is limited by the bias
+    assert assess_target(1.7, 1.0, 1.0**2, 10**6, t, conf).limited_by == "bias"

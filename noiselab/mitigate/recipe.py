@@ -405,7 +405,7 @@ class RecipeResult:
     engine_seconds: float
     p_within_target: float
     shots_needed: int | None
-    limited_by: Literal["bias", "shots", "none"]
+    limited_by: Literal["bias", "calibration", "shots", "none"]
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False
 

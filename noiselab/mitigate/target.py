@@ -6,9 +6,11 @@ s(N)**2 = A / N + C: A the single-shot-normalized measurement variance (the allo
 proportions held fixed as N changes) and C the variance that does not shrink with N (readout
 calibration with its own fixed shot count).
 
-``limited_by``: "bias" when no measurement budget reaches the confidence (|b| >= t, or the bias
-with the fixed calibration noise C alone keeps the probability below it); "shots" when the
-confidence needs more shots than the budget; "none" when the budget suffices.
+``limited_by``: "bias" when no measurement budget reaches the confidence because of the bias
+(|b| >= t, or b alone too close to t); "calibration" when |b| < t but the fixed calibration
+noise C keeps the probability below the confidence at any measurement budget (more calibration
+shots would help); "shots" when the confidence needs more shots than the budget; "none" when the
+budget suffices.
 """
 
 from __future__ import annotations
@@ -17,7 +19,7 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
-LimitedBy = Literal["bias", "shots", "none"]
+LimitedBy = Literal["bias", "calibration", "shots", "none"]
 MAX_SHOTS = 10**15
 
 
@@ -65,8 +67,14 @@ def assess_target(
         return TargetAssessment(p_budget, None, "bias", "|bias| >= target")
     p_inf = p_within(b, math.sqrt(c), t)
     if p_inf < confidence:
-        note = "bias with the fixed calibration noise" if c > 0 else "bias"
-        return TargetAssessment(p_budget, None, "bias", f"{note} keeps P below the confidence")
+        if c > 0:
+            return TargetAssessment(
+                p_budget,
+                None,
+                "calibration",
+                "the fixed readout-calibration noise keeps P below the confidence",
+            )
+        return TargetAssessment(p_budget, None, "bias", "bias keeps P below the confidence")
     if p_at(1.0) >= confidence:
         n_needed = 1
     elif p_at(MAX_SHOTS) < confidence:

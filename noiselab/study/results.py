@@ -162,6 +162,16 @@ def verdict_line(
             f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
             f"{format_count(needed)} shots."
         )
+    if str(best.limited_by) == "calibration":
+        cal_std = (getattr(best, "details", None) or {}).get("std_calibration_mha")
+        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
+        return False, (
+            f"Verdict: {goal} is NOT reachable with this readout calibration: the best {what} "
+            f"'{best_name}' keeps a bias of {float(best.bias_exact_mha):+.3g} mHa, but its "
+            f"readout-calibration noise{cal} does not shrink with more measurement shots "
+            f"(probability {p:.3f} at {format_count(shots)} shots); raise the readout pass's "
+            f"calibration_shots."
+        )
     return False, (
         f"Verdict: {goal} is NOT reachable at any shot count: the best {what} '{best_name}' "
         f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
