@@ -299,7 +299,8 @@ def test_h2_noisy_energy_table(h2: dict) -> None:
         e_gate = energy_from(out, H, ideal=True)
         e_all = energy_from(out, H)
         rows.append((prof.name, comp.two_qubit_count, e_gate, e_all))
-        # noise cannot take a state below the ground energy (variational principle, from memory)
+        # no state lies below the qubit Hamiltonian's lowest eigenvalue, which for H2 at equilibrium
+        # is the FCI energy (variational principle, Rayleigh-Ritz; from memory)
         assert e_gate > qp.exact_energy_ha - 1e-9
         assert e_all > qp.exact_energy_ha - 1e-9
     print(f"\nH2/STO-3G/JW UCCSD at the noiseless optimum; FCI {qp.exact_energy_ha:.6f} Ha")
