@@ -258,5 +258,8 @@ def register(app: typer.Typer) -> None:
     app.command(
         "budget",
         help=_BUDGET_HELP,
-        epilog="Example: noiselab budget configs/studies/h2-equilibrium.yaml --recipe zne_linear --out results/h2-budget",
+        epilog=(
+            "Example: noiselab budget configs/studies/h2-equilibrium.yaml --recipe zne_linear "
+            "--out results/h2-budget"
+        ),
     )(budget_cmd)
