@@ -68,43 +68,46 @@ def _say(text: str) -> None:
 # --------------------------------------------------------------------------- overhead
 
 
-def bench_overhead(quick: bool) -> dict[str, Any]:
-    """Full assess / engine-only time of the distinct density-matrix runs it needed."""
+def _overhead_one(path: Path, quick: bool) -> dict[str, Any]:
+    """One study: assess wall time against bare qiskit-aer runs of the distinct simulations."""
     from noiselab.study.assess import assess
     from noiselab.study.cache import open_cache
     from noiselab.study.context import build_context
+    from noiselab.study.spec import load_study
 
-    qubits = 8 if quick else 12
-    study = load(qubits)
+    study = load_study(path)
     with tempfile.TemporaryDirectory() as tmp:
         store = open_cache(Path(tmp) / "cache.sqlite")
         # The noiseless optimum is cached first: it is chemistry, not emulation (reported apart).
         t = time.perf_counter()
         ctx = build_context(study, cache=store)
         context_first_s = time.perf_counter() - t
-        _say(f"  context (first run, optimizer included): {context_first_s:.2f} s {ctx.seconds}")
+        _say(f"  {path.name}: context (first run, optimizer included) {context_first_s:.2f} s")
         with capture_engine() as log:
             t = time.perf_counter()
             result = assess(study, cache=store)
             assess_s = time.perf_counter() - t
         store.close()
     distinct = log.distinct()
-    _say(f"  assess: {assess_s:.2f} s, {len(log.calls)} engine calls, {len(distinct)} distinct")
     repeats = 1 if quick else 2
     bare_s = rerun_bare(distinct, repeats=repeats)
-    _say(f"  bare qiskit-aer re-run of the distinct calls (best of {repeats}): {bare_s:.2f} s")
-    ratio = assess_s / bare_s
+    _say(
+        f"  {path.name}: assess {assess_s:.2f} s ({len(log.calls)} engine calls, "
+        f"{len(distinct)} distinct; qiskit-aer inside {log.seconds:.2f} s); bare qiskit-aer "
+        f"re-run (best of {repeats}) {bare_s:.2f} s"
+    )
     optimize_s = float(ctx.seconds.get("optimize", 0.0))
     return {
-        "ratio": ratio,
-        "target": "<= 1.3",
-        "met": ratio <= 1.3,
-        "qubits": qubits,
-        "study": str(study_path(qubits).relative_to(HERE.parent)),
+        "ratio": assess_s / bare_s,
+        "study": str(path.relative_to(HERE.parent)),
+        "qubits": study.num_qubits,
+        "two_qubit_gates": ctx.compiled.two_qubit_count,
+        "circuit_operations": len(ctx.compiled.circuit.data),
+        "measured_bases": len(ctx.experiment.measured_bases),
         "assess_wall_s": assess_s,
         "engine_bare_s": bare_s,
         "engine_inside_noiselab_s": log.seconds,
-        "noiselab_engine_seconds_reported": result.stats.engine_seconds,
+        "emulation_seconds_reported": result.stats.engine_seconds,
         "engine_calls": len(log.calls),
         "distinct_simulations": len(distinct),
         "recipes": list(study.recipes),
@@ -112,13 +115,30 @@ def bench_overhead(quick: bool) -> dict[str, Any]:
         "context_breakdown_s": dict(ctx.seconds),
         "ratio_first_run_estimate": (assess_s + optimize_s) / bare_s,
         "ratio_vs_engine_inside": assess_s / log.seconds if log.seconds else None,
+    }
+
+
+def bench_overhead(quick: bool) -> dict[str, Any]:
+    """Full assess / engine-only time of the distinct density-matrix runs it needed."""
+    paths = [study_path(8)] if quick else [study_path(12), STUDIES / "hchain-12-deep.yaml"]
+    runs = [_overhead_one(p, quick) for p in paths]
+    primary = runs[0]
+    return {
+        **primary,
+        "target": "<= 1.3",
+        "met": primary["ratio"] <= 1.3,
+        "other_studies": runs[1:],
         "notes": [
+            "ratio: the first study (two ansatz layers); other_studies repeats it with a deeper "
+            "circuit of the same size",
             "assess ran with the noiseless optimum already cached (a fresh cache otherwise); "
             "ratio_first_run_estimate adds the optimizer's time measured in the first context",
             "engine_bare_s: the same circuits and noise models handed to a fresh AerSimulator "
             "with the same options, outside noiselab (best of the repeats)",
             "ratio_vs_engine_inside: the same wall time over the qiskit-aer time measured "
             "inside this assess (same machine load as the assess itself)",
+            "emulation_seconds_reported: noiselab's own engine seconds (qiskit-aer + the "
+            "contraction of the density matrix to every measured basis)",
         ],
     }
 
