@@ -60,7 +60,9 @@ def linear_combination(coeffs: list[float], estimates: list[Estimate]) -> Estima
 def ratio(num: Estimate, den: Estimate) -> Estimate:
     """num / den with the delta-method gradient (u_num - R u_den) / den."""
     r = num.value / den.value
-    keys = set(num.influence) | set(den.influence)
+    # ordered union (not a set): the variance sums follow this order, and a set's order would
+    # change with the string hash seed of each process (a worker would differ in the last bits)
+    keys = list(dict.fromkeys([*num.influence, *den.influence]))
     influence = {}
     for k in keys:
         un = num.influence.get(k)
