@@ -357,7 +357,7 @@ class CachingRunner:
         if not todo:
             return 0
         total = len(todo)
-        if executor is None or getattr(executor, "parallelism", 1) <= 1:
+        if executor is None or getattr(executor, "in_process", True):
             for i, v in enumerate(todo):
                 with self._lock:
                     if v not in self._memory:

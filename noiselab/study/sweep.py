@@ -524,7 +524,7 @@ def run_configs(
     own = executor is None
     ex = make_executor(workers) if own else executor
     try:
-        if getattr(ex, "parallelism", 1) <= 1:
+        if getattr(ex, "in_process", True):
             outs = []
             for i, t in enumerate(tasks):
                 out = run_config(t)
