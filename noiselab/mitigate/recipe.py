@@ -11,6 +11,7 @@ the same code (the spread of such estimates is the analytic standard error).
 
 from __future__ import annotations
 
+import copy
 import dataclasses
 import functools
 import hashlib
@@ -478,6 +479,97 @@ class _Evaluation:
     cal: _CalibrationSource
 
 
+class EstimateMemo:
+    """Per-variant estimates shared by the recipes of one job (e.g. the settings of a tune grid).
+
+    Settings that differ only in their combination stage (scale set, fit) need the same
+    correction and estimate of each circuit variant; with a memo each is computed once. An entry
+    is keyed by the context, runner and calibrator (by identity), the variant, the specs of the
+    correction and estimator passes, the bases read and the calibration mode; it keeps the
+    estimate, the details the passes wrote and the calibration circuits they drew on (replayed
+    on a hit, so shots and variances are registered as without the memo). Only exact and seeded
+    calibration (deterministic) is stored: sampled evaluations bypass the memo. Create one per
+    job and pass it to every :func:`run_recipe` of the job; results are bit-identical.
+    """
+
+    def __init__(self) -> None:
+        self._entries: dict[tuple[Any, ...], _MemoEntry] = {}
+        self.hits = 0
+        self.misses = 0
+
+    def __len__(self) -> int:
+        return len(self._entries)
+
+
+@dataclass(frozen=True, eq=False)
+class _MemoEntry:
+    estimate: Estimate
+    details: dict[str, Any]
+    calibration_calls: tuple[tuple[CircuitVariant, tuple[int, ...], int | None], ...]
+
+
+def _merge_details(into: dict[str, Any], new: Mapping[str, Any]) -> None:
+    """Add one variant's details as if its passes had written them into ``into`` directly
+    (passes write per-variant entries of dicts, append to lists, or set values)."""
+    for k, val in new.items():
+        if isinstance(val, dict) and isinstance(into.get(k, {}), dict):
+            into.setdefault(k, {}).update(val)
+        elif isinstance(val, list) and isinstance(into.get(k, []), list):
+            into.setdefault(k, []).extend(val)
+        else:
+            into[k] = val
+
+
+def _variant_estimate(
+    corrects: Sequence[MitigationPass],
+    estimator: MitigationPass | None,
+    variant: CircuitVariant,
+    bases: tuple[str, ...],
+    ws: Workspace,
+) -> Estimate:
+    """Correction passes, then the estimator (or the plan estimate), on one variant's data."""
+    data: VariantData = {
+        b: raw_distribution(meas_key(variant, b), ws.measured[variant][b]) for b in bases
+    }
+    for p in corrects:
+        data = p.correct(variant, data, ws)
+    return estimator.estimate(variant, data, ws) if estimator else plan_estimate(ws.ctx, data)
+
+
+def _memo_estimate(
+    memo: EstimateMemo,
+    scope: tuple[Any, ...],
+    corrects: Sequence[MitigationPass],
+    estimator: MitigationPass | None,
+    variant: CircuitVariant,
+    bases: tuple[str, ...],
+    ws: Workspace,
+    cal: _CalibrationSource,
+) -> Estimate:
+    stages = [p.spec() for p in corrects] + ([estimator.spec()] if estimator else [])
+    key = (*scope, variant, json.dumps(stages, sort_keys=True), bases, cal.mode)
+    entry = memo._entries.get(key)
+    if entry is None:
+        calls: list[tuple[CircuitVariant, tuple[int, ...], int | None]] = []
+
+        def recording(v: CircuitVariant, states: tuple[int, ...], shots: int | None) -> np.ndarray:
+            calls.append((v, tuple(states), shots))
+            return cal(v, states, shots)
+
+        sub = Workspace(ctx=ws.ctx, measured=ws.measured, calibration=recording)
+        est = _variant_estimate(corrects, estimator, variant, bases, sub)
+        entry = _MemoEntry(est, copy.deepcopy(sub.details), tuple(calls))
+        memo._entries[key] = entry
+        memo.misses += 1
+        _merge_details(ws.details, sub.details)
+        return est
+    memo.hits += 1
+    for v, states, shots in entry.calibration_calls:
+        cal(v, states, shots)  # registers the calibration sources and their shots
+    _merge_details(ws.details, copy.deepcopy(entry.details))
+    return entry.estimate
+
+
 def _evaluate(
     parsed: ParsedRecipe,
     ctx: ExperimentContext,
@@ -485,17 +577,21 @@ def _evaluate(
     bases: tuple[str, ...],
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]],
     cal: _CalibrationSource,
+    memo: EstimateMemo | None = None,
+    memo_scope: tuple[Any, ...] = (),
 ) -> _Evaluation:
     ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
     corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
     estimator = parsed.of_stage(STAGE_ESTIMATE)
     combiner = parsed.of_stage(STAGE_COMBINE)
+    use_memo = memo is not None and cal.mode in ("exact", "seeded")
     per_variant: dict[CircuitVariant, Estimate] = {}
     for v in variants:
-        data: VariantData = {b: raw_distribution(meas_key(v, b), measured[v][b]) for b in bases}
-        for p in corrects:
-            data = p.correct(v, data, ws)
-        per_variant[v] = estimator.estimate(v, data, ws) if estimator else plan_estimate(ctx, data)
+        if use_memo:
+            scope = (ctx, cal.calibrator, *memo_scope)
+            per_variant[v] = _memo_estimate(memo, scope, corrects, estimator, v, bases, ws, cal)
+        else:
+            per_variant[v] = _variant_estimate(corrects, estimator, v, bases, ws)
     if combiner is not None:
         est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
     else:
@@ -561,11 +657,14 @@ def run_recipe(
     sampled: bool = False,
     rng: np.random.Generator | None = None,
     calibrator: Calibrator | None = None,
+    memo: EstimateMemo | None = None,
 ) -> RecipeResult:
     """Apply a recipe to the runner's data and score it (see the module docstring).
 
     ``calibrator(variant, states)``: exact readout-calibration distributions; default
     :func:`make_calibrator` (emulate's calibration circuits on ``ctx.profile``).
+    ``memo``: an :class:`EstimateMemo` shared by the recipes of one job (None: nothing shared);
+    the result is the same with and without it, sampled evaluations never read it.
     """
     parsed = parse_recipe(recipe)
     for i, p in enumerate(parsed.passes):
@@ -584,8 +683,16 @@ def run_recipe(
     exact_meas = {v: {b: _row(dists[v], b) for b in bases} for v in variants}
 
     # phase 1: exact distributions everywhere -> influences, allocation, analytic variance
+    scope = (runner,)
     ev1 = _evaluate(
-        parsed, ctx, variants, bases, exact_meas, _CalibrationSource(ctx, calibrator, "exact", None)
+        parsed,
+        ctx,
+        variants,
+        bases,
+        exact_meas,
+        _CalibrationSource(ctx, calibrator, "exact", None),
+        memo,
+        scope,
     )
     split = getattr(combiner.options, "shot_split", "equal") if combiner else "equal"
     shots = _allocate(ctx, ev1.estimate, exact_meas, variants, bases, split)
@@ -606,6 +713,8 @@ def run_recipe(
                 bases,
                 exact_meas,
                 _CalibrationSource(ctx, calibrator, "seeded", None),
+                memo,
+                scope,
             )
         else:
             ev = ev1

@@ -300,13 +300,16 @@ def tune(
         if own_executor:
             executor.close()
 
-    from noiselab.mitigate.recipe import run_recipe
+    from noiselab.mitigate.recipe import EstimateMemo, run_recipe
 
+    # settings that differ only in their extrapolation share each variant's corrected estimate
+    memo = EstimateMemo()
     results: list[tuple[Setting, Any]] = []
     for i, s in enumerate(settings):
-        results.append(
-            (s, run_recipe(list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator))
+        result = run_recipe(
+            list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator, memo=memo
         )
+        results.append((s, result))
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
     order = {s.label: i for i, s in enumerate(settings)}  # exact ties: the grid's own order
