@@ -86,7 +86,12 @@ def test_sampled_runs_bypass_the_memo(demo: tuple) -> None:
     def sampled(seed: int, m: EstimateMemo | None) -> dict:
         rng = np.random.default_rng(seed)
         res = run_recipe(
-            recipe, ctx.experiment, runner, calibrator=runner.calibrator, sampled=True, rng=rng,
+            recipe,
+            ctx.experiment,
+            runner,
+            calibrator=runner.calibrator,
+            sampled=True,
+            rng=rng,
             memo=m,
         )
         return res.to_dict()

@@ -69,6 +69,10 @@ class ExperimentContext:
     exact emulated distributions, i.e. the allocation a good pilot run would give).
     ``emulation_method``: passed to ``emulate_bases``, with ``num_trajectories``,
     ``num_batches`` (trajectory method) and ``max_density_matrix_qubits`` (None: memory guard only).
+    ``verification_bases``: measure the extra bases symmetry verification needs (a recipe with
+    ``postselect`` mode ``verify`` is refused without them). True by default, so a context built
+    by hand serves every recipe; the study layer turns it off when no recipe of the job
+    verifies (at 12 qubits the extra bases are most of the measured ones).
     """
 
     problem: Any
@@ -86,6 +90,7 @@ class ExperimentContext:
     num_trajectories: int = 256
     num_batches: int = 16
     max_density_matrix_qubits: int | None = None
+    verification_bases: bool = True
 
     def __post_init__(self) -> None:
         if int(self.shots) < 1:
@@ -99,12 +104,13 @@ class ExperimentContext:
 
     @functools.cached_property
     def measured_bases(self) -> tuple[str, ...]:
-        """Every basis the runner measures: the plan's, then the extra ones symmetry
-        verification needs (for any subset of the symmetries), so that all recipes share the
-        same simulations."""
+        """Every basis the runner measures: the plan's, then (with ``verification_bases``) the
+        extra ones symmetry verification needs (for any subset of the symmetries), so that all
+        recipes share the same simulations."""
         from noiselab.mitigate.passes.postselect import verification_bases
 
-        extra = verification_bases(self.plan, self.problem) if _has_symmetries(self.problem) else ()
+        wanted = self.verification_bases and _has_symmetries(self.problem)
+        extra = verification_bases(self.plan, self.problem) if wanted else ()
         return tuple(self.plan.bases) + tuple(b for b in extra if b not in self.plan.bases)
 
 

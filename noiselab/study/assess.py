@@ -15,7 +15,12 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
-from noiselab.study.context import StudyContext, build_context
+from noiselab.study.context import (
+    StudyContext,
+    build_context,
+    recipes_verify,
+    with_verification,
+)
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study, load_study
 
@@ -148,7 +153,10 @@ def assess(
                 stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
                 return AssessResult.from_record(json.loads(hit[0]), stats)
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
-    ctx = context if context is not None else build_context(study, cache=store, progress=progress)
+    if context is not None:
+        ctx = with_verification(context, recipes_verify(study.recipes.values()))
+    else:  # measures the verification bases exactly when a recipe verifies
+        ctx = build_context(study, cache=store, progress=progress)
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
     results = run_recipes(ctx, study.recipes, runner, progress)

@@ -10,7 +10,7 @@ from __future__ import annotations
 import dataclasses
 import json
 import time
-from collections.abc import Callable
+from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
 from noiselab.common.errors import InputError, input_error
@@ -131,13 +131,32 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
     return result
 
 
+def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
+    """Whether any of these recipes (lists of pass entries) runs symmetry verification."""
+    from noiselab.mitigate.registry import make_pass
+
+    for passes in recipes:
+        for entry in passes:
+            if entry.get("pass") == "postselect" and make_pass(entry).spec()["mode"] == "verify":
+                return True
+    return False
+
+
 def build_context(
     study: Study,
     *,
     cache: ResultsCache | None = None,
     progress: ProgressHook | None = None,
+    verification: bool | None = None,
 ) -> StudyContext:
-    """Compute the study's problem, optimum, compiled circuit, plan and mitigation context."""
+    """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
+
+    ``verification``: measure the extra bases symmetry verification needs; None: exactly when
+    a recipe of the study verifies (jobs that run other recipes, like tune, say so, or call
+    :func:`with_verification` on a context they were given).
+    """
+    if verification is None:
+        verification = recipes_verify(study.recipes.values())
     from noiselab.chem.encode import encode
     from noiselab.chem.molecule import compute_problem
     from noiselab.device.compile import compile_to_device
@@ -185,7 +204,7 @@ def build_context(
     plan = build_plan(qp.hamiltonian)
     seconds["compile"] = time.perf_counter() - t
     tick(3)
-    experiment = make_experiment(study, qp, compiled, plan, optimum)
+    experiment = make_experiment(study, qp, compiled, plan, optimum, verification)
     method, notice = resolve_emulation(
         study, int(compiled.circuit.num_qubits), len(experiment.measured_bases)
     )
@@ -201,6 +220,21 @@ def build_context(
         seconds=seconds,
         emulation_method=method,
         emulation_notice=notice,
+    )
+
+
+def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
+    """``ctx``, or a copy whose experiment also measures the verification bases when
+    ``needed`` and ``ctx`` lacks them (a context that has them is kept: extra bases are
+    harmless, and its simulations may already be cached)."""
+    if not needed or ctx.experiment.verification_bases:
+        return ctx
+    experiment = dataclasses.replace(ctx.experiment, verification_bases=True)
+    method, notice = resolve_emulation(
+        ctx.study, int(ctx.compiled.circuit.num_qubits), len(experiment.measured_bases)
+    )
+    return dataclasses.replace(
+        ctx, experiment=experiment, emulation_method=method, emulation_notice=notice
     )
 
 
@@ -236,8 +270,11 @@ def resolve_emulation(
     return method, notice
 
 
-def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: Any) -> Any:
-    """Mitigation's ExperimentContext for this study (budget, target, seed included)."""
+def make_experiment(
+    study: Study, qp: Any, compiled: Any, plan: Any, optimum: Any, verification: bool = True
+) -> Any:
+    """Mitigation's ExperimentContext for this study (budget, target, seed included);
+    ``verification``: whether it measures the symmetry-verification bases."""
     from noiselab.mitigate.recipe import ExperimentContext
 
     return ExperimentContext(
@@ -255,4 +292,5 @@ def make_experiment(study: Study, qp: Any, compiled: Any, plan: Any, optimum: An
         num_trajectories=int(study.emulation.trajectories),
         num_batches=int(study.emulation.batches),
         max_density_matrix_qubits=study.emulation.max_density_matrix_qubits,
+        verification_bases=bool(verification),
     )

@@ -21,7 +21,7 @@ from typing import Any
 from noiselab.common.errors import InputError
 from noiselab.study.assess import _default_cache, emulation_key_options, resolve_study
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
-from noiselab.study.context import StudyContext, build_context
+from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -278,10 +278,12 @@ def tune(
 
         executor = make_executor(workers, cluster)
     try:
+        # the verification bases are measured only when a setting may verify
+        verify = "verify" in resolved.postselect
         ctx = (
-            context
+            with_verification(context, verify)
             if context is not None
-            else build_context(study, cache=store, progress=progress)
+            else build_context(study, cache=store, progress=progress, verification=verify)
         )
         settings, notes = grid_settings(
             resolved, bool(getattr(ctx.qubit_problem, "symmetries", ()))

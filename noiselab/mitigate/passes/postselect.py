@@ -141,6 +141,12 @@ class PostselectPass(MitigationPass):
 
     def check(self, ctx, where: str) -> None:
         self.selected(ctx, where)
+        if self.options.mode == "verify" and not getattr(ctx, "verification_bases", True):
+            raise InputError(
+                f"{where}.mode: verify needs the extra verification bases, but this experiment "
+                "context was built without them (verification_bases=False); allowed: discard, "
+                "or a context built with verification_bases=True"
+            )
 
     def _verify_weights(self, ctx):
         cache = getattr(self, "_cache", None)
