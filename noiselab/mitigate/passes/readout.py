@@ -21,6 +21,7 @@ inversion's pullback (valid while small perturbations do not change the support)
 
 from __future__ import annotations
 
+import functools
 from typing import ClassVar, Literal
 
 import numpy as np
@@ -53,12 +54,39 @@ class ReadoutOptions(PassOptions):
 
 def apply_per_qubit(mats: list[np.ndarray], vec: np.ndarray) -> np.ndarray:
     """(M_{n-1} x ... x M_0) vec, with ``mats[q]`` acting on qubit q (bit q of the index)."""
-    n = len(mats)
-    t = np.asarray(vec, dtype=float).reshape((2,) * n)
+    t = np.asarray(vec, dtype=float)
     for q, m in enumerate(mats):
-        axis = n - 1 - q  # C order: the first axis is the most significant bit
-        t = np.moveaxis(np.tensordot(m, t, axes=([1], [axis])), 0, axis)
-    return t.reshape(-1)
+        # C order: viewed as (high bits, bit q, low bits), M acts on the middle axis
+        t = np.matmul(m, t.reshape(-1, 2, 2**q)).reshape(-1)
+    return t
+
+
+@functools.lru_cache(maxsize=32)
+def _bit_tables(n: int) -> tuple[np.ndarray, np.ndarray]:
+    """(bits[q, k] = bit q of k as floats, flip[q, k] = k with bit q flipped)."""
+    k = np.arange(2**n)
+    q = np.arange(n)[:, None]
+    return ((k[None, :] >> q) & 1).astype(float), k[None, :] ^ (1 << q)
+
+
+def _calibration_gradients(v: np.ndarray, q: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
+    """Gradients of v . (A^-1 x ... ) with respect to the all-0 and all-1 calibration
+    distributions, given v = A^-T u and the corrected distribution q.
+
+    Per qubit b, G_b[a, c] = sum_k v[k] q[k'] over k with bit b = a and k' = k with bit b set
+    to c; the assignment entry P(a | c) of qubit b then has gradient -G_b[a, c], and bit b of
+    the all-c calibration outcome k selects a.
+    """
+    bits, flip = _bit_tables(n)
+    w = v * q
+    g11 = bits @ w
+    g00 = w.sum() - g11
+    x = v[None, :] * q[flip]  # x[b, k] = v[k] q[k ^ 2**b]
+    g10 = (x * bits).sum(axis=1)
+    g01 = x.sum(axis=1) - g10
+    u0 = -g00.sum() - (g10 - g00) @ bits
+    u1 = -g01.sum() - (g11 - g01) @ bits
+    return u0, u1
 
 
 def per_qubit_matrices(p_all0: np.ndarray, p_all1: np.ndarray, n: int) -> list[np.ndarray]:
@@ -141,22 +169,11 @@ def _per_qubit_inverse(
 ) -> CorrectedDistribution:
     q = apply_per_qubit(inv, d.probs)
     inv_t = [m.T for m in inv]
-    qt = q.reshape((2,) * n)
-    k = np.arange(2**n)
 
     def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
         v = apply_per_qubit(inv_t, u)
         out = dict(d.pullback(v))
-        vt = v.reshape((2,) * n)
-        u0 = np.zeros(2**n)
-        u1 = np.zeros(2**n)
-        for qb in range(n):
-            axis = n - 1 - qb
-            others = [a for a in range(n) if a != axis]
-            g = np.tensordot(vt, qt, axes=(others, others))  # G[a, b] = sum v[..a..] q[..b..]
-            bits = (k >> qb) & 1
-            u0 -= g[bits, 0]
-            u1 -= g[bits, 1]
+        u0, u1 = _calibration_gradients(v, q, n)
         for key, val in ((keys[0], u0), (keys[1], u1)):
             out[key] = out[key] + val if key in out else val
         return out
