@@ -15,7 +15,8 @@ column-stochastic matrix per qubit (applied after averaging over trajectories, i
 
 from __future__ import annotations
 
-from collections.abc import Hashable, Sequence
+from collections.abc import Callable, Hashable, Sequence
+from typing import Any
 
 import numpy as np
 
@@ -25,9 +26,12 @@ from noiselab.emulate.readout import apply_on_axis, apply_readout
 CLIP_TOL = 1e-9
 
 
-def _order_by_sharing(keys: Sequence[Sequence[Hashable]], n: int) -> list[int]:
+def _order_by_sharing(
+    keys: Sequence[Sequence[Hashable]], n: int, tie: Sequence[int] | None = None
+) -> list[int]:
+    """Logical qubits, fewest distinct effects first; ties by ``tie[l]`` (default l)."""
     distinct = [len({kk[l] for kk in keys}) for l in range(n)]
-    return sorted(range(n), key=lambda l: (distinct[l], l))
+    return sorted(range(n), key=lambda l: (distinct[l], l if tie is None else tie[l]))
 
 
 def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndarray:
@@ -81,66 +85,220 @@ def _contract_qubit(x: np.ndarray, p: int, m: int, e: np.ndarray) -> np.ndarray:
     return y.reshape(bsz * n_out, d, d)
 
 
+#: Fan the prefix tree out to threads below nodes of at most this many complex entries (16 MiB),
+#: so each thread's temporaries stay small; larger nodes use the (multithreaded) BLAS call alone.
+THREAD_NODE_ENTRIES = 2**20
+
+
+def contraction_threads() -> int:
+    """Threads for the basis contraction: ``$NOISELAB_ENGINE_THREADS`` (0 or unset: every core)."""
+    import os
+
+    try:
+        n = int(os.environ.get("NOISELAB_ENGINE_THREADS", "0"))
+    except ValueError:
+        n = 0
+    return n if n > 0 else max(1, os.cpu_count() or 1)
+
+
+def _interleave(rho: np.ndarray, seq: Sequence[int]) -> np.ndarray:
+    """``rho`` ``(2**k, 2**k)`` as a flat array whose axes are (row bit, column bit) pairs of the
+    circuit qubits in ``seq`` (first = most significant), one contiguous copy."""
+    dim = rho.shape[0]
+    k = dim.bit_length() - 1
+    if not rho.flags.c_contiguous and rho.flags.f_contiguous:
+        # qiskit-aer hands back a column-major matrix: reshape its C-ordered transpose (a view),
+        # whose leading axes are then the column bits
+        t = rho.T.reshape((2,) * (2 * k))
+        row = {q: k + (k - 1 - q) for q in range(k)}
+        col = {q: k - 1 - q for q in range(k)}
+    else:
+        t = np.ascontiguousarray(rho).reshape((2,) * (2 * k))
+        row = {q: k - 1 - q for q in range(k)}
+        col = {q: k + (k - 1 - q) for q in range(k)}
+    perm = [a for q in seq for a in (row[q], col[q])]
+    return np.ascontiguousarray(t.transpose(perm), dtype=complex).reshape(-1)
+
+
+def _pair_weights(e: np.ndarray) -> np.ndarray:
+    """``(4, n_out)`` weights ``w[2i + j, b] = E[b][j, i]``: ``p = sum_ij rho[i, j] E[j, i]``."""
+    e = np.asarray(e, dtype=complex)
+    return np.ascontiguousarray(e.transpose(2, 1, 0).reshape(4, e.shape[0]))
+
+
+#: Rows per BLAS call: small enough that OpenBLAS runs each call on one thread (its own threads
+#: spin and oversubscribe the cores next to ours) and the operands stay in cache.
+STEP_ROWS = 2**12
+
+
+def _step(
+    x: np.ndarray, w: np.ndarray, out: np.ndarray | None = None, pool: Any = None, parts: int = 1
+) -> np.ndarray:
+    """Contract the leading (row, column) pair of the flat ``x``: ``(M, 4) @ (4, n_out)``
+    products over blocks of :data:`STEP_ROWS` rows (on ``pool``'s threads if given). The result
+    ``(M * n_out,)`` keeps the pair layout; the new outcome is the least significant part of the
+    trailing outcome index."""
+    m = x.size // 4
+    a = x.reshape(4, m).T
+    res = np.empty((m, w.shape[1]), dtype=complex) if out is None else out.reshape(m, -1)
+
+    def rows(lo: int, hi: int) -> None:
+        for r in range(lo, hi, STEP_ROWS):
+            e = min(hi, r + STEP_ROWS)
+            np.matmul(a[r:e], w, out=res[r:e])
+
+    if pool is None or parts < 2 or m <= STEP_ROWS * parts:
+        rows(0, m)
+    else:
+        cuts = [m * i // parts // STEP_ROWS * STEP_ROWS for i in range(parts)] + [m]
+        list(pool.map(rows, cuts[:-1], cuts[1:]))
+    return res.reshape(-1)
+
+
+class _Buffers:
+    """One reusable output buffer per tree depth (a depth's nodes are built one at a time)."""
+
+    def __init__(self) -> None:
+        self._by_depth: dict[int, np.ndarray] = {}
+
+    def get(self, depth: int, size: int) -> np.ndarray:
+        buf = self._by_depth.get(depth)
+        if buf is None or buf.size < size:
+            buf = np.empty(size, dtype=complex)
+            self._by_depth[depth] = buf
+        return buf[:size]
+
+
 def dm_distributions(
-    rho: np.ndarray,
+    rho: np.ndarray | list[np.ndarray],
     qubits: Sequence[int],
     effects: Sequence[Sequence[np.ndarray]],
     keys: Sequence[Sequence[Hashable]],
+    *,
+    threads: int | None = None,
 ) -> np.ndarray:
     """Distributions ``(n_bases, 2**n)`` of measuring circuit qubits ``qubits`` of ``rho``.
 
-    ``rho``: ``(2**k, 2**k)`` density matrix (qiskit order). ``qubits[l]``: circuit qubit holding
-    logical qubit l. ``effects[i][l]``: effect tensor of logical qubit l in basis i;
-    ``keys[i][l]``: a hashable naming it (equal keys must mean equal tensors). Unmeasured circuit
-    qubits are traced out. Entry k of a row has ``bit_l = (k >> l) & 1``.
+    ``rho``: ``(2**k, 2**k)`` density matrix (qiskit order), or a one-element list holding it,
+    which is emptied once the matrix is copied (the caller's only reference goes, saving one
+    density matrix of peak memory). ``qubits[l]``: circuit qubit holding logical qubit l.
+    ``effects[i][l]``: effect tensor of logical qubit l in basis i; ``keys[i][l]``: a hashable
+    naming it (equal keys must mean equal tensors). Unmeasured circuit qubits are traced out.
+    Entry k of a row has ``bit_l = (k >> l) & 1``. ``threads``: default
+    :func:`contraction_threads`.
 
-    Each step keeps the matrix form ``(outcomes so far, D, D)`` of the remaining qubits and
-    halves D; intermediates of one prefix-tree branch total at most one density matrix.
+    The matrix is copied once into (row bit, column bit) pairs in contraction order; each step is
+    then one BLAS product with the step's ``(4, 2)`` weights, output already in the layout of the
+    next step. Intermediates of one prefix-tree branch total at most one density matrix; with
+    threads, each thread's subtree starts at a node of at most :data:`THREAD_NODE_ENTRIES`.
     """
-    dim = rho.shape[0]
+    if isinstance(rho, list):
+        holder, mat = rho, np.asarray(rho[0])
+    else:
+        holder, mat = None, np.asarray(rho)
+    dim = mat.shape[0]
     k = dim.bit_length() - 1
     n = len(qubits)
-    order = _order_by_sharing(keys, n)
-    rho = np.asarray(rho)
-    transposed = not rho.flags.c_contiguous and rho.flags.f_contiguous
-    if transposed:
-        # qiskit-aer hands back a column-major matrix: work on its C-ordered transpose (a view)
-        # with transposed effects, Tr(rho E) = sum_ab rho^T[a, b] E^T[b, a]
-        rho = rho.T
-    x = rho.reshape(1, dim, dim)
-    rem = list(range(k - 1, -1, -1))  # circuit qubit at each position, most significant first
-    trace = np.eye(2, dtype=complex)[None]
-    for c in range(k):
-        if c not in qubits:
-            pos = rem.index(c)
-            x = _contract_qubit(x, pos, len(rem), trace)
-            rem.pop(pos)
+    # ties: most significant circuit qubit first, which makes the pair copy close to sequential
+    order = _order_by_sharing(keys, n, [-c for c in qubits])
+    traced = [c for c in range(k - 1, -1, -1) if c not in qubits]
+    x = _interleave(mat, traced + [qubits[l] for l in order])
+    del mat
+    if holder is not None:
+        holder.clear()
+    trace = _pair_weights(np.eye(2, dtype=complex)[None])
+    for _ in traced:
+        x = _step(x, trace)
+    weights: dict[tuple[int, Hashable], np.ndarray] = {}
     out = np.empty((len(effects), 2**n))
     # after contraction, bit j (from the most significant) of the index is logical order[j]
     perm = [order.index(n - 1 - p) for p in range(n)]
+    n_threads = contraction_threads() if threads is None else max(1, int(threads))
 
-    def rec(x: np.ndarray, depth: int, rem: list[int], members: list[int]) -> None:
-        if depth == n:
-            flat = x.real.reshape(-1)
-            if n:
-                flat = np.transpose(flat.reshape((2,) * n), perm).reshape(-1)
-            for i in members:
-                out[i] = flat
-            return
+    def w_of(l: int, i: int) -> np.ndarray:
+        key = (l, keys[i][l])
+        if key not in weights:
+            weights[key] = _pair_weights(effects[i][l])
+        return weights[key]
+
+    def groups_at(depth: int, members: list[int]) -> list[list[int]]:
         l = order[depth]
-        pos = rem.index(qubits[l])
-        sub = rem[:pos] + rem[pos + 1 :]
         groups: dict[Hashable, list[int]] = {}
         for i in members:
             groups.setdefault(keys[i][l], []).append(i)
-        for members_g in groups.values():
-            e = effects[members_g[0]][l]
-            y = _contract_qubit(x, pos, len(rem), e.transpose(0, 2, 1) if transposed else e)
-            rec(y, depth + 1, sub, members_g)
-            del y  # free this branch before the next one is built (peak memory)
+        return list(groups.values())
 
-    rec(x, 0, rem, list(range(len(effects))))
+    def leaf(x: np.ndarray, members: list[int]) -> None:
+        flat = x.real
+        if n:
+            flat = np.transpose(flat.reshape((2,) * n), perm).reshape(-1)
+        for i in members:
+            out[i] = flat
+
+    def rec(x: np.ndarray, depth: int, members: list[int], bufs: _Buffers) -> None:
+        if depth == n:
+            leaf(x, members)
+            return
+        for g in groups_at(depth, members):
+            y = _step(x, w_of(order[depth], g[0]), bufs.get(depth, x.size // 2))
+            rec(y, depth + 1, g, bufs)
+
+    members = list(range(len(effects)))
+    if n_threads == 1 or n == 0 or x.size // 2 <= THREAD_NODE_ENTRIES:
+        rec(x, 0, members, _Buffers())
+    else:
+        _threaded_tree(x, members, n, n_threads, rec, w_of, groups_at, order)
     return clean_probabilities(out, what="density-matrix distribution")
+
+
+def _threaded_tree(
+    x: np.ndarray,
+    members: list[int],
+    n: int,
+    n_threads: int,
+    rec: Callable[[np.ndarray, int, list[int], _Buffers], None],
+    w_of: Callable[[int, int], np.ndarray],
+    groups_at: Callable[[int, list[int]], list[list[int]]],
+    order: Sequence[int],
+) -> None:
+    """Run the prefix tree: nodes above :data:`THREAD_NODE_ENTRIES` serially (one big BLAS call
+    each, fresh arrays), each subtree below it as one task of a thread pool. At most
+    ``2 * n_threads`` tasks wait at a time, each holding its parent, which bounds the memory."""
+    import concurrent.futures
+    import threading
+
+    local = threading.local()
+    window = threading.BoundedSemaphore(2 * n_threads)
+
+    def task(px: np.ndarray, depth: int, g: list[int]) -> None:
+        try:
+            bufs = getattr(local, "bufs", None)
+            if bufs is None:
+                bufs = local.bufs = _Buffers()
+            y = _step(px, w_of(order[depth], g[0]), bufs.get(depth, px.size // 2))
+            rec(y, depth + 1, g, bufs)
+        finally:
+            window.release()
+
+    with concurrent.futures.ThreadPoolExecutor(n_threads) as pool:
+        futures: list[concurrent.futures.Future[None]] = []
+
+        def walk(x: np.ndarray, depth: int, members: list[int]) -> None:
+            for g in groups_at(depth, members):
+                if x.size // 2 <= THREAD_NODE_ENTRIES:
+                    window.acquire()
+                    futures.append(pool.submit(task, x, depth, g))
+                    continue
+                y = _step(x, w_of(order[depth], g[0]), pool=pool, parts=n_threads)
+                if depth + 1 == n:
+                    rec(y, depth + 1, g, _Buffers())
+                else:
+                    walk(y, depth + 1, g)
+                del y
+
+        walk(x, 0, members)
+        for f in futures:
+            f.result()
 
 
 def effect_rotation(e: np.ndarray, tol: float = 1e-12) -> tuple[np.ndarray | None, np.ndarray]:
