@@ -338,3 +338,40 @@ def test_natives_that_cannot_change_basis_are_refused() -> None:
 
     with pytest.raises(InputError, match="cannot express"):
         native_basis_change("X", ("rz", "x"))
+
+
+# ---- noise model reuse -------------------------------------------------------------------------
+
+
+def test_noise_model_built_once_per_profile_and_patch(
+    h2: dict, monkeypatch: pytest.MonkeyPatch
+) -> None:
+    """A variant's simulation and its calibration share one noise model; a scaled profile or
+    another patch gets its own, and the shared one gives the same distributions as a fresh one."""
+    import noiselab.device.noise as noise
+    from noiselab.device.compile import compile_to_device
+    from noiselab.device.profile import load_profile, scale_profile
+    from noiselab.emulate import engine
+    from noiselab.emulate.readout import calibration_distributions
+
+    prof = load_profile(DEVICES / "rustbucket-6.yaml")
+    comp = compile_to_device(h2["bound"], prof)
+    builds: list[tuple] = []
+    original = noise.build_noise_model
+
+    def counting(profile: object, patch: object, **kw: object) -> object:
+        builds.append((profile, tuple(patch)))  # type: ignore[arg-type]
+        return original(profile, patch, **kw)  # type: ignore[arg-type]
+
+    monkeypatch.setattr(noise, "build_noise_model", counting)
+    monkeypatch.setattr(engine, "_NOISE_MODELS", {})
+    a = emulate_bases(comp, prof, ["ZZZZ", "XXYY"])
+    calibration_distributions(prof, comp.patch, "per_qubit", measured=comp.logical_to_circuit)
+    b = emulate_bases(comp, load_profile(DEVICES / "rustbucket-6.yaml"), ["ZZZZ", "XXYY"])
+    assert len(builds) == 1
+    emulate_bases(comp, scale_profile(prof, 2.0, ("two_qubit",)), ["ZZZZ"])
+    assert len(builds) == 2
+    np.testing.assert_array_equal(a.probs, b.probs)
+    fresh = emulate_bases(comp, prof, ["ZZZZ", "XXYY"], noise_model=original(prof, comp.patch))
+    # source: the same run with a freshly built qiskit-aer noise model (common practice)
+    np.testing.assert_allclose(a.probs, fresh.probs, atol=1e-14)

@@ -242,9 +242,15 @@ def emulate_circuit_bases(
     mats = list(readout_matrices) if readout_matrices is not None else [None] * n
     if chosen == "density_matrix":
         calls0 = engine_call_count()
-        rho = simulate_density_matrix(circuit, noise_model)
-        ideal = dm_distributions(rho, qubits, effects, keys)
-        del rho
+        # handed over in a list so the contraction can drop the only reference once it has its
+        # own copy (one density matrix less at the peak)
+        ideal = dm_distributions(
+            [simulate_density_matrix(circuit, noise_model)],
+            qubits,
+            effects,
+            keys,
+            threads=engine_threads() or None,
+        )
         probs = apply_readout(ideal, mats, readout_crosstalk)
         return BasisDistributions(
             bases=bases_t,
@@ -326,6 +332,34 @@ def logical_readout(
     return [mats[c] for c in qubits], terms
 
 
+#: Noise models built in this process, by (profile fingerprint, patch); a study asks for the same
+#: one for a variant's simulation and its readout calibration.
+_NOISE_MODELS: dict[tuple[str, tuple[int, ...]], Any] = {}
+_NOISE_MODEL_SLOTS = 8
+
+
+def noise_model_for(profile: Any, patch: Sequence[int]) -> Any:
+    """``build_noise_model(profile, patch)``, memoized per process (last 8 distinct keys).
+
+    Keyed by ``profile.fingerprint`` (content hash); profiles without one are built afresh.
+    Callers must not modify the returned model.
+    """
+    from noiselab.device.noise import build_noise_model
+
+    patch_t = tuple(int(q) for q in patch)
+    fp = getattr(profile, "fingerprint", None)
+    if not isinstance(fp, str):
+        return build_noise_model(profile, patch_t)
+    key = (fp, patch_t)
+    nm = _NOISE_MODELS.pop(key, None)
+    if nm is None:
+        nm = build_noise_model(profile, patch_t)
+        while len(_NOISE_MODELS) >= _NOISE_MODEL_SLOTS:
+            _NOISE_MODELS.pop(next(iter(_NOISE_MODELS)))
+    _NOISE_MODELS[key] = nm  # most recently used last
+    return nm
+
+
 def emulate_bases(
     compiled: Any,
     profile: Any,
@@ -348,12 +382,10 @@ def emulate_bases(
     its duration) unless ``basis_noise=False``; ``readout=False`` makes ``probs`` equal
     ``probs_ideal``. ``noise_model`` overrides the one built from ``profile`` and the patch.
     """
-    from noiselab.device.noise import build_noise_model
-
     circuit = compiled.circuit
     patch = tuple(compiled.patch)
     qubits = list(compiled.logical_to_circuit)
-    nm = build_noise_model(profile, patch) if noise_model is None else noise_model
+    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
     mats, terms = logical_readout(profile, patch, qubits) if readout else (None, ())
     return emulate_circuit_bases(
         circuit,

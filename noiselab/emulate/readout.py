@@ -201,9 +201,8 @@ def calibration_distributions(
     shots from ``probs`` to estimate assignment matrices; state-preparation error (noisy X
     gates, relaxation during them) is part of the result.
     """
-    from noiselab.device.noise import build_noise_model
     from noiselab.emulate.channels import native_basis_change, qubit_layer_superop
-    from noiselab.emulate.engine import layer_spec_for, logical_readout
+    from noiselab.emulate.engine import layer_spec_for, logical_readout, noise_model_for
 
     patch = tuple(int(q) for q in patch)
     k = len(patch)
@@ -212,7 +211,7 @@ def calibration_distributions(
     if len(set(qubits)) != n or any(not 0 <= c < k for c in qubits):
         raise InputError(f"calibration: measured: {qubits}; allowed: distinct positions 0..{k - 1}")
     chosen = calibration_states(states, n)
-    nm = build_noise_model(profile, patch) if noise_model is None else noise_model
+    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
     spec = layer_spec_for(profile, k)
     flip = native_basis_change("FLIP", spec.native_1q)
     flip_ns = {c: sum(spec.duration_ns(g, c) for g, _ in flip) for c in qubits}
