@@ -111,7 +111,8 @@ class ExperimentContext:
 
         wanted = self.verification_bases and _has_symmetries(self.problem)
         extra = verification_bases(self.plan, self.problem) if wanted else ()
-        return tuple(self.plan.bases) + tuple(b for b in extra if b not in self.plan.bases)
+        plan_bases = tuple(self.plan.bases)
+        return plan_bases + tuple(b for b in extra if b not in plan_bases)
 
 
 def _has_symmetries(problem: Any) -> bool:
@@ -807,7 +808,8 @@ def run_recipe(
         ]
         n_sel = sum(n for n, _ in accepted_bases)
         details["acceptance_rate"] = sum(n * a for n, a in accepted_bases) / n_sel if n_sel else 1.0
-    extra = [b for b in bases if b not in ctx.plan.bases]
+    plan_bases = set(ctx.plan.bases)  # a property that builds the tuple on every call
+    extra = [b for b in bases if b not in plan_bases]
     if extra:
         details["extra_bases"] = extra
         details["extra_basis_shots"] = int(

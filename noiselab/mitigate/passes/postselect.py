@@ -171,7 +171,8 @@ class PostselectPass(MitigationPass):
             return ctx.plan.bases
         _, w_num, _, w_den = self._verify_weights(ctx)
         used = set(w_num) | set(w_den)
-        return tuple(b for b in ctx.measured_bases if b in used or b in ctx.plan.bases)
+        plan_bases = set(ctx.plan.bases)
+        return tuple(b for b in ctx.measured_bases if b in used or b in plan_bases)
 
     def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
         ctx = ws.ctx

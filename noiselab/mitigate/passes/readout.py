@@ -69,23 +69,28 @@ def _bit_tables(n: int) -> tuple[np.ndarray, np.ndarray]:
     return ((k[None, :] >> q) & 1).astype(float), k[None, :] ^ (1 << q)
 
 
-def _calibration_gradients(v: np.ndarray, q: np.ndarray, n: int) -> tuple[np.ndarray, np.ndarray]:
-    """Gradients of v . (A^-1 x ... ) with respect to the all-0 and all-1 calibration
-    distributions, given v = A^-T u and the corrected distribution q.
+def _calibration_gradients(
+    v: np.ndarray, partial: np.ndarray, n: int
+) -> tuple[np.ndarray, np.ndarray]:
+    """Gradients of u . (A^-1 p) with respect to the all-0 and all-1 calibration distributions,
+    given v = A^-T u and ``partial[b]`` = p with qubit b's inverse alone applied.
 
-    Per qubit b, G_b[a, c] = sum_k v[k] q[k'] over k with bit b = a and k' = k with bit b set
-    to c; the assignment entry P(a | c) of qubit b then has gradient -G_b[a, c], and bit b of
-    the all-c calibration outcome k selects a.
+    With A = A_{n-1} x ... x A_0, d(A^-1) = -A^-1 dA A^-1 and dA = (x_{c != b} A_c) x dA_b, so
+    d(u . A^-1 p) = -sum_{a,c} dA_b[a, c] G_b[a, c] with G_b[a, c] = sum_k v[k] partial_b[k']
+    over k with bit b = a and k' = k with bit b set to c. P(1|0) of qubit b is the all-0
+    outcomes' mean of bit b (P(0|1) likewise for all-1), which gives the gradients (up to a
+    constant per source, which no variance sees).
     """
     bits, flip = _bit_tables(n)
-    w = v * q
-    g11 = bits @ w
-    g00 = w.sum() - g11
-    x = v[None, :] * q[flip]  # x[b, k] = v[k] q[k ^ 2**b]
+    w = v[None, :] * partial  # w[b, k] = v[k] partial_b[k]
+    g11 = (w * bits).sum(axis=1)
+    g00 = w.sum(axis=1) - g11
+    x = v[None, :] * np.take_along_axis(partial, flip, axis=1)  # v[k] partial_b[k ^ 2**b]
     g10 = (x * bits).sum(axis=1)
     g01 = x.sum(axis=1) - g10
-    u0 = -g00.sum() - (g10 - g00) @ bits
-    u1 = -g01.sum() - (g11 - g01) @ bits
+    # A_b = [[1 - e0, e1], [e0, 1 - e1]]: de0 moves column 0 by (-1, +1), de1 column 1 by (+1, -1)
+    u0 = -(g10 - g00) @ bits
+    u1 = -(g01 - g11) @ (1.0 - bits)
     return u0, u1
 
 
@@ -169,11 +174,16 @@ def _per_qubit_inverse(
 ) -> CorrectedDistribution:
     q = apply_per_qubit(inv, d.probs)
     inv_t = [m.T for m in inv]
+    raw = np.asarray(d.probs, dtype=float)
 
     def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
         v = apply_per_qubit(inv_t, u)
         out = dict(d.pullback(v))
-        u0, u1 = _calibration_gradients(v, q, n)
+        # built per call, not kept: n x 2**n per basis would add up over hundreds of bases
+        partial = np.stack(
+            [np.matmul(m, raw.reshape(-1, 2, 2**b)).reshape(-1) for b, m in enumerate(inv)]
+        )
+        u0, u1 = _calibration_gradients(v, partial, n)
         for key, val in ((keys[0], u0), (keys[1], u1)):
             out[key] = out[key] + val if key in out else val
         return out
