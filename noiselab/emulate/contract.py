@@ -15,7 +15,7 @@ column-stochastic matrix per qubit (applied after averaging over trajectories, i
 
 from __future__ import annotations
 
-from collections.abc import Callable, Hashable, Sequence
+from collections.abc import Hashable, Sequence
 from typing import Any
 
 import numpy as np
@@ -85,11 +85,6 @@ def _contract_qubit(x: np.ndarray, p: int, m: int, e: np.ndarray) -> np.ndarray:
     return y.reshape(bsz * n_out, d, d)
 
 
-#: Fan the prefix tree out to threads below nodes of at most this many complex entries (16 MiB),
-#: so each thread's temporaries stay small; larger nodes use the (multithreaded) BLAS call alone.
-THREAD_NODE_ENTRIES = 2**20
-
-
 def contraction_threads() -> int:
     """Threads for the basis contraction: ``$NOISELAB_ENGINE_THREADS`` (0 or unset: every core)."""
     import os
@@ -147,7 +142,7 @@ def _step(
             e = min(hi, r + STEP_ROWS)
             np.matmul(a[r:e], w, out=res[r:e])
 
-    if pool is None or parts < 2 or m <= STEP_ROWS * parts:
+    if pool is None or parts < 2 or m < 2 * STEP_ROWS * parts:
         rows(0, m)
     else:
         cuts = [m * i // parts // STEP_ROWS * STEP_ROWS for i in range(parts)] + [m]
@@ -189,8 +184,8 @@ def dm_distributions(
 
     The matrix is copied once into (row bit, column bit) pairs in contraction order; each step is
     then one BLAS product with the step's ``(4, 2)`` weights, output already in the layout of the
-    next step. Intermediates of one prefix-tree branch total at most one density matrix; with
-    threads, each thread's subtree starts at a node of at most :data:`THREAD_NODE_ENTRIES`.
+    next step, into a buffer reused by every node of that depth. Intermediates total at most one
+    density matrix; with threads, the rows of each large product are split over them.
     """
     if isinstance(rho, list):
         holder, mat = rho, np.asarray(rho[0])
@@ -235,70 +230,26 @@ def dm_distributions(
         for i in members:
             out[i] = flat
 
-    def rec(x: np.ndarray, depth: int, members: list[int], bufs: _Buffers) -> None:
+    def rec(x: np.ndarray, depth: int, members: list[int], bufs: _Buffers, pool: Any) -> None:
         if depth == n:
             leaf(x, members)
             return
         for g in groups_at(depth, members):
-            y = _step(x, w_of(order[depth], g[0]), bufs.get(depth, x.size // 2))
-            rec(y, depth + 1, g, bufs)
+            w = w_of(order[depth], g[0])
+            y = _step(x, w, bufs.get(depth, x.size // 2), pool, n_threads)
+            rec(y, depth + 1, g, bufs, pool)
 
     members = list(range(len(effects)))
-    if n_threads == 1 or n == 0 or x.size // 2 <= THREAD_NODE_ENTRIES:
-        rec(x, 0, members, _Buffers())
+    if n_threads == 1 or n == 0:
+        rec(x, 0, members, _Buffers(), None)
     else:
-        _threaded_tree(x, members, n, n_threads, rec, w_of, groups_at, order)
+        import concurrent.futures
+
+        # the tree is walked in this thread; the rows of every large product are split over the
+        # pool (BLAS releases the GIL), so threads add no temporaries
+        with concurrent.futures.ThreadPoolExecutor(n_threads) as pool:
+            rec(x, 0, members, _Buffers(), pool)
     return clean_probabilities(out, what="density-matrix distribution")
-
-
-def _threaded_tree(
-    x: np.ndarray,
-    members: list[int],
-    n: int,
-    n_threads: int,
-    rec: Callable[[np.ndarray, int, list[int], _Buffers], None],
-    w_of: Callable[[int, int], np.ndarray],
-    groups_at: Callable[[int, list[int]], list[list[int]]],
-    order: Sequence[int],
-) -> None:
-    """Run the prefix tree: nodes above :data:`THREAD_NODE_ENTRIES` serially (one big BLAS call
-    each, fresh arrays), each subtree below it as one task of a thread pool. At most
-    ``2 * n_threads`` tasks wait at a time, each holding its parent, which bounds the memory."""
-    import concurrent.futures
-    import threading
-
-    local = threading.local()
-    window = threading.BoundedSemaphore(2 * n_threads)
-
-    def task(px: np.ndarray, depth: int, g: list[int]) -> None:
-        try:
-            bufs = getattr(local, "bufs", None)
-            if bufs is None:
-                bufs = local.bufs = _Buffers()
-            y = _step(px, w_of(order[depth], g[0]), bufs.get(depth, px.size // 2))
-            rec(y, depth + 1, g, bufs)
-        finally:
-            window.release()
-
-    with concurrent.futures.ThreadPoolExecutor(n_threads) as pool:
-        futures: list[concurrent.futures.Future[None]] = []
-
-        def walk(x: np.ndarray, depth: int, members: list[int]) -> None:
-            for g in groups_at(depth, members):
-                if x.size // 2 <= THREAD_NODE_ENTRIES:
-                    window.acquire()
-                    futures.append(pool.submit(task, x, depth, g))
-                    continue
-                y = _step(x, w_of(order[depth], g[0]), pool=pool, parts=n_threads)
-                if depth + 1 == n:
-                    rec(y, depth + 1, g, _Buffers())
-                else:
-                    walk(y, depth + 1, g)
-                del y
-
-        walk(x, 0, members)
-        for f in futures:
-            f.result()
 
 
 def effect_rotation(e: np.ndarray, tol: float = 1e-12) -> tuple[np.ndarray | None, np.ndarray]:
