@@ -1,9 +1,10 @@
 """Measured distributions of many bases from one state: the analytic measurement kernel.
 
 Density matrix: ``p(b) = Tr(rho (x)_q E_q^{b_q})`` with per-qubit effect tensors ``E_q`` of shape
-``(2, 2, 2)`` (``[b, row, col]``). The density matrix, reshaped to ``2k`` axes, is contracted one
-qubit at a time (each step turns a row and a column axis into one outcome axis), O(4**k) per basis
-(about 2 s for 100 bases on 12 qubits, 2 cores).
+``(2, 2, 2)`` (``[b, row, col]``). The density matrix is copied once so that each qubit's (row bit,
+column bit) pair is one axis of 4, in contraction order; contracting a qubit is then one BLAS
+product ``(M, 4) @ (4, 2)`` whose output is already laid out for the next qubit, O(4**k) per basis
+(about 1.5 s for 180 bases on 12 qubits, one core).
 Bases that share effects on the first contracted qubits share those intermediate tensors (the
 qubits are contracted in order of fewest distinct effects first, bases grouped as a prefix tree).
 
@@ -46,43 +47,6 @@ def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndar
     np.clip(p, 0.0, None, out=p)
     s = p.sum(axis=-1, keepdims=True)
     return p / np.where(s > 0, s, 1.0)
-
-
-def _contract_qubit(x: np.ndarray, p: int, m: int, e: np.ndarray) -> np.ndarray:
-    """Contract qubit position ``p`` (0 = most significant of ``m``) of ``x`` ``(B, D, D)``.
-
-    ``e`` ``(n_out, 2, 2)``: effects ``E[b]`` (``n_out = 1`` with the identity traces the qubit
-    out). Returns ``(B * n_out, D/2, D/2)``; the new outcome is the least significant part of the
-    leading index. Works on strided views of ``x`` (no transposed copy): ``y[b] = sum_ij
-    E[b][j, i] x[.., i, .., .., j, ..]``, zero coefficients skipped.
-    """
-    bsz = x.shape[0]
-    hi, lo = 2**p, 2 ** (m - 1 - p)
-    x6 = x.reshape(bsz, hi, 2, lo, hi, 2, lo)
-    n_out = e.shape[0]
-    y = np.empty((bsz, n_out, hi, lo, hi, lo), dtype=np.result_type(x.dtype, e.dtype))
-    tmp: np.ndarray | None = None
-    for b in range(n_out):
-        yb = y[:, b]
-        first = True
-        for i in (0, 1):
-            for j in (0, 1):
-                c = e[b, j, i]  # p = sum_ij rho[i, j] E[j, i]
-                if c == 0:
-                    continue
-                v = x6[:, :, i, :, :, j, :]
-                if first:
-                    np.multiply(v, c, out=yb)
-                    first = False
-                else:
-                    if tmp is None:
-                        tmp = np.empty_like(yb)
-                    np.multiply(v, c, out=tmp)
-                    yb += tmp
-        if first:
-            yb[...] = 0
-    d = hi * lo
-    return y.reshape(bsz * n_out, d, d)
 
 
 def contraction_threads() -> int:
