@@ -45,6 +45,7 @@ from noiselab.mitigate.estimate import (
     estimate_variance,
     sample_distribution,
     single_shot_variance,
+    source_variances,
 )
 from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
 from noiselab.mitigate.target import assess_target
@@ -501,11 +502,41 @@ class EstimateMemo:
 
     def __init__(self) -> None:
         self._entries: dict[tuple[Any, ...], _MemoEntry] = {}
+        # id -> (estimate, single-shot variance per source); the estimate keeps the id unique
+        self._variances: dict[int, tuple[Estimate, dict[Any, float]]] = {}
         self.hits = 0
         self.misses = 0
 
     def __len__(self) -> int:
         return len(self._entries)
+
+    def _source_variances(
+        self, est: Estimate, probs: Mapping[Any, np.ndarray]
+    ) -> dict[Any, float]:
+        """:func:`source_variances` of a stored estimate on the exact distributions (which
+        every recipe of the job shares), computed once per estimate."""
+        hit = self._variances.get(id(est))
+        if hit is None or hit[0] is not est:
+            hit = (est, source_variances(est, probs))
+            self._variances[id(est)] = hit
+        return hit[1]
+
+
+def _variance_from_sources(
+    svars: Mapping[Any, float], shots: Mapping[Any, int | None]
+) -> float:
+    """sum_sources Var_p(u) / N from single-shot variances (as :func:`estimate_variance`)."""
+    total = 0.0
+    for k, var in svars.items():
+        n = shots.get(k)
+        if n is None:
+            continue
+        if n <= 0:
+            if var > 0:
+                return float("inf")
+            continue
+        total += var / n
+    return total
 
 
 @dataclass(frozen=True, eq=False)
@@ -767,9 +798,13 @@ def run_recipe(
     per = {}
     for v in variants:
         e_v = per_variant_std[v]
+        if memo is not None and not sampled:  # exact inputs: the same for every recipe
+            svars = memo._source_variances(e_v, probs_for_std)
+        else:
+            svars = source_variances(e_v, probs_for_std)
         per[v.label()] = {
             "energy_ha": float(ev.per_variant[v].value),
-            "std_mha": math.sqrt(estimate_variance(e_v, probs_for_std, all_shots)) * HA_TO_MHA,
+            "std_mha": math.sqrt(_variance_from_sources(svars, all_shots)) * HA_TO_MHA,
             "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
             "scale": float(actual_scale(ctx, v)),
             "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
