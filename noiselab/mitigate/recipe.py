@@ -19,7 +19,7 @@ import json
 import math
 import zlib
 from collections.abc import Callable, Mapping, Sequence
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
@@ -48,6 +48,7 @@ from noiselab.mitigate.estimate import (
     source_variances,
 )
 from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
+from noiselab.mitigate.result import RecipeResult, plain_json
 from noiselab.mitigate.target import assess_target
 from noiselab.mitigate.variants import CircuitVariant
 
@@ -390,51 +391,6 @@ def parse_recipe(
 # ---- result -----------------------------------------------------------------------------------
 
 
-@dataclass(frozen=True, eq=False)
-class RecipeResult:
-    """Outcome of one recipe on one experiment (energies in Ha, biases and stds in mHa).
-
-    ``bias_*_mha``: energy - reference (signed). ``std_mha``: standard error at the budget
-    (measurement shots and calibration shots). ``shots_total``: the measurement budget (the
-    calibration circuits' shots are in ``details["calibration_shots_total"]``).
-    ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
-    (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
-    ``p_within_target >= confidence`` (None when the bias prevents it).
-    """
-
-    recipe: str
-    spec: tuple[dict[str, Any], ...]
-    energy_ha: float
-    bias_exact_mha: float
-    bias_ansatz_mha: float
-    std_mha: float
-    shots_total: int
-    shots_per_circuit: dict[str, int]
-    n_circuits: int
-    engine_seconds: float
-    p_within_target: float
-    shots_needed: int | None
-    limited_by: Literal["bias", "calibration", "shots", "none"]
-    details: dict[str, Any] = field(default_factory=dict)
-    sampled: bool = False
-
-    def to_dict(self) -> dict[str, Any]:
-        return _jsonable(dataclasses.asdict(self))
-
-
-def _jsonable(x: Any) -> Any:
-    if isinstance(x, dict):
-        return {str(k): _jsonable(v) for k, v in x.items()}
-    if isinstance(x, list | tuple):
-        return [_jsonable(v) for v in x]
-    if isinstance(x, np.ndarray):
-        return _jsonable(x.tolist())
-    if isinstance(x, np.integer):
-        return int(x)
-    if isinstance(x, np.floating | float):
-        v = float(x)
-        return v if math.isfinite(v) else None
-    return x
 
 
 # ---- evaluation -------------------------------------------------------------------------------
@@ -865,7 +821,7 @@ def run_recipe(
         p_within_target=verdict.p_within_target,
         shots_needed=verdict.shots_needed,
         limited_by=verdict.limited_by,
-        details=_jsonable(details),
+        details=plain_json(details),
         sampled=bool(sampled),
     )
 

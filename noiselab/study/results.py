@@ -15,33 +15,12 @@ from typing import Any
 import numpy as np
 
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.mitigate.result import RecipeResult
 
 CAUTION = (
     "Caution: this prediction is only as good as the device noise model; real devices drift "
     "and have errors a profile does not describe."
 )
-
-
-@dataclasses.dataclass(frozen=True)
-class StoredRecipe:
-    """A recipe result read back from the results cache: the fields of mitigate's RecipeResult
-    (energies in Ha, biases and standard errors in mHa), without importing that layer."""
-
-    recipe: str
-    spec: tuple[dict[str, Any], ...]
-    energy_ha: float
-    bias_exact_mha: float
-    bias_ansatz_mha: float
-    std_mha: float
-    shots_total: int
-    shots_per_circuit: dict[str, int]
-    n_circuits: int
-    engine_seconds: float
-    p_within_target: float
-    shots_needed: int | None
-    limited_by: str
-    details: dict[str, Any] = dataclasses.field(default_factory=dict)
-    sampled: bool = False
 
 
 @dataclasses.dataclass(frozen=True)
@@ -364,7 +343,7 @@ class AssessResult:
             confidence=rec["confidence"],
             shots=rec["shots"],
             seed=rec["seed"],
-            recipes={n: _rebuild(StoredRecipe, r) for n, r in rec["recipes"].items()},
+            recipes={n: _rebuild(RecipeResult, r) for n, r in rec["recipes"].items()},
             passes={n: tuple(p) for n, p in rec["passes"].items()},
             best_recipe=rec["best_recipe"],
             reachable=rec["reachable"],
@@ -560,7 +539,7 @@ class TuneResult:
                 label=e["label"],
                 setting=e["setting"],
                 passes=tuple(e["passes"]),
-                result=_rebuild(StoredRecipe, e["result"]),
+                result=_rebuild(RecipeResult, e["result"]),
             )
             for e in rec["entries"]
         )

@@ -1,0 +1,58 @@
+"""The record every recipe returns (numpy only, so reading results back stays cheap)."""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+from dataclasses import dataclass, field
+from typing import Any, Literal
+
+import numpy as np
+
+
+@dataclass(frozen=True, eq=False)
+class RecipeResult:
+    """Outcome of one recipe on one experiment (energies in Ha, biases and stds in mHa).
+
+    ``bias_*_mha``: energy - reference (signed). ``std_mha``: standard error at the budget
+    (measurement shots and calibration shots). ``shots_total``: the measurement budget (the
+    calibration circuits' shots are in ``details["calibration_shots_total"]``).
+    ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
+    (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
+    ``p_within_target >= confidence`` (None when the bias prevents it).
+    """
+
+    recipe: str
+    spec: tuple[dict[str, Any], ...]
+    energy_ha: float
+    bias_exact_mha: float
+    bias_ansatz_mha: float
+    std_mha: float
+    shots_total: int
+    shots_per_circuit: dict[str, int]
+    n_circuits: int
+    engine_seconds: float
+    p_within_target: float
+    shots_needed: int | None
+    limited_by: Literal["bias", "calibration", "shots", "none"]
+    details: dict[str, Any] = field(default_factory=dict)
+    sampled: bool = False
+
+    def to_dict(self) -> dict[str, Any]:
+        return plain_json(dataclasses.asdict(self))
+
+
+def plain_json(x: Any) -> Any:
+    """Dicts, lists, numpy scalars and arrays as plain JSON values (non-finite floats as None)."""
+    if isinstance(x, dict):
+        return {str(k): plain_json(v) for k, v in x.items()}
+    if isinstance(x, list | tuple):
+        return [plain_json(v) for v in x]
+    if isinstance(x, np.ndarray):
+        return plain_json(x.tolist())
+    if isinstance(x, np.integer):
+        return int(x)
+    if isinstance(x, np.floating | float):
+        v = float(x)
+        return v if math.isfinite(v) else None
+    return x
