@@ -450,13 +450,9 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
 
 def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
     """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
-    if molecule.active_space is not None:
-        n_orb = molecule.active_space.orbitals
-    else:
-        from noiselab.chem.molecule import _count_orbitals
+    from noiselab.chem.molecule import count_orbitals
 
-        n_orb = _count_orbitals(molecule.geometry, molecule.basis, molecule.charge, molecule.spin)
-    n = 2 * n_orb
+    n = 2 * count_orbitals(molecule)
     return n - 2 if two_qubit_reduction and encoding == "parity" else n
 
 
