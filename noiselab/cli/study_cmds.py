@@ -206,9 +206,19 @@ def _context_lines(ctx: Any) -> list[str]:
         f"Study {c.study}: {c.qubits} qubits ({c.encoding}), {c.ansatz} ansatz with "
         f"{c.n_parameters} parameters, device {c.device} (patch {list(c.patch)}, "
         f"{c.two_qubit_count} two-qubit gates, {c.duration_ns / 1000:.2f} us)",
-        f"Energies (Ha): exact {c.exact_energy_ha:.6f}, Hartree-Fock {c.hf_energy_ha:.6f}, "
-        f"noiseless ansatz {c.ansatz_energy_ha:.6f} ({c.ansatz_error_mha:+.3f} mHa from exact)",
+        f"Energies (Ha): exact {c.exact_energy_ha:.6f}{_spin(c.exact_spin_squared)}, "
+        f"Hartree-Fock {c.hf_energy_ha:.6f}, noiseless ansatz {c.ansatz_energy_ha:.6f} "
+        f"({c.ansatz_error_mha:+.3f} mHa from exact{_spin(c.ansatz_spin_squared, ', ')}; "
+        f"{c.optimizer_starts} optimizer start(s))",
+        *(f"Warning: {w}" for w in getattr(c, "warnings", ())),
     ]
+
+
+def _spin(s2: float | None, sep: str = " ") -> str:
+    """' (S^2 0.000)' beside an energy; empty when unknown."""
+    if s2 is None:
+        return ""
+    return f"{sep}S^2 {s2:.3f}" if sep != " " else f" (S^2 {s2:.3f})"
 
 
 def _write_assess_outputs(result: Any, out: Path) -> list[Path]:

@@ -164,6 +164,7 @@ def assess(
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
+    verdict = with_optimizer_caveat(verdict, ctx.warnings)
     stats = RunStats(
         simulations=runner.simulations,
         cache_hits=runner.cache_hits,
@@ -188,6 +189,17 @@ def assess(
     if key is not None:
         store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
     return result
+
+
+def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:
+    """The verdict, plus one sentence when the noiseless optimum is in doubt (biases are
+    measured against the exact energy, so an optimizer failure would read as device bias)."""
+    if not warnings:
+        return verdict
+    return (
+        f"{verdict} Caveat: the noiseless optimum is in doubt ({len(warnings)} optimizer "
+        "warning(s)); part of every bias may be the optimizer's, not the device's."
+    )
 
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:

@@ -18,7 +18,7 @@ from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_recor
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
 
-OPTIMUM_KIND = "noiseless-optimum-v1"
+OPTIMUM_KIND = "noiseless-optimum-v2"
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -41,6 +41,10 @@ class StudyContext:
     #: switched to trajectories.
     emulation_method: str = "density_matrix"
     emulation_notice: str | None = None
+    #: <S^2> of the exact sector ground state (noiselab.chem.spin), beside the exact energy
+    exact_spin_squared: float | None = None
+    #: one-line warnings about the noiseless optimum (noiselab.chem.optimize.optimum_warnings)
+    warnings: tuple[str, ...] = ()
 
     @property
     def exact_energy_ha(self) -> float:
@@ -74,6 +78,11 @@ class StudyContext:
                 None if c.estimated_fidelity is None else float(c.estimated_fidelity)
             ),
             n_groups=int(self.plan.n_groups),
+            exact_spin_squared=self.exact_spin_squared,
+            ansatz_spin_squared=getattr(self.optimum, "spin_squared", None),
+            optimizer_starts=int(getattr(self.optimum, "starts", 1)),
+            optimizer_stopped=str(getattr(self.optimum, "stopped", "")),
+            warnings=tuple(self.warnings),
         )
 
 
@@ -100,8 +109,7 @@ def _optimum_key(study: Study) -> str:
         study.molecule.model_dump(mode="json"),
         study.encoding,
         study.two_qubit_reduction,
-        study.ansatz.model_dump(mode="json"),
-        study.seed,
+        study.ansatz.model_dump(mode="json"),  # start_seed included; the study's seed is not
     )
 
 
@@ -123,8 +131,9 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
         qubit_problem,
         circuit,
         starts=study.ansatz.starts,
-        seed=study.seed,
+        seed=study.ansatz.start_seed,
         max_iterations=study.ansatz.max_iterations,
+        max_starts=study.ansatz.max_starts,
     )
     if cache is not None:
         cache.put(OPTIMUM_KIND, key, pack_record(result), result.seconds)
@@ -184,6 +193,7 @@ def build_context(
     t = time.perf_counter()
     circuit = ansatz_circuit(study, qp)
     optimum = optimize(study, qp, circuit, cache)
+    exact_s2, warnings = optimum_checks(study, qp, optimum)
     seconds["optimize"] = time.perf_counter() - t
     tick(2)
     t = time.perf_counter()
@@ -220,7 +230,26 @@ def build_context(
         seconds=seconds,
         emulation_method=method,
         emulation_notice=notice,
+        exact_spin_squared=exact_s2,
+        warnings=warnings,
     )
+
+
+def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, tuple[str, ...]]:
+    """(exact ground state's <S^2>, warnings about the noiseless optimum against the target).
+
+    The exact S^2 needs the sector ground state; past the exact-diagonalization limit it is
+    None and the spin check is skipped.
+    """
+    from noiselab.chem.optimize import optimum_warnings
+    from noiselab.chem.spin import exact_spin_squared
+    from noiselab.common.errors import ProblemTooLargeError
+
+    try:
+        s2: float | None = exact_spin_squared(qp)
+    except ProblemTooLargeError:
+        s2 = None
+    return s2, optimum_warnings(optimum, qp, float(study.target_mha), s2)
 
 
 def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:

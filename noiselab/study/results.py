@@ -67,6 +67,11 @@ class ContextSummary:
     duration_ns: float
     estimated_fidelity: float | None
     n_groups: int
+    exact_spin_squared: float | None = None  # <S^2> of the exact ground state
+    ansatz_spin_squared: float | None = None  # <S^2> of the trial state at the optimum
+    optimizer_starts: int = 1
+    optimizer_stopped: str = ""  # noiselab.chem.optimize.STOP_REASONS
+    warnings: tuple[str, ...] = ()  # about the noiseless optimum
 
     @property
     def ansatz_error_mha(self) -> float:
@@ -84,9 +89,13 @@ class ContextSummary:
             "ansatz": self.ansatz,
             "n_parameters": self.n_parameters,
             "exact_energy": self.exact_energy_ha,
+            "exact_spin_squared": self.exact_spin_squared,
             "hartree_fock_energy": self.hf_energy_ha,
             "ansatz_energy": self.ansatz_energy_ha,
             "ansatz_error_mha": self.ansatz_error_mha,
+            "ansatz_spin_squared": self.ansatz_spin_squared,
+            "optimizer": {"starts": self.optimizer_starts, "stopped": self.optimizer_stopped},
+            "warnings": list(self.warnings),
             "compiled": {
                 "patch": list(self.patch),
                 "two_qubit_count": self.two_qubit_count,
@@ -96,6 +105,14 @@ class ContextSummary:
             },
             "measurement_groups": self.n_groups,
         }
+
+
+def context_from_record(data: Mapping[str, Any]) -> ContextSummary:
+    """A ContextSummary from its ``asdict`` form (tuple fields restored)."""
+    ctx = dict(data)
+    ctx["patch"] = tuple(ctx["patch"])
+    ctx["warnings"] = tuple(ctx.get("warnings", ()))
+    return ContextSummary(**ctx)
 
 
 def rank_key(result: Any) -> tuple[float, float]:
@@ -335,10 +352,9 @@ class AssessResult:
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> AssessResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
+        ctx = context_from_record(rec["context"])
         return cls(
-            context=ContextSummary(**ctx),
+            context=ctx,
             target_mha=rec["target_mha"],
             confidence=rec["confidence"],
             shots=rec["shots"],
@@ -531,8 +547,7 @@ class TuneResult:
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> TuneResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
+        ctx = context_from_record(rec["context"])
         entries = tuple(
             TuneEntry(
                 rank=e["rank"],
@@ -544,7 +559,7 @@ class TuneResult:
             for e in rec["entries"]
         )
         return cls(
-            context=ContextSummary(**ctx),
+            context=ctx,
             target_mha=rec["target_mha"],
             confidence=rec["confidence"],
             shots=rec["shots"],

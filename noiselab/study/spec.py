@@ -38,6 +38,21 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
 
 
+def _starts_within_cap(ansatz: Any) -> Any:
+    """``starts`` (the least number of optimizer starts) must not exceed ``max_starts``.
+
+    More starts than ``starts`` run until the two lowest agree (noiselab.chem.optimize);
+    ``start_seed`` seeds the random starts, apart from the study's ``seed`` so that ``--seed``
+    never moves the noiseless optimum.
+    """
+    if ansatz.starts > ansatz.max_starts:
+        raise ValueError(
+            f"max_starts: {ansatz.max_starts} is fewer than starts ({ansatz.starts}); "
+            "allowed: max_starts >= starts"
+        )
+    return ansatz
+
+
 class UccsdAnsatz(_Strict):
     """Unitary coupled cluster (first-order Trotterized), singles and doubles, from Hartree-Fock."""
 
@@ -45,7 +60,13 @@ class UccsdAnsatz(_Strict):
     singles: StrictBool = True
     doubles: StrictBool = True
     starts: StrictInt = Field(default=1, ge=1, le=32, description="optimizer starting points")
+    max_starts: StrictInt = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: StrictInt = Field(default=0, ge=0, lt=2**32, description="random starts' seed")
     max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+
+    @model_validator(mode="after")
+    def _check_starts(self) -> UccsdAnsatz:
+        return _starts_within_cap(self)
 
     def label(self) -> str:
         parts = "".join(c for c, on in (("S", self.singles), ("D", self.doubles)) if on)
@@ -60,7 +81,13 @@ class LayeredAnsatz(_Strict):
     pairs: Literal["linear", "ring", "all"] | list[tuple[StrictInt, StrictInt]] = "linear"
     entangler: Literal["cz", "cx"] = "cz"
     starts: StrictInt = Field(default=3, ge=1, le=32, description="optimizer starting points")
+    max_starts: StrictInt = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: StrictInt = Field(default=0, ge=0, lt=2**32, description="random starts' seed")
     max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+
+    @model_validator(mode="after")
+    def _check_starts(self) -> LayeredAnsatz:
+        return _starts_within_cap(self)
 
     def label(self) -> str:
         pairs = self.pairs if isinstance(self.pairs, str) else "custom"
