@@ -21,6 +21,8 @@ _EXPORTS = {
     "CompiledCircuit": "compile",
     "build_target": "compile",
     "compile_to_device": "compile",
+    "compile_ensemble": "compile",
+    "CompileEnsemble": "compile",
     "select_patch": "compile",
 }
 

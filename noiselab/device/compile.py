@@ -294,22 +294,119 @@ def compile_to_device(
     level 1 and above, Pauli exponentials are synthesized before routing
     (:func:`synthesize_abstract`); level 0 transpiles the circuit as given.
     """
-    from qiskit import transpile
-    from qiskit.transpiler.exceptions import TranspilerError
+    return compile_ensemble(circuit, profile, layout, optimization_level, (seed,)).chosen
 
+
+@dataclass(frozen=True)
+class CompileEnsemble:
+    """One circuit compiled with several transpiler seeds, and the compile an experimenter
+    would run: fewest two-qubit gates, then shortest schedule, then the earliest seed."""
+
+    seeds: tuple[int, ...]
+    compiles: tuple[CompiledCircuit, ...]  # one per seed
+    chosen_index: int
+    #: index of the first compile of each distinct compiled circuit (seed order)
+    distinct: tuple[int, ...]
+
+    @property
+    def chosen(self) -> CompiledCircuit:
+        return self.compiles[self.chosen_index]
+
+    @property
+    def chosen_seed(self) -> int:
+        return self.seeds[self.chosen_index]
+
+    @property
+    def alternatives(self) -> tuple[CompiledCircuit, ...]:
+        """The distinct compiles other than the chosen one's circuit."""
+        mine = circuit_fingerprint(self.chosen)
+        return tuple(
+            self.compiles[i] for i in self.distinct if circuit_fingerprint(self.compiles[i]) != mine
+        )
+
+
+def circuit_fingerprint(compiled: CompiledCircuit) -> str:
+    """Digest of a compiled circuit's instructions (names, qubits, parameters to 12 digits) and
+    of its logical-to-circuit map: equal for compiles that run the same experiment."""
+    import hashlib
+
+    h = hashlib.sha256(repr(compiled.logical_to_circuit).encode())
+    circuit = compiled.circuit
+    for inst in circuit.data:
+        qubits = tuple(circuit.find_bit(q).index for q in inst.qubits)
+        params = tuple(
+            f"{float(p):.12g}" if isinstance(p, int | float) else str(p)
+            for p in inst.operation.params
+        )
+        h.update(repr((inst.operation.name, qubits, params)).encode())
+    return h.hexdigest()
+
+
+def choose_compile(compiles: Sequence[CompiledCircuit]) -> int:
+    """Index of the compile an experimenter would pick: fewest two-qubit gates, then shortest
+    schedule (to 1e-6 ns), then the first."""
+    return min(
+        range(len(compiles)),
+        key=lambda i: (compiles[i].two_qubit_count, round(compiles[i].duration_ns, 6), i),
+    )
+
+
+def compile_ensemble(
+    circuit: Any,
+    profile: DeviceProfile,
+    layout: Sequence[int] | None = None,
+    optimization_level: int = 2,
+    seeds: Sequence[int] = tuple(range(8)),
+) -> CompileEnsemble:
+    """:func:`compile_to_device` with each transpiler seed (patch selection and the abstract
+    synthesis are shared), the chosen compile (:func:`choose_compile`) and the distinct ones."""
     if optimization_level not in (0, 1, 2, 3):
         raise input_error(
             None, "optimization_level", f"{optimization_level!r} is not allowed", "0, 1, 2 or 3"
         )
+    seeds = tuple(int(s) for s in seeds)
+    if not seeds:
+        raise input_error(None, "compile.seeds", "no seed", "at least one transpiler seed")
     circ = _prepare(circuit)
-    n = circ.num_qubits
-    patch = select_patch(profile, n, layout)
+    patch = select_patch(profile, circ.num_qubits, layout)
     target = build_target(profile, patch)
+    source = synthesize_abstract(circ) if optimization_level >= 1 else circ
+    compiles = tuple(
+        _transpile_one(
+            source, circ, profile, patch, target, layout is not None, optimization_level, seed
+        )
+        for seed in seeds
+    )
+    first: dict[str, int] = {}
+    for i, c in enumerate(compiles):
+        first.setdefault(circuit_fingerprint(c), i)
+    return CompileEnsemble(
+        seeds=seeds,
+        compiles=compiles,
+        chosen_index=choose_compile(compiles),
+        distinct=tuple(sorted(first.values())),
+    )
+
+
+def _transpile_one(
+    source: Any,
+    circ: Any,
+    profile: DeviceProfile,
+    patch: tuple[int, ...],
+    target: Any,
+    fixed_layout: bool,
+    optimization_level: int,
+    seed: int,
+) -> CompiledCircuit:
+    from qiskit import transpile
+    from qiskit.transpiler.exceptions import TranspilerError
+
+    n = circ.num_qubits
     try:
         out = transpile(
-            synthesize_abstract(circ) if optimization_level >= 1 else circ,
+            source,
             target=target,
-            initial_layout=list(range(n)) if layout is not None else None,
+            initial_layout=list(range(n)) if fixed_layout else None,
             optimization_level=optimization_level,
             seed_transpiler=seed,
             scheduling_method="alap",

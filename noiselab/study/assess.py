@@ -15,6 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
+from noiselab.study.compiles import bias_spread
 from noiselab.study.context import (
     StudyContext,
     build_context,
@@ -160,15 +161,16 @@ def assess(
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
     results = run_recipes(ctx, study.recipes, runner, progress)
+    spread = bias_spread(ctx, study.recipes, results, store, run_recipes)
     best = best_of(results)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
     verdict = with_optimizer_caveat(verdict, ctx.warnings)
     stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
+        simulations=runner.simulations + spread.simulations,
+        cache_hits=runner.cache_hits + spread.cache_hits,
+        engine_seconds=runner.engine_seconds + spread.engine_seconds,
         wall_seconds=time.perf_counter() - t0,
     )
     result = AssessResult(
@@ -185,6 +187,7 @@ def assess(
         stats=stats,
         emulation_method=ctx.emulation_method,
         emulation_notice=ctx.emulation_notice,
+        bias_spread_mha=spread.spread_mha,
     )
     if key is not None:
         store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)

@@ -2,7 +2,9 @@
 
 Steps: PySCF problem and exact energy -> qubit Hamiltonian -> trial circuit -> noiseless optimum
 (cached in the results cache: it is the slow step for larger ansatzes) -> compiled, scheduled
-circuit on the device -> measurement plan -> mitigation's ``ExperimentContext``.
+circuit on the device (every transpiler seed of ``compile.seeds``; the one with the fewest
+two-qubit gates, then the shortest schedule, is assessed) -> measurement plan -> mitigation's
+``ExperimentContext``.
 """
 
 from __future__ import annotations
@@ -45,6 +47,9 @@ class StudyContext:
     exact_spin_squared: float | None = None
     #: one-line warnings about the noiseless optimum (noiselab.chem.optimize.optimum_warnings)
     warnings: tuple[str, ...] = ()
+    #: every transpiler seed's compile (noiselab.device.compile.CompileEnsemble); ``compiled``
+    #: is its chosen one
+    ensemble: Any = None
 
     @property
     def exact_energy_ha(self) -> float:
@@ -83,6 +88,7 @@ class StudyContext:
             optimizer_starts=int(getattr(self.optimum, "starts", 1)),
             optimizer_stopped=str(getattr(self.optimum, "stopped", "")),
             warnings=tuple(self.warnings),
+            **compile_fields(self.ensemble),
         )
 
 
@@ -168,7 +174,7 @@ def build_context(
         verification = recipes_verify(study.recipes.values())
     from noiselab.chem.encode import encode
     from noiselab.chem.molecule import compute_problem
-    from noiselab.device.compile import compile_to_device
+    from noiselab.device.compile import compile_ensemble
     from noiselab.mitigate.plan import build_plan
 
     steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
@@ -199,18 +205,19 @@ def build_context(
     t = time.perf_counter()
     bound = circuit.assign_parameters(list(optimum.parameters), inplace=False)
     try:
-        compiled = compile_to_device(
+        ensemble = compile_ensemble(
             bound,
             study.profile,
             layout=study.layout,
             optimization_level=study.optimization_level,
-            seed=study.seed,
+            seeds=study.transpiler_seeds,
         )
     except InputError as exc:
         text = str(exc)
         if study.layout is not None and "layout: " in text:  # the study's key, not the profile's
             raise InputError(f"{study.source}: layout: {text.split('layout: ', 1)[1]}") from None
         raise
+    compiled = ensemble.chosen
     plan = build_plan(qp.hamiltonian)
     seconds["compile"] = time.perf_counter() - t
     tick(3)
@@ -232,7 +239,21 @@ def build_context(
         emulation_notice=notice,
         exact_spin_squared=exact_s2,
         warnings=warnings,
+        ensemble=ensemble,
     )
+
+
+def compile_fields(ensemble: Any) -> dict[str, Any]:
+    """ContextSummary's compile-ensemble fields (empty without an ensemble)."""
+    if ensemble is None:
+        return {}
+    return {
+        "compile_seeds": tuple(ensemble.seeds),
+        "compile_two_qubit_gates": tuple(int(c.two_qubit_count) for c in ensemble.compiles),
+        "compile_durations_ns": tuple(float(c.duration_ns) for c in ensemble.compiles),
+        "chosen_seed": int(ensemble.chosen_seed),
+        "distinct_compiles": len(ensemble.distinct),
+    }
 
 
 def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, tuple[str, ...]]:

@@ -72,6 +72,11 @@ class ContextSummary:
     optimizer_starts: int = 1
     optimizer_stopped: str = ""  # noiselab.chem.optimize.STOP_REASONS
     warnings: tuple[str, ...] = ()  # about the noiseless optimum
+    compile_seeds: tuple[int, ...] = ()  # transpiler seeds tried
+    compile_two_qubit_gates: tuple[int, ...] = ()  # per seed
+    compile_durations_ns: tuple[float, ...] = ()  # per seed
+    chosen_seed: int | None = None
+    distinct_compiles: int = 1
 
     @property
     def ansatz_error_mha(self) -> float:
@@ -103,6 +108,13 @@ class ContextSummary:
                 "duration_ns": self.duration_ns,
                 "estimated_fidelity": self.estimated_fidelity,
             },
+            "compile": {
+                "seeds_tried": list(self.compile_seeds),
+                "two_qubit_gates": list(self.compile_two_qubit_gates),
+                "duration_ns": list(self.compile_durations_ns),
+                "chosen_seed": self.chosen_seed,
+                "distinct_circuits": self.distinct_compiles,
+            },
             "measurement_groups": self.n_groups,
         }
 
@@ -111,7 +123,8 @@ def context_from_record(data: Mapping[str, Any]) -> ContextSummary:
     """A ContextSummary from its ``asdict`` form (tuple fields restored)."""
     ctx = dict(data)
     ctx["patch"] = tuple(ctx["patch"])
-    ctx["warnings"] = tuple(ctx.get("warnings", ()))
+    for key in ("warnings", "compile_seeds", "compile_two_qubit_gates", "compile_durations_ns"):
+        ctx[key] = tuple(ctx.get(key, ()))
     return ContextSummary(**ctx)
 
 
@@ -260,6 +273,8 @@ TABLE_HEADERS = (
 )
 #: Extra assess column when the trajectory method was used (its own statistical error).
 TRAJECTORY_HEADER = "trajectory error (mHa)"
+#: Assess column after the bias: max - min bias over the distinct compiles of the seed ensemble.
+SPREAD_HEADER = "compile spread (mHa)"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -287,6 +302,8 @@ class AssessResult:
     caution: str = CAUTION
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None  # why auto switched to trajectories
+    #: per recipe, max - min bias over the distinct compiles (None: not computed)
+    bias_spread_mha: dict[str, float | None] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -317,7 +334,11 @@ class AssessResult:
                     "shots": "total per estimate",
                 },
                 "recipes": {
-                    name: recipe_json(r, self.passes.get(name)) for name, r in self.recipes.items()
+                    name: {
+                        **recipe_json(r, self.passes.get(name)),
+                        "bias_spread_mha": self.bias_spread_mha.get(name),
+                    }
+                    for name, r in self.recipes.items()
                 },
                 "best_recipe": self.best_recipe,
                 "reachable": self.reachable,
@@ -346,6 +367,7 @@ class AssessResult:
                 "caution": self.caution,
                 "emulation_method": self.emulation_method,
                 "emulation_notice": self.emulation_notice,
+                "bias_spread_mha": self.bias_spread_mha,
             }
         )
 
@@ -368,17 +390,32 @@ class AssessResult:
             caution=rec["caution"],
             emulation_method=rec.get("emulation_method", "density_matrix"),
             emulation_notice=rec.get("emulation_notice"),
+            bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
         )
 
+    @property
+    def has_spread(self) -> bool:
+        """Whether the bias spread over compiles was computed (the table shows its column)."""
+        return any(v is not None for v in self.bias_spread_mha.values())
+
     def table_headers(self) -> tuple[str, ...]:
-        """TABLE_HEADERS, plus the trajectory-error column when trajectories were used."""
-        return (*TABLE_HEADERS, TRAJECTORY_HEADER) if self.uses_trajectories else TABLE_HEADERS
+        """TABLE_HEADERS (with the compile-spread column after the bias when computed), plus
+        the trajectory-error column when trajectories were used."""
+        head = TABLE_HEADERS
+        if self.has_spread:
+            i = head.index("bias (mHa)") + 1
+            head = (*head[:i], SPREAD_HEADER, *head[i:])
+        return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
         """Rows for :meth:`table_headers`, formatted for people."""
         rows = []
         for name, r in self.recipes.items():
             row = _row(name, r)
+            if self.has_spread:
+                i = TABLE_HEADERS.index("bias (mHa)") + 1
+                s = self.bias_spread_mha.get(name)
+                row = (*row[:i], "-" if s is None else f"{s:.3f}", *row[i:])
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -403,6 +440,9 @@ class AssessResult:
                     "limited_by": str(r.limited_by),
                 }
             )
+            if self.has_spread:
+                s = self.bias_spread_mha.get(name)
+                rows[-1]["bias_spread_mha"] = "" if s is None else s
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 rows[-1]["trajectory_std_mha"] = "" if t is None else t

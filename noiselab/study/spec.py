@@ -109,9 +109,18 @@ ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": Lay
 
 
 class CompileOptions(_Strict):
-    """How the trial circuit is compiled to the device."""
+    """How the trial circuit is compiled to the device.
+
+    ``seeds``: the circuit is compiled with transpiler seeds 0..seeds-1 and the compile with the
+    fewest two-qubit gates (then the shortest schedule) is assessed; its own setting, not the
+    study's ``seed``, so that ``--seed`` never changes a bias. ``bias_spread``: assess also
+    computes every recipe's bias on the other distinct compiles (one extra simulation per
+    distinct compile and circuit variant; density-matrix emulation only).
+    """
 
     optimization_level: StrictInt = Field(default=2, ge=0, le=3)
+    seeds: StrictInt = Field(default=8, ge=1, le=64)
+    bias_spread: StrictBool = True
 
 
 class TuneGrid(_Strict):
@@ -324,6 +333,12 @@ class Study:
     description: str | None = None
     emulation: EmulationSettings = field(default_factory=EmulationSettings)
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
+    compile_seeds: int = 8  # transpiler seeds 0..compile_seeds-1
+    compile_bias_spread: bool = True
+
+    @property
+    def transpiler_seeds(self) -> tuple[int, ...]:
+        return tuple(range(self.compile_seeds))
 
     def with_seed(self, seed: int | None) -> Study:
         """The same study with another seed (None keeps the file's)."""
@@ -450,6 +465,8 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         device_source=device_source,
         layout=layout,
         optimization_level=spec.compile.optimization_level,
+        compile_seeds=spec.compile.seeds,
+        compile_bias_spread=spec.compile.bias_spread,
         shots=spec.shots,
         target_mha=float(spec.target_mha),
         confidence=float(spec.confidence),
