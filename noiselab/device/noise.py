@@ -193,7 +193,16 @@ def channel_from_noise(
     key = _noise_key(profile, noise, parts)
     if _is_noiseless(key):
         return _identity_error(len(noise.qubits))
-    return QuantumError(Kraus(_noise_superop(*key)))
+    error = QuantumError(Kraus(_noise_superop(*key)))
+    # known not to be the identity (_is_noiseless): skip aer's ideal() test, which tries a
+    # Clifford conversion and formats every Kraus matrix into an exception message (most of the
+    # time of building a noise model); the instance attribute shadows the method
+    error.ideal = _not_ideal
+    return error
+
+
+def _not_ideal() -> bool:
+    return False
 
 
 def gate_channel(
