@@ -249,6 +249,17 @@ def assess_cmd(
     timings: TimingsOpt = False,
     method: MethodOpt = None,
     trajectories: TrajectoriesOpt = None,
+    drift: Annotated[
+        int | None,
+        typer.Option(
+            "--drift",
+            min=1,
+            max=1000,
+            help="Also assess every recipe on N device profiles drawn with the profile's drift: "
+            "spreads (seeded by the study's seed): how many drawn days reach the target.",
+            show_default=False,
+        ),
+    ] = None,
 ) -> None:
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
     from noiselab.study.assess import assess
@@ -264,6 +275,7 @@ def assess_cmd(
             progress=hook,
             method=method,
             trajectories=trajectories,
+            drift=drift,
         )
     emit_notice(result)
     written = _write_assess_outputs(result, out) if out is not None else []

@@ -32,6 +32,12 @@ A profile file looks like this (units are in the key names; rates are probabilit
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
       - {pair: [0, 1], joint_flip: 0.004}
+    drift:                               # optional; day-to-day relative standard deviations
+      t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
+      t2_rel_std: 0.2
+      single_qubit_error_rel_std: 0.2
+      two_qubit_error_rel_std: 0.2
+      readout_error_rel_std: 0.1
 
 Readout crosstalk model (``joint_flip`` c for a linked pair (a, b)): after the independent
 per-qubit assignment errors, with probability c both reported bits a and b are flipped
@@ -211,6 +217,25 @@ class CrosstalkEntry(BaseModel):
     joint_flip: JointFlip
 
 
+RelStd = _num(0.0, 2.0)
+
+
+class DriftSpec(BaseModel):
+    """Relative standard deviations of the device's values between calibrations ("days").
+
+    Defaults (common practice, no single source): T1 and T2 of superconducting qubits move by
+    tens of percent from day to day, gate errors by a similar relative amount, readout errors
+    less. Coherent terms (ZZ, over-rotation), readout crosstalk and durations do not drift.
+    """
+
+    model_config = _CFG
+    t1_rel_std: RelStd = 0.2
+    t2_rel_std: RelStd = 0.2
+    single_qubit_error_rel_std: RelStd = 0.2
+    two_qubit_error_rel_std: RelStd = 0.2
+    readout_error_rel_std: RelStd = 0.1
+
+
 class NativeGates(BaseModel):
     model_config = _CFG
     single_qubit: tuple[Literal["rz", "sx", "x"], ...]
@@ -266,6 +291,8 @@ class DeviceProfile(BaseModel):
     qubits: QubitSection
     couplers: PairSection
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
+    #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
+    drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
     _source: str = PrivateAttr(default="<profile>")
 
     @field_validator("name", mode="after")

@@ -648,3 +648,64 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
     return _save(fig, path)
+
+
+def plot_drift(assess_result: Any, path: str | Path) -> Path:
+    """Bias against the exact energy (mHa) on each drawn device day, per recipe: one dot per
+    day, a bar from the 5th to the 95th percentile, the nominal bias as a diamond, the target
+    as a green band and the days that reach the target above each recipe. Symmetric-log axis
+    (linear within the target) when the biases span more than a factor 30."""
+    from matplotlib.lines import Line2D
+    from matplotlib.patches import Patch
+
+    r = assess_result
+    target = float(r.target_mha)
+    names = [n for n in r.recipes if n in r.drift]
+    draws = max((r.drift[n].draws for n in names), default=0)
+    fig = _new_figure(max(5.5, 1.1 * len(names) + 3.0), 4.6)
+    ax = fig.add_subplot(1, 1, 1)
+    ax.axhspan(-target, target, color="tab:green", alpha=0.15, lw=0)
+    everything = [target]
+    for i, name in enumerate(names):
+        d = r.drift[name]
+        biases = list(d.biases_mha)
+        everything += [abs(b) for b in biases]
+        offsets = [((k * 0.618034) % 1.0 - 0.5) * 0.36 for k in range(len(biases))]
+        ax.scatter(
+            [i + o for o in offsets], biases, s=10, color="tab:blue", alpha=0.55, lw=0, zorder=3
+        )
+        ax.vlines(i, d.bias_mha_p05, d.bias_mha_p95, color="k", lw=2.2, zorder=4)
+        nominal = float(r.recipes[name].bias_exact_mha)
+        ax.plot([i], [nominal], marker="D", color="k", ms=5, zorder=5)
+        top = max(max(biases), nominal, target)
+        ax.annotate(
+            f"reaches {d.reaching}/{d.draws}",
+            (i, top),
+            textcoords="offset points",
+            xytext=(0, 5),
+            ha="center",
+            fontsize=7,
+        )
+    if _wide_range(everything):
+        ax.set_yscale("symlog", linthresh=target)
+    xs = list(range(len(names)))
+    many = len(names) > 4
+    ax.set_xticks(xs, names, rotation=20 if many else 0, ha="right" if many else "center")
+    ax.set_xlim(-0.6, len(names) - 0.4)
+    ax.margins(y=0.12)
+    ax.set_xlabel("mitigation recipe")
+    ax.set_ylabel("energy − exact energy (mHa)")
+    handles = [
+        Patch(color="tab:green", alpha=0.15, label=f"± {_target_label(target)}"),
+        Line2D([], [], ls="", marker="o", color="tab:blue", alpha=0.55, label="one drawn day"),
+        Line2D([], [], color="k", lw=2.2, label="5th-95th percentile"),
+        Line2D([], [], ls="", marker="D", color="k", label="nominal device"),
+    ]
+    ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
+    study, device = r.context.study, r.context.device
+    title = (
+        f"Bias over {draws} drawn device days; reaches: P(within target) >= "
+        f"{float(r.confidence):g} at the budget"
+    )
+    _decorate(fig, ax, title, study, device)
+    return _save(fig, path)

@@ -49,7 +49,8 @@ def write_budget_outputs(result: Any, out_dir: str | Path, stem: str = "budget")
 
 
 def write_assess_figures(result: Any, out_dir: str | Path) -> list[Path]:
-    """``assess-bias.png``/``.svg`` and, when a recipe extrapolates, ``assess-extrapolation``."""
+    """``assess-bias.png``/``.svg``, ``assess-extrapolation`` when a recipe extrapolates and
+    ``assess-drift`` after ``--drift``."""
     from noiselab.report.figures import extrapolation_data, plot_bias_bars, plot_extrapolation
 
     out = Path(out_dir)
@@ -61,5 +62,12 @@ def write_assess_figures(result: Any, out_dir: str | Path) -> list[Path]:
         written += [
             plot_extrapolation(result, out / "assess-extrapolation.png"),
             plot_extrapolation(result, out / "assess-extrapolation.svg"),
+        ]
+    if getattr(result, "drift", None):
+        from noiselab.report.figures import plot_drift
+
+        written += [
+            plot_drift(result, out / "assess-drift.png"),
+            plot_drift(result, out / "assess-drift.svg"),
         ]
     return written

@@ -22,6 +22,7 @@ from noiselab.study.context import (
     recipes_verify,
     with_verification,
 )
+from noiselab.study.drift import MAX_DRAWS, assess_drift, drift_sentence
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study, load_study
 
@@ -132,6 +133,7 @@ def assess(
     reuse: bool = True,
     method: str | None = None,
     trajectories: int | None = None,
+    drift: int | None = None,
 ) -> AssessResult:
     """Run every recipe of the study at its budget and name the best.
 
@@ -141,12 +143,20 @@ def assess(
     ``reuse``: return the stored result of an identical earlier assess of the same files (a
     study given as a path; False recomputes, still reading simulations from the cache).
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
+    ``drift``: also run every recipe on this many drawn device days (noiselab.study.drift).
     """
+    if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
+        from noiselab.common.errors import InputError
+
+        raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
+    drift = int(drift) if drift else 0
     t0 = time.perf_counter()
     store = _default_cache(cache)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
+        if drift:
+            options["drift"] = drift
         key = job_key("assess", study_or_path, options)
         hit = store.get(JOB_KIND, key) if key is not None else None
         if hit is not None:
@@ -162,15 +172,19 @@ def assess(
     runner = CachingRunner(ctx.experiment, store)
     results = run_recipes(ctx, study.recipes, runner, progress)
     spread = bias_spread(ctx, study.recipes, results, store, run_recipes)
+    days = assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
     best = best_of(results)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
+    if days is not None:
+        verdict = f"{verdict} {drift_sentence(best, days.stats[best], days.rel_std)}"
     verdict = with_optimizer_caveat(verdict, ctx.warnings)
+    extra = [r for r in (spread, days) if r is not None]
     stats = RunStats(
-        simulations=runner.simulations + spread.simulations,
-        cache_hits=runner.cache_hits + spread.cache_hits,
-        engine_seconds=runner.engine_seconds + spread.engine_seconds,
+        simulations=runner.simulations + sum(r.simulations for r in extra),
+        cache_hits=runner.cache_hits + sum(r.cache_hits for r in extra),
+        engine_seconds=runner.engine_seconds + sum(r.engine_seconds for r in extra),
         wall_seconds=time.perf_counter() - t0,
     )
     result = AssessResult(
@@ -188,6 +202,8 @@ def assess(
         emulation_method=ctx.emulation_method,
         emulation_notice=ctx.emulation_notice,
         bias_spread_mha=spread.spread_mha,
+        drift={} if days is None else days.stats,
+        drift_rel_std={} if days is None else days.rel_std,
     )
     if key is not None:
         store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)

@@ -275,6 +275,8 @@ TABLE_HEADERS = (
 TRAJECTORY_HEADER = "trajectory error (mHa)"
 #: Assess column after the bias: max - min bias over the distinct compiles of the seed ensemble.
 SPREAD_HEADER = "compile spread (mHa)"
+#: Assess column with --drift: drawn device days on which the recipe reaches the target.
+DRIFT_HEADER = "drift days reaching"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -304,6 +306,9 @@ class AssessResult:
     emulation_notice: str | None = None  # why auto switched to trajectories
     #: per recipe, max - min bias over the distinct compiles (None: not computed)
     bias_spread_mha: dict[str, float | None] = dataclasses.field(default_factory=dict)
+    #: per recipe, noiselab.study.drift.DriftStats over drawn device days (empty: no --drift)
+    drift: dict[str, Any] = dataclasses.field(default_factory=dict)
+    drift_rel_std: dict[str, float] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -337,6 +342,7 @@ class AssessResult:
                     name: {
                         **recipe_json(r, self.passes.get(name)),
                         "bias_spread_mha": self.bias_spread_mha.get(name),
+                        "drift": self.drift[name].to_json() if name in self.drift else None,
                     }
                     for name, r in self.recipes.items()
                 },
@@ -344,6 +350,7 @@ class AssessResult:
                 "reachable": self.reachable,
                 "verdict": self.verdict,
                 "caution": self.caution,
+                "drift_rel_std": self.drift_rel_std or None,
             }
         )
         if with_stats:
@@ -368,6 +375,8 @@ class AssessResult:
                 "emulation_method": self.emulation_method,
                 "emulation_notice": self.emulation_notice,
                 "bias_spread_mha": self.bias_spread_mha,
+                "drift": {n: dataclasses.asdict(d) for n, d in self.drift.items()},
+                "drift_rel_std": self.drift_rel_std,
             }
         )
 
@@ -391,6 +400,8 @@ class AssessResult:
             emulation_method=rec.get("emulation_method", "density_matrix"),
             emulation_notice=rec.get("emulation_notice"),
             bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
+            drift={n: _drift_stats(d) for n, d in (rec.get("drift") or {}).items()},
+            drift_rel_std=dict(rec.get("drift_rel_std") or {}),
         )
 
     @property
@@ -405,6 +416,8 @@ class AssessResult:
         if self.has_spread:
             i = head.index("bias (mHa)") + 1
             head = (*head[:i], SPREAD_HEADER, *head[i:])
+        if self.drift:
+            head = (*head, DRIFT_HEADER)
         return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
@@ -416,6 +429,9 @@ class AssessResult:
                 i = TABLE_HEADERS.index("bias (mHa)") + 1
                 s = self.bias_spread_mha.get(name)
                 row = (*row[:i], "-" if s is None else f"{s:.3f}", *row[i:])
+            if self.drift:
+                d = self.drift.get(name)
+                row = (*row, "-" if d is None else f"{d.reaching}/{d.draws}")
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -443,10 +459,20 @@ class AssessResult:
             if self.has_spread:
                 s = self.bias_spread_mha.get(name)
                 rows[-1]["bias_spread_mha"] = "" if s is None else s
+            if name in self.drift:
+                rows[-1].update(
+                    {f"drift_{k}": v for k, v in self.drift[name].to_json().items()}
+                )
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 rows[-1]["trajectory_std_mha"] = "" if t is None else t
         return rows
+
+
+def _drift_stats(data: Mapping[str, Any]) -> Any:
+    from noiselab.study.drift import DriftStats
+
+    return _rebuild(DriftStats, data)
 
 
 def _rebuild(cls: Any, data: Mapping[str, Any]) -> Any:
