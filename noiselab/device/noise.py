@@ -82,8 +82,12 @@ def gate_noise(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> Gate
     return GateNoise(gate, qubits, duration_ns, quoted, r_relax, p, quoted < r_relax, zz, over)
 
 
+@functools.lru_cache(maxsize=8192)
 def relaxation_error(t_ns: float, t1_us: float | None, t2_us: float | None) -> Any:
-    """qiskit-aer thermal relaxation (to |0>) over ``t_ns``; ``None`` for infinite coherence."""
+    """qiskit-aer thermal relaxation (to |0>) over ``t_ns``; ``None`` for infinite coherence.
+
+    Cached (the idle pass asks for the same few delay lengths on every run); callers must not
+    modify the returned error."""
     from qiskit_aer.noise import thermal_relaxation_error
 
     if t_ns <= 0.0 or (t1_us is None and t2_us is None):

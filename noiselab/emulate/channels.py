@@ -79,14 +79,28 @@ def native_basis_change(
     )
 
 
-def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+@lru_cache(maxsize=1)
+def _gate_mapping() -> dict[str, object]:
+    """qiskit's standard gates by name (building the mapping costs about a millisecond)."""
     from qiskit.circuit.library import get_standard_gate_name_mapping
+
+    return get_standard_gate_name_mapping()
+
+
+def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+    return _gate_superop_cached(name, tuple(float(p) for p in params))
+
+
+@lru_cache(maxsize=4096)
+def _gate_superop_cached(name: str, params: tuple[float, ...]) -> np.ndarray:
     from qiskit.quantum_info import SuperOp
 
-    gate = get_standard_gate_name_mapping()[name]
+    gate = _gate_mapping()[name]
     if params:
         gate = gate.__class__(*params)
-    return SuperOp(gate).data
+    out = SuperOp(gate).data
+    out.setflags(write=False)  # shared between callers
+    return out
 
 
 def _error_superop(noise_model: object, name: str, qubit: int) -> np.ndarray | None:
@@ -123,7 +137,6 @@ def qubit_layer_superop(
     ``noisy=False`` only the unitaries are kept.
     """
     from qiskit import QuantumCircuit
-    from qiskit.circuit.library import get_standard_gate_name_mapping
     from qiskit.quantum_info import SuperOp
 
     own = sum(spec.duration_ns(g, qubit) for g, _ in gates)
@@ -131,7 +144,7 @@ def qubit_layer_superop(
     idle = layer_ns - own
     if idle > 1e-9:
         qc.delay(idle, qubit, unit="ns")
-    mapping = get_standard_gate_name_mapping()
+    mapping = _gate_mapping()
     for name, params in gates:
         gate = mapping[name]
         qc.append(gate.__class__(*params) if params else gate, [qubit])

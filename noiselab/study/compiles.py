@@ -18,6 +18,7 @@ from collections.abc import Callable, Mapping
 from typing import Any
 
 from noiselab.study.cache import CachingRunner, ResultsCache
+from noiselab.study.context import replace_experiment
 
 
 @dataclasses.dataclass(frozen=True)
@@ -51,7 +52,7 @@ def bias_spread(
     sims = hits = 0
     seconds = 0.0
     for compiled in ensemble.alternatives:
-        experiment = dataclasses.replace(ctx.experiment, compiled=compiled)
+        experiment = replace_experiment(ctx.experiment, compiled=compiled)
         alt = dataclasses.replace(ctx, compiled=compiled, experiment=experiment)
         runner = CachingRunner(experiment, store)
         for name, result in run_recipes(alt, recipes, runner).items():

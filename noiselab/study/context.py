@@ -256,6 +256,18 @@ def compile_fields(ensemble: Any) -> dict[str, Any]:
     }
 
 
+def replace_experiment(experiment: Any, **changes: Any) -> Any:
+    """``dataclasses.replace`` of an ExperimentContext that keeps its computed
+    ``measured_bases`` when neither the plan, the problem nor ``verification_bases`` change
+    (the verification bases take a noticeable time to derive; a new compile or profile does
+    not change them)."""
+    out = dataclasses.replace(experiment, **changes)
+    known = experiment.__dict__.get("measured_bases")
+    if known is not None and not {"plan", "problem", "verification_bases"} & changes.keys():
+        out.__dict__["measured_bases"] = known
+    return out
+
+
 def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, tuple[str, ...]]:
     """(exact ground state's <S^2>, warnings about the noiseless optimum against the target).
 

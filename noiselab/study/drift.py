@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from noiselab.study.cache import CachingRunner, ResultsCache
+from noiselab.study.context import replace_experiment
 
 DRIFT_STREAM = 0xD21F7
 MAX_DRAWS = 1000
@@ -95,7 +96,7 @@ def assess_drift(
     if progress is not None:
         progress("drift draws", 0, len(profiles))
     for i, profile in enumerate(profiles):
-        experiment = dataclasses.replace(ctx.experiment, profile=profile)
+        experiment = replace_experiment(ctx.experiment, profile=profile)
         day = dataclasses.replace(ctx, experiment=experiment)
         runner = CachingRunner(experiment, store)
         for name, r in run_recipes(day, recipes, runner).items():
