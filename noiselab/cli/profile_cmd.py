@@ -144,6 +144,20 @@ def _summary_table(profile: Any) -> Any:
         "two-qubit gate layers within that time",
         "inf" if worst_ns is None else str(int(worst_ns // d.two_qubit_ns)),
     )
+    dr = profile.drift
+    table.add_row(
+        "drift between days, relative std. (T1, T2, 1q error, 2q error, readout)",
+        ", ".join(
+            f"{v:.0%}"
+            for v in (
+                dr.t1_rel_std,
+                dr.t2_rel_std,
+                dr.single_qubit_error_rel_std,
+                dr.two_qubit_error_rel_std,
+                dr.readout_error_rel_std,
+            )
+        ),
+    )
     return table
 
 
