@@ -190,6 +190,8 @@ def test_optimum_warnings_name_each_failure(h2):
     (w,) = optimum_warnings(result(mid, 0.0, 2.0), qp, 1.6, 0.0)
     assert "<S^2> is 2.000" in w and "0.000" in w
     assert optimum_warnings(result(mid, 0.0, 2.0), qp, 1.6, None) == ()
+    (w,) = optimum_warnings(result(qp.exact_energy_ha - 0.01, 0.0, 0.0), qp, 1.6, 0.0)
+    assert "10 mHa below the exact energy" in w and "left that sector" in w
 
 
 def test_stuck_optimum_is_warned_in_json_table_and_verdict(tmp_path, capsys) -> None:

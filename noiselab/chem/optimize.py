@@ -16,8 +16,9 @@ the exact energy is lower: many starts of a layered circuit fall back to that st
 The lowest energy wins.
 
 :func:`optimum_warnings` turns a result into one-line warnings: the two lowest starts disagree
-by more than the target, the optimum sits at the Hartree-Fock energy while the exact energy is
-lower, or the trial state's <S^2> differs from the exact ground state's.
+by more than the target, the optimum lies below the exact sector energy (the trial state left the
+particle-number and spin sector), the optimum sits at the Hartree-Fock energy while the exact
+energy is lower, or the trial state's <S^2> differs from the exact ground state's.
 """
 
 from __future__ import annotations
@@ -196,6 +197,13 @@ def optimum_warnings(
             f"optimizer: the two lowest of {result.starts} starts differ by {spread:.3g} mHa, more "
             f"than the {target_mha:.4g} mHa target; the noiseless optimum may not be the best "
             "the trial circuit can do (raise ansatz.max_starts)"
+        )
+    if result.energy_ha < exact - AGREE_HA:
+        out.append(
+            f"optimizer: the noiseless optimum is {(exact - result.energy_ha) * 1000:.3g} mHa "
+            "below the exact energy of the molecule's particle-number and spin sector: the trial "
+            "state has left that sector (the circuit does not conserve them), so biases against "
+            "the exact energy mix that leakage with the device's error"
         )
     if abs(result.energy_ha - hf) <= AGREE_HA and hf - exact > AGREE_HA:
         out.append(
