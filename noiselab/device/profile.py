@@ -582,9 +582,12 @@ def profile_from_mapping(
 
 
 def load_profile(path: str | Path) -> DeviceProfile:
-    """Read and validate a device profile YAML file."""
+    """Read and validate a device profile YAML file (a path, or a shipped profile's name)."""
+    from noiselab.common.shipped import looks_like_name, shipped_path
     from noiselab.common.yamlio import load_yaml_mapping
 
+    if not Path(path).exists() and looks_like_name(str(path)):
+        path = shipped_path("devices", str(path), str(path), "device profile")
     data = load_yaml_mapping(path, what="device profile")
     return profile_from_mapping(data, str(path))
 

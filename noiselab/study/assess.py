@@ -14,6 +14,7 @@ from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.shipped import shipped_path
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
 from noiselab.study.context import (
     StudyContext,
@@ -30,17 +31,8 @@ DEMO_STUDY = "h2-equilibrium.yaml"
 
 
 def demo_study_path() -> Path:
-    """The shipped demo study (configs/studies/ of the source tree)."""
-    here = Path(__file__).resolve()
-    for root in (here.parents[2], Path.cwd()):
-        p = root / "configs" / "studies" / DEMO_STUDY
-        if p.is_file():
-            return p
-    from noiselab.common.errors import NoiselabError
-
-    raise NoiselabError(
-        f"demo: the shipped study configs/studies/{DEMO_STUDY} was not found next to the package"
-    )
+    """The shipped demo study (``configs/studies/`` of a checkout, or the wheel's copy)."""
+    return shipped_path("studies", DEMO_STUDY.removesuffix(".yaml"), "demo", "study")
 
 
 def resolve_study(

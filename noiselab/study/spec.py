@@ -26,6 +26,7 @@ from pydantic import (
 )
 
 from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 
@@ -341,8 +342,11 @@ class Study:
 
 
 def load_study(path: str | Path) -> Study:
-    """Read, validate and resolve a study file; bad input raises a one-line InputError."""
+    """Read, validate and resolve a study file (a path, or the name of a shipped study such as
+    ``h2-stretched``); bad input raises a one-line InputError."""
     src_path = Path(path)
+    if not src_path.exists() and looks_like_name(str(path)):
+        src_path = shipped_path("studies", str(path), str(path), "study")
     data = load_yaml_mapping(src_path, what="study file")
     return study_from_mapping(data, src_path)
 
@@ -474,13 +478,16 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
         raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
     resolved = Path(_normpath(p if p.is_absolute() else study_path.parent / p))
+    if not resolved.exists() and looks_like_name(value):
+        resolved = shipped_path("devices", value, src, "device")
     if not resolved.is_file():
         what = "is a folder" if resolved.is_dir() else "no such file"
         raise input_error(
             src,
             "device",
             f"device profile {resolved} not found ({what})",
-            "a profile path relative to the study file, or an inline profile mapping",
+            "a profile path relative to the study file, a shipped profile name "
+            "(noiselab shipped), or an inline profile mapping",
         )
     return load_profile(resolved), str(resolved)
 
