@@ -35,7 +35,6 @@ def studies(tmp_path_factory: pytest.TempPathFactory) -> tuple:
     text = (CONFIGS / "studies" / "lih-active-space.yaml").read_text()
     text = text.replace("encoding: parity", "encoding: jordan_wigner")
     text = text.replace("two_qubit_reduction: true", "two_qubit_reduction: false")
-    text = text.replace("device: ../devices/", f"device: {CONFIGS / 'devices'}/")
     path = tmp_path_factory.mktemp("study") / "lih-jw.yaml"
     path.write_text(text)
     plain = load_study(path)  # no recipe of it verifies

@@ -24,6 +24,7 @@ from typing import Any
 import numpy as np
 
 from noiselab.common.errors import InputError
+from noiselab.study.spec import device_profile_path
 
 CACHE_FILE_NAME = "results-v1.sqlite"
 BUSY_TIMEOUT_S = 60.0
@@ -411,9 +412,7 @@ def job_key(job: str, study_path: str | Path, options: dict[str, Any]) -> str | 
         device = data.get("device")
         device_bytes = b""
         if isinstance(device, str):
-            dp = Path(device).expanduser()
-            dp = dp if dp.is_absolute() else p.parent / dp
-            device_bytes = dp.read_bytes()
+            device_bytes = device_profile_path(device, p).read_bytes()
     except (OSError, UnicodeDecodeError, InputError):
         return None
     from importlib import metadata

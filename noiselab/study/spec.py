@@ -474,6 +474,14 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             if text.startswith(head) and not text.startswith(head + "(top level)"):
                 text = f"{src}: device." + text.removeprefix(head)
             raise InputError(text) from None
+    resolved = device_profile_path(value, study_path)
+    return load_profile(resolved), str(resolved)
+
+
+def device_profile_path(value: str, study_path: Path) -> Path:
+    """The profile file a study's ``device:`` string names: a path relative to the study file,
+    an absolute path, or a shipped profile's name. One-line InputError when there is none."""
+    src = str(study_path)
     if not value.strip():
         raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
@@ -489,7 +497,7 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             "a profile path relative to the study file, a shipped profile name "
             "(noiselab shipped), or an inline profile mapping",
         )
-    return load_profile(resolved), str(resolved)
+    return resolved
 
 
 def _normpath(p: Path) -> str:
