@@ -9,6 +9,7 @@ from hypothesis import strategies as st
 from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevector
 
 from noiselab.common.errors import InputError
+from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.passes.extrapolate import (
     exponential_fit,
     polynomial_coefficients,
@@ -16,7 +17,7 @@ from noiselab.mitigate.passes.extrapolate import (
 )
 from noiselab.mitigate.passes.readout import apply_per_qubit, project_to_simplex
 from noiselab.mitigate.plan import build_plan
-from noiselab.mitigate.recipe import ExperimentContext, run_recipe
+from noiselab.mitigate.recipe import run_recipe
 from noiselab.mitigate.registry import make_pass
 from noiselab.mitigate.synthetic import (
     assignment_matrix,

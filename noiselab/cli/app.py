@@ -9,9 +9,12 @@ from __future__ import annotations
 import os
 import sys
 
+import click
 import typer
 
 from noiselab import __version__
+from noiselab.cli import commands
+from noiselab.common.errors import NoiselabError
 
 app = typer.Typer(
     name="noiselab",
@@ -50,16 +53,12 @@ def _root(
 
 def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
-    from noiselab.cli import commands
-
     for register in commands.REGISTRY:
         register(app)
 
 
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
-    import click
-
     # recent typer vendors its own copy of click (typer._click): catch both kinds
     usage_errors: tuple[type[Exception], ...] = (click.exceptions.UsageError,)
     click_errors: tuple[type[Exception], ...] = (click.exceptions.ClickException,)
@@ -70,8 +69,6 @@ def main(argv: list[str] | None = None) -> None:
         click_errors += (typer_click_exceptions.ClickException,)
     except ImportError:  # pragma: no cover - typer using click itself
         pass
-
-    from noiselab.common.errors import NoiselabError
 
     _register_commands()
     command = typer.main.get_command(app)

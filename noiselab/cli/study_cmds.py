@@ -7,12 +7,18 @@ imported inside the command functions so that ``noiselab --help`` stays fast.
 from __future__ import annotations
 
 import contextlib
+import json
 import sys
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Annotated, Any
 
 import typer
+
+from noiselab.common.errors import InputError, input_error
+
+# Deliberately lazy: the study and report layers and rich are imported inside the command
+# functions (noiselab --help stays fast).
 
 DEMO_DIR = "noiselab-demo"
 
@@ -104,8 +110,6 @@ def _check_method(method: str | None) -> None:
     from noiselab.study.spec import EMULATION_METHODS
 
     if method not in EMULATION_METHODS:
-        from noiselab.common.errors import input_error
-
         raise input_error(None, "--method", f"{method!r}", ", ".join(EMULATION_METHODS))
 
 
@@ -120,8 +124,6 @@ def _open_cache(cache: Path | None, no_cache: bool) -> Any:
     from noiselab.study.cache import open_cache
 
     if no_cache and cache is not None:
-        from noiselab.common.errors import InputError
-
         raise InputError("--cache: given together with --no-cache; allowed: one of them")
     return open_cache(cache, enabled=not no_cache)
 
@@ -194,8 +196,6 @@ def _print_table(title: str, headers: tuple[str, ...], rows: list[tuple[str, ...
 
 
 def _print_json(obj: dict[str, Any]) -> None:
-    import json
-
     sys.stdout.write(json.dumps(obj, indent=2, sort_keys=False) + "\n")
     sys.stdout.flush()
 
@@ -310,8 +310,6 @@ def _show_assess(result: Any, written: list[Path]) -> None:
 def _parse_scale_sets(values: list[str] | None) -> list[list[float]] | None:
     if not values:
         return None
-    from noiselab.common.errors import input_error
-
     out = []
     for text in values:
         try:

@@ -22,7 +22,15 @@ from noiselab.cli.study_cmds import (
     StudyArg,
     TrajectoriesOpt,
     WorkersOpt,
+    _check_method,
+    _console,
+    _open_cache,
+    _progress,
+    emit_notice,
 )
+
+# Deliberately lazy: the study and report layers are imported inside the command functions
+# (noiselab --help stays fast).
 
 KNOB_HELP = (
     "What to vary: noise-scale (every channel, 1 = device as profiled), two-qubit-error, "
@@ -58,8 +66,6 @@ def _echo_written(written: list[Path]) -> None:
 
 
 def _print(table: Any) -> None:
-    from noiselab.cli.study_cmds import _console
-
     _console().print(table)
 
 
@@ -121,7 +127,6 @@ def sweep_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.sweep import get_knob, sweep
 
     _check_method(method)
@@ -192,7 +197,6 @@ def budget_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.budget import budget
 
     _check_method(method)

@@ -5,6 +5,7 @@ Names are loaded lazily so that ``import noiselab.device`` does not import qiski
 
 from __future__ import annotations
 
+import importlib
 from typing import Any
 
 _EXPORTS = {
@@ -29,8 +30,6 @@ __all__ = sorted(_EXPORTS)
 
 def __getattr__(name: str) -> Any:
     if name in _EXPORTS:
-        import importlib
-
         module = importlib.import_module(f"noiselab.device.{_EXPORTS[name]}")
         return getattr(module, name)
     raise AttributeError(f"module 'noiselab.device' has no attribute {name!r}")

@@ -19,16 +19,14 @@ from __future__ import annotations
 from abc import ABC
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, ClassVar
+from typing import Any, ClassVar
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict
 
-from noiselab.mitigate.estimate import Estimate, SourceKey
+from noiselab.mitigate.estimate import Estimate, SourceKey, linear_combination
+from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.variants import CircuitVariant
-
-if TYPE_CHECKING:
-    from noiselab.mitigate.recipe import ExperimentContext
 
 STAGE_CORRECT = 0
 STAGE_ESTIMATE = 1
@@ -138,8 +136,6 @@ class MitigationPass(ABC):
 
 def plan_estimate(ctx: ExperimentContext, data: VariantData) -> Estimate:
     """The plain estimator: constant + sum_g w_g . q_g."""
-    from noiselab.mitigate.estimate import linear_combination
-
     parts = [data[g.basis].estimate(g.weights) for g in ctx.plan.groups]
     est = linear_combination([1.0] * len(parts), parts)
     return Estimate(est.value + ctx.plan.constant, est.influence)

@@ -15,6 +15,14 @@ from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
 from noiselab.common.atomic import atomic_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
 
@@ -69,9 +77,6 @@ class BiasBar:
 
 
 def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -85,8 +90,6 @@ def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
 
 
 def _savefig(fig: Any, target: Path, fmt: str) -> None:
-    import matplotlib
-
     # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42
     with matplotlib.rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
         fig.savefig(target, format=fmt, dpi=_DPI)
@@ -130,8 +133,6 @@ def _is_raw(name: str) -> bool:
 
 
 def _colors(names: Sequence[str]) -> dict[str, Any]:
-    import matplotlib
-
     # green is kept for the target band
     cmap = matplotlib.colormaps["tab10"]
     palette = [cmap(i) for i in (0, 1, 3, 4, 5, 6, 9, 8)]
@@ -186,8 +187,6 @@ def _fit_curve(
     (E = a + b exp(-k c)), Richardson (the interpolating polynomial through the points), and an
     explicit ``curve`` ([xs], [ys]).
     """
-    import numpy as np
-
     xmax = max(scales) if scales else 1.0
     xs = np.linspace(0.0, xmax * 1.03, 90)
     curve = _get(fit, "curve")
@@ -419,9 +418,6 @@ def plot_bias_bars(
     Bars are green when |bias| + std is within the target, amber when only |bias| is, red
     otherwise.
     """
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
     study, device, target, bars = bias_bars(assess_result_or_records)
     study, device = study_name or study, device_name or device
     fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
@@ -547,8 +543,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     positive = [v for v in all_vals if v > floor]
     ax.set_ylim(max(min(positive) / 3.0, floor), max(positive) * 3.0)
     if sweep_result.log:
-        from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
         ax.set_xscale("log")
         # plain numbers at 1, 2, 5 x 10^k read better than 2 x 10^-1 in a proposal
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
@@ -574,8 +568,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
 def plot_budget(budget_result: Any, path: str | Path) -> Path:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
-    from matplotlib.patches import Patch
-
     b = budget_result
     rows = list(b.rows)
     order = [
@@ -642,8 +634,6 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     handles.append(
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
     )
-    from matplotlib.lines import Line2D
-
     handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)

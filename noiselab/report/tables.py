@@ -13,6 +13,10 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+from rich import box
+from rich.console import Console
+from rich.table import Table
+
 from noiselab.common.atomic import write_text_atomic
 
 # ---------------------------------------------------------------- CSV
@@ -146,9 +150,6 @@ def tune_rows(result: Any) -> list[dict[str, Any]]:
 def _table(
     title: str, headers: Sequence[str], rows: Sequence[Sequence[str]], plain: bool = False
 ) -> Any:
-    from rich import box
-    from rich.table import Table
-
     table = Table(title=title, box=box.ASCII if plain else box.ROUNDED, title_justify="left")
     for i, h in enumerate(headers):
         table.add_column(h, justify="left" if i == 0 else "right", no_wrap=i == 0)
@@ -241,8 +242,6 @@ def tune_table(result: Any, top: int = 10, plain: bool = False) -> Any:
 
 def render_text(table: Any, width: int = 140) -> str:
     """A rich table as plain text (no colour), for logs and tests."""
-    from rich.console import Console
-
     console = Console(
         file=io.StringIO(),
         width=width,

@@ -9,11 +9,16 @@ from __future__ import annotations
 
 import contextlib
 import json
+import os
 import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.atomic import write_text_atomic
+from noiselab.common.errors import InputError, NoiselabError
+from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
 from noiselab.study.context import (
     StudyContext,
@@ -36,7 +41,6 @@ def demo_study_path() -> Path:
         p = root / "configs" / "studies" / DEMO_STUDY
         if p.is_file():
             return p
-    from noiselab.common.errors import NoiselabError
 
     raise NoiselabError(
         f"demo: the shipped study configs/studies/{DEMO_STUDY} was not found next to the package"
@@ -58,10 +62,6 @@ def resolve_study(
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
     """Job-key options of the emulation overrides; "auto" depends on the memory available, so
     the test override of the memory guard enters too."""
-    import os
-
-    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
-
     return {
         "method": method,
         "trajectories": trajectories,
@@ -84,9 +84,6 @@ def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ..
 
     The error names the study file and ``recipes.<name>[i].<option>``.
     """
-    from noiselab.common.errors import InputError
-    from noiselab.mitigate.recipe import parse_recipe
-
     source = str(ctx.study.source)
     for name, passes in recipes.items():
         where = f"recipes.{name}"
@@ -107,8 +104,6 @@ def run_recipes(
     label: str = "recipes",
 ) -> dict[str, Any]:
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
-    from noiselab.mitigate.recipe import run_recipe
-
     out: dict[str, Any] = {}
     total = len(recipes)
     if progress is not None:
@@ -192,10 +187,6 @@ def assess(
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
     """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
-    import json
-
-    from noiselab.common.atomic import write_text_atomic
-
     folder = Path(out)
     return [
         write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),

@@ -10,8 +10,15 @@ in mHa. The compiled circuit and measurement plan are those of the study, reused
 from __future__ import annotations
 
 import dataclasses
+import time
 from collections.abc import Callable
 from typing import Any
+
+from noiselab.device.profile import scale_profile
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.context import build_context
+from noiselab.study.results import RunStats, trajectory_std_of
+from noiselab.study.sweep import ConfigTask, chosen_recipes, own_executor, run_configs
 
 CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
 
@@ -106,8 +113,6 @@ def dominant_channel(
 def configurations(profile: Any) -> list[tuple[str, str, str | None, Any]]:
     """(label, kind, channel, profile) for the device as profiled, each channel alone, each
     channel removed, and the noiseless limit."""
-    from noiselab.device.profile import scale_profile
-
     out: list[tuple[str, str, str | None, Any]] = [("all channels", "total", None, profile)]
     for c in CHANNELS:
         others = [o for o in CHANNELS if o != c]
@@ -140,11 +145,6 @@ def budget(
     ``cluster`` (a Dask scheduler address or Client) on a cluster. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    import time
-
-    from noiselab.study.assess import _default_cache, resolve_study
-    from noiselab.study.sweep import chosen_recipes, own_executor
-
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     picked = chosen_recipes(study, [] if recipe is None else [recipe])
@@ -162,12 +162,6 @@ def _budget_with(
     context: Any,
     t0: float,
 ) -> BudgetResult:
-    import time
-
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats, trajectory_std_of
-    from noiselab.study.sweep import ConfigTask, run_configs
-
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     configs = configurations(study.profile)
     tasks = [ConfigTask(ctx.experiment, prof, picked, store) for _, _, _, prof in configs]

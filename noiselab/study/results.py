@@ -7,7 +7,9 @@ form is deterministic for a given study and seed: timings and cache statistics a
 
 from __future__ import annotations
 
+import csv
 import dataclasses
+import io
 import math
 from collections.abc import Mapping, Sequence
 from typing import Any
@@ -601,9 +603,6 @@ def _csv_value(v: Any) -> Any:
 
 def csv_text(rows: Sequence[Mapping[str, Any]]) -> str:
     """CSV text of ``rows`` (columns from the first row, then any new keys in order)."""
-    import csv
-    import io
-
     columns: list[str] = []
     for row in rows:
         for k in row:
