@@ -7,10 +7,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.toy import compile_toy, toy_circuit, toy_device
 
 from noiselab.common.errors import InputError
 from noiselab.emulate.engine import BasisDistributions, emulate_bases, emulate_circuit_bases
-from noiselab.emulate.toy import compile_toy, toy_circuit, toy_device
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 

@@ -4,6 +4,13 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from helpers.synthetic import (
+    assignment_matrix,
+    depolarized,
+    full_readout_matrix,
+    make_synthetic_calibrator,
+    make_synthetic_runner,
+)
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevector
@@ -19,13 +26,6 @@ from noiselab.mitigate.passes.readout import apply_per_qubit, project_to_simplex
 from noiselab.mitigate.plan import build_plan
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.mitigate.registry import make_pass
-from noiselab.mitigate.synthetic import (
-    assignment_matrix,
-    depolarized,
-    full_readout_matrix,
-    make_synthetic_calibrator,
-    make_synthetic_runner,
-)
 
 P_GATE = 0.03  # depolarizing strength per unit noise scale of the synthetic model
 

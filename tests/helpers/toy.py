@@ -1,5 +1,6 @@
 """A small hand-built noisy device (qiskit-aer noise model + transpiler target) for tests and
-benchmarks of the emulation layer that must not depend on the profile schema.
+benchmarks of the emulation layer that must not depend on the profile schema (test helper, not
+part of the package).
 
 Natives rz (virtual, 0 ns), sx and x (35 ns), cx (300 ns) on a line of qubits; relaxation
 (T1, T2 in us) after every gate and on every delay, depolarizing error after gates.
