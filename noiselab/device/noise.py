@@ -167,18 +167,6 @@ def _is_noiseless(key: tuple) -> bool:
     return not (relax or depol or coherent)
 
 
-def gate_superop(
-    profile: DeviceProfile, gate: str, qubits: Sequence[int], parts: Iterable[str] | None = None
-) -> Any:
-    """``qiskit.quantum_info.SuperOp`` of the error applied after native ``gate`` on ``qubits``.
-
-    ``parts`` picks a subset of {"relaxation", "depolarizing", "coherent"} (default all).
-    The channel's qubit 0 is ``qubits[0]``. Cached on the numerical parameters.
-    """
-    noise = gate_noise(profile, gate, qubits)
-    return _noise_superop(*_noise_key(profile, noise, parts))
-
-
 def channel_from_noise(
     profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None = None
 ) -> Any:
@@ -195,8 +183,8 @@ def gate_channel(
     """The qiskit-aer ``QuantumError`` applied after native ``gate`` on physical ``qubits``.
 
     An identity error for rz and for noiseless gates (``error.ideal()`` is then true).
-    ``error.to_quantumchannel()`` (or :func:`gate_superop`) gives the ``qiskit.quantum_info``
-    channel for independent checks.
+    ``error.to_quantumchannel()`` gives the ``qiskit.quantum_info`` channel for independent
+    checks.
     """
     return channel_from_noise(profile, gate_noise(profile, gate, qubits), parts)
 
@@ -367,11 +355,3 @@ def readout_transfer_matrix(profile: DeviceProfile, patch: Sequence[int]) -> np.
         flipped = idx ^ (1 << i) ^ (1 << j)
         m = (1.0 - c) * m + c * m[flipped, :]
     return m
-
-
-def apply_readout_reference(
-    probs: np.ndarray, profile: DeviceProfile, patch: Sequence[int]
-) -> np.ndarray:
-    """Readout-distorted distribution(s) over circuit qubits, with the dense matrix (reference)."""
-    m = readout_transfer_matrix(profile, patch)
-    return np.asarray(probs) @ m.T

@@ -107,15 +107,3 @@ def apply_readout(
 def assignment_matrix(p1_given_0: float, p0_given_1: float) -> np.ndarray:
     """2x2 assignment matrix ``A[measured, prepared]`` from the two flip probabilities."""
     return np.array([[1.0 - p1_given_0, p0_given_1], [p1_given_0, 1.0 - p0_given_1]])
-
-
-def kron_readout_matrix(matrices: Sequence[np.ndarray]) -> np.ndarray:
-    """The full 2**n x 2**n matrix ``A_{n-1} x ... x A_0`` (small n only; for tests and checks)."""
-    n = len(matrices)
-    if n > 10:
-        raise InputError(f"readout: full matrix for {n} qubits; allowed: at most 10 qubits")
-    out = np.ones((1, 1))
-    for a in matrices:
-        out = np.kron(np.asarray(a, dtype=float), out)
-    return out
-

@@ -139,11 +139,6 @@ def assess_rows(result: Any) -> list[dict[str, Any]]:
     return out
 
 
-def tune_rows(result: Any) -> list[dict[str, Any]]:
-    """CSV rows of a tune result (ranked)."""
-    return list(result.csv_rows())
-
-
 # ---------------------------------------------------------------- rich tables
 
 
