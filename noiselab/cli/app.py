@@ -15,14 +15,14 @@ import typer
 from noiselab import __version__
 from noiselab.cli import commands
 from noiselab.common.errors import NoiselabError
+from noiselab.common.wording import CAUTION
 
 app = typer.Typer(
     name="noiselab",
     help=(
         "Plan energy experiments on noisy quantum devices: will this variational energy "
         "calculation reach chemical accuracy on this device, with which error mitigation "
-        "and how many shots?\n\n"
-        "Predictions are only as good as the device noise profile: planning input, not a guarantee."
+        "and how many shots?\n\n" + CAUTION
     ),
     no_args_is_help=True,
     add_completion=False,

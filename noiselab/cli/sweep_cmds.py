@@ -28,6 +28,7 @@ from noiselab.cli.study_cmds import (
     _progress,
     emit_notice,
 )
+from noiselab.common.wording import CAUTION
 
 # Deliberately lazy: the study and report layers are imported inside the command functions
 # (noiselab --help stays fast).
@@ -162,7 +163,7 @@ def sweep_cmd(
         typer.echo(f"Note: {note}.")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if result.stats is not None:
         s = result.stats
         typer.echo(
@@ -222,7 +223,7 @@ def budget_cmd(
     typer.echo(result.sentence + ".")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if out is not None:
         from noiselab.report.outputs import write_budget_outputs
 

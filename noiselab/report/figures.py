@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
@@ -25,8 +26,8 @@ from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
 from noiselab.common.atomic import atomic_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.common.wording import CAUTION, target_words
 
-CAUTION = "emulated: only as good as the noise model"
 _FORMATS = ("svg", "pdf", "png")
 _DPI = 150
 _RAW_NAMES = ("raw", "none", "unmitigated")
@@ -85,7 +86,9 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
     # a figure-level x label is laid out below everything else (outside legends included)
-    fig.supxlabel(CAUTION, x=0.995, ha="right", fontsize=7, style="italic", color="0.4")
+    # wrapped to the figure's width (about 17 characters per inch at 7 pt)
+    caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
+    fig.supxlabel(caution, x=0.995, ha="right", ma="right", fontsize=7, style="italic", color="0.4")
     ax.grid(True, which="major", alpha=0.3)
 
 
@@ -116,16 +119,6 @@ def _save_all(fig: Any, stem: str | Path) -> tuple[Path, ...]:
         out.append(target)
     fig.clear()
     return tuple(out)
-
-
-def _is_chemical_accuracy(target_mha: float) -> bool:
-    return abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4
-
-
-def _target_label(target_mha: float) -> str:
-    if _is_chemical_accuracy(target_mha):
-        return f"chemical accuracy {target_mha:.3g} mHa"
-    return f"target {target_mha:.3g} mHa"
 
 
 def _is_raw(name: str) -> bool:
@@ -457,7 +450,7 @@ def plot_bias_bars(
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("|energy − exact energy| (mHa)")
     handles = [
-        Line2D([], [], color="tab:green", ls="--", label=_target_label(target)),
+        Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
         Patch(color=verdict["green"], alpha=0.8, label="within target, even with 1 std"),
         Patch(color=verdict["amber"], alpha=0.8, label="bias within, shot noise not"),
         Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
@@ -496,7 +489,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
-    ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
+    ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
         for x in c_.crossings:
@@ -634,7 +627,7 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     handles.append(
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
     )
-    handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
+    handles.append(Line2D([], [], color="tab:green", ls="--", label=target_words(t)))
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
     return _save(fig, path)

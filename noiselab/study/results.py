@@ -16,13 +16,8 @@ from typing import Any
 
 import numpy as np
 
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.result import RecipeResult
-
-CAUTION = (
-    "Caution: this prediction is only as good as the device noise model; real devices drift "
-    "and have errors a profile does not describe."
-)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -112,12 +107,6 @@ def best_of(results: Mapping[str, Any]) -> str:
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
 
 
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 5e-4:
-        return f"chemical accuracy (±{target_mha:.4g} mHa)"
-    return f"the ±{target_mha:.4g} mHa target"
-
-
 def verdict_line(
     best_name: str,
     best: Any,
@@ -127,7 +116,7 @@ def verdict_line(
     what: str = "recipe",
 ) -> tuple[bool, str]:
     """(reachable at the budget, one plain sentence naming the best recipe)."""
-    goal = _target_words(target_mha)
+    goal = target_words(target_mha)
     p = float(best.p_within_target)
     needed = best.shots_needed
     if p >= confidence:

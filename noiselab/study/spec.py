@@ -366,8 +366,6 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             "two_qubit_reduction: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
-
-
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
     profile, device_source = _resolve_device(spec.device, src_path)
     recipes = {

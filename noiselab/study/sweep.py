@@ -23,7 +23,7 @@ from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 from noiselab.common.errors import input_error
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, scale_profile
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.assess import _default_cache, resolve_study
@@ -209,7 +209,7 @@ class SweepResult:
             ],
             "crossings": [dataclasses.asdict(c) for c in self.crossings],
             "notes": list(self.notes()),
-            "caution": "emulated: only as good as the device noise model",
+            "caution": CAUTION,
         }
 
 
@@ -302,12 +302,6 @@ def band_crossings(
     return tuple(out)
 
 
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4:
-        return "chemical accuracy"
-    return f"the {target_mha:.3g} mHa target"
-
-
 def crossing_sentence(
     recipe: str,
     knob: Knob,
@@ -318,7 +312,7 @@ def crossing_sentence(
 ) -> str:
     """One sentence in the device's own units, e.g. 'raw stays within chemical accuracy while
     the two-qubit gate error is below 0.42 %'."""
-    goal = _target_words(target_mha)
+    goal = target_words(target_mha)
     inside = [abs(e) <= target_mha for e in errors_mha]
     lo, hi = min(values), max(values)
     span = f"{knob.show(lo)} to {knob.show(hi)}"

@@ -215,7 +215,6 @@ def tune(
     resolved, _ = resolve_grid(study, grid)
     own_executor = executor is None
     if executor is None:  # before the (slow) context: a bad cluster address fails at once
-
         executor = make_executor(workers, cluster)
     try:
         # the verification bases are measured only when a setting may verify
@@ -241,7 +240,6 @@ def tune(
     finally:
         if own_executor:
             executor.close()
-
 
     # settings that differ only in their extrapolation share each variant's corrected estimate
     memo = EstimateMemo()
