@@ -4,8 +4,6 @@ Energies in Hartree (``_ha``), geometry in Angstrom. Integrals are in the molecu
 the (RO)HF reference, restricted to the active space, two-electron integrals in chemists' notation
 ``h2[p, q, r, s] = (pq|rs)``. The frozen core (every doubly occupied orbital below the active space)
 is folded into ``e_core_ha`` and into the one-electron integrals (PySCF ``CASCI.get_h1eff``).
-
-PySCF is imported inside the functions, so importing this module is cheap.
 """
 
 from __future__ import annotations

@@ -43,6 +43,7 @@ from noiselab.mitigate.estimate import (
     sample_distribution,
     single_shot_variance,
     source_variances,
+    variance_from_sources,
 )
 from noiselab.mitigate.experiment import (
     Calibrator,
@@ -206,23 +207,6 @@ class EstimateMemo:
             hit = (est, source_variances(est, probs))
             self._variances[id(est)] = hit
         return hit[1]
-
-
-def _variance_from_sources(
-    svars: Mapping[Any, float], shots: Mapping[Any, int | None]
-) -> float:
-    """sum_sources Var_p(u) / N from single-shot variances (as :func:`estimate_variance`)."""
-    total = 0.0
-    for k, var in svars.items():
-        n = shots.get(k)
-        if n is None:
-            continue
-        if n <= 0:
-            if var > 0:
-                return float("inf")
-            continue
-        total += var / n
-    return total
 
 
 @dataclass(frozen=True, eq=False)
@@ -490,7 +474,7 @@ def run_recipe(
             svars = source_variances(e_v, probs_for_std)
         per[v.label()] = {
             "energy_ha": float(ev.per_variant[v].value),
-            "std_mha": math.sqrt(_variance_from_sources(svars, all_shots)) * HA_TO_MHA,
+            "std_mha": math.sqrt(variance_from_sources(svars, all_shots)) * HA_TO_MHA,
             "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
             "scale": float(actual_scale(ctx, v)),
             "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),

@@ -2,7 +2,7 @@
 
 No pyplot state is touched: each function builds a ``matplotlib.figure.Figure`` with an Agg
 canvas, writes it atomically and drops it, so nothing stays open and a notebook's backend is
-left alone. matplotlib is imported inside the functions (``noiselab --help`` stays fast).
+left alone. (The command line imports this module only inside its commands.)
 
 Energies are drawn as errors against the exact energy in mHa, the unit of the target.
 """

@@ -1,7 +1,7 @@
 """Tables (rich) and CSV files from study results; units in every header.
 
 CSV files are written with the ``csv`` module through an atomic rename, so a reader never sees
-half a file. Rich is imported inside the functions.
+half a file.
 """
 
 from __future__ import annotations
@@ -18,6 +18,7 @@ from rich.console import Console
 from rich.table import Table
 
 from noiselab.common.atomic import write_text_atomic
+from noiselab.study.results import TABLE_HEADERS, TUNE_HEADERS
 
 # ---------------------------------------------------------------- CSV
 
@@ -183,20 +184,9 @@ def budget_table(result: Any, plain: bool = False) -> Any:
     return _table(title, headers, rows, plain)
 
 
-ASSESS_HEADERS = (
-    "recipe",
-    "energy (Ha)",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
-
-
 def assess_table(result: Any, plain: bool = False) -> Any:
     """Rich table of an assess result (one row per recipe)."""
-    headers: Sequence[str] = ASSESS_HEADERS
+    headers: Sequence[str] = TABLE_HEADERS
     if hasattr(result, "table_rows"):
         rows = result.table_rows()
         headers = result.table_headers() if hasattr(result, "table_headers") else headers
@@ -215,17 +205,6 @@ def assess_table(result: Any, plain: bool = False) -> Any:
         ]
     study = getattr(result, "study", "study")
     return _table(f"{study}: recipes at the shot budget", headers, rows, plain)
-
-
-TUNE_HEADERS = (
-    "rank",
-    "setting",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
 
 
 def tune_table(result: Any, top: int = 10, plain: bool = False) -> Any:

@@ -223,15 +223,15 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     return out
 
 
-TABLE_HEADERS = (
-    "recipe",
-    "energy (Ha)",
+#: Columns every scored row has (a recipe of assess, a setting of tune).
+SCORE_HEADERS = (
     "bias (mHa)",
     "std. error (mHa)",
     "P(within target)",
     "shots needed",
     "limited by",
 )
+TABLE_HEADERS = ("recipe", "energy (Ha)", *SCORE_HEADERS)
 #: Extra assess column when the trajectory method was used (its own statistical error).
 TRAJECTORY_HEADER = "trajectory error (mHa)"
 
@@ -420,15 +420,7 @@ class TuneEntry:
     result: Any  # RecipeResult
 
 
-TUNE_HEADERS = (
-    "rank",
-    "setting",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
+TUNE_HEADERS = ("rank", "setting", *SCORE_HEADERS)
 
 
 @dataclasses.dataclass(frozen=True)
