@@ -24,9 +24,8 @@ from noiselab.cli.study_cmds import (
     WorkersOpt,
     _check_method,
     _console,
-    _open_cache,
-    _progress,
-    emit_notice,
+    _run_job,
+    echo_written,
 )
 from noiselab.common.wording import CAUTION
 
@@ -56,14 +55,6 @@ OutOpt = Annotated[
     Path | None,
     typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
 ]
-
-
-def _echo_written(written: list[Path]) -> None:
-    if written:
-        typer.echo(
-            f"Wrote {len(written)} file(s) to {written[0].parent}: "
-            + ", ".join(p.name for p in written)
-        )
 
 
 def _print(table: Any) -> None:
@@ -130,30 +121,28 @@ def sweep_cmd(
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
     from noiselab.study.sweep import get_knob, sweep
 
-    _check_method(method)
-
+    _check_method(method)  # before the knob
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = sweep(
-            study,
-            knob=vary,
-            start=start,
-            stop=stop,
-            points=points,
-            log=log,
-            recipes=recipe or None,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        sweep,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        knob=vary,
+        start=start,
+        stop=stop,
+        points=points,
+        log=log,
+        recipes=recipe or None,
+        seed=seed,
+        shots=shots,
+        workers=workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import sweep_table
 
     _print(sweep_table(result))
@@ -173,7 +162,7 @@ def sweep_cmd(
     if out is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        _echo_written(write_sweep_outputs(result, out))
+        echo_written(write_sweep_outputs(result, out))
 
 
 def budget_cmd(
@@ -200,23 +189,20 @@ def budget_cmd(
     """Error budget: the energy error with each noise channel alone and with each removed."""
     from noiselab.study.budget import budget
 
-    _check_method(method)
-
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = budget(
-            study,
-            recipe=recipe,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        budget,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        recipe=recipe,
+        seed=seed,
+        shots=shots,
+        workers=workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import budget_table
 
     _print(budget_table(result))
@@ -227,7 +213,7 @@ def budget_cmd(
     if out is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        _echo_written(write_budget_outputs(result, out))
+        echo_written(write_budget_outputs(result, out))
 
 
 _SWEEP_HELP = (

@@ -5,8 +5,7 @@ Names are loaded lazily so that ``import noiselab.emulate`` does not import qisk
 
 from __future__ import annotations
 
-import importlib
-from typing import Any
+from noiselab.common.lazy import lazy_exports
 
 _EXPORTS = {
     "BasisDistributions": "engine",
@@ -26,10 +25,4 @@ _EXPORTS = {
 }
 
 __all__ = sorted(_EXPORTS)
-
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        module = importlib.import_module(f"noiselab.emulate.{_EXPORTS[name]}")
-        return getattr(module, name)
-    raise AttributeError(f"module 'noiselab.emulate' has no attribute {name!r}")
+__getattr__ = lazy_exports(__name__, _EXPORTS)

@@ -18,7 +18,7 @@ from rich.console import Console
 from rich.table import Table
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.study.results import TABLE_HEADERS, TUNE_HEADERS
+from noiselab.study.results import TABLE_HEADERS, TUNE_HEADERS, score_values
 
 # ---------------------------------------------------------------- CSV
 
@@ -126,17 +126,7 @@ def assess_rows(result: Any) -> list[dict[str, Any]]:
         result.recipes.items() if isinstance(result.recipes, Mapping) else enumerate(result.recipes)
     )
     for name, r in items:
-        out.append(
-            {
-                "recipe": str(name),
-                "energy_ha": float(r.energy_ha),
-                "bias_mha": float(r.bias_exact_mha),
-                "std_mha": float(r.std_mha),
-                "p_within_target": float(r.p_within_target),
-                "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
-                "limited_by": str(r.limited_by),
-            }
-        )
+        out.append({"recipe": str(name), **score_values(r)})
     return out
 
 

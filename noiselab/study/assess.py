@@ -79,6 +79,38 @@ def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCac
     return open_cache(cache)
 
 
+def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, Any]:
+    """Fields that every assess and tune result takes from the study, its context and the run."""
+    return {
+        "context": ctx.summary(),
+        "target_mha": study.target_mha,
+        "confidence": study.confidence,
+        "shots": study.shots,
+        "seed": study.seed,
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
+def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
+    """The stored result of an identical earlier job (``cls.from_record``), or None.
+
+    A record that no longer rebuilds (written by another version) counts as a miss.
+    """
+    hit = store.get(JOB_KIND, key) if key is not None else None
+    if hit is not None:
+        with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+            return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
+    return None
+
+
+def save_job_result(store: ResultsCache, key: str | None, result: Any) -> None:
+    """Store a job's result under ``key`` for :func:`load_job_result` (None: not stored)."""
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), result.stats.wall_seconds)
+
+
 def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
     """Refuse recipes that do not fit this experiment (e.g. post-selection without symmetries).
 
@@ -142,11 +174,9 @@ def assess(
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
         key = job_key("assess", study_or_path, options)
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return AssessResult.from_record(json.loads(hit[0]), stats)
+        stored = load_job_result(store, key, AssessResult, t0)
+        if stored is not None:
+            return stored
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
@@ -159,29 +189,16 @@ def assess(
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
-    stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
-        wall_seconds=time.perf_counter() - t0,
-    )
+    stats = RunStats.of_runner(runner, t0)
     result = AssessResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         recipes=results,
         passes=dict(study.recipes),
         best_recipe=best,
         reachable=reachable,
         verdict=verdict,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
 
 

@@ -18,7 +18,13 @@ from noiselab.device.profile import scale_profile
 from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.context import build_context
 from noiselab.study.results import RunStats, trajectory_std_of
-from noiselab.study.sweep import ConfigTask, chosen_recipes, own_executor, run_configs
+from noiselab.study.sweep import (
+    ConfigTask,
+    chosen_recipes,
+    own_executor,
+    run_configs,
+    scan_fields,
+)
 
 CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
 
@@ -193,25 +199,10 @@ def _budget_with(
     if len(names) > 1:
         _, sentence2 = dominant_channel(rows, 1, target)
         sentence += f"; {names[1]}: {sentence2}"
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
-    )
+    stats = RunStats.of_outcomes(outs, t0, described)
     return BudgetResult(
-        study_name=study.name,
-        device_name=str(study.profile.name),
-        recipes=names,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
         rows=rows,
         dominant=dom,
         sentence=sentence,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

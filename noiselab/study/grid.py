@@ -20,6 +20,14 @@ DEFAULT_POSTSELECT = (NONE, "discard", "verify")
 DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
 DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
 DEFAULT_FIT = ("linear", "richardson")
+#: The built-in default of every axis, in the grid's axis order.
+DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
+    "readout": DEFAULT_READOUT,
+    "postselect": DEFAULT_POSTSELECT,
+    "amplification": DEFAULT_AMPLIFICATION,
+    "scales": DEFAULT_SCALES,
+    "fit": DEFAULT_FIT,
+}
 
 
 @dataclasses.dataclass(frozen=True)
@@ -38,13 +46,7 @@ def check_tune_section(section: Any, source: str) -> None:
 
     ``section``: a :class:`noiselab.study.spec.TuneGrid` (axes left ``None`` take the defaults).
     """
-    defaults = {
-        "readout": DEFAULT_READOUT,
-        "postselect": DEFAULT_POSTSELECT,
-        "amplification": DEFAULT_AMPLIFICATION,
-        "scales": DEFAULT_SCALES,
-        "fit": DEFAULT_FIT,
-    }
+    defaults = DEFAULT_AXES
     values = {a: getattr(section, a) or d for a, d in defaults.items()}
     grid = Grid(
         readout=tuple(values["readout"]),

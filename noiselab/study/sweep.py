@@ -453,6 +453,24 @@ def run_configs(
             ex.close()
 
 
+def scan_fields(
+    study: Any, ctx: Any, recipes: tuple[str, ...], stats: RunStats
+) -> dict[str, Any]:
+    """Fields that sweep and budget results take from the study, its context and the run."""
+    return {
+        "study_name": study.name,
+        "device_name": str(study.profile.name),
+        "recipes": recipes,
+        "target_mha": float(study.target_mha),
+        "shots_total": int(study.shots),
+        "exact_energy_ha": float(ctx.exact_energy_ha),
+        "ansatz_energy_ha": float(ctx.ansatz_energy_ha),
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
 def entry_from(name: str, r: Any) -> SweepEntry:
     """A SweepEntry from a RecipeResult."""
     return SweepEntry(
@@ -677,27 +695,12 @@ def _sweep_with(
     )
     names = tuple(n for n, _ in picked)
     crossings = tuple(recipe_crossing(n, spec, pts, study.target_mha, log) for n in names)
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
-    )
+    stats = RunStats.of_outcomes(outs, t0, described)
     return SweepResult(
-        study_name=study.name,
-        device_name=str(profile.name),
         knob=spec.name,
         log=log,
         current_value=ref,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
-        recipes=names,
         points=pts,
         crossings=crossings,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

@@ -9,7 +9,6 @@ and cached; evaluating a setting afterwards costs no further simulation.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import itertools
 import json
@@ -24,20 +23,18 @@ from noiselab.mitigate.base import STAGE_COMBINE
 from noiselab.mitigate.recipe import EstimateMemo, run_recipe
 from noiselab.mitigate.registry import make_pass
 from noiselab.mitigate.variants import CircuitVariant
-from noiselab.study.assess import _default_cache, emulation_key_options, resolve_study
-from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
+from noiselab.study.assess import (
+    _default_cache,
+    emulation_key_options,
+    job_fields,
+    load_job_result,
+    resolve_study,
+    save_job_result,
+)
+from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.executor import make_executor
-from noiselab.study.grid import (
-    DEFAULT_AMPLIFICATION,
-    DEFAULT_FIT,
-    DEFAULT_POSTSELECT,
-    DEFAULT_READOUT,
-    DEFAULT_SCALES,
-    NONE,
-    Grid,
-    check_axes,
-)
+from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -69,13 +66,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     """
     override = override or GridOverride()
     section = study.tune or TuneGrid()
-    defaults = {
-        "readout": DEFAULT_READOUT,
-        "postselect": DEFAULT_POSTSELECT,
-        "amplification": DEFAULT_AMPLIFICATION,
-        "scales": DEFAULT_SCALES,
-        "fit": DEFAULT_FIT,
-    }
+    defaults = DEFAULT_AXES
     values: dict[str, Any] = {}
     origin: dict[str, str] = {}
     for axis, default in defaults.items():
@@ -206,11 +197,9 @@ def tune(
             **emulation_key_options(method, trajectories),
         }
         key = job_key("tune", study_or_path, jsonable(options))
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError):
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return TuneResult.from_record(json.loads(hit[0]), stats)
+        stored = load_job_result(store, key, TuneResult, t0)
+        if stored is not None:
+            return stored
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     resolved, _ = resolve_grid(study, grid)
     own_executor = executor is None
@@ -263,28 +252,14 @@ def tune(
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
-    stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
-        wall_seconds=time.perf_counter() - t0,
-        executor=getattr(executor, "description", "in-process"),
-    )
+    stats = RunStats.of_runner(runner, t0, getattr(executor, "description", "in-process"))
     result = TuneResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         entries=entries,
         distinct_variants=len(runner.requested),
-        stats=stats,
         verdict=verdict,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
 
 
