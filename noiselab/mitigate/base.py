@@ -16,6 +16,8 @@ measured distribution and any calibration circuit), which is what the variance n
 
 from __future__ import annotations
 
+import hashlib
+import json
 from abc import ABC
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
@@ -103,6 +105,15 @@ class MitigationPass(ABC):
     def spec(self) -> dict[str, Any]:
         """The pass as a recipe entry (all options, defaults filled in)."""
         return {"pass": self.name, **self.options.model_dump(mode="json")}
+
+    def cache_key(self) -> str:
+        """Stable key of the pass and its options: SHA-256 of :meth:`spec` as sorted JSON.
+
+        Equal for equal options however they were written (defaults filled in, key order); the
+        same in every process and session.
+        """
+        text = json.dumps(self.spec(), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
     def describe(self) -> str:
         """Short label for the recipe name."""

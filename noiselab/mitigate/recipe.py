@@ -12,7 +12,6 @@ the same code (the spread of such estimates is the analytic standard error).
 from __future__ import annotations
 
 import copy
-import json
 import math
 import zlib
 from collections.abc import Mapping, Sequence
@@ -54,7 +53,7 @@ from noiselab.mitigate.experiment import (
     variant_inputs,
 )
 from noiselab.mitigate.plan import largest_remainder
-from noiselab.mitigate.registry import make_pass
+from noiselab.mitigate.registry import PASSES, make_pass
 from noiselab.mitigate.result import RecipeResult, plain_json
 from noiselab.mitigate.target import assess_target
 from noiselab.mitigate.variants import CircuitVariant
@@ -81,6 +80,11 @@ class ParsedRecipe:
     def of_stage(self, stage: int) -> MitigationPass | None:
         found = [p for p in self.passes if p.stage == stage]
         return found[0] if found else None
+
+
+def _stage_order() -> str:
+    """The registered passes in the order a recipe allows them (by stage)."""
+    return ", ".join(sorted(PASSES, key=lambda name: PASSES[name].stage))
 
 
 def parse_recipe(
@@ -112,7 +116,7 @@ def parse_recipe(
         if p.stage < last_stage:
             raise InputError(
                 f"{where}[{i}].pass: {p.name!r} ({STAGE_NAMES[p.stage]}) must come before the "
-                f"{STAGE_NAMES[last_stage]} pass; allowed order: readout, postselect, extrapolate"
+                f"{STAGE_NAMES[last_stage]} pass; allowed order: {_stage_order()}"
             )
         if p.stage == last_stage and p.stage != STAGE_CORRECT:
             raise InputError(f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe")
@@ -254,8 +258,8 @@ def _memo_estimate(
     ws: Workspace,
     cal: _CalibrationSource,
 ) -> Estimate:
-    stages = [p.spec() for p in corrects] + ([estimator.spec()] if estimator else [])
-    key = (*scope, variant, json.dumps(stages, sort_keys=True), bases, cal.mode)
+    stages = [*corrects, *([estimator] if estimator else [])]
+    key = (*scope, variant, tuple(p.cache_key() for p in stages), bases, cal.mode)
     entry = memo._entries.get(key)
     if entry is None:
         calls: list[tuple[CircuitVariant, tuple[int, ...], int | None]] = []
