@@ -8,12 +8,8 @@ import numpy as np
 import pytest
 
 from noiselab.common.errors import InputError
-from noiselab.emulate.readout import (
-    apply_readout,
-    assignment_matrix,
-    calibration_distributions,
-    calibration_states,
-)
+from noiselab.emulate.calibration import calibration_distributions, calibration_states
+from noiselab.emulate.readout import apply_readout, assignment_matrix
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 
@@ -67,7 +63,7 @@ def test_crosstalk_equals_device_dense_reference() -> None:
     """Against the device layer's dense transfer matrix (its own implementation)."""
     from noiselab.device.noise import readout_transfer_matrix
     from noiselab.device.profile import load_profile
-    from noiselab.emulate.engine import logical_readout
+    from noiselab.emulate.device_inputs import logical_readout
 
     prof = load_profile(DEVICES / "rustbucket-6.yaml")
     patch = (0, 1, 2, 3, 4, 5)

@@ -96,7 +96,7 @@ def h2_device():
 
 @pytest.fixture(scope="module")
 def h2_ctx(h2_device):
-    from noiselab.mitigate.recipe import build_context, make_runner
+    from noiselab.mitigate.experiment import build_context, make_runner
 
     qp, opt, profile, compiled = h2_device
     ctx = build_context(qp, compiled, profile, ansatz_energy_ha=opt.energy_ha, shots=100_000)
@@ -144,7 +144,8 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
     from noiselab.device.compile import compile_to_device
     from noiselab.device.profile import scale_profile
     from noiselab.mitigate.base import Workspace, raw_distribution
-    from noiselab.mitigate.recipe import build_context, make_calibrator, make_runner, run_recipe
+    from noiselab.mitigate.experiment import build_context, make_calibrator, make_runner
+    from noiselab.mitigate.recipe import run_recipe
     from noiselab.mitigate.registry import make_pass
 
     qp, opt, profile, compiled = h2_device
@@ -185,7 +186,8 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
 
 
 def test_folded_variants_in_native_gates(h2_ctx):
-    from noiselab.mitigate.recipe import run_recipe, variant_inputs
+    from noiselab.mitigate.experiment import variant_inputs
+    from noiselab.mitigate.recipe import run_recipe
 
     ctx, runner = h2_ctx
     n2 = ctx.compiled.two_qubit_count
@@ -220,7 +222,7 @@ def test_folded_variants_in_native_gates(h2_ctx):
 
 
 def test_variant_key_material_separates_simulations(h2_ctx):
-    from noiselab.mitigate.recipe import variant_key_material
+    from noiselab.mitigate.experiment import variant_key_material
 
     ctx, _ = h2_ctx
     base = variant_key_material(ctx, CircuitVariant())

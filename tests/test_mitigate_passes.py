@@ -4,11 +4,19 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from helpers.synthetic import (
+    assignment_matrix,
+    depolarized,
+    full_readout_matrix,
+    make_synthetic_calibrator,
+    make_synthetic_runner,
+)
 from hypothesis import given, settings
 from hypothesis import strategies as st
 from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevector
 
 from noiselab.common.errors import InputError
+from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.passes.extrapolate import (
     exponential_fit,
     polynomial_coefficients,
@@ -16,15 +24,8 @@ from noiselab.mitigate.passes.extrapolate import (
 )
 from noiselab.mitigate.passes.readout import apply_per_qubit, project_to_simplex
 from noiselab.mitigate.plan import build_plan
-from noiselab.mitigate.recipe import ExperimentContext, run_recipe
+from noiselab.mitigate.recipe import run_recipe
 from noiselab.mitigate.registry import make_pass
-from noiselab.mitigate.synthetic import (
-    assignment_matrix,
-    depolarized,
-    full_readout_matrix,
-    make_synthetic_calibrator,
-    make_synthetic_runner,
-)
 
 P_GATE = 0.03  # depolarizing strength per unit noise scale of the synthetic model
 

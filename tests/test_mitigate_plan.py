@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+from helpers.synthetic import basis_distributions
 from qiskit.quantum_info import DensityMatrix, SparsePauliOp, random_density_matrix
 
 from noiselab.common.errors import InputError
@@ -16,7 +17,6 @@ from noiselab.mitigate.estimate import (
     standard_error,
 )
 from noiselab.mitigate.plan import allocate_shots, build_plan, split_across_circuits
-from noiselab.mitigate.synthetic import basis_distributions
 from noiselab.mitigate.target import assess_target, p_within
 
 

@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION
 from noiselab.report import figures as F  # noqa: N812
 from noiselab.report import tables as T  # noqa: N812
 from noiselab.report.outputs import write_budget_outputs, write_sweep_outputs
@@ -89,7 +90,7 @@ def test_sweep_figure_three_formats(tmp_path: Path) -> None:
     assert "two-qubit gate error (%)" in text
     assert "(mHa)" in text
     assert "h2-hand" in text and "toy-chip" in text
-    assert F.CAUTION in text
+    assert CAUTION in text  # the one caution sentence, wrapped to the figure's width
     assert (tmp_path / "sw.pdf").read_bytes()[:5] == b"%PDF-"
     # no temporary files left behind by the atomic writes
     assert sorted(p.name for p in tmp_path.iterdir()) == ["sw.pdf", "sw.png", "sw.svg"]

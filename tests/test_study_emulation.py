@@ -224,7 +224,7 @@ def test_bad_method_option_exits_2(capsys: pytest.CaptureFixture[str]) -> None:
 
 
 def test_trajectory_count_enters_the_cache_key(tmp_path: Path) -> None:
-    from noiselab.mitigate.recipe import variant_key_material
+    from noiselab.mitigate.experiment import variant_key_material
     from noiselab.mitigate.variants import CircuitVariant
     from noiselab.study.context import build_context
 

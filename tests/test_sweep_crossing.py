@@ -82,7 +82,10 @@ def test_no_crossing_and_two_crossings() -> None:
 def test_sentences_in_device_units() -> None:
     knob = get_knob("two-qubit-error")
     s = crossing_sentence("zne", knob, [0.001, 0.01], [0.5, 5.0], [0.0042], CHEMICAL_ACCURACY_MHA)
-    assert s == "zne stays within chemical accuracy while the two-qubit gate error is below 0.42 %"
+    assert s == (
+        "zne stays within chemical accuracy (±1.594 mHa) while the two-qubit gate error is below "
+        "0.42 %"
+    )
     coh = get_knob("coherence-us")
     # error falls as T1 grows: within target above the crossing
     s = crossing_sentence("raw", coh, [20.0, 200.0], [8.0, 0.8], [120.0], CHEMICAL_ACCURACY_MHA)
@@ -90,7 +93,7 @@ def test_sentences_in_device_units() -> None:
     s = crossing_sentence("raw", knob, [0.001, 0.01], [5.0, 9.0], [], CHEMICAL_ACCURACY_MHA)
     assert "does not reach chemical accuracy" in s
     s = crossing_sentence("raw", knob, [0.01], [0.5], [], CHEMICAL_ACCURACY_MHA)
-    assert s == "raw is within chemical accuracy at the two-qubit gate error of 1 %"
+    assert s == "raw is within chemical accuracy (±1.594 mHa) at the two-qubit gate error of 1 %"
 
 
 def test_recipe_crossing_band_is_earlier_than_central() -> None:

@@ -63,16 +63,16 @@ class SimulationCounter:
     """Counts calls of the emulator (every simulation that is really run)."""
 
     def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
-        import noiselab.emulate.engine as engine
+        import noiselab.mitigate.experiment as experiment
 
         self.calls = 0
-        real = engine.emulate_bases
+        real = experiment.emulate_bases
 
         def counting(*args: object, **kwargs: object) -> object:
             self.calls += 1
             return real(*args, **kwargs)
 
-        monkeypatch.setattr(engine, "emulate_bases", counting)
+        monkeypatch.setattr(experiment, "emulate_bases", counting)
 
 
 def test_interrupted_sweep_resumes_without_repeating_points(

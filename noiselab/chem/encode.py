@@ -19,18 +19,15 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, NamedTuple
+from typing import NamedTuple
 
 import numpy as np
+from qiskit.quantum_info import PauliList, SparsePauliOp
 
 from noiselab.chem import fermion
 from noiselab.chem.fermion import ENCODINGS
+from noiselab.chem.molecule import ElectronicProblem
 from noiselab.common.errors import InputError, ProblemTooLargeError
-
-if TYPE_CHECKING:
-    from qiskit.quantum_info import SparsePauliOp
-
-    from noiselab.chem.molecule import ElectronicProblem
 
 MAX_QUBITS = 40
 
@@ -97,8 +94,6 @@ def _sector_eigenvalues(n_alpha: int, n_beta: int) -> tuple[int, int]:
 
 def reduce_two_qubits(op: SparsePauliOp, n_orb: int, n_alpha: int, n_beta: int) -> SparsePauliOp:
     """Apply the parity two-qubit reduction to an operator that conserves N and N_alpha parity."""
-    from qiskit.quantum_info import PauliList, SparsePauliOp
-
     k1, k2 = n_orb - 1, 2 * n_orb - 1
     e1, e2 = _sector_eigenvalues(n_alpha, n_beta)
     x, z = op.paulis.x, op.paulis.z
@@ -114,16 +109,12 @@ def reduce_two_qubits(op: SparsePauliOp, n_orb: int, n_alpha: int, n_beta: int) 
 
 
 def _real(op: SparsePauliOp) -> SparsePauliOp:
-    from qiskit.quantum_info import SparsePauliOp
-
     if np.any(np.abs(op.coeffs.imag) > 1e-10):
         raise ValueError("operator is not Hermitian: imaginary Pauli coefficients remain")
     return SparsePauliOp(op.paulis, op.coeffs.real.astype(float))
 
 
 def _z_symmetry(mask: int, n_qubits: int) -> SparsePauliOp:
-    from qiskit.quantum_info import SparsePauliOp
-
     label = "".join("Z" if (mask >> q) & 1 else "I" for q in reversed(range(n_qubits)))
     return SparsePauliOp(label, [1.0])
 

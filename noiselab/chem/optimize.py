@@ -12,17 +12,14 @@ from __future__ import annotations
 
 import time
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
+from qiskit import QuantumCircuit
+from scipy.optimize import minimize
 
+from noiselab.chem.encode import QubitProblem
 from noiselab.chem.statevector import compile_statevector
 from noiselab.common.errors import InputError
-
-if TYPE_CHECKING:
-    from qiskit import QuantumCircuit
-
-    from noiselab.chem.encode import QubitProblem
 
 METHODS = ("BFGS", "L-BFGS-B")
 
@@ -54,8 +51,6 @@ def optimize_noiseless(
     init_scale: float = np.pi,
 ) -> OptimizationResult:
     """Minimize <psi(theta)|H|psi(theta)> over the circuit parameters."""
-    from scipy.optimize import minimize
-
     if method not in METHODS:
         raise InputError(f"optimizer.method: {method!r}; allowed: {', '.join(METHODS)}")
     if starts < 1:

@@ -12,14 +12,16 @@ import sys
 import typer
 
 from noiselab import __version__
+from noiselab.cli import commands
+from noiselab.common.errors import NoiselabError
+from noiselab.common.wording import CAUTION
 
 app = typer.Typer(
     name="noiselab",
     help=(
         "Plan energy experiments on noisy quantum devices: will this variational energy "
         "calculation reach chemical accuracy on this device, with which error mitigation "
-        "and how many shots?\n\n"
-        "Predictions are only as good as the device noise profile: planning input, not a guarantee."
+        "and how many shots?\n\n" + CAUTION
     ),
     no_args_is_help=True,
     add_completion=False,
@@ -50,8 +52,6 @@ def _root(
 
 def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
-    from noiselab.cli import commands
-
     for register in commands.REGISTRY:
         register(app)
 
@@ -72,8 +72,6 @@ INTERRUPTED = "noiselab: interrupted; finished results are kept in the cache"
 
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
-    from noiselab.common.errors import NoiselabError
-
     usage_error, click_error = _cli_error_classes()
     _register_commands()
     command = typer.main.get_command(app)

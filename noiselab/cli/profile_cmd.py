@@ -11,6 +11,11 @@ from typing import Annotated, Any
 
 import typer
 
+from noiselab.common.errors import InputError
+
+# Deliberately lazy: the device layer and rich are imported inside the command functions
+# (noiselab --help stays fast).
+
 ProfileArg = Annotated[
     Path, typer.Argument(help="Device noise profile (YAML).", show_default=False)
 ]
@@ -32,7 +37,6 @@ def check(
 
     Example: noiselab profile check configs/devices/amberline-10.yaml
     """
-    from noiselab.common.errors import InputError
     from noiselab.device.profile import load_profile, profile_warnings
 
     profile = load_profile(file)

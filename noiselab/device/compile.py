@@ -17,6 +17,12 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit import Delay, Measure, Parameter
+from qiskit.circuit.library import CXGate, CZGate, ECRGate, RZGate, SXGate, XGate
+from qiskit.transpiler import InstructionProperties, Target
+from qiskit.transpiler.exceptions import TranspilerError
+
 from noiselab.common.errors import InputError, input_error
 from noiselab.device import thermal
 from noiselab.device.noise import delay_seconds, gate_infidelity
@@ -75,10 +81,6 @@ class CompiledCircuit:
 def build_target(profile: DeviceProfile, patch: Sequence[int]) -> Any:
     """qiskit ``Target`` on circuit qubits 0..k-1 (physical ``patch``): natives with durations
     (seconds) and errors (average infidelity of the full channel), Delay and Measure."""
-    from qiskit.circuit import Delay, Measure, Parameter
-    from qiskit.circuit.library import CXGate, CZGate, ECRGate, RZGate, SXGate, XGate
-    from qiskit.transpiler import InstructionProperties, Target
-
     patch = check_patch(profile, patch)
     k = len(patch)
     target = Target(num_qubits=k, description=f"{profile.name} patch {list(patch)}")
@@ -247,8 +249,6 @@ def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]
 
 def _prepare(circuit: Any) -> Any:
     """Drop final measurements; refuse anything the emulator cannot take."""
-    from qiskit import QuantumCircuit
-
     if not isinstance(circuit, QuantumCircuit):
         raise InputError(f"circuit: expected a qiskit QuantumCircuit, got {type(circuit).__name__}")
     out = circuit.remove_final_measurements(inplace=False) if circuit.num_clbits else circuit
@@ -273,8 +273,6 @@ def synthesize_abstract(circuit: Any) -> Any:
     target-aware synthesis expand the Pauli exponentials (H2 in Jordan-Wigner: 19 instead of 48
     CZ on an all-to-all device, 39 instead of 48 on a line).
     """
-    from qiskit import transpile
-
     return transpile(
         circuit, basis_gates=["cx", "rz", "sx", "x"], optimization_level=2, seed_transpiler=0
     )
@@ -294,9 +292,6 @@ def compile_to_device(
     level 1 and above, Pauli exponentials are synthesized before routing
     (:func:`synthesize_abstract`); level 0 transpiles the circuit as given.
     """
-    from qiskit import transpile
-    from qiskit.transpiler.exceptions import TranspilerError
-
     if optimization_level not in (0, 1, 2, 3):
         raise input_error(
             None, "optimization_level", f"{optimization_level!r} is not allowed", "0, 1, 2 or 3"

@@ -47,7 +47,10 @@ Quoted gate errors are the stochastic part (relaxation during the gate included)
 
 from __future__ import annotations
 
+import copy
+import hashlib
 import itertools
+import json
 import math
 import re
 from collections.abc import Iterable, Mapping
@@ -69,6 +72,8 @@ from pydantic import (
 )
 
 from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.shipped import looks_like_name, shipped_path
+from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device import thermal
 
 SCHEMA_VERSION = 1
@@ -314,9 +319,6 @@ class DeviceProfile(BaseModel):
     @property
     def fingerprint(self) -> str:
         """SHA-256 of the canonical JSON of every value (for cache keys); source not included."""
-        import hashlib
-        import json
-
         text = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()
 
@@ -583,8 +585,6 @@ def profile_from_mapping(
 
 def load_profile(path: str | Path) -> DeviceProfile:
     """Read and validate a device profile YAML file (a path, or a shipped profile's name)."""
-    from noiselab.common.shipped import looks_like_name, shipped_path
-    from noiselab.common.yamlio import load_yaml_mapping
 
     if not Path(path).exists() and looks_like_name(str(path)):
         path = shipped_path("devices", str(path), str(path), "device profile")
@@ -671,8 +671,6 @@ def scale_profile(
 
     s = 0 on all channels is noiseless; s = 1 returns an equal profile.
     """
-    import copy
-
     try:
         s = float(factor)
     except (TypeError, ValueError):

@@ -19,14 +19,15 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
+from scipy.optimize import brentq
+from scipy.stats import norm
+
 LimitedBy = Literal["bias", "calibration", "shots", "none"]
 MAX_SHOTS = 10**15
 
 
 def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
     """Phi((t - b)/s) - Phi((-t - b)/s); a step function when s = 0."""
-    from scipy.stats import norm
-
     b, s, t = float(bias_mha), float(std_mha), float(target_mha)
     if not math.isfinite(b) or not math.isfinite(s):
         return 0.0
@@ -54,8 +55,6 @@ def assess_target(
     confidence: float,
 ) -> TargetAssessment:
     """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N)."""
-    from scipy.optimize import brentq
-
     b, t = float(bias_mha), float(target_mha)
     a, c = max(float(var_per_shot_mha2), 0.0), max(float(var_fixed_mha2), 0.0)
 

@@ -2,7 +2,7 @@
 
 No pyplot state is touched: each function builds a ``matplotlib.figure.Figure`` with an Agg
 canvas, writes it atomically and drops it, so nothing stays open and a notebook's backend is
-left alone. matplotlib is imported inside the functions (``noiselab --help`` stays fast).
+left alone. (The command line imports this module only inside its commands.)
 
 Energies are drawn as errors against the exact energy in mHa, the unit of the target.
 """
@@ -11,14 +11,23 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
 from noiselab.common.atomic import atomic_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.common.wording import CAUTION, target_words
 
-CAUTION = "emulated: only as good as the noise model"
 _FORMATS = ("svg", "pdf", "png")
 _DPI = 150
 _RAW_NAMES = ("raw", "none", "unmitigated")
@@ -69,9 +78,6 @@ class BiasBar:
 
 
 def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -80,13 +86,13 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
     # a figure-level x label is laid out below everything else (outside legends included)
-    fig.supxlabel(CAUTION, x=0.995, ha="right", fontsize=7, style="italic", color="0.4")
+    # wrapped to the figure's width (about 17 characters per inch at 7 pt)
+    caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
+    fig.supxlabel(caution, x=0.995, ha="right", ma="right", fontsize=7, style="italic", color="0.4")
     ax.grid(True, which="major", alpha=0.3)
 
 
 def _savefig(fig: Any, target: Path, fmt: str) -> None:
-    import matplotlib
-
     # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42
     with matplotlib.rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
         fig.savefig(target, format=fmt, dpi=_DPI)
@@ -115,23 +121,11 @@ def _save_all(fig: Any, stem: str | Path) -> tuple[Path, ...]:
     return tuple(out)
 
 
-def _is_chemical_accuracy(target_mha: float) -> bool:
-    return abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4
-
-
-def _target_label(target_mha: float) -> str:
-    if _is_chemical_accuracy(target_mha):
-        return f"chemical accuracy {target_mha:.3g} mHa"
-    return f"target {target_mha:.3g} mHa"
-
-
 def _is_raw(name: str) -> bool:
     return name.lower() in _RAW_NAMES
 
 
 def _colors(names: Sequence[str]) -> dict[str, Any]:
-    import matplotlib
-
     # green is kept for the target band
     cmap = matplotlib.colormaps["tab10"]
     palette = [cmap(i) for i in (0, 1, 3, 4, 5, 6, 9, 8)]
@@ -186,8 +180,6 @@ def _fit_curve(
     (E = a + b exp(-k c)), Richardson (the interpolating polynomial through the points), and an
     explicit ``curve`` ([xs], [ys]).
     """
-    import numpy as np
-
     xmax = max(scales) if scales else 1.0
     xs = np.linspace(0.0, xmax * 1.03, 90)
     curve = _get(fit, "curve")
@@ -419,9 +411,6 @@ def plot_bias_bars(
     Bars are green when |bias| + std is within the target, amber when only |bias| is, red
     otherwise.
     """
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
     study, device, target, bars = bias_bars(assess_result_or_records)
     study, device = study_name or study, device_name or device
     fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
@@ -461,7 +450,7 @@ def plot_bias_bars(
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("|energy − exact energy| (mHa)")
     handles = [
-        Line2D([], [], color="tab:green", ls="--", label=_target_label(target)),
+        Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
         Patch(color=verdict["green"], alpha=0.8, label="within target, even with 1 std"),
         Patch(color=verdict["amber"], alpha=0.8, label="bias within, shot noise not"),
         Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
@@ -500,7 +489,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
-    ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
+    ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
         for x in c_.crossings:
@@ -547,8 +536,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     positive = [v for v in all_vals if v > floor]
     ax.set_ylim(max(min(positive) / 3.0, floor), max(positive) * 3.0)
     if sweep_result.log:
-        from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
         ax.set_xscale("log")
         # plain numbers at 1, 2, 5 x 10^k read better than 2 x 10^-1 in a proposal
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
@@ -574,8 +561,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
 def plot_budget(budget_result: Any, path: str | Path) -> Path:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
-    from matplotlib.patches import Patch
-
     b = budget_result
     rows = list(b.rows)
     order = [
@@ -642,9 +627,7 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     handles.append(
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
     )
-    from matplotlib.lines import Line2D
-
-    handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
+    handles.append(Line2D([], [], color="tab:green", ls="--", label=target_words(t)))
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
     return _save(fig, path)

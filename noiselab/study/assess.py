@@ -9,12 +9,17 @@ from __future__ import annotations
 
 import contextlib
 import json
+import os
 import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.atomic import write_text_atomic
+from noiselab.common.errors import InputError
 from noiselab.common.shipped import shipped_path
+from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
 from noiselab.study.context import (
     StudyContext,
@@ -50,10 +55,6 @@ def resolve_study(
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
     """Job-key options of the emulation overrides; "auto" depends on the memory available, so
     the test override of the memory guard enters too."""
-    import os
-
-    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
-
     return {
         "method": method,
         "trajectories": trajectories,
@@ -71,14 +72,43 @@ def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCac
     return open_cache(cache)
 
 
+def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, Any]:
+    """Fields that every assess and tune result takes from the study, its context and the run."""
+    return {
+        "context": ctx.summary(),
+        "target_mha": study.target_mha,
+        "confidence": study.confidence,
+        "shots": study.shots,
+        "seed": study.seed,
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
+def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
+    """The stored result of an identical earlier job (``cls.from_record``), or None.
+
+    A record that no longer rebuilds (written by another version) counts as a miss.
+    """
+    hit = store.get(JOB_KIND, key) if key is not None else None
+    if hit is not None:
+        with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+            return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
+    return None
+
+
+def save_job_result(store: ResultsCache, key: str | None, result: Any) -> None:
+    """Store a job's result under ``key`` for :func:`load_job_result` (None: not stored)."""
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), result.stats.wall_seconds)
+
+
 def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
     """Refuse recipes that do not fit this experiment (e.g. post-selection without symmetries).
 
     The error names the study file and ``recipes.<name>[i].<option>``.
     """
-    from noiselab.common.errors import InputError
-    from noiselab.mitigate.recipe import parse_recipe
-
     source = str(ctx.study.source)
     for name, passes in recipes.items():
         where = f"recipes.{name}"
@@ -99,8 +129,6 @@ def run_recipes(
     label: str = "recipes",
 ) -> dict[str, Any]:
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
-    from noiselab.mitigate.recipe import run_recipe
-
     out: dict[str, Any] = {}
     total = len(recipes)
     if progress is not None:
@@ -139,11 +167,9 @@ def assess(
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
         key = job_key("assess", study_or_path, options)
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return AssessResult.from_record(json.loads(hit[0]), stats)
+        stored = load_job_result(store, key, AssessResult, t0)
+        if stored is not None:
+            return stored
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
@@ -156,38 +182,21 @@ def assess(
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
-    stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
-        wall_seconds=time.perf_counter() - t0,
-    )
+    stats = RunStats.of_runner(runner, t0)
     result = AssessResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         recipes=results,
         passes=dict(study.recipes),
         best_recipe=best,
         reachable=reachable,
         verdict=verdict,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
 
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
     """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
-    import json
-
-    from noiselab.common.atomic import write_text_atomic
-
     folder = Path(out)
     return [
         write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),

@@ -10,8 +10,21 @@ in mHa. The compiled circuit and measurement plan are those of the study, reused
 from __future__ import annotations
 
 import dataclasses
+import time
 from collections.abc import Callable
 from typing import Any
+
+from noiselab.device.profile import scale_profile
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.context import build_context
+from noiselab.study.results import RunStats, trajectory_std_of
+from noiselab.study.sweep import (
+    ConfigTask,
+    chosen_recipes,
+    own_executor,
+    run_configs,
+    scan_fields,
+)
 
 CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
 
@@ -106,8 +119,6 @@ def dominant_channel(
 def configurations(profile: Any) -> list[tuple[str, str, str | None, Any]]:
     """(label, kind, channel, profile) for the device as profiled, each channel alone, each
     channel removed, and the noiseless limit."""
-    from noiselab.device.profile import scale_profile
-
     out: list[tuple[str, str, str | None, Any]] = [("all channels", "total", None, profile)]
     for c in CHANNELS:
         others = [o for o in CHANNELS if o != c]
@@ -140,11 +151,6 @@ def budget(
     ``cluster`` (a Dask scheduler address or Client) on a cluster. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    import time
-
-    from noiselab.study.assess import _default_cache, resolve_study
-    from noiselab.study.sweep import chosen_recipes, own_executor
-
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     picked = chosen_recipes(study, [] if recipe is None else [recipe])
@@ -162,12 +168,6 @@ def _budget_with(
     context: Any,
     t0: float,
 ) -> BudgetResult:
-    import time
-
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats, trajectory_std_of
-    from noiselab.study.sweep import ConfigTask, run_configs
-
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     configs = configurations(study.profile)
     tasks = [ConfigTask(ctx.experiment, prof, picked, store) for _, _, _, prof in configs]
@@ -199,25 +199,10 @@ def _budget_with(
     if len(names) > 1:
         _, sentence2 = dominant_channel(rows, 1, target)
         sentence += f"; {names[1]}: {sentence2}"
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
-    )
+    stats = RunStats.of_outcomes(outs, t0, described)
     return BudgetResult(
-        study_name=study.name,
-        device_name=str(study.profile.name),
-        recipes=names,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
         rows=rows,
         dominant=dom,
         sentence=sentence,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

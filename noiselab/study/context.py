@@ -13,7 +13,17 @@ import time
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
-from noiselab.common.errors import InputError, input_error
+from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
+from noiselab.chem.encode import encode
+from noiselab.chem.molecule import compute_problem
+from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
+from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
+from noiselab.device.compile import compile_to_device
+from noiselab.emulate.engine import choose_method
+from noiselab.emulate.memory import check_memory
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.plan import build_plan
+from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
@@ -34,7 +44,7 @@ class StudyContext:
     optimum: Any  # noiselab.chem.optimize.OptimizationResult
     compiled: Any  # noiselab.device.compile.CompiledCircuit (bound at the optimum)
     plan: Any  # noiselab.mitigate.plan.MeasurementPlan
-    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    experiment: Any  # noiselab.mitigate.experiment.ExperimentContext
     seconds: dict[str, float]
     #: "density_matrix" or "trajectory": what the emulator will use (the study's method resolved
     #: against the memory guard for this circuit width), and the one-line notice when "auto"
@@ -79,8 +89,6 @@ class StudyContext:
 
 def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
     """The study's parameterized trial circuit on the logical qubits."""
-    from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
-
     a = study.ansatz
     if isinstance(a, LayeredAnsatz):
         n = int(qubit_problem.num_qubits)
@@ -107,8 +115,6 @@ def _optimum_key(study: Study) -> str:
 
 def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache | None) -> Any:
     """Noiseless optimum of the trial circuit (read from / written to the cache)."""
-    from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
-
     key = _optimum_key(study)
     if cache is not None:
         hit = cache.get(OPTIMUM_KIND, key)
@@ -133,8 +139,6 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
 
 def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
     """Whether any of these recipes (lists of pass entries) runs symmetry verification."""
-    from noiselab.mitigate.registry import make_pass
-
     for passes in recipes:
         for entry in passes:
             if entry.get("pass") == "postselect" and make_pass(entry).spec()["mode"] == "verify":
@@ -157,10 +161,6 @@ def build_context(
     """
     if verification is None:
         verification = recipes_verify(study.recipes.values())
-    from noiselab.chem.encode import encode
-    from noiselab.chem.molecule import compute_problem
-    from noiselab.device.compile import compile_to_device
-    from noiselab.mitigate.plan import build_plan
 
     steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
     seconds: dict[str, float] = {}
@@ -248,10 +248,6 @@ def resolve_emulation(
     here, before any simulation: one line naming the study file, the qubit count and the
     memory estimate in GiB.
     """
-    from noiselab.common.errors import ProblemTooLargeError
-    from noiselab.emulate.engine import choose_method
-    from noiselab.emulate.memory import check_memory
-
     e = study.emulation
     try:
         method, notice = choose_method(
@@ -275,8 +271,6 @@ def make_experiment(
 ) -> Any:
     """Mitigation's ExperimentContext for this study (budget, target, seed included);
     ``verification``: whether it measures the symmetry-verification bases."""
-    from noiselab.mitigate.recipe import ExperimentContext
-
     return ExperimentContext(
         problem=qp,
         compiled=compiled,

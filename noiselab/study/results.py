@@ -7,20 +7,18 @@ form is deterministic for a given study and seed: timings and cache statistics a
 
 from __future__ import annotations
 
+import csv
 import dataclasses
+import io
 import math
+import time
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.result import RecipeResult
-
-CAUTION = (
-    "Caution: this prediction is only as good as the device noise model; real devices drift "
-    "and have errors a profile does not describe."
-)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -33,6 +31,33 @@ class RunStats:
     wall_seconds: float
     executor: str = "in-process"
     reused: bool = False  # the whole result came from the results cache
+
+    @classmethod
+    def of_runner(cls, runner: Any, t0: float, executor: str = "in-process") -> RunStats:
+        """Counts of one caching runner, wall time since ``t0`` (``time.perf_counter``)."""
+        return cls(
+            simulations=runner.simulations,
+            cache_hits=runner.cache_hits,
+            engine_seconds=runner.engine_seconds,
+            wall_seconds=time.perf_counter() - t0,
+            executor=executor,
+        )
+
+    @classmethod
+    def of_outcomes(cls, outs: Sequence[Any], t0: float, executor: str) -> RunStats:
+        """Counts summed over the outcomes of a job's tasks, wall time since ``t0``."""
+        return cls(
+            simulations=sum(o.simulations for o in outs),
+            cache_hits=sum(o.cache_hits for o in outs),
+            engine_seconds=sum(o.engine_seconds for o in outs),
+            wall_seconds=time.perf_counter() - t0,
+            executor=executor,
+        )
+
+    @classmethod
+    def reused_since(cls, t0: float) -> RunStats:
+        """The stats of a job whose whole result was read from the results cache."""
+        return cls(0, 0, 0.0, time.perf_counter() - t0, reused=True)
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -110,12 +135,6 @@ def best_of(results: Mapping[str, Any]) -> str:
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
 
 
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 5e-4:
-        return f"chemical accuracy (±{target_mha:.4g} mHa)"
-    return f"the ±{target_mha:.4g} mHa target"
-
-
 def verdict_line(
     best_name: str,
     best: Any,
@@ -125,7 +144,7 @@ def verdict_line(
     what: str = "recipe",
 ) -> tuple[bool, str]:
     """(reachable at the budget, one plain sentence naming the best recipe)."""
-    goal = _target_words(target_mha)
+    goal = target_words(target_mha)
     p = float(best.p_within_target)
     needed = best.shots_needed
     if p >= confidence:
@@ -232,15 +251,15 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     return out
 
 
-TABLE_HEADERS = (
-    "recipe",
-    "energy (Ha)",
+#: Columns every scored row has (a recipe of assess, a setting of tune).
+SCORE_HEADERS = (
     "bias (mHa)",
     "std. error (mHa)",
     "P(within target)",
     "shots needed",
     "limited by",
 )
+TABLE_HEADERS = ("recipe", "energy (Ha)", *SCORE_HEADERS)
 #: Extra assess column when the trajectory method was used (its own statistical error).
 TRAJECTORY_HEADER = "trajectory error (mHa)"
 
@@ -250,6 +269,57 @@ def trajectory_std_of(result: Any) -> float | None:
     details = getattr(result, "details", {}) or {}
     value = details.get("trajectory_std_mha") if isinstance(details, Mapping) else None
     return None if value is None else float(value)
+
+
+def _settings_json(result: Any) -> dict[str, Any]:
+    """The run settings that open the JSON of assess and tune (after the context)."""
+    return {
+        "target_mha": result.target_mha,
+        "confidence": result.confidence,
+        "shots_budget": result.shots,
+        "seed": result.seed,
+        "emulation_method": result.emulation_method,
+        "emulation_notice": result.emulation_notice,
+    }
+
+
+def _record_start(result: Any) -> dict[str, Any]:
+    """First fields of an assess or tune record (see ``to_record``)."""
+    return {
+        "context": dataclasses.asdict(result.context),
+        "target_mha": result.target_mha,
+        "confidence": result.confidence,
+        "shots": result.shots,
+        "seed": result.seed,
+    }
+
+
+def _record_end(result: Any) -> dict[str, Any]:
+    """Last fields of an assess or tune record."""
+    return {
+        "verdict": result.verdict,
+        "caution": result.caution,
+        "emulation_method": result.emulation_method,
+        "emulation_notice": result.emulation_notice,
+    }
+
+
+def _common_fields(rec: Mapping[str, Any], stats: RunStats) -> dict[str, Any]:
+    """Constructor fields that assess and tune results share, from a record."""
+    ctx = dict(rec["context"])
+    ctx["patch"] = tuple(ctx["patch"])
+    return {
+        "context": ContextSummary(**ctx),
+        "target_mha": rec["target_mha"],
+        "confidence": rec["confidence"],
+        "shots": rec["shots"],
+        "seed": rec["seed"],
+        "verdict": rec["verdict"],
+        "stats": stats,
+        "caution": rec["caution"],
+        "emulation_method": rec.get("emulation_method", "density_matrix"),
+        "emulation_notice": rec.get("emulation_notice"),
+    }
 
 
 @dataclasses.dataclass(frozen=True)
@@ -288,12 +358,7 @@ class AssessResult:
         out = self.context.to_json()
         out.update(
             {
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots_budget": self.shots,
-                "seed": self.seed,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_settings_json(self),
                 "units": {
                     "energy": "Ha",
                     "bias, std, trajectory_std": "mHa",
@@ -316,42 +381,24 @@ class AssessResult:
         """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
         return jsonable(
             {
-                "context": dataclasses.asdict(self.context),
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots": self.shots,
-                "seed": self.seed,
+                **_record_start(self),
                 "recipes": {n: dataclasses.asdict(r) for n, r in self.recipes.items()},
                 "passes": {n: list(p) for n, p in self.passes.items()},
                 "best_recipe": self.best_recipe,
                 "reachable": self.reachable,
-                "verdict": self.verdict,
-                "caution": self.caution,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_record_end(self),
             }
         )
 
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> AssessResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
         return cls(
-            context=ContextSummary(**ctx),
-            target_mha=rec["target_mha"],
-            confidence=rec["confidence"],
-            shots=rec["shots"],
-            seed=rec["seed"],
             recipes={n: _rebuild(RecipeResult, r) for n, r in rec["recipes"].items()},
             passes={n: tuple(p) for n, p in rec["passes"].items()},
             best_recipe=rec["best_recipe"],
             reachable=rec["reachable"],
-            verdict=rec["verdict"],
-            stats=stats,
-            caution=rec["caution"],
-            emulation_method=rec.get("emulation_method", "density_matrix"),
-            emulation_notice=rec.get("emulation_notice"),
+            **_common_fields(rec, stats),
         )
 
     def table_headers(self) -> tuple[str, ...]:
@@ -407,9 +454,24 @@ def _rebuild(cls: Any, data: Mapping[str, Any]) -> Any:
 
 
 def _row(name: str, r: Any) -> tuple[str, ...]:
+    return (name, f"{float(r.energy_ha):.6f}", *_score_cells(r))
+
+
+def score_values(r: Any) -> dict[str, Any]:
+    """Energy and score of a recipe result as CSV values (units in the keys)."""
+    return {
+        "energy_ha": float(r.energy_ha),
+        "bias_mha": float(r.bias_exact_mha),
+        "std_mha": float(r.std_mha),
+        "p_within_target": float(r.p_within_target),
+        "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
+        "limited_by": str(r.limited_by),
+    }
+
+
+def _score_cells(r: Any) -> tuple[str, ...]:
+    """The SCORE_HEADERS cells of a recipe result, formatted for people."""
     return (
-        name,
-        f"{float(r.energy_ha):.6f}",
         f"{float(r.bias_exact_mha):+.3f}",
         f"{float(r.std_mha):.3f}",
         f"{float(r.p_within_target):.3f}",
@@ -429,15 +491,7 @@ class TuneEntry:
     result: Any  # RecipeResult
 
 
-TUNE_HEADERS = (
-    "rank",
-    "setting",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
+TUNE_HEADERS = ("rank", "setting", *SCORE_HEADERS)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -467,17 +521,7 @@ class TuneResult:
             r = e.result
             row: dict[str, Any] = {"rank": e.rank, "setting": e.label}
             row.update({k: _csv_value(v) for k, v in e.setting.items()})
-            row.update(
-                {
-                    "energy_ha": float(r.energy_ha),
-                    "bias_mha": float(r.bias_exact_mha),
-                    "std_mha": float(r.std_mha),
-                    "p_within_target": float(r.p_within_target),
-                    "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
-                    "limited_by": str(r.limited_by),
-                    "n_circuits": int(r.n_circuits),
-                }
-            )
+            row.update({**score_values(r), "n_circuits": int(r.n_circuits)})
             if self.emulation_method == "trajectory":
                 t = trajectory_std_of(r)
                 row["trajectory_std_mha"] = "" if t is None else t
@@ -487,29 +531,14 @@ class TuneResult:
     def table_rows(self, top: int = 10) -> list[tuple[str, ...]]:
         out = []
         for e in self.entries[:top]:
-            r = e.result
-            out.append(
-                (
-                    str(e.rank),
-                    e.label,
-                    f"{float(r.bias_exact_mha):+.3f}",
-                    f"{float(r.std_mha):.3f}",
-                    f"{float(r.p_within_target):.3f}",
-                    format_count(r.shots_needed) if r.shots_needed is not None else "never",
-                    str(r.limited_by),
-                )
-            )
+            out.append((str(e.rank), e.label, *_score_cells(e.result)))
         return out
 
     def to_record(self) -> dict[str, Any]:
         """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
         return jsonable(
             {
-                "context": dataclasses.asdict(self.context),
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots": self.shots,
-                "seed": self.seed,
+                **_record_start(self),
                 "entries": [
                     {
                         "rank": e.rank,
@@ -521,18 +550,13 @@ class TuneResult:
                     for e in self.entries
                 ],
                 "distinct_variants": self.distinct_variants,
-                "verdict": self.verdict,
-                "caution": self.caution,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_record_end(self),
             }
         )
 
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> TuneResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
         entries = tuple(
             TuneEntry(
                 rank=e["rank"],
@@ -544,30 +568,16 @@ class TuneResult:
             for e in rec["entries"]
         )
         return cls(
-            context=ContextSummary(**ctx),
-            target_mha=rec["target_mha"],
-            confidence=rec["confidence"],
-            shots=rec["shots"],
-            seed=rec["seed"],
             entries=entries,
             distinct_variants=rec["distinct_variants"],
-            stats=stats,
-            verdict=rec["verdict"],
-            caution=rec["caution"],
-            emulation_method=rec.get("emulation_method", "density_matrix"),
-            emulation_notice=rec.get("emulation_notice"),
+            **_common_fields(rec, stats),
         )
 
     def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
         out = self.context.to_json()
         out.update(
             {
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots_budget": self.shots,
-                "seed": self.seed,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_settings_json(self),
                 "settings": len(self.entries),
                 "distinct_variants": self.distinct_variants,
                 "ranking": [
@@ -601,9 +611,6 @@ def _csv_value(v: Any) -> Any:
 
 def csv_text(rows: Sequence[Mapping[str, Any]]) -> str:
     """CSV text of ``rows`` (columns from the first row, then any new keys in order)."""
-    import csv
-    import io
-
     columns: list[str] = []
     for row in rows:
         for k in row:

@@ -7,7 +7,9 @@ profile loaded, molecule and recipes validated by their own layers). Every probl
 
 from __future__ import annotations
 
+import dataclasses
 import math
+import os
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -25,10 +27,15 @@ from pydantic import (
     model_validator,
 )
 
+from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
 from noiselab.common.errors import InputError, from_validation_error, input_error
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
+from noiselab.device.profile import load_profile, profile_from_mapping
+from noiselab.mitigate.recipe import parse_recipe
+from noiselab.study.grid import check_tune_section
+from noiselab.study.knobs import KNOB_ALIASES, KNOBS
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 MAX_SHOTS = 10**12
@@ -139,8 +146,6 @@ class SweepDefaults(_Strict):
     def _check_vary(cls, value: str | None) -> str | None:
         if value is None:
             return value
-        from noiselab.study.sweep import KNOB_ALIASES, KNOBS
-
         if KNOB_ALIASES.get(value, value) not in KNOBS:
             raise ValueError(f"unknown knob {value!r}; allowed: {', '.join(KNOBS)}")
         return value
@@ -303,7 +308,6 @@ class Study:
         """The same study with another seed (None keeps the file's)."""
         if seed is None or seed == self.seed:
             return self
-        import dataclasses
 
         return dataclasses.replace(self, seed=int(seed))
 
@@ -312,7 +316,6 @@ class Study:
         (command-line ``--method`` / ``--trajectories``; None keeps the study's)."""
         if method is None and trajectories is None:
             return self
-        import dataclasses
 
         data = self.emulation.model_dump()
         if method is not None:
@@ -336,7 +339,6 @@ class Study:
             return self
         if shots <= 0:
             raise input_error(str(self.source), "--shots", f"{shots} shots", "a positive integer")
-        import dataclasses
 
         return dataclasses.replace(self, shots=int(shots))
 
@@ -368,9 +370,6 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             "two_qubit_reduction: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
-
-    from noiselab.chem.molecule import molecule_from_mapping
-
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
     profile, device_source = _resolve_device(spec.device, src_path)
     recipes = {
@@ -407,8 +406,6 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             )
         layout = tuple(spec.layout)
     if spec.tune is not None:
-        from noiselab.study.tune import check_tune_section
-
         check_tune_section(spec.tune, src)
     if spec.sweep is not None and spec.sweep.recipes is not None:
         for i, name in enumerate(spec.sweep.recipes):
@@ -454,15 +451,11 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
 
 def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
     """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
-    from noiselab.chem.molecule import count_orbitals
-
     n = 2 * count_orbitals(molecule)
     return n - 2 if two_qubit_reduction and encoding == "parity" else n
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
-    from noiselab.device.profile import load_profile, profile_from_mapping
-
     src = str(study_path)
     if isinstance(value, dict):
         # the profile layer writes "<source>: <key>: ..."; make its keys read device.<key>
@@ -501,8 +494,6 @@ def device_profile_path(value: str, study_path: Path) -> Path:
 
 
 def _normpath(p: Path) -> str:
-    import os
-
     return os.path.normpath(str(p))
 
 
@@ -529,8 +520,6 @@ def validate_recipe(
 
     Returns the passes with every option filled in (the registry's defaults).
     """
-    from noiselab.mitigate.recipe import parse_recipe
-
     try:
         return tuple(parse_recipe(list(passes), where=key).spec())
     except InputError as exc:

@@ -18,97 +18,22 @@ import contextlib
 import dataclasses
 import itertools
 import math
+import time
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 from noiselab.common.errors import input_error
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
-from noiselab.device.profile import MAX_READOUT_ERROR, MAX_SINGLE_QUBIT_ERROR, MAX_TWO_QUBIT_ERROR
+from noiselab.common.wording import CAUTION, target_words
+from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, scale_profile
+from noiselab.mitigate.recipe import run_recipe
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.cache import CachingRunner
+from noiselab.study.context import build_context
+from noiselab.study.executor import make_executor
+from noiselab.study.knobs import Knob, get_knob
+from noiselab.study.results import RunStats, trajectory_std_of
 
-# ---------------------------------------------------------------- knobs
-
-
-@dataclasses.dataclass(frozen=True)
-class Knob:
-    """One sweepable quantity.
-
-    ``value`` is in base units (a probability 0..1, microseconds, or a bare factor);
-    ``display_factor`` converts it to the units shown (100 for percent).
-    ``inverse`` is True when the channel's scale factor is reference / value (coherence times:
-    a longer T1 means a smaller relaxation rate).
-    """
-
-    name: str
-    phrase: str  # used in sentences: "the two-qubit gate error"
-    axis_label: str  # with units
-    unit: str  # shown after a value ("%", "us", "")
-    channels: tuple[str, ...] | None  # None: every channel (uniform noise scale)
-    display_factor: float = 1.0
-    inverse: bool = False
-    upper: float | None = None  # largest allowed value (base units)
-    allow_zero: bool = True
-
-    def show(self, value: float) -> str:
-        """``value`` (base units) in display units with three significant digits."""
-        v = value * self.display_factor
-        text = f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
-        return f"{text} {self.unit}" if self.unit else text
-
-
-KNOBS: dict[str, Knob] = {
-    "noise-scale": Knob(
-        name="noise-scale",
-        phrase="the noise scale factor",
-        axis_label="noise scale factor (1 = device as profiled)",
-        unit="",
-        channels=None,
-    ),
-    "two-qubit-error": Knob(
-        name="two-qubit-error",
-        phrase="the two-qubit gate error",
-        axis_label="two-qubit gate error (%)",
-        unit="%",
-        channels=("two_qubit",),
-        display_factor=100.0,
-        upper=MAX_TWO_QUBIT_ERROR,
-    ),
-    "one-qubit-error": Knob(
-        name="one-qubit-error",
-        phrase="the single-qubit gate error",
-        axis_label="single-qubit gate error (%)",
-        unit="%",
-        channels=("single_qubit",),
-        display_factor=100.0,
-        upper=MAX_SINGLE_QUBIT_ERROR,
-    ),
-    "coherence-us": Knob(
-        name="coherence-us",
-        phrase="T1 (with T2 scaled alongside)",
-        axis_label="T1 (us), T2 scaled with it",
-        unit="us",
-        channels=("relaxation",),
-        inverse=True,
-        allow_zero=False,
-    ),
-    "readout-error": Knob(
-        name="readout-error",
-        phrase="the readout assignment error",
-        axis_label="readout assignment error (%)",
-        unit="%",
-        channels=("readout",),
-        display_factor=100.0,
-        upper=MAX_READOUT_ERROR,
-    ),
-}
-KNOB_ALIASES = {"scale": "noise-scale"}
-
-
-def get_knob(name: str) -> Knob:
-    """The knob called ``name``; InputError naming the allowed ones otherwise."""
-    key = KNOB_ALIASES.get(name, name)
-    if key not in KNOBS:
-        raise input_error("sweep", "--vary", f"unknown knob {name!r}", ", ".join(KNOBS))
-    return KNOBS[key]
+# ---------------------------------------------------------------- knob values
 
 
 def check_value(knob: Knob, value: float, option: str, log: bool = False) -> float:
@@ -284,7 +209,7 @@ class SweepResult:
             ],
             "crossings": [dataclasses.asdict(c) for c in self.crossings],
             "notes": list(self.notes()),
-            "caution": "emulated: only as good as the device noise model",
+            "caution": CAUTION,
         }
 
 
@@ -377,12 +302,6 @@ def band_crossings(
     return tuple(out)
 
 
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4:
-        return "chemical accuracy"
-    return f"the {target_mha:.3g} mHa target"
-
-
 def crossing_sentence(
     recipe: str,
     knob: Knob,
@@ -393,7 +312,7 @@ def crossing_sentence(
 ) -> str:
     """One sentence in the device's own units, e.g. 'raw stays within chemical accuracy while
     the two-qubit gate error is below 0.42 %'."""
-    goal = _target_words(target_mha)
+    goal = target_words(target_mha)
     inside = [abs(e) <= target_mha for e in errors_mha]
     lo, hi = min(values), max(values)
     span = f"{knob.show(lo)} to {knob.show(hi)}"
@@ -450,7 +369,7 @@ class ConfigTask:
     """One noise configuration to evaluate: the study's experiment with ``profile`` swapped in,
     every recipe run through a caching runner on ``cache`` (picklable: executor task)."""
 
-    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    experiment: Any  # noiselab.mitigate.experiment.ExperimentContext
     profile: Any  # DeviceProfile of this configuration
     recipes: tuple[tuple[str, tuple[dict[str, Any], ...]], ...]
     cache: Any  # ResultsCache (reopened in a worker process)
@@ -468,9 +387,6 @@ class ConfigOutcome:
 
 def run_config(task: ConfigTask) -> ConfigOutcome:
     """Run ``task`` (module level, so process pools and dask can run it)."""
-    from noiselab.mitigate.recipe import run_recipe
-    from noiselab.study.cache import CachingRunner
-
     experiment = dataclasses.replace(task.experiment, profile=task.profile)
     runner = CachingRunner(experiment, task.cache)
     results = tuple(
@@ -519,8 +435,6 @@ def run_configs(
 ) -> tuple[list[ConfigOutcome], str]:
     """Evaluate ``tasks`` in order, in-process or through the study executor; ``on_done(i, out)``
     runs in the calling process after each task (in task order for in-process runs)."""
-    from noiselab.study.executor import make_executor
-
     own = executor is None
     ex = make_executor(workers) if own else executor
     try:
@@ -539,10 +453,26 @@ def run_configs(
             ex.close()
 
 
+def scan_fields(
+    study: Any, ctx: Any, recipes: tuple[str, ...], stats: RunStats
+) -> dict[str, Any]:
+    """Fields that sweep and budget results take from the study, its context and the run."""
+    return {
+        "study_name": study.name,
+        "device_name": str(study.profile.name),
+        "recipes": recipes,
+        "target_mha": float(study.target_mha),
+        "shots_total": int(study.shots),
+        "exact_energy_ha": float(ctx.exact_energy_ha),
+        "ansatz_energy_ha": float(ctx.ansatz_energy_ha),
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
 def entry_from(name: str, r: Any) -> SweepEntry:
     """A SweepEntry from a RecipeResult."""
-    from noiselab.study.results import trajectory_std_of
-
     return SweepEntry(
         recipe=name,
         energy_ha=float(r.energy_ha),
@@ -593,8 +523,6 @@ def below_relaxation_floor(knob: Knob, profile: Any, patch: Sequence[int]) -> bo
     """True when a gate-error knob's scaled value is below what T1/T2 alone cause over the gate
     on some qubit or pair of the patch (the noise model then uses relaxation alone, so lowering
     the knob further changes nothing)."""
-    from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity
-
     if knob.name == "two-qubit-error":
         gate = profile.two_qubit_gate
         return any(
@@ -659,10 +587,6 @@ def sweep(
     point)`` is called in the calling process as each point finishes. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    import time
-
-    from noiselab.study.assess import _default_cache, resolve_study
-
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     defaults = getattr(study, "sweep", None)
@@ -707,7 +631,6 @@ def own_executor(workers: int | None, cluster: Any, executor: Any) -> Iterator[A
     if executor is not None:
         yield executor
         return
-    from noiselab.study.executor import make_executor
 
     ex = make_executor(workers, cluster)
     try:
@@ -732,12 +655,6 @@ def _sweep_with(
     context: Any,
     t0: float,
 ) -> SweepResult:
-    import time
-
-    from noiselab.device.profile import scale_profile
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats
-
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     profile = study.profile
     patch = tuple(ctx.compiled.patch)
@@ -778,27 +695,12 @@ def _sweep_with(
     )
     names = tuple(n for n, _ in picked)
     crossings = tuple(recipe_crossing(n, spec, pts, study.target_mha, log) for n in names)
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
-    )
+    stats = RunStats.of_outcomes(outs, t0, described)
     return SweepResult(
-        study_name=study.name,
-        device_name=str(profile.name),
         knob=spec.name,
         log=log,
         current_value=ref,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
-        recipes=names,
         points=pts,
         crossings=crossings,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

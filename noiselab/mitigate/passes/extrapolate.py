@@ -25,9 +25,11 @@ from typing import Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import Field, field_validator, model_validator
+from scipy.optimize import curve_fit
 
 from noiselab.mitigate.base import STAGE_COMBINE, MitigationPass, PassOptions, Workspace
 from noiselab.mitigate.estimate import Estimate, linear_combination
+from noiselab.mitigate.experiment import actual_scale
 from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
 
 ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
@@ -106,8 +108,6 @@ def exponential_fit(
     k is kept in (0, EXP_MAX_DECAY / (c_max - c_min)]: a steeper decay is not resolved by the
     points (the data beyond the first would be flat) and would amplify noise without bound.
     Raises ValueError when the fit fails or k ends on a bound."""
-    from scipy.optimize import curve_fit
-
     c = np.asarray(scales, dtype=float)
     y = np.asarray(energies, dtype=float)
     k_max = EXP_MAX_DECAY / float(c.max() - c.min())
@@ -189,8 +189,6 @@ class ExtrapolatePass(MitigationPass):
     def combine(
         self, variants: tuple[CircuitVariant, ...], estimates: list[Estimate], ws: Workspace
     ) -> Estimate:
-        from noiselab.mitigate.recipe import actual_scale
-
         scales = np.array([actual_scale(ws.ctx, v) for v in variants])
         energies = np.array([e.value for e in estimates])
         value, gamma, info = self.coefficients(scales, energies)
