@@ -11,16 +11,23 @@ studies' fixed seeds and an isolated temporary results cache:
 Only volatile fields are dropped (run statistics and timings, file paths); everything else is
 kept as the jobs write it. ``tests/test_golden.py`` recomputes these and compares.
 
+The script always runs single-threaded with a fixed hash seed and without NOISELAB_* overrides
+(it re-executes itself so if needed): with several OpenMP threads the noiseless optimum of the
+LiH study differs between processes in its last digits, and the compiled circuit (depth 85-87)
+and every energy after it differ with it.
+
 Regenerate deliberately (only when a change of values is intended), from the repository root:
 
     PYTHONPATH=$PWD python tests/golden/make_golden.py
 
 and commit the new files with a message that says why the values changed.
+``--out DIR`` writes the files into DIR instead (what the test does).
 """
 
 from __future__ import annotations
 
 import json
+import os
 import sys
 import tempfile
 from pathlib import Path
@@ -32,6 +39,14 @@ STUDIES = ROOT / "configs" / "studies"
 DEMO = "h2-equilibrium"
 SWEEP_KNOB = "two-qubit-error"
 SWEEP_POINTS = 3
+
+#: Environment the computation runs in (threads: see the module docstring).
+PINNED_ENV = {
+    "OMP_NUM_THREADS": "1",
+    "OPENBLAS_NUM_THREADS": "1",
+    "MKL_NUM_THREADS": "1",
+    "PYTHONHASHSEED": "0",
+}
 
 #: Keys dropped wherever they appear: timings and file paths (vary by machine and checkout).
 VOLATILE_KEYS = frozenset({"source", "device_source", "run", "engine_seconds", "wall_seconds"})
@@ -74,14 +89,34 @@ def dump(obj: Any) -> str:
     return json.dumps(obj, indent=1, sort_keys=True) + "\n"
 
 
-def main() -> int:
+def pinned_environment(env: dict[str, str]) -> dict[str, str]:
+    """``env`` with the pinned values and without noiselab's own overrides."""
+    out = {k: v for k, v in env.items() if not k.startswith("NOISELAB_")}
+    out.update(PINNED_ENV)
+    paths = [p for p in env.get("PYTHONPATH", "").split(os.pathsep) if p]
+    if str(ROOT) not in paths:
+        paths.insert(0, str(ROOT))
+    out["PYTHONPATH"] = os.pathsep.join(paths)
+    return out
+
+
+def main(argv: list[str]) -> int:
+    env = pinned_environment(dict(os.environ))
+    if env != dict(os.environ):  # once: the pinned environment is a fixed point
+        os.execve(sys.executable, [sys.executable, __file__, *argv], env)
+    out = GOLDEN_DIR
+    if argv[:1] == ["--out"] and len(argv) == 2:
+        out = Path(argv[1])
+    elif argv:
+        print("usage: make_golden.py [--out DIR]", file=sys.stderr)
+        return 2
     with tempfile.TemporaryDirectory(prefix="noiselab-golden-") as tmp:
         goldens = compute_goldens(Path(tmp))
     for name, obj in goldens.items():
-        (GOLDEN_DIR / name).write_text(dump(obj))
-        print(f"wrote {GOLDEN_DIR / name}")
+        (out / name).write_text(dump(obj))
+        print(f"wrote {out / name}")
     return 0
 
 
 if __name__ == "__main__":
-    sys.exit(main())
+    sys.exit(main(sys.argv[1:]))
