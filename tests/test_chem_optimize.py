@@ -21,7 +21,7 @@ def h2():
 def test_uccsd_reaches_h2_fci(h2, encoding, reduced):
     from pyscf import fci, gto, scf
 
-    qp = encode(h2, encoding, two_qubit_reduction=reduced)
+    qp = encode(h2, encoding, drop_fixed_parity_qubits=reduced)
     res = optimize_noiseless(qp, uccsd_circuit(qp))
     mol = gto.M(atom="H 0 0 0; H 0 0 0.7414", basis="sto-3g", verbose=0)
     e_fci = fci.FCI(scf.RHF(mol).run(conv_tol=1e-12)).kernel()[0]
@@ -47,7 +47,7 @@ def test_uccsd_two_electron_active_space_is_exact():
 
 
 def test_layered_circuit_is_variational(h2):
-    qp = encode(h2, "parity", two_qubit_reduction=True)
+    qp = encode(h2, "parity", drop_fixed_parity_qubits=True)
     h_full_min = np.linalg.eigvalsh(qp.hamiltonian.to_matrix())[0]
     # numpy eigvalsh: for H2 the neutral singlet is the lowest state of the whole qubit space,
     # so any state's energy is bounded below by the sector energy (variational principle)

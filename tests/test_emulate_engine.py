@@ -199,9 +199,7 @@ def _kron_readout(prof: object, comp: object) -> np.ndarray:
     for q in phys:
         qp = prof.qubit(q)  # type: ignore[attr-defined]
         # source: REFERENCES.md readout (columns are the prepared state)
-        a = np.array(
-            [[1 - qp.p_read1_prep0, qp.p_read0_prep1], [qp.p_read1_prep0, 1 - qp.p_read0_prep1]]
-        )
+        a = np.array([[1 - qp.flip_0to1, qp.flip_1to0], [qp.flip_0to1, 1 - qp.flip_1to0]])
         m = np.kron(a, m)
     n = len(phys)
     idx = np.arange(2**n)

@@ -154,8 +154,8 @@ def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
                     "t1_us": 50,
                     "t2_us": 40,
                     "gate_error": gate_error_1q,
-                    "p_read1_prep0": 0.01,
-                    "p_read0_prep1": 0.02,
+                    "flip_0to1": 0.01,
+                    "flip_1to0": 0.02,
                 }
             },
             "couplers": {"default": {"gate_error": gate_error_2q}},

@@ -111,7 +111,7 @@ def build_target(profile: DeviceProfile, patch: Sequence[int]) -> Any:
         qp = profile.qubit(q)
         meas[(i,)] = InstructionProperties(
             duration=profile.durations.readout_ns * 1e-9,
-            error=0.5 * (qp.p_read1_prep0 + qp.p_read0_prep1),
+            error=0.5 * (qp.flip_0to1 + qp.flip_1to0),
         )
     target.add_instruction(Measure(), meas)
     return target
@@ -135,7 +135,7 @@ def _connected(profile: DeviceProfile, qubits: Sequence[int]) -> bool:
 def _qubit_cost(profile: DeviceProfile, q: int) -> float:
     qp = profile.qubit(q)
     idle = thermal.relaxation_infidelity(profile.durations.two_qubit_ns, [(qp.t1_us, qp.t2_us)])
-    return qp.gate_error + 0.5 * (qp.p_read1_prep0 + qp.p_read0_prep1) + idle
+    return qp.gate_error + 0.5 * (qp.flip_0to1 + qp.flip_1to0) + idle
 
 
 def select_patch(

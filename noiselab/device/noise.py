@@ -307,8 +307,8 @@ def readout_matrices(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray
     for i, q in enumerate(patch):
         qp = profile.qubit(q)
         out[i] = [
-            [1.0 - qp.p_read1_prep0, qp.p_read0_prep1],
-            [qp.p_read1_prep0, 1.0 - qp.p_read0_prep1],
+            [1.0 - qp.flip_0to1, qp.flip_1to0],
+            [qp.flip_0to1, 1.0 - qp.flip_1to0],
         ]
     return out
 

@@ -19,8 +19,8 @@ A profile file looks like this (units are in the key names; rates are probabilit
         t1_us: 100
         t2_us: 90
         gate_error: 3.0e-4               # average infidelity of sx/x, relaxation included
-        p_read1_prep0: 0.015             # P(read 1 | prepared 0)
-        p_read0_prep1: 0.03              # P(read 0 | prepared 1)
+        flip_0to1: 0.015                 # P(read 1 | prepared 0)
+        flip_1to0: 0.03                  # P(read 0 | prepared 1)
         over_rotation_fraction: 0.0      # optional: sx/x rotate by (1 + f) x their angle
       overrides:
         2: {t1_us: 60, t2_us: 45}
@@ -150,8 +150,8 @@ class QubitValues(BaseModel):
     t1_us: PositiveTime | None
     t2_us: PositiveTime | None
     gate_error: Rate1Q
-    p_read1_prep0: ReadoutRate
-    p_read0_prep1: ReadoutRate
+    flip_0to1: ReadoutRate
+    flip_1to0: ReadoutRate
     over_rotation_fraction: OverRotation = 0.0
 
     @field_validator("t1_us", "t2_us", mode="after")
@@ -167,8 +167,8 @@ class QubitOverride(BaseModel):
     t1_us: PositiveTime | None = None
     t2_us: PositiveTime | None = None
     gate_error: Rate1Q | None = None
-    p_read1_prep0: ReadoutRate | None = None
-    p_read0_prep1: ReadoutRate | None = None
+    flip_0to1: ReadoutRate | None = None
+    flip_1to0: ReadoutRate | None = None
     over_rotation_fraction: OverRotation | None = None
 
     @model_validator(mode="before")
@@ -239,8 +239,8 @@ class QubitParams:
     t1_us: float | None
     t2_us: float | None
     gate_error: float
-    p_read1_prep0: float
-    p_read0_prep1: float
+    flip_0to1: float
+    flip_1to0: float
     over_rotation_fraction: float
 
 
@@ -725,7 +725,7 @@ def scale_profile(
                 e["zz_angle_rad"] = _scaled_signed(e["zz_angle_rad"], s, MAX_ZZ_ANGLE_RAD)
     if "readout" in chosen:
         for e in q_entries:
-            for key in ("p_read1_prep0", "p_read0_prep1"):
+            for key in ("flip_0to1", "flip_1to0"):
                 if key in e:
                     e[key] = _scaled_rate(e[key], s, MAX_READOUT_ERROR)
         for e in data.get("readout_crosstalk", []):

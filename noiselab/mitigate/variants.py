@@ -5,7 +5,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
-FoldMethod = Literal["none", "global", "two_qubit"]
+FoldMethod = Literal["none", "whole_circuit", "two_qubit_gates"]
 
 # every channel group scale_profile knows (device layer contract)
 ALL_CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
@@ -62,7 +62,7 @@ class CircuitVariant:
             chans = "all" if self.scaled_channels is None else "+".join(self.scaled_channels)
             parts.append(f"stretch={self.noise_scale:g}[{chans}]")
         if self.fold_method != "none":
-            parts.append(f"fold_{self.fold_method}={self.fold_scale:g}")
+            parts.append(f"folded_{self.fold_method}={self.fold_scale:g}")
         return ",".join(parts) or "base"
 
     def as_dict(self) -> dict:

@@ -69,8 +69,8 @@ class StudyContext:
             device_source=s.device_source,
             qubits=int(qp.num_qubits),
             encoding=str(qp.encoding)
-            + (" + two-qubit reduction" if qp.two_qubit_reduction else ""),
-            two_qubit_reduction=bool(qp.two_qubit_reduction),
+            + (" + fixed parity qubits dropped" if qp.drop_fixed_parity_qubits else ""),
+            drop_fixed_parity_qubits=bool(qp.drop_fixed_parity_qubits),
             ansatz=s.ansatz.label(),
             n_parameters=int(self.ansatz_circuit.num_parameters),
             exact_energy_ha=float(qp.exact_energy_ha),
@@ -107,7 +107,7 @@ def _optimum_key(study: Study) -> str:
         OPTIMUM_KIND,
         study.molecule.model_dump(mode="json"),
         study.encoding,
-        study.two_qubit_reduction,
+        study.drop_fixed_parity_qubits,
         study.ansatz.model_dump(mode="json"),
         study.seed,
     )
@@ -172,7 +172,7 @@ def build_context(
     tick(0)
     t = time.perf_counter()
     problem = compute_problem(study.molecule)
-    qp = encode(problem, study.encoding, study.two_qubit_reduction)
+    qp = encode(problem, study.encoding, study.drop_fixed_parity_qubits)
     if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
         raise input_error(
             str(study.source),

@@ -80,7 +80,7 @@ class ContextSummary:
     device_source: str
     qubits: int
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     ansatz: str
     n_parameters: int
     exact_energy_ha: float
@@ -105,7 +105,7 @@ class ContextSummary:
             "device_source": self.device_source,
             "qubits": self.qubits,
             "encoding": self.encoding,
-            "two_qubit_reduction": self.two_qubit_reduction,
+            "drop_fixed_parity_qubits": self.drop_fixed_parity_qubits,
             "ansatz": self.ansatz,
             "n_parameters": self.n_parameters,
             "exact_energy": self.exact_energy_ha,

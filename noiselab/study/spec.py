@@ -196,7 +196,7 @@ class StudyFile(_Strict):
     description: str | None = None
     molecule: dict[str, Any]
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
-    two_qubit_reduction: StrictBool = False
+    drop_fixed_parity_qubits: StrictBool = False
     ansatz: dict[str, Any]
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
@@ -286,7 +286,7 @@ class Study:
     source: Path
     molecule: Any  # noiselab.chem.molecule.MoleculeSpec
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     ansatz: UccsdAnsatz | LayeredAnsatz
     profile: Any  # noiselab.device.profile.DeviceProfile
     device_source: str  # resolved profile path, or "<inline>"
@@ -362,12 +362,12 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
     except ValidationError as exc:
         raise from_validation_error(exc, src) from None
 
-    if spec.two_qubit_reduction and spec.encoding != "parity":
+    if spec.drop_fixed_parity_qubits and spec.encoding != "parity":
         raise input_error(
             src,
-            "two_qubit_reduction",
+            "drop_fixed_parity_qubits",
             f"needs encoding parity (the study has {spec.encoding})",
-            "two_qubit_reduction: false, or encoding: parity",
+            "drop_fixed_parity_qubits: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
@@ -376,7 +376,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         name: validate_recipe(passes, src, f"recipes.{name}")
         for name, passes in spec.recipes.items()
     }
-    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.two_qubit_reduction)
+    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
         raise input_error(
@@ -385,7 +385,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             f"the problem needs {num_qubits} qubits but device {_profile_name(profile)!r} has "
             f"{len(device_qubits)}",
             f"a device with at least {num_qubits} qubits, a smaller active space, "
-            "or two_qubit_reduction",
+            "or drop_fixed_parity_qubits",
         )
     layout = None
     if spec.layout is not None:
@@ -418,7 +418,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         source=src_path,
         molecule=molecule,
         encoding=spec.encoding,
-        two_qubit_reduction=spec.two_qubit_reduction,
+        drop_fixed_parity_qubits=spec.drop_fixed_parity_qubits,
         ansatz=ansatz,
         profile=profile,
         device_source=device_source,
@@ -449,10 +449,11 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
         raise from_validation_error(exc, source, prefix="ansatz") from None
 
 
-def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
-    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
+def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:
+    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the two parity
+    qubits that ``drop_fixed_parity_qubits`` drops."""
     n = 2 * count_orbitals(molecule)
-    return n - 2 if two_qubit_reduction and encoding == "parity" else n
+    return n - 2 if drop_fixed_parity_qubits and encoding == "parity" else n
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:

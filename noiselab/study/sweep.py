@@ -505,7 +505,7 @@ def reference_value(knob: Knob, profile: Any, patch: Sequence[int]) -> float:
     if knob.name == "one-qubit-error":
         return sum(q.gate_error for q in qubits) / len(qubits)
     if knob.name == "readout-error":
-        return sum(0.5 * (q.p_read1_prep0 + q.p_read0_prep1) for q in qubits) / len(qubits)
+        return sum(0.5 * (q.flip_0to1 + q.flip_1to0) for q in qubits) / len(qubits)
     if knob.name == "coherence-us":
         t1 = [q.t1_us for q in qubits]
         if any(t is None for t in t1):

@@ -8,13 +8,13 @@ two-qubit gates (unitary folding, Giurgica-Tiron et al., arXiv:2005.10921). Fold
 the scale factor actually reached (gate counts are integers).
 
 Fits and their zero-noise estimate as a linear functional of the per-scale energies,
-E(0) = sum_i gamma_i E(c_i):
-``richardson``: gamma_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
-``linear`` and ``polynomial`` (least squares of the given degree): gamma = first row of the
+E(0) = sum_i w_i E(c_i):
+``richardson``: w_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
+``linear`` and ``polynomial`` (least squares of the given degree): weights = first row of the
 Vandermonde pseudo-inverse; ``exponential``: E(c) = a + b exp(-k c) by scipy curve_fit,
-E(0) = a + b, gamma from the Gauss-Newton linearization (delta method); when the fit fails,
+E(0) = a + b, weights from the Gauss-Newton linearization (delta method); when the fit fails,
 or gives k <= 0, the linear fit is used and ``fit_warning`` says so. The variance of E(0) is then
-sum_i gamma_i**2 Var(E_i) with each scale's shots (variance amplification).
+sum_i w_i**2 Var(E_i) with each scale's shots (variance amplification).
 """
 
 from __future__ import annotations
@@ -79,7 +79,7 @@ class ExtrapolateOptions(PassOptions):
 
 
 def richardson_coefficients(scales: np.ndarray) -> np.ndarray:
-    """gamma_i = prod_{j != i} c_j / (c_j - c_i)."""
+    """w_i = prod_{j != i} c_j / (c_j - c_i)."""
     c = np.asarray(scales, dtype=float)
     g = np.ones(len(c))
     for i in range(len(c)):
@@ -90,7 +90,7 @@ def richardson_coefficients(scales: np.ndarray) -> np.ndarray:
 
 
 def polynomial_coefficients(scales: np.ndarray, degree: int) -> np.ndarray:
-    """Least-squares polynomial of ``degree`` through (c_i, E_i), evaluated at 0: gamma."""
+    """Least-squares polynomial of ``degree`` through (c_i, E_i), evaluated at 0: weights."""
     c = np.asarray(scales, dtype=float)
     v = np.vander(c, degree + 1, increasing=True)
     return np.linalg.pinv(v)[0]
@@ -103,7 +103,7 @@ def _exp_model(c: np.ndarray, a: float, b: float, k: float) -> np.ndarray:
 def exponential_fit(
     scales: np.ndarray, energies: np.ndarray
 ) -> tuple[float, np.ndarray, np.ndarray]:
-    """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
+    """(E(0), weights, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
 
     k is kept in (0, EXP_MAX_DECAY / (c_max - c_min)]: a steeper decay is not resolved by the
     points (the data beyond the first would be flat) and would amplify noise without bound.
@@ -141,8 +141,8 @@ def exponential_fit(
     jac = np.column_stack([np.ones_like(c), e, -b * c * e])
     if np.linalg.cond(jac) > 1e12:
         raise ValueError("fit is ill-conditioned (the points show no curvature)")
-    gamma = np.array([1.0, 1.0, 0.0]) @ np.linalg.pinv(jac)
-    return a + b, gamma, np.array([a, b, k])
+    weights = np.array([1.0, 1.0, 0.0]) @ np.linalg.pinv(jac)
+    return a + b, weights, np.array([a, b, k])
 
 
 class ExtrapolatePass(MitigationPass):
@@ -163,13 +163,13 @@ class ExtrapolatePass(MitigationPass):
         if o.amplifier == "stretch":
             chans = STRETCH_CHANNELS if o.channels is None else o.channels
             return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in o.scales)
-        method = "global" if o.amplifier == "whole_circuit" else "two_qubit"
-        return tuple(CircuitVariant(fold_method=method, fold_scale=c) for c in o.scales)
+        # the fold method is named as the amplifier: "whole_circuit" or "two_qubit_gates"
+        return tuple(CircuitVariant(fold_method=o.amplifier, fold_scale=c) for c in o.scales)
 
     def coefficients(
         self, scales: np.ndarray, energies: np.ndarray
     ) -> tuple[float | None, np.ndarray, dict[str, Any]]:
-        """(nonlinear value or None, gamma, fit details)."""
+        """(nonlinear value or None, weights, fit details)."""
         o = self.options
         if o.fit == "richardson":
             return None, richardson_coefficients(scales), {}
@@ -191,8 +191,8 @@ class ExtrapolatePass(MitigationPass):
     ) -> Estimate:
         scales = np.array([actual_scale(ws.ctx, v) for v in variants])
         energies = np.array([e.value for e in estimates])
-        value, gamma, info = self.coefficients(scales, energies)
-        est = linear_combination(list(gamma), estimates)
+        value, weights, info = self.coefficients(scales, energies)
+        est = linear_combination(list(weights), estimates)
         if value is not None:
             est = Estimate(value, est.influence)
         ws.details["extrapolation"] = {
@@ -201,8 +201,8 @@ class ExtrapolatePass(MitigationPass):
             "scales_requested": [float(c) for c in self.options.scales],
             "scales": [float(c) for c in scales],
             "energies_ha": [float(e) for e in energies],
-            "gamma": [float(g) for g in gamma],
-            "variance_amplification": float(np.sum(gamma**2)),
+            "weights": [float(g) for g in weights],
+            "variance_amplification": float(np.sum(weights**2)),
             **{k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in info.items()},
         }
         return est

@@ -60,7 +60,7 @@ class PostselectPass(MitigationPass):
         if not table:
             raise InputError(
                 f"{where}.symmetries: this encoding keeps no symmetry to post-select on (the "
-                "two-qubit reduction or tapering removed them); allowed: none, drop this pass"
+                "dropped fixed parity qubits removed them); allowed: none, drop this pass"
             )
         if names is None:
             names = tuple(table)
