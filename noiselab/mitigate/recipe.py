@@ -811,6 +811,7 @@ def run_recipe(
         p_within_target=verdict.p_within_target,
         shots_needed=verdict.shots_needed,
         limited_by=verdict.limited_by,
+        reaches_target=verdict.reaches_target,
         details=plain_json(details),
         sampled=bool(sampled),
     )

@@ -19,7 +19,8 @@ class RecipeResult:
     calibration circuits' shots are in ``details["calibration_shots_total"]``).
     ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
     (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
-    ``p_within_target >= confidence`` (None when the bias prevents it).
+    ``p_within_target >= confidence`` (None when the bias prevents it). ``reaches_target``: the
+    one rule of :func:`noiselab.mitigate.target.reaches_target` at the budget.
     """
 
     recipe: str
@@ -35,6 +36,7 @@ class RecipeResult:
     p_within_target: float
     shots_needed: int | None
     limited_by: Literal["bias", "calibration", "shots", "none"]
+    reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False
 

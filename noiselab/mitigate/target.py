@@ -1,4 +1,9 @@
-"""Probability of landing within the target, and the shots needed to reach a confidence.
+"""Probability of landing within the target, the one rule for reaching it, and the shots needed.
+
+The rule, defined here and nowhere else: a recipe *reaches* the target at a budget when
+P(|E - E_exact| <= target) >= confidence, with P from the bias and the full standard error
+(:func:`reaches_target`). assess, tune, sweep, budget, the verdict sentences and the figures all
+use it.
 
 An experiment's estimate is modelled as bias b plus Gaussian noise of standard deviation s:
 P(|E - E_exact| < t) = Phi((t - b)/s) - Phi((-t - b)/s). With a measurement budget of N shots,
@@ -35,6 +40,11 @@ def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
     return float(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
 
 
+def reaches_target(p_within_target: float, confidence: float) -> bool:
+    """The rule: P(|E - E_exact| <= target) >= confidence (P from bias and full std error)."""
+    return bool(float(p_within_target) >= float(confidence))
+
+
 @dataclass(frozen=True)
 class TargetAssessment:
     """Probability at the budget, shots needed (None when unreachable) and what limits."""
@@ -43,6 +53,7 @@ class TargetAssessment:
     shots_needed: int | None
     limited_by: LimitedBy
     note: str
+    reaches_target: bool = False
 
 
 def assess_target(
@@ -63,8 +74,9 @@ def assess_target(
         return p_within(b, math.sqrt(a / n + c), t)
 
     p_budget = p_at(budget)
+    hit = reaches_target(p_budget, confidence)
     if abs(b) >= t:
-        return TargetAssessment(p_budget, None, "bias", "|bias| >= target")
+        return TargetAssessment(p_budget, None, "bias", "|bias| >= target", hit)
     p_inf = p_within(b, math.sqrt(c), t)
     if p_inf < confidence:
         if c > 0:
@@ -73,12 +85,13 @@ def assess_target(
                 None,
                 "calibration",
                 "the fixed readout-calibration noise keeps P below the confidence",
+                hit,
             )
-        return TargetAssessment(p_budget, None, "bias", "bias keeps P below the confidence")
+        return TargetAssessment(p_budget, None, "bias", "bias keeps P below the confidence", hit)
     if p_at(1.0) >= confidence:
         n_needed = 1
     elif p_at(MAX_SHOTS) < confidence:
-        return TargetAssessment(p_budget, None, "bias", "needs more than 1e15 shots")
+        return TargetAssessment(p_budget, None, "bias", "needs more than 1e15 shots", hit)
     else:
         root = brentq(
             lambda x: p_at(math.exp(x)) - confidence, 0.0, math.log(MAX_SHOTS), xtol=1e-10
@@ -89,4 +102,4 @@ def assess_target(
         while p_at(n_needed) < confidence:
             n_needed += 1
     limited: LimitedBy = "none" if n_needed <= budget else "shots"
-    return TargetAssessment(p_budget, n_needed, limited, "")
+    return TargetAssessment(p_budget, n_needed, limited, "", hit)

@@ -126,9 +126,11 @@ def verdict_line(
 ) -> tuple[bool, str]:
     """(reachable at the budget, one plain sentence naming the best recipe)."""
     goal = _target_words(target_mha)
+    from noiselab.mitigate.target import reaches_target
+
     p = float(best.p_within_target)
     needed = best.shots_needed
-    if p >= confidence:
+    if reaches_target(p, confidence):
         more = f"; {format_count(needed)} shots would do" if needed is not None else ""
         return True, (
             f"Verdict: {goal} is reachable with {format_count(shots)} shots: best {what} "
@@ -218,6 +220,7 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
         "shots_per_circuit": jsonable(result.shots_per_circuit),
         "n_circuits": int(result.n_circuits),
         "p_within_target": float(result.p_within_target),
+        "reaches_target": bool(result.reaches_target),
         "shots_needed": None if result.shots_needed is None else int(result.shots_needed),
         "limited_by": str(result.limited_by),
     }
@@ -383,6 +386,7 @@ class AssessResult:
                     "shots_total": int(r.shots_total),
                     "n_circuits": int(r.n_circuits),
                     "p_within_target": float(r.p_within_target),
+                    "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
                 }
@@ -473,6 +477,7 @@ class TuneResult:
                     "bias_mha": float(r.bias_exact_mha),
                     "std_mha": float(r.std_mha),
                     "p_within_target": float(r.p_within_target),
+                    "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
                     "n_circuits": int(r.n_circuits),
