@@ -79,3 +79,50 @@ def test_sweep_and_budget_json(store, loose_study: Path) -> None:
             for p, hit in zip(row["p_within_target"], row["reaches_target"], strict=True):
                 seen.add(_check({"p_within_target": p, "reaches_target": hit}, bj["confidence"]))
     assert seen == {True, False}
+
+
+def test_closest_recipe_when_none_reaches_is_ranked_by_p_then_bias() -> None:
+    from types import SimpleNamespace
+
+    from noiselab.study.results import best_of, verdict_line
+
+    def r(bias: float, p: float = 0.0, needed: int | None = None) -> SimpleNamespace:
+        return SimpleNamespace(
+            bias_exact_mha=bias, p_within_target=p, shots_needed=needed, limited_by="bias"
+        )
+
+    # file order puts raw first; every P is 0: the smallest |bias| is the closest
+    results = {"raw": r(217.0), "readout": r(120.0), "zne": r(-35.9)}
+    assert best_of(results) == "zne"
+    ok, text = verdict_line("zne", results["zne"], 1.5936, 0.95, 10**6)
+    assert not ok
+    assert "no recipe reaches chemical accuracy" in text and "closest is 'zne' at -35.9 mHa" in text
+    # P first, then |bias|, then shots needed
+    assert best_of({"a": r(0.1, 0.3), "b": r(1.0, 0.5)}) == "b"
+    assert best_of({"a": r(1.0, 0.5, 10**7), "b": r(-1.0, 0.5, 10**6)}) == "b"
+
+
+def test_study_where_every_recipe_fails_names_the_smallest_bias(store, tmp_path: Path) -> None:
+    """H2 on the deliberately poor rustbucket-6: raw first in the file, no recipe close."""
+    from noiselab.study.assess import assess
+
+    data = yaml.safe_load((ROOT / "configs" / "studies" / "h2-equilibrium.yaml").read_text())
+    data["device"] = str(ROOT / "configs" / "devices" / "rustbucket-6.yaml")
+    data["recipes"] = {
+        "raw": [],
+        "readout": [{"pass": "readout"}],
+        "readout_postselect": [{"pass": "readout"}, {"pass": "postselect", "mode": "discard"}],
+    }
+    data.pop("tune", None)
+    data.pop("sweep", None)
+    path = tmp_path / "h2-rust.yaml"
+    path.write_text(yaml.safe_dump(data))
+    res = assess(path, cache=store, reuse=False)
+    assert not any(r.reaches_target for r in res.recipes.values())
+    assert all(r.p_within_target == 0.0 for r in res.recipes.values())
+    closest = min(res.recipes, key=lambda n: abs(res.recipes[n].bias_exact_mha))
+    assert closest != "raw"
+    assert res.best_recipe == closest and not res.reachable
+    bias = res.recipes[closest].bias_exact_mha
+    assert "no recipe reaches chemical accuracy" in res.verdict
+    assert f"closest is '{closest}' at {bias:+.3g} mHa" in res.verdict

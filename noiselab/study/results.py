@@ -98,14 +98,20 @@ class ContextSummary:
         }
 
 
-def rank_key(result: Any) -> tuple[float, float]:
-    """Sort key: highest probability within target first, then fewest shots needed."""
+def rank_key(result: Any) -> tuple[float, float, float]:
+    """Sort key: highest probability within target first, then smallest |bias|, then fewest
+    shots needed (so that, when no recipe reaches the target and every P is about 0, the
+    closest one comes first, not the first in file order)."""
     needed = result.shots_needed
-    return (-float(result.p_within_target), math.inf if needed is None else float(needed))
+    return (
+        -float(result.p_within_target),
+        abs(float(result.bias_exact_mha)),
+        math.inf if needed is None else float(needed),
+    )
 
 
 def best_of(results: Mapping[str, Any]) -> str:
-    """Name of the best recipe (order of ``results`` breaks exact ties)."""
+    """Name of the best recipe by :func:`rank_key` (order of ``results`` breaks exact ties)."""
     names = list(results)
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
 
@@ -124,10 +130,14 @@ def verdict_line(
     shots: int,
     what: str = "recipe",
 ) -> tuple[bool, str]:
-    """(reachable at the budget, one plain sentence naming the best recipe)."""
-    goal = _target_words(target_mha)
+    """(reachable at the budget, one plain sentence naming the best recipe).
+
+    ``best`` is the first by :func:`rank_key`. When it does not reach the target (the one rule,
+    P >= confidence), no recipe does: the sentence names it as the closest, with its bias.
+    """
     from noiselab.mitigate.target import reaches_target
 
+    goal = _target_words(target_mha)
     p = float(best.p_within_target)
     needed = best.shots_needed
     if reaches_target(p, confidence):
@@ -137,27 +147,21 @@ def verdict_line(
             f"'{best_name}' lands within target with probability {p:.3f} "
             f"(>= {confidence:g}){more}."
         )
+    head = (
+        f"Verdict: no {what} reaches {goal} with {format_count(shots)} shots "
+        f"(P >= {confidence:g}); closest is '{best_name}' at "
+        f"{float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f})"
+    )
     if needed is not None:
-        return False, (
-            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best {what} "
-            f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
-            f"{format_count(needed)} shots."
-        )
+        return False, f"{head}: it would need {format_count(needed)} shots."
     if str(best.limited_by) == "calibration":
         cal_std = (getattr(best, "details", None) or {}).get("std_calibration_mha")
         cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
         return False, (
-            f"Verdict: {goal} is NOT reachable with this readout calibration: the best {what} "
-            f"'{best_name}' keeps a bias of {float(best.bias_exact_mha):+.3g} mHa, but its "
-            f"readout-calibration noise{cal} does not shrink with more measurement shots "
-            f"(probability {p:.3f} at {format_count(shots)} shots); raise the readout pass's "
-            f"calibration_shots."
+            f"{head}: its readout-calibration noise{cal} does not shrink with more measurement "
+            "shots; raise the readout pass's calibration_shots."
         )
-    return False, (
-        f"Verdict: {goal} is NOT reachable at any shot count: the best {what} '{best_name}' "
-        f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
-        f"{format_count(shots)} shots)."
-    )
+    return False, f"{head}: its bias keeps it out of reach at any shot count."
 
 
 def format_count(n: int | float | None) -> str:
