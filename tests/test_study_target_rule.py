@@ -58,6 +58,9 @@ def test_assess_and_tune_json(store, loose_study: Path) -> None:
         conf = js["confidence"]
         seen |= {_check(e, conf) for e in js["recipes"].values()}
         assert js["reachable"] == js["recipes"][js["best_recipe"]]["reaches_target"]
+        # a verdict naming an extrapolated recipe states the amplification it assumes
+        extrapolated = "extrapolation" in js["recipes"][js["best_recipe"]]["details"]
+        assert ("Amplification assumed:" in js["verdict"]) == extrapolated
         tj = tune(path, grid=SMALL_GRID, cache=store, reuse=False).to_json()
         seen |= {_check(e, tj["confidence"]) for e in tj["ranking"]}
     assert seen == {True, False}  # both sides of the rule occur

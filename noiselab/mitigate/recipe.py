@@ -55,7 +55,7 @@ from noiselab.mitigate.estimate import (
 from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
 from noiselab.mitigate.result import RecipeResult, plain_json
 from noiselab.mitigate.target import assess_target
-from noiselab.mitigate.variants import CircuitVariant
+from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD, CircuitVariant
 
 Runner = Callable[[CircuitVariant], Any]  # -> BasisDistributions over ctx.measured_bases
 Calibrator = Callable[[CircuitVariant, tuple[int, ...]], np.ndarray]
@@ -80,6 +80,10 @@ class ExperimentContext:
     ``postselect`` mode ``verify`` is refused without them). True by default, so a context built
     by hand serves every recipe; the study layer turns it off when no recipe of the job
     verifies (at 12 qubits the extra bases are most of the measured ones).
+    ``amplification_spread``: relative standard deviation of the realized noise scale of every
+    amplified point of an extrapolation (enters ``std_mha``; 0: ideal amplification).
+    ``amplification_offset``: relative, systematic error of the stretch amplifier (each stretched
+    point is emulated at c (1 + offset) while the fit assumes c: enters the bias).
     """
 
     problem: Any
@@ -98,6 +102,8 @@ class ExperimentContext:
     num_batches: int = 16
     max_density_matrix_qubits: int | None = None
     verification_bases: bool = True
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    amplification_offset: float = 0.0
 
     def __post_init__(self) -> None:
         if int(self.shots) < 1:
@@ -108,6 +114,14 @@ class ExperimentContext:
             raise InputError(f"target_mha: {self.target_mha}; allowed: a positive number (mHa)")
         if self.allocation not in ("uniform", "by_deviation"):
             raise InputError(f"allocation: {self.allocation!r}; allowed: uniform, by_deviation")
+        if not 0.0 <= float(self.amplification_spread) < 1.0:
+            raise InputError(
+                f"amplification_spread: {self.amplification_spread}; allowed: 0 <= value < 1"
+            )
+        if not -0.5 <= float(self.amplification_offset) <= 1.0:
+            raise InputError(
+                f"amplification_offset: {self.amplification_offset}; allowed: -0.5 to 1"
+            )
 
     @functools.cached_property
     def measured_bases(self) -> tuple[str, ...]:
@@ -227,6 +241,40 @@ def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
     if variant.fold_method == "none":
         return variant.noise_scale
     return variant_inputs(ctx, variant)[2]
+
+
+@functools.lru_cache(maxsize=256)
+def error_budget(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float] | None:
+    """Estimated error per kind of operation of a variant's compiled circuit on the context's
+    profile (``device.compile.estimate_error_budget``); None without a compiled circuit."""
+    compiled = variant_inputs(ctx, variant)[0]
+    if compiled is None or ctx.profile is None:
+        return None
+    from noiselab.device.compile import estimate_error_budget
+
+    return estimate_error_budget(compiled.circuit, ctx.profile, compiled.patch)
+
+
+def realized_scales(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float]:
+    """The noise scale a variant realizes relative to the base circuit: ``"total"`` and one
+    entry per kind of operation ("two_qubit", "single_qubit", "idle"; absent where the base
+    circuit has no such error).
+
+    Folded circuits: the ratio of the compiled circuits' estimated error (sum of the
+    operations' average infidelities) to the base circuit's, times any stretch factor. Stretched
+    profiles and contexts without a compiled circuit: the nominal scale.
+    """
+    nominal = actual_scale(ctx, variant)
+    if variant.fold_method == "none":
+        return {"total": nominal}
+    base, folded = error_budget(ctx, CircuitVariant()), error_budget(ctx, variant)
+    if base is None or folded is None or sum(base.values()) <= 0.0:
+        return {"total": nominal}
+    out = {"total": variant.noise_scale * sum(folded.values()) / sum(base.values())}
+    for kind, err in base.items():
+        if err > 0.0:
+            out[kind] = variant.noise_scale * folded[kind] / err
+    return out
 
 
 def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:
@@ -442,6 +490,7 @@ class _Evaluation:
     per_variant: dict[CircuitVariant, Estimate]
     details: dict[str, Any]
     cal: _CalibrationSource
+    fixed_variance: dict[str, float]
 
 
 class EstimateMemo:
@@ -574,8 +623,9 @@ def _evaluate(
     cal: _CalibrationSource,
     memo: EstimateMemo | None = None,
     memo_scope: tuple[Any, ...] = (),
+    rng: np.random.Generator | None = None,
 ) -> _Evaluation:
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
+    ws = Workspace(ctx=ctx, measured=measured, calibration=cal, rng=rng)
     corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
     estimator = parsed.of_stage(STAGE_ESTIMATE)
     combiner = parsed.of_stage(STAGE_COMBINE)
@@ -591,7 +641,7 @@ def _evaluate(
         est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
     else:
         est = per_variant[variants[0]]
-    return _Evaluation(est, per_variant, ws.details, cal)
+    return _Evaluation(est, per_variant, ws.details, cal, ws.fixed_variance)
 
 
 def _allocate(
@@ -718,6 +768,7 @@ def run_recipe(
             bases,
             sampled_meas,
             _CalibrationSource(ctx, calibrator, "rng", rng),
+            rng=rng,
         )
         probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
         probs_for_std.update(ev.cal.used)
@@ -727,17 +778,19 @@ def run_recipe(
 
     traj_std = _trajectory_std(ev1.estimate, dists, variants, bases)
     energy = float(ev.estimate.value)
-    std_ha = math.sqrt(var_meas + var_cal)
+    var_amp = float(ev1.fixed_variance.get("amplification", 0.0))
+    std_ha = math.sqrt(var_meas + var_cal + var_amp)
     bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
     bias_ansatz = (energy - ctx.ansatz_energy_ha) * HA_TO_MHA
     mha2 = HA_TO_MHA**2
     verdict = assess_target(
         bias_exact,
         var_meas * ctx.shots * mha2,
-        var_cal * mha2,
+        (var_cal + var_amp) * mha2,
         int(ctx.shots),
         ctx.target_mha,
         ctx.confidence,
+        fixed_source="amplification" if var_amp > var_cal else "calibration",
     )
 
     details = dict(ev.details)
@@ -753,6 +806,7 @@ def run_recipe(
             "std_mha": math.sqrt(_variance_from_sources(svars, all_shots)) * HA_TO_MHA,
             "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
             "scale": float(actual_scale(ctx, v)),
+            "scale_realized": float(realized_scales(ctx, v)["total"]),
             "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
             "two_qubit_count": _two_qubit_count(ctx, v),
         }
@@ -768,6 +822,8 @@ def run_recipe(
     details["bases"] = list(bases)
     details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
     details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
+    if "extrapolation" in details:
+        details["std_amplification_mha"] = math.sqrt(var_amp) * HA_TO_MHA
     if traj_std is not None:
         # emulation error of the trajectory method (not part of std_mha: no device has it)
         details["trajectory_std_mha"] = traj_std * HA_TO_MHA

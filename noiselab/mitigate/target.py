@@ -12,10 +12,11 @@ proportions held fixed as N changes) and C the variance that does not shrink wit
 calibration with its own fixed shot count).
 
 ``limited_by``: "bias" when no measurement budget reaches the confidence because of the bias
-(|b| >= t, or b alone too close to t); "calibration" when |b| < t but the fixed calibration
-noise C keeps the probability below the confidence at any measurement budget (more calibration
-shots would help); "shots" when the confidence needs more shots than the budget; "none" when the
-budget suffices.
+(|b| >= t, or b alone too close to t); "calibration" (or "amplification") when |b| < t but the
+fixed variance C keeps the probability below the confidence at any measurement budget, C being
+mostly readout-calibration noise (more calibration shots would help) or the uncertainty of the
+realized noise amplification of an extrapolation; "shots" when the confidence needs more shots
+than the budget; "none" when the budget suffices.
 """
 
 from __future__ import annotations
@@ -24,7 +25,7 @@ import math
 from dataclasses import dataclass
 from typing import Literal
 
-LimitedBy = Literal["bias", "calibration", "shots", "none"]
+LimitedBy = Literal["bias", "calibration", "amplification", "shots", "none"]
 MAX_SHOTS = 10**15
 
 
@@ -63,8 +64,10 @@ def assess_target(
     budget: int,
     target_mha: float,
     confidence: float,
+    fixed_source: Literal["calibration", "amplification"] = "calibration",
 ) -> TargetAssessment:
-    """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N)."""
+    """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N);
+    ``fixed_source``: what most of C is (named by ``limited_by`` when C alone keeps P low)."""
     from scipy.optimize import brentq
 
     b, t = float(bias_mha), float(target_mha)
@@ -80,12 +83,12 @@ def assess_target(
     p_inf = p_within(b, math.sqrt(c), t)
     if p_inf < confidence:
         if c > 0:
+            what = {
+                "calibration": "the fixed readout-calibration noise",
+                "amplification": "the uncertainty of the realized noise amplification",
+            }[fixed_source]
             return TargetAssessment(
-                p_budget,
-                None,
-                "calibration",
-                "the fixed readout-calibration noise keeps P below the confidence",
-                hit,
+                p_budget, None, fixed_source, f"{what} keeps P below the confidence", hit
             )
         return TargetAssessment(p_budget, None, "bias", "bias keeps P below the confidence", hit)
     if p_at(1.0) >= confidence:

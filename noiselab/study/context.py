@@ -297,4 +297,6 @@ def make_experiment(
         num_batches=int(study.emulation.batches),
         max_density_matrix_qubits=study.emulation.max_density_matrix_qubits,
         verification_bases=bool(verification),
+        amplification_spread=float(study.amplification_spread),
+        amplification_offset=float(study.amplification_offset),
     )

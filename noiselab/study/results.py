@@ -142,26 +142,76 @@ def verdict_line(
     needed = best.shots_needed
     if reaches_target(p, confidence):
         more = f"; {format_count(needed)} shots would do" if needed is not None else ""
-        return True, (
+        text = (
             f"Verdict: {goal} is reachable with {format_count(shots)} shots: best {what} "
             f"'{best_name}' lands within target with probability {p:.3f} "
             f"(>= {confidence:g}){more}."
         )
+        return True, _with_amplification(text, best)
     head = (
         f"Verdict: no {what} reaches {goal} with {format_count(shots)} shots "
         f"(P >= {confidence:g}); closest is '{best_name}' at "
         f"{float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f})"
     )
+    details = getattr(best, "details", None) or {}
     if needed is not None:
-        return False, f"{head}: it would need {format_count(needed)} shots."
-    if str(best.limited_by) == "calibration":
-        cal_std = (getattr(best, "details", None) or {}).get("std_calibration_mha")
+        text = f"{head}: it would need {format_count(needed)} shots."
+    elif str(best.limited_by) == "calibration":
+        cal_std = details.get("std_calibration_mha")
         cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
-        return False, (
+        text = (
             f"{head}: its readout-calibration noise{cal} does not shrink with more measurement "
             "shots; raise the readout pass's calibration_shots."
         )
-    return False, f"{head}: its bias keeps it out of reach at any shot count."
+    elif str(best.limited_by) == "amplification":
+        amp_std = details.get("std_amplification_mha")
+        amp = f" ({float(amp_std):.3g} mHa)" if amp_std is not None else ""
+        text = (
+            f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
+            "with more shots."
+        )
+    else:
+        text = f"{head}: its bias keeps it out of reach at any shot count."
+    return False, _with_amplification(text, best)
+
+
+def amplification_line(result: Any) -> str | None:
+    """One line stating the amplification an extrapolated result assumes (None otherwise)."""
+    details = getattr(result, "details", None) or {}
+    ex = details.get("extrapolation") if isinstance(details, Mapping) else None
+    if not isinstance(ex, Mapping):
+        return None
+
+    def listed(key: str) -> str:
+        return ", ".join(f"{float(c):.3g}" for c in ex.get(key, []))
+
+    if ex.get("amplifier") == "stretch":
+        off = float(ex.get("amplification_offset", 0.0))
+        systematic = (
+            "no systematic error (amplification_offset 0)"
+            if off == 0.0
+            else f"a systematic error of {off * 100:+.3g} % (amplification_offset, in the bias)"
+        )
+        how = f"stretch by {listed('scales_nominal')} with {systematic} and"
+    else:
+        axis = "realized" if ex.get("scale_axis") == "realized" else "nominal"
+        how = (
+            f"{ex.get('amplifier')} folding at {listed('scales_nominal')} (realized "
+            f"{listed('scales_realized')} from the compiled circuits' estimated error; fit "
+            f"against the {axis} scales) with"
+        )
+    spread = float(ex.get("amplification_spread", 0.0))
+    std = details.get("std_amplification_mha")
+    cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
+    return (
+        f"Amplification assumed: {how} a {spread * 100:.3g} % random error (1 std) in each "
+        f"amplified point's realized noise scale (amplification_spread{cost})."
+    )
+
+
+def _with_amplification(text: str, result: Any) -> str:
+    line = amplification_line(result)
+    return text if line is None else f"{text} {line}"
 
 
 def format_count(n: int | float | None) -> str:
