@@ -84,7 +84,7 @@ def test_rule_crossing_comes_before_the_bias_crossing() -> None:
     assert c.bias_crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA, rel=0.005)
     assert c.crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA - 1.645 * 0.5, rel=0.006)
     assert "reaches chemical accuracy at the budget (P >= 0.95) while" in c.sentence
-    assert "by the bias alone (unlimited shots) while" in c.sentence
+    assert "its bias alone (unlimited shots) is within the target while" in c.sentence
 
 
 def test_over_correction_between_two_outside_points_is_probed() -> None:
@@ -108,8 +108,8 @@ def test_sentences_in_device_units() -> None:
     )
     assert s == (
         "zne reaches chemical accuracy at the budget (P >= 0.95) while the two-qubit gate error "
-        "is below 0.42 %; by the bias alone (unlimited shots) while the two-qubit gate error is "
-        "below 0.51 %"
+        "is below 0.42 %; its bias alone (unlimited shots) is within the target while the "
+        "two-qubit gate error is below 0.51 %"
     )
     coh = get_knob("coherence-us")
     # error falls as T1 grows: within target above the crossing

@@ -453,7 +453,7 @@ def crossing_sentence(
     elif kind == "none":
         tail = f"its bias alone (unlimited shots) is outside the target {words}"
     else:
-        tail = f"by the bias alone (unlimited shots) {words}"
+        tail = f"its bias alone (unlimited shots) is within the target {words}"
     return f"{head}; {tail}"
 
 
