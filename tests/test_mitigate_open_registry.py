@@ -56,7 +56,7 @@ def shift() -> Iterator[type[ShiftPass]]:
 def _study_with(tmp_path: Path, recipes: dict) -> Path:
     """The shipped demo study with other recipes (device path made absolute)."""
     data = yaml.safe_load(contract.DEMO.read_text(encoding="utf-8"))
-    data["device"] = str((contract.DEMO.parent / data["device"]).resolve())
+    # the demo names its device (a shipped profile), so the copy can live anywhere
     data["recipes"] = recipes
     data.pop("tune", None)
     data.pop("sweep", None)

@@ -148,6 +148,7 @@ def sweep_cmd(
     _print(sweep_table(result))
     for c in result.crossings:
         typer.echo(c.sentence + ".")
+    typer.echo(f"{result.crossing_method[0].upper()}{result.crossing_method[1:]}.")
     for note in result.notes():
         typer.echo(f"Note: {note}.")
     if result.emulation_method == "trajectory":

@@ -8,6 +8,8 @@ Parameterized circuits are transpiled once and bound many times (:meth:`Compiled
 (1 - average infidelity of the gate's full error channel, coherent terms included) times, for
 every delay of duration t on a qubit, (1 - r_idle(t)) with r_idle the average infidelity of
 thermal relaxation over t. It ignores readout and how errors propagate.
+``estimate_error_budget`` sums the same infidelities per kind of operation (the realized noise
+scale of a folded circuit is the ratio of its total to the unfolded one's).
 """
 
 from __future__ import annotations
@@ -225,10 +227,14 @@ def circuit_duration_ns(circuit: Any, profile: DeviceProfile) -> float:
     return max(clock) if clock else 0.0
 
 
-def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]) -> float:
-    """Product of (1 - gate infidelity) and idle relaxation factors (see module docstring)."""
+def operation_errors(
+    circuit: Any, profile: DeviceProfile, patch: Sequence[int]
+) -> list[tuple[str, float]]:
+    """(kind, average infidelity) of every noisy operation: kind "two_qubit" or "single_qubit"
+    for gates (the full error channel, coherent terms included), "idle" for thermal relaxation
+    over a delay; virtual gates and barriers are left out."""
     cache: dict[tuple[str, tuple[int, ...]], float] = {}
-    fid = 1.0
+    out: list[tuple[str, float]] = []
     for inst in circuit.data:
         name = inst.operation.name
         idx = tuple(circuit.find_bit(q).index for q in inst.qubits)
@@ -238,13 +244,37 @@ def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]
         if name == "delay":
             qp = profile.qubit(phys[0])
             t_ns = delay_seconds(inst.operation) * 1e9
-            fid *= 1.0 - thermal.relaxation_infidelity(t_ns, [(qp.t1_us, qp.t2_us)])
+            out.append(("idle", thermal.relaxation_infidelity(t_ns, [(qp.t1_us, qp.t2_us)])))
             continue
         key = (name, phys)
         if key not in cache:
             cache[key] = gate_infidelity(profile, name, phys)
-        fid *= 1.0 - cache[key]
+        out.append(("two_qubit" if len(phys) == 2 else "single_qubit", cache[key]))
+    return out
+
+
+def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]) -> float:
+    """Product of (1 - gate infidelity) and idle relaxation factors (see module docstring)."""
+    fid = 1.0
+    for _, r in operation_errors(circuit, profile, patch):
+        fid *= 1.0 - r
     return min(1.0, max(0.0, fid))
+
+
+ERROR_KINDS = ("two_qubit", "single_qubit", "idle")
+
+
+def estimate_error_budget(
+    circuit: Any, profile: DeviceProfile, patch: Sequence[int]
+) -> dict[str, float]:
+    """Estimated error of a compiled circuit per kind of operation ("two_qubit",
+    "single_qubit", "idle"): the sum of the operations' average infidelities. Additive (first
+    order in the error rates), so it grows by s when every rate grows by s; the ratio of two
+    circuits' totals is the noise scale one realizes relative to the other."""
+    budget = dict.fromkeys(ERROR_KINDS, 0.0)
+    for kind, r in operation_errors(circuit, profile, patch):
+        budget[kind] += r
+    return budget
 
 
 def _prepare(circuit: Any) -> Any:

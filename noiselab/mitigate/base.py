@@ -84,12 +84,18 @@ class Workspace:
     ``calibration(variant, states, shots)`` returns distributions (n_states, 2**n) of the
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
     under the variant's readout, registering them as sources with their shot counts.
+    A pass whose result has a random part that does not shrink with shots records its variance in
+    ``fixed_variance`` and, on sampled evaluations (``rng`` set), draws it.
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
     details: dict[str, Any] = field(default_factory=dict)
+    #: random parts that no shot count shrinks, by name (Ha**2), e.g. "amplification"
+    fixed_variance: dict[str, float] = field(default_factory=dict)
+    #: set on sampled evaluations only: passes draw their own random parts from it
+    rng: np.random.Generator | None = None
 
 
 class MitigationPass(ABC):

@@ -24,14 +24,19 @@ from qiskit import qpy, transpile
 
 from noiselab.common.errors import InputError, NoiselabError
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
-from noiselab.device.compile import build_target, circuit_duration_ns, estimate_fidelity
+from noiselab.device.compile import (
+    build_target,
+    circuit_duration_ns,
+    estimate_error_budget,
+    estimate_fidelity,
+)
 from noiselab.device.profile import scale_profile
 from noiselab.emulate.calibration import calibration_distributions
 from noiselab.emulate.engine import choose_method, emulate_bases
 from noiselab.mitigate import symmetry
 from noiselab.mitigate.folding import fold_circuit
 from noiselab.mitigate.plan import MeasurementPlan, build_plan
-from noiselab.mitigate.variants import CircuitVariant
+from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD, CircuitVariant
 
 Runner = Callable[[CircuitVariant], Any]  # -> BasisDistributions over ctx.measured_bases
 Calibrator = Callable[[CircuitVariant, tuple[int, ...]], np.ndarray]
@@ -56,6 +61,10 @@ class ExperimentContext:
     ``postselect`` mode ``verify`` is refused without them). True by default, so a context built
     by hand serves every recipe; the study layer turns it off when no recipe of the job
     verifies (at 12 qubits the extra bases are most of the measured ones).
+    ``amplification_spread``: relative standard deviation of the realized noise scale of every
+    amplified point of an extrapolation (enters ``std_mha``; 0: ideal amplification).
+    ``amplification_offset``: relative, systematic error of the stretch amplifier (each stretched
+    point is emulated at c (1 + offset) while the fit assumes c: enters the bias).
     """
 
     problem: Any
@@ -74,6 +83,8 @@ class ExperimentContext:
     num_batches: int = 16
     max_density_matrix_qubits: int | None = None
     verification_bases: bool = True
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    amplification_offset: float = 0.0
 
     def __post_init__(self) -> None:
         if int(self.shots) < 1:
@@ -84,6 +95,14 @@ class ExperimentContext:
             raise InputError(f"target_mha: {self.target_mha}; allowed: a positive number (mHa)")
         if self.allocation not in ("uniform", "by_deviation"):
             raise InputError(f"allocation: {self.allocation!r}; allowed: uniform, by_deviation")
+        if not 0.0 <= float(self.amplification_spread) < 1.0:
+            raise InputError(
+                f"amplification_spread: {self.amplification_spread}; allowed: 0 <= value < 1"
+            )
+        if not -0.5 <= float(self.amplification_offset) <= 1.0:
+            raise InputError(
+                f"amplification_offset: {self.amplification_offset}; allowed: -0.5 to 1"
+            )
 
     @functools.cached_property
     def measured_bases(self) -> tuple[str, ...]:
@@ -190,6 +209,38 @@ def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
     if variant.fold_method == "none":
         return variant.noise_scale
     return variant_inputs(ctx, variant)[2]
+
+
+@functools.lru_cache(maxsize=256)
+def error_budget(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float] | None:
+    """Estimated error per kind of operation of a variant's compiled circuit on the context's
+    profile (``device.compile.estimate_error_budget``); None without a compiled circuit."""
+    compiled = variant_inputs(ctx, variant)[0]
+    if compiled is None or ctx.profile is None:
+        return None
+    return estimate_error_budget(compiled.circuit, ctx.profile, compiled.patch)
+
+
+def realized_scales(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float]:
+    """The noise scale a variant realizes relative to the base circuit: ``"total"`` and one
+    entry per kind of operation ("two_qubit", "single_qubit", "idle"; absent where the base
+    circuit has no such error).
+
+    Folded circuits: the ratio of the compiled circuits' estimated error (sum of the
+    operations' average infidelities) to the base circuit's, times any stretch factor. Stretched
+    profiles and contexts without a compiled circuit: the nominal scale.
+    """
+    nominal = actual_scale(ctx, variant)
+    if variant.fold_method == "none":
+        return {"total": nominal}
+    base, folded = error_budget(ctx, CircuitVariant()), error_budget(ctx, variant)
+    if base is None or folded is None or sum(base.values()) <= 0.0:
+        return {"total": nominal}
+    out = {"total": variant.noise_scale * sum(folded.values()) / sum(base.values())}
+    for kind, err in base.items():
+        if err > 0.0:
+            out[kind] = variant.noise_scale * folded[kind] / err
+    return out
 
 
 def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:

@@ -7,13 +7,18 @@ estimator pass per variant and the combination pass across variants, allocates t
 and returns a :class:`RecipeResult`. ``sampled=False`` (default): exact distributions, analytic
 standard error. ``sampled=True``: multinomial counts are drawn from ``rng`` and pushed through
 the same code (the spread of such estimates is the analytic standard error).
+
+Bias = expectation: the reported energy is computed from exact inputs only (exact measured
+distributions, exact readout-calibration distributions), so no random draw enters the bias and
+the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
+its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
+term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
 """
 
 from __future__ import annotations
 
 import copy
 import math
-import zlib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -50,6 +55,7 @@ from noiselab.mitigate.experiment import (
     Runner,
     actual_scale,
     default_calibrator,
+    realized_scales,
     variant_inputs,
 )
 from noiselab.mitigate.plan import largest_remainder
@@ -136,12 +142,12 @@ def _row(dist: Any, basis: str) -> np.ndarray:
 
 
 class _CalibrationSource:
-    """Calibration distributions for one evaluation: exact, seeded-sampled or rng-sampled."""
+    """Calibration distributions for one evaluation: exact or drawn from ``rng``."""
 
     def __init__(self, ctx: ExperimentContext, calibrator: Calibrator, mode: str, rng: Any) -> None:
         self.ctx = ctx
         self.calibrator = calibrator
-        self.mode = mode  # "exact" | "seeded" | "rng"
+        self.mode = mode  # "exact" | "rng"
         self.rng = rng
         self.exact: dict[Any, np.ndarray] = {}
         self.used: dict[Any, np.ndarray] = {}
@@ -161,11 +167,7 @@ class _CalibrationSource:
                 if shots is None or self.mode == "exact":
                     self.used[key] = exact[i]
                 else:
-                    rng = self.rng
-                    if self.mode == "seeded":
-                        tag = zlib.crc32(f"{cal_v.label()}|{s}|{shots}".encode())
-                        rng = np.random.default_rng([int(self.ctx.seed), 0xCA1B, tag])
-                    self.used[key] = sample_distribution(exact[i], shots, rng)
+                    self.used[key] = sample_distribution(exact[i], shots, self.rng)
             out[i] = self.used[key]
         return out
 
@@ -176,6 +178,7 @@ class _Evaluation:
     per_variant: dict[CircuitVariant, Estimate]
     details: dict[str, Any]
     cal: _CalibrationSource
+    fixed_variance: dict[str, float]
 
 
 class EstimateMemo:
@@ -186,8 +189,8 @@ class EstimateMemo:
     is keyed by the context, runner and calibrator (by identity), the variant, the specs of the
     correction and estimator passes, the bases read and the calibration mode; it keeps the
     estimate, the details the passes wrote and the calibration circuits they drew on (replayed
-    on a hit, so shots and variances are registered as without the memo). Only exact and seeded
-    calibration (deterministic) is stored: sampled evaluations bypass the memo. Create one per
+    on a hit, so shots and variances are registered as without the memo). Only exact calibration
+    (deterministic) is stored: sampled evaluations bypass the memo. Create one per
     job and pass it to every :func:`run_recipe` of the job; results are bit-identical.
     """
 
@@ -291,12 +294,13 @@ def _evaluate(
     cal: _CalibrationSource,
     memo: EstimateMemo | None = None,
     memo_scope: tuple[Any, ...] = (),
+    rng: np.random.Generator | None = None,
 ) -> _Evaluation:
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
+    ws = Workspace(ctx=ctx, measured=measured, calibration=cal, rng=rng)
     corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
     estimator = parsed.of_stage(STAGE_ESTIMATE)
     combiner = parsed.of_stage(STAGE_COMBINE)
-    use_memo = memo is not None and cal.mode in ("exact", "seeded")
+    use_memo = memo is not None and cal.mode == "exact"
     per_variant: dict[CircuitVariant, Estimate] = {}
     for v in variants:
         if use_memo:
@@ -308,7 +312,7 @@ def _evaluate(
         est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
     else:
         est = per_variant[variants[0]]
-    return _Evaluation(est, per_variant, ws.details, cal)
+    return _Evaluation(est, per_variant, ws.details, cal, ws.fixed_variance)
 
 
 def _allocate(
@@ -415,21 +419,10 @@ def run_recipe(
     exact_probs.update(ev1.cal.exact)
     var_meas, var_cal = _split_variance(ev1.estimate, exact_probs, all_shots)
 
-    cal_finite = any(n is not None for n in ev1.cal.shots.values())
     if not sampled:
-        if cal_finite:
-            ev = _evaluate(
-                parsed,
-                ctx,
-                variants,
-                bases,
-                exact_meas,
-                _CalibrationSource(ctx, calibrator, "seeded", None),
-                memo,
-                scope,
-            )
-        else:
-            ev = ev1
+        # the bias is the expectation: exact calibration, no random draw (the finite
+        # calibration's noise is in the standard error; first order, see the module docstring)
+        ev = ev1
         probs_for_std = exact_probs
         est_for_std = ev1.estimate
         per_variant_std = ev1.per_variant
@@ -446,6 +439,7 @@ def run_recipe(
             bases,
             sampled_meas,
             _CalibrationSource(ctx, calibrator, "rng", rng),
+            rng=rng,
         )
         probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
         probs_for_std.update(ev.cal.used)
@@ -455,17 +449,19 @@ def run_recipe(
 
     traj_std = _trajectory_std(ev1.estimate, dists, variants, bases)
     energy = float(ev.estimate.value)
-    std_ha = math.sqrt(var_meas + var_cal)
+    var_amp = float(ev1.fixed_variance.get("amplification", 0.0))
+    std_ha = math.sqrt(var_meas + var_cal + var_amp)
     bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
     bias_ansatz = (energy - ctx.ansatz_energy_ha) * HA_TO_MHA
     mha2 = HA_TO_MHA**2
     verdict = assess_target(
         bias_exact,
         var_meas * ctx.shots * mha2,
-        var_cal * mha2,
+        (var_cal + var_amp) * mha2,
         int(ctx.shots),
         ctx.target_mha,
         ctx.confidence,
+        fixed_source="amplification" if var_amp > var_cal else "calibration",
     )
 
     details = dict(ev.details)
@@ -481,6 +477,7 @@ def run_recipe(
             "std_mha": math.sqrt(variance_from_sources(svars, all_shots)) * HA_TO_MHA,
             "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
             "scale": float(actual_scale(ctx, v)),
+            "scale_realized": float(realized_scales(ctx, v)["total"]),
             "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
             "two_qubit_count": _two_qubit_count(ctx, v),
         }
@@ -496,6 +493,8 @@ def run_recipe(
     details["bases"] = list(bases)
     details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
     details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
+    if "extrapolation" in details:
+        details["std_amplification_mha"] = math.sqrt(var_amp) * HA_TO_MHA
     if traj_std is not None:
         # emulation error of the trajectory method (not part of std_mha: no device has it)
         details["trajectory_std_mha"] = traj_std * HA_TO_MHA
@@ -539,6 +538,7 @@ def run_recipe(
         p_within_target=verdict.p_within_target,
         shots_needed=verdict.shots_needed,
         limited_by=verdict.limited_by,
+        reaches_target=verdict.reaches_target,
         details=plain_json(details),
         sampled=bool(sampled),
     )

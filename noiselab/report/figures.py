@@ -72,6 +72,7 @@ class BiasBar:
     recipe: str
     bias_mha: float
     std_mha: float
+    reaches_target: bool = False  # the one rule (P >= confidence at the budget)
 
 
 # ---------------------------------------------------------------- shared helpers
@@ -295,7 +296,12 @@ def bias_bars(obj: Any) -> tuple[str, str, float, tuple[BiasBar, ...]]:
         else float(_first(obj, ("target_mha",), CHEMICAL_ACCURACY_MHA))
     )
     bars = tuple(
-        BiasBar(name, float(_get(r, "bias_exact_mha")), float(_get(r, "std_mha") or 0.0))
+        BiasBar(
+            name,
+            float(_get(r, "bias_exact_mha")),
+            float(_get(r, "std_mha") or 0.0),
+            bool(_get(r, "reaches_target", False)),
+        )
         for name, r in _named_results(obj)
     )
     return study, device, target, bars
@@ -399,6 +405,14 @@ def plot_extrapolation(assess_result_or_records: Any, path: str | Path) -> Path:
     return _save(fig, path)
 
 
+def bar_colour(bar: BiasBar, target_mha: float) -> str:
+    """"green": reaches the target at the budget (the one rule); "amber": only the bias is
+    within the target; "red": the bias is outside it."""
+    if bar.reaches_target:
+        return "green"
+    return "amber" if abs(bar.bias_mha) < target_mha else "red"
+
+
 def plot_bias_bars(
     assess_result_or_records: Any,
     path: str | Path,
@@ -408,8 +422,9 @@ def plot_bias_bars(
     """|bias| against the exact energy (mHa) per recipe, error bars of one standard error at the
     budget, the target as a line; log scale when the values span more than a factor 30.
 
-    Bars are green when |bias| + std is within the target, amber when only |bias| is, red
-    otherwise.
+    Bars are green when the recipe reaches the target at the budget (P >= confidence, the rule of
+    :func:`noiselab.mitigate.target.reaches_target`), amber when only its bias is within the
+    target, red otherwise.
     """
     study, device, target, bars = bias_bars(assess_result_or_records)
     study, device = study_name or study, device_name or device
@@ -419,10 +434,7 @@ def plot_bias_bars(
     mags = [abs(b.bias_mha) for b in bars]
     stds = [b.std_mha for b in bars]
     verdict = {"green": "tab:green", "amber": "tab:orange", "red": "tab:red"}
-    colors = [
-        verdict["green"] if m + s <= target else verdict["amber"] if m <= target else verdict["red"]
-        for m, s in zip(mags, stds, strict=True)
-    ]
+    colors = [verdict[bar_colour(b, target)] for b in bars]
     log = _wide_range([*mags, target])
     pos = [m for m in mags if m > 0] or [target]
     floor = min(min(pos), target) / 5.0
@@ -451,8 +463,8 @@ def plot_bias_bars(
     ax.set_ylabel("|energy − exact energy| (mHa)")
     handles = [
         Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
-        Patch(color=verdict["green"], alpha=0.8, label="within target, even with 1 std"),
-        Patch(color=verdict["amber"], alpha=0.8, label="bias within, shot noise not"),
+        Patch(color=verdict["green"], alpha=0.8, label="reaches the target at the budget"),
+        Patch(color=verdict["amber"], alpha=0.8, label="bias within, error bar too wide"),
         Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
     ]
     ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
@@ -492,8 +504,10 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
+        col = colors.get(c_.recipe, "k")
+        for x in getattr(c_, "bias_crossings", ()):
+            ax.plot([x * d], [t], marker="D", ms=7, color="white", markeredgecolor=col, zorder=5)
         for x in c_.crossings:
-            col = colors.get(c_.recipe, "k")
             ax.plot([x * d], [t], marker="X", ms=10, color=col, markeredgecolor="k", zorder=5)
             # stagger the labels so that neighbouring crossings stay readable
             ax.annotate(
@@ -543,7 +557,15 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel(knob.axis_label)
     ax.set_ylabel("|energy − exact energy| (mHa)")
-    ax.plot([], [], "X", color="0.5", markeredgecolor="k", label="crossing of the target")
+    conf = getattr(sweep_result, "confidence", 0.95)
+    ax.plot(
+        [], [], "X", color="0.5", markeredgecolor="k",
+        label=f"reaching the target at the budget (P >= {conf:g}) starts or stops",
+    )  # fmt: skip
+    ax.plot(
+        [], [], "D", color="white", markeredgecolor="0.3",
+        label="bias alone (unlimited shots) crosses the target",
+    )  # fmt: skip
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
     fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)

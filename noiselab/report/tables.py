@@ -85,6 +85,7 @@ def sweep_rows(result: Any) -> list[dict[str, Any]]:
                     "std_mha": e.std_mha,
                     "bias_ansatz_mha": e.bias_ansatz_mha,
                     "p_within_target": e.p_within_target,
+                    "reaches_target": bool(e.reaches_target),
                     "limited_by": e.limited_by,
                 }
             )
@@ -92,6 +93,10 @@ def sweep_rows(result: Any) -> list[dict[str, Any]]:
                 t = getattr(e, "trajectory_std_mha", None)
                 rows[-1]["trajectory_std_mha"] = "" if t is None else t
     return rows
+
+
+def _at(values: Sequence[Any], k: int) -> Any:
+    return values[k] if k < len(values) else ""
 
 
 def budget_rows(result: Any) -> list[dict[str, Any]]:
@@ -107,7 +112,8 @@ def budget_rows(result: Any) -> list[dict[str, Any]]:
                     "recipe": name,
                     "error_mha": r.errors_mha[k],
                     "std_mha": r.stds_mha[k],
-                    "within_target": abs(r.errors_mha[k]) <= result.target_mha,
+                    "p_within_target": _at(r.p_within_target, k),
+                    "reaches_target": _at(r.reaches_target, k),
                 }
             )
             if getattr(result, "emulation_method", "density_matrix") == "trajectory":
@@ -153,12 +159,13 @@ def sweep_table(result: Any, plain: bool = False) -> Any:
         cells = [knob.show(p.value)]
         for name in result.recipes:
             e = p.entry(name)
-            mark = "" if abs(e.error_mha) <= result.target_mha else " *"
+            mark = "" if e.reaches_target else " *"
             cells.append(f"{e.error_mha:+.3f} ± {e.std_mha:.3f}{mark}")
         rows.append(cells)
+    conf = getattr(result, "confidence", 0.95)
     title = (
         f"{result.study_name} on {result.device_name}: sweep of {knob.phrase} "
-        f"(* outside ±{result.target_mha:.3g} mHa)"
+        f"(* does not reach ±{result.target_mha:.3g} mHa at the budget: P < {conf:g})"
     )
     return _table(title, headers, rows, plain)
 

@@ -40,6 +40,9 @@ class BudgetRow:
     stds_mha: tuple[float, ...]  # standard error at the budget
     #: the emulator's own error per recipe (trajectory method), None under the density matrix
     trajectory_stds_mha: tuple[float | None, ...] = ()
+    #: P(within target) at the budget and the one rule (P >= confidence), per recipe
+    p_within_target: tuple[float, ...] = ()
+    reaches_target: tuple[bool, ...] = ()
 
 
 @dataclasses.dataclass(frozen=True)
@@ -59,6 +62,7 @@ class BudgetResult:
     stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
+    confidence: float = 0.95
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:
@@ -73,6 +77,7 @@ class BudgetResult:
             "recipes": list(self.recipes),
             "emulation_method": self.emulation_method,
             "target_mha": self.target_mha,
+            "confidence": self.confidence,
             "shots_total": self.shots_total,
             "exact_energy_ha": self.exact_energy_ha,
             "ansatz_energy_ha": self.ansatz_energy_ha,
@@ -87,8 +92,9 @@ def dominant_channel(
 ) -> tuple[str, str]:
     """(channel, sentence): the channel whose removal lowers |error| the most, with its numbers.
 
-    When removal barely matters the largest error alone decides. With ``target_mha`` and an
-    error already within it, the sentence says so instead of naming a cost inside the noise.
+    When removal barely matters the largest error alone decides. With ``target_mha`` and a
+    recipe that already reaches the target with every channel present (the one rule, P >=
+    confidence at the budget), the sentence says so instead of naming a cost inside the noise.
     """
     total = next(r for r in rows if r.kind == "total")
     floor = next(r for r in rows if r.kind == "noiseless")
@@ -103,9 +109,10 @@ def dominant_channel(
         best = max(solo, key=lambda c: solo[c])
     a = alone[best].errors_mha[k]
     w = removed[best].errors_mha[k]
-    if target_mha is not None and t <= target_mha:
+    reaches = total.reaches_target[k] if k < len(total.reaches_target) else False
+    if target_mha is not None and reaches:
         return best, (
-            f"within the {target_mha:.3g} mHa target with every channel present "
+            f"reaches the {target_mha:.3g} mHa target at the budget with every channel present "
             f"({total.errors_mha[k]:+.3g} mHa); largest single cost {best} "
             f"(without it {w:+.3g} mHa)"
         )
@@ -189,6 +196,8 @@ def _budget_with(
             errors_mha=tuple(float(r.bias_exact_mha) for _, r in out.results),
             stds_mha=tuple(float(r.std_mha) for _, r in out.results),
             trajectory_stds_mha=tuple(trajectory_std_of(r) for _, r in out.results),
+            p_within_target=tuple(float(r.p_within_target) for _, r in out.results),
+            reaches_target=tuple(bool(r.reaches_target) for _, r in out.results),
         )
         for (label, kind, channel, _), out in zip(configs, outs, strict=True)
     )

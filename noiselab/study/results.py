@@ -123,14 +123,20 @@ class ContextSummary:
         }
 
 
-def rank_key(result: Any) -> tuple[float, float]:
-    """Sort key: highest probability within target first, then fewest shots needed."""
+def rank_key(result: Any) -> tuple[float, float, float]:
+    """Sort key: highest probability within target first, then smallest |bias|, then fewest
+    shots needed (so that, when no recipe reaches the target and every P is about 0, the
+    closest one comes first, not the first in file order)."""
     needed = result.shots_needed
-    return (-float(result.p_within_target), math.inf if needed is None else float(needed))
+    return (
+        -float(result.p_within_target),
+        abs(float(result.bias_exact_mha)),
+        math.inf if needed is None else float(needed),
+    )
 
 
 def best_of(results: Mapping[str, Any]) -> str:
-    """Name of the best recipe (order of ``results`` breaks exact ties)."""
+    """Name of the best recipe by :func:`rank_key` (order of ``results`` breaks exact ties)."""
     names = list(results)
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
 
@@ -143,38 +149,88 @@ def verdict_line(
     shots: int,
     what: str = "recipe",
 ) -> tuple[bool, str]:
-    """(reachable at the budget, one plain sentence naming the best recipe)."""
+    """(reachable at the budget, one plain sentence naming the best recipe).
+
+    ``best`` is the first by :func:`rank_key`. When it does not reach the target (the one rule,
+    P >= confidence), no recipe does: the sentence names it as the closest, with its bias.
+    """
+    from noiselab.mitigate.target import reaches_target
+
     goal = target_words(target_mha)
     p = float(best.p_within_target)
     needed = best.shots_needed
-    if p >= confidence:
+    if reaches_target(p, confidence):
         more = f"; {format_count(needed)} shots would do" if needed is not None else ""
-        return True, (
+        text = (
             f"Verdict: {goal} is reachable with {format_count(shots)} shots: best {what} "
             f"'{best_name}' lands within target with probability {p:.3f} "
             f"(>= {confidence:g}){more}."
         )
-    if needed is not None:
-        return False, (
-            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best {what} "
-            f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
-            f"{format_count(needed)} shots."
-        )
-    if str(best.limited_by) == "calibration":
-        cal_std = (getattr(best, "details", None) or {}).get("std_calibration_mha")
-        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
-        return False, (
-            f"Verdict: {goal} is NOT reachable with this readout calibration: the best {what} "
-            f"'{best_name}' keeps a bias of {float(best.bias_exact_mha):+.3g} mHa, but its "
-            f"readout-calibration noise{cal} does not shrink with more measurement shots "
-            f"(probability {p:.3f} at {format_count(shots)} shots); raise the readout pass's "
-            f"calibration_shots."
-        )
-    return False, (
-        f"Verdict: {goal} is NOT reachable at any shot count: the best {what} '{best_name}' "
-        f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
-        f"{format_count(shots)} shots)."
+        return True, _with_amplification(text, best)
+    head = (
+        f"Verdict: no {what} reaches {goal} with {format_count(shots)} shots "
+        f"(P >= {confidence:g}); closest is '{best_name}' at "
+        f"{float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f})"
     )
+    details = getattr(best, "details", None) or {}
+    if needed is not None:
+        text = f"{head}: it would need {format_count(needed)} shots."
+    elif str(best.limited_by) == "calibration":
+        cal_std = details.get("std_calibration_mha")
+        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
+        text = (
+            f"{head}: its readout-calibration noise{cal} does not shrink with more measurement "
+            "shots; raise the readout pass's calibration_shots."
+        )
+    elif str(best.limited_by) == "amplification":
+        amp_std = details.get("std_amplification_mha")
+        amp = f" ({float(amp_std):.3g} mHa)" if amp_std is not None else ""
+        text = (
+            f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
+            "with more shots."
+        )
+    else:
+        text = f"{head}: its bias keeps it out of reach at any shot count."
+    return False, _with_amplification(text, best)
+
+
+def amplification_line(result: Any) -> str | None:
+    """One line stating the amplification an extrapolated result assumes (None otherwise)."""
+    details = getattr(result, "details", None) or {}
+    ex = details.get("extrapolation") if isinstance(details, Mapping) else None
+    if not isinstance(ex, Mapping):
+        return None
+
+    def listed(key: str) -> str:
+        return ", ".join(f"{float(c):.3g}" for c in ex.get(key, []))
+
+    if ex.get("amplifier") == "stretch":
+        off = float(ex.get("amplification_offset", 0.0))
+        systematic = (
+            "no systematic error (amplification_offset 0)"
+            if off == 0.0
+            else f"a systematic error of {off * 100:+.3g} % (amplification_offset, in the bias)"
+        )
+        how = f"stretch by {listed('scales_nominal')} with {systematic} and"
+    else:
+        axis = "realized" if ex.get("scale_axis") == "realized" else "nominal"
+        how = (
+            f"{ex.get('amplifier')} folding at {listed('scales_nominal')} (realized "
+            f"{listed('scales_realized')} from the compiled circuits' estimated error; fit "
+            f"against the {axis} scales) with"
+        )
+    spread = float(ex.get("amplification_spread", 0.0))
+    std = details.get("std_amplification_mha")
+    cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
+    return (
+        f"Amplification assumed: {how} a {spread * 100:.3g} % random error (1 std) in each "
+        f"amplified point's realized noise scale (amplification_spread{cost})."
+    )
+
+
+def _with_amplification(text: str, result: Any) -> str:
+    line = amplification_line(result)
+    return text if line is None else f"{text} {line}"
 
 
 def format_count(n: int | float | None) -> str:
@@ -237,6 +293,7 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
         "shots_per_circuit": jsonable(result.shots_per_circuit),
         "n_circuits": int(result.n_circuits),
         "p_within_target": float(result.p_within_target),
+        "reaches_target": bool(result.reaches_target),
         "shots_needed": None if result.shots_needed is None else int(result.shots_needed),
         "limited_by": str(result.limited_by),
     }
@@ -430,6 +487,7 @@ class AssessResult:
                     "shots_total": int(r.shots_total),
                     "n_circuits": int(r.n_circuits),
                     "p_within_target": float(r.p_within_target),
+                    "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
                 }
@@ -464,6 +522,7 @@ def score_values(r: Any) -> dict[str, Any]:
         "bias_mha": float(r.bias_exact_mha),
         "std_mha": float(r.std_mha),
         "p_within_target": float(r.p_within_target),
+        "reaches_target": bool(r.reaches_target),
         "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
         "limited_by": str(r.limited_by),
     }

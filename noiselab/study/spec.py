@@ -34,6 +34,7 @@ from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device.profile import load_profile, profile_from_mapping
 from noiselab.mitigate.recipe import parse_recipe
+from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
 from noiselab.study.knobs import KNOB_ALIASES, KNOBS
 
@@ -206,6 +207,11 @@ class StudyFile(_Strict):
     confidence: float = 0.95
     recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
     seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    #: relative std of the realized noise scale of each amplified point (zero-noise
+    #: extrapolation); the default is a stated common-practice value, 0 reproduces ideal
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    #: relative, systematic error of the stretch amplifier (enters the bias)
+    amplification_offset: float = 0.0
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
     emulation: EmulationSettings = EmulationSettings()
@@ -220,7 +226,26 @@ class StudyFile(_Strict):
             )
         return value
 
-    @field_validator("target_mha", "confidence", mode="before")
+    @field_validator("amplification_spread")
+    @classmethod
+    def _check_spread(cls, value: float) -> float:
+        if not (math.isfinite(value) and 0.0 <= value <= 0.5):
+            raise ValueError(
+                f"{value}; allowed: a relative standard deviation from 0 to 0.5 "
+                f"(0: ideal amplification; default {DEFAULT_AMPLIFICATION_SPREAD})"
+            )
+        return value
+
+    @field_validator("amplification_offset")
+    @classmethod
+    def _check_offset(cls, value: float) -> float:
+        if not (math.isfinite(value) and -0.5 <= value <= 1.0):
+            raise ValueError(f"{value}; allowed: a relative offset from -0.5 to 1 (0: none)")
+        return value
+
+    @field_validator(
+        "target_mha", "confidence", "amplification_spread", "amplification_offset", mode="before"
+    )
     @classmethod
     def _no_bool(cls, value: Any) -> Any:
         if isinstance(value, bool):
@@ -299,6 +324,8 @@ class Study:
     seed: int
     num_qubits: int
     tune: TuneGrid | None = None
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    amplification_offset: float = 0.0
     sweep: SweepDefaults | None = None
     description: str | None = None
     emulation: EmulationSettings = field(default_factory=EmulationSettings)
@@ -430,6 +457,8 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         recipes=recipes,
         seed=spec.seed,
         num_qubits=num_qubits,
+        amplification_spread=float(spec.amplification_spread),
+        amplification_offset=float(spec.amplification_offset),
         tune=spec.tune,
         sweep=spec.sweep,
         description=spec.description,
