@@ -23,7 +23,7 @@ def h2():
 def test_uccsd_reaches_h2_fci(h2, encoding, reduced):
     from pyscf import fci, gto, scf
 
-    qp = encode(h2, encoding, two_qubit_reduction=reduced)
+    qp = encode(h2, encoding, drop_fixed_parity_qubits=reduced)
     res = optimize_noiseless(qp, uccsd_circuit(qp))
     mol = gto.M(atom="H 0 0 0; H 0 0 0.7414", basis="sto-3g", verbose=0)
     e_fci = fci.FCI(scf.RHF(mol).run(conv_tol=1e-12)).kernel()[0]
@@ -49,7 +49,7 @@ def test_uccsd_two_electron_active_space_is_exact():
 
 
 def test_layered_circuit_is_variational(h2):
-    qp = encode(h2, "parity", two_qubit_reduction=True)
+    qp = encode(h2, "parity", drop_fixed_parity_qubits=True)
     h_full_min = np.linalg.eigvalsh(qp.hamiltonian.to_matrix())[0]
     # numpy eigvalsh: for H2 the neutral singlet is the lowest state of the whole qubit space,
     # so any state's energy is bounded below by the sector energy (variational principle)
@@ -97,8 +97,8 @@ LAYERED_H2_STUDY = {
                 "t1_us": 100,
                 "t2_us": 90,
                 "gate_error": 3.0e-4,
-                "p_read1_prep0": 0.015,
-                "p_read0_prep1": 0.03,
+                "flip_0to1": 0.015,
+                "flip_1to0": 0.03,
             }
         },
         "couplers": {"default": {"gate_error": 8.0e-3}},

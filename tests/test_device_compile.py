@@ -194,8 +194,8 @@ def test_greedy_patch_prefers_low_error_region():
                 "t1_us": 100,
                 "t2_us": 100,
                 "gate_error": 3e-4,
-                "p_read1_prep0": 0.01,
-                "p_read0_prep1": 0.02,
+                "flip_0to1": 0.01,
+                "flip_1to0": 0.02,
             },
         },
         "couplers": {

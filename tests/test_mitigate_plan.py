@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+from helpers.synthetic import basis_distributions
 from qiskit.quantum_info import DensityMatrix, SparsePauliOp, random_density_matrix
 
 from noiselab.common.errors import InputError
@@ -16,7 +17,6 @@ from noiselab.mitigate.estimate import (
     standard_error,
 )
 from noiselab.mitigate.plan import allocate_shots, build_plan, split_across_circuits
-from noiselab.mitigate.synthetic import basis_distributions
 from noiselab.mitigate.target import assess_target, p_within
 
 
@@ -88,12 +88,12 @@ def test_allocation_keeps_one_shot_each_and_refuses_tiny_budgets():
 
 
 def test_weighted_split_across_circuits():
-    gam, sig = np.array([3.0, -3.0, 1.0]), np.array([1.0, 1.2, 1.5])
-    shots = split_across_circuits(gam, sig, 10_000, "weighted")
-    # source: Lagrange multipliers: N_i proportional to |gamma_i| sigma_i
-    expected = 10_000 * np.abs(gam) * sig / np.sum(np.abs(gam) * sig)
+    w, sig = np.array([3.0, -3.0, 1.0]), np.array([1.0, 1.2, 1.5])
+    shots = split_across_circuits(w, sig, 10_000, "weighted")
+    # source: Lagrange multipliers: N_i proportional to |w_i| sigma_i
+    expected = 10_000 * np.abs(w) * sig / np.sum(np.abs(w) * sig)
     assert np.all(np.abs(shots - expected) <= 1.0 + 1e-9)
-    assert split_across_circuits(gam, sig, 9, "equal").tolist() == [3, 3, 3]
+    assert split_across_circuits(w, sig, 9, "equal").tolist() == [3, 3, 3]
 
 
 def test_sample_counts_is_seeded_multinomial():

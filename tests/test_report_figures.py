@@ -11,6 +11,8 @@ import numpy as np
 import pytest
 
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION
+from noiselab.mitigate.target import p_within
 from noiselab.report import figures as F  # noqa: N812
 from noiselab.report import tables as T  # noqa: N812
 from noiselab.report.outputs import write_budget_outputs, write_sweep_outputs
@@ -35,12 +37,28 @@ def _hand_sweep(log: bool = True) -> SweepResult:
     for v in values:
         x = v / 0.01
         entries = tuple(
-            SweepEntry(name, EXACT_HA + e / 1000, e, s, e, 0.5, "bias")
+            SweepEntry(name, EXACT_HA + e / 1000, e, s, e, p, "-", None, p >= 0.95)
             for name, e, s in (("raw", 40 * x, 0.3), ("zne", 3 * x * x, 1.0))
+            for p in (p_within(e, s, CHEMICAL_ACCURACY_MHA),)
         )
         points.append(SweepPoint(v, x, entries))
     recipes = ("raw", "zne")
-    crossings = tuple(recipe_crossing(r, knob, points, CHEMICAL_ACCURACY_MHA, log) for r in recipes)
+    models = {"raw": (lambda x: 40 * x, 0.3), "zne": (lambda x: 3 * x * x, 1.0)}
+
+    def evaluator(name: str):
+        err, std = models[name]
+
+        def evaluate(v: float) -> SweepEntry:
+            e = err(v / 0.01)
+            p = p_within(e, std, CHEMICAL_ACCURACY_MHA)
+            return SweepEntry(name, EXACT_HA + e / 1000, e, std, e, p, "-", None, p >= 0.95)
+
+        return evaluate
+
+    crossings = tuple(
+        recipe_crossing(r, knob, points, CHEMICAL_ACCURACY_MHA, 0.95, log, evaluator(r))
+        for r in recipes
+    )
     return SweepResult(
         "h2-hand", "toy-chip", "two-qubit-error", log, 0.01, CHEMICAL_ACCURACY_MHA, 100_000,
         EXACT_HA, EXACT_HA + 1e-4, recipes, tuple(points), crossings,
@@ -89,7 +107,7 @@ def test_sweep_figure_three_formats(tmp_path: Path) -> None:
     assert "two-qubit gate error (%)" in text
     assert "(mHa)" in text
     assert "h2-hand" in text and "toy-chip" in text
-    assert F.CAUTION in text
+    assert CAUTION in text  # the one caution sentence, wrapped to the figure's width
     assert (tmp_path / "sw.pdf").read_bytes()[:5] == b"%PDF-"
     # no temporary files left behind by the atomic writes
     assert sorted(p.name for p in tmp_path.iterdir()) == ["sw.pdf", "sw.png", "sw.svg"]
@@ -155,6 +173,15 @@ def test_bias_bars_log_and_linear(tmp_path: Path) -> None:
         text = _svg_text(F.plot_bias_bars(bars, tmp_path / f"{name}.svg", "h2-hand", "toy-chip"))
         assert "|energy − exact energy| (mHa)" in text
     assert F._wide_range([35.0, 0.02, CHEMICAL_ACCURACY_MHA])
+
+
+def test_bias_bar_colours_follow_the_rule() -> None:
+    t = CHEMICAL_ACCURACY_MHA
+    # |bias| + std above the target, yet the rule says it reaches (P >= confidence): green
+    assert F.bar_colour(F.BiasBar("a", 1.0, 0.8, reaches_target=True), t) == "green"
+    # |bias| + std inside the target but the rule says no (a recipe at a tiny budget): not green
+    assert F.bar_colour(F.BiasBar("b", 0.2, 0.3, reaches_target=False), t) == "amber"
+    assert F.bar_colour(F.BiasBar("c", -2.0, 0.1, reaches_target=False), t) == "red"
     assert not F._wide_range([3.0, 1.0, CHEMICAL_ACCURACY_MHA])
 
 
@@ -211,7 +238,7 @@ def test_tune_and_assess_tables_from_duck_typed_results() -> None:
     assert "best 1 of 3 settings" in text and "std. error (mHa)" in text
     r = SimpleNamespace(
         energy_ha=-1.1, bias_exact_mha=2.5, std_mha=0.4, p_within_target=0.1, shots_needed=None,
-        limited_by="bias",
+        limited_by="bias", reaches_target=False,
     )  # fmt: skip
     assess = SimpleNamespace(study="h2-hand", recipes={"raw": r})
     rows = T.assess_rows(assess)

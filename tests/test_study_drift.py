@@ -63,7 +63,7 @@ def test_drawn_profiles_stay_physical_and_reproducible():
             rq = d.qubit(q)
             # Nielsen & Chuang sec. 8.3: T2 <= 2 T1
             assert rq.t2_us <= 2 * rq.t1_us * (1 + 1e-12)
-            assert 0 < rq.gate_error <= 0.5 and 0 <= rq.p_read0_prep1 <= 0.5
+            assert 0 < rq.gate_error <= 0.5 and 0 <= rq.flip_1to0 <= 0.5
             t1.append(rq.t1_us / nominal.qubit(q).t1_us)
         assert d.qubit(0).over_rotation_fraction == nominal.qubit(0).over_rotation_fraction
         assert d.pair(0, 1).zz_angle_rad == nominal.pair(0, 1).zz_angle_rad

@@ -26,17 +26,15 @@ from __future__ import annotations
 import math
 import time
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
+from qiskit import QuantumCircuit
+from scipy.optimize import minimize
 
+from noiselab.chem.encode import QubitProblem
+from noiselab.chem.spin import spin_squared_op
 from noiselab.chem.statevector import compile_statevector
 from noiselab.common.errors import InputError
-
-if TYPE_CHECKING:
-    from qiskit import QuantumCircuit
-
-    from noiselab.chem.encode import QubitProblem
 
 METHODS = ("BFGS", "L-BFGS-B")
 #: Default cap on the number of starts (the study's ``ansatz.max_starts``).
@@ -92,10 +90,6 @@ def optimize_noiseless(
     ``starts``: at least this many starts; ``max_starts``: at most this many (default
     ``max(starts, DEFAULT_MAX_STARTS)``).
     """
-    from scipy.optimize import minimize
-
-    from noiselab.chem.spin import spin_squared_op
-
     if method not in METHODS:
         raise InputError(f"optimizer.method: {method!r}; allowed: {', '.join(METHODS)}")
     if starts < 1:

@@ -2,30 +2,27 @@
 
 ``S^2 = S- S+ + Sz (Sz + 1)`` with ``S+ = sum_p a+_{p alpha} a_{p beta}`` and
 ``S- = (S+)^dagger``; spin orbitals in block order (alpha j, beta n_orb + j). The operator is
-mapped in the problem's encoding, two-qubit reduction included (S^2 conserves N_alpha and N_beta,
-so the reduction applies), so ``<psi|S^2|psi>`` of any trial state on the logical qubits is
-its total spin: 0 for a singlet, 2 for a triplet, s (s + 1) in general.
+mapped in the problem's encoding, with the fixed parity qubits dropped like the Hamiltonian's
+when the problem drops them (S^2 conserves N_alpha and N_beta), so ``<psi|S^2|psi>`` of any
+trial state on the logical qubits is its total spin: 0 for a singlet, 2 for a triplet,
+s (s + 1) in general.
 """
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 import numpy as np
+import scipy.sparse.linalg as spla
+from qiskit.quantum_info import SparsePauliOp
 
-if TYPE_CHECKING:
-    from qiskit.quantum_info import SparsePauliOp
-
-    from noiselab.chem.encode import QubitProblem
+from noiselab.chem.encode import QubitProblem, encode_fermion_operator
+from noiselab.chem.exact import _DENSE_LIMIT, sector_indices
 
 #: Two sector eigenvalues closer than this (Ha) count as one degenerate ground level.
 DEGENERACY_HA = 1e-8
 
 
 def spin_squared_op(qubit_problem: QubitProblem) -> SparsePauliOp:
-    """S^2 on the problem's logical qubits (real coefficients, reduced like the Hamiltonian)."""
-    from noiselab.chem.encode import encode_fermion_operator
-
+    """S^2 on the problem's logical qubits (real coefficients, qubits as the Hamiltonian's)."""
     n = qubit_problem.n_orb
     # S- S+ = sum_pq a+_{p beta} a_{p alpha} a+_{q alpha} a_{q beta}
     terms = [
@@ -51,10 +48,6 @@ def exact_spin_squared(qubit_problem: QubitProblem) -> float:
     When that level is degenerate (within :data:`DEGENERACY_HA`), S^2 is diagonalized inside the
     degenerate space and its smallest value is returned (the lowest-spin exact ground state).
     """
-    import scipy.sparse.linalg as spla
-
-    from noiselab.chem.exact import _DENSE_LIMIT, sector_indices
-
     idx = sector_indices(qubit_problem)
     h = qubit_problem.hamiltonian.to_matrix(sparse=True).tocsr()[idx][:, idx]
     s2 = spin_squared_op(qubit_problem).to_matrix(sparse=True).tocsr()[idx][:, idx]

@@ -19,3 +19,6 @@ REGISTRY.append(profile_cmd.register)
 from noiselab.cli import sweep_cmds  # noqa: E402  (sweep, budget)
 
 REGISTRY.append(sweep_cmds.register)
+from noiselab.cli import shipped_cmd  # noqa: E402  (shipped)
+
+REGISTRY.append(shipped_cmd.register)

@@ -7,12 +7,18 @@ imported inside the command functions so that ``noiselab --help`` stays fast.
 from __future__ import annotations
 
 import contextlib
+import json
 import sys
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Annotated, Any
 
 import typer
+
+from noiselab.common.errors import InputError, input_error
+
+# Deliberately lazy: the study and report layers and rich are imported inside the command
+# functions (noiselab --help stays fast).
 
 DEMO_DIR = "noiselab-demo"
 
@@ -104,8 +110,6 @@ def _check_method(method: str | None) -> None:
     from noiselab.study.spec import EMULATION_METHODS
 
     if method not in EMULATION_METHODS:
-        from noiselab.common.errors import input_error
-
         raise input_error(None, "--method", f"{method!r}", ", ".join(EMULATION_METHODS))
 
 
@@ -120,10 +124,37 @@ def _open_cache(cache: Path | None, no_cache: bool) -> Any:
     from noiselab.study.cache import open_cache
 
     if no_cache and cache is not None:
-        from noiselab.common.errors import InputError
-
         raise InputError("--cache: given together with --no-cache; allowed: one of them")
     return open_cache(cache, enabled=not no_cache)
+
+
+def _run_job(
+    job: Callable[..., Any],
+    study: Path,
+    *,
+    cache: Path | None,
+    no_cache: bool,
+    quiet: bool,
+    method: str | None,
+    **options: Any,
+) -> Any:
+    """What every study command does around its job: refuse a bad --method, open the results
+    cache, run ``job(study, ...)`` under progress bars, print its emulation notice."""
+    _check_method(method)
+    store = _open_cache(cache, no_cache)
+    with _progress(quiet) as hook:
+        result = job(study, cache=store, progress=hook, method=method, **options)
+    emit_notice(result)
+    return result
+
+
+def echo_written(written: list[Path]) -> None:
+    """'Wrote N file(s) to FOLDER: names' (nothing when no file was written)."""
+    if written:
+        typer.echo(
+            f"Wrote {len(written)} file(s) to {written[0].parent}: "
+            + ", ".join(p.name for p in written)
+        )
 
 
 def _stdout_is_terminal() -> bool:
@@ -194,8 +225,6 @@ def _print_table(title: str, headers: tuple[str, ...], rows: list[tuple[str, ...
 
 
 def _print_json(obj: dict[str, Any]) -> None:
-    import json
-
     sys.stdout.write(json.dumps(obj, indent=2, sort_keys=False) + "\n")
     sys.stdout.flush()
 
@@ -264,20 +293,18 @@ def assess_cmd(
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
     from noiselab.study.assess import assess
 
-    _check_method(method)
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet or json_out) as hook:
-        result = assess(
-            study,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-            drift=drift,
-        )
-    emit_notice(result)
+    result = _run_job(
+        assess,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet or json_out,
+        method=method,
+        seed=seed,
+        shots=shots,
+        trajectories=trajectories,
+        drift=drift,
+    )
     written = _write_assess_outputs(result, out) if out is not None else []
     if json_out:
         _print_json(result.to_json(with_stats=timings))
@@ -319,11 +346,7 @@ def _show_assess(result: Any, written: list[Path]) -> None:
             f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
             f"{s.wall_seconds:.1f} s)"
         )
-    if written:
-        typer.echo(
-            f"Wrote {len(written)} file(s) to {written[0].parent}: "
-            + ", ".join(p.name for p in written)
-        )
+    echo_written(written)
 
 
 # ---------------------------------------------------------------- tune
@@ -332,8 +355,6 @@ def _show_assess(result: Any, written: list[Path]) -> None:
 def _parse_scale_sets(values: list[str] | None) -> list[list[float]] | None:
     if not values:
         return None
-    from noiselab.common.errors import input_error
-
     out = []
     for text in values:
         try:
@@ -400,8 +421,7 @@ def tune_cmd(
     """Rank a grid of mitigation settings by the probability of reaching the target."""
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
 
-    _check_method(method)
-
+    _check_method(method)  # before --scales is parsed
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
@@ -409,21 +429,20 @@ def tune_cmd(
         scales=_parse_scale_sets(scales),
         fit=fit or None,
     )
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet or json_out) as hook:
-        result = tune(
-            study,
-            grid=override,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        tune,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet or json_out,
+        method=method,
+        grid=override,
+        seed=seed,
+        shots=shots,
+        workers=workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     written = write_tune_outputs(result, out) if out is not None else []
     if json_out:
         _print_json(result.to_json(with_stats=timings))

@@ -22,7 +22,15 @@ from noiselab.cli.study_cmds import (
     StudyArg,
     TrajectoriesOpt,
     WorkersOpt,
+    _check_method,
+    _console,
+    _run_job,
+    echo_written,
 )
+from noiselab.common.wording import CAUTION
+
+# Deliberately lazy: the study and report layers are imported inside the command functions
+# (noiselab --help stays fast).
 
 KNOB_HELP = (
     "What to vary: noise-scale (every channel, 1 = device as profiled), two-qubit-error, "
@@ -49,17 +57,7 @@ OutOpt = Annotated[
 ]
 
 
-def _echo_written(written: list[Path]) -> None:
-    if written:
-        typer.echo(
-            f"Wrote {len(written)} file(s) to {written[0].parent}: "
-            + ", ".join(p.name for p in written)
-        )
-
-
 def _print(table: Any) -> None:
-    from noiselab.cli.study_cmds import _console
-
     _console().print(table)
 
 
@@ -121,43 +119,41 @@ def sweep_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.sweep import get_knob, sweep
 
-    _check_method(method)
-
+    _check_method(method)  # before the knob
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = sweep(
-            study,
-            knob=vary,
-            start=start,
-            stop=stop,
-            points=points,
-            log=log,
-            recipes=recipe or None,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        sweep,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        knob=vary,
+        start=start,
+        stop=stop,
+        points=points,
+        log=log,
+        recipes=recipe or None,
+        seed=seed,
+        shots=shots,
+        workers=workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import sweep_table
 
     _print(sweep_table(result))
     for c in result.crossings:
         typer.echo(c.sentence + ".")
+    typer.echo(f"{result.crossing_method[0].upper()}{result.crossing_method[1:]}.")
     for note in result.notes():
         typer.echo(f"Note: {note}.")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if result.stats is not None:
         s = result.stats
         typer.echo(
@@ -167,7 +163,7 @@ def sweep_cmd(
     if out is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        _echo_written(write_sweep_outputs(result, out))
+        echo_written(write_sweep_outputs(result, out))
 
 
 def budget_cmd(
@@ -192,37 +188,33 @@ def budget_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
     from noiselab.study.budget import budget
 
-    _check_method(method)
-
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = budget(
-            study,
-            recipe=recipe,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        budget,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        recipe=recipe,
+        seed=seed,
+        shots=shots,
+        workers=workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import budget_table
 
     _print(budget_table(result))
     typer.echo(result.sentence + ".")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if out is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        _echo_written(write_budget_outputs(result, out))
+        echo_written(write_budget_outputs(result, out))
 
 
 _SWEEP_HELP = (

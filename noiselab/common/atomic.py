@@ -49,12 +49,3 @@ def write_text_atomic(target: str | Path, text: str) -> Path:
         fh.flush()
         os.fsync(fh.fileno())
     return Path(target)
-
-
-def write_bytes_atomic(target: str | Path, data: bytes) -> Path:
-    """Write ``data`` to ``target`` atomically; return the path."""
-    with atomic_path(target) as tmp, open(tmp, "wb") as fh:
-        fh.write(data)
-        fh.flush()
-        os.fsync(fh.fileno())
-    return Path(target)

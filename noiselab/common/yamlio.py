@@ -5,6 +5,8 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+import yaml
+
 from noiselab.common.errors import input_error
 
 MAX_YAML_BYTES = 2_000_000
@@ -37,8 +39,6 @@ def load_yaml_mapping(path: str | Path, what: str = "file") -> dict[str, Any]:
 
 def parse_yaml_mapping(text: str, source: str, what: str = "file") -> dict[str, Any]:
     """Parse YAML text (safe loader only) and require a mapping at the top level."""
-    import yaml
-
     try:
         data = yaml.safe_load(text)
     except yaml.constructor.ConstructorError as exc:

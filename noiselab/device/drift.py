@@ -67,7 +67,7 @@ def draw_profile(profile: DeviceProfile, rng: np.random.Generator) -> DeviceProf
         if f_1q[q] != 1.0:
             entry["gate_error"] = min(rq.gate_error * float(f_1q[q]), MAX_SINGLE_QUBIT_ERROR)
         if f_ro[q] != 1.0:
-            for key in ("p_read1_prep0", "p_read0_prep1"):
+            for key in ("flip_0to1", "flip_1to0"):
                 entry[key] = min(getattr(rq, key) * float(f_ro[q]), MAX_READOUT_ERROR)
         if entry:
             q_over.setdefault(q, {}).update(entry)

@@ -19,8 +19,8 @@ A profile file looks like this (units are in the key names; rates are probabilit
         t1_us: 100
         t2_us: 90
         gate_error: 3.0e-4               # average infidelity of sx/x, relaxation included
-        p_read1_prep0: 0.015             # P(read 1 | prepared 0)
-        p_read0_prep1: 0.03              # P(read 0 | prepared 1)
+        flip_0to1: 0.015                 # P(read 1 | prepared 0)
+        flip_1to0: 0.03                  # P(read 0 | prepared 1)
         over_rotation_fraction: 0.0      # optional: sx/x rotate by (1 + f) x their angle
       overrides:
         2: {t1_us: 60, t2_us: 45}
@@ -53,7 +53,10 @@ Quoted gate errors are the stochastic part (relaxation during the gate included)
 
 from __future__ import annotations
 
+import copy
+import hashlib
 import itertools
+import json
 import math
 import re
 from collections.abc import Iterable, Mapping
@@ -75,6 +78,8 @@ from pydantic import (
 )
 
 from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.shipped import looks_like_name, shipped_path
+from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device import thermal
 
 SCHEMA_VERSION = 1
@@ -151,8 +156,8 @@ class QubitValues(BaseModel):
     t1_us: PositiveTime | None
     t2_us: PositiveTime | None
     gate_error: Rate1Q
-    p_read1_prep0: ReadoutRate
-    p_read0_prep1: ReadoutRate
+    flip_0to1: ReadoutRate
+    flip_1to0: ReadoutRate
     over_rotation_fraction: OverRotation = 0.0
 
     @field_validator("t1_us", "t2_us", mode="after")
@@ -168,8 +173,8 @@ class QubitOverride(BaseModel):
     t1_us: PositiveTime | None = None
     t2_us: PositiveTime | None = None
     gate_error: Rate1Q | None = None
-    p_read1_prep0: ReadoutRate | None = None
-    p_read0_prep1: ReadoutRate | None = None
+    flip_0to1: ReadoutRate | None = None
+    flip_1to0: ReadoutRate | None = None
     over_rotation_fraction: OverRotation | None = None
 
     @model_validator(mode="before")
@@ -259,8 +264,8 @@ class QubitParams:
     t1_us: float | None
     t2_us: float | None
     gate_error: float
-    p_read1_prep0: float
-    p_read0_prep1: float
+    flip_0to1: float
+    flip_1to0: float
     over_rotation_fraction: float
 
 
@@ -341,9 +346,6 @@ class DeviceProfile(BaseModel):
     @property
     def fingerprint(self) -> str:
         """SHA-256 of the canonical JSON of every value (for cache keys); source not included."""
-        import hashlib
-        import json
-
         text = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()
 
@@ -609,9 +611,10 @@ def profile_from_mapping(
 
 
 def load_profile(path: str | Path) -> DeviceProfile:
-    """Read and validate a device profile YAML file."""
-    from noiselab.common.yamlio import load_yaml_mapping
+    """Read and validate a device profile YAML file (a path, or a shipped profile's name)."""
 
+    if not Path(path).exists() and looks_like_name(str(path)):
+        path = shipped_path("devices", str(path), str(path), "device profile")
     data = load_yaml_mapping(path, what="device profile")
     return profile_from_mapping(data, str(path))
 
@@ -695,8 +698,6 @@ def scale_profile(
 
     s = 0 on all channels is noiseless; s = 1 returns an equal profile.
     """
-    import copy
-
     try:
         s = float(factor)
     except (TypeError, ValueError):
@@ -751,7 +752,7 @@ def scale_profile(
                 e["zz_angle_rad"] = _scaled_signed(e["zz_angle_rad"], s, MAX_ZZ_ANGLE_RAD)
     if "readout" in chosen:
         for e in q_entries:
-            for key in ("p_read1_prep0", "p_read0_prep1"):
+            for key in ("flip_0to1", "flip_1to0"):
                 if key in e:
                     e[key] = _scaled_rate(e[key], s, MAX_READOUT_ERROR)
         for e in data.get("readout_crosstalk", []):

@@ -16,19 +16,19 @@ measured distribution and any calibration circuit), which is what the variance n
 
 from __future__ import annotations
 
+import hashlib
+import json
 from abc import ABC
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, ClassVar
+from typing import Any, ClassVar
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict
 
-from noiselab.mitigate.estimate import Estimate, SourceKey
+from noiselab.mitigate.estimate import Estimate, SourceKey, linear_combination
+from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.variants import CircuitVariant
-
-if TYPE_CHECKING:
-    from noiselab.mitigate.recipe import ExperimentContext
 
 STAGE_CORRECT = 0
 STAGE_ESTIMATE = 1
@@ -84,12 +84,18 @@ class Workspace:
     ``calibration(variant, states, shots)`` returns distributions (n_states, 2**n) of the
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
     under the variant's readout, registering them as sources with their shot counts.
+    A pass whose result has a random part that does not shrink with shots records its variance in
+    ``fixed_variance`` and, on sampled evaluations (``rng`` set), draws it.
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
     details: dict[str, Any] = field(default_factory=dict)
+    #: random parts that no shot count shrinks, by name (Ha**2), e.g. "amplification"
+    fixed_variance: dict[str, float] = field(default_factory=dict)
+    #: set on sampled evaluations only: passes draw their own random parts from it
+    rng: np.random.Generator | None = None
 
 
 class MitigationPass(ABC):
@@ -105,6 +111,15 @@ class MitigationPass(ABC):
     def spec(self) -> dict[str, Any]:
         """The pass as a recipe entry (all options, defaults filled in)."""
         return {"pass": self.name, **self.options.model_dump(mode="json")}
+
+    def cache_key(self) -> str:
+        """Stable key of the pass and its options: SHA-256 of :meth:`spec` as sorted JSON.
+
+        Equal for equal options however they were written (defaults filled in, key order); the
+        same in every process and session.
+        """
+        text = json.dumps(self.spec(), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
 
     def describe(self) -> str:
         """Short label for the recipe name."""
@@ -138,8 +153,6 @@ class MitigationPass(ABC):
 
 def plan_estimate(ctx: ExperimentContext, data: VariantData) -> Estimate:
     """The plain estimator: constant + sum_g w_g . q_g."""
-    from noiselab.mitigate.estimate import linear_combination
-
     parts = [data[g.basis].estimate(g.weights) for g in ctx.plan.groups]
     est = linear_combination([1.0] * len(parts), parts)
     return Estimate(est.value + ctx.plan.constant, est.influence)

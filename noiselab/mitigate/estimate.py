@@ -85,8 +85,15 @@ def estimate_variance(
     shots: Mapping[SourceKey, int | None],
 ) -> float:
     """sum_sources Var_p(u) / N; sources with ``shots`` None (exact) contribute nothing."""
+    return variance_from_sources(source_variances(est, probs), shots)
+
+
+def variance_from_sources(
+    svars: Mapping[SourceKey, float], shots: Mapping[SourceKey, int | None]
+) -> float:
+    """sum_sources Var_p(u) / N from single-shot variances per source (None shots: exact)."""
     total = 0.0
-    for k, var in source_variances(est, probs).items():
+    for k, var in svars.items():
         n = shots.get(k)
         if n is None:
             continue

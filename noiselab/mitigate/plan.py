@@ -237,14 +237,14 @@ def allocate_shots(
 
 
 def split_across_circuits(
-    gammas: Sequence[float], sigmas: Sequence[float], total: int, rule: str = "equal"
+    weights: Sequence[float], sigmas: Sequence[float], total: int, rule: str = "equal"
 ) -> np.ndarray:
-    """Shots per circuit for a linear combination sum_i gamma_i E_i with single-shot stds sigma_i.
+    """Shots per circuit for a linear combination sum_i w_i E_i with single-shot stds sigma_i.
 
-    ``"equal"``: the same share each. ``"weighted"``: N_i proportional to |gamma_i| sigma_i, the
-    minimizer of sum_i gamma_i**2 sigma_i**2 / N_i at fixed sum N_i.
+    ``"equal"``: the same share each. ``"weighted"``: N_i proportional to |w_i| sigma_i, the
+    minimizer of sum_i w_i**2 sigma_i**2 / N_i at fixed sum N_i.
     """
-    g = np.abs(np.asarray(gammas, dtype=float))
+    g = np.abs(np.asarray(weights, dtype=float))
     s = np.asarray(sigmas, dtype=float)
     if rule == "equal":
         return largest_remainder(np.ones(len(g)), total)

@@ -7,26 +7,27 @@ estimator pass per variant and the combination pass across variants, allocates t
 and returns a :class:`RecipeResult`. ``sampled=False`` (default): exact distributions, analytic
 standard error. ``sampled=True``: multinomial counts are drawn from ``rng`` and pushed through
 the same code (the spread of such estimates is the analytic standard error).
+
+Bias = expectation: the reported energy is computed from exact inputs only (exact measured
+distributions, exact readout-calibration distributions), so no random draw enters the bias and
+the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
+its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
+term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
 """
 
 from __future__ import annotations
 
 import copy
-import dataclasses
-import functools
-import hashlib
-import json
 import math
-import zlib
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
-from typing import Any, Literal
+from typing import Any
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
 from noiselab.common.errors import InputError, NoiselabError
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.common.units import HA_TO_MHA
 from noiselab.mitigate.base import (
     STAGE_COMBINE,
     STAGE_CORRECT,
@@ -46,280 +47,22 @@ from noiselab.mitigate.estimate import (
     sample_distribution,
     single_shot_variance,
     source_variances,
+    variance_from_sources,
 )
-from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
+from noiselab.mitigate.experiment import (
+    Calibrator,
+    ExperimentContext,
+    Runner,
+    actual_scale,
+    default_calibrator,
+    realized_scales,
+    variant_inputs,
+)
+from noiselab.mitigate.plan import largest_remainder
+from noiselab.mitigate.registry import PASSES, make_pass
 from noiselab.mitigate.result import RecipeResult, plain_json
 from noiselab.mitigate.target import assess_target
 from noiselab.mitigate.variants import CircuitVariant
-
-Runner = Callable[[CircuitVariant], Any]  # -> BasisDistributions over ctx.measured_bases
-Calibrator = Callable[[CircuitVariant, tuple[int, ...]], np.ndarray]
-Allocation = Literal["uniform", "by_deviation"]
-
-
-# ---- context ----------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, eq=False)
-class ExperimentContext:
-    """Everything fixed across the recipes of one experiment.
-
-    ``compiled``: the CompiledCircuit bound at the optimized parameters; ``shots``: the
-    measurement budget of one energy estimate, all circuits and noise scales together;
-    ``allocation``: how a circuit's shots are split over its bases ("uniform", or
-    "by_deviation": proportional to each basis' single-shot standard deviation, computed from the
-    exact emulated distributions, i.e. the allocation a good pilot run would give).
-    ``emulation_method``: passed to ``emulate_bases``, with ``num_trajectories``,
-    ``num_batches`` (trajectory method) and ``max_density_matrix_qubits`` (None: memory guard only).
-    ``verification_bases``: measure the extra bases symmetry verification needs (a recipe with
-    ``postselect`` mode ``verify`` is refused without them). True by default, so a context built
-    by hand serves every recipe; the study layer turns it off when no recipe of the job
-    verifies (at 12 qubits the extra bases are most of the measured ones).
-    """
-
-    problem: Any
-    compiled: Any
-    profile: Any
-    plan: MeasurementPlan
-    exact_energy_ha: float
-    ansatz_energy_ha: float
-    shots: int
-    target_mha: float = CHEMICAL_ACCURACY_MHA
-    confidence: float = 0.95
-    seed: int = 0
-    allocation: Allocation = "by_deviation"
-    emulation_method: str = "auto"
-    num_trajectories: int = 256
-    num_batches: int = 16
-    max_density_matrix_qubits: int | None = None
-    verification_bases: bool = True
-
-    def __post_init__(self) -> None:
-        if int(self.shots) < 1:
-            raise InputError(f"shots: {self.shots}; allowed: a positive integer")
-        if not 0.0 < float(self.confidence) < 1.0:
-            raise InputError(f"confidence: {self.confidence}; allowed: strictly between 0 and 1")
-        if not float(self.target_mha) > 0.0:
-            raise InputError(f"target_mha: {self.target_mha}; allowed: a positive number (mHa)")
-        if self.allocation not in ("uniform", "by_deviation"):
-            raise InputError(f"allocation: {self.allocation!r}; allowed: uniform, by_deviation")
-
-    @functools.cached_property
-    def measured_bases(self) -> tuple[str, ...]:
-        """Every basis the runner measures: the plan's, then (with ``verification_bases``) the
-        extra ones symmetry verification needs (for any subset of the symmetries), so that all
-        recipes share the same simulations."""
-        from noiselab.mitigate.passes.postselect import verification_bases
-
-        wanted = self.verification_bases and _has_symmetries(self.problem)
-        extra = verification_bases(self.plan, self.problem) if wanted else ()
-        plan_bases = tuple(self.plan.bases)
-        return plan_bases + tuple(b for b in extra if b not in plan_bases)
-
-
-def _has_symmetries(problem: Any) -> bool:
-    return bool(getattr(problem, "symmetries", None))
-
-
-def build_context(
-    problem: Any,
-    compiled: Any,
-    profile: Any,
-    *,
-    ansatz_energy_ha: float,
-    shots: int,
-    **kwargs: Any,
-) -> ExperimentContext:
-    """Context with the measurement plan of ``problem.hamiltonian`` (other fields as keywords)."""
-    return ExperimentContext(
-        problem=problem,
-        compiled=compiled,
-        profile=profile,
-        plan=build_plan(problem.hamiltonian),
-        exact_energy_ha=float(problem.exact_energy_ha),
-        ansatz_energy_ha=float(ansatz_energy_ha),
-        shots=int(shots),
-        **kwargs,
-    )
-
-
-# ---- circuit variants: folded / scaled inputs, runner, cache keys -----------------------------
-
-
-_TARGETS: dict[tuple[str, tuple[int, ...]], Any] = {}
-
-
-def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tuple[Any, float]:
-    """(CompiledCircuit folded in native gates and re-scheduled, scale actually reached).
-
-    Re-scheduling transpiles at optimization level 0 on the patch's target with the trivial
-    layout (nothing is optimized away, idle delays recomputed); the two-qubit count is checked.
-    """
-    from qiskit import transpile
-
-    from noiselab.device.compile import (
-        build_target,
-        circuit_duration_ns,
-        estimate_fidelity,
-    )
-    from noiselab.mitigate.folding import fold_circuit
-
-    res = fold_circuit(compiled.circuit, method, scale)
-    key = (profile.model_dump_json(), tuple(compiled.patch))
-    if key not in _TARGETS:  # building a target evaluates every gate channel: keep it
-        _TARGETS.clear()
-        _TARGETS[key] = build_target(profile, compiled.patch)
-    target = _TARGETS[key]
-    k = compiled.circuit.num_qubits
-    out = transpile(
-        res.circuit,
-        target=target,
-        initial_layout=list(range(k)),
-        optimization_level=0,
-        scheduling_method="alap",
-        seed_transpiler=0,
-    )
-    n2 = int(out.count_ops().get(profile.two_qubit_gate, 0))
-    if n2 != res.n_two_qubit:
-        raise NoiselabError(
-            f"folding: re-scheduling changed the two-qubit count ({n2}, expected {res.n_two_qubit})"
-        )
-    depth = int(out.depth(filter_function=lambda i: i.operation.name not in ("delay", "barrier")))
-    folded = dataclasses.replace(
-        compiled,
-        circuit=out,
-        two_qubit_count=n2,
-        depth=depth,
-        duration_ns=circuit_duration_ns(out, profile),
-        estimated_fidelity=estimate_fidelity(out, profile, compiled.patch),
-    )
-    scale_reached = res.actual_scale
-    return folded, scale_reached
-
-
-@functools.lru_cache(maxsize=256)
-def variant_inputs(ctx: ExperimentContext, variant: CircuitVariant) -> tuple[Any, Any, float]:
-    """(CompiledCircuit, DeviceProfile, scale factor reached) that simulate ``variant``."""
-    profile = ctx.profile
-    if variant.noise_scale != 1.0:
-        from noiselab.device.profile import scale_profile
-
-        profile = scale_profile(ctx.profile, variant.noise_scale, variant.scaled_channels)
-    compiled = ctx.compiled
-    scale = variant.noise_scale
-    if variant.fold_method != "none":
-        if compiled is None:  # synthetic contexts (tests): nominal scale
-            return compiled, profile, scale * variant.fold_scale
-        compiled, reached = fold_compiled(
-            compiled, profile, variant.fold_method, variant.fold_scale
-        )
-        scale *= reached
-    return compiled, profile, scale
-
-
-def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
-    """Noise scale factor of a variant as reached (folded gate counts are integers)."""
-    if variant.fold_method == "none":
-        return variant.noise_scale
-    return variant_inputs(ctx, variant)[2]
-
-
-def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:
-    """JSON-serializable description of everything that determines ``runner(variant)``.
-
-    Hash ``json.dumps(material, sort_keys=True)`` for a cache key. The circuit enters as the
-    SHA-256 of its QPY serialization (exact parameters), independent of the circuit's name.
-    """
-    import io
-
-    from qiskit import qpy
-
-    compiled, profile, _ = variant_inputs(ctx, variant)
-    # qiskit names new circuits from a process-wide counter ("circuit-43") and QPY stores the
-    # name: hash a copy under a fixed name so equal circuits give equal keys in any process.
-    circuit = compiled.circuit.copy()
-    circuit.name = "noiselab"
-    circuit.metadata = {}
-    buf = io.BytesIO()
-    qpy.dump(circuit, buf)
-    method = ctx.emulation_method
-    try:
-        from noiselab.emulate.engine import choose_method
-
-        method = choose_method(
-            compiled.circuit.num_qubits,
-            method,
-            max_density_matrix_qubits=ctx.max_density_matrix_qubits,
-        )[0]
-    except (ImportError, InputError):
-        pass
-    material: dict[str, Any] = {
-        "variant": variant.as_dict(),
-        "circuit_qpy_sha256": hashlib.sha256(buf.getvalue()).hexdigest(),
-        "patch": list(compiled.patch),
-        "logical_to_circuit": list(compiled.logical_to_circuit),
-        "profile": json.loads(profile.model_dump_json()),
-        "bases": list(ctx.measured_bases),
-        "method": method,
-        # density-matrix results do not depend on the seed; trajectories do
-        "seed": ctx.seed if method != "density_matrix" else None,
-    }
-    if method != "density_matrix":
-        material["trajectories"] = [int(ctx.num_trajectories), int(ctx.num_batches)]
-    return material
-
-
-def make_runner(ctx: ExperimentContext) -> Runner:
-    """Default runner: emulate_bases over ``ctx.measured_bases``, memoized in-process by variant."""
-    memo: dict[CircuitVariant, Any] = {}
-
-    def runner(variant: CircuitVariant) -> Any:
-        if variant not in memo:
-            from noiselab.emulate.engine import emulate_bases
-
-            compiled, profile, _ = variant_inputs(ctx, variant)
-            memo[variant] = emulate_bases(
-                compiled,
-                profile,
-                list(ctx.measured_bases),
-                method=ctx.emulation_method,
-                seed=ctx.seed,
-                num_trajectories=ctx.num_trajectories,
-                num_batches=ctx.num_batches,
-                max_density_matrix_qubits=ctx.max_density_matrix_qubits,
-            )
-        return memo[variant]
-
-    return runner
-
-
-@functools.lru_cache(maxsize=64)
-def default_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """The context's :func:`make_calibrator`, shared by every recipe run on it."""
-    return make_calibrator(ctx)
-
-
-def make_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
-    memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
-
-    def calibrator(variant: CircuitVariant, states: tuple[int, ...]) -> np.ndarray:
-        key = (variant, tuple(states))
-        if key not in memo:
-            from noiselab.emulate.readout import calibration_distributions
-
-            _, profile, _ = variant_inputs(ctx, variant)
-            cal = calibration_distributions(
-                profile,
-                ctx.compiled.patch,
-                list(states),
-                measured=list(ctx.compiled.logical_to_circuit),
-            )
-            memo[key] = np.asarray(cal.probs, dtype=float)
-        return memo[key]
-
-    return calibrator
-
 
 # ---- recipe specification ---------------------------------------------------------------------
 
@@ -345,6 +88,11 @@ class ParsedRecipe:
         return found[0] if found else None
 
 
+def _stage_order() -> str:
+    """The registered passes in the order a recipe allows them (by stage)."""
+    return ", ".join(sorted(PASSES, key=lambda name: PASSES[name].stage))
+
+
 def parse_recipe(
     recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = "recipe"
 ) -> ParsedRecipe:
@@ -353,8 +101,6 @@ def parse_recipe(
     Order: correction passes (readout), then at most one estimator (postselect), then at most
     one combination (extrapolate); each pass at most once.
     """
-    from noiselab.mitigate.registry import make_pass
-
     name = None
     if isinstance(recipe, RecipeSpec):
         name, entries = recipe.name, list(recipe.passes)
@@ -376,7 +122,7 @@ def parse_recipe(
         if p.stage < last_stage:
             raise InputError(
                 f"{where}[{i}].pass: {p.name!r} ({STAGE_NAMES[p.stage]}) must come before the "
-                f"{STAGE_NAMES[last_stage]} pass; allowed order: readout, postselect, extrapolate"
+                f"{STAGE_NAMES[last_stage]} pass; allowed order: {_stage_order()}"
             )
         if p.stage == last_stage and p.stage != STAGE_CORRECT:
             raise InputError(f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe")
@@ -388,11 +134,6 @@ def parse_recipe(
     return ParsedRecipe(name=name, passes=tuple(passes))
 
 
-# ---- result -----------------------------------------------------------------------------------
-
-
-
-
 # ---- evaluation -------------------------------------------------------------------------------
 
 
@@ -401,12 +142,12 @@ def _row(dist: Any, basis: str) -> np.ndarray:
 
 
 class _CalibrationSource:
-    """Calibration distributions for one evaluation: exact, seeded-sampled or rng-sampled."""
+    """Calibration distributions for one evaluation: exact or drawn from ``rng``."""
 
     def __init__(self, ctx: ExperimentContext, calibrator: Calibrator, mode: str, rng: Any) -> None:
         self.ctx = ctx
         self.calibrator = calibrator
-        self.mode = mode  # "exact" | "seeded" | "rng"
+        self.mode = mode  # "exact" | "rng"
         self.rng = rng
         self.exact: dict[Any, np.ndarray] = {}
         self.used: dict[Any, np.ndarray] = {}
@@ -426,11 +167,7 @@ class _CalibrationSource:
                 if shots is None or self.mode == "exact":
                     self.used[key] = exact[i]
                 else:
-                    rng = self.rng
-                    if self.mode == "seeded":
-                        tag = zlib.crc32(f"{cal_v.label()}|{s}|{shots}".encode())
-                        rng = np.random.default_rng([int(self.ctx.seed), 0xCA1B, tag])
-                    self.used[key] = sample_distribution(exact[i], shots, rng)
+                    self.used[key] = sample_distribution(exact[i], shots, self.rng)
             out[i] = self.used[key]
         return out
 
@@ -441,6 +178,7 @@ class _Evaluation:
     per_variant: dict[CircuitVariant, Estimate]
     details: dict[str, Any]
     cal: _CalibrationSource
+    fixed_variance: dict[str, float]
 
 
 class EstimateMemo:
@@ -451,8 +189,8 @@ class EstimateMemo:
     is keyed by the context, runner and calibrator (by identity), the variant, the specs of the
     correction and estimator passes, the bases read and the calibration mode; it keeps the
     estimate, the details the passes wrote and the calibration circuits they drew on (replayed
-    on a hit, so shots and variances are registered as without the memo). Only exact and seeded
-    calibration (deterministic) is stored: sampled evaluations bypass the memo. Create one per
+    on a hit, so shots and variances are registered as without the memo). Only exact calibration
+    (deterministic) is stored: sampled evaluations bypass the memo. Create one per
     job and pass it to every :func:`run_recipe` of the job; results are bit-identical.
     """
 
@@ -476,23 +214,6 @@ class EstimateMemo:
             hit = (est, source_variances(est, probs))
             self._variances[id(est)] = hit
         return hit[1]
-
-
-def _variance_from_sources(
-    svars: Mapping[Any, float], shots: Mapping[Any, int | None]
-) -> float:
-    """sum_sources Var_p(u) / N from single-shot variances (as :func:`estimate_variance`)."""
-    total = 0.0
-    for k, var in svars.items():
-        n = shots.get(k)
-        if n is None:
-            continue
-        if n <= 0:
-            if var > 0:
-                return float("inf")
-            continue
-        total += var / n
-    return total
 
 
 @dataclass(frozen=True, eq=False)
@@ -540,8 +261,8 @@ def _memo_estimate(
     ws: Workspace,
     cal: _CalibrationSource,
 ) -> Estimate:
-    stages = [p.spec() for p in corrects] + ([estimator.spec()] if estimator else [])
-    key = (*scope, variant, json.dumps(stages, sort_keys=True), bases, cal.mode)
+    stages = [*corrects, *([estimator] if estimator else [])]
+    key = (*scope, variant, tuple(p.cache_key() for p in stages), bases, cal.mode)
     entry = memo._entries.get(key)
     if entry is None:
         calls: list[tuple[CircuitVariant, tuple[int, ...], int | None]] = []
@@ -573,12 +294,13 @@ def _evaluate(
     cal: _CalibrationSource,
     memo: EstimateMemo | None = None,
     memo_scope: tuple[Any, ...] = (),
+    rng: np.random.Generator | None = None,
 ) -> _Evaluation:
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
+    ws = Workspace(ctx=ctx, measured=measured, calibration=cal, rng=rng)
     corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
     estimator = parsed.of_stage(STAGE_ESTIMATE)
     combiner = parsed.of_stage(STAGE_COMBINE)
-    use_memo = memo is not None and cal.mode in ("exact", "seeded")
+    use_memo = memo is not None and cal.mode == "exact"
     per_variant: dict[CircuitVariant, Estimate] = {}
     for v in variants:
         if use_memo:
@@ -590,7 +312,7 @@ def _evaluate(
         est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
     else:
         est = per_variant[variants[0]]
-    return _Evaluation(est, per_variant, ws.details, cal)
+    return _Evaluation(est, per_variant, ws.details, cal, ws.fixed_variance)
 
 
 def _allocate(
@@ -697,21 +419,10 @@ def run_recipe(
     exact_probs.update(ev1.cal.exact)
     var_meas, var_cal = _split_variance(ev1.estimate, exact_probs, all_shots)
 
-    cal_finite = any(n is not None for n in ev1.cal.shots.values())
     if not sampled:
-        if cal_finite:
-            ev = _evaluate(
-                parsed,
-                ctx,
-                variants,
-                bases,
-                exact_meas,
-                _CalibrationSource(ctx, calibrator, "seeded", None),
-                memo,
-                scope,
-            )
-        else:
-            ev = ev1
+        # the bias is the expectation: exact calibration, no random draw (the finite
+        # calibration's noise is in the standard error; first order, see the module docstring)
+        ev = ev1
         probs_for_std = exact_probs
         est_for_std = ev1.estimate
         per_variant_std = ev1.per_variant
@@ -728,6 +439,7 @@ def run_recipe(
             bases,
             sampled_meas,
             _CalibrationSource(ctx, calibrator, "rng", rng),
+            rng=rng,
         )
         probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
         probs_for_std.update(ev.cal.used)
@@ -737,17 +449,19 @@ def run_recipe(
 
     traj_std = _trajectory_std(ev1.estimate, dists, variants, bases)
     energy = float(ev.estimate.value)
-    std_ha = math.sqrt(var_meas + var_cal)
+    var_amp = float(ev1.fixed_variance.get("amplification", 0.0))
+    std_ha = math.sqrt(var_meas + var_cal + var_amp)
     bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
     bias_ansatz = (energy - ctx.ansatz_energy_ha) * HA_TO_MHA
     mha2 = HA_TO_MHA**2
     verdict = assess_target(
         bias_exact,
         var_meas * ctx.shots * mha2,
-        var_cal * mha2,
+        (var_cal + var_amp) * mha2,
         int(ctx.shots),
         ctx.target_mha,
         ctx.confidence,
+        fixed_source="amplification" if var_amp > var_cal else "calibration",
     )
 
     details = dict(ev.details)
@@ -760,9 +474,10 @@ def run_recipe(
             svars = source_variances(e_v, probs_for_std)
         per[v.label()] = {
             "energy_ha": float(ev.per_variant[v].value),
-            "std_mha": math.sqrt(_variance_from_sources(svars, all_shots)) * HA_TO_MHA,
+            "std_mha": math.sqrt(variance_from_sources(svars, all_shots)) * HA_TO_MHA,
             "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
             "scale": float(actual_scale(ctx, v)),
+            "scale_realized": float(realized_scales(ctx, v)["total"]),
             "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
             "two_qubit_count": _two_qubit_count(ctx, v),
         }
@@ -778,6 +493,8 @@ def run_recipe(
     details["bases"] = list(bases)
     details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
     details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
+    if "extrapolation" in details:
+        details["std_amplification_mha"] = math.sqrt(var_amp) * HA_TO_MHA
     if traj_std is not None:
         # emulation error of the trajectory method (not part of std_mha: no device has it)
         details["trajectory_std_mha"] = traj_std * HA_TO_MHA
@@ -821,6 +538,7 @@ def run_recipe(
         p_within_target=verdict.p_within_target,
         shots_needed=verdict.shots_needed,
         limited_by=verdict.limited_by,
+        reaches_target=verdict.reaches_target,
         details=plain_json(details),
         sampled=bool(sampled),
     )

@@ -17,9 +17,12 @@ class RecipeResult:
     ``bias_*_mha``: energy - reference (signed). ``std_mha``: standard error at the budget
     (measurement shots and calibration shots). ``shots_total``: the measurement budget (the
     calibration circuits' shots are in ``details["calibration_shots_total"]``).
+    ``std_mha`` also holds the uncertainty of the realized noise amplification of an
+    extrapolation (``details["std_amplification_mha"]``).
     ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
     (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
-    ``p_within_target >= confidence`` (None when the bias prevents it).
+    ``p_within_target >= confidence`` (None when the bias prevents it). ``reaches_target``: the
+    one rule of :func:`noiselab.mitigate.target.reaches_target` at the budget.
     """
 
     recipe: str
@@ -34,7 +37,8 @@ class RecipeResult:
     engine_seconds: float
     p_within_target: float
     shots_needed: int | None
-    limited_by: Literal["bias", "calibration", "shots", "none"]
+    limited_by: Literal["bias", "calibration", "amplification", "shots", "none"]
+    reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False
 

@@ -2,7 +2,7 @@
 
 No pyplot state is touched: each function builds a ``matplotlib.figure.Figure`` with an Agg
 canvas, writes it atomically and drops it, so nothing stays open and a notebook's backend is
-left alone. matplotlib is imported inside the functions (``noiselab --help`` stays fast).
+left alone. (The command line imports this module only inside its commands.)
 
 Energies are drawn as errors against the exact energy in mHa, the unit of the target.
 """
@@ -11,14 +11,23 @@ from __future__ import annotations
 
 import dataclasses
 import math
+import textwrap
 from collections.abc import Iterable, Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+import matplotlib
+import numpy as np
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
+
 from noiselab.common.atomic import atomic_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.common.wording import CAUTION, target_words
 
-CAUTION = "emulated: only as good as the noise model"
 _FORMATS = ("svg", "pdf", "png")
 _DPI = 150
 _RAW_NAMES = ("raw", "none", "unmitigated")
@@ -63,15 +72,13 @@ class BiasBar:
     recipe: str
     bias_mha: float
     std_mha: float
+    reaches_target: bool = False  # the one rule (P >= confidence at the budget)
 
 
 # ---------------------------------------------------------------- shared helpers
 
 
 def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -80,13 +87,13 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
     # a figure-level x label is laid out below everything else (outside legends included)
-    fig.supxlabel(CAUTION, x=0.995, ha="right", fontsize=7, style="italic", color="0.4")
+    # wrapped to the figure's width (about 17 characters per inch at 7 pt)
+    caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
+    fig.supxlabel(caution, x=0.995, ha="right", ma="right", fontsize=7, style="italic", color="0.4")
     ax.grid(True, which="major", alpha=0.3)
 
 
 def _savefig(fig: Any, target: Path, fmt: str) -> None:
-    import matplotlib
-
     # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42
     with matplotlib.rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
         fig.savefig(target, format=fmt, dpi=_DPI)
@@ -115,23 +122,11 @@ def _save_all(fig: Any, stem: str | Path) -> tuple[Path, ...]:
     return tuple(out)
 
 
-def _is_chemical_accuracy(target_mha: float) -> bool:
-    return abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4
-
-
-def _target_label(target_mha: float) -> str:
-    if _is_chemical_accuracy(target_mha):
-        return f"chemical accuracy {target_mha:.3g} mHa"
-    return f"target {target_mha:.3g} mHa"
-
-
 def _is_raw(name: str) -> bool:
     return name.lower() in _RAW_NAMES
 
 
 def _colors(names: Sequence[str]) -> dict[str, Any]:
-    import matplotlib
-
     # green is kept for the target band
     cmap = matplotlib.colormaps["tab10"]
     palette = [cmap(i) for i in (0, 1, 3, 4, 5, 6, 9, 8)]
@@ -186,8 +181,6 @@ def _fit_curve(
     (E = a + b exp(-k c)), Richardson (the interpolating polynomial through the points), and an
     explicit ``curve`` ([xs], [ys]).
     """
-    import numpy as np
-
     xmax = max(scales) if scales else 1.0
     xs = np.linspace(0.0, xmax * 1.03, 90)
     curve = _get(fit, "curve")
@@ -303,7 +296,12 @@ def bias_bars(obj: Any) -> tuple[str, str, float, tuple[BiasBar, ...]]:
         else float(_first(obj, ("target_mha",), CHEMICAL_ACCURACY_MHA))
     )
     bars = tuple(
-        BiasBar(name, float(_get(r, "bias_exact_mha")), float(_get(r, "std_mha") or 0.0))
+        BiasBar(
+            name,
+            float(_get(r, "bias_exact_mha")),
+            float(_get(r, "std_mha") or 0.0),
+            bool(_get(r, "reaches_target", False)),
+        )
         for name, r in _named_results(obj)
     )
     return study, device, target, bars
@@ -407,6 +405,14 @@ def plot_extrapolation(assess_result_or_records: Any, path: str | Path) -> Path:
     return _save(fig, path)
 
 
+def bar_colour(bar: BiasBar, target_mha: float) -> str:
+    """"green": reaches the target at the budget (the one rule); "amber": only the bias is
+    within the target; "red": the bias is outside it."""
+    if bar.reaches_target:
+        return "green"
+    return "amber" if abs(bar.bias_mha) < target_mha else "red"
+
+
 def plot_bias_bars(
     assess_result_or_records: Any,
     path: str | Path,
@@ -416,12 +422,10 @@ def plot_bias_bars(
     """|bias| against the exact energy (mHa) per recipe, error bars of one standard error at the
     budget, the target as a line; log scale when the values span more than a factor 30.
 
-    Bars are green when |bias| + std is within the target, amber when only |bias| is, red
-    otherwise.
+    Bars are green when the recipe reaches the target at the budget (P >= confidence, the rule of
+    :func:`noiselab.mitigate.target.reaches_target`), amber when only its bias is within the
+    target, red otherwise.
     """
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
     study, device, target, bars = bias_bars(assess_result_or_records)
     study, device = study_name or study, device_name or device
     fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
@@ -430,10 +434,7 @@ def plot_bias_bars(
     mags = [abs(b.bias_mha) for b in bars]
     stds = [b.std_mha for b in bars]
     verdict = {"green": "tab:green", "amber": "tab:orange", "red": "tab:red"}
-    colors = [
-        verdict["green"] if m + s <= target else verdict["amber"] if m <= target else verdict["red"]
-        for m, s in zip(mags, stds, strict=True)
-    ]
+    colors = [verdict[bar_colour(b, target)] for b in bars]
     log = _wide_range([*mags, target])
     pos = [m for m in mags if m > 0] or [target]
     floor = min(min(pos), target) / 5.0
@@ -461,9 +462,9 @@ def plot_bias_bars(
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("|energy − exact energy| (mHa)")
     handles = [
-        Line2D([], [], color="tab:green", ls="--", label=_target_label(target)),
-        Patch(color=verdict["green"], alpha=0.8, label="within target, even with 1 std"),
-        Patch(color=verdict["amber"], alpha=0.8, label="bias within, shot noise not"),
+        Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
+        Patch(color=verdict["green"], alpha=0.8, label="reaches the target at the budget"),
+        Patch(color=verdict["amber"], alpha=0.8, label="bias within, error bar too wide"),
         Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
     ]
     ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
@@ -500,11 +501,13 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
-    ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
+    ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
+        col = colors.get(c_.recipe, "k")
+        for x in getattr(c_, "bias_crossings", ()):
+            ax.plot([x * d], [t], marker="D", ms=7, color="white", markeredgecolor=col, zorder=5)
         for x in c_.crossings:
-            col = colors.get(c_.recipe, "k")
             ax.plot([x * d], [t], marker="X", ms=10, color=col, markeredgecolor="k", zorder=5)
             # stagger the labels so that neighbouring crossings stay readable
             ax.annotate(
@@ -547,8 +550,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     positive = [v for v in all_vals if v > floor]
     ax.set_ylim(max(min(positive) / 3.0, floor), max(positive) * 3.0)
     if sweep_result.log:
-        from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
         ax.set_xscale("log")
         # plain numbers at 1, 2, 5 x 10^k read better than 2 x 10^-1 in a proposal
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
@@ -556,7 +557,15 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel(knob.axis_label)
     ax.set_ylabel("|energy − exact energy| (mHa)")
-    ax.plot([], [], "X", color="0.5", markeredgecolor="k", label="crossing of the target")
+    conf = getattr(sweep_result, "confidence", 0.95)
+    ax.plot(
+        [], [], "X", color="0.5", markeredgecolor="k",
+        label=f"reaching the target at the budget (P >= {conf:g}) starts or stops",
+    )  # fmt: skip
+    ax.plot(
+        [], [], "D", color="white", markeredgecolor="0.3",
+        label="bias alone (unlimited shots) crosses the target",
+    )  # fmt: skip
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
     fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
@@ -574,8 +583,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
 def plot_budget(budget_result: Any, path: str | Path) -> Path:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
-    from matplotlib.patches import Patch
-
     b = budget_result
     rows = list(b.rows)
     order = [
@@ -642,9 +649,7 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     handles.append(
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
     )
-    from matplotlib.lines import Line2D
-
-    handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
+    handles.append(Line2D([], [], color="tab:green", ls="--", label=target_words(t)))
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
     return _save(fig, path)
@@ -655,9 +660,6 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
     day, a bar from the 5th to the 95th percentile, the nominal bias as a diamond, the target
     as a green band and the days that reach the target above each recipe. Symmetric-log axis
     (linear within the target) when the biases span more than a factor 30."""
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
     r = assess_result
     target = float(r.target_mha)
     names = [n for n in r.recipes if n in r.drift]
@@ -696,7 +698,7 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("energy − exact energy (mHa)")
     handles = [
-        Patch(color="tab:green", alpha=0.15, label=f"± {_target_label(target)}"),
+        Patch(color="tab:green", alpha=0.15, label=target_words(target)),
         Line2D([], [], ls="", marker="o", color="tab:blue", alpha=0.55, label="one drawn day"),
         Line2D([], [], color="k", lw=2.2, label="5th-95th percentile"),
         Line2D([], [], ls="", marker="D", color="k", label="nominal device"),

@@ -8,12 +8,19 @@ repeated assess reads every simulation from the results cache.
 from __future__ import annotations
 
 import contextlib
+import dataclasses
 import json
+import os
 import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.atomic import write_text_atomic
+from noiselab.common.errors import InputError
+from noiselab.common.shipped import shipped_path
+from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
 from noiselab.study.compiles import bias_spread
 from noiselab.study.context import (
@@ -32,17 +39,8 @@ DEMO_STUDY = "h2-equilibrium.yaml"
 
 
 def demo_study_path() -> Path:
-    """The shipped demo study (configs/studies/ of the source tree)."""
-    here = Path(__file__).resolve()
-    for root in (here.parents[2], Path.cwd()):
-        p = root / "configs" / "studies" / DEMO_STUDY
-        if p.is_file():
-            return p
-    from noiselab.common.errors import NoiselabError
-
-    raise NoiselabError(
-        f"demo: the shipped study configs/studies/{DEMO_STUDY} was not found next to the package"
-    )
+    """The shipped demo study (``configs/studies/`` of a checkout, or the wheel's copy)."""
+    return shipped_path("studies", DEMO_STUDY.removesuffix(".yaml"), "demo", "study")
 
 
 def resolve_study(
@@ -60,10 +58,6 @@ def resolve_study(
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
     """Job-key options of the emulation overrides; "auto" depends on the memory available, so
     the test override of the memory guard enters too."""
-    import os
-
-    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
-
     return {
         "method": method,
         "trajectories": trajectories,
@@ -81,14 +75,43 @@ def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCac
     return open_cache(cache)
 
 
+def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, Any]:
+    """Fields that every assess and tune result takes from the study, its context and the run."""
+    return {
+        "context": ctx.summary(),
+        "target_mha": study.target_mha,
+        "confidence": study.confidence,
+        "shots": study.shots,
+        "seed": study.seed,
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
+def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
+    """The stored result of an identical earlier job (``cls.from_record``), or None.
+
+    A record that no longer rebuilds (written by another version) counts as a miss.
+    """
+    hit = store.get(JOB_KIND, key) if key is not None else None
+    if hit is not None:
+        with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+            return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
+    return None
+
+
+def save_job_result(store: ResultsCache, key: str | None, result: Any) -> None:
+    """Store a job's result under ``key`` for :func:`load_job_result` (None: not stored)."""
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), result.stats.wall_seconds)
+
+
 def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
     """Refuse recipes that do not fit this experiment (e.g. post-selection without symmetries).
 
     The error names the study file and ``recipes.<name>[i].<option>``.
     """
-    from noiselab.common.errors import InputError
-    from noiselab.mitigate.recipe import parse_recipe
-
     source = str(ctx.study.source)
     for name, passes in recipes.items():
         where = f"recipes.{name}"
@@ -109,8 +132,6 @@ def run_recipes(
     label: str = "recipes",
 ) -> dict[str, Any]:
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
-    from noiselab.mitigate.recipe import run_recipe
-
     out: dict[str, Any] = {}
     total = len(recipes)
     if progress is not None:
@@ -146,8 +167,6 @@ def assess(
     ``drift``: also run every recipe on this many drawn device days (noiselab.study.drift).
     """
     if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
-        from noiselab.common.errors import InputError
-
         raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
     drift = int(drift) if drift else 0
     t0 = time.perf_counter()
@@ -158,11 +177,9 @@ def assess(
         if drift:
             options["drift"] = drift
         key = job_key("assess", study_or_path, options)
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return AssessResult.from_record(json.loads(hit[0]), stats)
+        stored = load_job_result(store, key, AssessResult, t0)
+        if stored is not None:
+            return stored
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
@@ -181,32 +198,24 @@ def assess(
         verdict = f"{verdict} {drift_sentence(best, days.stats[best], days.rel_std)}"
     verdict = with_optimizer_caveat(verdict, ctx.warnings)
     extra = [r for r in (spread, days) if r is not None]
-    stats = RunStats(
+    stats = dataclasses.replace(
+        RunStats.of_runner(runner, t0),
         simulations=runner.simulations + sum(r.simulations for r in extra),
         cache_hits=runner.cache_hits + sum(r.cache_hits for r in extra),
         engine_seconds=runner.engine_seconds + sum(r.engine_seconds for r in extra),
-        wall_seconds=time.perf_counter() - t0,
     )
     result = AssessResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         recipes=results,
         passes=dict(study.recipes),
         best_recipe=best,
         reachable=reachable,
         verdict=verdict,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
         bias_spread_mha=spread.spread_mha,
         drift={} if days is None else days.stats,
         drift_rel_std={} if days is None else days.rel_std,
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
 
 
@@ -223,10 +232,6 @@ def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
     """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
-    import json
-
-    from noiselab.common.atomic import write_text_atomic
-
     folder = Path(out)
     return [
         write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),

@@ -15,12 +15,23 @@ import time
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
-from noiselab.common.errors import InputError, input_error
+from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
+from noiselab.chem.encode import encode
+from noiselab.chem.molecule import compute_problem
+from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optimum_warnings
+from noiselab.chem.spin import exact_spin_squared
+from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
+from noiselab.device.compile import compile_ensemble
+from noiselab.emulate.engine import choose_method
+from noiselab.emulate.memory import check_memory
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.plan import build_plan
+from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
 
-OPTIMUM_KIND = "noiseless-optimum-v2"
+OPTIMUM_KIND = "noiseless-optimum-v3"
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -36,7 +47,7 @@ class StudyContext:
     optimum: Any  # noiselab.chem.optimize.OptimizationResult
     compiled: Any  # noiselab.device.compile.CompiledCircuit (bound at the optimum)
     plan: Any  # noiselab.mitigate.plan.MeasurementPlan
-    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    experiment: Any  # noiselab.mitigate.experiment.ExperimentContext
     seconds: dict[str, float]
     #: "density_matrix" or "trajectory": what the emulator will use (the study's method resolved
     #: against the memory guard for this circuit width), and the one-line notice when "auto"
@@ -68,8 +79,8 @@ class StudyContext:
             device_source=s.device_source,
             qubits=int(qp.num_qubits),
             encoding=str(qp.encoding)
-            + (" + two-qubit reduction" if qp.two_qubit_reduction else ""),
-            two_qubit_reduction=bool(qp.two_qubit_reduction),
+            + (" + fixed parity qubits dropped" if qp.drop_fixed_parity_qubits else ""),
+            drop_fixed_parity_qubits=bool(qp.drop_fixed_parity_qubits),
             ansatz=s.ansatz.label(),
             n_parameters=int(self.ansatz_circuit.num_parameters),
             exact_energy_ha=float(qp.exact_energy_ha),
@@ -94,8 +105,6 @@ class StudyContext:
 
 def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
     """The study's parameterized trial circuit on the logical qubits."""
-    from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
-
     a = study.ansatz
     if isinstance(a, LayeredAnsatz):
         n = int(qubit_problem.num_qubits)
@@ -114,15 +123,13 @@ def _optimum_key(study: Study) -> str:
         OPTIMUM_KIND,
         study.molecule.model_dump(mode="json"),
         study.encoding,
-        study.two_qubit_reduction,
+        study.drop_fixed_parity_qubits,
         study.ansatz.model_dump(mode="json"),  # start_seed included; the study's seed is not
     )
 
 
 def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache | None) -> Any:
     """Noiseless optimum of the trial circuit (read from / written to the cache)."""
-    from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
-
     key = _optimum_key(study)
     if cache is not None:
         hit = cache.get(OPTIMUM_KIND, key)
@@ -148,8 +155,6 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
 
 def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
     """Whether any of these recipes (lists of pass entries) runs symmetry verification."""
-    from noiselab.mitigate.registry import make_pass
-
     for passes in recipes:
         for entry in passes:
             if entry.get("pass") == "postselect" and make_pass(entry).spec()["mode"] == "verify":
@@ -172,10 +177,6 @@ def build_context(
     """
     if verification is None:
         verification = recipes_verify(study.recipes.values())
-    from noiselab.chem.encode import encode
-    from noiselab.chem.molecule import compute_problem
-    from noiselab.device.compile import compile_ensemble
-    from noiselab.mitigate.plan import build_plan
 
     steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
     seconds: dict[str, float] = {}
@@ -187,7 +188,7 @@ def build_context(
     tick(0)
     t = time.perf_counter()
     problem = compute_problem(study.molecule)
-    qp = encode(problem, study.encoding, study.two_qubit_reduction)
+    qp = encode(problem, study.encoding, study.drop_fixed_parity_qubits)
     if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
         raise input_error(
             str(study.source),
@@ -274,10 +275,6 @@ def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, t
     The exact S^2 needs the sector ground state; past the exact-diagonalization limit it is
     None and the spin check is skipped.
     """
-    from noiselab.chem.optimize import optimum_warnings
-    from noiselab.chem.spin import exact_spin_squared
-    from noiselab.common.errors import ProblemTooLargeError
-
     try:
         s2: float | None = exact_spin_squared(qp)
     except ProblemTooLargeError:
@@ -310,10 +307,6 @@ def resolve_emulation(
     here, before any simulation: one line naming the study file, the qubit count and the
     memory estimate in GiB.
     """
-    from noiselab.common.errors import ProblemTooLargeError
-    from noiselab.emulate.engine import choose_method
-    from noiselab.emulate.memory import check_memory
-
     e = study.emulation
     try:
         method, notice = choose_method(
@@ -337,8 +330,6 @@ def make_experiment(
 ) -> Any:
     """Mitigation's ExperimentContext for this study (budget, target, seed included);
     ``verification``: whether it measures the symmetry-verification bases."""
-    from noiselab.mitigate.recipe import ExperimentContext
-
     return ExperimentContext(
         problem=qp,
         compiled=compiled,
@@ -355,4 +346,6 @@ def make_experiment(
         num_batches=int(study.emulation.batches),
         max_density_matrix_qubits=study.emulation.max_density_matrix_qubits,
         verification_bases=bool(verification),
+        amplification_spread=float(study.amplification_spread),
+        amplification_offset=float(study.amplification_offset),
     )

@@ -16,36 +16,14 @@ from typing import Any
 
 import numpy as np
 
+from noiselab.device.drift import draw_profiles
+from noiselab.mitigate.target import reaches_target
 from noiselab.study.cache import CachingRunner, ResultsCache
 from noiselab.study.context import replace_experiment
+from noiselab.study.results import DriftStats
 
 DRIFT_STREAM = 0xD21F7
 MAX_DRAWS = 1000
-
-
-@dataclasses.dataclass(frozen=True)
-class DriftStats:
-    """One recipe over the drawn days (biases in mHa, in draw order)."""
-
-    draws: int
-    p_within_target_mean: float
-    reaching: int  # days on which the recipe reaches the target (P >= confidence)
-    bias_mha_p05: float
-    bias_mha_p95: float
-    biases_mha: tuple[float, ...]
-
-    @property
-    def fraction_reaching(self) -> float:
-        return self.reaching / self.draws
-
-    def to_json(self) -> dict[str, Any]:
-        return {
-            "draws": self.draws,
-            "p_within_target_mean": self.p_within_target_mean,
-            "fraction_reaching": self.fraction_reaching,
-            "bias_mha_p05": self.bias_mha_p05,
-            "bias_mha_p95": self.bias_mha_p95,
-        }
 
 
 @dataclasses.dataclass(frozen=True)
@@ -60,16 +38,14 @@ class DriftRun:
     engine_seconds: float = 0.0
 
 
-def drift_stats(
-    biases_mha: list[float], p_within: list[float], confidence: float
-) -> DriftStats:
-    """Summary of one recipe's draws; reaching is the assess rule, P >= confidence."""
+def drift_stats(biases_mha: list[float], p_within: list[float], confidence: float) -> DriftStats:
+    """Summary of one recipe's draws; reaching is the one rule (mitigate.target.reaches_target)."""
     b = np.asarray(biases_mha, dtype=float)
     p = np.asarray(p_within, dtype=float)
     return DriftStats(
         draws=len(b),
         p_within_target_mean=float(p.mean()),
-        reaching=int(np.sum(p >= confidence)),
+        reaching=sum(reaches_target(x, confidence) for x in p),
         bias_mha_p05=float(np.percentile(b, 5)),
         bias_mha_p95=float(np.percentile(b, 95)),
         biases_mha=tuple(float(x) for x in b),
@@ -85,8 +61,6 @@ def assess_drift(
     progress: Callable[[str, int, int], None] | None = None,
 ) -> DriftRun:
     """Run ``recipes`` on ``draws`` drifted profiles of ``ctx.study.profile``."""
-    from noiselab.device.drift import draw_profiles
-
     study = ctx.study
     profiles = draw_profiles(study.profile, draws, [int(study.seed), DRIFT_STREAM])
     biases: dict[str, list[float]] = {name: [] for name in recipes}

@@ -7,7 +7,9 @@ profile loaded, molecule and recipes validated by their own layers). Every probl
 
 from __future__ import annotations
 
+import dataclasses
 import math
+import os
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -25,9 +27,16 @@ from pydantic import (
     model_validator,
 )
 
+from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
 from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
+from noiselab.device.profile import load_profile, profile_from_mapping
+from noiselab.mitigate.recipe import parse_recipe
+from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
+from noiselab.study.grid import check_tune_section
+from noiselab.study.knobs import KNOB_ALIASES, KNOBS
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 MAX_SHOTS = 10**12
@@ -174,8 +183,6 @@ class SweepDefaults(_Strict):
     def _check_vary(cls, value: str | None) -> str | None:
         if value is None:
             return value
-        from noiselab.study.sweep import KNOB_ALIASES, KNOBS
-
         if KNOB_ALIASES.get(value, value) not in KNOBS:
             raise ValueError(f"unknown knob {value!r}; allowed: {', '.join(KNOBS)}")
         return value
@@ -226,7 +233,7 @@ class StudyFile(_Strict):
     description: str | None = None
     molecule: dict[str, Any]
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
-    two_qubit_reduction: StrictBool = False
+    drop_fixed_parity_qubits: StrictBool = False
     ansatz: dict[str, Any]
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
@@ -236,6 +243,11 @@ class StudyFile(_Strict):
     confidence: float = 0.95
     recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
     seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    #: relative std of the realized noise scale of each amplified point (zero-noise
+    #: extrapolation); the default is a stated common-practice value, 0 reproduces ideal
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    #: relative, systematic error of the stretch amplifier (enters the bias)
+    amplification_offset: float = 0.0
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
     emulation: EmulationSettings = EmulationSettings()
@@ -250,7 +262,26 @@ class StudyFile(_Strict):
             )
         return value
 
-    @field_validator("target_mha", "confidence", mode="before")
+    @field_validator("amplification_spread")
+    @classmethod
+    def _check_spread(cls, value: float) -> float:
+        if not (math.isfinite(value) and 0.0 <= value <= 0.5):
+            raise ValueError(
+                f"{value}; allowed: a relative standard deviation from 0 to 0.5 "
+                f"(0: ideal amplification; default {DEFAULT_AMPLIFICATION_SPREAD})"
+            )
+        return value
+
+    @field_validator("amplification_offset")
+    @classmethod
+    def _check_offset(cls, value: float) -> float:
+        if not (math.isfinite(value) and -0.5 <= value <= 1.0):
+            raise ValueError(f"{value}; allowed: a relative offset from -0.5 to 1 (0: none)")
+        return value
+
+    @field_validator(
+        "target_mha", "confidence", "amplification_spread", "amplification_offset", mode="before"
+    )
     @classmethod
     def _no_bool(cls, value: Any) -> Any:
         if isinstance(value, bool):
@@ -316,7 +347,7 @@ class Study:
     source: Path
     molecule: Any  # noiselab.chem.molecule.MoleculeSpec
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     ansatz: UccsdAnsatz | LayeredAnsatz
     profile: Any  # noiselab.device.profile.DeviceProfile
     device_source: str  # resolved profile path, or "<inline>"
@@ -329,6 +360,8 @@ class Study:
     seed: int
     num_qubits: int
     tune: TuneGrid | None = None
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    amplification_offset: float = 0.0
     sweep: SweepDefaults | None = None
     description: str | None = None
     emulation: EmulationSettings = field(default_factory=EmulationSettings)
@@ -344,7 +377,6 @@ class Study:
         """The same study with another seed (None keeps the file's)."""
         if seed is None or seed == self.seed:
             return self
-        import dataclasses
 
         return dataclasses.replace(self, seed=int(seed))
 
@@ -353,7 +385,6 @@ class Study:
         (command-line ``--method`` / ``--trajectories``; None keeps the study's)."""
         if method is None and trajectories is None:
             return self
-        import dataclasses
 
         data = self.emulation.model_dump()
         if method is not None:
@@ -377,14 +408,16 @@ class Study:
             return self
         if shots <= 0:
             raise input_error(str(self.source), "--shots", f"{shots} shots", "a positive integer")
-        import dataclasses
 
         return dataclasses.replace(self, shots=int(shots))
 
 
 def load_study(path: str | Path) -> Study:
-    """Read, validate and resolve a study file; bad input raises a one-line InputError."""
+    """Read, validate and resolve a study file (a path, or the name of a shipped study such as
+    ``h2-stretched``); bad input raises a one-line InputError."""
     src_path = Path(path)
+    if not src_path.exists() and looks_like_name(str(path)):
+        src_path = shipped_path("studies", str(path), str(path), "study")
     data = load_yaml_mapping(src_path, what="study file")
     return study_from_mapping(data, src_path)
 
@@ -398,24 +431,21 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
     except ValidationError as exc:
         raise from_validation_error(exc, src) from None
 
-    if spec.two_qubit_reduction and spec.encoding != "parity":
+    if spec.drop_fixed_parity_qubits and spec.encoding != "parity":
         raise input_error(
             src,
-            "two_qubit_reduction",
+            "drop_fixed_parity_qubits",
             f"needs encoding parity (the study has {spec.encoding})",
-            "two_qubit_reduction: false, or encoding: parity",
+            "drop_fixed_parity_qubits: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
-
-    from noiselab.chem.molecule import molecule_from_mapping
-
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
     profile, device_source = _resolve_device(spec.device, src_path)
     recipes = {
         name: validate_recipe(passes, src, f"recipes.{name}")
         for name, passes in spec.recipes.items()
     }
-    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.two_qubit_reduction)
+    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
         raise input_error(
@@ -424,7 +454,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             f"the problem needs {num_qubits} qubits but device {_profile_name(profile)!r} has "
             f"{len(device_qubits)}",
             f"a device with at least {num_qubits} qubits, a smaller active space, "
-            "or two_qubit_reduction",
+            "or drop_fixed_parity_qubits",
         )
     layout = None
     if spec.layout is not None:
@@ -445,8 +475,6 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             )
         layout = tuple(spec.layout)
     if spec.tune is not None:
-        from noiselab.study.tune import check_tune_section
-
         check_tune_section(spec.tune, src)
     if spec.sweep is not None and spec.sweep.recipes is not None:
         for i, name in enumerate(spec.sweep.recipes):
@@ -459,7 +487,7 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         source=src_path,
         molecule=molecule,
         encoding=spec.encoding,
-        two_qubit_reduction=spec.two_qubit_reduction,
+        drop_fixed_parity_qubits=spec.drop_fixed_parity_qubits,
         ansatz=ansatz,
         profile=profile,
         device_source=device_source,
@@ -473,6 +501,8 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
         recipes=recipes,
         seed=spec.seed,
         num_qubits=num_qubits,
+        amplification_spread=float(spec.amplification_spread),
+        amplification_offset=float(spec.amplification_offset),
         tune=spec.tune,
         sweep=spec.sweep,
         description=spec.description,
@@ -492,17 +522,14 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
         raise from_validation_error(exc, source, prefix="ansatz") from None
 
 
-def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
-    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
-    from noiselab.chem.molecule import count_orbitals
-
+def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:
+    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the two parity
+    qubits that ``drop_fixed_parity_qubits`` drops."""
     n = 2 * count_orbitals(molecule)
-    return n - 2 if two_qubit_reduction and encoding == "parity" else n
+    return n - 2 if drop_fixed_parity_qubits and encoding == "parity" else n
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
-    from noiselab.device.profile import load_profile, profile_from_mapping
-
     src = str(study_path)
     if isinstance(value, dict):
         # the profile layer writes "<source>: <key>: ..."; make its keys read device.<key>
@@ -514,24 +541,33 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             if text.startswith(head) and not text.startswith(head + "(top level)"):
                 text = f"{src}: device." + text.removeprefix(head)
             raise InputError(text) from None
+    resolved = device_profile_path(value, study_path)
+    return load_profile(resolved), str(resolved)
+
+
+def device_profile_path(value: str, study_path: Path) -> Path:
+    """The profile file a study's ``device:`` string names: a path relative to the study file,
+    an absolute path, or a shipped profile's name. One-line InputError when there is none."""
+    src = str(study_path)
     if not value.strip():
         raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
     resolved = Path(_normpath(p if p.is_absolute() else study_path.parent / p))
+    if not resolved.exists() and looks_like_name(value):
+        resolved = shipped_path("devices", value, src, "device")
     if not resolved.is_file():
         what = "is a folder" if resolved.is_dir() else "no such file"
         raise input_error(
             src,
             "device",
             f"device profile {resolved} not found ({what})",
-            "a profile path relative to the study file, or an inline profile mapping",
+            "a profile path relative to the study file, a shipped profile name "
+            "(noiselab shipped), or an inline profile mapping",
         )
-    return load_profile(resolved), str(resolved)
+    return resolved
 
 
 def _normpath(p: Path) -> str:
-    import os
-
     return os.path.normpath(str(p))
 
 
@@ -558,8 +594,6 @@ def validate_recipe(
 
     Returns the passes with every option filled in (the registry's defaults).
     """
-    from noiselab.mitigate.recipe import parse_recipe
-
     try:
         return tuple(parse_recipe(list(passes), where=key).spec())
     except InputError as exc:

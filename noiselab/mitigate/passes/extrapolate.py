@@ -4,17 +4,30 @@ PRX 7, 021050 (2017)).
 Noise amplifiers: ``stretch`` scales the device profile's channels by each factor (pulse
 stretching, Kandala et al., Nature 567, 491 (2019); readout is not stretched unless ``channels``
 says so); ``whole_circuit`` folds the whole compiled circuit, ``two_qubit_gates`` folds only its
-two-qubit gates (unitary folding, Giurgica-Tiron et al., arXiv:2005.10921). Folded circuits use
-the scale factor actually reached (gate counts are integers).
+two-qubit gates (unitary folding, Giurgica-Tiron et al., arXiv:2005.10921).
+
+Realistic amplification. Folding does not scale every error alike (single-qubit gates are not
+folded by ``two_qubit_gates``, idle time grows differently): the *realized* noise scale of a
+folded circuit is the ratio of its estimated error (sum of the operations' average
+infidelities, ``device.compile.estimate_error_budget``) to the unfolded circuit's, and the fit
+runs against it (``scale_axis: realized``, default) or against the gate-count scale
+(``nominal``). Stretching is taken at its stretch factor c; the context's
+``amplification_offset`` emulates each stretched point at c (1 + offset) while the fit still
+assumes c (a systematic error: it enters the bias). The context's ``amplification_spread`` is the
+relative standard deviation of each amplified point's realized scale; it enters the standard
+error as sum_i (dE(0)/dc_i * spread * c_i)**2 over the amplified points, with dE(0)/dc_i the
+fit's sensitivity to its i-th abscissa at fixed energies (central differences of the linear
+coefficients; for the exponential fit w_i times the fitted slope at c_i). Sampled evaluations
+draw the realized scales instead.
 
 Fits and their zero-noise estimate as a linear functional of the per-scale energies,
-E(0) = sum_i gamma_i E(c_i):
-``richardson``: gamma_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
-``linear`` and ``polynomial`` (least squares of the given degree): gamma = first row of the
+E(0) = sum_i w_i E(c_i):
+``richardson``: w_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
+``linear`` and ``polynomial`` (least squares of the given degree): weights = first row of the
 Vandermonde pseudo-inverse; ``exponential``: E(c) = a + b exp(-k c) by scipy curve_fit,
-E(0) = a + b, gamma from the Gauss-Newton linearization (delta method); when the fit fails,
+E(0) = a + b, weights from the Gauss-Newton linearization (delta method); when the fit fails,
 or gives k <= 0, the linear fit is used and ``fit_warning`` says so. The variance of E(0) is then
-sum_i gamma_i**2 Var(E_i) with each scale's shots (variance amplification).
+sum_i w_i**2 Var(E_i) with each scale's shots (variance amplification).
 """
 
 from __future__ import annotations
@@ -25,9 +38,11 @@ from typing import Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import Field, field_validator, model_validator
+from scipy.optimize import curve_fit
 
 from noiselab.mitigate.base import STAGE_COMBINE, MitigationPass, PassOptions, Workspace
 from noiselab.mitigate.estimate import Estimate, linear_combination
+from noiselab.mitigate.experiment import actual_scale, realized_scales
 from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
 
 ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
@@ -42,6 +57,7 @@ class ExtrapolateOptions(PassOptions):
     degree: int | None = Field(default=None, ge=1, description="polynomial fit only")
     channels: tuple[ChannelName, ...] | None = None  # stretch only; None: all but readout
     shot_split: Literal["equal", "weighted"] = "equal"
+    scale_axis: Literal["realized", "nominal"] = "realized"  # folding: what the fit runs against
 
     @field_validator("scales")
     @classmethod
@@ -77,7 +93,7 @@ class ExtrapolateOptions(PassOptions):
 
 
 def richardson_coefficients(scales: np.ndarray) -> np.ndarray:
-    """gamma_i = prod_{j != i} c_j / (c_j - c_i)."""
+    """w_i = prod_{j != i} c_j / (c_j - c_i)."""
     c = np.asarray(scales, dtype=float)
     g = np.ones(len(c))
     for i in range(len(c)):
@@ -88,7 +104,7 @@ def richardson_coefficients(scales: np.ndarray) -> np.ndarray:
 
 
 def polynomial_coefficients(scales: np.ndarray, degree: int) -> np.ndarray:
-    """Least-squares polynomial of ``degree`` through (c_i, E_i), evaluated at 0: gamma."""
+    """Least-squares polynomial of ``degree`` through (c_i, E_i), evaluated at 0: weights."""
     c = np.asarray(scales, dtype=float)
     v = np.vander(c, degree + 1, increasing=True)
     return np.linalg.pinv(v)[0]
@@ -101,13 +117,11 @@ def _exp_model(c: np.ndarray, a: float, b: float, k: float) -> np.ndarray:
 def exponential_fit(
     scales: np.ndarray, energies: np.ndarray
 ) -> tuple[float, np.ndarray, np.ndarray]:
-    """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
+    """(E(0), weights, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
 
     k is kept in (0, EXP_MAX_DECAY / (c_max - c_min)]: a steeper decay is not resolved by the
     points (the data beyond the first would be flat) and would amplify noise without bound.
     Raises ValueError when the fit fails or k ends on a bound."""
-    from scipy.optimize import curve_fit
-
     c = np.asarray(scales, dtype=float)
     y = np.asarray(energies, dtype=float)
     k_max = EXP_MAX_DECAY / float(c.max() - c.min())
@@ -141,8 +155,8 @@ def exponential_fit(
     jac = np.column_stack([np.ones_like(c), e, -b * c * e])
     if np.linalg.cond(jac) > 1e12:
         raise ValueError("fit is ill-conditioned (the points show no curvature)")
-    gamma = np.array([1.0, 1.0, 0.0]) @ np.linalg.pinv(jac)
-    return a + b, gamma, np.array([a, b, k])
+    weights = np.array([1.0, 1.0, 0.0]) @ np.linalg.pinv(jac)
+    return a + b, weights, np.array([a, b, k])
 
 
 class ExtrapolatePass(MitigationPass):
@@ -162,14 +176,16 @@ class ExtrapolatePass(MitigationPass):
         o = self.options
         if o.amplifier == "stretch":
             chans = STRETCH_CHANNELS if o.channels is None else o.channels
-            return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in o.scales)
-        method = "global" if o.amplifier == "whole_circuit" else "two_qubit"
-        return tuple(CircuitVariant(fold_method=method, fold_scale=c) for c in o.scales)
+            off = float(getattr(ctx, "amplification_offset", 0.0))
+            emulated = [c if c == 1.0 else c * (1.0 + off) for c in o.scales]
+            return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in emulated)
+        # the fold method is named as the amplifier: "whole_circuit" or "two_qubit_gates"
+        return tuple(CircuitVariant(fold_method=o.amplifier, fold_scale=c) for c in o.scales)
 
     def coefficients(
         self, scales: np.ndarray, energies: np.ndarray
     ) -> tuple[float | None, np.ndarray, dict[str, Any]]:
-        """(nonlinear value or None, gamma, fit details)."""
+        """(nonlinear value or None, weights, fit details)."""
         o = self.options
         if o.fit == "richardson":
             return None, richardson_coefficients(scales), {}
@@ -186,27 +202,84 @@ class ExtrapolatePass(MitigationPass):
             return None, g, {"fit_warning": f"exponential fit failed: {exc}; linear fit used"}
         return value, g, {"exp_a_ha": params[0], "exp_b_ha": params[1], "exp_k": params[2]}
 
+    def scale_sensitivity(
+        self, scales: np.ndarray, energies: np.ndarray
+    ) -> tuple[np.ndarray, float | None, np.ndarray, dict[str, Any]]:
+        """(dE(0)/dc_i at fixed energies (Ha per unit scale), then what :meth:`coefficients`
+        returns at ``scales``)."""
+        c = np.asarray(scales, dtype=float)
+        e = np.asarray(energies, dtype=float)
+        value, weights, info = self.coefficients(c, e)
+        if "exp_k" in info:  # implicit function theorem at the (Gauss-Newton) optimum
+            b, k = info["exp_b_ha"], info["exp_k"]
+            return weights * b * k * np.exp(-k * c), value, weights, info
+        o = self.options
+        if o.fit == "richardson":
+            coeffs = richardson_coefficients
+        else:
+            degree = (o.degree or 1) if o.fit == "polynomial" else 1
+
+            def coeffs(x: np.ndarray) -> np.ndarray:
+                return polynomial_coefficients(x, degree)
+
+        sens = np.zeros(len(c))
+        for i in range(len(c)):
+            h = 1e-6 * max(1.0, abs(c[i]))
+            up, down = c.copy(), c.copy()
+            up[i] += h
+            down[i] -= h
+            sens[i] = float((coeffs(up) - coeffs(down)) @ e) / (2.0 * h)
+        return sens, value, weights, info
+
     def combine(
         self, variants: tuple[CircuitVariant, ...], estimates: list[Estimate], ws: Workspace
     ) -> Estimate:
-        from noiselab.mitigate.recipe import actual_scale
-
-        scales = np.array([actual_scale(ws.ctx, v) for v in variants])
+        o = self.options
+        ctx = ws.ctx
+        spread = float(getattr(ctx, "amplification_spread", 0.0))
+        stretch = o.amplifier == "stretch"
+        if stretch:  # the fit knows the stretch factors (an offset is unknown to it)
+            nominal = np.array(o.scales, dtype=float)
+            realized = nominal.copy()
+            by_kind: list[dict[str, float]] = []
+        else:
+            nominal = np.array([actual_scale(ctx, v) for v in variants])
+            by_kind = [realized_scales(ctx, v) for v in variants]
+            realized = np.array([r["total"] for r in by_kind])
+        scales = realized if o.scale_axis == "realized" else nominal
+        amplified = np.array([c != 1.0 for c in o.scales])
+        fit_scales = scales
+        if ws.rng is not None and spread > 0.0:  # sampled: draw the realized scales
+            draw = ws.rng.normal(0.0, spread, size=len(scales))
+            fit_scales = scales * (1.0 + np.where(amplified, draw, 0.0))
         energies = np.array([e.value for e in estimates])
-        value, gamma, info = self.coefficients(scales, energies)
-        est = linear_combination(list(gamma), estimates)
+        sens, value, weights, info = self.scale_sensitivity(fit_scales, energies)
+        amp_std = np.where(amplified, np.abs(sens) * spread * scales, 0.0)
+        ws.fixed_variance["amplification"] = float(np.sum(amp_std**2))
+        est = linear_combination(list(weights), estimates)
         if value is not None:
             est = Estimate(value, est.influence)
-        ws.details["extrapolation"] = {
-            "amplifier": self.options.amplifier,
-            "fit": self.options.fit,
-            "scales_requested": [float(c) for c in self.options.scales],
+        details: dict[str, Any] = {
+            "amplifier": o.amplifier,
+            "fit": o.fit,
+            "scale_axis": o.scale_axis,
+            "scales_requested": [float(c) for c in o.scales],
             "scales": [float(c) for c in scales],
+            "scales_nominal": [float(c) for c in nominal],
+            "scales_realized": [float(c) for c in realized],
             "energies_ha": [float(e) for e in energies],
-            "gamma": [float(g) for g in gamma],
-            "variance_amplification": float(np.sum(gamma**2)),
+            "weights": [float(g) for g in weights],
+            "variance_amplification": float(np.sum(weights**2)),
+            "amplification_spread": spread,
+            "scale_sensitivity_ha": [float(x) for x in sens],
+            "amplification_stds_mha": [float(x) * 1000.0 for x in amp_std],
             **{k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in info.items()},
         }
+        if stretch:
+            details["amplification_offset"] = float(getattr(ctx, "amplification_offset", 0.0))
+        else:
+            details["realized_by_kind"] = by_kind
+        ws.details["extrapolation"] = details
         return est
 
 

@@ -164,7 +164,7 @@ class ReadoutPass(MitigationPass):
         if self.options.method == "nearest_probability":
             out = {b: _project(d) for b, d in out.items()}
         ws.details.setdefault("readout_assignment", {})[variant.label()] = [
-            {"p1_given0": float(m[1, 0]), "p0_given1": float(m[0, 1])} for m in mats
+            {"flip_0to1": float(m[1, 0]), "flip_1to0": float(m[0, 1])} for m in mats
         ]
         return out
 
