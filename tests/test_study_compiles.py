@@ -56,9 +56,9 @@ def test_json_reports_the_seeds_and_the_choice(runs):
 def test_seed_changes_neither_compile_nor_spread(runs):
     a, b = runs["a"].to_json(), runs["b"].to_json()
     assert a["compile"] == b["compile"]
-    # raw has no random part; a readout-corrected bias is seed-free only once the bias is taken
-    # with the exact calibration (issue 12, item 1), so only raw is compared here
-    assert a["recipes"]["raw"]["bias_spread_mha"] == b["recipes"]["raw"]["bias_spread_mha"]
+    for name in a["recipes"]:  # biases come from exact inputs (exact readout calibration)
+        assert a["recipes"][name]["bias_spread_mha"] == b["recipes"][name]["bias_spread_mha"]
+        assert a["recipes"][name]["bias_mha"] == b["recipes"][name]["bias_mha"]
 
 
 def test_spread_equals_biases_of_each_seed_compiled_alone(runs):
