@@ -9,7 +9,7 @@ job (exact inputs only).
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
 
@@ -34,6 +34,7 @@ from noiselab.mitigate.variants import CircuitVariant
 
 Distributions = Mapping[CircuitVariant, Mapping[str, np.ndarray]]
 CalibrationCall = tuple[CircuitVariant, tuple[int, ...], int | None]
+Calibration = Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
 
 
 @dataclass(frozen=True, eq=False)
@@ -146,7 +147,7 @@ class EstimateMemo:
         self,
         key: tuple[Any, ...],
         cal: CalibrationSource,
-        compute: Any,
+        compute: Callable[[Calibration], VariantOutcome],
     ) -> VariantOutcome:
         """The stored outcome under ``key`` (its calibration reads replayed on ``cal``), or
         ``compute(calibration)`` stored."""
@@ -154,7 +155,9 @@ class EstimateMemo:
         if entry is None:
             calls: list[CalibrationCall] = []
 
-            def recording(v: CircuitVariant, states: tuple[int, ...], shots: int | None) -> Any:
+            def recording(
+                v: CircuitVariant, states: tuple[int, ...], shots: int | None
+            ) -> np.ndarray:
                 calls.append((v, tuple(states), shots))
                 return cal(v, states, shots)
 
@@ -220,7 +223,7 @@ def evaluate(
         if memo is not None and cal.exact_only:
             key = (ctx, cal.calibrator, *memo_scope, v, stage_keys, bases)
 
-            def compute(recording: Any, v: CircuitVariant = v) -> VariantOutcome:
+            def compute(recording: Calibration, v: CircuitVariant = v) -> VariantOutcome:
                 sub = Workspace(ctx=ctx, measured=measured, calibration=recording)
                 return variant_outcome(corrects, estimator, v, bases, sub)
 

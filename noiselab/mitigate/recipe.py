@@ -6,7 +6,9 @@ each circuit variant its passes need, applies the correction passes per variant 
 estimator pass per variant and the combination pass across variants, allocates the shot budget,
 and returns a :class:`RecipeResult`. ``sampled=False`` (default): exact distributions, analytic
 standard error. ``sampled=True``: multinomial counts are drawn from ``rng`` and pushed through
-the same code (the spread of such estimates is the analytic standard error).
+the same code (the spread of such estimates is the analytic standard error). The steps it chains
+(measure, evaluate, allocate, draw, variance, score) are pure functions of frozen records in
+:mod:`noiselab.mitigate.evaluate` and :mod:`noiselab.mitigate.steps`.
 
 Bias = expectation: the reported energy is computed from exact inputs only (exact measured
 distributions, exact readout-calibration distributions), so no random draw enters the bias and
