@@ -172,8 +172,9 @@ def test_spread_matches_resampled_energies_on_an_analytic_curve() -> None:
     scales = np.array([1.0, 2.0, 3.0])
     p = ExtrapolatePass(ExtrapolateOptions(scales=(1, 2, 3), fit="richardson"))
     energies = a + b * scales + q * scales**2
-    sens, value, weights, _ = p.scale_sensitivity(scales, energies)
-    assert value is None and float(weights @ energies) == pytest.approx(a, abs=1e-12)
+    sens, fit = p.scale_sensitivity(scales, energies)
+    weights = fit.weights
+    assert fit.value is None and float(weights @ energies) == pytest.approx(a, abs=1e-12)
     analytic = float(np.sqrt(np.sum((sens[1:] * spread * scales[1:]) ** 2)))
     rng = np.random.default_rng(11)
     draws = []

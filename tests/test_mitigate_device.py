@@ -179,7 +179,7 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
         b: raw_distribution(("meas", CircuitVariant(), b), d.probs[i])
         for i, b in enumerate(d.bases)
     }
-    out = p.correct(CircuitVariant(), data, ws)
+    out = p.correct(CircuitVariant(), data, ws).data
     for i, b in enumerate(d.bases):
         # source: emulate's distribution before readout error
         assert np.max(np.abs(out[b].probs - d.probs_ideal[i])) < 1e-10

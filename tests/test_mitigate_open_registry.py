@@ -4,9 +4,11 @@ file as its "add a pass" example)."""
 
 from __future__ import annotations
 
+import json
 from collections.abc import Iterator
+from dataclasses import dataclass
 from pathlib import Path
-from typing import ClassVar
+from typing import Any, ClassVar
 
 import pytest
 import yaml
@@ -17,19 +19,31 @@ import noiselab
 from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_ESTIMATE,
+    Estimated,
     MitigationPass,
     PassOptions,
     VariantData,
     Workspace,
     plan_estimate,
 )
-from noiselab.mitigate.estimate import Estimate
 from noiselab.mitigate.registry import PASSES, register_pass
+from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.variants import CircuitVariant
+from noiselab.study.results import AssessResult, RunStats
 
 
 class ShiftOptions(PassOptions):
     shift_mha: float = Field(default=0.0, allow_inf_nan=False, description="added to the energy")
+
+
+@dataclass(frozen=True)
+class ShiftReport(PassReport):
+    kind: ClassVar[str] = "shift"  # the pass's name
+    shift_mha: float
+    energies_ha: tuple[float, ...]  # per variant, before the shift (tuples concatenate)
+
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        return {"shift_mha": self.shift_mha}  # its part of RecipeResult.details (the JSON)
 
 
 class ShiftPass(MitigationPass):
@@ -40,9 +54,10 @@ class ShiftPass(MitigationPass):
     Options: ClassVar[type[PassOptions]] = ShiftOptions
     options: ShiftOptions
 
-    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
+    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         plain = plan_estimate(ws.ctx, data)
-        return Estimate(plain.value + self.options.shift_mha / 1000.0, plain.influence)
+        report = ShiftReport(self.options.shift_mha, (plain.value,))
+        return Estimated(plain + self.options.shift_mha / 1000.0, report)
 
 
 @pytest.fixture
@@ -85,6 +100,15 @@ def test_toy_pass_runs_end_to_end_through_assess(shift, tmp_path: Path) -> None:
     assert r["readout_shifted"].std_mha == pytest.approx(r["readout"].std_mha, rel=1e-12)
     passes = result.to_json()["recipes"]["shifted"]["passes"]
     assert passes == [{"pass": "shift", "shift_mha": 2.5}]
+    # the typed report: on the result, in the JSON, and back from the results cache's record
+    report = r["shifted"].report(ShiftReport)
+    assert report is not None and report.shift_mha == 2.5
+    assert report.energies_ha[0] == pytest.approx(r["raw"].energy_ha, abs=1e-12)
+    assert result.to_json()["recipes"]["shifted"]["details"]["shift_mha"] == 2.5
+    record = json.loads(json.dumps(result.to_record()))
+    back = AssessResult.from_record(record, RunStats.reused_since(0.0))
+    assert back.recipes["shifted"].report(ShiftReport) == report
+    assert back.recipes["shifted"].variants == r["shifted"].variants
 
 
 def test_toy_pass_meets_the_contract(shift) -> None:

@@ -17,8 +17,9 @@ from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevec
 
 from noiselab.common.errors import InputError
 from noiselab.mitigate.experiment import ExperimentContext
-from noiselab.mitigate.passes.extrapolate import (
+from noiselab.mitigate.fits import (
     exponential_fit,
+    fit_through,
     polynomial_coefficients,
     richardson_coefficients,
 )
@@ -130,10 +131,39 @@ def test_exponential_fit_recovers_an_exponential():
 
 
 def test_exponential_fit_falls_back_on_straight_lines():
-    p = make_pass({"pass": "extrapolate", "fit": "exponential"})
-    _, weights, info = p.coefficients(np.array([1.0, 2.0, 3.0]), np.array([1.0, 2.0, 3.0]))
-    assert "fit_warning" in info
-    assert weights @ np.array([1.0, 2.0, 3.0]) == pytest.approx(0.0, abs=1e-12)  # the line at zero
+    fit = fit_through("exponential", None, np.array([1.0, 2.0, 3.0]), np.array([1.0, 2.0, 3.0]))
+    assert fit.warning and "linear fit used" in fit.warning
+    assert fit.weights @ np.array([1.0, 2.0, 3.0]) == pytest.approx(0.0, abs=1e-12)  # the line at 0
+    # the curve the fit reports is the line it used
+    assert fit.curve(np.array([0.0, 4.0])) == pytest.approx([0.0, 4.0], abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("fit", "degree"), [("richardson", None), ("linear", None), ("polynomial", 2)]
+)
+def test_fitted_curve_is_the_fit_and_meets_its_zero_noise_value(fit, degree):
+    scales = np.array([1.0, 1.7, 2.5, 3.0])
+    y = np.array([0.31, 0.52, 0.47, 0.93])
+    zfit = fit_through(fit, degree, scales, y)
+    xs = np.linspace(0.0, 3.0, 7)
+    deg = {"richardson": len(scales) - 1, "linear": 1, "polynomial": 2}[fit]
+    # source: numpy.polynomial.polynomial.polyfit (least squares; interpolation at degree m-1)
+    expected = np.polynomial.polynomial.polyval(
+        xs, np.polynomial.polynomial.polyfit(scales, y, deg)
+    )
+    assert zfit.curve(xs) == pytest.approx(expected, abs=1e-9)
+    assert zfit.curve(np.array([0.0]))[0] == pytest.approx(zfit.weights @ y, abs=1e-12)
+
+
+def test_exponential_curve_is_the_fitted_exponential():
+    scales = np.array([1.0, 2.0, 3.0, 4.0])
+    a, b, k = -0.5, -0.6, 0.35
+    zfit = fit_through("exponential", None, scales, a + b * np.exp(-k * scales))
+    # closed form: E(c) = a + b exp(-k c), E(0) = a + b
+    assert zfit.curve(np.array([0.0, 2.5])) == pytest.approx(
+        [a + b, a + b * np.exp(-k * 2.5)], abs=1e-7
+    )
+    assert zfit.value == pytest.approx(a + b, abs=1e-7)
 
 
 # ---- readout -----------------------------------------------------------------------------------
@@ -183,7 +213,7 @@ def test_exact_inversion_recovers_the_noiseless_distribution(setup, method):
 
     ws = Workspace(ctx=ctx, measured={}, calibration=cal)
     data = {b: raw_distribution(("meas", v, b), d.probs[i]) for i, b in enumerate(d.bases)}
-    out = p.correct(v, data, ws)
+    out = p.correct(v, data, ws).data
     for i, b in enumerate(d.bases):
         # source: the distribution before readout, computed by qiskit.quantum_info
         assert np.max(np.abs(out[b].probs - d.probs_ideal[i])) < 1e-10

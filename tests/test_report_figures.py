@@ -3,15 +3,27 @@
 from __future__ import annotations
 
 import csv
+import dataclasses
+import json
 import math
 import xml.etree.ElementTree as ET
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
 
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.wording import CAUTION
+from noiselab.mitigate.base import Workspace
+from noiselab.mitigate.estimate import Estimate
+from noiselab.mitigate.passes.extrapolate import (
+    ExtrapolateOptions,
+    ExtrapolatePass,
+    ExtrapolationReport,
+)
+from noiselab.mitigate.reports import VariantScore
+from noiselab.mitigate.result import RecipeResult
 from noiselab.mitigate.target import p_within
 from noiselab.report import figures as F  # noqa: N812
 from noiselab.report import tables as T  # noqa: N812
@@ -121,46 +133,59 @@ def test_budget_figure(tmp_path: Path) -> None:
     assert "without two_qubit" in text and "readout alone" in text
 
 
-def test_extrapolation_figure_from_records(tmp_path: Path) -> None:
-    scales = (1.0, 2.0, 3.0)
-    # records shaped like mitigate's RecipeResult: details with per-scale energies and the fit
-    zne = {
-        "energy_ha": EXACT_HA + 0.0004,
-        "bias_exact_mha": 0.4,
-        "std_mha": 0.9,
-        "details": {
-            "extrapolation": {
-                "fit": "linear",
-                "scales": scales,
-                "energies_ha": [EXACT_HA + 0.02 * x for x in scales],
-                "stds_ha": [4e-4] * 3,
-                "poly_coeffs_low_first": [EXACT_HA + 0.0004, 0.02],
-            }
-        },
-    }
-    raw = {"energy_ha": EXACT_HA + 0.02, "bias_exact_mha": 20.0, "std_mha": 0.3, "details": {}}
-    data = F.extrapolation_data({"raw": raw, "zne-linear": zne})
-    assert [s.recipe for s in data.series] == ["zne-linear"]
-    s = data.series[0]
-    # the sampled fit starts at scale 0 with the constant coefficient
-    assert s.curve_scales[0] == 0.0
-    assert s.curve_energies_ha[0] == pytest.approx(EXACT_HA + 0.0004)
-    # exact energy recovered from the first record: E - bias (common practice, no source)
-    assert data.exact_energy_ha == pytest.approx(EXACT_HA)
-    # Richardson: the curve is the interpolating polynomial through the points
-    rich = F.extrapolation_series(
-        {
-            "details": {
-                "extrapolation": {"fit": "richardson", "scales": [1, 3], "energies_ha": [1.0, 2.0]}
-            }
-        },
-        "r",
+SCALES = (1.0, 2.0, 3.0)
+
+
+def _zne_result(fit: str, energies: list[float]) -> RecipeResult:
+    """A RecipeResult as run_recipe builds it, around the report ExtrapolatePass.combine gives
+    for hand-made per-scale energies (exact estimates: no sources)."""
+    p = ExtrapolatePass(ExtrapolateOptions(scales=SCALES, fit=fit))
+    ctx = SimpleNamespace(amplification_spread=0.0, amplification_offset=0.0)
+    variants = p.variants(ctx)
+    ws = Workspace(ctx=ctx, measured={}, calibration=None)
+    combined = p.combine(variants, [Estimate(e) for e in energies], ws)
+    scores = tuple(
+        VariantScore(v.label(), e, 0.4 + 0.1 * i, 1000, c, c, 0.0, None)
+        for i, (v, e, c) in enumerate(zip(variants, energies, SCALES, strict=True))
     )
+    energy = combined.estimate.value
+    return RecipeResult(
+        recipe=f"zne-{fit}", spec=(), energy_ha=energy, bias_exact_mha=(energy - EXACT_HA) * 1e3,
+        bias_ansatz_mha=0.0, std_mha=0.9, shots_total=3000, shots_per_circuit={}, n_circuits=3,
+        engine_seconds=0.0, p_within_target=0.5, shots_needed=None, limited_by="bias",
+        variants=scores, reports={"extrapolate": combined.report},
+    )  # fmt: skip
+
+
+def test_extrapolation_series_plots_what_the_pass_reported(tmp_path: Path) -> None:
+    quadratic = [EXACT_HA + 0.02 * c + 0.004 * c * c for c in SCALES]
+    zne = _zne_result("linear", quadratic)
+    s = F.extrapolation_series("zne-linear", zne)
+    assert s is not None and s.scales == SCALES and s.energies_ha == tuple(quadratic)
+    # error bars: each scale's standard error from the recipe's variant scores (mHa -> Ha)
+    assert s.stds_ha == pytest.approx((4e-4, 5e-4, 6e-4), rel=1e-12)
+    report = zne.report(ExtrapolationReport)
+    assert s.curve_scales == report.curve_scales and s.curve_energies_ha == report.curve_energies_ha
+    # the reported curve is the least-squares line (source: numpy.polynomial.polynomial.polyfit),
+    # drawn from scale 0, where it meets the extrapolated energy
+    line = np.polynomial.polynomial.polyfit(SCALES, quadratic, 1)
+    curve = np.polynomial.polynomial.polyval(np.array(s.curve_scales), line)
+    assert s.curve_scales[0] == 0.0 and max(s.curve_scales) == 3.0
+    assert np.allclose(s.curve_energies_ha, curve, atol=1e-12)
+    assert s.estimate_ha == pytest.approx(line[0], abs=1e-12)
+    # Richardson through three points of a quadratic is that quadratic (Lagrange interpolation)
+    rich = F.extrapolation_series("r", _zne_result("richardson", quadratic))
     assert rich is not None
-    # the line through (1, 1) and (3, 2) meets scale 0 at 0.5 (hand computation)
-    assert rich.curve_energies_ha[0] == pytest.approx(0.5)
-    path = F.plot_extrapolation({"raw": raw, "zne-linear": zne}, tmp_path / "x.png")
-    _check_png(path)
+    xs = np.array(rich.curve_scales)
+    assert np.allclose(rich.curve_energies_ha, EXACT_HA + 0.02 * xs + 0.004 * xs**2, atol=1e-12)
+    # a recipe without an extrapolation report draws no series
+    raw = dataclasses.replace(zne, reports={}, variants=zne.variants[:1])
+    assert F.extrapolation_series("raw", raw) is None
+    # the typed records survive the results cache's record (JSON) unchanged
+    again = RecipeResult(**json.loads(json.dumps(zne.to_dict())))
+    assert F.extrapolation_series("zne-linear", again) == s
+    data = F.ExtrapolationFigureData("h2-hand", "toy-chip", EXACT_HA, CHEMICAL_ACCURACY_MHA, (s,))
+    _check_png(F.plot_extrapolation(data, tmp_path / "x.png"))
     text = _svg_text(F.plot_extrapolation(data, tmp_path / "x.svg"))
     assert "noise scale factor" in text and "energy − exact energy (mHa)" in text
 
@@ -169,9 +194,10 @@ def test_bias_bars_log_and_linear(tmp_path: Path) -> None:
     wide = [F.BiasBar("raw", 35.0, 0.4), F.BiasBar("zne", 0.02, 0.9)]
     narrow = [F.BiasBar("raw", 3.0, 0.4), F.BiasBar("zne", 1.0, 0.3)]
     for name, bars in (("wide", wide), ("narrow", narrow)):
-        _check_png(F.plot_bias_bars(bars, tmp_path / f"{name}.png", "h2-hand", "toy-chip"))
-        text = _svg_text(F.plot_bias_bars(bars, tmp_path / f"{name}.svg", "h2-hand", "toy-chip"))
-        assert "|energy − exact energy| (mHa)" in text
+        data = F.BiasFigureData("h2-hand", "toy-chip", CHEMICAL_ACCURACY_MHA, tuple(bars))
+        _check_png(F.plot_bias_bars(data, tmp_path / f"{name}.png"))
+        text = _svg_text(F.plot_bias_bars(data, tmp_path / f"{name}.svg"))
+        assert "|energy − exact energy| (mHa)" in text and "h2-hand" in text
     assert F._wide_range([35.0, 0.02, CHEMICAL_ACCURACY_MHA])
 
 

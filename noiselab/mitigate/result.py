@@ -5,9 +5,13 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Any, Literal
+from typing import Any, Literal, TypeVar
 
 import numpy as np
+
+from noiselab.mitigate.reports import PassReport, VariantScore
+
+ReportType = TypeVar("ReportType", bound=PassReport)
 
 
 @dataclass(frozen=True, eq=False)
@@ -23,6 +27,11 @@ class RecipeResult:
     (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
     ``p_within_target >= confidence`` (None when the bias prevents it). ``reaches_target``: the
     one rule of :func:`noiselab.mitigate.target.reaches_target` at the budget.
+
+    Typed fields: ``variants`` (each circuit variant as scored, in the recipe's order) and
+    ``reports`` (pass name -> the pass's :class:`PassReport`, in recipe order). ``details`` is
+    the JSON built from them (``noiselab.mitigate.steps.details_json``). The record form
+    (``dataclasses.asdict``, then JSON) is accepted back for both: they are rebuilt typed.
     """
 
     recipe: str
@@ -41,6 +50,23 @@ class RecipeResult:
     reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False
+    variants: tuple[VariantScore, ...] = ()
+    reports: dict[str, PassReport] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        variants = tuple(
+            v if isinstance(v, VariantScore) else VariantScore(**v) for v in self.variants
+        )
+        reports = {
+            name: r if isinstance(r, PassReport) else PassReport.from_record(name, r)
+            for name, r in self.reports.items()
+        }
+        object.__setattr__(self, "variants", variants)
+        object.__setattr__(self, "reports", reports)
+
+    def report(self, cls: type[ReportType]) -> ReportType | None:
+        """The report of type ``cls`` (e.g. the extrapolation's), None if no pass gave one."""
+        return next((r for r in self.reports.values() if isinstance(r, cls)), None)
 
     def to_dict(self) -> dict[str, Any]:
         return plain_json(dataclasses.asdict(self))

@@ -30,6 +30,11 @@ from scipy.stats import norm
 
 LimitedBy = Literal["bias", "calibration", "amplification", "shots", "none"]
 MAX_SHOTS = 10**15
+#: how a note names the fixed part of the variance that keeps P low
+FIXED_WORDS = {
+    "calibration": "the fixed readout-calibration noise",
+    "amplification": "the uncertainty of the realized noise amplification",
+}
 
 
 def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
@@ -65,10 +70,11 @@ def assess_target(
     budget: int,
     target_mha: float,
     confidence: float,
-    fixed_source: Literal["calibration", "amplification"] = "calibration",
+    fixed_source: str = "calibration",
 ) -> TargetAssessment:
     """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N);
-    ``fixed_source``: what most of C is (named by ``limited_by`` when C alone keeps P low)."""
+    ``fixed_source``: what most of C is (named by ``limited_by`` when C alone keeps P low:
+    "calibration", "amplification", or the name a pass gives its fixed variance)."""
     b, t = float(bias_mha), float(target_mha)
     a, c = max(float(var_per_shot_mha2), 0.0), max(float(var_fixed_mha2), 0.0)
 
@@ -82,10 +88,7 @@ def assess_target(
     p_inf = p_within(b, math.sqrt(c), t)
     if p_inf < confidence:
         if c > 0:
-            what = {
-                "calibration": "the fixed readout-calibration noise",
-                "amplification": "the uncertainty of the realized noise amplification",
-            }[fixed_source]
+            what = FIXED_WORDS.get(fixed_source, f"the fixed {fixed_source} noise")
             return TargetAssessment(
                 p_budget, None, fixed_source, f"{what} keeps P below the confidence", hit
             )

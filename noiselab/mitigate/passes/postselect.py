@@ -18,21 +18,25 @@ Modes:
 
 from __future__ import annotations
 
-from typing import ClassVar, Literal
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any, ClassVar, Literal
 
 import numpy as np
 
 from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_ESTIMATE,
+    Estimated,
     MitigationPass,
     PassOptions,
     VariantData,
     Workspace,
     plan_estimate,
 )
-from noiselab.mitigate.estimate import Estimate, linear_combination, ratio
+from noiselab.mitigate.estimate import Estimate, total
 from noiselab.mitigate.plan import assign_to_bases, measurable_in, parity_signs, support_mask
+from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.symmetry import symmetry_table, verification_ops
 from noiselab.mitigate.variants import CircuitVariant
 
@@ -40,6 +44,49 @@ from noiselab.mitigate.variants import CircuitVariant
 class PostselectOptions(PassOptions):
     mode: Literal["discard", "verify"] = "discard"
     symmetries: tuple[str, ...] | None = None  # None: every symmetry the encoding keeps
+
+
+@dataclass(frozen=True)
+class PostselectReport(PassReport):
+    """Per variant label: ``discard`` the kept fraction of each basis that reveals a symmetry
+    (the bases that reveal none keep everything), ``verify`` the sector weight <P>; and the
+    fallbacks taken (``warnings``)."""
+
+    kind: ClassVar[str] = "postselect"
+    mode: str
+    acceptance: Mapping[str, Mapping[str, float]]
+    sector_weight: Mapping[str, float]
+    warnings: tuple[str, ...] = ()
+
+    def kept_shots(self, run: ScoredRun) -> float:
+        """Measurement shots kept after the selection, over all variants and bases."""
+        kept = 0.0
+        for v in run.variants:
+            acc = self.acceptance.get(v.label, {})
+            kept += sum(run.shots[(v.label, b)] * acc.get(b, 1.0) for b in run.bases)
+        return kept
+
+    def acceptance_rate(self, run: ScoredRun) -> float:
+        """Kept fraction of the shots of the bases that reveal a symmetry (1 if none does)."""
+        selected = [
+            (run.shots[(v.label, b)], a)
+            for v in run.variants
+            for b, a in self.acceptance.get(v.label, {}).items()
+        ]
+        n_sel = sum(n for n, _ in selected)
+        return sum(n * a for n, a in selected) / n_sel if n_sel else 1.0
+
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        if self.mode == "discard":
+            out["acceptance"] = {k: dict(v) for k, v in self.acceptance.items()}
+            out["effective_shots"] = self.kept_shots(run)
+            out["acceptance_rate"] = self.acceptance_rate(run)
+        else:
+            out["sector_weight"] = dict(self.sector_weight)
+        if self.warnings:
+            out["postselect_warnings"] = list(self.warnings)
+        return out
 
 
 class PostselectPass(MitigationPass):
@@ -109,13 +156,14 @@ class PostselectPass(MitigationPass):
         plan_bases = set(ctx.plan.bases)
         return tuple(b for b in ctx.measured_bases if b in used or b in plan_bases)
 
-    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
-        ctx = ws.ctx
+    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         if self.options.mode == "verify":
             return self._verify(variant, data, ws)
+        ctx = ws.ctx
         syms = self.selected(ctx)
         n = ctx.plan.num_qubits
         acc: dict[str, float] = {}
+        warnings: list[str] = []
         parts: list[Estimate] = []
         for g in ctx.plan.groups:
             revealed = [(lab, eig) for _, lab, eig in syms if measurable_in(lab, g.basis)]
@@ -126,34 +174,25 @@ class PostselectPass(MitigationPass):
             signs = parity_signs([support_mask(lab) for lab, _ in revealed], n)
             eigs = np.array([eig for _, eig in revealed], dtype=float)[:, None]
             mask = np.all(signs == eigs, axis=0).astype(float)
-            den = d.estimate(mask)
-            if den.value <= 1e-12:  # nothing accepted (possible with very few sampled shots)
-                ws.details.setdefault("postselect_warnings", []).append(
+            kept = d.estimate(mask)
+            if kept.value <= 1e-12:  # nothing accepted (possible with very few sampled shots)
+                warnings.append(
                     f"{variant.label()}:{g.basis}: no shot accepted; group used without selection"
                 )
                 parts.append(d.estimate(g.weights))
                 continue
-            num = d.estimate(mask * g.weights)
-            parts.append(ratio(num, den))
-            acc[g.basis] = den.value
-        est = linear_combination([1.0] * len(parts), parts)
-        ws.details.setdefault("acceptance", {})[variant.label()] = acc
-        return Estimate(est.value + ctx.plan.constant, est.influence)
+            parts.append(d.estimate(mask * g.weights) / kept)
+            acc[g.basis] = kept.value
+        report = PostselectReport("discard", {variant.label(): acc}, {}, tuple(warnings))
+        return Estimated(total(parts) + ctx.plan.constant, report)
 
-    def _verify(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
+    def _verify(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         c_num, w_num, c_den, w_den = self._verify_weights(ws.ctx)
-        num = linear_combination(
-            [1.0] * len(w_num), [data[b].estimate(w) for b, w in w_num.items()]
-        )
-        den = linear_combination(
-            [1.0] * len(w_den), [data[b].estimate(w) for b, w in w_den.items()]
-        )
-        num = Estimate(num.value + c_num, num.influence)
-        den = Estimate(den.value + c_den, den.influence)
-        ws.details.setdefault("sector_weight", {})[variant.label()] = den.value
-        if den.value <= 1e-12:
-            ws.details.setdefault("postselect_warnings", []).append(
-                f"{variant.label()}: sector weight <P> <= 0; plain estimate used"
-            )
-            return plan_estimate(ws.ctx, data)
-        return ratio(num, den)
+        hp = total([data[b].estimate(w) for b, w in w_num.items()]) + c_num  # <H P>
+        p = total([data[b].estimate(w) for b, w in w_den.items()]) + c_den  # <P>
+        label = variant.label()
+        if p.value <= 1e-12:
+            warning = f"{label}: sector weight <P> <= 0; plain estimate used"
+            report = PostselectReport("verify", {}, {label: p.value}, (warning,))
+            return Estimated(plan_estimate(ws.ctx, data), report)
+        return Estimated(hp / p, PostselectReport("verify", {}, {label: p.value}))
