@@ -142,8 +142,10 @@ def study_on_device(study: Study, device: Path) -> Study:
     data["device"] = str(device)
     data.pop("layout", None)
     out = study_from_mapping(data, study.source)
-    return out.with_seed(study.seed).with_shots(study.shots).with_emulation(
-        study.emulation.method, study.emulation.trajectories
+    return (
+        out.with_seed(study.seed)
+        .with_shots(study.shots)
+        .with_emulation(study.emulation.method, study.emulation.trajectories)
     )
 
 

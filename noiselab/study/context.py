@@ -168,12 +168,14 @@ def build_context(
     cache: ResultsCache | None = None,
     progress: ProgressHook | None = None,
     verification: bool | None = None,
+    optimum: OptimizationResult | None = None,
 ) -> StudyContext:
     """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
 
     ``verification``: measure the extra bases symmetry verification needs; None: exactly when
     a recipe of the study verifies (jobs that run other recipes, like tune, say so, or call
-    :func:`with_verification` on a context they were given).
+    :func:`with_verification` on a context they were given). ``optimum``: a noiseless optimum
+    computed elsewhere for this study's circuit (the scan's warm-started one); None: optimize.
     """
     if verification is None:
         verification = recipes_verify(study.recipes.values())
@@ -199,7 +201,8 @@ def build_context(
     tick(1)
     t = time.perf_counter()
     circuit = ansatz_circuit(study, qp)
-    optimum = optimize(study, qp, circuit, cache)
+    if optimum is None:
+        optimum = optimize(study, qp, circuit, cache)
     exact_s2, warnings = optimum_checks(study, qp, optimum)
     seconds["optimize"] = time.perf_counter() - t
     tick(2)

@@ -250,6 +250,7 @@ class StudyFile(_Strict):
     amplification_offset: float = 0.0
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
+    scan: dict[str, Any] | None = None  # validated by noiselab.study.scan (ScanSection)
     emulation: EmulationSettings = EmulationSettings()
 
     @field_validator("name")
