@@ -48,7 +48,7 @@ def _run(argv: list[str], capsys: pytest.CaptureFixture[str]) -> tuple[int, str,
 def test_bad_device_path_exits_2_with_one_line(
     tmp_path: Path, capsys: pytest.CaptureFixture[str]
 ) -> None:
-    code, out, err = _run(
+    code, _out, err = _run(
         ["compare", "h2-equilibrium", "--devices", "cobaltgrid-12", str(tmp_path / "no.yaml"),
          "--no-cache", "-q"], capsys,
     )  # fmt: skip
@@ -67,7 +67,7 @@ def test_device_with_too_few_qubits_exits_2_with_one_line(
         "shots: 100000\nrecipes: {raw: []}\n",
         encoding="utf-8",
     )
-    code, out, err = _run(
+    code, _out, err = _run(
         ["compare", str(study), "--devices", "cobaltgrid-12", "rustbucket-6", "--no-cache", "-q"],
         capsys,
     )

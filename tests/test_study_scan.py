@@ -73,15 +73,15 @@ def test_interrupted_scan_resumes_and_writes_identical_outputs(run, tmp_path: Pa
     cache = tmp_path / "cache.sqlite"
     seen: list[float] = []
 
-    class Stop(Exception):
+    class StopScanError(Exception):
         pass
 
     def stop_after_two(point) -> None:
         seen.append(point.coordinate)
         if len(seen) == 2:
-            raise Stop
+            raise StopScanError
 
-    with pytest.raises(Stop):
+    with pytest.raises(StopScanError):
         scan("h2-equilibrium", cache=cache, on_point=stop_after_two, **OPTIONS)
     resumed = scan("h2-equilibrium", cache=cache, **OPTIONS)
     assert resumed.stats.cache_hits >= 2

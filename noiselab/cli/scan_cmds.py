@@ -48,7 +48,7 @@ def compare_cmd(
         list[str],
         typer.Option(
             "--devices",
-            help="Device profiles (paths or shipped names): --devices a.yaml b.yaml (or repeat it).",
+            help="Device profiles (paths or shipped names): --devices a.yaml b.yaml.",
             show_default=False,
         ),
     ],
