@@ -106,7 +106,10 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
 
 
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
-    ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
+    """Title, subtitle ``study S on D`` (``D``: 'device NAME', or words such as '4 devices')
+    and the caution line."""
+    where = device if " " in device else f"device {device}"
+    ax.set_title(f"{title}\nstudy {study} on {where}", fontsize=10)
     # a figure-level x label is laid out below everything else (outside legends included)
     # wrapped to the figure's width (about 17 characters per inch at 7 pt)
     caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
