@@ -51,7 +51,7 @@ class SpsaOptions(_Options):
     learning_exponent: float = Field(default=0.602, gt=0, le=1)
     perturbation_exponent: float = Field(default=0.101, gt=0, le=1)
     first_step: float = Field(default=0.2, gt=0, le=3.2, allow_inf_nan=False)
-    calibration_samples: int = Field(default=5, ge=1, le=100)
+    calibration_samples: int = Field(default=3, ge=1, le=100)
 
 
 class ParameterShiftOptions(_Options):
