@@ -22,3 +22,6 @@ REGISTRY.append(sweep_cmds.register)
 from noiselab.cli import shipped_cmd  # noqa: E402  (shipped)
 
 REGISTRY.append(shipped_cmd.register)
+from noiselab.cli import rehearse_cmd  # noqa: E402  (rehearse)
+
+REGISTRY.append(rehearse_cmd.register)
