@@ -66,4 +66,4 @@ def _frequencies(inst: object, param: object) -> tuple[float, int]:
             f"parameter {param} has frequencies {freqs.tolist()} that are not multiples of one",
             "spsa, cobyla, nelder_mead",
         )  # fmt: skip
-    return base, int(round(float(ratios.max())))
+    return base, round(float(ratios.max()))

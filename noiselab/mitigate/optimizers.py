@@ -2,7 +2,7 @@
 
 Each optimizer calls ``objective(x) -> energy`` (one evaluation; the caller counts its shots)
 and ``on_iteration(k, x, energies)`` after every iteration. A caller that runs out of budget
-raises :class:`BudgetExhausted` from the objective; the optimizer then stops and returns its
+raises :class:`BudgetExhaustedError` from the objective; the optimizer then stops and returns its
 current iterate.
 
 - SPSA: Spall, IEEE Trans. Autom. Control 37, 332 (1992); gains a_k = a / (A + k + 1)^0.602,
@@ -33,7 +33,7 @@ OPTIMIZERS = ("spsa", "parameter_shift", "cobyla", "nelder_mead")
 OptimizerName = Literal["spsa", "parameter_shift", "cobyla", "nelder_mead"]
 
 
-class BudgetExhausted(Exception):
+class BudgetExhaustedError(Exception):
     """Raised by an objective when the shot cap is reached; the optimizer stops."""
 
 
@@ -126,7 +126,7 @@ def spsa(
             x = x - a_k[k] * g
             if on_iteration is not None:
                 on_iteration(k, x.copy(), values)
-    except BudgetExhausted:
+    except BudgetExhaustedError:
         return OptimizerOutcome(x, k, "shot cap")
     return OptimizerOutcome(x, iterations, "iterations")
 
@@ -176,7 +176,7 @@ def parameter_shift_descent(
             x = x - options.learning_rate * shift_gradient(objective, x, rules)
             if on_iteration is not None:
                 on_iteration(k, x.copy(), ())
-    except BudgetExhausted:
+    except BudgetExhaustedError:
         return OptimizerOutcome(x, k, "shot cap")
     return OptimizerOutcome(x, iterations, "iterations")
 
@@ -216,7 +216,7 @@ def scipy_minimize(
                 options={"maxfev": int(iterations), "initial_simplex": simplex,
                          "xatol": nm.xatol, "fatol": nm.fatol},
             )  # fmt: skip
-    except BudgetExhausted:
+    except BudgetExhaustedError:
         best = min(seen, key=lambda t: t[0])[1] if seen else x0
         return OptimizerOutcome(best, len(seen), "shot cap")
     stopped = "converged" if len(seen) < iterations else "iterations"

@@ -36,7 +36,7 @@ from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.compile import compile_to_device
 from noiselab.mitigate.experiment import make_calibrator, make_runner
 from noiselab.mitigate.optimizers import (
-    BudgetExhausted,
+    BudgetExhaustedError,
     OptimizerOutcome,
     ShiftRule,
     parameter_shift_descent,
@@ -199,7 +199,7 @@ class LoopEvaluator:
     """Energy evaluations at given parameters, as the device would return them; counts shots.
 
     ``objective(x)``: bind, emulate, draw counts at ``shots`` and run the recipe on them.
-    Raises :class:`BudgetExhausted` once ``max_shots`` are spent.
+    Raises :class:`BudgetExhaustedError` once ``max_shots`` are spent.
     """
 
     def __init__(
@@ -240,7 +240,7 @@ class LoopEvaluator:
 
     def __call__(self, x: np.ndarray) -> float:
         if self.max_shots is not None and self.shots_spent >= self.max_shots:
-            raise BudgetExhausted
+            raise BudgetExhaustedError
         res = self.evaluate(x, self.shots)
         self.evaluation_shots.append(int(res.shots_total) + calibration_shots(res))
         self.circuit_runs += int(res.n_circuits)
@@ -383,9 +383,17 @@ def rehearse(
         outcome = run_optimizer(settings, evaluator, x0, rng, rules, on_iteration)
         repeats.append(
             final_estimate(
-                ctx, evaluator, final_passes, outcome, seed, x0, trace, noiseless,
-                seconds_per_shot, settings.circuit_overhead_s,
-            )  # fmt: skip
+                ctx,
+                evaluator,
+                final_passes,
+                outcome,
+                seed,
+                x0,
+                trace,
+                noiseless,
+                seconds_per_shot,
+                settings.circuit_overhead_s,
+            )
         )
     if progress is not None:
         progress("rehearsing the loop", settings.repeats, settings.repeats)

@@ -36,8 +36,8 @@ from noiselab.device.profile import load_profile, profile_from_mapping
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
-from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.knobs import KNOB_ALIASES, KNOBS
+from noiselab.study.rehearse_spec import RehearseSettings
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 MAX_SHOTS = 10**12
