@@ -32,6 +32,7 @@ A profile file looks like this (units are in the key names; rates are probabilit
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
       - {pair: [0, 1], joint_flip: 0.004}
+    repetition_delay_us: 250             # optional; time between shots, reset included
     drift:                               # optional; day-to-day relative standard deviations
       t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
       t2_rel_std: 0.2
@@ -298,6 +299,11 @@ class DeviceProfile(BaseModel):
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
     #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
     drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
+    #: time between shots, reset included (us); None: the rehearse job's common-practice
+    #: default. Not part of the noise: excluded like ``drift``
+    repetition_delay_us: float | None = Field(
+        default=None, gt=0, le=1e7, allow_inf_nan=False, exclude=True
+    )
     _source: str = PrivateAttr(default="<profile>")
 
     @field_validator("name", mode="after")
