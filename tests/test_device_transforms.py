@@ -164,3 +164,14 @@ def test_realized_circuits_are_kept_by_the_context_not_the_module(demo) -> None:
     thawed = pickle.loads(pickle.dumps(exp))  # shipped to a worker: caches stay behind
     assert not thawed.realizer._realized
     assert thawed.realizer.realize(v.transforms).scale == first.scale
+
+
+def test_replaced_context_shares_the_realizer_only_for_the_same_circuit_and_profile(demo) -> None:
+    from noiselab.device.profile import scale_profile
+    from noiselab.study.context import replace_experiment
+
+    exp, _ = demo
+    kept = exp.realizer
+    assert replace_experiment(exp, shots=1000).realizer is kept
+    quiet = replace_experiment(exp, profile=scale_profile(exp.profile, 0.5))
+    assert quiet.realizer is not exp.realizer and quiet.realizer.profile is quiet.profile
