@@ -5,12 +5,15 @@ from __future__ import annotations
 from dataclasses import dataclass
 from typing import Literal
 
+from noiselab.device.channel_registry import CHANNELS, CIRCUIT_CHANNELS
+
 FoldMethod = Literal["none", "whole_circuit", "two_qubit_gates"]
 
-# every channel group scale_profile knows (device layer contract)
-ALL_CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
-# pulse stretching slows the gates, not the measurement: readout stays as calibrated
-STRETCH_CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent")
+# every channel group of the device registry; pulse stretching scales those acting in the
+# circuit (the gates), not the measurement: readout stays as calibrated
+ALL_CHANNELS: tuple[str, ...] = CHANNELS
+STRETCH_CHANNELS: tuple[str, ...] = CIRCUIT_CHANNELS
+
 #: Relative standard deviation of the realized noise scale of each amplified point (zero-noise
 #: extrapolation). Common practice, no source: stretched pulses are recalibrated and folded
 #: gates do not scale every error alike, so the realized amplification is known to a few
