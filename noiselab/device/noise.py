@@ -40,6 +40,7 @@ from qiskit_aer.noise.passes import LocalNoisePass
 
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device import thermal
+from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
 
 _UNIT_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
@@ -305,7 +306,7 @@ def build_noise_model(
         profile.qubit(q).t1_us is not None or profile.qubit(q).t2_us is not None for q in patch
     ):
         # aer runs these passes on circuits that contain delays (as NoiseModel.from_backend does)
-        model._custom_noise_passes.append(idle_relaxation_pass(profile, patch, dt_s))
+        add_noise_pass(model, idle_relaxation_pass(profile, patch, dt_s))
     return model
 
 
