@@ -92,6 +92,7 @@ from noiselab.device.channel_registry import (
     MAX_ZZ_ANGLE_RAD,
     check_channels,
 )
+from noiselab.device.model import DeviceModel, resolve_device
 
 SCHEMA_VERSION = 1
 SINGLE_QUBIT_GATES: tuple[str, ...] = ("rz", "sx", "x")
@@ -441,6 +442,10 @@ class DeviceProfile(BaseModel):
             if _norm(*entry.pair) == key:
                 return entry.joint_flip
         return 0.0
+
+    def resolve(self, patch: Iterable[int] | None = None) -> DeviceModel:
+        """The profile on ``patch`` (default: every qubit) as read-only arrays (``DeviceModel``)."""
+        return resolve_device(self, None if patch is None else check_patch(self, patch))
 
     def gate_duration_ns(self, gate: str) -> float:
         """Duration of a native gate in ns (0 for the virtual rz)."""
