@@ -8,9 +8,16 @@ import itertools
 import numpy as np
 import pytest
 
+from noiselab.device.aer_adapter import gate_error
 from noiselab.device.channel_registry import CHANNEL_SPECS, CHANNELS, CIRCUIT_CHANNELS
 from noiselab.device.model import DeviceModel
-from noiselab.device.noise import readout_crosstalk, readout_matrices
+from noiselab.device.noise import (
+    build_noise_model,
+    gate_channel,
+    noise_spec,
+    readout_crosstalk,
+    readout_matrices,
+)
 from noiselab.device.profile import (
     PairValues,
     QubitValues,
@@ -91,3 +98,20 @@ def test_registry_covers_every_noise_field() -> None:
     assert {k for s, k in owned if s == "qubit"} == set(QubitValues.model_fields)
     assert {k for s, k in owned if s == "pair"} == set(PairValues.model_fields)
     assert "readout" not in CIRCUIT_CHANNELS
+
+
+def test_noise_model_is_built_from_the_noise_spec() -> None:
+    """Every rule of the spec is the error the aer model attaches to that gate and qubits."""
+    prof = load_profile("rustbucket-6")
+    patch = (2, 0, 1)
+    spec = noise_spec(prof, patch)
+    nm = build_noise_model(prof, patch)
+    n1 = sum(g not in ("rz",) for g in prof.single_qubit_gates) * len(patch)
+    linked = sum(prof.has_pair(a, b) for a, b in itertools.permutations(patch, 2))
+    assert len(spec.gates) == n1 + linked
+    for rule in spec.gates:
+        want = gate_channel(prof, rule.gate, [patch[i] for i in rule.qubits])
+        got = gate_error(nm, rule.gate, rule.qubits)
+        assert got is not None and got == want
+    assert spec.idle_coherence is not None and len(spec.idle_coherence) == len(patch)
+    assert noise_spec(prof, patch, idle_relaxation=False).idle_coherence is None
