@@ -150,7 +150,7 @@ def test_trajectory_batch_options_are_checked() -> None:
 def test_gate_triggered_noise_pass_is_applied_without_delays() -> None:
     """A noise pass on a gate (not a delay) is written into a circuit that has no delays.
 
-    The pass adds amplitude damping (damping probability 0.3) after every sx; the trajectory average must
+    The pass adds amplitude damping (probability 0.3) after every sx; the trajectory average must
     equal the channel applied to the density matrix by qiskit.quantum_info.
     """
     # source: qiskit.quantum_info (DensityMatrix evolved by the Kraus channel), independent of aer
