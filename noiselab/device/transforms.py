@@ -20,12 +20,14 @@ from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, ClassVar
 
+from noiselab.device.channel_registry import CHANNELS, CIRCUIT_CHANNELS
 from noiselab.device.compile import build_target, estimate_error_budget
 from noiselab.device.folding import fold_circuit, reschedule
-from noiselab.device.profile import CHANNELS, scale_profile
+from noiselab.device.profile import scale_profile
 
 # pulse stretching slows the gates, not the measurement: readout stays as calibrated
-STRETCH_CHANNELS: tuple[str, ...] = tuple(c for c in CHANNELS if c != "readout")
+# pulse stretching scales the channels acting in the circuit (the gates), not the measurement
+STRETCH_CHANNELS: tuple[str, ...] = CIRCUIT_CHANNELS
 
 
 @dataclass(frozen=True)

@@ -41,6 +41,7 @@ import numpy as np
 from pydantic import Field, field_validator, model_validator
 
 from noiselab.common.units import HA_TO_MHA
+from noiselab.device.channel_registry import CHANNELS
 from noiselab.mitigate.base import STAGE_COMBINE, Combined, MitigationPass, PassOptions, Workspace
 from noiselab.mitigate.estimate import Estimate
 from noiselab.mitigate.experiment import actual_scale, realized_scales
@@ -48,7 +49,7 @@ from noiselab.mitigate.fits import ZeroNoiseFit, fit_through, scale_sensitivity
 from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant, folded, stretched
 
-ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
+ChannelName = Literal[CHANNELS]  # type: ignore[valid-type]  # the device registry's names
 MIN_POINTS = {"linear": 2, "richardson": 2, "exponential": 3}
 CURVE_POINTS = 91  # samples of the reported fitted curve on [0, largest scale]
 
