@@ -24,6 +24,14 @@ Atom = tuple[str, float, float, float]
 
 _BASIS_HINT = "a PySCF basis name such as sto-3g, 6-31g, cc-pvdz"
 MAX_DETERMINANTS = 20_000_000
+#: Atoms per molecule: an exact reference energy is out of reach long before this.
+MAX_ATOMS = 200
+#: Largest coordinate magnitude (Angstrom): a molecule this wide is separate fragments, and a
+#: larger number is a unit typo (pm, bohr) or worse.
+MAX_COORDINATE_ANGSTROM = 1000.0
+#: Basis functions of the whole molecule: Hartree-Fock holds about N**4 bytes of two-electron
+#: integrals (500: 62 GB) and any exact reference then needs a small active space anyway.
+MAX_BASIS_FUNCTIONS = 500
 
 
 def _element_numbers() -> dict[str, int]:
@@ -47,6 +55,11 @@ def _parse_geometry(value: Any) -> tuple[Atom, ...]:
         )
     if not rows:
         raise ValueError("no atoms given; allowed: at least one atom")
+    if len(rows) > MAX_ATOMS:
+        raise ValueError(
+            f"{len(rows)} atoms; allowed: at most {MAX_ATOMS} (an exact reference energy "
+            "is out of reach far below that)"
+        )
     numbers = _element_numbers()
     atoms: list[Atom] = []
     for i, row in enumerate(rows):
@@ -67,11 +80,19 @@ def _parse_geometry(value: Any) -> tuple[Atom, ...]:
             ) from None
         if not all(np.isfinite(xyz)):
             raise ValueError(f"atom {i}: coordinates must be finite numbers (Angstrom)")
+        if max(abs(c) for c in xyz) > MAX_COORDINATE_ANGSTROM:
+            raise ValueError(
+                f"atom {i}: coordinate {max(xyz, key=abs):g} Angstrom; allowed: at most "
+                f"{MAX_COORDINATE_ANGSTROM:g} in magnitude (wider is not one molecule; "
+                "coordinates are in Angstrom)"
+            )
         atoms.append((symbol.capitalize(), xyz[0], xyz[1], xyz[2]))
-    for i in range(len(atoms)):
-        for j in range(i):
-            if np.linalg.norm(np.subtract(atoms[i][1:], atoms[j][1:])) < 0.1:
-                raise ValueError(f"atoms {j} and {i} are closer than 0.1 Angstrom")
+    xyz_all = np.array([a[1:] for a in atoms], dtype=float)
+    dist = np.linalg.norm(xyz_all[:, None, :] - xyz_all[None, :, :], axis=-1)
+    close = np.argwhere(np.triu(dist < 0.1, k=1))
+    if len(close):
+        j, i = (int(v) for v in close[0])
+        raise ValueError(f"atoms {j} and {i} are closer than 0.1 Angstrom")
     return tuple(atoms)
 
 
@@ -199,6 +220,33 @@ def count_orbitals(spec: MoleculeSpec) -> int:
     return _count_orbitals(spec.geometry, spec.basis, spec.charge, spec.spin)
 
 
+@dataclass(frozen=True)
+class MoleculeSizes:
+    """Sizes known before any integral: basis functions, active orbitals and electrons."""
+
+    n_basis: int
+    n_orb: int
+    n_alpha: int
+    n_beta: int
+
+    @property
+    def n_determinants(self) -> int:
+        """Determinants of the exact (FCI/CASCI) problem in the (N_alpha, N_beta) sector."""
+        return _binom(self.n_orb, self.n_alpha) * _binom(self.n_orb, self.n_beta)
+
+
+def molecule_sizes(spec: MoleculeSpec) -> MoleculeSizes:
+    """Basis functions, active orbitals and active alpha/beta electrons of ``spec`` (cheap:
+    builds the PySCF molecule, computes no integral)."""
+    n_basis = _count_orbitals(spec.geometry, spec.basis, spec.charge, spec.spin)
+    n_elec = _total_electrons(spec.geometry, spec.charge)
+    if spec.active_space is None:
+        n_orb, ne = n_basis, n_elec
+    else:
+        n_orb, ne = spec.active_space.orbitals, spec.active_space.electrons
+    return MoleculeSizes(n_basis, n_orb, (ne + spec.spin) // 2, (ne - spec.spin) // 2)
+
+
 def _build_mole(atoms: tuple[Atom, ...], basis: str, charge: int, spin: int, symmetry: bool) -> Any:
     from pyscf import gto
 
@@ -284,7 +332,12 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
             f"allowed: at most {MAX_DETERMINANTS} (choose a smaller active_space)"
         )
 
+    from noiselab.common.memory import available_memory_bytes
+
     mf = scf.RHF(mol) if spec.spin == 0 else scf.ROHF(mol)
+    # PySCF keeps integrals in memory up to max_memory (MB; default 4000) and goes out of core
+    # beyond: give it the memory this process may use, not a fixed guess
+    mf.max_memory = max(200.0, available_memory_bytes() / 2**20)
     mf.conv_tol = 1e-12
     mf.max_cycle = 200
     mf.kernel()

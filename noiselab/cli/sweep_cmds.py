@@ -44,7 +44,7 @@ RecipeOpt = Annotated[
     ),
 ]
 OutOpt = Annotated[
-    Path | None,
+    str | None,
     typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
 ]
 
@@ -92,10 +92,10 @@ def sweep_cmd(
         ),
     ] = None,
     points: Annotated[
-        int | None,
+        str | None,
         typer.Option(
             "--points",
-            help="Number of knob values. Default: the study's, else 5.",
+            help="Number of knob values (2 to 200). Default: the study's, else 5.",
             show_default=False,
         ),
     ] = None,
@@ -121,13 +121,24 @@ def sweep_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
-    from noiselab.study.sweep import get_knob, sweep
+    from noiselab.cli.study_cmds import (
+        _check_method,
+        _open_cache,
+        _progress,
+        check_out,
+        emit_notice,
+        publish,
+        workers_count,
+    )
+    from noiselab.study.sweep import KNOBS, get_knob, sweep
 
     _check_method(method)
 
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
+    names = tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
+    out_dir = check_out(out, names)
+    n_workers = workers_count(workers)
     store = _open_cache(cache, no_cache)
     with _progress(quiet) as hook:
         result = sweep(
@@ -141,7 +152,7 @@ def sweep_cmd(
             cache=store,
             seed=seed,
             shots=shots,
-            workers=workers,
+            workers=n_workers,
             cluster=cluster,
             progress=hook,
             method=method,
@@ -164,10 +175,10 @@ def sweep_cmd(
             f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
             f"{s.wall_seconds:.1f} s, {s.executor})"
         )
-    if out is not None:
+    if out_dir is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        _echo_written(write_sweep_outputs(result, out))
+        _echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
 
 
 def budget_cmd(
@@ -192,10 +203,20 @@ def budget_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import _check_method, _open_cache, _progress, emit_notice
+    from noiselab.cli.study_cmds import (
+        _check_method,
+        _open_cache,
+        _progress,
+        check_out,
+        emit_notice,
+        publish,
+        workers_count,
+    )
     from noiselab.study.budget import budget
 
     _check_method(method)
+    out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg")))
+    n_workers = workers_count(workers)
 
     store = _open_cache(cache, no_cache)
     with _progress(quiet) as hook:
@@ -205,7 +226,7 @@ def budget_cmd(
             cache=store,
             seed=seed,
             shots=shots,
-            workers=workers,
+            workers=n_workers,
             cluster=cluster,
             progress=hook,
             method=method,
@@ -219,10 +240,10 @@ def budget_cmd(
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
     typer.echo("Caution: emulated; only as good as the device noise model.")
-    if out is not None:
+    if out_dir is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        _echo_written(write_budget_outputs(result, out))
+        _echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
 
 
 _SWEEP_HELP = (

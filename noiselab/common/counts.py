@@ -59,3 +59,20 @@ def whole_number(value: Any) -> Any:
 
 #: A whole number in any notation (``1e6``, ``1.0e+6``, ``"1e6"``); bounds go with the field.
 Count = Annotated[StrictInt, BeforeValidator(whole_number)]
+
+
+def parse_count(value: Any, option: str, lo: int, hi: int, why: str = "") -> int:
+    """A command-line count that is no file key (``--workers``, ``--top``) as an int in
+    ``lo..hi``; one-line InputError naming ``option`` otherwise (``why``: the reason for hi)."""
+    from noiselab.common.errors import InputError
+
+    try:
+        number = whole_number(value)
+    except ValueError as exc:
+        raise InputError(f"{option}: {exc}; allowed: a whole number from {lo} to {hi}") from None
+    if not isinstance(number, int):
+        raise InputError(f"{option}: {quote(value)}; allowed: a whole number from {lo} to {hi}")
+    if not lo <= number <= hi:
+        reason = f" ({why})" if why else ""
+        raise InputError(f"{option}: {number}; allowed: a whole number from {lo} to {hi}{reason}")
+    return number

@@ -7,7 +7,6 @@ repeated assess reads every simulation from the results cache.
 
 from __future__ import annotations
 
-import contextlib
 import json
 import time
 from collections.abc import Callable
@@ -51,8 +50,29 @@ def resolve_study(
     trajectories: int | None = None,
 ) -> Study:
     """A Study from a Study or a path, with optional seed, shot and emulation overrides."""
-    study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    return study.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
+    if isinstance(study_or_path, Study):
+        return study_or_path.with_overrides(
+            seed=seed, shots=shots, method=method, trajectories=trajectories
+        )
+    overrides = {"seed": seed, "shots": shots, "method": method, "trajectories": trajectories}
+    return load_study(study_or_path, overrides)
+
+
+def override_key_options(
+    study: Study,
+    seed: int | str | None,
+    shots: int | str | None,
+    method: str | None,
+    trajectories: int | str | None,
+) -> dict[str, Any]:
+    """Job-key options of validated overrides (``1e6`` and ``1000000`` give one key)."""
+    return {
+        "seed": None if seed is None else study.seed,
+        "shots": None if shots is None else study.shots,
+        **emulation_key_options(
+            method, None if trajectories is None else study.emulation.trajectories
+        ),
+    }
 
 
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
@@ -143,16 +163,19 @@ def assess(
     """
     t0 = time.perf_counter()
     store = _default_cache(cache)
+    # every input is read (bounded) and validated before the cache key reads the files again
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
-        options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
+        options = override_key_options(study, seed, shots, method, trajectories)
         key = job_key("assess", study_or_path, options)
         hit = store.get(JOB_KIND, key) if key is not None else None
         if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+            try:
                 stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
                 return AssessResult.from_record(json.loads(hit[0]), stats)
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+            except Exception:  # a damaged entry is a miss: dropped, and the job runs again
+                store.discard(JOB_KIND, key)
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
     else:  # measures the verification bases exactly when a recipe verifies

@@ -8,13 +8,13 @@ circuit on the device -> measurement plan -> mitigation's ``ExperimentContext``.
 from __future__ import annotations
 
 import dataclasses
-import json
 import time
 from collections.abc import Callable, Iterable, Mapping
 from typing import Any
 
 from noiselab.common.errors import InputError, input_error
-from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
+from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
+from noiselab.study.preflight import preflight, resolve_emulation
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
 
@@ -113,12 +113,10 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
     if cache is not None:
         hit = cache.get(OPTIMUM_KIND, key)
         if hit is not None:
-            try:
-                result = unpack_record(OptimizationResult, hit[0])
-                if len(result.parameters) == circuit.num_parameters:
-                    return result
-            except (ValueError, TypeError, KeyError, json.JSONDecodeError):
-                pass  # an unreadable entry is recomputed
+            result = unpack_or_none(OptimizationResult, hit[0])
+            if result is not None and len(result.parameters) == circuit.num_parameters:
+                return result
+            cache.discard(OPTIMUM_KIND, key)  # damaged: recomputed and stored again
     result = optimize_noiseless(
         qubit_problem,
         circuit,
@@ -155,6 +153,7 @@ def build_context(
     a recipe of the study verifies (jobs that run other recipes, like tune, say so, or call
     :func:`with_verification` on a context they were given).
     """
+    preflight(study)  # every heavy step's size, before the first of them
     if verification is None:
         verification = recipes_verify(study.recipes.values())
     from noiselab.chem.encode import encode
@@ -236,38 +235,6 @@ def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
     return dataclasses.replace(
         ctx, experiment=experiment, emulation_method=method, emulation_notice=notice
     )
-
-
-def resolve_emulation(
-    study: Study, circuit_qubits: int, num_bases: int = 1
-) -> tuple[str, str | None]:
-    """(method, notice) the emulator will use for ``circuit_qubits`` compiled qubits.
-
-    An emulation that cannot fit (``density_matrix`` beyond the memory guard or beyond
-    ``emulation.max_density_matrix_qubits``; trajectories beyond the memory guard) is refused
-    here, before any simulation: one line naming the study file, the qubit count and the
-    memory estimate in GiB.
-    """
-    from noiselab.common.errors import ProblemTooLargeError
-    from noiselab.emulate.engine import choose_method
-    from noiselab.emulate.memory import check_memory
-
-    e = study.emulation
-    try:
-        method, notice = choose_method(
-            circuit_qubits, e.method, max_density_matrix_qubits=e.max_density_matrix_qubits
-        )
-        if method == "trajectory":
-            check_memory(
-                circuit_qubits,
-                "trajectory",
-                trajectories_per_batch=max(1, e.trajectories // e.batches),
-                num_bases=num_bases,
-                num_batches=e.batches,
-            )
-    except ProblemTooLargeError as exc:
-        raise ProblemTooLargeError(f"{study.source}: {exc.message}") from None
-    return method, notice
 
 
 def make_experiment(

@@ -23,7 +23,17 @@ from typing import Any
 
 from noiselab.common.errors import input_error
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
-from noiselab.device.profile import MAX_READOUT_ERROR, MAX_SINGLE_QUBIT_ERROR, MAX_TWO_QUBIT_ERROR
+from noiselab.device.profile import (
+    MAX_COHERENCE_US,
+    MAX_READOUT_ERROR,
+    MAX_SINGLE_QUBIT_ERROR,
+    MAX_TWO_QUBIT_ERROR,
+    MIN_COHERENCE_US,
+)
+
+#: Largest uniform noise scale of a sweep: beyond, every circuit is close to fully depolarized.
+MAX_NOISE_SCALE = 100.0
+_PROBABILITY = "a probability; larger is not an error rate"
 
 # ---------------------------------------------------------------- knobs
 
@@ -47,6 +57,8 @@ class Knob:
     inverse: bool = False
     upper: float | None = None  # largest allowed value (base units)
     allow_zero: bool = True
+    lower: float | None = None  # smallest allowed value above zero (base units)
+    reason: str = _PROBABILITY  # why the range ends where it does (shown when refused)
 
     def show(self, value: float) -> str:
         """``value`` (base units) in display units with three significant digits."""
@@ -62,6 +74,8 @@ KNOBS: dict[str, Knob] = {
         axis_label="noise scale factor (1 = device as profiled)",
         unit="",
         channels=None,
+        upper=MAX_NOISE_SCALE,
+        reason="beyond, every circuit is close to fully depolarized",
     ),
     "two-qubit-error": Knob(
         name="two-qubit-error",
@@ -89,6 +103,9 @@ KNOBS: dict[str, Knob] = {
         channels=("relaxation",),
         inverse=True,
         allow_zero=False,
+        lower=MIN_COHERENCE_US,
+        upper=MAX_COHERENCE_US,
+        reason="T1 from 1 ns to 1000 s; outside, a unit typo",
     ),
     "readout-error": Knob(
         name="readout-error",
@@ -121,12 +138,13 @@ def check_value(knob: Knob, value: float, option: str, log: bool = False) -> flo
         raise input_error(
             "sweep", option, f"{value} is out of range for {knob.name}", "> 0" if strict else ">= 0"
         )
-    if knob.upper is not None and v > knob.upper:
+    low = 0.0 if knob.lower is None else knob.lower
+    if (knob.upper is not None and v > knob.upper) or (v > 0 and v < low):
         raise input_error(
             "sweep",
             option,
             f"{value} is out of range for {knob.name}",
-            f"0..{knob.upper:g} (a probability; larger is not an error rate)",
+            f"{low:g}..{knob.upper:g} ({knob.reason})",
         )
     return v
 
@@ -678,7 +696,11 @@ def sweep(
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
     stop = stop if not same_knob else default("stop", stop, None)
-    points = int(default("points", points, 5))
+    from noiselab.study.spec import validate_sweep_options
+
+    given = validate_sweep_options(str(study.source), points=points, start=start, stop=stop)
+    start, stop = given.start, given.stop
+    points = int(default("points", given.points, 5))
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     store = _default_cache(cache)

@@ -9,7 +9,6 @@ and cached; evaluating a setting afterwards costs no further simulation.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import itertools
 import json
@@ -19,7 +18,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.errors import InputError
-from noiselab.study.assess import _default_cache, emulation_key_options, resolve_study
+from noiselab.study.assess import _default_cache, override_key_options, resolve_study
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.results import (
@@ -256,22 +255,23 @@ def tune(
     """
     t0 = time.perf_counter()
     store = _default_cache(cache)
+    # every input is read (bounded) and validated before the cache key reads the files again
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = {
-            "seed": seed,
-            "shots": shots,
+            **override_key_options(study, seed, shots, method, trajectories),
             "grid": dataclasses.asdict(grid or GridOverride()),
-            **emulation_key_options(method, trajectories),
         }
         key = job_key("tune", study_or_path, jsonable(options))
         hit = store.get(JOB_KIND, key) if key is not None else None
         if hit is not None:
-            with contextlib.suppress(ValueError, TypeError, KeyError):
+            try:
                 stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
                 return TuneResult.from_record(json.loads(hit[0]), stats)
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
-    resolved, _ = resolve_grid(study, grid)
+            except Exception:  # a damaged entry is a miss: dropped, and the job runs again
+                store.discard(JOB_KIND, key)
     own_executor = executor is None
     if executor is None:  # before the (slow) context: a bad cluster address fails at once
         from noiselab.study.executor import make_executor
