@@ -103,4 +103,6 @@ def main(argv: list[str] | None = None) -> None:
             err=True,
         )
         sys.exit(1)
+    if rc == 130:  # typer answers Ctrl-C itself with a silent exit code 130
+        typer.echo("noiselab: interrupted; finished results are kept in the cache", err=True)
     sys.exit(rc if isinstance(rc, int) else 0)

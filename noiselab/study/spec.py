@@ -29,11 +29,9 @@ from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
+from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
-#: Largest noise scale factor of a tune grid (and of extrapolation): beyond about 100 x the
-#: device's noise every circuit is close to fully depolarized, nothing is left to extrapolate.
-MAX_SCALE_FACTOR = 100.0
 #: Most points of one sweep (each point is a full set of simulations).
 MAX_SWEEP_POINTS = 200
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")

@@ -30,9 +30,8 @@ from noiselab.device.profile import (
     MAX_TWO_QUBIT_ERROR,
     MIN_COHERENCE_US,
 )
+from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR as MAX_NOISE_SCALE
 
-#: Largest uniform noise scale of a sweep: beyond, every circuit is close to fully depolarized.
-MAX_NOISE_SCALE = 100.0
 _PROBABILITY = "a probability; larger is not an error rate"
 
 # ---------------------------------------------------------------- knobs
