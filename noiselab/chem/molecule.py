@@ -18,7 +18,7 @@ from typing import Any
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, ValidationInfo, field_validator
 
-from noiselab.common.errors import NoiselabError, ProblemTooLargeError, from_validation_error
+from noiselab.common.errors import InputError, ProblemTooLargeError, from_validation_error
 
 Atom = tuple[str, float, float, float]
 
@@ -32,6 +32,8 @@ MAX_COORDINATE_ANGSTROM = 1000.0
 #: Basis functions of the whole molecule: Hartree-Fock holds about N**4 bytes of two-electron
 #: integrals (500: 62 GB) and any exact reference then needs a small active space anyway.
 MAX_BASIS_FUNCTIONS = 500
+#: Most negative charge: more than 10 extra electrons are not bound by any molecule.
+MIN_CHARGE = -10
 
 
 def _element_numbers() -> dict[str, int]:
@@ -117,7 +119,7 @@ class MoleculeSpec(BaseModel):
 
     geometry: tuple[Atom, ...]
     basis: str = "sto-3g"
-    charge: int = 0
+    charge: int = Field(default=0, ge=MIN_CHARGE)
     spin: int = Field(default=0, ge=0)
     active_space: ActiveSpace | None = None
     symmetry: bool = False
@@ -345,12 +347,16 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
         mf = mf.newton()
         mf.kernel()
     if not mf.converged:
-        raise NoiselabError(
-            "molecule: Hartree-Fock did not converge; check the geometry, charge and spin"
+        raise InputError(
+            "molecule: Hartree-Fock did not converge; allowed: a geometry, charge and spin of a "
+            "bound molecule (check the units, Angstrom, and the spin)"
         )
 
     if int(mf.mo_coeff.shape[1]) < n_core + n_cas:
-        raise NoiselabError("molecule: basis is linearly dependent; fewer orbitals than requested")
+        raise InputError(
+            "molecule.basis: linearly dependent for this geometry (fewer orbitals than "
+            "requested); allowed: a smaller basis or atoms further apart"
+        )
 
     # Doubly occupied first, then singly occupied, then virtual (stable within each class), so the
     # active space starts right after the core and the HF determinant fills its lowest orbitals.

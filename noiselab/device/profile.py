@@ -69,7 +69,8 @@ from pydantic import (
     model_validator,
 )
 
-from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.counts import Count
+from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.device import thermal
 
 SCHEMA_VERSION = 1
@@ -291,7 +292,7 @@ class DeviceProfile(BaseModel):
     schema_version: Literal[1]
     name: str
     description: str = ""
-    qubit_count: StrictInt = Field(ge=1, le=MAX_QUBITS)
+    qubit_count: Count = Field(ge=1, le=MAX_QUBITS)
     links: Literal["all-to-all"] | tuple[tuple[int, int], ...]
     native_gates: NativeGates
     durations: Durations
@@ -305,7 +306,7 @@ class DeviceProfile(BaseModel):
     def _check_name(cls, value: str) -> str:
         if not _NAME_RE.fullmatch(value):
             raise ValueError(
-                f"{value!r} is not a device name; allowed: 1-80 characters, letters, digits, "
+                f"{quote(value)} is not a device name; allowed: 1-80 characters, letters, digits, "
                 "'.', '_' or '-', starting with a letter or digit"
             )
         return value
@@ -316,7 +317,7 @@ class DeviceProfile(BaseModel):
         if isinstance(value, str):
             if value != ALL_TO_ALL:
                 raise ValueError(
-                    f"unknown connectivity {value!r}; allowed: a list of pairs or {ALL_TO_ALL}"
+                    f"unknown connectivity {quote(value)}; allowed: a list of pairs or {ALL_TO_ALL}"
                 )
             return value
         if not isinstance(value, list | tuple):
@@ -330,7 +331,7 @@ class DeviceProfile(BaseModel):
             )
             if not ok:
                 raise ValueError(
-                    f"entry [{i}] is {item!r}; allowed: a pair of qubit indices like [0, 1]"
+                    f"entry [{i}] is {quote(item)}; allowed: a pair of qubit indices like [0, 1]"
                 )
             out.append((int(item[0]), int(item[1])))
         return tuple(out)
@@ -492,6 +493,13 @@ def _check_semantics(p: DeviceProfile) -> None:
                 "a set containing rz and sx (x optional)",
             )
 
+    if p.is_all_to_all and n > MAX_ALL_TO_ALL_QUBITS:
+        raise ProfileCheckError(
+            "links",
+            f"all-to-all on {n} qubits ({n * (n - 1) // 2} pairs)",
+            f"all-to-all on at most {MAX_ALL_TO_ALL_QUBITS} qubits (every pair is routed and "
+            "modelled), or a list of pairs",
+        )
     if not p.is_all_to_all:
         seen: dict[tuple[int, int], int] = {}
         for i, pair in enumerate(p.links):

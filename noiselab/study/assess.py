@@ -17,6 +17,7 @@ from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key,
 from noiselab.study.context import (
     StudyContext,
     build_context,
+    naming_source,
     recipes_verify,
     with_verification,
 )
@@ -182,7 +183,8 @@ def assess(
         ctx = build_context(study, cache=store, progress=progress)
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
-    results = run_recipes(ctx, study.recipes, runner, progress)
+    with naming_source(study.source):
+        results = run_recipes(ctx, study.recipes, runner, progress)
     best = best_of(results)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots

@@ -7,9 +7,10 @@ circuit on the device -> measurement plan -> mitigation's ``ExperimentContext``.
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
 import time
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
 from noiselab.common.errors import InputError, input_error
@@ -140,7 +141,34 @@ def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
     return False
 
 
+@contextlib.contextmanager
+def naming_source(source: object) -> Iterator[None]:
+    """Re-raise a one-line InputError that does not name its file with ``source`` in front
+    (chem, device and mitigation refusals know the key, not the study file)."""
+    try:
+        yield
+    except InputError as exc:
+        head = str(source)
+        if str(exc).startswith(head):
+            raise
+        raise type(exc)(f"{head}: {exc}") from None
+
+
 def build_context(
+    study: Study,
+    *,
+    cache: ResultsCache | None = None,
+    progress: ProgressHook | None = None,
+    verification: bool | None = None,
+) -> StudyContext:
+    """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
+
+    Every refusal names the study file (see :func:`_build_context`)."""
+    with naming_source(study.source):
+        return _build_context(study, cache=cache, progress=progress, verification=verification)
+
+
+def _build_context(
     study: Study,
     *,
     cache: ResultsCache | None = None,

@@ -572,11 +572,16 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
     p = Path(value).expanduser()
     resolved = Path(_normpath(p if p.is_absolute() else study_path.parent / p))
     if not resolved.is_file():
-        what = "is a folder" if resolved.is_dir() else "no such file"
+        if resolved.is_dir():
+            what = "is a folder"
+        elif resolved.exists():
+            what = "is not a regular file (a device, pipe or socket)"
+        else:
+            what = "not found (no such file)"
         raise input_error(
             src,
             "device",
-            f"device profile {resolved} not found ({what})",
+            f"device profile {resolved} {what}",
             "a profile path relative to the study file, or an inline profile mapping",
         )
     return load_profile(resolved), str(resolved)
