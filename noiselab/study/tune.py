@@ -70,6 +70,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     Returns the grid and, per axis, where it came from (for messages: '--fit' or 'tune.fit').
     """
     override = override or GridOverride()
+    _validate_override(override)
     section = study.tune or TuneGrid()
     defaults = {
         "readout": DEFAULT_READOUT,
@@ -98,6 +99,26 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     )
     _check_axes(grid, origin)
     return grid, origin
+
+
+def _validate_override(override: GridOverride) -> None:
+    """Command-line axes through the file's own ``tune:`` model (bounds included); a refused
+    value is named by its option (``--scales``)."""
+    from pydantic import ValidationError
+
+    from noiselab.common.errors import from_validation_error
+
+    given = {
+        axis: list(value)
+        for axis, value in dataclasses.asdict(override).items()
+        if value is not None
+    }
+    try:
+        TuneGrid.model_validate(given)
+    except ValidationError as exc:
+        text = str(from_validation_error(exc, None))
+        axis = text.split(":", 1)[0].split(".")[0].split("[")[0]
+        raise InputError(f"--{axis}: {text.removeprefix(axis).lstrip(':. ')}") from None
 
 
 def check_tune_section(section: TuneGrid, source: str) -> None:
