@@ -459,10 +459,11 @@ def study_from_mapping(
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
 
+    # the device first: reading it is cheap, the molecule's check imports PySCF
+    profile, device_source = _resolve_device(spec.device, src_path)
     from noiselab.chem.molecule import molecule_from_mapping
 
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
-    profile, device_source = _resolve_device(spec.device, src_path)
     num_qubits = logical_qubit_count(molecule, spec.encoding, spec.two_qubit_reduction)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
