@@ -33,7 +33,7 @@ def main() -> None:
         t_problem = time.perf_counter() - t0
         for encoding, reduced in variants:
             t0 = time.perf_counter()
-            qp = encode(prob, encoding, two_qubit_reduction=reduced)
+            qp = encode(prob, encoding, drop_fixed_parity_qubits=reduced)
             t_encode = time.perf_counter() - t0
             circuit = uccsd_circuit(qp)
             summary = circuit_summary(circuit)

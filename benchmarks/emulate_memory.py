@@ -11,10 +11,15 @@ import resource
 import subprocess
 import sys
 import time
+from pathlib import Path
+
+# the hand-built toy device is a test helper (tests/helpers/toy.py)
+sys.path.insert(0, str(Path(__file__).resolve().parents[1] / "tests"))
 
 
 def one(k: int) -> None:
     import numpy as np
+    from helpers.toy import compile_toy, toy_circuit, toy_device
 
     from noiselab.emulate.channels import EffectCache
     from noiselab.emulate.contract import dm_distributions
@@ -23,7 +28,6 @@ def one(k: int) -> None:
         emulate_circuit_bases,
         simulate_density_matrix,
     )
-    from noiselab.emulate.toy import compile_toy, toy_circuit, toy_device
 
     dev = toy_device(k)
     qc = compile_toy(toy_circuit(k, layers=2), dev)

@@ -9,6 +9,7 @@ Benchmarks (targets from the project's "Speed and scale" issue):
   grid      tune over 100 mitigation settings / the most expensive setting alone            <= 1.5
   memory    (peak RSS of a 12-qubit assess - interpreter baseline) / (16 x 4^12 bytes)     <= 3
   scaling   assess wall time against qubit count (4..12), with a figure (PNG + SVG)
+  drift     assess --drift 32 of the demo / a plain assess of the demo (both cold)         <= 6
 
 Results are merged into benchmarks/results/<UTC date>.json (atomic rewrite) and printed.
 ``--quick`` uses smaller problems (for checking the scripts, not for quoting). Not part of the
@@ -472,6 +473,44 @@ def _scaling_figure(rows: list[dict[str, Any]], quick: bool) -> list[str]:
 # --------------------------------------------------------------------------- driver
 
 
+# --------------------------------------------------------------------------- drift
+
+
+def bench_drift(quick: bool) -> dict[str, Any]:
+    """The demo's assess with --drift 32 (8 with --quick) / the demo's plain assess, both from
+    nothing (no cache: problem, optimizer, compile ensemble and bias spread included)."""
+    from noiselab.study.assess import assess, demo_study_path
+
+    draws = 8 if quick else 32
+    path = demo_study_path()
+    assess(path, cache=False)  # imports and first-use set-up out of both timings
+    t = time.perf_counter()
+    plain = assess(path, cache=False)
+    plain_s = time.perf_counter() - t
+    t = time.perf_counter()
+    drifted = assess(path, cache=False, drift=draws)
+    drift_s = time.perf_counter() - t
+    ratio = drift_s / plain_s
+    _say(
+        f"  plain assess {plain_s:.2f} s ({plain.stats.simulations} simulations); "
+        f"--drift {draws}: {drift_s:.2f} s ({drifted.stats.simulations} simulations)"
+    )
+    return {
+        "ratio": ratio,
+        "target": "<= 6",
+        "met": ratio <= 6.0,
+        "draws": draws,
+        "plain_wall_s": plain_s,
+        "plain_simulations": plain.stats.simulations,
+        "drift_wall_s": drift_s,
+        "drift_simulations": drifted.stats.simulations,
+        "notes": [
+            "demo study (4 qubits); both runs without cache, after one warm-up assess",
+            "the plain assess includes the compile ensemble's bias spread (compile.seeds 8)",
+        ],
+    }
+
+
 def _start_profiler() -> Any:
     from pyinstrument import Profiler
 
@@ -496,6 +535,7 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "grid": bench_grid,
     "memory": bench_memory,
     "scaling": bench_scaling,
+    "drift": bench_drift,
 }
 
 

@@ -6,6 +6,7 @@ The public study API (``noiselab.assess`` and friends) is resolved on first use.
 
 from __future__ import annotations
 
+import importlib
 from typing import Any
 
 __version__ = "0.1.0"
@@ -25,7 +26,6 @@ def __getattr__(name: str) -> Any:
     target = _LAZY.get(name)
     if target is None:
         raise AttributeError(f"module 'noiselab' has no attribute {name!r}")
-    import importlib
 
     module_name, attr = target.split(":")
     return getattr(importlib.import_module(module_name), attr)

@@ -9,14 +9,14 @@ import pytest
 from noiselab.study.budget import CHANNELS, BudgetResult, budget
 from noiselab.study.cache import open_cache
 
-# H2 / STO-3G, parity with the two-qubit reduction: 2 qubits (REFERENCES.md); invented chip
+# H2 / STO-3G, parity, fixed parity qubits dropped: 2 qubits (REFERENCES.md); invented chip
 TINY_STUDY = """\
 name: h2-tiny-budget
 molecule:
   geometry: "H 0 0 0; H 0 0 0.735"
   basis: sto-3g
 encoding: parity
-two_qubit_reduction: true
+drop_fixed_parity_qubits: true
 ansatz: {kind: uccsd}
 device:
   schema_version: 1
@@ -26,8 +26,8 @@ device:
   native_gates: {single_qubit: [rz, sx, x], two_qubit: cz}
   durations: {single_qubit_ns: 35, two_qubit_ns: 300, readout_ns: 1500}
   qubits:
-    default: {t1_us: 60, t2_us: 50, gate_error: 1.0e-3, p_read1_prep0: 0.01,
-              p_read0_prep1: 0.03, over_rotation_fraction: 0.01}
+    default: {t1_us: 60, t2_us: 50, gate_error: 1.0e-3, flip_0to1: 0.01,
+              flip_1to0: 0.03, over_rotation_fraction: 0.01}
   couplers:
     default: {gate_error: 2.0e-2, zz_angle_rad: 0.03}
 shots: 50000

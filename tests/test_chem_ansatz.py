@@ -49,7 +49,7 @@ def test_excitation_counts():
 
 @pytest.mark.parametrize(("encoding", "reduced"), VARIANTS)
 def test_uccsd_state_matches_qiskit_statevector(h3, encoding, reduced):
-    qp = encode(h3, encoding, two_qubit_reduction=reduced)
+    qp = encode(h3, encoding, drop_fixed_parity_qubits=reduced)
     qc = uccsd_circuit(qp)
     theta = np.random.default_rng(7).normal(scale=0.4, size=qc.num_parameters)
     ours = compile_statevector(qc).state(theta)
@@ -63,7 +63,7 @@ def test_uccsd_state_matches_qiskit_statevector(h3, encoding, reduced):
 
 @pytest.mark.parametrize(("encoding", "reduced"), VARIANTS)
 def test_uccsd_conserves_number_and_sz(h3, encoding, reduced):
-    qp = encode(h3, encoding, two_qubit_reduction=reduced)
+    qp = encode(h3, encoding, drop_fixed_parity_qubits=reduced)
     qc = uccsd_circuit(qp)
     psi = compile_statevector(qc).state(np.linspace(-0.7, 0.9, qc.num_parameters))
     sv = Statevector(psi)
@@ -125,7 +125,7 @@ def test_layered_circuit_structure():
 
 
 def test_uccsd_summary_counts_cnots(h2):
-    qp = encode(h2, "parity", two_qubit_reduction=True)
+    qp = encode(h2, "parity", drop_fixed_parity_qubits=True)
     summary = circuit_summary(uccsd_circuit(qp))
     assert summary["num_parameters"] == 3
     assert summary["num_qubits"] == 2

@@ -62,7 +62,7 @@ def _pyscf_reference(name: str) -> tuple[float, float]:
 @pytest.mark.parametrize(("encoding", "reduced"), VARIANTS)
 def test_sector_energy_and_hf_match_pyscf(problems, name, encoding, reduced):
     prob = problems[name]
-    qp = encode(prob, encoding, two_qubit_reduction=reduced)
+    qp = encode(prob, encoding, drop_fixed_parity_qubits=reduced)
     e_hf, e_exact = _pyscf_reference(name)
     # source: PySCF FCI / mcscf.CASCI and (RO)HF on the same molecule
     assert sector_ground_energy(qp) == pytest.approx(e_exact, abs=1e-8)
@@ -76,7 +76,7 @@ def test_sector_energy_and_hf_match_pyscf(problems, name, encoding, reduced):
 def test_number_and_sz_commute_with_h_and_fix_hf(problems, encoding, reduced):
     for name in ("h2", "h3_doublet", "lih_2e3o"):
         prob = problems[name]
-        qp = encode(prob, encoding, two_qubit_reduction=reduced)
+        qp = encode(prob, encoding, drop_fixed_parity_qubits=reduced)
         h = qp.hamiltonian
         for op in (qp.number_op, qp.sz_op):
             # [H, O] = 0 as operators (qiskit.quantum_info algebra)
@@ -107,16 +107,16 @@ def test_z2_symmetries_commute_and_hold_on_hf(problems, encoding):
 
 
 def test_reduced_parity_has_no_symmetries_left(problems):
-    qp = encode(problems["h2"], "parity", two_qubit_reduction=True)
+    qp = encode(problems["h2"], "parity", drop_fixed_parity_qubits=True)
     assert qp.symmetries == ()
     assert qp.removed_qubits == (1, 3)
 
 
 def test_h2_term_counts(problems):
     # H2/STO-3G: 15 Pauli terms on 4 qubits in Jordan-Wigner; 5 terms (I, Z0, Z1, Z0Z1, X0X1) on
-    # 2 qubits after the parity two-qubit reduction (from memory; common in VQE papers)
+    # 2 qubits once parity drops its two fixed qubits (from memory; common in VQE papers)
     jw = encode(problems["h2"], "jordan_wigner")
-    red = encode(problems["h2"], "parity", two_qubit_reduction=True)
+    red = encode(problems["h2"], "parity", drop_fixed_parity_qubits=True)
     assert (jw.num_qubits, len(jw.hamiltonian)) == (4, 15)
     assert (red.num_qubits, len(red.hamiltonian)) == (2, 5)
     assert sorted(red.hamiltonian.paulis.to_labels()) == ["II", "IZ", "XX", "ZI", "ZZ"]
@@ -207,6 +207,6 @@ def test_lih_full_space_term_count():
 )
 def test_bad_encoding_is_input_error(problems, encoding, reduced):
     with pytest.raises(InputError) as info:
-        encode(problems["h2"], encoding, two_qubit_reduction=reduced)
+        encode(problems["h2"], encoding, drop_fixed_parity_qubits=reduced)
     msg = str(info.value)
     assert msg.startswith("encoding:") and "allowed:" in msg and "\n" not in msg

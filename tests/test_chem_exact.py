@@ -54,7 +54,7 @@ def test_sector_restriction_matters_for_a_cation():
 
 
 def test_diagonal_values_match_dense_diagonal(lih_full):
-    qp = encode(lih_full, "parity", two_qubit_reduction=True)
+    qp = encode(lih_full, "parity", drop_fixed_parity_qubits=True)
     dense = qp.number_op.to_matrix(sparse=True).diagonal().real
     # qiskit.quantum_info SparsePauliOp.to_matrix as the reference
     assert np.allclose(diagonal_values(qp.number_op), dense)

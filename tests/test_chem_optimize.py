@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import json
+
 import numpy as np
 import pytest
 
@@ -21,7 +23,7 @@ def h2():
 def test_uccsd_reaches_h2_fci(h2, encoding, reduced):
     from pyscf import fci, gto, scf
 
-    qp = encode(h2, encoding, two_qubit_reduction=reduced)
+    qp = encode(h2, encoding, drop_fixed_parity_qubits=reduced)
     res = optimize_noiseless(qp, uccsd_circuit(qp))
     mol = gto.M(atom="H 0 0 0; H 0 0 0.7414", basis="sto-3g", verbose=0)
     e_fci = fci.FCI(scf.RHF(mol).run(conv_tol=1e-12)).kernel()[0]
@@ -47,7 +49,7 @@ def test_uccsd_two_electron_active_space_is_exact():
 
 
 def test_layered_circuit_is_variational(h2):
-    qp = encode(h2, "parity", two_qubit_reduction=True)
+    qp = encode(h2, "parity", drop_fixed_parity_qubits=True)
     h_full_min = np.linalg.eigvalsh(qp.hamiltonian.to_matrix())[0]
     # numpy eigvalsh: for H2 the neutral singlet is the lowest state of the whole qubit space,
     # so any state's energy is bounded below by the sector energy (variational principle)
@@ -74,3 +76,151 @@ def test_bad_optimizer_options(h2):
         optimize_noiseless(qp, qc, initial=np.zeros(5))
     with pytest.raises(InputError, match="ansatz"):
         optimize_noiseless(qp, layered_circuit(3, 1))
+
+
+# ---- trustworthy optimum: stationary starts replaced, adaptive starts, warnings
+
+LAYERED_H2_STUDY = {
+    "name": "layered-h2",
+    "molecule": {"geometry": "H 0 0 0; H 0 0 0.7414", "basis": "sto-3g"},
+    "encoding": "jordan_wigner",
+    "ansatz": {"kind": "layered", "layers": 2},
+    "device": {
+        "schema_version": 1,
+        "name": "test-chip",
+        "qubit_count": 4,
+        "links": [[0, 1], [1, 2], [2, 3]],
+        "native_gates": {"single_qubit": ["rz", "sx", "x"], "two_qubit": "cz"},
+        "durations": {"single_qubit_ns": 35, "two_qubit_ns": 300, "readout_ns": 1500},
+        "qubits": {
+            "default": {
+                "t1_us": 100,
+                "t2_us": 90,
+                "gate_error": 3.0e-4,
+                "flip_0to1": 0.015,
+                "flip_1to0": 0.03,
+            }
+        },
+        "couplers": {"default": {"gate_error": 8.0e-3}},
+    },
+    "shots": 100000,
+    "recipes": {"raw": []},
+}
+
+
+def _pyscf_fci(atom: str) -> float:
+    from pyscf import fci, gto, scf
+
+    mol = gto.M(atom=atom, basis="sto-3g", verbose=0)
+    return float(fci.FCI(scf.RHF(mol).run(conv_tol=1e-12)).kernel()[0])
+
+
+def test_layered_h2_study_reaches_fci_for_every_seed(h2):
+    from noiselab.study.context import ansatz_circuit, optimize, optimum_checks
+    from noiselab.study.spec import study_from_mapping
+
+    e_fci = _pyscf_fci("H 0 0 0; H 0 0 0.7414")
+    qp = encode(h2, "jordan_wigner")
+    reached = 0
+    for seed in range(8):
+        data = {**LAYERED_H2_STUDY, "seed": 100 + seed}
+        data["ansatz"] = {**data["ansatz"], "start_seed": seed}
+        study = study_from_mapping(data, "layered-h2.yaml")
+        res = optimize(study, qp, ansatz_circuit(study, qp), cache=None)
+        # source: PySCF FCI (two electrons, 2 layers of the layered circuit span the ground state)
+        reached += abs(res.energy_ha - e_fci) < 1e-6
+        exact_s2, warnings = optimum_checks(study, qp, res)
+        assert warnings == ()
+        # source: PySCF fci spin_square of the H2 ground state is 0 (tests/test_chem_spin.py)
+        assert abs(res.spin_squared - exact_s2) < 1e-4
+    assert reached == 8
+
+
+def test_stationary_start_is_replaced_and_single_starts_are_flagged(h2):
+    from noiselab.chem.optimize import optimum_warnings
+    from noiselab.chem.statevector import compile_statevector
+
+    qp = encode(h2, "jordan_wigner")
+    qc = layered_circuit(qp.num_qubits, 2, initial_bitstring=qp.hf_bitstring)
+    hmat = qp.hamiltonian.to_matrix(sparse=True)
+    e0, g0 = compile_statevector(qc).expectation_and_gradient(hmat, np.zeros(qc.num_parameters))
+    # all-zero parameters: the Hartree-Fock state (PySCF's RHF energy) with zero gradient
+    assert e0 == pytest.approx(h2.hf_energy_ha, abs=1e-10)
+    assert np.max(np.abs(g0)) < 1e-12
+    stuck = 0
+    for seed in range(8):
+        one = optimize_noiseless(qp, qc, starts=1, max_starts=1, seed=seed)
+        assert one.replaced_starts == 1 and one.starts == 1
+        warnings = optimum_warnings(one, qp, 1.5936, 0.0)
+        if abs(one.energy_ha - h2.hf_energy_ha) < 1e-6:
+            stuck += 1
+            assert any("Hartree-Fock" in w for w in warnings)
+        else:
+            assert one.energy_ha == pytest.approx(h2.exact_energy_ha, abs=1e-6)
+    assert stuck >= 1  # a single start does fall back to Hartree-Fock: the case to detect
+
+
+def test_optimum_warnings_name_each_failure(h2):
+    from noiselab.chem.optimize import OptimizationResult, optimum_warnings
+
+    qp = encode(h2, "jordan_wigner")
+
+    def result(energy: float, spread: float | None, s2: float) -> OptimizationResult:
+        return OptimizationResult(
+            parameters=np.zeros(3),
+            energy_ha=energy,
+            ansatz_error_mha=(energy - qp.exact_energy_ha) * 1000,
+            n_evaluations=1,
+            converged=True,
+            starts=4,
+            start_energies_ha=(energy,),
+            seconds=0.0,
+            method="BFGS",
+            spread_mha=spread,
+            spin_squared=s2,
+        )
+
+    assert optimum_warnings(result(qp.exact_energy_ha, 30.0, 0.0), qp, 1.6, 0.0) == ()
+    mid = qp.exact_energy_ha + 0.005
+    (w,) = optimum_warnings(result(mid, 2.0, 0.0), qp, 1.6, 0.0)
+    assert "two lowest of 4 starts differ by 2 mHa" in w
+    assert optimum_warnings(result(mid, 1.0, 0.0), qp, 1.6, 0.0) == ()
+    (w,) = optimum_warnings(result(qp.hf_energy_ha, 0.0, 0.0), qp, 1.6, 0.0)
+    assert "Hartree-Fock" in w
+    (w,) = optimum_warnings(result(mid, 0.0, 2.0), qp, 1.6, 0.0)
+    assert "<S^2> is 2.000" in w and "0.000" in w
+    assert optimum_warnings(result(mid, 0.0, 2.0), qp, 1.6, None) == ()
+    (w,) = optimum_warnings(result(qp.exact_energy_ha - 0.01, 0.0, 0.0), qp, 1.6, 0.0)
+    assert "10 mHa below the exact energy" in w and "left that sector" in w
+
+
+def test_stuck_optimum_is_warned_in_json_table_and_verdict(tmp_path, capsys) -> None:
+    import yaml
+
+    from noiselab.cli.app import main
+    from noiselab.study.context import ansatz_circuit, optimize
+    from noiselab.study.spec import study_from_mapping
+
+    data = {**LAYERED_H2_STUDY, "ansatz": {"kind": "layered", "layers": 2, "starts": 1}}
+    study = study_from_mapping(data, "x.yaml")
+    qp = encode(compute_problem(study.molecule), "jordan_wigner")
+    for seed in range(16):  # a start seed whose single start falls back to Hartree-Fock
+        data["ansatz"] = {**data["ansatz"], "max_starts": 1, "start_seed": seed}
+        study = study_from_mapping(data, "x.yaml")
+        res = optimize(study, qp, ansatz_circuit(study, qp), cache=None)
+        if abs(res.energy_ha - qp.hf_energy_ha) < 1e-6:
+            break
+    else:
+        pytest.skip("no single start stopped at Hartree-Fock")
+    path = tmp_path / "stuck.yaml"
+    path.write_text(yaml.safe_dump(data), encoding="utf-8")
+    with pytest.raises(SystemExit) as info:
+        main(["assess", str(path), "--json", "--no-cache"])
+    assert info.value.code in (0, None)
+    out = json.loads(capsys.readouterr().out)
+    assert any("Hartree-Fock" in w for w in out["warnings"])
+    assert "Caveat: the noiseless optimum is in doubt" in out["verdict"]
+    with pytest.raises(SystemExit):
+        main(["assess", str(path), "--no-cache", "-q"])
+    text = capsys.readouterr().out
+    assert "Warning: optimizer: the noiseless optimum equals the Hartree-Fock energy" in text

@@ -28,7 +28,7 @@ molecule:
   geometry: "H 0 0 0; H 0 0 0.735"
   basis: sto-3g
 encoding: parity
-two_qubit_reduction: true
+drop_fixed_parity_qubits: true
 ansatz: {{kind: uccsd}}
 device: {DEVICE}
 shots: 1e5

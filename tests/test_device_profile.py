@@ -44,11 +44,11 @@ def base_mapping() -> dict:
                 "t1_us": 100,
                 "t2_us": 80,
                 "gate_error": 3e-4,
-                "p_read1_prep0": 0.015,
-                "p_read0_prep1": 0.03,
+                "flip_0to1": 0.015,
+                "flip_1to0": 0.03,
                 "over_rotation_fraction": 0.002,
             },
-            "overrides": {1: {"t1_us": 70, "t2_us": 60, "p_read0_prep1": 0.05}},
+            "overrides": {1: {"t1_us": 70, "t2_us": 60, "flip_1to0": 0.05}},
         },
         "couplers": {
             "default": {"gate_error": 8e-3, "zz_angle_rad": 0.01},
@@ -95,8 +95,8 @@ def test_typical_device_uses_every_optional_term():
 
 def test_qubit_resolution_merges_override(profile: DeviceProfile):
     q1 = profile.qubit(1)
-    assert (q1.t1_us, q1.t2_us, q1.p_read0_prep1) == (70, 60, 0.05)
-    assert q1.gate_error == 3e-4 and q1.p_read1_prep0 == 0.015  # from the default
+    assert (q1.t1_us, q1.t2_us, q1.flip_1to0) == (70, 60, 0.05)
+    assert q1.gate_error == 3e-4 and q1.flip_0to1 == 0.015  # from the default
     assert profile.qubit(0).t1_us == 100
 
 
@@ -156,7 +156,7 @@ def test_scale_zero_is_noiseless(profile: DeviceProfile):
     for q in range(s.qubit_count):
         qp = s.qubit(q)
         assert qp.t1_us is None and qp.t2_us is None
-        assert qp.gate_error == qp.p_read1_prep0 == qp.p_read0_prep1 == 0.0
+        assert qp.gate_error == qp.flip_0to1 == qp.flip_1to0 == 0.0
         assert qp.over_rotation_fraction == 0.0
     for a, b in s.pairs():
         assert s.pair(a, b).gate_error == 0.0 and s.pair(a, b).zz_angle_rad == 0.0
@@ -178,10 +178,10 @@ def test_scale_relaxation_divides_times_only(profile: DeviceProfile):
         a, b = profile.qubit(q), s.qubit(q)
         assert b.t1_us == pytest.approx(a.t1_us / 2.5)
         assert b.t2_us == pytest.approx(a.t2_us / 2.5)
-        assert (b.gate_error, b.p_read1_prep0, b.p_read0_prep1) == (
+        assert (b.gate_error, b.flip_0to1, b.flip_1to0) == (
             a.gate_error,
-            a.p_read1_prep0,
-            a.p_read0_prep1,
+            a.flip_0to1,
+            a.flip_1to0,
         )
     assert s.pair_error(1, 2) == profile.pair_error(1, 2)
 
@@ -197,7 +197,7 @@ def test_scale_touches_only_its_channel(profile: DeviceProfile, channel: str):
         "two_qubit": ps.gate_error != p0.gate_error,
         "coherent": s0.over_rotation_fraction != q0.over_rotation_fraction
         or ps.zz_angle_rad != p0.zz_angle_rad,
-        "readout": s0.p_read0_prep1 != q0.p_read0_prep1 or s.joint_flip(0, 1) != 0.004,
+        "readout": s0.flip_1to0 != q0.flip_1to0 or s.joint_flip(0, 1) != 0.004,
     }
     assert [k for k, v in changed.items() if v] == [channel]
 
@@ -206,7 +206,7 @@ def test_scale_clips_at_physical_maximum(profile: DeviceProfile):
     s = scale_profile(profile, 1e4)
     assert s.qubit(0).gate_error == 0.5  # full single-qubit depolarization: r = 1/2
     assert s.pair_error(0, 1) == 0.75  # full two-qubit depolarization: r = 3/4
-    assert s.qubit(1).p_read0_prep1 == 0.5
+    assert s.qubit(1).flip_1to0 == 0.5
     assert abs(s.pair(0, 1).zz_angle_rad) <= math.pi
 
 
@@ -402,7 +402,7 @@ def test_fuzz_scale_stays_valid(factor, channels):
     s = scale_profile(base, factor, sorted(channels))
     for q in range(s.qubit_count):
         qp = s.qubit(q)
-        assert 0 <= qp.gate_error <= 0.5 and 0 <= qp.p_read0_prep1 <= 0.5
+        assert 0 <= qp.gate_error <= 0.5 and 0 <= qp.flip_1to0 <= 0.5
         if qp.t1_us is not None:
             # source: Nielsen & Chuang sec. 8.3 (T2 <= 2 T1 survives scaling)
             assert qp.t2_us <= 2 * qp.t1_us * (1 + 1e-12)

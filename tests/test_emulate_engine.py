@@ -7,10 +7,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.toy import compile_toy, toy_circuit, toy_device
 
 from noiselab.common.errors import InputError
 from noiselab.emulate.engine import BasisDistributions, emulate_bases, emulate_circuit_bases
-from noiselab.emulate.toy import compile_toy, toy_circuit, toy_device
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 
@@ -199,9 +199,7 @@ def _kron_readout(prof: object, comp: object) -> np.ndarray:
     for q in phys:
         qp = prof.qubit(q)  # type: ignore[attr-defined]
         # source: REFERENCES.md readout (columns are the prepared state)
-        a = np.array(
-            [[1 - qp.p_read1_prep0, qp.p_read0_prep1], [qp.p_read1_prep0, 1 - qp.p_read0_prep1]]
-        )
+        a = np.array([[1 - qp.flip_0to1, qp.flip_1to0], [qp.flip_0to1, 1 - qp.flip_1to0]])
         m = np.kron(a, m)
     n = len(phys)
     idx = np.arange(2**n)
@@ -351,8 +349,8 @@ def test_noise_model_built_once_per_profile_and_patch(
     import noiselab.device.noise as noise
     from noiselab.device.compile import compile_to_device
     from noiselab.device.profile import load_profile, scale_profile
-    from noiselab.emulate import engine
-    from noiselab.emulate.readout import calibration_distributions
+    from noiselab.emulate import device_inputs
+    from noiselab.emulate.calibration import calibration_distributions
 
     prof = load_profile(DEVICES / "rustbucket-6.yaml")
     comp = compile_to_device(h2["bound"], prof)
@@ -363,8 +361,8 @@ def test_noise_model_built_once_per_profile_and_patch(
         builds.append((profile, tuple(patch)))  # type: ignore[arg-type]
         return original(profile, patch, **kw)  # type: ignore[arg-type]
 
-    monkeypatch.setattr(noise, "build_noise_model", counting)
-    monkeypatch.setattr(engine, "_NOISE_MODELS", {})
+    monkeypatch.setattr(device_inputs, "build_noise_model", counting)
+    monkeypatch.setattr(device_inputs, "_NOISE_MODELS", {})
     a = emulate_bases(comp, prof, ["ZZZZ", "XXYY"])
     calibration_distributions(prof, comp.patch, "per_qubit", measured=comp.logical_to_circuit)
     b = emulate_bases(comp, load_profile(DEVICES / "rustbucket-6.yaml"), ["ZZZZ", "XXYY"])

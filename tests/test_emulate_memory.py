@@ -5,6 +5,7 @@ from __future__ import annotations
 from pathlib import Path
 
 import pytest
+from helpers.toy import toy_device
 
 from noiselab.common.errors import ProblemTooLargeError
 from noiselab.emulate.engine import emulate_circuit_bases
@@ -14,7 +15,6 @@ from noiselab.emulate.memory import (
     check_memory,
     estimate_memory_bytes,
 )
-from noiselab.emulate.toy import toy_device
 
 
 def test_estimate_covers_the_density_matrix() -> None:

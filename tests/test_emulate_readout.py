@@ -8,12 +8,8 @@ import numpy as np
 import pytest
 
 from noiselab.common.errors import InputError
-from noiselab.emulate.readout import (
-    apply_readout,
-    assignment_matrix,
-    calibration_distributions,
-    calibration_states,
-)
+from noiselab.emulate.calibration import calibration_distributions, calibration_states
+from noiselab.emulate.readout import apply_readout, assignment_matrix
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 
@@ -67,7 +63,7 @@ def test_crosstalk_equals_device_dense_reference() -> None:
     """Against the device layer's dense transfer matrix (its own implementation)."""
     from noiselab.device.noise import readout_transfer_matrix
     from noiselab.device.profile import load_profile
-    from noiselab.emulate.engine import logical_readout
+    from noiselab.emulate.device_inputs import logical_readout
 
     prof = load_profile(DEVICES / "rustbucket-6.yaml")
     patch = (0, 1, 2, 3, 4, 5)
@@ -120,7 +116,7 @@ def test_calibration_without_gate_noise_is_the_assignment_columns() -> None:
     a = []
     for q in patch:
         qp = prof.qubit(q)
-        a.append(assignment_matrix(qp.p_read1_prep0, qp.p_read0_prep1))
+        a.append(assignment_matrix(qp.flip_0to1, qp.flip_1to0))
     for s in range(8):
         # source: REFERENCES.md readout; pair (2, 3) joint flip added by hand (profile docstring)
         col = np.kron(a[2][:, (s >> 2) & 1], np.kron(a[1][:, (s >> 1) & 1], a[0][:, s & 1]))
@@ -152,8 +148,8 @@ def test_calibration_prep_noise_against_quantum_info() -> None:
     np.testing.assert_allclose(cal.probs_ideal[1], ideal, atol=1e-12)
     assert cal.probs_ideal[1][3] < 1.0  # the state-preparation error is visible
     np.testing.assert_allclose(cal.probs_ideal[0], [1, 0, 0, 0], atol=1e-12)  # relax to |0>
-    a0 = assignment_matrix(prof.qubit(0).p_read1_prep0, prof.qubit(0).p_read0_prep1)
-    a1 = assignment_matrix(prof.qubit(1).p_read1_prep0, prof.qubit(1).p_read0_prep1)
+    a0 = assignment_matrix(prof.qubit(0).flip_0to1, prof.qubit(0).flip_1to0)
+    a1 = assignment_matrix(prof.qubit(1).flip_0to1, prof.qubit(1).flip_1to0)
     c = prof.joint_flip(0, 1)
     noisy = np.kron(a1, a0) @ ideal
     expected = (1 - c) * noisy + c * noisy[np.arange(4) ^ 3]

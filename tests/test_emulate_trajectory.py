@@ -7,12 +7,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from helpers.toy import compile_toy, toy_circuit, toy_device
 
 from noiselab.emulate.channels import EffectCache
 from noiselab.emulate.contract import dm_distributions, effect_rotation, sv_batch_mean_distributions
 from noiselab.emulate.engine import _basis_tables, emulate_bases, emulate_circuit_bases
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
-from noiselab.emulate.toy import compile_toy, toy_circuit, toy_device
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 

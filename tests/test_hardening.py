@@ -30,7 +30,7 @@ molecule:
   geometry: "H 0 0 0; H 0 0 0.735"
   basis: sto-3g
 encoding: parity
-two_qubit_reduction: true
+drop_fixed_parity_qubits: true
 ansatz: {kind: uccsd}
 device: DEVICE
 shots: 1.0e+5
@@ -431,8 +431,8 @@ def test_profile_warns_about_typos() -> None:
                 "t1_us": 100,
                 "t2_us": 199.5,
                 "gate_error": 3e-4,
-                "p_read1_prep0": 0.01,
-                "p_read0_prep1": 0.02,
+                "flip_0to1": 0.01,
+                "flip_1to0": 0.02,
             }
         },
         "couplers": {"default": {"gate_error": 0.5}},

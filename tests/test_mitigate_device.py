@@ -10,14 +10,14 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from noiselab.mitigate.folding import fold_global, fold_two_qubit
+from noiselab.mitigate.folding import two_qubit_gate_folding, whole_circuit_folding
 from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
 
 ROOT = Path(__file__).resolve().parents[1]
 TYPICAL = ROOT / "configs" / "devices" / "amberline-10.yaml"  # "typical current" invented chip
 
 
-def test_global_folding_multiplies_the_depolarizing_exponent():
+def test_whole_circuit_folding_multiplies_the_depolarizing_exponent():
     from qiskit import QuantumCircuit
     from qiskit.quantum_info import DensityMatrix, Pauli, Statevector
     from qiskit_aer import AerSimulator
@@ -37,7 +37,7 @@ def test_global_folding_multiplies_the_depolarizing_exponent():
     sim = AerSimulator(method="density_matrix", noise_model=nm)
     ideal = Statevector(qc)
     for scale in (1, 3, 5):
-        folded = fold_global(qc, scale).circuit
+        folded = whole_circuit_folding(qc, scale).circuit
         noisy_gates = sum(1 for i in folded.data if i.operation.name in ("sx", "x"))
         assert noisy_gates == n_noisy * scale
         run = folded.copy()
@@ -61,15 +61,15 @@ def test_partial_folds_reach_the_nearest_gate_count():
         qc.cz(0, 1)
         qc.rz(0.3, 1)
     d = len(qc.data)
-    res = fold_global(qc, 1.4)
+    res = whole_circuit_folding(qc, 1.4)
     # gates after partial folding = d + 2 round((c-1) d / 2) (Giurgica-Tiron et al. 2020)
     assert len(res.circuit.data) == d + 2 * round(0.4 * d / 2)
     assert res.actual_scale == pytest.approx((d + 2 * 3) / d)
-    two = fold_two_qubit(qc, 1.8)  # 5 cz -> 5 + 2 round(0.8 * 5 / 2) = 9
+    two = two_qubit_gate_folding(qc, 1.8)  # 5 cz -> 5 + 2 round(0.8 * 5 / 2) = 9
     assert sum(1 for i in two.circuit.data if i.operation.name == "cz") == 9
     assert len(two.circuit.data) == d + 4
     # folding never changes the unitary (source: qiskit.quantum_info Operator, up to phase)
-    for c in (res.circuit, two.circuit, fold_two_qubit(qc, 3).circuit):
+    for c in (res.circuit, two.circuit, two_qubit_gate_folding(qc, 3).circuit):
         assert Operator(c).equiv(Operator(qc))
 
 
@@ -96,7 +96,7 @@ def h2_device():
 
 @pytest.fixture(scope="module")
 def h2_ctx(h2_device):
-    from noiselab.mitigate.recipe import build_context, make_runner
+    from noiselab.mitigate.experiment import build_context, make_runner
 
     qp, opt, profile, compiled = h2_device
     ctx = build_context(qp, compiled, profile, ansatz_energy_ha=opt.energy_ha, shots=100_000)
@@ -144,7 +144,8 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
     from noiselab.device.compile import compile_to_device
     from noiselab.device.profile import scale_profile
     from noiselab.mitigate.base import Workspace, raw_distribution
-    from noiselab.mitigate.recipe import build_context, make_calibrator, make_runner, run_recipe
+    from noiselab.mitigate.experiment import build_context, make_calibrator, make_runner
+    from noiselab.mitigate.recipe import run_recipe
     from noiselab.mitigate.registry import make_pass
 
     qp, opt, profile, compiled = h2_device
@@ -178,20 +179,23 @@ def test_readout_only_profile_is_corrected_exactly(h2_device):
         b: raw_distribution(("meas", CircuitVariant(), b), d.probs[i])
         for i, b in enumerate(d.bases)
     }
-    out = p.correct(CircuitVariant(), data, ws)
+    out = p.correct(CircuitVariant(), data, ws).data
     for i, b in enumerate(d.bases):
         # source: emulate's distribution before readout error
         assert np.max(np.abs(out[b].probs - d.probs_ideal[i])) < 1e-10
 
 
 def test_folded_variants_in_native_gates(h2_ctx):
-    from noiselab.mitigate.recipe import run_recipe, variant_inputs
+    from noiselab.mitigate.experiment import variant_inputs
+    from noiselab.mitigate.recipe import run_recipe
 
     ctx, runner = h2_ctx
     n2 = ctx.compiled.two_qubit_count
-    two, _, reached = variant_inputs(ctx, CircuitVariant(fold_method="two_qubit", fold_scale=3))
+    two, _, reached = variant_inputs(
+        ctx, CircuitVariant(fold_method="two_qubit_gates", fold_scale=3)
+    )
     assert two.two_qubit_count == 3 * n2 and reached == 3.0
-    whole, _, _ = variant_inputs(ctx, CircuitVariant(fold_method="global", fold_scale=3))
+    whole, _, _ = variant_inputs(ctx, CircuitVariant(fold_method="whole_circuit", fold_scale=3))
     assert whole.two_qubit_count == 3 * n2
     assert whole.duration_ns > 2.5 * ctx.compiled.duration_ns  # re-scheduled, idle time included
     natives = set(ctx.profile.single_qubit_gates) | {ctx.profile.two_qubit_gate, "delay"}
@@ -220,7 +224,7 @@ def test_folded_variants_in_native_gates(h2_ctx):
 
 
 def test_variant_key_material_separates_simulations(h2_ctx):
-    from noiselab.mitigate.recipe import variant_key_material
+    from noiselab.mitigate.experiment import variant_key_material
 
     ctx, _ = h2_ctx
     base = variant_key_material(ctx, CircuitVariant())
@@ -228,7 +232,7 @@ def test_variant_key_material_separates_simulations(h2_ctx):
     stretched = variant_key_material(
         ctx, CircuitVariant(noise_scale=2.0, scaled_channels=STRETCH_CHANNELS)
     )
-    folded = variant_key_material(ctx, CircuitVariant(fold_method="global", fold_scale=3))
+    folded = variant_key_material(ctx, CircuitVariant(fold_method="whole_circuit", fold_scale=3))
     dump = [json.dumps(m, sort_keys=True) for m in (base, same, stretched, folded)]
     assert dump[0] == dump[1]
     assert len(set(dump[1:])) == 3

@@ -4,27 +4,29 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
-from hypothesis import strategies as st
-from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevector
-
-from noiselab.common.errors import InputError
-from noiselab.mitigate.passes.extrapolate import (
-    exponential_fit,
-    polynomial_coefficients,
-    richardson_coefficients,
-)
-from noiselab.mitigate.passes.readout import apply_per_qubit, project_to_simplex
-from noiselab.mitigate.plan import build_plan
-from noiselab.mitigate.recipe import ExperimentContext, run_recipe
-from noiselab.mitigate.registry import make_pass
-from noiselab.mitigate.synthetic import (
+from helpers.synthetic import (
     assignment_matrix,
     depolarized,
     full_readout_matrix,
     make_synthetic_calibrator,
     make_synthetic_runner,
 )
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from qiskit.quantum_info import DensityMatrix, Operator, SparsePauliOp, Statevector
+
+from noiselab.common.errors import InputError
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.fits import (
+    exponential_fit,
+    fit_through,
+    polynomial_coefficients,
+    richardson_coefficients,
+)
+from noiselab.mitigate.passes.readout import apply_per_qubit, project_to_simplex
+from noiselab.mitigate.plan import build_plan
+from noiselab.mitigate.recipe import run_recipe
+from noiselab.mitigate.registry import make_pass
 
 P_GATE = 0.03  # depolarizing strength per unit noise scale of the synthetic model
 
@@ -98,13 +100,13 @@ def setup(h2, ground, readout_matrix):
 def test_richardson_exact_for_polynomials_below_m(m, seed):
     rng = np.random.default_rng(seed)
     scales = np.sort(rng.choice(np.arange(10, 60), size=m, replace=False) / 10.0)
-    gamma = richardson_coefficients(scales)
+    weights = richardson_coefficients(scales)
     # source: textbook Lagrange interpolation: the interpolant through m points evaluated at 0
-    assert gamma.sum() == pytest.approx(1.0, abs=1e-8)
+    assert weights.sum() == pytest.approx(1.0, abs=1e-8)
     for degree in range(m):
         coeffs = rng.normal(size=degree + 1)
         values = np.polynomial.polynomial.polyval(scales, coeffs)
-        assert gamma @ values == pytest.approx(coeffs[0], abs=1e-7 * (1 + np.abs(coeffs).sum()))
+        assert weights @ values == pytest.approx(coeffs[0], abs=1e-7 * (1 + np.abs(coeffs).sum()))
 
 
 def test_polynomial_fit_and_linear_are_least_squares():
@@ -119,20 +121,49 @@ def test_exponential_fit_recovers_an_exponential():
     scales = np.array([1.0, 2.0, 3.0, 4.0])
     a, b, k = -0.5, -0.6, 0.35
     y = a + b * np.exp(-k * scales)
-    value, gamma, params = exponential_fit(scales, y)
+    value, weights, params = exponential_fit(scales, y)
     assert value == pytest.approx(a + b, abs=1e-7)  # closed form: E(0) = a + b
     assert params[2] == pytest.approx(k, rel=1e-5)
-    # first-order: a small change of the data moves E(0) by gamma . dy (delta method)
+    # first-order: a small change of the data moves E(0) by weights . dy (delta method)
     dy = 1e-6 * np.array([1.0, -2.0, 0.5, 1.0])
     v2, _, _ = exponential_fit(scales, y + dy)
-    assert v2 - value == pytest.approx(gamma @ dy, rel=1e-3, abs=1e-12)
+    assert v2 - value == pytest.approx(weights @ dy, rel=1e-3, abs=1e-12)
 
 
 def test_exponential_fit_falls_back_on_straight_lines():
-    p = make_pass({"pass": "extrapolate", "fit": "exponential"})
-    _, gamma, info = p.coefficients(np.array([1.0, 2.0, 3.0]), np.array([1.0, 2.0, 3.0]))
-    assert "fit_warning" in info
-    assert gamma @ np.array([1.0, 2.0, 3.0]) == pytest.approx(0.0, abs=1e-12)  # the line at zero
+    fit = fit_through("exponential", None, np.array([1.0, 2.0, 3.0]), np.array([1.0, 2.0, 3.0]))
+    assert fit.warning and "linear fit used" in fit.warning
+    assert fit.weights @ np.array([1.0, 2.0, 3.0]) == pytest.approx(0.0, abs=1e-12)  # the line at 0
+    # the curve the fit reports is the line it used
+    assert fit.curve(np.array([0.0, 4.0])) == pytest.approx([0.0, 4.0], abs=1e-12)
+
+
+@pytest.mark.parametrize(
+    ("fit", "degree"), [("richardson", None), ("linear", None), ("polynomial", 2)]
+)
+def test_fitted_curve_is_the_fit_and_meets_its_zero_noise_value(fit, degree):
+    scales = np.array([1.0, 1.7, 2.5, 3.0])
+    y = np.array([0.31, 0.52, 0.47, 0.93])
+    zfit = fit_through(fit, degree, scales, y)
+    xs = np.linspace(0.0, 3.0, 7)
+    deg = {"richardson": len(scales) - 1, "linear": 1, "polynomial": 2}[fit]
+    # source: numpy.polynomial.polynomial.polyfit (least squares; interpolation at degree m-1)
+    expected = np.polynomial.polynomial.polyval(
+        xs, np.polynomial.polynomial.polyfit(scales, y, deg)
+    )
+    assert zfit.curve(xs) == pytest.approx(expected, abs=1e-9)
+    assert zfit.curve(np.array([0.0]))[0] == pytest.approx(zfit.weights @ y, abs=1e-12)
+
+
+def test_exponential_curve_is_the_fitted_exponential():
+    scales = np.array([1.0, 2.0, 3.0, 4.0])
+    a, b, k = -0.5, -0.6, 0.35
+    zfit = fit_through("exponential", None, scales, a + b * np.exp(-k * scales))
+    # closed form: E(c) = a + b exp(-k c), E(0) = a + b
+    assert zfit.curve(np.array([0.0, 2.5])) == pytest.approx(
+        [a + b, a + b * np.exp(-k * 2.5)], abs=1e-7
+    )
+    assert zfit.value == pytest.approx(a + b, abs=1e-7)
 
 
 # ---- readout -----------------------------------------------------------------------------------
@@ -182,7 +213,7 @@ def test_exact_inversion_recovers_the_noiseless_distribution(setup, method):
 
     ws = Workspace(ctx=ctx, measured={}, calibration=cal)
     data = {b: raw_distribution(("meas", v, b), d.probs[i]) for i, b in enumerate(d.bases)}
-    out = p.correct(v, data, ws)
+    out = p.correct(v, data, ws).data
     for i, b in enumerate(d.bases):
         # source: the distribution before readout, computed by qiskit.quantum_info
         assert np.max(np.abs(out[b].probs - d.probs_ideal[i])) < 1e-10
@@ -387,7 +418,7 @@ def test_symmetry_removed_by_reduction_is_refused(h2, setup):
 
     _, runner, calibrator, _ = setup
     spec = MoleculeSpec(geometry=[("H", 0, 0, 0), ("H", 0, 0, 0.7408)])
-    reduced = encode(compute_problem(spec), "parity", two_qubit_reduction=True)
+    reduced = encode(compute_problem(spec), "parity", drop_fixed_parity_qubits=True)
     ctx = _ctx(reduced)
     with pytest.raises(
         InputError, match=r"recipe\[0\]\.symmetries: this encoding keeps no symmetry"

@@ -6,6 +6,7 @@ import math
 
 import numpy as np
 import pytest
+from helpers.synthetic import basis_distributions
 from qiskit.quantum_info import DensityMatrix, SparsePauliOp, random_density_matrix
 
 from noiselab.common.errors import InputError
@@ -15,8 +16,7 @@ from noiselab.mitigate.estimate import (
     single_shot_variance,
     standard_error,
 )
-from noiselab.mitigate.plan import allocate_shots, build_plan, split_across_circuits
-from noiselab.mitigate.synthetic import basis_distributions
+from noiselab.mitigate.plan import allocate_shots, build_plan
 from noiselab.mitigate.target import assess_target, p_within
 
 
@@ -88,12 +88,30 @@ def test_allocation_keeps_one_shot_each_and_refuses_tiny_budgets():
 
 
 def test_weighted_split_across_circuits():
-    gam, sig = np.array([3.0, -3.0, 1.0]), np.array([1.0, 1.2, 1.5])
-    shots = split_across_circuits(gam, sig, 10_000, "weighted")
-    # source: Lagrange multipliers: N_i proportional to |gamma_i| sigma_i
-    expected = 10_000 * np.abs(gam) * sig / np.sum(np.abs(gam) * sig)
-    assert np.all(np.abs(shots - expected) <= 1.0 + 1e-9)
-    assert split_across_circuits(gam, sig, 9, "equal").tolist() == [3, 3, 3]
+    # three circuits of a combination sum_i w_i E_i, one basis each: sigma of w_i E_i is |w_i| s_i
+    w, sig = np.array([3.0, -3.0, 1.0]), np.array([1.0, 1.2, 1.5])
+    rows = (np.abs(w) * sig)[:, None]
+    shots = allocate_shots(rows, 10_000, "by_deviation", "weighted")
+    assert shots.shape == (3, 1)
+    # source: Lagrange multipliers: N_i proportional to |w_i| sigma_i
+    expected = 10_000 * np.abs(w) * sig / np.sum(np.abs(w) * sig)
+    assert np.all(np.abs(shots[:, 0] - expected) <= 1.0 + 1e-9)
+    assert allocate_shots(rows, 9, "by_deviation", "equal")[:, 0].tolist() == [3, 3, 3]
+
+
+def test_two_level_allocation_minimizes_the_total_variance():
+    # two circuits, three bases each: the within-circuit rule and the weighted split together
+    sig = np.array([[0.5, 1.0, 2.0], [3.0, 0.2, 0.8]])
+    total = 60_000
+    shots = allocate_shots(sig, total, "by_deviation", "weighted")
+    assert shots.sum() == total and shots.min() >= 1
+    best = float(np.sum(sig**2 / shots))
+    # source: Lagrange multipliers over all six sources: min sum s^2/N = (sum s)^2 / N
+    assert best == pytest.approx(sig.sum() ** 2 / total, rel=1e-3)
+    equal = allocate_shots(sig, total, "by_deviation", "equal")
+    assert equal[0].sum() == equal[1].sum() == total // 2
+    with pytest.raises(InputError, match="shot_split"):
+        allocate_shots(sig, total, "by_deviation", "halves")
 
 
 def test_sample_counts_is_seeded_multinomial():

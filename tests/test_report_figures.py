@@ -3,14 +3,28 @@
 from __future__ import annotations
 
 import csv
+import dataclasses
+import json
 import math
 import xml.etree.ElementTree as ET
 from pathlib import Path
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
 
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION
+from noiselab.mitigate.base import Workspace
+from noiselab.mitigate.estimate import Estimate
+from noiselab.mitigate.passes.extrapolate import (
+    ExtrapolateOptions,
+    ExtrapolatePass,
+    ExtrapolationReport,
+)
+from noiselab.mitigate.reports import VariantScore
+from noiselab.mitigate.result import RecipeResult
+from noiselab.mitigate.target import p_within
 from noiselab.report import figures as F  # noqa: N812
 from noiselab.report import tables as T  # noqa: N812
 from noiselab.report.outputs import write_budget_outputs, write_sweep_outputs
@@ -35,12 +49,28 @@ def _hand_sweep(log: bool = True) -> SweepResult:
     for v in values:
         x = v / 0.01
         entries = tuple(
-            SweepEntry(name, EXACT_HA + e / 1000, e, s, e, 0.5, "bias")
+            SweepEntry(name, EXACT_HA + e / 1000, e, s, e, p, "-", None, p >= 0.95)
             for name, e, s in (("raw", 40 * x, 0.3), ("zne", 3 * x * x, 1.0))
+            for p in (p_within(e, s, CHEMICAL_ACCURACY_MHA),)
         )
         points.append(SweepPoint(v, x, entries))
     recipes = ("raw", "zne")
-    crossings = tuple(recipe_crossing(r, knob, points, CHEMICAL_ACCURACY_MHA, log) for r in recipes)
+    models = {"raw": (lambda x: 40 * x, 0.3), "zne": (lambda x: 3 * x * x, 1.0)}
+
+    def evaluator(name: str):
+        err, std = models[name]
+
+        def evaluate(v: float) -> SweepEntry:
+            e = err(v / 0.01)
+            p = p_within(e, std, CHEMICAL_ACCURACY_MHA)
+            return SweepEntry(name, EXACT_HA + e / 1000, e, std, e, p, "-", None, p >= 0.95)
+
+        return evaluate
+
+    crossings = tuple(
+        recipe_crossing(r, knob, points, CHEMICAL_ACCURACY_MHA, 0.95, log, evaluator(r))
+        for r in recipes
+    )
     return SweepResult(
         "h2-hand", "toy-chip", "two-qubit-error", log, 0.01, CHEMICAL_ACCURACY_MHA, 100_000,
         EXACT_HA, EXACT_HA + 1e-4, recipes, tuple(points), crossings,
@@ -89,7 +119,7 @@ def test_sweep_figure_three_formats(tmp_path: Path) -> None:
     assert "two-qubit gate error (%)" in text
     assert "(mHa)" in text
     assert "h2-hand" in text and "toy-chip" in text
-    assert F.CAUTION in text
+    assert CAUTION in text  # the one caution sentence, wrapped to the figure's width
     assert (tmp_path / "sw.pdf").read_bytes()[:5] == b"%PDF-"
     # no temporary files left behind by the atomic writes
     assert sorted(p.name for p in tmp_path.iterdir()) == ["sw.pdf", "sw.png", "sw.svg"]
@@ -103,46 +133,59 @@ def test_budget_figure(tmp_path: Path) -> None:
     assert "without two_qubit" in text and "readout alone" in text
 
 
-def test_extrapolation_figure_from_records(tmp_path: Path) -> None:
-    scales = (1.0, 2.0, 3.0)
-    # records shaped like mitigate's RecipeResult: details with per-scale energies and the fit
-    zne = {
-        "energy_ha": EXACT_HA + 0.0004,
-        "bias_exact_mha": 0.4,
-        "std_mha": 0.9,
-        "details": {
-            "extrapolation": {
-                "fit": "linear",
-                "scales": scales,
-                "energies_ha": [EXACT_HA + 0.02 * x for x in scales],
-                "stds_ha": [4e-4] * 3,
-                "poly_coeffs_low_first": [EXACT_HA + 0.0004, 0.02],
-            }
-        },
-    }
-    raw = {"energy_ha": EXACT_HA + 0.02, "bias_exact_mha": 20.0, "std_mha": 0.3, "details": {}}
-    data = F.extrapolation_data({"raw": raw, "zne-linear": zne})
-    assert [s.recipe for s in data.series] == ["zne-linear"]
-    s = data.series[0]
-    # the sampled fit starts at scale 0 with the constant coefficient
-    assert s.curve_scales[0] == 0.0
-    assert s.curve_energies_ha[0] == pytest.approx(EXACT_HA + 0.0004)
-    # exact energy recovered from the first record: E - bias (common practice, no source)
-    assert data.exact_energy_ha == pytest.approx(EXACT_HA)
-    # Richardson: the curve is the interpolating polynomial through the points
-    rich = F.extrapolation_series(
-        {
-            "details": {
-                "extrapolation": {"fit": "richardson", "scales": [1, 3], "energies_ha": [1.0, 2.0]}
-            }
-        },
-        "r",
+SCALES = (1.0, 2.0, 3.0)
+
+
+def _zne_result(fit: str, energies: list[float]) -> RecipeResult:
+    """A RecipeResult as run_recipe builds it, around the report ExtrapolatePass.combine gives
+    for hand-made per-scale energies (exact estimates: no sources)."""
+    p = ExtrapolatePass(ExtrapolateOptions(scales=SCALES, fit=fit))
+    ctx = SimpleNamespace(amplification_spread=0.0, amplification_offset=0.0)
+    variants = p.variants(ctx)
+    ws = Workspace(ctx=ctx, measured={}, calibration=None)
+    combined = p.combine(variants, [Estimate(e) for e in energies], ws)
+    scores = tuple(
+        VariantScore(v.label(), e, 0.4 + 0.1 * i, 1000, c, c, 0.0, None)
+        for i, (v, e, c) in enumerate(zip(variants, energies, SCALES, strict=True))
     )
+    energy = combined.estimate.value
+    return RecipeResult(
+        recipe=f"zne-{fit}", spec=(), energy_ha=energy, bias_exact_mha=(energy - EXACT_HA) * 1e3,
+        bias_ansatz_mha=0.0, std_mha=0.9, shots_total=3000, shots_per_circuit={}, n_circuits=3,
+        engine_seconds=0.0, p_within_target=0.5, shots_needed=None, limited_by="bias",
+        variants=scores, reports={"extrapolate": combined.report},
+    )  # fmt: skip
+
+
+def test_extrapolation_series_plots_what_the_pass_reported(tmp_path: Path) -> None:
+    quadratic = [EXACT_HA + 0.02 * c + 0.004 * c * c for c in SCALES]
+    zne = _zne_result("linear", quadratic)
+    s = F.extrapolation_series("zne-linear", zne)
+    assert s is not None and s.scales == SCALES and s.energies_ha == tuple(quadratic)
+    # error bars: each scale's standard error from the recipe's variant scores (mHa -> Ha)
+    assert s.stds_ha == pytest.approx((4e-4, 5e-4, 6e-4), rel=1e-12)
+    report = zne.report(ExtrapolationReport)
+    assert s.curve_scales == report.curve_scales and s.curve_energies_ha == report.curve_energies_ha
+    # the reported curve is the least-squares line (source: numpy.polynomial.polynomial.polyfit),
+    # drawn from scale 0, where it meets the extrapolated energy
+    line = np.polynomial.polynomial.polyfit(SCALES, quadratic, 1)
+    curve = np.polynomial.polynomial.polyval(np.array(s.curve_scales), line)
+    assert s.curve_scales[0] == 0.0 and max(s.curve_scales) == 3.0
+    assert np.allclose(s.curve_energies_ha, curve, atol=1e-12)
+    assert s.estimate_ha == pytest.approx(line[0], abs=1e-12)
+    # Richardson through three points of a quadratic is that quadratic (Lagrange interpolation)
+    rich = F.extrapolation_series("r", _zne_result("richardson", quadratic))
     assert rich is not None
-    # the line through (1, 1) and (3, 2) meets scale 0 at 0.5 (hand computation)
-    assert rich.curve_energies_ha[0] == pytest.approx(0.5)
-    path = F.plot_extrapolation({"raw": raw, "zne-linear": zne}, tmp_path / "x.png")
-    _check_png(path)
+    xs = np.array(rich.curve_scales)
+    assert np.allclose(rich.curve_energies_ha, EXACT_HA + 0.02 * xs + 0.004 * xs**2, atol=1e-12)
+    # a recipe without an extrapolation report draws no series
+    raw = dataclasses.replace(zne, reports={}, variants=zne.variants[:1])
+    assert F.extrapolation_series("raw", raw) is None
+    # the typed records survive the results cache's record (JSON) unchanged
+    again = RecipeResult(**json.loads(json.dumps(zne.to_dict())))
+    assert F.extrapolation_series("zne-linear", again) == s
+    data = F.ExtrapolationFigureData("h2-hand", "toy-chip", EXACT_HA, CHEMICAL_ACCURACY_MHA, (s,))
+    _check_png(F.plot_extrapolation(data, tmp_path / "x.png"))
     text = _svg_text(F.plot_extrapolation(data, tmp_path / "x.svg"))
     assert "noise scale factor" in text and "energy − exact energy (mHa)" in text
 
@@ -151,10 +194,20 @@ def test_bias_bars_log_and_linear(tmp_path: Path) -> None:
     wide = [F.BiasBar("raw", 35.0, 0.4), F.BiasBar("zne", 0.02, 0.9)]
     narrow = [F.BiasBar("raw", 3.0, 0.4), F.BiasBar("zne", 1.0, 0.3)]
     for name, bars in (("wide", wide), ("narrow", narrow)):
-        _check_png(F.plot_bias_bars(bars, tmp_path / f"{name}.png", "h2-hand", "toy-chip"))
-        text = _svg_text(F.plot_bias_bars(bars, tmp_path / f"{name}.svg", "h2-hand", "toy-chip"))
-        assert "|energy − exact energy| (mHa)" in text
+        data = F.BiasFigureData("h2-hand", "toy-chip", CHEMICAL_ACCURACY_MHA, tuple(bars))
+        _check_png(F.plot_bias_bars(data, tmp_path / f"{name}.png"))
+        text = _svg_text(F.plot_bias_bars(data, tmp_path / f"{name}.svg"))
+        assert "|energy − exact energy| (mHa)" in text and "h2-hand" in text
     assert F._wide_range([35.0, 0.02, CHEMICAL_ACCURACY_MHA])
+
+
+def test_bias_bar_colours_follow_the_rule() -> None:
+    t = CHEMICAL_ACCURACY_MHA
+    # |bias| + std above the target, yet the rule says it reaches (P >= confidence): green
+    assert F.bar_colour(F.BiasBar("a", 1.0, 0.8, reaches_target=True), t) == "green"
+    # |bias| + std inside the target but the rule says no (a recipe at a tiny budget): not green
+    assert F.bar_colour(F.BiasBar("b", 0.2, 0.3, reaches_target=False), t) == "amber"
+    assert F.bar_colour(F.BiasBar("c", -2.0, 0.1, reaches_target=False), t) == "red"
     assert not F._wide_range([3.0, 1.0, CHEMICAL_ACCURACY_MHA])
 
 
@@ -211,7 +264,7 @@ def test_tune_and_assess_tables_from_duck_typed_results() -> None:
     assert "best 1 of 3 settings" in text and "std. error (mHa)" in text
     r = SimpleNamespace(
         energy_ha=-1.1, bias_exact_mha=2.5, std_mha=0.4, p_within_target=0.1, shots_needed=None,
-        limited_by="bias",
+        limited_by="bias", reaches_target=False,
     )  # fmt: skip
     assess = SimpleNamespace(study="h2-hand", recipes={"raw": r})
     rows = T.assess_rows(assess)

@@ -321,3 +321,12 @@ def test_demo_writes_its_files(cli_runs: dict, tmp_path: Path) -> None:
     assert json.loads((target / "assess.json").read_text())["study"] == "h2-equilibrium"
     assert (target / "assess.csv").is_file()
     assert "ETA" not in err.getvalue()  # no progress bars when stderr is not a terminal
+
+
+def test_exact_spin_and_optimizer_are_reported(cli_runs: dict) -> None:
+    data = cli_runs["a"]
+    # source: PySCF fci spin_square of the H2 ground state is 0 (tests/test_chem_spin.py)
+    assert abs(data["exact_spin_squared"]) < 1e-10
+    assert abs(data["ansatz_spin_squared"]) < 1e-6
+    assert data["optimizer"]["starts"] >= 1 and data["optimizer"]["stopped"] == "reached_exact"
+    assert data["warnings"] == [] and "Caveat" not in data["verdict"]

@@ -34,8 +34,7 @@ def studies(tmp_path_factory: pytest.TempPathFactory) -> tuple:
     plan's bases already suffice)."""
     text = (CONFIGS / "studies" / "lih-active-space.yaml").read_text()
     text = text.replace("encoding: parity", "encoding: jordan_wigner")
-    text = text.replace("two_qubit_reduction: true", "two_qubit_reduction: false")
-    text = text.replace("device: ../devices/", f"device: {CONFIGS / 'devices'}/")
+    text = text.replace("drop_fixed_parity_qubits: true", "drop_fixed_parity_qubits: false")
     path = tmp_path_factory.mktemp("study") / "lih-jw.yaml"
     path.write_text(text)
     plain = load_study(path)  # no recipe of it verifies

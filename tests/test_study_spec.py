@@ -194,8 +194,8 @@ def test_postselect_without_symmetries_is_refused_with_its_key(tmp_path: Path) -
     from noiselab.study.assess import assess
 
     data = yaml.safe_load((BAD / "unknown_pass.yaml").read_text(encoding="utf-8"))
-    data.update(encoding="parity", two_qubit_reduction=True)
-    # the two-qubit reduction fixes the parities post-selection would check (Bravyi et al. 2017)
+    data.update(encoding="parity", drop_fixed_parity_qubits=True)
+    # the dropped qubits hold the parities post-selection would check (Bravyi et al. 2017)
     data["recipes"] = {"raw": [], "ps": [{"pass": "postselect"}]}
     path = tmp_path / "reduced.yaml"
     path.write_text(yaml.safe_dump(data), encoding="utf-8")

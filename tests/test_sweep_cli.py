@@ -8,14 +8,14 @@ import pytest
 
 from noiselab.cli.app import main
 
-# H2 / STO-3G, parity with the two-qubit reduction: 2 qubits (REFERENCES.md); invented chip
+# H2 / STO-3G, parity, fixed parity qubits dropped: 2 qubits (REFERENCES.md); invented chip
 TINY_STUDY = """\
 name: h2-tiny-cli
 molecule:
   geometry: "H 0 0 0; H 0 0 0.735"
   basis: sto-3g
 encoding: parity
-two_qubit_reduction: true
+drop_fixed_parity_qubits: true
 ansatz: {kind: uccsd}
 device:
   schema_version: 1
@@ -25,8 +25,8 @@ device:
   native_gates: {single_qubit: [rz, sx, x], two_qubit: cz}
   durations: {single_qubit_ns: 35, two_qubit_ns: 300, readout_ns: 1500}
   qubits:
-    default: {t1_us: 150, t2_us: 120, gate_error: 3.0e-4, p_read1_prep0: 0.005,
-              p_read0_prep1: 0.01}
+    default: {t1_us: 150, t2_us: 120, gate_error: 3.0e-4, flip_0to1: 0.005,
+              flip_1to0: 0.01}
   couplers:
     default: {gate_error: 1.0e-2}
 shots: 100000

@@ -1,109 +1,132 @@
-"""Knob values and target crossings of a sweep, against hand-computed analytic cases."""
+"""Knob values and target crossings of a sweep (bisection), against hand-computed cases."""
 
 from __future__ import annotations
 
+import dataclasses
 import math
 
 import pytest
 
 from noiselab.common.errors import InputError
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.mitigate.target import p_within, reaches_target
 from noiselab.study.sweep import (
     SweepEntry,
     SweepPoint,
+    bias_within,
+    bisect_crossing,
     crossing_sentence,
-    find_crossings,
     get_knob,
     knob_factor,
     knob_values,
+    locate_crossings,
     recipe_crossing,
 )
 
 
-def test_power_law_crossing_is_exact_in_log_log() -> None:
-    # |error| = a x^2 is a straight line in log-log, so log interpolation is exact:
-    # a x^2 = t  =>  x = sqrt(t / a)   (hand computation)
+def _entry(error_mha: float, std_mha: float, conf: float = 0.95) -> SweepEntry:
+    """A sweep entry with P and the rule computed as run_recipe computes them."""
+    p = p_within(error_mha, std_mha, CHEMICAL_ACCURACY_MHA)
+    return SweepEntry("r", 0.0, error_mha, std_mha, 0.0, p, "-", None, reaches_target(p, conf))
+
+
+def test_bisection_locates_a_power_law_crossing_to_one_percent() -> None:
+    # |bias| = a x^2 crosses t at x = sqrt(t / a) (hand computation); bisection on a log grid
     a, t = 4.0, CHEMICAL_ACCURACY_MHA
-    xs = [10 ** (-2 + 2 * i / 6) for i in range(7)]  # 0.01 .. 1, log spaced
-    ys = [a * x * x for x in xs]
-    (x_cross,) = find_crossings(xs, ys, t, log_x=True)
-    assert x_cross == pytest.approx(math.sqrt(t / a), rel=1e-12)
+    calls: list[float] = []
+
+    def inside(x: float) -> bool:
+        calls.append(x)
+        return a * x * x < t
+
+    x, n = bisect_crossing(0.1, 1.0, True, inside, log_x=True)
+    assert n == len(calls) and n > 0
+    assert all(0.1 < c < 1.0 for c in calls)
+    assert x == pytest.approx(math.sqrt(t / a), rel=0.005)  # half the 1 % bracket
+    # linear spacing, descending bracket (inside at the upper end): T1-like knob
+    x, _ = bisect_crossing(300.0, 20.0, True, lambda v: 1000.0 / v < 10.0, log_x=False)
+    assert x == pytest.approx(100.0, rel=0.005)
 
 
-def test_exponential_crossing_is_exact_with_linear_x() -> None:
-    # |error| = exp(k x): log10|error| is linear in x, crossing at x = ln(t) / k (hand computation)
-    k, t = 1.3, 2.0
-    xs = [0.25 * i for i in range(9)]
-    ys = [math.exp(k * x) for x in xs]
-    (x_cross,) = find_crossings(xs, ys, t, log_x=False)
-    assert x_cross == pytest.approx(math.log(t) / k, rel=1e-12)
+def test_locate_crossings_uses_new_evaluations_not_interpolation() -> None:
+    # bias = 0.2 + x^3 mHa: not a straight line in log-log, so interpolating between the grid
+    # points 1 and 4 would miss the crossing by several percent; the grid only brackets it
+    xs = [0.5, 1.0, 4.0]
+    entries = [_entry(0.2 + x**3, 0.0) for x in xs]
+    seen: list[float] = []
 
+    def evaluate(x: float) -> SweepEntry:
+        seen.append(x)
+        return _entry(0.2 + x**3, 0.0)
 
-def test_linear_interpolation_between_two_points_by_hand() -> None:
-    # two points (1, 1 mHa) and (3, 100 mHa), target 10 mHa: log10 goes 0 -> 2, crossing at
-    # the midpoint x = 2 (hand computation)
-    assert find_crossings([1.0, 3.0], [1.0, 100.0], 10.0) == pytest.approx((2.0,))
-    # sign of the error does not matter, only its size
-    assert find_crossings([1.0, 3.0], [-1.0, -100.0], 10.0) == pytest.approx((2.0,))
-
-
-def test_sign_change_interpolates_the_signed_error() -> None:
-    # -1 mHa at x = 0 to +3 mHa at x = 1, target 2 mHa: the signed error is linear,
-    # -1 + 4 x = 2 at x = 0.75 (hand computation); log|error| would not be linear here
-    assert find_crossings([0.0, 1.0], [-1.0, 3.0], 2.0) == pytest.approx((0.75,))
-    # +5 to -5 across the band: in at x = 0.3, out at x = 0.7 (hand computation: 5 - 10 x = +-2)
-    assert find_crossings([0.0, 1.0], [5.0, -5.0], 2.0) == pytest.approx((0.3, 0.7))
-
-
-def test_band_crossing_by_hand() -> None:
-    from noiselab.study.sweep import band_crossings
-
-    # error 0 -> 4 mHa (signed, linear), std 1 mHa, target 2 mHa: |e| + s = 4 x + 1 = 2 at
-    # x = 0.25, the central value 4 x = 2 at x = 0.5 (hand computation)
-    assert band_crossings([0.0, 1.0], [0.0, 4.0], [1.0, 1.0], 2.0) == pytest.approx(
-        (0.25,), abs=1e-9
+    out, n = locate_crossings(
+        xs, entries, lambda e: bias_within(e, CHEMICAL_ACCURACY_MHA), evaluate, log_x=True
     )
-    assert find_crossings([0.0, 1.0], [0.0, 4.0], 2.0) == pytest.approx((0.5,))
-    # a power law with a constant std: (x / 2)^2 + 0.5 = 2 at x = 2 sqrt(1.5), exact in log-log
-    # only for the central part, so allow the grid's accuracy (hand computation)
-    xs = [1.0, 4.0]
-    es = [(x / 2) ** 2 for x in xs]
-    (b,) = band_crossings(xs, es, [0.5, 0.5], 2.0, log_x=True)
-    assert b == pytest.approx(2 * 1.5**0.5, rel=1e-4)
+    assert len(out) == 1 and n == len(seen) > 0
+    # hand computation: 0.2 + x^3 = t at x = (t - 0.2)^(1/3)
+    assert out[0] == pytest.approx((CHEMICAL_ACCURACY_MHA - 0.2) ** (1 / 3), rel=0.005)
+    assert all(1.0 < v < 4.0 for v in seen)
 
 
-def test_no_crossing_and_two_crossings() -> None:
-    assert find_crossings([1, 2, 3], [0.1, 0.2, 0.3], 1.0) == ()
-    # error dips below the target and comes back (a ZNE bias changing sign, say)
-    out = find_crossings([1, 2, 3, 4], [5.0, 0.5, 0.5, 5.0], 1.0)
-    assert len(out) == 2 and 1 < out[0] < 2 and 3 < out[1] < 4
+def test_rule_crossing_comes_before_the_bias_crossing() -> None:
+    # bias = x mHa with a std of 0.5 mHa: the bias alone crosses at x = t; the rule needs
+    # P(|N(x, 0.5)| <= t) >= 0.95, reached for x < t - 1.645 * 0.5 to good approximation
+    # (source: standard normal quantile 1.645 for a one-sided 95 %; the other tail is negligible)
+    knob = get_knob("noise-scale")
+    xs = (0.25, 0.5, 1.0, 2.0, 4.0)
+    pts = [SweepPoint(x, x, (dataclasses.replace(_entry(x, 0.5), recipe="raw"),)) for x in xs]
+
+    def evaluate(x: float) -> SweepEntry:
+        return dataclasses.replace(_entry(x, 0.5), recipe="raw")
+
+    c = recipe_crossing("raw", knob, pts, CHEMICAL_ACCURACY_MHA, 0.95, True, evaluate)
+    assert len(c.crossings) == 1 and len(c.bias_crossings) == 1 and c.evaluations > 0
+    assert c.bias_crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA, rel=0.005)
+    assert c.crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA - 1.645 * 0.5, rel=0.006)
+    assert "reaches chemical accuracy (±1.594 mHa) at the budget (P >= 0.95) while" in c.sentence
+    assert "its bias alone (unlimited shots) is within the target while" in c.sentence
+
+
+def test_over_correction_between_two_outside_points_is_probed() -> None:
+    # signed bias 5 - 10 x (hand computation: inside |bias| < 2 for 0.3 < x < 0.7); both grid
+    # ends are outside, the sign change sends a probe to x = 0.5, then both sides are bisected
+    xs = [0.0, 1.0]
+    entries = [_entry(5.0, 0.0), _entry(-5.0, 0.0)]
+    out, _ = locate_crossings(
+        xs, entries, lambda e: bias_within(e, 2.0), lambda x: _entry(5 - 10 * x, 0.0)
+    )
+    assert out == pytest.approx((0.3, 0.7), rel=0.01)
+    none, n = locate_crossings([1, 2, 3], [_entry(0.1, 0.0)] * 3, lambda e: True, None)
+    assert none == () and n == 0
 
 
 def test_sentences_in_device_units() -> None:
     knob = get_knob("two-qubit-error")
-    s = crossing_sentence("zne", knob, [0.001, 0.01], [0.5, 5.0], [0.0042], CHEMICAL_ACCURACY_MHA)
-    assert s == "zne stays within chemical accuracy while the two-qubit gate error is below 0.42 %"
+    t = CHEMICAL_ACCURACY_MHA
+    s = crossing_sentence(
+        "zne", knob, [0.001, 0.01], [True, False], [0.0042], [True, False], [0.0051], t, 0.95
+    )
+    assert s == (
+        "zne reaches chemical accuracy (±1.594 mHa) at the budget (P >= 0.95) while the "
+        "two-qubit gate error is below 0.42 %; its bias alone (unlimited shots) is within the "
+        "target while the two-qubit gate error is below 0.51 %"
+    )
     coh = get_knob("coherence-us")
     # error falls as T1 grows: within target above the crossing
-    s = crossing_sentence("raw", coh, [20.0, 200.0], [8.0, 0.8], [120.0], CHEMICAL_ACCURACY_MHA)
-    assert "above 120 us" in s
-    s = crossing_sentence("raw", knob, [0.001, 0.01], [5.0, 9.0], [], CHEMICAL_ACCURACY_MHA)
-    assert "does not reach chemical accuracy" in s
-    s = crossing_sentence("raw", knob, [0.01], [0.5], [], CHEMICAL_ACCURACY_MHA)
-    assert s == "raw is within chemical accuracy at the two-qubit gate error of 1 %"
-
-
-def test_recipe_crossing_band_is_earlier_than_central() -> None:
-    knob = get_knob("noise-scale")
-    pts = [
-        SweepPoint(x, x, (SweepEntry("raw", 0.0, 1.0 * x, 0.5, 0.0, 0.5, "bias"),))
-        for x in (0.5, 1.0, 2.0, 4.0)
-    ]
-    c = recipe_crossing("raw", knob, pts, CHEMICAL_ACCURACY_MHA, log_x=True)
-    assert len(c.crossings) == 1 and len(c.band_crossings) == 1
-    # |error| = x crosses t at x = t exactly (a power law, log-log interpolation exact)
-    assert c.crossings[0] == pytest.approx(CHEMICAL_ACCURACY_MHA)
-    assert c.band_crossings[0] < c.crossings[0]
+    s = crossing_sentence("raw", coh, [20.0, 200.0], [False, True], [120.0], [False, True],
+                          [110.0], t, 0.95)  # fmt: skip
+    assert "while T1 (with T2 scaled alongside) is above 120 us" in s
+    s = crossing_sentence("raw", knob, [0.001, 0.01], [False] * 2, [], [False] * 2, [], t, 0.95)
+    assert s.startswith(
+        "raw does not reach chemical accuracy (±1.594 mHa) at the budget (P >= 0.95) anywhere"
+    )
+    assert "its bias alone (unlimited shots) is outside the target over the whole range" in s
+    s = crossing_sentence("raw", knob, [0.01], [False], [], [True], [], t, 0.9)
+    assert s == (
+        "raw does not reach chemical accuracy (±1.594 mHa) at the budget (P >= 0.9) at the "
+        "two-qubit gate error of 1 %; its bias alone (unlimited shots) is within the target at "
+        "the two-qubit gate error of 1 %"
+    )
 
 
 @pytest.mark.parametrize(
@@ -151,8 +174,8 @@ def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
                     "t1_us": 50,
                     "t2_us": 40,
                     "gate_error": gate_error_1q,
-                    "p_read1_prep0": 0.01,
-                    "p_read0_prep1": 0.02,
+                    "flip_0to1": 0.01,
+                    "flip_1to0": 0.02,
                 }
             },
             "couplers": {"default": {"gate_error": gate_error_2q}},

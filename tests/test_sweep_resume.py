@@ -10,14 +10,14 @@ from noiselab.report.tables import sweep_rows, write_csv
 from noiselab.study.cache import open_cache
 from noiselab.study.sweep import SweepPoint, sweep
 
-# H2 / STO-3G, parity with the two-qubit reduction: 2 qubits (REFERENCES.md); invented chip
+# H2 / STO-3G, parity, fixed parity qubits dropped: 2 qubits (REFERENCES.md); invented chip
 TINY_STUDY = """\
 name: h2-tiny-sweep
 molecule:
   geometry: "H 0 0 0; H 0 0 0.735"
   basis: sto-3g
 encoding: parity
-two_qubit_reduction: true
+drop_fixed_parity_qubits: true
 ansatz: {kind: uccsd}
 device:
   schema_version: 1
@@ -27,8 +27,8 @@ device:
   native_gates: {single_qubit: [rz, sx, x], two_qubit: cz}
   durations: {single_qubit_ns: 35, two_qubit_ns: 300, readout_ns: 1500}
   qubits:
-    default: {t1_us: 200, t2_us: 150, gate_error: 5.0e-4, p_read1_prep0: 0.01,
-              p_read0_prep1: 0.02}
+    default: {t1_us: 200, t2_us: 150, gate_error: 5.0e-4, flip_0to1: 0.01,
+              flip_1to0: 0.02}
   couplers:
     default: {gate_error: 1.0e-2, zz_angle_rad: 0.01}
 shots: 100000
@@ -63,16 +63,16 @@ class SimulationCounter:
     """Counts calls of the emulator (every simulation that is really run)."""
 
     def __init__(self, monkeypatch: pytest.MonkeyPatch) -> None:
-        import noiselab.emulate.engine as engine
+        import noiselab.mitigate.experiment as experiment
 
         self.calls = 0
-        real = engine.emulate_bases
+        real = experiment.emulate_bases
 
         def counting(*args: object, **kwargs: object) -> object:
             self.calls += 1
             return real(*args, **kwargs)
 
-        monkeypatch.setattr(engine, "emulate_bases", counting)
+        monkeypatch.setattr(experiment, "emulate_bases", counting)
 
 
 def test_interrupted_sweep_resumes_without_repeating_points(

@@ -23,7 +23,7 @@ HERE = Path(__file__).resolve().parents[1]
 def main(argv: list[str]) -> None:
     import noiselab.emulate.contract as contract
     import noiselab.emulate.engine as engine
-    from noiselab.mitigate.recipe import make_runner
+    from noiselab.mitigate.experiment import make_runner
     from noiselab.mitigate.variants import CircuitVariant
     from noiselab.study.context import build_context
     from noiselab.study.spec import load_study

@@ -9,17 +9,16 @@ from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit import ParameterVector
+from qiskit.circuit.library import PauliEvolutionGate
+from qiskit.quantum_info import SparsePauliOp
 
+from noiselab.chem.encode import QubitProblem, encode_fermion_operator
 from noiselab.common.errors import InputError
-
-if TYPE_CHECKING:
-    from qiskit import QuantumCircuit
-    from qiskit.quantum_info import SparsePauliOp
-
-    from noiselab.chem.encode import QubitProblem
 
 
 @dataclass(frozen=True)
@@ -64,8 +63,6 @@ def excitation_generator(excitation: Excitation, qubit_problem: QubitProblem) ->
 
     ``exp(-i theta * generator) = exp(theta (T - T^dagger))``.
     """
-    from noiselab.chem.encode import encode_fermion_operator
-
     ops_t = [(a, True) for a in excitation.virtual] + [
         (i, False) for i in reversed(excitation.occupied)
     ]
@@ -82,8 +79,6 @@ def _commuting(op: SparsePauliOp) -> bool:
 
 def hf_preparation(bitstring: Sequence[int]) -> QuantumCircuit:
     """X on every qubit that is 1 in ``bitstring`` (qubit 0 first)."""
-    from qiskit import QuantumCircuit
-
     qc = QuantumCircuit(len(bitstring))
     for q, b in enumerate(bitstring):
         if b:
@@ -100,9 +95,6 @@ def uccsd_circuit(
     ``PauliEvolutionGate`` is exact; the product over excitations is the first-order Trotterized
     UCCSD. All parameters zero gives the Hartree-Fock state.
     """
-    from qiskit.circuit import ParameterVector
-    from qiskit.circuit.library import PauliEvolutionGate
-
     qp = qubit_problem
     excitations = uccsd_excitations(qp.n_orb, qp.n_alpha, qp.n_beta, singles, doubles)
     if not excitations:
@@ -131,8 +123,6 @@ def layered_circuit(
     ``initial_bitstring`` (e.g. ``hf_bitstring``) prepends X gates. 2 * num_qubits * (layers + 1)
     parameters; all zero leaves the initial state unchanged.
     """
-    from qiskit.circuit import ParameterVector
-
     if num_qubits < 1:
         raise InputError(f"ansatz.num_qubits: {num_qubits}; allowed: at least 1")
     if layers < 0:
@@ -172,8 +162,6 @@ def circuit_summary(circuit: QuantumCircuit) -> dict[str, Any]:
 
     Uses ``qiskit.transpile(optimization_level=1)`` without a device (all-to-all, no routing).
     """
-    from qiskit import transpile
-
     basic = transpile(
         circuit, basis_gates=["cx", "rz", "sx", "x"], optimization_level=1, seed_transpiler=0
     )

@@ -5,32 +5,31 @@ n_orb + j: spatial orbital j, beta), stored as the encoding dictates (see
 :mod:`noiselab.chem.fermion`). Qubit 0 is the rightmost character of a Pauli label and the least
 significant bit of a basis-state index (qiskit order).
 
-Two-qubit reduction (parity encoding only; Bravyi, Gambetta, Mezzacapo and Temme,
-arXiv:1701.08213): qubit n_orb-1 holds the parity of N_alpha and qubit 2*n_orb-1 the parity of N.
+Dropping the fixed parity qubits (``drop_fixed_parity_qubits``; parity encoding only; the
+symmetry tapering of Bravyi, Gambetta, Mezzacapo and Temme, arXiv:1701.08213): qubit n_orb-1
+holds the parity of N_alpha and qubit 2*n_orb-1 the parity of N.
 Both are fixed by the molecule's sector, so the Hamiltonian has only I or Z on them; each Z is
-replaced by its eigenvalue and the two qubits are deleted. The reduced qubits keep their order:
-reduced qubit i is full qubit i for i < n_orb-1 and full qubit i+1 for n_orb-1 <= i < 2*n_orb-2.
-With the reduction, ``number_op`` and ``sz_op`` are still returned, reduced the same way (they
-remain diagonal, non-constant operators on the reduced qubits), and ``symmetries`` is empty: the
-three parities it would hold are exactly the ones the reduction fixed.
+replaced by its eigenvalue and the two qubits are dropped. The remaining qubits keep their order:
+remaining qubit i is full qubit i for i < n_orb-1 and full qubit i+1 for n_orb-1 <= i < 2*n_orb-2.
+With the two qubits dropped, ``number_op`` and ``sz_op`` are still returned, with the same qubits
+dropped (they remain diagonal, non-constant operators on the remaining qubits), and
+``symmetries`` is empty: the three parities it would hold are exactly the ones that fixed the
+dropped qubits.
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, NamedTuple
+from typing import NamedTuple
 
 import numpy as np
+from qiskit.quantum_info import PauliList, SparsePauliOp
 
 from noiselab.chem import fermion
 from noiselab.chem.fermion import ENCODINGS
+from noiselab.chem.molecule import ElectronicProblem
 from noiselab.common.errors import InputError, ProblemTooLargeError
-
-if TYPE_CHECKING:
-    from qiskit.quantum_info import SparsePauliOp
-
-    from noiselab.chem.molecule import ElectronicProblem
 
 MAX_QUBITS = 40
 
@@ -48,13 +47,13 @@ class QubitProblem:
     """Qubit Hamiltonian (Hartree) with its sector, reference state and exact energy.
 
     ``hf_bitstring[q]`` is the value of logical qubit q in the Hartree-Fock state.
-    ``removed_qubits``: full-space qubits the two-qubit reduction deleted (empty otherwise).
+    ``removed_qubits``: full-space qubits dropped by ``drop_fixed_parity_qubits`` (else empty).
     """
 
     hamiltonian: SparsePauliOp
     num_qubits: int
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     number_op: SparsePauliOp | None
     sz_op: SparsePauliOp | None
     hf_bitstring: tuple[int, ...]
@@ -77,15 +76,15 @@ class QubitProblem:
         return len(self.hamiltonian)
 
 
-def check_encoding(encoding: str, two_qubit_reduction: bool = False) -> None:
-    """Raise a one-line InputError for an unknown encoding or an unsupported reduction."""
+def check_encoding(encoding: str, drop_fixed_parity_qubits: bool = False) -> None:
+    """One-line InputError for an unknown encoding or drop_fixed_parity_qubits off parity."""
     if encoding not in ENCODINGS:
         raise InputError(
             f"encoding: unknown encoding {encoding!r}; allowed: {', '.join(ENCODINGS)}"
         )
-    if two_qubit_reduction and encoding != "parity":
+    if drop_fixed_parity_qubits and encoding != "parity":
         raise InputError(
-            f"encoding: two_qubit_reduction needs the parity encoding, got {encoding!r}; "
+            f"encoding: drop_fixed_parity_qubits needs the parity encoding, got {encoding!r}; "
             "allowed: parity"
         )
 
@@ -95,15 +94,13 @@ def _sector_eigenvalues(n_alpha: int, n_beta: int) -> tuple[int, int]:
     return (-1) ** n_alpha, (-1) ** (n_alpha + n_beta)
 
 
-def reduce_two_qubits(op: SparsePauliOp, n_orb: int, n_alpha: int, n_beta: int) -> SparsePauliOp:
-    """Apply the parity two-qubit reduction to an operator that conserves N and N_alpha parity."""
-    from qiskit.quantum_info import PauliList, SparsePauliOp
-
+def drop_parity_qubits(op: SparsePauliOp, n_orb: int, n_alpha: int, n_beta: int) -> SparsePauliOp:
+    """Drop the two fixed parity qubits from an operator that conserves N and N_alpha parity."""
     k1, k2 = n_orb - 1, 2 * n_orb - 1
     e1, e2 = _sector_eigenvalues(n_alpha, n_beta)
     x, z = op.paulis.x, op.paulis.z
     if np.any(x[:, [k1, k2]]):
-        raise ValueError("operator does not conserve the parities the two-qubit reduction fixes")
+        raise ValueError("operator does not conserve the parities of the dropped qubits")
     factor = np.where(z[:, k1], e1, 1) * np.where(z[:, k2], e2, 1)
     keep = np.ones(op.num_qubits, dtype=bool)
     keep[[k1, k2]] = False
@@ -114,25 +111,23 @@ def reduce_two_qubits(op: SparsePauliOp, n_orb: int, n_alpha: int, n_beta: int) 
 
 
 def _real(op: SparsePauliOp) -> SparsePauliOp:
-    from qiskit.quantum_info import SparsePauliOp
-
     if np.any(np.abs(op.coeffs.imag) > 1e-10):
         raise ValueError("operator is not Hermitian: imaginary Pauli coefficients remain")
     return SparsePauliOp(op.paulis, op.coeffs.real.astype(float))
 
 
 def _z_symmetry(mask: int, n_qubits: int) -> SparsePauliOp:
-    from qiskit.quantum_info import SparsePauliOp
-
     label = "".join("Z" if (mask >> q) & 1 else "I" for q in reversed(range(n_qubits)))
     return SparsePauliOp(label, [1.0])
 
 
 def encode(
-    problem: ElectronicProblem, encoding: str = "jordan_wigner", two_qubit_reduction: bool = False
+    problem: ElectronicProblem,
+    encoding: str = "jordan_wigner",
+    drop_fixed_parity_qubits: bool = False,
 ) -> QubitProblem:
     """Map an :class:`~noiselab.chem.molecule.ElectronicProblem` to a :class:`QubitProblem`."""
-    check_encoding(encoding, two_qubit_reduction)
+    check_encoding(encoding, drop_fixed_parity_qubits)
     n_orb, na, nb = problem.n_orb, problem.n_alpha, problem.n_beta
     n_modes = 2 * n_orb
     if n_modes > MAX_QUBITS:
@@ -140,9 +135,10 @@ def encode(
             f"molecule: {n_modes} spin orbitals; allowed: at most {MAX_QUBITS} "
             "(choose an active_space)"
         )
-    if two_qubit_reduction and n_modes < 3:
+    if drop_fixed_parity_qubits and n_modes < 3:
         raise InputError(
-            "encoding: two_qubit_reduction would leave no qubit; allowed: false for this molecule"
+            "encoding: drop_fixed_parity_qubits would leave no qubit; "
+            "allowed: false for this molecule"
         )
     table = fermion.ladder_table(encoding, n_modes)
     h = fermion.to_sparse_pauli_op(
@@ -168,11 +164,11 @@ def encode(
     )
     removed: tuple[int, ...] = ()
     num_qubits = n_modes
-    if two_qubit_reduction:
+    if drop_fixed_parity_qubits:
         removed = (n_orb - 1, 2 * n_orb - 1)
-        h = _real(reduce_two_qubits(h, n_orb, na, nb))
-        number_op = _real(reduce_two_qubits(number_op, n_orb, na, nb))
-        sz_op = _real(reduce_two_qubits(sz_op, n_orb, na, nb))
+        h = _real(drop_parity_qubits(h, n_orb, na, nb))
+        number_op = _real(drop_parity_qubits(number_op, n_orb, na, nb))
+        sz_op = _real(drop_parity_qubits(sz_op, n_orb, na, nb))
         hf_bits = tuple(b for q, b in enumerate(hf_bits) if q not in removed)
         symmetries = ()
         num_qubits = n_modes - 2
@@ -180,7 +176,7 @@ def encode(
         hamiltonian=h,
         num_qubits=num_qubits,
         encoding=encoding,
-        two_qubit_reduction=two_qubit_reduction,
+        drop_fixed_parity_qubits=drop_fixed_parity_qubits,
         number_op=number_op,
         sz_op=sz_op,
         hf_bitstring=tuple(int(b) for b in hf_bits),
@@ -201,16 +197,18 @@ def encode_fermion_operator(
 ) -> SparsePauliOp:
     """Map ``sum coeff * prod (a_mode or a+_mode)`` to qubits in ``qubit_problem``'s encoding.
 
-    Modes are spin orbitals in block order. With the two-qubit reduction the operator must conserve
-    N and N_alpha parity; it is reduced the same way as the Hamiltonian. ``hermitian=True`` returns
-    real coefficients (and checks that the imaginary parts vanish).
+    Modes are spin orbitals in block order. With ``drop_fixed_parity_qubits`` the operator must
+    conserve N and N_alpha parity; its two fixed qubits are dropped as in the Hamiltonian.
+    ``hermitian=True`` returns real coefficients (and checks that the imaginary parts vanish).
     """
     n_modes = 2 * qubit_problem.n_orb
     table = fermion.ladder_table(qubit_problem.encoding, n_modes)
     parts = fermion.fermion_terms_parts(table, terms)
     op = fermion.to_sparse_pauli_op(parts, n_modes, hermitian=hermitian)
-    if qubit_problem.two_qubit_reduction:
-        op = reduce_two_qubits(op, qubit_problem.n_orb, qubit_problem.n_alpha, qubit_problem.n_beta)
+    if qubit_problem.drop_fixed_parity_qubits:
+        op = drop_parity_qubits(
+            op, qubit_problem.n_orb, qubit_problem.n_alpha, qubit_problem.n_beta
+        )
         if hermitian:
             op = _real(op)
     return op

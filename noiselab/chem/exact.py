@@ -9,16 +9,12 @@ charge or spin state).
 
 from __future__ import annotations
 
-from typing import TYPE_CHECKING
-
 import numpy as np
+import scipy.sparse.linalg as spla
+from qiskit.quantum_info import SparsePauliOp
 
+from noiselab.chem.encode import QubitProblem
 from noiselab.common.errors import ProblemTooLargeError
-
-if TYPE_CHECKING:
-    from qiskit.quantum_info import SparsePauliOp
-
-    from noiselab.chem.encode import QubitProblem
 
 MAX_EXACT_QUBITS = 22
 _DENSE_LIMIT = 200
@@ -62,8 +58,6 @@ def sector_mask(qubit_problem: QubitProblem) -> np.ndarray:
 
 def sector_ground_energy(qubit_problem: QubitProblem) -> float:
     """Lowest eigenvalue (Hartree) of the qubit Hamiltonian in the molecule's (N, Sz) sector."""
-    import scipy.sparse.linalg as spla
-
     if qubit_problem.num_qubits > MAX_EXACT_QUBITS:
         raise ProblemTooLargeError(
             f"{qubit_problem.num_qubits} qubits; allowed: at most {MAX_EXACT_QUBITS} "

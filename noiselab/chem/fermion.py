@@ -27,6 +27,7 @@ from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
+from qiskit.quantum_info import PauliList, SparsePauliOp
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 MAX_MODES = 64
@@ -202,8 +203,6 @@ def to_sparse_pauli_op(
     With ``hermitian=True`` the coefficients are returned real, after checking that every merged
     imaginary part is below ``atol`` (ValueError otherwise); with ``False`` they stay complex.
     """
-    from qiskit.quantum_info import PauliList, SparsePauliOp
-
     x = np.concatenate([p.x for p in parts])
     z = np.concatenate([p.z for p in parts])
     c = np.concatenate([_label_coeffs(p) for p in parts])

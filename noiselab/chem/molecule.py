@@ -4,8 +4,6 @@ Energies in Hartree (``_ha``), geometry in Angstrom. Integrals are in the molecu
 the (RO)HF reference, restricted to the active space, two-electron integrals in chemists' notation
 ``h2[p, q, r, s] = (pq|rs)``. The frozen core (every doubly occupied orbital below the active space)
 is folded into ``e_core_ha`` and into the one-electron integrals (PySCF ``CASCI.get_h1eff``).
-
-PySCF is imported inside the functions, so importing this module is cheap.
 """
 
 from __future__ import annotations
@@ -13,10 +11,13 @@ from __future__ import annotations
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass
+from math import comb
 from typing import Any
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, ValidationInfo, field_validator
+from pyscf import ao2mo, fci, gto, mcscf, scf
+from pyscf.data import elements
 
 from noiselab.common.errors import InputError, ProblemTooLargeError, from_validation_error
 
@@ -37,8 +38,6 @@ MIN_CHARGE = -10
 
 
 def _element_numbers() -> dict[str, int]:
-    from pyscf.data import elements
-
     return {sym.upper(): z for z, sym in enumerate(elements.ELEMENTS) if z > 0}
 
 
@@ -132,8 +131,6 @@ class MoleculeSpec(BaseModel):
     @field_validator("basis")
     @classmethod
     def _check_basis(cls, value: str, info: ValidationInfo) -> str:
-        from pyscf import gto
-
         atoms = info.data.get("geometry")
         symbols = sorted({a[0] for a in atoms}) if atoms else ["H"]
         for symbol in symbols:
@@ -250,8 +247,6 @@ def molecule_sizes(spec: MoleculeSpec) -> MoleculeSizes:
 
 
 def _build_mole(atoms: tuple[Atom, ...], basis: str, charge: int, spin: int, symmetry: bool) -> Any:
-    from pyscf import gto
-
     return gto.M(
         atom=[[a[0], (a[1], a[2], a[3])] for a in atoms],
         basis=basis,
@@ -314,8 +309,6 @@ def _readonly(a: np.ndarray) -> np.ndarray:
 
 def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
     """Run (RO)HF, build active-space integrals and the exact (FCI/CASCI) energy with PySCF."""
-    from pyscf import ao2mo, fci, mcscf, scf
-
     mol = _build_mole(spec.geometry, spec.basis, spec.charge, spec.spin, spec.symmetry)
     n_elec = int(mol.nelectron)
     n_mo = int(mol.nao_nr())
@@ -396,6 +389,4 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
 
 
 def _binom(n: int, k: int) -> int:
-    from math import comb
-
     return comb(n, k)

@@ -15,14 +15,14 @@ order, as in ``QuantumCircuit.assign_parameters(list)``.
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 import numpy as np
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit import ParameterExpression
+from qiskit.quantum_info import Operator, SparsePauliOp
 
 from noiselab.common.errors import ProblemTooLargeError
-
-if TYPE_CHECKING:
-    from qiskit import QuantumCircuit
 
 MAX_STATEVECTOR_QUBITS = 20
 
@@ -64,8 +64,6 @@ def _pauli_action(label: str, qubits: tuple[int, ...], n: int) -> tuple[np.ndarr
 
 def _linear_angle(expr: Any, params: dict[Any, int]) -> tuple[int, float, float]:
     """(parameter index, slope, offset) of an angle that is linear in at most one parameter."""
-    from qiskit.circuit import ParameterExpression
-
     if not isinstance(expr, ParameterExpression):
         return -1, 0.0, float(expr)
     free = list(expr.parameters)
@@ -99,9 +97,6 @@ class StatevectorProgram:
 
     # -- compilation -------------------------------------------------------------------------
     def _compile(self, circuit: QuantumCircuit, wires: tuple[int, ...], index: dict) -> None:
-        from qiskit.circuit import ParameterExpression
-        from qiskit.quantum_info import Operator
-
         for inst in circuit.data:
             op = inst.operation
             qubits = tuple(wires[circuit.find_bit(q).index] for q in inst.qubits)
@@ -128,8 +123,6 @@ class StatevectorProgram:
             elif is_param:
                 definition = op.definition
                 if definition is None:
-                    from qiskit import QuantumCircuit, transpile
-
                     single = QuantumCircuit(op.num_qubits)
                     single.append(op, range(op.num_qubits))
                     definition = transpile(
@@ -146,8 +139,6 @@ class StatevectorProgram:
         self.steps.append(_Rotation(m, slope, offset, perm, phase))
 
     def _add_evolution(self, gate: Any, qubits: tuple[int, ...], index: dict) -> None:
-        from qiskit.quantum_info import SparsePauliOp
-
         ops = gate.operator if isinstance(gate.operator, list) else [gate.operator]
         m, slope, offset = _linear_angle(gate.params[0], index)
         reps = int(getattr(gate.synthesis, "reps", 1) or 1)

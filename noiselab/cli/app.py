@@ -12,14 +12,16 @@ import sys
 import typer
 
 from noiselab import __version__
+from noiselab.cli import commands
+from noiselab.common.errors import NoiselabError
+from noiselab.common.wording import CAUTION
 
 app = typer.Typer(
     name="noiselab",
     help=(
         "Plan energy experiments on noisy quantum devices: will this variational energy "
         "calculation reach chemical accuracy on this device, with which error mitigation "
-        "and how many shots?\n\n"
-        "Predictions are only as good as the device noise profile: planning input, not a guarantee."
+        "and how many shots?\n\n" + CAUTION
     ),
     no_args_is_help=True,
     add_completion=False,
@@ -50,29 +52,27 @@ def _root(
 
 def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
-    from noiselab.cli import commands
-
     for register in commands.REGISTRY:
         register(app)
 
 
+def _cli_error_classes() -> tuple[type[Exception], type[Exception]]:
+    """The CLI library's usage-error and error base classes, from typer's public API alone.
+
+    typer >= 0.20 vendors its own click and no longer depends on the ``click`` distribution;
+    older typer re-exports click's classes. ``typer.BadParameter`` derives from both in either
+    case, so its method resolution order names them without importing an undeclared package.
+    """
+    bases = {cls.__name__: cls for cls in typer.BadParameter.__mro__}
+    return bases["UsageError"], bases["ClickException"]
+
+
+INTERRUPTED = "noiselab: interrupted; finished results are kept in the cache"
+
+
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
-    import click
-
-    # recent typer vendors its own copy of click (typer._click): catch both kinds
-    usage_errors: tuple[type[Exception], ...] = (click.exceptions.UsageError,)
-    click_errors: tuple[type[Exception], ...] = (click.exceptions.ClickException,)
-    try:
-        from typer._click import exceptions as typer_click_exceptions
-
-        usage_errors += (typer_click_exceptions.UsageError,)
-        click_errors += (typer_click_exceptions.ClickException,)
-    except ImportError:  # pragma: no cover - typer using click itself
-        pass
-
-    from noiselab.common.errors import NoiselabError
-
+    usage_error, click_error = _cli_error_classes()
     _register_commands()
     command = typer.main.get_command(app)
     args = sys.argv[1:] if argv is None else argv
@@ -81,17 +81,15 @@ def main(argv: list[str] | None = None) -> None:
     except NoiselabError as exc:
         typer.echo(f"noiselab: error: {exc.message}", err=True)
         sys.exit(exc.exit_code)
-    except usage_errors as exc:
-        hint = f" (see '{exc.ctx.command_path} --help')" if exc.ctx is not None else ""
+    except usage_error as exc:
+        ctx = getattr(exc, "ctx", None)
+        hint = f" (see '{ctx.command_path} --help')" if ctx is not None else ""
         typer.echo(f"noiselab: error: {exc.format_message()}{hint}", err=True)
         sys.exit(2)
-    except click.exceptions.Abort:
-        typer.echo("noiselab: interrupted", err=True)
+    except (typer.Abort, KeyboardInterrupt):
+        typer.echo(INTERRUPTED, err=True)
         sys.exit(130)
-    except KeyboardInterrupt:
-        typer.echo("noiselab: interrupted; finished results are kept in the cache", err=True)
-        sys.exit(130)
-    except click_errors as exc:
+    except click_error as exc:
         typer.echo(f"noiselab: error: {exc.format_message()}", err=True)
         sys.exit(exc.exit_code)
     except Exception as exc:  # an internal failure: still one line unless debugging
@@ -103,6 +101,6 @@ def main(argv: list[str] | None = None) -> None:
             err=True,
         )
         sys.exit(1)
-    if rc == 130:  # typer answers Ctrl-C itself with a silent exit code 130
-        typer.echo("noiselab: interrupted; finished results are kept in the cache", err=True)
+    if rc == 130:  # typer turns Ctrl-C into a silent Exit(130) when not standalone
+        typer.echo(INTERRUPTED, err=True)
     sys.exit(rc if isinstance(rc, int) else 0)

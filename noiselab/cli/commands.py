@@ -19,3 +19,9 @@ REGISTRY.append(profile_cmd.register)
 from noiselab.cli import sweep_cmds  # noqa: E402  (sweep, budget)
 
 REGISTRY.append(sweep_cmds.register)
+from noiselab.cli import shipped_cmd  # noqa: E402  (shipped)
+
+REGISTRY.append(shipped_cmd.register)
+from noiselab.cli import scan_cmds  # noqa: E402  (compare, scan)
+
+REGISTRY.append(scan_cmds.register)

@@ -11,6 +11,11 @@ from typing import Annotated, Any
 
 import typer
 
+from noiselab.common.errors import InputError
+
+# Deliberately lazy: the device layer and rich are imported inside the command functions
+# (noiselab --help stays fast).
+
 ProfileArg = Annotated[
     Path, typer.Argument(help="Device noise profile (YAML).", show_default=False)
 ]
@@ -32,7 +37,6 @@ def check(
 
     Example: noiselab profile check configs/devices/amberline-10.yaml
     """
-    from noiselab.common.errors import InputError
     from noiselab.device.profile import load_profile, profile_warnings
 
     profile = load_profile(file)
@@ -62,8 +66,8 @@ def _qubit_table(profile: Any) -> Any:
         "T2 (us)",
         "1q error",
         "1q relaxation-only error",
-        "P(1|0)",
-        "P(0|1)",
+        "flip 0->1 (probability)",
+        "flip 1->0 (probability)",
         "over-rotation (fraction)",
         "idle time to 1% error (us)",
     ):
@@ -78,8 +82,8 @@ def _qubit_table(profile: Any) -> Any:
             _fmt(qp.t2_us),
             _fmt(qp.gate_error),
             _fmt(relax),
-            _fmt(qp.p_read1_prep0),
-            _fmt(qp.p_read0_prep1),
+            _fmt(qp.flip_0to1),
+            _fmt(qp.flip_1to0),
             _fmt(qp.over_rotation_fraction),
             _fmt(None if t_ns is None else t_ns * 1e-3),
         )
@@ -143,6 +147,20 @@ def _summary_table(profile: Any) -> Any:
     table.add_row(
         "two-qubit gate layers within that time",
         "inf" if worst_ns is None else str(int(worst_ns // d.two_qubit_ns)),
+    )
+    dr = profile.drift
+    table.add_row(
+        "drift between days, relative std. (T1, T2, 1q error, 2q error, readout)",
+        ", ".join(
+            f"{v:.0%}"
+            for v in (
+                dr.t1_rel_std,
+                dr.t2_rel_std,
+                dr.single_qubit_error_rel_std,
+                dr.two_qubit_error_rel_std,
+                dr.readout_error_rel_std,
+            )
+        ),
     )
     return table
 

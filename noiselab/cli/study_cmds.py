@@ -7,12 +7,18 @@ imported inside the command functions so that ``noiselab --help`` stays fast.
 from __future__ import annotations
 
 import contextlib
+import json
 import sys
 from collections.abc import Callable, Iterator
 from pathlib import Path
 from typing import Annotated, Any
 
 import typer
+
+from noiselab.common.errors import InputError, input_error
+
+# Deliberately lazy: the study and report layers and rich are imported inside the command
+# functions (noiselab --help stays fast).
 
 DEMO_DIR = "noiselab-demo"
 
@@ -141,8 +147,6 @@ def _check_method(method: str | None) -> None:
     from noiselab.study.spec import EMULATION_METHODS
 
     if method not in EMULATION_METHODS:
-        from noiselab.common.errors import input_error
-
         raise input_error(None, "--method", f"{method!r}", ", ".join(EMULATION_METHODS))
 
 
@@ -157,10 +161,37 @@ def _open_cache(cache: Path | None, no_cache: bool) -> Any:
     from noiselab.study.cache import open_cache
 
     if no_cache and cache is not None:
-        from noiselab.common.errors import InputError
-
         raise InputError("--cache: given together with --no-cache; allowed: one of them")
     return open_cache(cache, enabled=not no_cache)
+
+
+def _run_job(
+    job: Callable[..., Any],
+    study: Path,
+    *,
+    cache: Path | None,
+    no_cache: bool,
+    quiet: bool,
+    method: str | None,
+    **options: Any,
+) -> Any:
+    """What every study command does around its job: refuse a bad --method, open the results
+    cache, run ``job(study, ...)`` under progress bars, print its emulation notice."""
+    _check_method(method)
+    store = _open_cache(cache, no_cache)
+    with _progress(quiet) as hook:
+        result = job(study, cache=store, progress=hook, method=method, **options)
+    emit_notice(result)
+    return result
+
+
+def echo_written(written: list[Path]) -> None:
+    """'Wrote N file(s) to FOLDER: names' (nothing when no file was written)."""
+    if written:
+        typer.echo(
+            f"Wrote {len(written)} file(s) to {written[0].parent}: "
+            + ", ".join(p.name for p in written)
+        )
 
 
 def _stdout_is_terminal() -> bool:
@@ -231,8 +262,6 @@ def _print_table(title: str, headers: tuple[str, ...], rows: list[tuple[str, ...
 
 
 def _print_json(obj: dict[str, Any]) -> None:
-    import json
-
     sys.stdout.write(json.dumps(obj, indent=2, sort_keys=False) + "\n")
     sys.stdout.flush()
 
@@ -243,9 +272,19 @@ def _context_lines(ctx: Any) -> list[str]:
         f"Study {c.study}: {c.qubits} qubits ({c.encoding}), {c.ansatz} ansatz with "
         f"{c.n_parameters} parameters, device {c.device} (patch {list(c.patch)}, "
         f"{c.two_qubit_count} two-qubit gates, {c.duration_ns / 1000:.2f} us)",
-        f"Energies (Ha): exact {c.exact_energy_ha:.6f}, Hartree-Fock {c.hf_energy_ha:.6f}, "
-        f"noiseless ansatz {c.ansatz_energy_ha:.6f} ({c.ansatz_error_mha:+.3f} mHa from exact)",
+        f"Energies (Ha): exact {c.exact_energy_ha:.6f}{_spin(c.exact_spin_squared)}, "
+        f"Hartree-Fock {c.hf_energy_ha:.6f}, noiseless ansatz {c.ansatz_energy_ha:.6f} "
+        f"({c.ansatz_error_mha:+.3f} mHa from exact{_spin(c.ansatz_spin_squared, ', ')}; "
+        f"{c.optimizer_starts} optimizer start(s))",
+        *(f"Warning: {w}" for w in getattr(c, "warnings", ())),
     ]
+
+
+def _spin(s2: float | None, sep: str = " ") -> str:
+    """' (S^2 0.000)' beside an energy; empty when unknown."""
+    if s2 is None:
+        return ""
+    return f"{sep}S^2 {s2:.3f}" if sep != " " else f" (S^2 {s2:.3f})"
 
 
 def _write_assess_outputs(result: Any, out: Path) -> list[Path]:
@@ -276,24 +315,34 @@ def assess_cmd(
     timings: TimingsOpt = False,
     method: MethodOpt = None,
     trajectories: TrajectoriesOpt = None,
+    drift: Annotated[
+        int | None,
+        typer.Option(
+            "--drift",
+            min=1,
+            max=1000,
+            help="Also assess every recipe on N device profiles drawn with the profile's drift: "
+            "spreads (seeded by the study's seed): how many drawn days reach the target.",
+            show_default=False,
+        ),
+    ] = None,
 ) -> None:
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
     from noiselab.study.assess import assess
 
-    _check_method(method)
     out_dir = check_out(out, ASSESS_FILES)
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet or json_out) as hook:
-        result = assess(
-            study,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        assess,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet or json_out,
+        method=method,
+        seed=seed,
+        shots=shots,
+        trajectories=trajectories,
+        drift=drift,
+    )
     written = (
         publish(out_dir, lambda d: _write_assess_outputs(result, d)) if out_dir is not None else []
     )
@@ -337,11 +386,7 @@ def _show_assess(result: Any, written: list[Path]) -> None:
             f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
             f"{s.wall_seconds:.1f} s)"
         )
-    if written:
-        typer.echo(
-            f"Wrote {len(written)} file(s) to {written[0].parent}: "
-            + ", ".join(p.name for p in written)
-        )
+    echo_written(written)
 
 
 # ---------------------------------------------------------------- tune
@@ -350,8 +395,6 @@ def _show_assess(result: Any, written: list[Path]) -> None:
 def _parse_scale_sets(values: list[str] | None) -> list[list[float]] | None:
     if not values:
         return None
-    from noiselab.common.errors import input_error
-
     out = []
     for text in values:
         try:
@@ -419,7 +462,7 @@ def tune_cmd(
     from noiselab.common.counts import parse_count
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
 
-    _check_method(method)
+    _check_method(method)  # before --scales is parsed
     n_top = parse_count(top, "--top", 1, 10**6)
     out_dir = check_out(out, TUNE_FILES)
     n_workers = workers_count(workers)
@@ -431,21 +474,20 @@ def tune_cmd(
         scales=_parse_scale_sets(scales),
         fit=fit or None,
     )
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet or json_out) as hook:
-        result = tune(
-            study,
-            grid=override,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=n_workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        tune,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet or json_out,
+        method=method,
+        grid=override,
+        seed=seed,
+        shots=shots,
+        workers=n_workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     written = (
         publish(out_dir, lambda d: write_tune_outputs(result, d)) if out_dir is not None else []
     )

@@ -6,7 +6,6 @@ inside the command functions so that ``noiselab --help`` stays fast.
 
 from __future__ import annotations
 
-from pathlib import Path
 from typing import Annotated, Any
 
 import typer
@@ -22,7 +21,15 @@ from noiselab.cli.study_cmds import (
     StudyArg,
     TrajectoriesOpt,
     WorkersOpt,
+    _check_method,
+    _console,
+    _run_job,
+    echo_written,
 )
+from noiselab.common.wording import CAUTION
+
+# Deliberately lazy: the study and report layers are imported inside the command functions
+# (noiselab --help stays fast).
 
 KNOB_HELP = (
     "What to vary: noise-scale (every channel, 1 = device as profiled), two-qubit-error, "
@@ -49,17 +56,7 @@ OutOpt = Annotated[
 ]
 
 
-def _echo_written(written: list[Path]) -> None:
-    if written:
-        typer.echo(
-            f"Wrote {len(written)} file(s) to {written[0].parent}: "
-            + ", ".join(p.name for p in written)
-        )
-
-
 def _print(table: Any) -> None:
-    from noiselab.cli.study_cmds import _console
-
     _console().print(table)
 
 
@@ -121,54 +118,46 @@ def sweep_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import (
-        _check_method,
-        _open_cache,
-        _progress,
-        check_out,
-        emit_notice,
-        publish,
-        workers_count,
-    )
-    from noiselab.study.sweep import KNOBS, get_knob, sweep
+    from noiselab.cli.study_cmds import check_out, publish, workers_count
+    from noiselab.study.knobs import KNOBS
+    from noiselab.study.sweep import get_knob, sweep
 
-    _check_method(method)
-
+    _check_method(method)  # before the knob
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
     names = tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
     out_dir = check_out(out, names)
     n_workers = workers_count(workers)
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = sweep(
-            study,
-            knob=vary,
-            start=start,
-            stop=stop,
-            points=points,
-            log=log,
-            recipes=recipe or None,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=n_workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        sweep,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        knob=vary,
+        start=start,
+        stop=stop,
+        points=points,
+        log=log,
+        recipes=recipe or None,
+        seed=seed,
+        shots=shots,
+        workers=n_workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import sweep_table
 
     _print(sweep_table(result))
     for c in result.crossings:
         typer.echo(c.sentence + ".")
+    typer.echo(f"{result.crossing_method[0].upper()}{result.crossing_method[1:]}.")
     for note in result.notes():
         typer.echo(f"Note: {note}.")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if result.stats is not None:
         s = result.stats
         typer.echo(
@@ -178,7 +167,7 @@ def sweep_cmd(
     if out_dir is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        _echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
+        echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
 
 
 def budget_cmd(
@@ -203,47 +192,37 @@ def budget_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import (
-        _check_method,
-        _open_cache,
-        _progress,
-        check_out,
-        emit_notice,
-        publish,
-        workers_count,
-    )
+    from noiselab.cli.study_cmds import check_out, publish, workers_count
     from noiselab.study.budget import budget
 
     _check_method(method)
     out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg")))
     n_workers = workers_count(workers)
-
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet) as hook:
-        result = budget(
-            study,
-            recipe=recipe,
-            cache=store,
-            seed=seed,
-            shots=shots,
-            workers=n_workers,
-            cluster=cluster,
-            progress=hook,
-            method=method,
-            trajectories=trajectories,
-        )
-    emit_notice(result)
+    result = _run_job(
+        budget,
+        study,
+        cache=cache,
+        no_cache=no_cache,
+        quiet=quiet,
+        method=method,
+        recipe=recipe,
+        seed=seed,
+        shots=shots,
+        workers=n_workers,
+        cluster=cluster,
+        trajectories=trajectories,
+    )
     from noiselab.report.tables import budget_table
 
     _print(budget_table(result))
     typer.echo(result.sentence + ".")
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
-    typer.echo("Caution: emulated; only as good as the device noise model.")
+    typer.echo(CAUTION)
     if out_dir is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        _echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
+        echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
 
 
 _SWEEP_HELP = (

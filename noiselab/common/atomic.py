@@ -52,15 +52,6 @@ def write_text_atomic(target: str | Path, text: str) -> Path:
     return Path(target)
 
 
-def write_bytes_atomic(target: str | Path, data: bytes) -> Path:
-    """Write ``data`` to ``target`` atomically; return the path."""
-    with atomic_path(target) as tmp, open(tmp, "wb") as fh:
-        fh.write(data)
-        fh.flush()
-        os.fsync(fh.fileno())
-    return Path(target)
-
-
 # ---------------------------------------------------------------- a job's output set
 
 #: Prefix of the hidden folder a job's files are written into before they move into place.

@@ -16,6 +16,8 @@ from __future__ import annotations
 from pathlib import Path
 from typing import Any
 
+import yaml
+
 from noiselab.common.errors import input_error, quote
 from noiselab.common.reading import MAX_INPUT_BYTES, read_input_text
 
@@ -37,8 +39,6 @@ class _RefusedError(Exception):
 
 
 def _loader_class() -> type:
-    import yaml
-
     base = getattr(yaml, "CSafeLoader", None) or yaml.SafeLoader
 
     class StrictLoader(base):  # type: ignore[misc,valid-type]
@@ -73,8 +73,6 @@ def _check_aliases(root: Any) -> None:
 
     An alias is a second reference to a composed node. Sizes are memoized per node, so the
     check costs one visit per reference in the file however large the expansion would be."""
-    import yaml
-
     sizes: dict[int, int] = {}
     active: set[int] = set()
     refs = [0]
@@ -123,8 +121,6 @@ def load_yaml_mapping(path: str | Path, what: str = "file") -> dict[str, Any]:
 
 def parse_yaml_mapping(text: str, source: str, what: str = "file") -> dict[str, Any]:
     """Parse YAML text with the strict safe loader and require a mapping at the top level."""
-    import yaml
-
     loader = _loader_class()(text)
     try:
         node = loader.get_single_node()

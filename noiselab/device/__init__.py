@@ -5,7 +5,7 @@ Names are loaded lazily so that ``import noiselab.device`` does not import qiski
 
 from __future__ import annotations
 
-from typing import Any
+from noiselab.common.lazy import lazy_exports
 
 _EXPORTS = {
     "DeviceProfile": "profile",
@@ -21,16 +21,10 @@ _EXPORTS = {
     "CompiledCircuit": "compile",
     "build_target": "compile",
     "compile_to_device": "compile",
+    "compile_ensemble": "compile",
+    "CompileEnsemble": "compile",
     "select_patch": "compile",
 }
 
 __all__ = sorted(_EXPORTS)
-
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        import importlib
-
-        module = importlib.import_module(f"noiselab.device.{_EXPORTS[name]}")
-        return getattr(module, name)
-    raise AttributeError(f"module 'noiselab.device' has no attribute {name!r}")
+__getattr__ = lazy_exports(__name__, _EXPORTS)

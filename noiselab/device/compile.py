@@ -8,14 +8,23 @@ Parameterized circuits are transpiled once and bound many times (:meth:`Compiled
 (1 - average infidelity of the gate's full error channel, coherent terms included) times, for
 every delay of duration t on a qubit, (1 - r_idle(t)) with r_idle the average infidelity of
 thermal relaxation over t. It ignores readout and how errors propagate.
+``estimate_error_budget`` sums the same infidelities per kind of operation (the realized noise
+scale of a folded circuit is the ratio of its total to the unfolded one's).
 """
 
 from __future__ import annotations
 
 import dataclasses
+import hashlib
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
+
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit import Delay, Measure, Parameter
+from qiskit.circuit.library import CXGate, CZGate, ECRGate, RZGate, SXGate, XGate
+from qiskit.transpiler import InstructionProperties, Target
+from qiskit.transpiler.exceptions import TranspilerError
 
 from noiselab.common.errors import InputError, input_error
 from noiselab.device import thermal
@@ -75,10 +84,6 @@ class CompiledCircuit:
 def build_target(profile: DeviceProfile, patch: Sequence[int]) -> Any:
     """qiskit ``Target`` on circuit qubits 0..k-1 (physical ``patch``): natives with durations
     (seconds) and errors (average infidelity of the full channel), Delay and Measure."""
-    from qiskit.circuit import Delay, Measure, Parameter
-    from qiskit.circuit.library import CXGate, CZGate, ECRGate, RZGate, SXGate, XGate
-    from qiskit.transpiler import InstructionProperties, Target
-
     patch = check_patch(profile, patch)
     k = len(patch)
     target = Target(num_qubits=k, description=f"{profile.name} patch {list(patch)}")
@@ -109,7 +114,7 @@ def build_target(profile: DeviceProfile, patch: Sequence[int]) -> Any:
         qp = profile.qubit(q)
         meas[(i,)] = InstructionProperties(
             duration=profile.durations.readout_ns * 1e-9,
-            error=0.5 * (qp.p_read1_prep0 + qp.p_read0_prep1),
+            error=0.5 * (qp.flip_0to1 + qp.flip_1to0),
         )
     target.add_instruction(Measure(), meas)
     return target
@@ -133,7 +138,7 @@ def _connected(profile: DeviceProfile, qubits: Sequence[int]) -> bool:
 def _qubit_cost(profile: DeviceProfile, q: int) -> float:
     qp = profile.qubit(q)
     idle = thermal.relaxation_infidelity(profile.durations.two_qubit_ns, [(qp.t1_us, qp.t2_us)])
-    return qp.gate_error + 0.5 * (qp.p_read1_prep0 + qp.p_read0_prep1) + idle
+    return qp.gate_error + 0.5 * (qp.flip_0to1 + qp.flip_1to0) + idle
 
 
 def select_patch(
@@ -223,10 +228,14 @@ def circuit_duration_ns(circuit: Any, profile: DeviceProfile) -> float:
     return max(clock) if clock else 0.0
 
 
-def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]) -> float:
-    """Product of (1 - gate infidelity) and idle relaxation factors (see module docstring)."""
+def operation_errors(
+    circuit: Any, profile: DeviceProfile, patch: Sequence[int]
+) -> list[tuple[str, float]]:
+    """(kind, average infidelity) of every noisy operation: kind "two_qubit" or "single_qubit"
+    for gates (the full error channel, coherent terms included), "idle" for thermal relaxation
+    over a delay; virtual gates and barriers are left out."""
     cache: dict[tuple[str, tuple[int, ...]], float] = {}
-    fid = 1.0
+    out: list[tuple[str, float]] = []
     for inst in circuit.data:
         name = inst.operation.name
         idx = tuple(circuit.find_bit(q).index for q in inst.qubits)
@@ -236,19 +245,41 @@ def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]
         if name == "delay":
             qp = profile.qubit(phys[0])
             t_ns = delay_seconds(inst.operation) * 1e9
-            fid *= 1.0 - thermal.relaxation_infidelity(t_ns, [(qp.t1_us, qp.t2_us)])
+            out.append(("idle", thermal.relaxation_infidelity(t_ns, [(qp.t1_us, qp.t2_us)])))
             continue
         key = (name, phys)
         if key not in cache:
             cache[key] = gate_infidelity(profile, name, phys)
-        fid *= 1.0 - cache[key]
+        out.append(("two_qubit" if len(phys) == 2 else "single_qubit", cache[key]))
+    return out
+
+
+def estimate_fidelity(circuit: Any, profile: DeviceProfile, patch: Sequence[int]) -> float:
+    """Product of (1 - gate infidelity) and idle relaxation factors (see module docstring)."""
+    fid = 1.0
+    for _, r in operation_errors(circuit, profile, patch):
+        fid *= 1.0 - r
     return min(1.0, max(0.0, fid))
+
+
+ERROR_KINDS = ("two_qubit", "single_qubit", "idle")
+
+
+def estimate_error_budget(
+    circuit: Any, profile: DeviceProfile, patch: Sequence[int]
+) -> dict[str, float]:
+    """Estimated error of a compiled circuit per kind of operation ("two_qubit",
+    "single_qubit", "idle"): the sum of the operations' average infidelities. Additive (first
+    order in the error rates), so it grows by s when every rate grows by s; the ratio of two
+    circuits' totals is the noise scale one realizes relative to the other."""
+    budget = dict.fromkeys(ERROR_KINDS, 0.0)
+    for kind, r in operation_errors(circuit, profile, patch):
+        budget[kind] += r
+    return budget
 
 
 def _prepare(circuit: Any) -> Any:
     """Drop final measurements; refuse anything the emulator cannot take."""
-    from qiskit import QuantumCircuit
-
     if not isinstance(circuit, QuantumCircuit):
         raise InputError(f"circuit: expected a qiskit QuantumCircuit, got {type(circuit).__name__}")
     out = circuit.remove_final_measurements(inplace=False) if circuit.num_clbits else circuit
@@ -273,8 +304,6 @@ def synthesize_abstract(circuit: Any) -> Any:
     target-aware synthesis expand the Pauli exponentials (H2 in Jordan-Wigner: 19 instead of 48
     CZ on an all-to-all device, 39 instead of 48 on a line).
     """
-    from qiskit import transpile
-
     return transpile(
         circuit, basis_gates=["cx", "rz", "sx", "x"], optimization_level=2, seed_transpiler=0
     )
@@ -294,22 +323,114 @@ def compile_to_device(
     level 1 and above, Pauli exponentials are synthesized before routing
     (:func:`synthesize_abstract`); level 0 transpiles the circuit as given.
     """
-    from qiskit import transpile
-    from qiskit.transpiler.exceptions import TranspilerError
+    return compile_ensemble(circuit, profile, layout, optimization_level, (seed,)).chosen
 
+
+@dataclass(frozen=True)
+class CompileEnsemble:
+    """One circuit compiled with several transpiler seeds, and the compile an experimenter
+    would run: fewest two-qubit gates, then shortest schedule, then the earliest seed."""
+
+    seeds: tuple[int, ...]
+    compiles: tuple[CompiledCircuit, ...]  # one per seed
+    chosen_index: int
+    #: index of the first compile of each distinct compiled circuit (seed order)
+    distinct: tuple[int, ...]
+
+    @property
+    def chosen(self) -> CompiledCircuit:
+        return self.compiles[self.chosen_index]
+
+    @property
+    def chosen_seed(self) -> int:
+        return self.seeds[self.chosen_index]
+
+    @property
+    def alternatives(self) -> tuple[CompiledCircuit, ...]:
+        """The distinct compiles other than the chosen one's circuit."""
+        mine = circuit_fingerprint(self.chosen)
+        return tuple(
+            self.compiles[i] for i in self.distinct if circuit_fingerprint(self.compiles[i]) != mine
+        )
+
+
+def circuit_fingerprint(compiled: CompiledCircuit) -> str:
+    """Digest of a compiled circuit's instructions (names, qubits, parameters to 12 digits) and
+    of its logical-to-circuit map: equal for compiles that run the same experiment."""
+    h = hashlib.sha256(repr(compiled.logical_to_circuit).encode())
+    circuit = compiled.circuit
+    for inst in circuit.data:
+        qubits = tuple(circuit.find_bit(q).index for q in inst.qubits)
+        params = tuple(
+            f"{float(p):.12g}" if isinstance(p, int | float) else str(p)
+            for p in inst.operation.params
+        )
+        h.update(repr((inst.operation.name, qubits, params)).encode())
+    return h.hexdigest()
+
+
+def choose_compile(compiles: Sequence[CompiledCircuit]) -> int:
+    """Index of the compile an experimenter would pick: fewest two-qubit gates, then shortest
+    schedule (to 1e-6 ns), then the first."""
+    return min(
+        range(len(compiles)),
+        key=lambda i: (compiles[i].two_qubit_count, round(compiles[i].duration_ns, 6), i),
+    )
+
+
+def compile_ensemble(
+    circuit: Any,
+    profile: DeviceProfile,
+    layout: Sequence[int] | None = None,
+    optimization_level: int = 2,
+    seeds: Sequence[int] = tuple(range(8)),
+) -> CompileEnsemble:
+    """:func:`compile_to_device` with each transpiler seed (patch selection and the abstract
+    synthesis are shared), the chosen compile (:func:`choose_compile`) and the distinct ones."""
     if optimization_level not in (0, 1, 2, 3):
         raise input_error(
             None, "optimization_level", f"{optimization_level!r} is not allowed", "0, 1, 2 or 3"
         )
+    seeds = tuple(int(s) for s in seeds)
+    if not seeds:
+        raise input_error(None, "compile.seeds", "no seed", "at least one transpiler seed")
     circ = _prepare(circuit)
-    n = circ.num_qubits
-    patch = select_patch(profile, n, layout)
+    patch = select_patch(profile, circ.num_qubits, layout)
     target = build_target(profile, patch)
+    source = synthesize_abstract(circ) if optimization_level >= 1 else circ
+    compiles = tuple(
+        _transpile_one(
+            source, circ, profile, patch, target, layout is not None, optimization_level, seed
+        )
+        for seed in seeds
+    )
+    first: dict[str, int] = {}
+    for i, c in enumerate(compiles):
+        first.setdefault(circuit_fingerprint(c), i)
+    return CompileEnsemble(
+        seeds=seeds,
+        compiles=compiles,
+        chosen_index=choose_compile(compiles),
+        distinct=tuple(sorted(first.values())),
+    )
+
+
+def _transpile_one(
+    source: Any,
+    circ: Any,
+    profile: DeviceProfile,
+    patch: tuple[int, ...],
+    target: Any,
+    fixed_layout: bool,
+    optimization_level: int,
+    seed: int,
+) -> CompiledCircuit:
+    n = circ.num_qubits
     try:
         out = transpile(
-            synthesize_abstract(circ) if optimization_level >= 1 else circ,
+            source,
             target=target,
-            initial_layout=list(range(n)) if layout is not None else None,
+            initial_layout=list(range(n)) if fixed_layout else None,
             optimization_level=optimization_level,
             seed_transpiler=seed,
             scheduling_method="alap",

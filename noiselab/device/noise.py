@@ -31,8 +31,14 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from qiskit import QuantumCircuit
+from qiskit.circuit import Delay
+from qiskit.circuit.library import RXGate, RZZGate
+from qiskit.quantum_info import Kraus, Operator, SuperOp, average_gate_fidelity
+from qiskit_aer.noise import NoiseModel, QuantumError, thermal_relaxation_error
+from qiskit_aer.noise.passes import LocalNoisePass
 
-from noiselab.common.errors import InputError, input_error
+from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device import thermal
 from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
 
@@ -82,10 +88,12 @@ def gate_noise(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> Gate
     return GateNoise(gate, qubits, duration_ns, quoted, r_relax, p, quoted < r_relax, zz, over)
 
 
+@functools.lru_cache(maxsize=8192)
 def relaxation_error(t_ns: float, t1_us: float | None, t2_us: float | None) -> Any:
-    """qiskit-aer thermal relaxation (to |0>) over ``t_ns``; ``None`` for infinite coherence."""
-    from qiskit_aer.noise import thermal_relaxation_error
+    """qiskit-aer thermal relaxation (to |0>) over ``t_ns``; ``None`` for infinite coherence.
 
+    Cached (the idle pass asks for the same few delay lengths on every run); callers must not
+    modify the returned error."""
     if t_ns <= 0.0 or (t1_us is None and t2_us is None):
         return None
     t1_s = math.inf if t1_us is None else t1_us * 1e-6
@@ -95,9 +103,6 @@ def relaxation_error(t_ns: float, t1_us: float | None, t2_us: float | None) -> A
 
 
 def _identity_error(num_qubits: int) -> Any:
-    from qiskit import QuantumCircuit
-    from qiskit_aer.noise import QuantumError
-
     return QuantumError([(QuantumCircuit(num_qubits), 1.0)])
 
 
@@ -106,8 +111,6 @@ _PARTS = frozenset({"relaxation", "depolarizing", "coherent"})
 
 @functools.lru_cache(maxsize=4096)
 def _relaxation_superop(t_ns: float, t1_us: float | None, t2_us: float | None) -> Any:
-    from qiskit.quantum_info import SuperOp
-
     err = relaxation_error(t_ns, t1_us, t2_us)
     return SuperOp(np.eye(4)) if err is None else SuperOp(err.to_quantumchannel())
 
@@ -121,9 +124,6 @@ def _noise_superop(
     over_rotation_rad: float,
     parts: frozenset[str],
 ) -> Any:
-    from qiskit.circuit.library import RXGate, RZZGate
-    from qiskit.quantum_info import Operator, SuperOp
-
     k = len(coherence)
     d = 2**k
     total = SuperOp(np.eye(d * d))
@@ -171,29 +171,23 @@ def _is_noiseless(key: tuple) -> bool:
     return not (relax or depol or coherent)
 
 
-def gate_superop(
-    profile: DeviceProfile, gate: str, qubits: Sequence[int], parts: Iterable[str] | None = None
-) -> Any:
-    """``qiskit.quantum_info.SuperOp`` of the error applied after native ``gate`` on ``qubits``.
-
-    ``parts`` picks a subset of {"relaxation", "depolarizing", "coherent"} (default all).
-    The channel's qubit 0 is ``qubits[0]``. Cached on the numerical parameters.
-    """
-    noise = gate_noise(profile, gate, qubits)
-    return _noise_superop(*_noise_key(profile, noise, parts))
-
-
 def channel_from_noise(
     profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None = None
 ) -> Any:
     """qiskit-aer ``QuantumError`` (one Kraus instruction) for a :class:`GateNoise`."""
-    from qiskit.quantum_info import Kraus
-    from qiskit_aer.noise import QuantumError
-
     key = _noise_key(profile, noise, parts)
     if _is_noiseless(key):
         return _identity_error(len(noise.qubits))
-    return QuantumError(Kraus(_noise_superop(*key)))
+    error = QuantumError(Kraus(_noise_superop(*key)))
+    # known not to be the identity (_is_noiseless): skip aer's ideal() test, which tries a
+    # Clifford conversion and formats every Kraus matrix into an exception message (most of the
+    # time of building a noise model); the instance attribute shadows the method
+    error.ideal = _not_ideal
+    return error
+
+
+def _not_ideal() -> bool:
+    return False
 
 
 def gate_channel(
@@ -202,16 +196,14 @@ def gate_channel(
     """The qiskit-aer ``QuantumError`` applied after native ``gate`` on physical ``qubits``.
 
     An identity error for rz and for noiseless gates (``error.ideal()`` is then true).
-    ``error.to_quantumchannel()`` (or :func:`gate_superop`) gives the ``qiskit.quantum_info``
-    channel for independent checks.
+    ``error.to_quantumchannel()`` gives the ``qiskit.quantum_info`` channel for independent
+    checks.
     """
     return channel_from_noise(profile, gate_noise(profile, gate, qubits), parts)
 
 
 def gate_infidelity(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> float:
     """Average infidelity of the full error channel of ``gate`` (quoted + coherent terms)."""
-    from qiskit.quantum_info import average_gate_fidelity
-
     noise = gate_noise(profile, gate, qubits)
     if noise.gate in VIRTUAL_GATES:
         return 0.0
@@ -253,9 +245,6 @@ def idle_relaxation_pass(
 
     Circuit qubit i has the coherence of physical qubit ``patch[i]``.
     """
-    from qiskit.circuit import Delay
-    from qiskit_aer.noise.passes import LocalNoisePass
-
     patch = check_patch(profile, patch)
     coherence = [(profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in patch]
 
@@ -296,8 +285,6 @@ def build_noise_model(
     Gate errors on every native gate of the patch (both directions of each linked pair) and,
     with ``idle_relaxation``, relaxation on delays (a noise pass aer applies at run time).
     """
-    from qiskit_aer.noise import NoiseModel
-
     patch = check_patch(profile, patch)
     model = NoiseModel(basis_gates=list(profile.native_gate_names))
     for i, q in enumerate(patch):
@@ -333,8 +320,8 @@ def readout_matrices(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray
     for i, q in enumerate(patch):
         qp = profile.qubit(q)
         out[i] = [
-            [1.0 - qp.p_read1_prep0, qp.p_read0_prep1],
-            [qp.p_read1_prep0, 1.0 - qp.p_read0_prep1],
+            [1.0 - qp.flip_0to1, qp.flip_1to0],
+            [qp.flip_0to1, 1.0 - qp.flip_1to0],
         ]
     return out
 
@@ -365,8 +352,6 @@ def readout_transfer_matrix(profile: DeviceProfile, patch: Sequence[int]) -> np.
 
     M = (prod of C_ij) @ (A_{k-1} x ... x A_0), C_ij = (1 - c) I + c F_ij. For checks; k <= 12.
     """
-    from noiselab.common.errors import ProblemTooLargeError
-
     patch = check_patch(profile, patch)
     k = len(patch)
     if k > MAX_DENSE_READOUT_QUBITS:
@@ -383,11 +368,3 @@ def readout_transfer_matrix(profile: DeviceProfile, patch: Sequence[int]) -> np.
         flipped = idx ^ (1 << i) ^ (1 << j)
         m = (1.0 - c) * m + c * m[flipped, :]
     return m
-
-
-def apply_readout_reference(
-    probs: np.ndarray, profile: DeviceProfile, patch: Sequence[int]
-) -> np.ndarray:
-    """Readout-distorted distribution(s) over circuit qubits, with the dense matrix (reference)."""
-    m = readout_transfer_matrix(profile, patch)
-    return np.asarray(probs) @ m.T

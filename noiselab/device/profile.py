@@ -19,8 +19,8 @@ A profile file looks like this (units are in the key names; rates are probabilit
         t1_us: 100
         t2_us: 90
         gate_error: 3.0e-4               # average infidelity of sx/x, relaxation included
-        p_read1_prep0: 0.015             # P(read 1 | prepared 0)
-        p_read0_prep1: 0.03              # P(read 0 | prepared 1)
+        flip_0to1: 0.015                 # P(read 1 | prepared 0)
+        flip_1to0: 0.03                  # P(read 0 | prepared 1)
         over_rotation_fraction: 0.0      # optional: sx/x rotate by (1 + f) x their angle
       overrides:
         2: {t1_us: 60, t2_us: 45}
@@ -32,6 +32,12 @@ A profile file looks like this (units are in the key names; rates are probabilit
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
       - {pair: [0, 1], joint_flip: 0.004}
+    drift:                               # optional; day-to-day relative standard deviations
+      t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
+      t2_rel_std: 0.2
+      single_qubit_error_rel_std: 0.2
+      two_qubit_error_rel_std: 0.2
+      readout_error_rel_std: 0.1
 
 Readout crosstalk model (``joint_flip`` c for a linked pair (a, b)): after the independent
 per-qubit assignment errors, with probability c both reported bits a and b are flipped
@@ -47,7 +53,10 @@ Quoted gate errors are the stochastic part (relaxation during the gate included)
 
 from __future__ import annotations
 
+import copy
+import hashlib
 import itertools
+import json
 import math
 import re
 from collections.abc import Iterable, Mapping
@@ -71,6 +80,8 @@ from pydantic import (
 
 from noiselab.common.counts import Count
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
+from noiselab.common.shipped import looks_like_name, shipped_path
+from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device import thermal
 
 SCHEMA_VERSION = 1
@@ -178,8 +189,8 @@ class QubitValues(BaseModel):
     t1_us: CoherenceTime | None
     t2_us: CoherenceTime | None
     gate_error: Rate1Q
-    p_read1_prep0: ReadoutRate
-    p_read0_prep1: ReadoutRate
+    flip_0to1: ReadoutRate
+    flip_1to0: ReadoutRate
     over_rotation_fraction: OverRotation = 0.0
 
     @field_validator("t1_us", "t2_us", mode="after")
@@ -195,8 +206,8 @@ class QubitOverride(BaseModel):
     t1_us: CoherenceTime | None = None
     t2_us: CoherenceTime | None = None
     gate_error: Rate1Q | None = None
-    p_read1_prep0: ReadoutRate | None = None
-    p_read0_prep1: ReadoutRate | None = None
+    flip_0to1: ReadoutRate | None = None
+    flip_1to0: ReadoutRate | None = None
     over_rotation_fraction: OverRotation | None = None
 
     @model_validator(mode="before")
@@ -244,6 +255,25 @@ class CrosstalkEntry(BaseModel):
     joint_flip: JointFlip
 
 
+RelStd = _num(0.0, 2.0)
+
+
+class DriftSpec(BaseModel):
+    """Relative standard deviations of the device's values between calibrations ("days").
+
+    Defaults (common practice, no single source): T1 and T2 of superconducting qubits move by
+    tens of percent from day to day, gate errors by a similar relative amount, readout errors
+    less. Coherent terms (ZZ, over-rotation), readout crosstalk and durations do not drift.
+    """
+
+    model_config = _CFG
+    t1_rel_std: RelStd = 0.2
+    t2_rel_std: RelStd = 0.2
+    single_qubit_error_rel_std: RelStd = 0.2
+    two_qubit_error_rel_std: RelStd = 0.2
+    readout_error_rel_std: RelStd = 0.1
+
+
 class NativeGates(BaseModel):
     model_config = _CFG
     single_qubit: tuple[Literal["rz", "sx", "x"], ...]
@@ -267,8 +297,8 @@ class QubitParams:
     t1_us: float | None
     t2_us: float | None
     gate_error: float
-    p_read1_prep0: float
-    p_read0_prep1: float
+    flip_0to1: float
+    flip_1to0: float
     over_rotation_fraction: float
 
 
@@ -299,6 +329,8 @@ class DeviceProfile(BaseModel):
     qubits: QubitSection
     couplers: PairSection
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
+    #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
+    drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
     _source: str = PrivateAttr(default="<profile>")
 
     @field_validator("name", mode="after")
@@ -347,9 +379,6 @@ class DeviceProfile(BaseModel):
     @property
     def fingerprint(self) -> str:
         """SHA-256 of the canonical JSON of every value (for cache keys); source not included."""
-        import hashlib
-        import json
-
         text = json.dumps(self.model_dump(mode="json"), sort_keys=True, separators=(",", ":"))
         return hashlib.sha256(text.encode()).hexdigest()
 
@@ -622,9 +651,10 @@ def profile_from_mapping(
 
 
 def load_profile(path: str | Path) -> DeviceProfile:
-    """Read and validate a device profile YAML file."""
-    from noiselab.common.yamlio import load_yaml_mapping
+    """Read and validate a device profile YAML file (a path, or a shipped profile's name)."""
 
+    if not Path(path).exists() and looks_like_name(str(path)):
+        path = shipped_path("devices", str(path), str(path), "device profile")
     data = load_yaml_mapping(path, what="device profile")
     return profile_from_mapping(data, str(path))
 
@@ -752,8 +782,6 @@ def scale_profile(
 
     s = 0 on all channels is noiseless; s = 1 returns an equal profile.
     """
-    import copy
-
     try:
         s = float(factor)
     except (TypeError, ValueError):
@@ -808,7 +836,7 @@ def scale_profile(
                 e["zz_angle_rad"] = _scaled_signed(e["zz_angle_rad"], s, MAX_ZZ_ANGLE_RAD)
     if "readout" in chosen:
         for e in q_entries:
-            for key in ("p_read1_prep0", "p_read0_prep1"):
+            for key in ("flip_0to1", "flip_1to0"):
                 if key in e:
                     e[key] = _scaled_rate(e[key], s, MAX_READOUT_ERROR)
         for e in data.get("readout_crosstalk", []):

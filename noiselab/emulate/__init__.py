@@ -5,7 +5,7 @@ Names are loaded lazily so that ``import noiselab.emulate`` does not import qisk
 
 from __future__ import annotations
 
-from typing import Any
+from noiselab.common.lazy import lazy_exports
 
 _EXPORTS = {
     "BasisDistributions": "engine",
@@ -15,9 +15,9 @@ _EXPORTS = {
     "BasisLayerSpec": "channels",
     "apply_readout": "readout",
     "assignment_matrix": "readout",
-    "CalibrationDistributions": "readout",
-    "calibration_distributions": "readout",
-    "calibration_states": "readout",
+    "CalibrationDistributions": "calibration",
+    "calibration_distributions": "calibration",
+    "calibration_states": "calibration",
     "estimate_memory_bytes": "memory",
     "available_memory_bytes": "memory",
     "check_memory": "memory",
@@ -25,12 +25,4 @@ _EXPORTS = {
 }
 
 __all__ = sorted(_EXPORTS)
-
-
-def __getattr__(name: str) -> Any:
-    if name in _EXPORTS:
-        import importlib
-
-        module = importlib.import_module(f"noiselab.emulate.{_EXPORTS[name]}")
-        return getattr(module, name)
-    raise AttributeError(f"module 'noiselab.emulate' has no attribute {name!r}")
+__getattr__ = lazy_exports(__name__, _EXPORTS)

@@ -20,6 +20,12 @@ from dataclasses import dataclass, field
 from functools import lru_cache
 
 import numpy as np
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit.library import get_standard_gate_name_mapping
+from qiskit.quantum_info import SuperOp
+from qiskit.transpiler.exceptions import TranspilerError
+
+from noiselab.common.errors import InputError
 
 #: Letters of a measurement basis; 'I' is measured like 'Z'.
 BASIS_LETTERS = ("I", "X", "Y", "Z")
@@ -48,8 +54,6 @@ def native_basis_change(
 
     ``letter="FLIP"`` gives an X gate (state preparation for readout calibration).
     """
-    from qiskit import QuantumCircuit, transpile
-
     qc = QuantumCircuit(1)
     if letter == "X":
         qc.h(0)
@@ -62,13 +66,9 @@ def native_basis_change(
         return ()
     else:
         raise ValueError(f"unknown basis letter {letter!r}")
-    from qiskit.transpiler.exceptions import TranspilerError
-
     try:
         out = transpile(qc, basis_gates=list(native_1q), optimization_level=1)
     except TranspilerError:
-        from noiselab.common.errors import InputError
-
         raise InputError(
             f"emulation: native single-qubit gates {list(native_1q)} cannot express the "
             f"{'X gate' if letter == 'FLIP' else letter + '-basis change'}; allowed: natives "
@@ -79,20 +79,28 @@ def native_basis_change(
     )
 
 
-def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
-    from qiskit.circuit.library import get_standard_gate_name_mapping
-    from qiskit.quantum_info import SuperOp
+@lru_cache(maxsize=1)
+def _gate_mapping() -> dict[str, object]:
+    """qiskit's standard gates by name (building the mapping costs about a millisecond)."""
+    return get_standard_gate_name_mapping()
 
-    gate = get_standard_gate_name_mapping()[name]
+
+def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+    return _gate_superop_cached(name, tuple(float(p) for p in params))
+
+
+@lru_cache(maxsize=4096)
+def _gate_superop_cached(name: str, params: tuple[float, ...]) -> np.ndarray:
+    gate = _gate_mapping()[name]
     if params:
         gate = gate.__class__(*params)
-    return SuperOp(gate).data
+    out = SuperOp(gate).data
+    out.setflags(write=False)  # shared between callers
+    return out
 
 
 def _error_superop(noise_model: object, name: str, qubit: int) -> np.ndarray | None:
     """The noise model's error after gate ``name`` on ``qubit`` (local first, then all-qubit)."""
-    from qiskit.quantum_info import SuperOp
-
     if noise_model is None:
         return None
     local = getattr(noise_model, "_local_quantum_errors", {}).get(name, {})
@@ -122,16 +130,12 @@ def qubit_layer_superop(
     passes see a ``num_qubits``-wide circuit so that qubit indices match the main circuit. With
     ``noisy=False`` only the unitaries are kept.
     """
-    from qiskit import QuantumCircuit
-    from qiskit.circuit.library import get_standard_gate_name_mapping
-    from qiskit.quantum_info import SuperOp
-
     own = sum(spec.duration_ns(g, qubit) for g, _ in gates)
     qc = QuantumCircuit(num_qubits)
     idle = layer_ns - own
     if idle > 1e-9:
         qc.delay(idle, qubit, unit="ns")
-    mapping = get_standard_gate_name_mapping()
+    mapping = _gate_mapping()
     for name, params in gates:
         gate = mapping[name]
         qc.append(gate.__class__(*params) if params else gate, [qubit])

@@ -16,11 +16,14 @@ column-stochastic matrix per qubit (applied after averaging over trajectories, i
 
 from __future__ import annotations
 
+import concurrent.futures
+import os
 from collections.abc import Hashable, Sequence
 from typing import Any
 
 import numpy as np
 
+from noiselab.emulate.memory import engine_threads
 from noiselab.emulate.readout import apply_on_axis, apply_readout
 
 #: Negative probabilities above this (in magnitude) are rounding noise and are clipped to 0.
@@ -51,12 +54,7 @@ def clean_probabilities(p: np.ndarray, *, what: str = "distribution") -> np.ndar
 
 def contraction_threads() -> int:
     """Threads for the basis contraction: ``$NOISELAB_ENGINE_THREADS`` (0 or unset: every core)."""
-    import os
-
-    try:
-        n = int(os.environ.get("NOISELAB_ENGINE_THREADS", "0"))
-    except ValueError:
-        n = 0
+    n = engine_threads()
     return n if n > 0 else max(1, os.cpu_count() or 1)
 
 
@@ -207,8 +205,6 @@ def dm_distributions(
     if n_threads == 1 or n == 0:
         rec(x, 0, members, _Buffers(), None)
     else:
-        import concurrent.futures
-
         # the tree is walked in this thread; the rows of every large product are split over the
         # pool (BLAS releases the GIL), so threads add no temporaries
         with concurrent.futures.ThreadPoolExecutor(n_threads) as pool:

@@ -18,29 +18,25 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
 from noiselab.emulate.channels import BasisLayerSpec, EffectCache, layer_duration_ns
 from noiselab.emulate.contract import dm_distributions
-from noiselab.emulate.memory import GIB, check_memory, estimate_memory_bytes, fits_in_memory
+from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
+from noiselab.emulate.memory import (
+    GIB,
+    check_memory,
+    engine_threads,
+    estimate_memory_bytes,
+    fits_in_memory,
+)
 from noiselab.emulate.readout import PairMatrix, apply_readout
+from noiselab.emulate.trajectory import trajectory_distributions
 
 METHODS = ("auto", "density_matrix", "trajectory")
 
 _ENGINE_CALLS = [0]
-
-#: qiskit-aer ``max_parallel_threads`` (0 = all cores); set by the study layer's worker processes.
-ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
-
-
-def engine_threads() -> int:
-    """Threads qiskit-aer may use in this process (0 = all), from ``$NOISELAB_ENGINE_THREADS``."""
-    import os
-
-    try:
-        return max(0, int(os.environ.get(ENGINE_THREADS_ENV, "0")))
-    except ValueError:
-        return 0
 
 
 def engine_call_count() -> int:
@@ -135,8 +131,6 @@ def check_circuit(circuit: Any) -> None:
 
 def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
     """One qiskit-aer density-matrix run (no shots); returns rho ``(2**k, 2**k)``."""
-    from qiskit_aer import AerSimulator
-
     qc = circuit.copy()
     qc.save_density_matrix(label="rho")
     sim = AerSimulator(
@@ -262,8 +256,6 @@ def emulate_circuit_bases(
             method="density_matrix",
             notice=notice,
         )
-    from noiselab.emulate.trajectory import trajectory_distributions
-
     check_memory(
         k,
         "trajectory",
@@ -297,67 +289,6 @@ def emulate_circuit_bases(
         trajectory_batches_ideal=batches_ideal,
         num_trajectories=int(num_trajectories // num_batches * num_batches),
     )
-
-
-# ---- device-profile entry points -----------------------------------------------------------
-
-
-def layer_spec_for(profile: Any, num_qubits: int) -> BasisLayerSpec:
-    """Basis-layer spec of a device profile: its native single-qubit gates and their durations."""
-    gates = tuple(profile.single_qubit_gates)
-    durations = {
-        (g, i): float(profile.gate_duration_ns(g)) for g in gates for i in range(num_qubits)
-    }
-    return BasisLayerSpec(native_1q=gates, durations_ns=durations)
-
-
-def logical_readout(
-    profile: Any, patch: Sequence[int], qubits: Sequence[int]
-) -> tuple[list[np.ndarray], list[PairMatrix]]:
-    """Readout matrices and joint-flip terms in LOGICAL indices.
-
-    ``qubits[l]`` is the circuit position of logical qubit l; circuit position i is physical
-    ``patch[i]``. Crosstalk terms touching an unmeasured patch qubit are dropped (that qubit is
-    not read out).
-    """
-    from noiselab.device.noise import readout_crosstalk, readout_matrices
-
-    mats = readout_matrices(profile, patch)
-    where = {c: l for l, c in enumerate(qubits)}
-    terms: list[PairMatrix] = [
-        (where[i], where[j], c)
-        for i, j, c in readout_crosstalk(profile, patch)
-        if i in where and j in where
-    ]
-    return [mats[c] for c in qubits], terms
-
-
-#: Noise models built in this process, by (profile fingerprint, patch); a study asks for the same
-#: one for a variant's simulation and its readout calibration.
-_NOISE_MODELS: dict[tuple[str, tuple[int, ...]], Any] = {}
-_NOISE_MODEL_SLOTS = 8
-
-
-def noise_model_for(profile: Any, patch: Sequence[int]) -> Any:
-    """``build_noise_model(profile, patch)``, memoized per process (last 8 distinct keys).
-
-    Keyed by ``profile.fingerprint`` (content hash); profiles without one are built afresh.
-    Callers must not modify the returned model.
-    """
-    from noiselab.device.noise import build_noise_model
-
-    patch_t = tuple(int(q) for q in patch)
-    fp = getattr(profile, "fingerprint", None)
-    if not isinstance(fp, str):
-        return build_noise_model(profile, patch_t)
-    key = (fp, patch_t)
-    nm = _NOISE_MODELS.pop(key, None)
-    if nm is None:
-        nm = build_noise_model(profile, patch_t)
-        while len(_NOISE_MODELS) >= _NOISE_MODEL_SLOTS:
-            _NOISE_MODELS.pop(next(iter(_NOISE_MODELS)))
-    _NOISE_MODELS[key] = nm  # most recently used last
-    return nm
 
 
 def emulate_bases(

@@ -6,9 +6,14 @@ overhead. ``DM_COPIES`` covers the simulator's state and the copy it hands back 
 numpy array we keep plus the contraction intermediates (at most one more). Measured peak resident
 memory above the interpreter baseline, 100 bases (``benchmarks/emulate_memory.py``, 2 cores):
 2.73 density matrices at 11 qubits, 2.39 at 12; we use 3.0 to keep a margin.
+
+The thread count of the engine (``$NOISELAB_ENGINE_THREADS``) is read here too: the emulator,
+the basis contraction and the study layer's worker processes share it.
 """
 
 from __future__ import annotations
+
+import os
 
 from noiselab.common.errors import ProblemTooLargeError
 from noiselab.common.memory import (
@@ -19,10 +24,12 @@ from noiselab.common.memory import (
 )
 
 __all__ = [
+    "ENGINE_THREADS_ENV",
     "GIB",
     "MEMORY_LIMIT_ENV",
     "available_memory_bytes",
     "check_memory",
+    "engine_threads",
     "estimate_memory_bytes",
     "fits_in_memory",
 ]
@@ -33,6 +40,17 @@ DM_COPIES = 3.0
 BASE_OVERHEAD_BYTES = 300 * 2**20
 #: Statevector copies per trajectory in flight (simulator state, saved copy, numpy copy).
 SV_COPIES = 3.0
+
+#: qiskit-aer ``max_parallel_threads`` (0 = all cores); set by the study layer's worker processes.
+ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
+
+
+def engine_threads() -> int:
+    """Threads qiskit-aer may use in this process (0 = all), from ``$NOISELAB_ENGINE_THREADS``."""
+    try:
+        return max(0, int(os.environ.get(ENGINE_THREADS_ENV, "0")))
+    except ValueError:
+        return 0
 
 
 def estimate_memory_bytes(

@@ -17,6 +17,9 @@ from collections.abc import Hashable, Sequence
 from typing import Any
 
 import numpy as np
+from qiskit import QuantumCircuit
+from qiskit.quantum_info import Kraus, SuperOp
+from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError
 from noiselab.emulate.contract import (
@@ -24,6 +27,7 @@ from noiselab.emulate.contract import (
     effect_rotation,
     sv_batch_mean_distributions,
 )
+from noiselab.emulate.memory import engine_threads
 
 
 def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
@@ -36,9 +40,6 @@ def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
     empty"); explicit ``kraus`` instructions (canonical Kraus operators from qiskit.quantum_info)
     are sampled per shot with the state-dependent branch probabilities and run cleanly.
     """
-    from qiskit import QuantumCircuit
-    from qiskit.quantum_info import Kraus, SuperOp
-
     if noise_model is None:
         return circuit
     passes = noise_model._pass_manager()
@@ -69,12 +70,8 @@ def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
 def simulate_trajectories(circuit: Any, shots: int, seed: int | None) -> np.ndarray:
     """One qiskit-aer statevector run of ``shots`` trajectories of an unravelled circuit (see
     :func:`unravelled_circuit`); returns the final states ``(shots, 2**k)``."""
-    from qiskit_aer import AerSimulator
-
     qc = circuit.copy()
     qc.save_statevector(label="psi", pershot=True)
-    from noiselab.emulate.engine import engine_threads
-
     sim = AerSimulator(method="statevector", max_parallel_threads=engine_threads())
     opts: dict[str, Any] = {"shots": int(shots)}
     if seed is not None:

@@ -12,23 +12,28 @@ A recipe runs in three stages, each pass belonging to one:
 Every corrected distribution carries a ``pullback``: given a weight vector u on the corrected
 distribution it returns the gradient of ``u . q`` with respect to each raw data source (the raw
 measured distribution and any calibration circuit), which is what the variance needs.
+
+Each hook returns a typed output: :class:`Corrected` (the corrected data), :class:`Estimated`
+(an estimate), :class:`Combined` (an estimate and the variances no shot count shrinks), each
+with the pass's :class:`~noiselab.mitigate.reports.PassReport` of that call (or None).
 """
 
 from __future__ import annotations
 
+import hashlib
+import json
 from abc import ABC
 from collections.abc import Callable, Mapping
 from dataclasses import dataclass, field
-from typing import TYPE_CHECKING, Any, ClassVar
+from typing import Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict
 
-from noiselab.mitigate.estimate import Estimate, SourceKey
+from noiselab.mitigate.estimate import Estimate, SourceKey, total
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.reports import PassReport
 from noiselab.mitigate.variants import CircuitVariant
-
-if TYPE_CHECKING:
-    from noiselab.mitigate.recipe import ExperimentContext
 
 STAGE_CORRECT = 0
 STAGE_ESTIMATE = 1
@@ -76,20 +81,50 @@ def cal_key(variant: CircuitVariant, state: int) -> tuple:
     return ("cal", variant.calibration_variant(), int(state))
 
 
-@dataclass(eq=False)
+@dataclass(frozen=True, eq=False)
 class Workspace:
-    """Mutable state of one evaluation of a recipe (internal to ``run_recipe``).
+    """What a pass may read during one evaluation of a recipe (built by ``evaluate``).
 
     ``measured[(variant)][basis]`` is the raw measured distribution (exact or empirical);
     ``calibration(variant, states, shots)`` returns distributions (n_states, 2**n) of the
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
-    under the variant's readout, registering them as sources with their shot counts.
+    under the variant's readout, registering them as sources with their shot counts. ``rng`` is
+    set on sampled evaluations only: a pass draws its own random parts from it (those no shot
+    count shrinks, reported as :attr:`Combined.fixed_variance`).
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
-    details: dict[str, Any] = field(default_factory=dict)
+    rng: np.random.Generator | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Corrected:
+    """Output of ``correct``: the corrected distributions of one variant, and the report."""
+
+    data: VariantData
+    report: PassReport | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Estimated:
+    """Output of ``estimate``: one variant's energy estimate (Ha), and the report."""
+
+    estimate: Estimate
+    report: PassReport | None = None
+
+
+@dataclass(frozen=True, eq=False)
+class Combined:
+    """Output of ``combine``: the recipe's estimate (Ha), the report, and the variances (Ha**2)
+    of random parts that no shot count shrinks, by name (e.g. ``"amplification"``): each is
+    added to ``std_mha``, counted as fixed by the target assessment, and shown in the details
+    as ``std_<name>_mha``."""
+
+    estimate: Estimate
+    report: PassReport | None = None
+    fixed_variance: Mapping[str, float] = field(default_factory=dict)
 
 
 class MitigationPass(ABC):
@@ -106,6 +141,15 @@ class MitigationPass(ABC):
         """The pass as a recipe entry (all options, defaults filled in)."""
         return {"pass": self.name, **self.options.model_dump(mode="json")}
 
+    def cache_key(self) -> str:
+        """Stable key of the pass and its options: SHA-256 of :meth:`spec` as sorted JSON.
+
+        Equal for equal options however they were written (defaults filled in, key order); the
+        same in every process and session.
+        """
+        text = json.dumps(self.spec(), sort_keys=True, separators=(",", ":"))
+        return hashlib.sha256(text.encode("utf-8")).hexdigest()
+
     def describe(self) -> str:
         """Short label for the recipe name."""
         return self.name
@@ -118,9 +162,14 @@ class MitigationPass(ABC):
         """Circuit variants this pass needs (combination passes only)."""
         return (CircuitVariant(),)
 
+    def shot_split(self) -> Literal["equal", "weighted"]:
+        """How the budget is split across the variants (``noiselab.mitigate.plan.allocate_shots``):
+        equal shares, or weighted by each variant's part of the variance."""
+        return "equal"
+
     def combine(
         self, variants: tuple[CircuitVariant, ...], estimates: list[Estimate], ws: Workspace
-    ) -> Estimate:
+    ) -> Combined:
         raise NotImplementedError
 
     # STAGE_ESTIMATE
@@ -128,18 +177,14 @@ class MitigationPass(ABC):
         """Measurement bases this estimator reads (default: the plan's)."""
         return ctx.plan.bases
 
-    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
+    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         raise NotImplementedError
 
     # STAGE_CORRECT
-    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> VariantData:
+    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Corrected:
         raise NotImplementedError
 
 
 def plan_estimate(ctx: ExperimentContext, data: VariantData) -> Estimate:
     """The plain estimator: constant + sum_g w_g . q_g."""
-    from noiselab.mitigate.estimate import linear_combination
-
-    parts = [data[g.basis].estimate(g.weights) for g in ctx.plan.groups]
-    est = linear_combination([1.0] * len(parts), parts)
-    return Estimate(est.value + ctx.plan.constant, est.influence)
+    return total([data[g.basis].estimate(g.weights) for g in ctx.plan.groups]) + ctx.plan.constant

@@ -9,7 +9,7 @@ ratios and fits). Sources are independent (distinct circuits), so their variance
 
 from __future__ import annotations
 
-from collections.abc import Hashable, Mapping
+from collections.abc import Hashable, Mapping, Sequence
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -19,13 +19,43 @@ SourceKey = Hashable
 
 @dataclass(frozen=True, eq=False)
 class Estimate:
-    """A scalar estimate (Ha) and its gradient vector per raw data source."""
+    """A scalar estimate (Ha) and its gradient vector per raw data source.
+
+    Arithmetic follows the formulas, influences included: ``a + b`` and ``sum(...)`` (influences
+    added source by source), ``a + c`` for a constant c (same influences), ``c * a`` and
+    ``a / c`` for a scalar c, and ``a / b`` (:func:`ratio`, the delta method). The results are
+    those of :func:`linear_combination` and :func:`ratio`, to the last bit.
+    """
 
     value: float
     influence: Mapping[SourceKey, np.ndarray] = field(default_factory=dict)
 
+    #: numpy scalars (np.float64 * Estimate) defer to the methods below
+    __array_ufunc__ = None
+
     def scaled(self, factor: float) -> Estimate:
         return Estimate(self.value * factor, {k: v * factor for k, v in self.influence.items()})
+
+    def __add__(self, other: Estimate | float) -> Estimate:
+        if isinstance(other, Estimate):
+            return linear_combination([1.0, 1.0], [self, other])
+        return Estimate(self.value + float(other), self.influence)
+
+    def __radd__(self, other: float) -> Estimate:  # sum() starts from 0
+        return self + other
+
+    def __mul__(self, factor: float) -> Estimate:
+        if isinstance(factor, Estimate):
+            return NotImplemented  # a product of estimates is not linear: no rule here
+        return self.scaled(float(factor))
+
+    __rmul__ = __mul__
+
+    def __truediv__(self, other: Estimate | float) -> Estimate:
+        if isinstance(other, Estimate):
+            return ratio(self, other)
+        d = float(other)
+        return Estimate(self.value / d, {k: v / d for k, v in self.influence.items()})
 
 
 def group_energy(probs: np.ndarray, weights: np.ndarray) -> float:
@@ -46,7 +76,13 @@ def standard_error(variances: np.ndarray, shots: np.ndarray) -> float:
     return float(np.sqrt(np.sum(v / n)))
 
 
-def linear_combination(coeffs: list[float], estimates: list[Estimate]) -> Estimate:
+def total(estimates: Sequence[Estimate]) -> Estimate:
+    """sum_i E_i in one pass (``sum(estimates)`` gives the same, copying the influences at each
+    step: use this for the hundreds of groups of a plan)."""
+    return linear_combination([1.0] * len(estimates), estimates)
+
+
+def linear_combination(coeffs: Sequence[float], estimates: Sequence[Estimate]) -> Estimate:
     """sum_i c_i E_i with influences added source by source."""
     value = 0.0
     influence: dict[SourceKey, np.ndarray] = {}
@@ -85,8 +121,15 @@ def estimate_variance(
     shots: Mapping[SourceKey, int | None],
 ) -> float:
     """sum_sources Var_p(u) / N; sources with ``shots`` None (exact) contribute nothing."""
+    return variance_from_sources(source_variances(est, probs), shots)
+
+
+def variance_from_sources(
+    svars: Mapping[SourceKey, float], shots: Mapping[SourceKey, int | None]
+) -> float:
+    """sum_sources Var_p(u) / N from single-shot variances per source (None shots: exact)."""
     total = 0.0
-    for k, var in source_variances(est, probs).items():
+    for k, var in svars.items():
         n = shots.get(k)
         if n is None:
             continue

@@ -1,9 +1,10 @@
 """Unitary folding of native, scheduled circuits (noise amplification for extrapolation).
 
-Global folding U -> U (U^dag U)^k L^dag L, with L the last s gates (partial folding for scales
-that are not odd integers), and two-qubit folding G -> G (G^dag G)^k for every two-qubit gate G,
-one more fold on an evenly spread selection of them for fractional scales (Giurgica-Tiron, Hindy,
-LaRose, Mari and Zeng, IEEE QCE 2020, arXiv:2005.10921). Inverses are written in native gates
+Whole-circuit folding U -> U (U^dag U)^k L^dag L, with L the last s gates (partial folding for
+scales that are not odd integers), and two-qubit-gate folding G -> G (G^dag G)^k for every
+two-qubit gate G, one more fold on an evenly spread selection of them for fractional scales
+(Giurgica-Tiron, Hindy, LaRose, Mari and Zeng, IEEE QCE 2020, arXiv:2005.10921). Inverses are
+written in native gates
 (cz, cx, ecr, x are self-inverse; rz(t)^dag = rz(-t); sx^dag = rz(pi) sx rz(pi) up to a global
 phase), so the folded circuit stays in the device's gate set and nothing cancels the folds.
 Delays are dropped before folding: the caller re-schedules the folded circuit.
@@ -81,7 +82,7 @@ def _append_inverse(out: QuantumCircuit, inst: CircuitInstruction) -> None:
         out.append(op, q)
 
 
-def fold_global(circuit: QuantumCircuit, scale: float) -> FoldResult:
+def whole_circuit_folding(circuit: QuantumCircuit, scale: float) -> FoldResult:
     """U (U^dag U)^k L^dag L with total gate count closest to ``scale`` times the original."""
     if scale < 1:
         raise ValueError("fold scale must be >= 1")
@@ -120,7 +121,7 @@ def spread_indices(count: int, total: int) -> set[int]:
     return {min(total - 1, int((j + 0.5) * total / count)) for j in range(count)}
 
 
-def fold_two_qubit(circuit: QuantumCircuit, scale: float) -> FoldResult:
+def two_qubit_gate_folding(circuit: QuantumCircuit, scale: float) -> FoldResult:
     """Every two-qubit gate G -> G (G^dag G)^k; one more fold on a spread selection (fractions)."""
     if scale < 1:
         raise ValueError("fold scale must be >= 1")
@@ -152,15 +153,16 @@ def folded_gate_count(circuit: QuantumCircuit, method: str, scale: float) -> int
     """Gates of ``circuit`` folded to ``scale`` by ``method``, counted without folding."""
     gates = [inst for inst in circuit.data if inst.operation.name not in _NOT_GATES]
     d = len(gates)
-    if method == "two_qubit":
+    if method == "two_qubit_gates":
         n2 = sum(1 for g in gates if len(g.qubits) == 2)
         return d + 2 * round((float(scale) - 1.0) * n2 / 2.0)
     return d + 2 * round((float(scale) - 1.0) * d / 2.0)
 
 
 def fold_circuit(circuit: QuantumCircuit, method: str, scale: float) -> FoldResult:
-    """Dispatch on ``method`` ("global" | "two_qubit"); refuses (one line) a folded circuit
-    beyond :data:`MAX_FOLDED_GATES` gates before building it."""
+    """Dispatch on ``method`` ("whole_circuit" | "two_qubit_gates", the amplifier names);
+    refuses (one line) a folded circuit beyond :data:`MAX_FOLDED_GATES` gates before building
+    it."""
     from noiselab.common.errors import ProblemTooLargeError
 
     if not math.isfinite(scale):
@@ -171,8 +173,8 @@ def fold_circuit(circuit: QuantumCircuit, method: str, scale: float) -> FoldResu
             f"folding: scale {scale:g} gives a circuit of {gates} gates; allowed: at most "
             f"{MAX_FOLDED_GATES} (smaller scales, or the 'stretch' amplifier)"
         )
-    if method == "global":
-        return fold_global(circuit, scale)
-    if method == "two_qubit":
-        return fold_two_qubit(circuit, scale)
+    if method == "whole_circuit":
+        return whole_circuit_folding(circuit, scale)
+    if method == "two_qubit_gates":
+        return two_qubit_gate_folding(circuit, scale)
     raise ValueError(f"unknown fold method {method!r}")

@@ -220,34 +220,44 @@ def largest_remainder(shares: np.ndarray, total: int, minimum: int = 1) -> np.nd
 
 
 def allocate_shots(
-    sigmas: Sequence[float] | np.ndarray, total: int, rule: str = "by_deviation"
+    sigmas: Sequence[float] | Sequence[Sequence[float]] | np.ndarray,
+    total: int,
+    rule: str = "by_deviation",
+    split: str = "equal",
 ) -> np.ndarray:
-    """Integer shots per group summing to ``total`` (at least one each).
+    """Integer shots per measured basis summing to ``total`` (at least one each); the one
+    allocation of noiselab (recipes use it for every estimate).
 
-    ``"uniform"``: equal shares. ``"by_deviation"``: N_g proportional to the single-shot standard
-    deviation sigma_g, which minimizes sum_g sigma_g**2 / N_g at fixed sum N_g (Lagrange
-    multipliers; Wecker, Hastings and Troyer, PRA 92, 042303 (2015)).
+    ``sigmas``: single-shot standard deviations sigma_b of the estimate's part measured in each
+    basis (Ha), one row per circuit (a 1-d array: one circuit); the result has their shape.
+    Within a circuit, ``rule`` ``"uniform"``: equal shares; ``"by_deviation"``: N_b proportional
+    to sigma_b, which minimizes sum_b sigma_b**2 / N_b at fixed sum N_b (Lagrange multipliers;
+    Wecker, Hastings and Troyer, PRA 92, 042303 (2015)); a circuit whose sigmas are all zero gets
+    equal shares. Across circuits, ``split`` ``"equal"``: the same share each; ``"weighted"``:
+    N_i proportional to sqrt(C_i), the minimizer of sum_i C_i / N_i, with C_i the variance of
+    circuit i's part at one shot in all (C_i = (sum_b sigma_b)**2 by deviation, m sum_b
+    sigma_b**2 for m bases shared equally).
     """
+    if rule not in ("uniform", "by_deviation"):
+        raise InputError(f"allocation: unknown rule {rule!r}; allowed: uniform, by_deviation")
+    if split not in ("equal", "weighted"):
+        raise InputError(f"shot_split: unknown rule {split!r}; allowed: equal, weighted")
     sig = np.asarray(sigmas, dtype=float)
-    if rule == "uniform":
-        return largest_remainder(np.ones(len(sig)), total)
-    if rule == "by_deviation":
-        return largest_remainder(sig, total)
-    raise InputError(f"allocation: unknown rule {rule!r}; allowed: uniform, by_deviation")
-
-
-def split_across_circuits(
-    gammas: Sequence[float], sigmas: Sequence[float], total: int, rule: str = "equal"
-) -> np.ndarray:
-    """Shots per circuit for a linear combination sum_i gamma_i E_i with single-shot stds sigma_i.
-
-    ``"equal"``: the same share each. ``"weighted"``: N_i proportional to |gamma_i| sigma_i, the
-    minimizer of sum_i gamma_i**2 sigma_i**2 / N_i at fixed sum N_i.
-    """
-    g = np.abs(np.asarray(gammas, dtype=float))
-    s = np.asarray(sigmas, dtype=float)
-    if rule == "equal":
-        return largest_remainder(np.ones(len(g)), total)
-    if rule == "weighted":
-        return largest_remainder(g * s, total)
-    raise InputError(f"shot_split: unknown rule {rule!r}; allowed: equal, weighted")
+    rows = np.atleast_2d(sig)
+    k, m = rows.shape
+    within: list[np.ndarray] = []
+    cost: list[float] = []
+    for sd in rows:
+        if rule == "uniform" or sd.sum() <= 0:
+            within.append(np.full(m, 1.0 / m))
+            cost.append(m * float(np.sum(sd * sd)))
+        else:
+            within.append(sd / sd.sum())
+            cost.append(float(sd.sum()) ** 2)
+    if split == "weighted" and sum(cost) > 0:
+        frac = np.sqrt(np.array(cost))
+        frac = frac / frac.sum()
+    else:
+        frac = np.full(k, 1.0 / k)
+    shares = np.concatenate([frac[i] * within[i] for i in range(k)])
+    return largest_remainder(shares, int(total)).reshape(sig.shape)

@@ -6,320 +6,48 @@ each circuit variant its passes need, applies the correction passes per variant 
 estimator pass per variant and the combination pass across variants, allocates the shot budget,
 and returns a :class:`RecipeResult`. ``sampled=False`` (default): exact distributions, analytic
 standard error. ``sampled=True``: multinomial counts are drawn from ``rng`` and pushed through
-the same code (the spread of such estimates is the analytic standard error).
+the same code (the spread of such estimates is the analytic standard error). The steps it chains
+(measure, evaluate, allocate, draw, variance, score) are pure functions of frozen records in
+:mod:`noiselab.mitigate.evaluate` and :mod:`noiselab.mitigate.steps`.
+
+Bias = expectation: the reported energy is computed from exact inputs only (exact measured
+distributions, exact readout-calibration distributions), so no random draw enters the bias and
+the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
+its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
+term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
 """
 
 from __future__ import annotations
 
-import copy
-import dataclasses
-import functools
-import hashlib
-import json
-import math
-import zlib
-from collections.abc import Callable, Mapping, Sequence
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
-from noiselab.common.errors import InputError, NoiselabError
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_COMBINE,
     STAGE_CORRECT,
     STAGE_ESTIMATE,
     STAGE_NAMES,
     MitigationPass,
-    VariantData,
-    Workspace,
-    cal_key,
-    meas_key,
-    plan_estimate,
-    raw_distribution,
 )
-from noiselab.mitigate.estimate import (
-    Estimate,
-    estimate_variance,
-    sample_distribution,
-    single_shot_variance,
-    source_variances,
-)
-from noiselab.mitigate.plan import MeasurementPlan, build_plan, largest_remainder
+from noiselab.mitigate.evaluate import CalibrationSource, EstimateMemo, evaluate
+from noiselab.mitigate.experiment import Calibrator, ExperimentContext, Runner, default_calibrator
+from noiselab.mitigate.registry import PASSES, make_pass
 from noiselab.mitigate.result import RecipeResult, plain_json
-from noiselab.mitigate.target import assess_target
+from noiselab.mitigate.steps import (
+    allocate,
+    details_json,
+    draw,
+    measure,
+    score,
+    variance,
+    variant_scores,
+)
 from noiselab.mitigate.variants import CircuitVariant
-
-Runner = Callable[[CircuitVariant], Any]  # -> BasisDistributions over ctx.measured_bases
-Calibrator = Callable[[CircuitVariant, tuple[int, ...]], np.ndarray]
-Allocation = Literal["uniform", "by_deviation"]
-
-
-# ---- context ----------------------------------------------------------------------------------
-
-
-@dataclass(frozen=True, eq=False)
-class ExperimentContext:
-    """Everything fixed across the recipes of one experiment.
-
-    ``compiled``: the CompiledCircuit bound at the optimized parameters; ``shots``: the
-    measurement budget of one energy estimate, all circuits and noise scales together;
-    ``allocation``: how a circuit's shots are split over its bases ("uniform", or
-    "by_deviation": proportional to each basis' single-shot standard deviation, computed from the
-    exact emulated distributions, i.e. the allocation a good pilot run would give).
-    ``emulation_method``: passed to ``emulate_bases``, with ``num_trajectories``,
-    ``num_batches`` (trajectory method) and ``max_density_matrix_qubits`` (None: memory guard only).
-    ``verification_bases``: measure the extra bases symmetry verification needs (a recipe with
-    ``postselect`` mode ``verify`` is refused without them). True by default, so a context built
-    by hand serves every recipe; the study layer turns it off when no recipe of the job
-    verifies (at 12 qubits the extra bases are most of the measured ones).
-    """
-
-    problem: Any
-    compiled: Any
-    profile: Any
-    plan: MeasurementPlan
-    exact_energy_ha: float
-    ansatz_energy_ha: float
-    shots: int
-    target_mha: float = CHEMICAL_ACCURACY_MHA
-    confidence: float = 0.95
-    seed: int = 0
-    allocation: Allocation = "by_deviation"
-    emulation_method: str = "auto"
-    num_trajectories: int = 256
-    num_batches: int = 16
-    max_density_matrix_qubits: int | None = None
-    verification_bases: bool = True
-
-    def __post_init__(self) -> None:
-        if int(self.shots) < 1:
-            raise InputError(f"shots: {self.shots}; allowed: a positive integer")
-        if not 0.0 < float(self.confidence) < 1.0:
-            raise InputError(f"confidence: {self.confidence}; allowed: strictly between 0 and 1")
-        if not float(self.target_mha) > 0.0:
-            raise InputError(f"target_mha: {self.target_mha}; allowed: a positive number (mHa)")
-        if self.allocation not in ("uniform", "by_deviation"):
-            raise InputError(f"allocation: {self.allocation!r}; allowed: uniform, by_deviation")
-
-    @functools.cached_property
-    def measured_bases(self) -> tuple[str, ...]:
-        """Every basis the runner measures: the plan's, then (with ``verification_bases``) the
-        extra ones symmetry verification needs (for any subset of the symmetries), so that all
-        recipes share the same simulations."""
-        from noiselab.mitigate.passes.postselect import verification_bases
-
-        wanted = self.verification_bases and _has_symmetries(self.problem)
-        extra = verification_bases(self.plan, self.problem) if wanted else ()
-        plan_bases = tuple(self.plan.bases)
-        return plan_bases + tuple(b for b in extra if b not in plan_bases)
-
-
-def _has_symmetries(problem: Any) -> bool:
-    return bool(getattr(problem, "symmetries", None))
-
-
-def build_context(
-    problem: Any,
-    compiled: Any,
-    profile: Any,
-    *,
-    ansatz_energy_ha: float,
-    shots: int,
-    **kwargs: Any,
-) -> ExperimentContext:
-    """Context with the measurement plan of ``problem.hamiltonian`` (other fields as keywords)."""
-    return ExperimentContext(
-        problem=problem,
-        compiled=compiled,
-        profile=profile,
-        plan=build_plan(problem.hamiltonian),
-        exact_energy_ha=float(problem.exact_energy_ha),
-        ansatz_energy_ha=float(ansatz_energy_ha),
-        shots=int(shots),
-        **kwargs,
-    )
-
-
-# ---- circuit variants: folded / scaled inputs, runner, cache keys -----------------------------
-
-
-_TARGETS: dict[tuple[str, tuple[int, ...]], Any] = {}
-
-
-def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tuple[Any, float]:
-    """(CompiledCircuit folded in native gates and re-scheduled, scale actually reached).
-
-    Re-scheduling transpiles at optimization level 0 on the patch's target with the trivial
-    layout (nothing is optimized away, idle delays recomputed); the two-qubit count is checked.
-    """
-    from qiskit import transpile
-
-    from noiselab.device.compile import (
-        build_target,
-        circuit_duration_ns,
-        estimate_fidelity,
-    )
-    from noiselab.mitigate.folding import fold_circuit
-
-    res = fold_circuit(compiled.circuit, method, scale)
-    key = (profile.model_dump_json(), tuple(compiled.patch))
-    if key not in _TARGETS:  # building a target evaluates every gate channel: keep it
-        _TARGETS.clear()
-        _TARGETS[key] = build_target(profile, compiled.patch)
-    target = _TARGETS[key]
-    k = compiled.circuit.num_qubits
-    out = transpile(
-        res.circuit,
-        target=target,
-        initial_layout=list(range(k)),
-        optimization_level=0,
-        scheduling_method="alap",
-        seed_transpiler=0,
-    )
-    n2 = int(out.count_ops().get(profile.two_qubit_gate, 0))
-    if n2 != res.n_two_qubit:
-        raise NoiselabError(
-            f"folding: re-scheduling changed the two-qubit count ({n2}, expected {res.n_two_qubit})"
-        )
-    depth = int(out.depth(filter_function=lambda i: i.operation.name not in ("delay", "barrier")))
-    folded = dataclasses.replace(
-        compiled,
-        circuit=out,
-        two_qubit_count=n2,
-        depth=depth,
-        duration_ns=circuit_duration_ns(out, profile),
-        estimated_fidelity=estimate_fidelity(out, profile, compiled.patch),
-    )
-    scale_reached = res.actual_scale
-    return folded, scale_reached
-
-
-@functools.lru_cache(maxsize=256)
-def variant_inputs(ctx: ExperimentContext, variant: CircuitVariant) -> tuple[Any, Any, float]:
-    """(CompiledCircuit, DeviceProfile, scale factor reached) that simulate ``variant``."""
-    profile = ctx.profile
-    if variant.noise_scale != 1.0:
-        from noiselab.device.profile import scale_profile
-
-        profile = scale_profile(ctx.profile, variant.noise_scale, variant.scaled_channels)
-    compiled = ctx.compiled
-    scale = variant.noise_scale
-    if variant.fold_method != "none":
-        if compiled is None:  # synthetic contexts (tests): nominal scale
-            return compiled, profile, scale * variant.fold_scale
-        compiled, reached = fold_compiled(
-            compiled, profile, variant.fold_method, variant.fold_scale
-        )
-        scale *= reached
-    return compiled, profile, scale
-
-
-def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
-    """Noise scale factor of a variant as reached (folded gate counts are integers)."""
-    if variant.fold_method == "none":
-        return variant.noise_scale
-    return variant_inputs(ctx, variant)[2]
-
-
-def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:
-    """JSON-serializable description of everything that determines ``runner(variant)``.
-
-    Hash ``json.dumps(material, sort_keys=True)`` for a cache key. The circuit enters as the
-    SHA-256 of its QPY serialization (exact parameters), independent of the circuit's name.
-    """
-    import io
-
-    from qiskit import qpy
-
-    compiled, profile, _ = variant_inputs(ctx, variant)
-    # qiskit names new circuits from a process-wide counter ("circuit-43") and QPY stores the
-    # name: hash a copy under a fixed name so equal circuits give equal keys in any process.
-    circuit = compiled.circuit.copy()
-    circuit.name = "noiselab"
-    circuit.metadata = {}
-    buf = io.BytesIO()
-    qpy.dump(circuit, buf)
-    method = ctx.emulation_method
-    try:
-        from noiselab.emulate.engine import choose_method
-
-        method = choose_method(
-            compiled.circuit.num_qubits,
-            method,
-            max_density_matrix_qubits=ctx.max_density_matrix_qubits,
-        )[0]
-    except (ImportError, InputError):
-        pass
-    material: dict[str, Any] = {
-        "variant": variant.as_dict(),
-        "circuit_qpy_sha256": hashlib.sha256(buf.getvalue()).hexdigest(),
-        "patch": list(compiled.patch),
-        "logical_to_circuit": list(compiled.logical_to_circuit),
-        "profile": json.loads(profile.model_dump_json()),
-        "bases": list(ctx.measured_bases),
-        "method": method,
-        # density-matrix results do not depend on the seed; trajectories do
-        "seed": ctx.seed if method != "density_matrix" else None,
-    }
-    if method != "density_matrix":
-        material["trajectories"] = [int(ctx.num_trajectories), int(ctx.num_batches)]
-    return material
-
-
-def make_runner(ctx: ExperimentContext) -> Runner:
-    """Default runner: emulate_bases over ``ctx.measured_bases``, memoized in-process by variant."""
-    memo: dict[CircuitVariant, Any] = {}
-
-    def runner(variant: CircuitVariant) -> Any:
-        if variant not in memo:
-            from noiselab.emulate.engine import emulate_bases
-
-            compiled, profile, _ = variant_inputs(ctx, variant)
-            memo[variant] = emulate_bases(
-                compiled,
-                profile,
-                list(ctx.measured_bases),
-                method=ctx.emulation_method,
-                seed=ctx.seed,
-                num_trajectories=ctx.num_trajectories,
-                num_batches=ctx.num_batches,
-                max_density_matrix_qubits=ctx.max_density_matrix_qubits,
-            )
-        return memo[variant]
-
-    return runner
-
-
-@functools.lru_cache(maxsize=64)
-def default_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """The context's :func:`make_calibrator`, shared by every recipe run on it."""
-    return make_calibrator(ctx)
-
-
-def make_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
-    memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
-
-    def calibrator(variant: CircuitVariant, states: tuple[int, ...]) -> np.ndarray:
-        key = (variant, tuple(states))
-        if key not in memo:
-            from noiselab.emulate.readout import calibration_distributions
-
-            _, profile, _ = variant_inputs(ctx, variant)
-            cal = calibration_distributions(
-                profile,
-                ctx.compiled.patch,
-                list(states),
-                measured=list(ctx.compiled.logical_to_circuit),
-            )
-            memo[key] = np.asarray(cal.probs, dtype=float)
-        return memo[key]
-
-    return calibrator
-
 
 # ---- recipe specification ---------------------------------------------------------------------
 
@@ -344,6 +72,26 @@ class ParsedRecipe:
         found = [p for p in self.passes if p.stage == stage]
         return found[0] if found else None
 
+    def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
+        """The circuit variants to run: the combination pass's, or the device as it is."""
+        combiner = self.of_stage(STAGE_COMBINE)
+        return combiner.variants(ctx) if combiner else (CircuitVariant(),)
+
+    def bases(self, ctx: ExperimentContext) -> tuple[str, ...]:
+        """The measurement bases read: the estimator pass's, or the plan's."""
+        estimator = self.of_stage(STAGE_ESTIMATE)
+        return tuple(estimator.bases(ctx) if estimator else ctx.plan.bases)
+
+    def shot_split(self) -> Literal["equal", "weighted"]:
+        """How the budget is split across the variants (the combination pass says)."""
+        combiner = self.of_stage(STAGE_COMBINE)
+        return combiner.shot_split() if combiner else "equal"
+
+
+def _stage_order() -> str:
+    """The registered passes in the order a recipe allows them (by stage)."""
+    return ", ".join(sorted(PASSES, key=lambda name: PASSES[name].stage))
+
 
 def parse_recipe(
     recipe: Sequence[Mapping[str, Any]] | RecipeSpec, where: str = "recipe"
@@ -353,8 +101,6 @@ def parse_recipe(
     Order: correction passes (readout), then at most one estimator (postselect), then at most
     one combination (extrapolate); each pass at most once.
     """
-    from noiselab.mitigate.registry import make_pass
-
     name = None
     if isinstance(recipe, RecipeSpec):
         name, entries = recipe.name, list(recipe.passes)
@@ -376,7 +122,7 @@ def parse_recipe(
         if p.stage < last_stage:
             raise InputError(
                 f"{where}[{i}].pass: {p.name!r} ({STAGE_NAMES[p.stage]}) must come before the "
-                f"{STAGE_NAMES[last_stage]} pass; allowed order: readout, postselect, extrapolate"
+                f"{STAGE_NAMES[last_stage]} pass; allowed order: {_stage_order()}"
             )
         if p.stage == last_stage and p.stage != STAGE_CORRECT:
             raise InputError(f"{where}[{i}].pass: only one {STAGE_NAMES[p.stage]} pass per recipe")
@@ -388,259 +134,7 @@ def parse_recipe(
     return ParsedRecipe(name=name, passes=tuple(passes))
 
 
-# ---- result -----------------------------------------------------------------------------------
-
-
-
-
-# ---- evaluation -------------------------------------------------------------------------------
-
-
-def _row(dist: Any, basis: str) -> np.ndarray:
-    return np.asarray(dist.probs[dist.bases.index(basis)], dtype=float)
-
-
-class _CalibrationSource:
-    """Calibration distributions for one evaluation: exact, seeded-sampled or rng-sampled."""
-
-    def __init__(self, ctx: ExperimentContext, calibrator: Calibrator, mode: str, rng: Any) -> None:
-        self.ctx = ctx
-        self.calibrator = calibrator
-        self.mode = mode  # "exact" | "seeded" | "rng"
-        self.rng = rng
-        self.exact: dict[Any, np.ndarray] = {}
-        self.used: dict[Any, np.ndarray] = {}
-        self.shots: dict[Any, int | None] = {}
-
-    def __call__(
-        self, variant: CircuitVariant, states: tuple[int, ...], shots: int | None
-    ) -> np.ndarray:
-        cal_v = variant.calibration_variant()
-        exact = np.asarray(self.calibrator(cal_v, tuple(states)), dtype=float)
-        out = np.empty_like(exact)
-        for i, s in enumerate(states):
-            key = cal_key(variant, s)
-            if key not in self.used:
-                self.exact[key] = exact[i]
-                self.shots[key] = shots
-                if shots is None or self.mode == "exact":
-                    self.used[key] = exact[i]
-                else:
-                    rng = self.rng
-                    if self.mode == "seeded":
-                        tag = zlib.crc32(f"{cal_v.label()}|{s}|{shots}".encode())
-                        rng = np.random.default_rng([int(self.ctx.seed), 0xCA1B, tag])
-                    self.used[key] = sample_distribution(exact[i], shots, rng)
-            out[i] = self.used[key]
-        return out
-
-
-@dataclass(eq=False)
-class _Evaluation:
-    estimate: Estimate
-    per_variant: dict[CircuitVariant, Estimate]
-    details: dict[str, Any]
-    cal: _CalibrationSource
-
-
-class EstimateMemo:
-    """Per-variant estimates shared by the recipes of one job (e.g. the settings of a tune grid).
-
-    Settings that differ only in their combination stage (scale set, fit) need the same
-    correction and estimate of each circuit variant; with a memo each is computed once. An entry
-    is keyed by the context, runner and calibrator (by identity), the variant, the specs of the
-    correction and estimator passes, the bases read and the calibration mode; it keeps the
-    estimate, the details the passes wrote and the calibration circuits they drew on (replayed
-    on a hit, so shots and variances are registered as without the memo). Only exact and seeded
-    calibration (deterministic) is stored: sampled evaluations bypass the memo. Create one per
-    job and pass it to every :func:`run_recipe` of the job; results are bit-identical.
-    """
-
-    def __init__(self) -> None:
-        self._entries: dict[tuple[Any, ...], _MemoEntry] = {}
-        # id -> (estimate, single-shot variance per source); the estimate keeps the id unique
-        self._variances: dict[int, tuple[Estimate, dict[Any, float]]] = {}
-        self.hits = 0
-        self.misses = 0
-
-    def __len__(self) -> int:
-        return len(self._entries)
-
-    def _source_variances(
-        self, est: Estimate, probs: Mapping[Any, np.ndarray]
-    ) -> dict[Any, float]:
-        """:func:`source_variances` of a stored estimate on the exact distributions (which
-        every recipe of the job shares), computed once per estimate."""
-        hit = self._variances.get(id(est))
-        if hit is None or hit[0] is not est:
-            hit = (est, source_variances(est, probs))
-            self._variances[id(est)] = hit
-        return hit[1]
-
-
-def _variance_from_sources(
-    svars: Mapping[Any, float], shots: Mapping[Any, int | None]
-) -> float:
-    """sum_sources Var_p(u) / N from single-shot variances (as :func:`estimate_variance`)."""
-    total = 0.0
-    for k, var in svars.items():
-        n = shots.get(k)
-        if n is None:
-            continue
-        if n <= 0:
-            if var > 0:
-                return float("inf")
-            continue
-        total += var / n
-    return total
-
-
-@dataclass(frozen=True, eq=False)
-class _MemoEntry:
-    estimate: Estimate
-    details: dict[str, Any]
-    calibration_calls: tuple[tuple[CircuitVariant, tuple[int, ...], int | None], ...]
-
-
-def _merge_details(into: dict[str, Any], new: Mapping[str, Any]) -> None:
-    """Add one variant's details as if its passes had written them into ``into`` directly
-    (passes write per-variant entries of dicts, append to lists, or set values)."""
-    for k, val in new.items():
-        if isinstance(val, dict) and isinstance(into.get(k, {}), dict):
-            into.setdefault(k, {}).update(val)
-        elif isinstance(val, list) and isinstance(into.get(k, []), list):
-            into.setdefault(k, []).extend(val)
-        else:
-            into[k] = val
-
-
-def _variant_estimate(
-    corrects: Sequence[MitigationPass],
-    estimator: MitigationPass | None,
-    variant: CircuitVariant,
-    bases: tuple[str, ...],
-    ws: Workspace,
-) -> Estimate:
-    """Correction passes, then the estimator (or the plan estimate), on one variant's data."""
-    data: VariantData = {
-        b: raw_distribution(meas_key(variant, b), ws.measured[variant][b]) for b in bases
-    }
-    for p in corrects:
-        data = p.correct(variant, data, ws)
-    return estimator.estimate(variant, data, ws) if estimator else plan_estimate(ws.ctx, data)
-
-
-def _memo_estimate(
-    memo: EstimateMemo,
-    scope: tuple[Any, ...],
-    corrects: Sequence[MitigationPass],
-    estimator: MitigationPass | None,
-    variant: CircuitVariant,
-    bases: tuple[str, ...],
-    ws: Workspace,
-    cal: _CalibrationSource,
-) -> Estimate:
-    stages = [p.spec() for p in corrects] + ([estimator.spec()] if estimator else [])
-    key = (*scope, variant, json.dumps(stages, sort_keys=True), bases, cal.mode)
-    entry = memo._entries.get(key)
-    if entry is None:
-        calls: list[tuple[CircuitVariant, tuple[int, ...], int | None]] = []
-
-        def recording(v: CircuitVariant, states: tuple[int, ...], shots: int | None) -> np.ndarray:
-            calls.append((v, tuple(states), shots))
-            return cal(v, states, shots)
-
-        sub = Workspace(ctx=ws.ctx, measured=ws.measured, calibration=recording)
-        est = _variant_estimate(corrects, estimator, variant, bases, sub)
-        entry = _MemoEntry(est, copy.deepcopy(sub.details), tuple(calls))
-        memo._entries[key] = entry
-        memo.misses += 1
-        _merge_details(ws.details, sub.details)
-        return est
-    memo.hits += 1
-    for v, states, shots in entry.calibration_calls:
-        cal(v, states, shots)  # registers the calibration sources and their shots
-    _merge_details(ws.details, copy.deepcopy(entry.details))
-    return entry.estimate
-
-
-def _evaluate(
-    parsed: ParsedRecipe,
-    ctx: ExperimentContext,
-    variants: tuple[CircuitVariant, ...],
-    bases: tuple[str, ...],
-    measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]],
-    cal: _CalibrationSource,
-    memo: EstimateMemo | None = None,
-    memo_scope: tuple[Any, ...] = (),
-) -> _Evaluation:
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal)
-    corrects = [p for p in parsed.passes if p.stage == STAGE_CORRECT]
-    estimator = parsed.of_stage(STAGE_ESTIMATE)
-    combiner = parsed.of_stage(STAGE_COMBINE)
-    use_memo = memo is not None and cal.mode in ("exact", "seeded")
-    per_variant: dict[CircuitVariant, Estimate] = {}
-    for v in variants:
-        if use_memo:
-            scope = (ctx, cal.calibrator, *memo_scope)
-            per_variant[v] = _memo_estimate(memo, scope, corrects, estimator, v, bases, ws, cal)
-        else:
-            per_variant[v] = _variant_estimate(corrects, estimator, v, bases, ws)
-    if combiner is not None:
-        est = combiner.combine(variants, [per_variant[v] for v in variants], ws)
-    else:
-        est = per_variant[variants[0]]
-    return _Evaluation(est, per_variant, ws.details, cal)
-
-
-def _allocate(
-    ctx: ExperimentContext,
-    est: Estimate,
-    measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]],
-    variants: tuple[CircuitVariant, ...],
-    bases: tuple[str, ...],
-    split: str,
-) -> dict[Any, int]:
-    """Integer shots per (variant, basis) source, summing to ctx.shots."""
-    zeros = np.zeros(2**ctx.plan.num_qubits)
-    within: list[np.ndarray] = []
-    cost: list[float] = []
-    for v in variants:
-        var = np.array(
-            [
-                single_shot_variance(measured[v][b], est.influence.get(meas_key(v, b), zeros))
-                for b in bases
-            ]
-        )
-        sd = np.sqrt(var)
-        if ctx.allocation == "uniform" or sd.sum() <= 0:
-            within.append(np.full(len(bases), 1.0 / len(bases)))
-            cost.append(len(bases) * float(var.sum()))
-        else:
-            within.append(sd / sd.sum())
-            cost.append(float(sd.sum()) ** 2)
-    k = len(variants)
-    if split == "weighted" and sum(cost) > 0:
-        frac = np.sqrt(np.array(cost))
-        frac = frac / frac.sum()
-    else:
-        frac = np.full(k, 1.0 / k)
-    shares = np.concatenate([frac[i] * within[i] for i in range(k)])
-    counts = largest_remainder(shares, int(ctx.shots))
-    keys = [meas_key(v, b) for v in variants for b in bases]
-    return dict(zip(keys, (int(c) for c in counts), strict=True))
-
-
-def _split_variance(
-    est: Estimate, probs: Mapping[Any, np.ndarray], shots: Mapping[Any, int | None]
-) -> tuple[float, float]:
-    """(measurement variance, calibration variance) at the given shots (Ha**2)."""
-    meas = {k: v for k, v in est.influence.items() if k[0] == "meas"}
-    calib = {k: v for k, v in est.influence.items() if k[0] == "cal"}
-    return (
-        estimate_variance(Estimate(0.0, meas), probs, shots),
-        estimate_variance(Estimate(0.0, calib), probs, shots),
-    )
+# ---- the recipe as a chain of steps ------------------------------------------------------------
 
 
 def run_recipe(
@@ -663,196 +157,46 @@ def run_recipe(
     parsed = parse_recipe(recipe)
     for i, p in enumerate(parsed.passes):
         p.check(ctx, f"recipe[{i}]")
-    estimator = parsed.of_stage(STAGE_ESTIMATE)
-    combiner = parsed.of_stage(STAGE_COMBINE)
-    variants = combiner.variants(ctx) if combiner else (CircuitVariant(),)
-    bases = tuple(estimator.bases(ctx) if estimator else ctx.plan.bases)
+    variants, bases = parsed.variants(ctx), parsed.bases(ctx)
     calibrator = calibrator or default_calibrator(ctx)
 
-    dists = {v: runner(v) for v in variants}
-    for v, d in dists.items():
-        missing = [b for b in bases if b not in d.bases]
-        if missing:
-            raise NoiselabError(f"runner: variant {v.label()} lacks bases {', '.join(missing)}")
-    exact_meas = {v: {b: _row(dists[v], b) for b in bases} for v in variants}
-
-    # phase 1: exact distributions everywhere -> influences, allocation, analytic variance
-    scope = (runner,)
-    ev1 = _evaluate(
-        parsed,
-        ctx,
-        variants,
-        bases,
-        exact_meas,
-        _CalibrationSource(ctx, calibrator, "exact", None),
-        memo,
-        scope,
-    )
-    split = getattr(combiner.options, "shot_split", "equal") if combiner else "equal"
-    shots = _allocate(ctx, ev1.estimate, exact_meas, variants, bases, split)
-    all_shots: dict[Any, int | None] = {**shots, **ev1.cal.shots}
-    exact_probs: dict[Any, np.ndarray] = {
-        meas_key(v, b): exact_meas[v][b] for v in variants for b in bases
-    }
-    exact_probs.update(ev1.cal.exact)
-    var_meas, var_cal = _split_variance(ev1.estimate, exact_probs, all_shots)
-
-    cal_finite = any(n is not None for n in ev1.cal.shots.values())
-    if not sampled:
-        if cal_finite:
-            ev = _evaluate(
-                parsed,
-                ctx,
-                variants,
-                bases,
-                exact_meas,
-                _CalibrationSource(ctx, calibrator, "seeded", None),
-                memo,
-                scope,
-            )
-        else:
-            ev = ev1
-        probs_for_std = exact_probs
-        est_for_std = ev1.estimate
-        per_variant_std = ev1.per_variant
-    else:
+    data = measure(runner, variants, bases)
+    # exact distributions everywhere -> influences, allocation, analytic variance; the bias is
+    # the expectation: exact calibration, no random draw (the finite calibration's noise is in
+    # the standard error; first order, see the module docstring)
+    cal = CalibrationSource(calibrator)
+    exact = evaluate(parsed.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+    alloc = allocate(ctx, exact.estimate, data, parsed.shot_split())
+    used, used_data = exact, data
+    if sampled:
         rng = rng if rng is not None else np.random.default_rng(ctx.seed)
-        sampled_meas = {
-            v: {b: sample_distribution(exact_meas[v][b], shots[meas_key(v, b)], rng) for b in bases}
-            for v in variants
-        }
-        ev = _evaluate(
-            parsed,
-            ctx,
-            variants,
-            bases,
-            sampled_meas,
-            _CalibrationSource(ctx, calibrator, "rng", rng),
-        )
-        probs_for_std = {meas_key(v, b): sampled_meas[v][b] for v in variants for b in bases}
-        probs_for_std.update(ev.cal.used)
-        est_for_std = ev.estimate
-        per_variant_std = ev.per_variant
-        var_meas, var_cal = _split_variance(est_for_std, probs_for_std, all_shots)
-
-    traj_std = _trajectory_std(ev1.estimate, dists, variants, bases)
-    energy = float(ev.estimate.value)
-    std_ha = math.sqrt(var_meas + var_cal)
-    bias_exact = (energy - ctx.exact_energy_ha) * HA_TO_MHA
-    bias_ansatz = (energy - ctx.ansatz_energy_ha) * HA_TO_MHA
-    mha2 = HA_TO_MHA**2
-    verdict = assess_target(
-        bias_exact,
-        var_meas * ctx.shots * mha2,
-        var_cal * mha2,
-        int(ctx.shots),
-        ctx.target_mha,
-        ctx.confidence,
+        used_data = draw(data, alloc, rng)
+        cal = CalibrationSource(calibrator, rng)
+        used = evaluate(parsed.passes, ctx, variants, bases, used_data.probs, cal)
+    errors = variance(exact, used, used_data, alloc, memo)
+    scored = score(ctx, float(used.estimate.value), errors)
+    per_variant = variant_scores(ctx, used, used_data, alloc, errors)
+    cal_shots = exact.calibration.shots
+    details = details_json(
+        ctx, per_variant, used.reports, used_data, alloc, errors, scored.verdict, cal_shots
     )
-
-    details = dict(ev.details)
-    per = {}
-    for v in variants:
-        e_v = per_variant_std[v]
-        if memo is not None and not sampled:  # exact inputs: the same for every recipe
-            svars = memo._source_variances(e_v, probs_for_std)
-        else:
-            svars = source_variances(e_v, probs_for_std)
-        per[v.label()] = {
-            "energy_ha": float(ev.per_variant[v].value),
-            "std_mha": math.sqrt(_variance_from_sources(svars, all_shots)) * HA_TO_MHA,
-            "shots": int(sum(shots[meas_key(v, b)] for b in bases)),
-            "scale": float(actual_scale(ctx, v)),
-            "engine_seconds": float(getattr(dists[v], "engine_seconds", 0.0)),
-            "two_qubit_count": _two_qubit_count(ctx, v),
-        }
-    details["variants"] = per
-    if "extrapolation" in details:
-        details["extrapolation"]["stds_mha"] = [per[v.label()]["std_mha"] for v in variants]
-        details["extrapolation"]["engine_seconds"] = [
-            per[v.label()]["engine_seconds"] for v in variants
-        ]
-        details["extrapolation"]["two_qubit_counts"] = [
-            per[v.label()]["two_qubit_count"] for v in variants
-        ]
-    details["bases"] = list(bases)
-    details["std_measurement_mha"] = math.sqrt(var_meas) * HA_TO_MHA
-    details["std_calibration_mha"] = math.sqrt(var_cal) * HA_TO_MHA
-    if traj_std is not None:
-        # emulation error of the trajectory method (not part of std_mha: no device has it)
-        details["trajectory_std_mha"] = traj_std * HA_TO_MHA
-    cal_total = int(sum(n for n in ev1.cal.shots.values() if n is not None))
-    details["calibration_shots_total"] = cal_total
-    details["calibration_circuits"] = len(ev1.cal.shots)
-    if verdict.note:
-        details["limited_by_note"] = verdict.note
-    if "acceptance" in details:
-        kept = 0.0
-        for v in variants:
-            acc = details["acceptance"].get(v.label(), {})
-            kept += sum(shots[meas_key(v, b)] * acc.get(b, 1.0) for b in bases)
-        details["effective_shots"] = kept
-        accepted_bases = [
-            (shots[meas_key(v, b)], a)
-            for v in variants
-            for b, a in details["acceptance"].get(v.label(), {}).items()
-        ]
-        n_sel = sum(n for n, _ in accepted_bases)
-        details["acceptance_rate"] = sum(n * a for n, a in accepted_bases) / n_sel if n_sel else 1.0
-    plan_bases = set(ctx.plan.bases)  # a property that builds the tuple on every call
-    extra = [b for b in bases if b not in plan_bases]
-    if extra:
-        details["extra_bases"] = extra
-        details["extra_basis_shots"] = int(
-            sum(shots[meas_key(v, b)] for v in variants for b in extra)
-        )
-
     return RecipeResult(
         recipe=parsed.name,
         spec=tuple(parsed.spec()),
-        energy_ha=energy,
-        bias_exact_mha=bias_exact,
-        bias_ansatz_mha=bias_ansatz,
-        std_mha=std_ha * HA_TO_MHA,
+        energy_ha=scored.energy_ha,
+        bias_exact_mha=scored.bias_exact_mha,
+        bias_ansatz_mha=scored.bias_ansatz_mha,
+        std_mha=scored.std_mha,
         shots_total=int(ctx.shots),
-        shots_per_circuit={f"{k[1].label()}|{k[2]}": int(n) for k, n in shots.items()},
-        n_circuits=len(shots) + len(ev1.cal.shots),
-        engine_seconds=float(sum(getattr(d, "engine_seconds", 0.0) for d in dists.values())),
-        p_within_target=verdict.p_within_target,
-        shots_needed=verdict.shots_needed,
-        limited_by=verdict.limited_by,
+        shots_per_circuit={f"{k[1].label()}|{k[2]}": int(n) for k, n in alloc.shots.items()},
+        n_circuits=len(alloc.shots) + len(cal_shots),
+        engine_seconds=float(sum(getattr(d, "engine_seconds", 0.0) for d in data.runs.values())),
+        p_within_target=scored.verdict.p_within_target,
+        shots_needed=scored.verdict.shots_needed,
+        limited_by=scored.verdict.limited_by,
+        reaches_target=scored.verdict.reaches_target,
         details=plain_json(details),
         sampled=bool(sampled),
+        variants=per_variant,
+        reports=dict(used.reports),
     )
-
-
-def _trajectory_std(
-    est: Estimate,
-    dists: Mapping[CircuitVariant, Any],
-    variants: tuple[CircuitVariant, ...],
-    bases: tuple[str, ...],
-) -> float | None:
-    """Trajectory standard error of the estimate (linearized), or None for exact emulation."""
-    total = 0.0
-    found = False
-    for v in variants:
-        batches = getattr(dists[v], "trajectory_batches", None)
-        if batches is None:
-            continue
-        found = True
-        d = dists[v]
-        vals = np.zeros(batches.shape[0])
-        for b in bases:
-            u = est.influence.get(meas_key(v, b))
-            if u is not None:
-                vals += batches[:, d.bases.index(b), :] @ u
-        if len(vals) > 1:
-            total += float(vals.var(ddof=1)) / len(vals)
-    return math.sqrt(total) if found else None
-
-
-def _two_qubit_count(ctx: ExperimentContext, variant: CircuitVariant) -> int | None:
-    if ctx.compiled is None:
-        return None
-    compiled = variant_inputs(ctx, variant)[0]
-    return int(getattr(compiled, "two_qubit_count", 0))

@@ -1,23 +1,56 @@
-"""Mitigation passes by name, and validation of recipe entries."""
+"""Mitigation passes by name, and validation of recipe entries.
+
+The registry is open: ``register_pass(cls)`` adds a pass class (the three built-in passes are
+registered the same way), after which recipes, study files and every job accept its name.
+"""
 
 from __future__ import annotations
 
 from collections.abc import Mapping
-from typing import Any
+from typing import Any, TypeVar
 
 from pydantic import ValidationError
 
 from noiselab.common.errors import InputError, from_validation_error
-from noiselab.mitigate.base import MitigationPass
+from noiselab.mitigate.base import STAGE_NAMES, MitigationPass, PassOptions
 from noiselab.mitigate.passes.extrapolate import ExtrapolatePass
 from noiselab.mitigate.passes.postselect import PostselectPass
 from noiselab.mitigate.passes.readout import ReadoutPass
 
-PASSES: dict[str, type[MitigationPass]] = {
-    ReadoutPass.name: ReadoutPass,
-    PostselectPass.name: PostselectPass,
-    ExtrapolatePass.name: ExtrapolatePass,
-}
+PASSES: dict[str, type[MitigationPass]] = {}
+
+PassClass = TypeVar("PassClass", bound=type[MitigationPass])
+
+
+def register_pass(cls: PassClass, *, replace: bool = False) -> PassClass:
+    """Add the pass class ``cls`` to :data:`PASSES` under ``cls.name``; returns ``cls`` (so it
+    also works as a class decorator).
+
+    Checks the interface first: a :class:`MitigationPass` subclass with a name (letters, digits,
+    ``_``; not taken unless ``replace``), one of the three stages, and an ``Options`` model
+    derived from :class:`PassOptions` that refuses unknown keys. Raises TypeError / ValueError
+    (a programming error, not bad input).
+    """
+    if not (isinstance(cls, type) and issubclass(cls, MitigationPass)):
+        raise TypeError(f"register_pass: {cls!r} is not a MitigationPass subclass")
+    name = getattr(cls, "name", None)
+    if not isinstance(name, str) or not name.replace("_", "").isalnum():
+        raise ValueError(f"register_pass: {cls.__name__}.name {name!r} is not a pass name")
+    if name in PASSES and PASSES[name] is not cls and not replace:
+        raise ValueError(f"register_pass: the name {name!r} is taken by {PASSES[name].__name__}")
+    if getattr(cls, "stage", None) not in STAGE_NAMES:
+        raise ValueError(f"register_pass: {cls.__name__}.stage must be one of {list(STAGE_NAMES)}")
+    options = getattr(cls, "Options", None)
+    if not (isinstance(options, type) and issubclass(options, PassOptions)):
+        raise TypeError(f"register_pass: {cls.__name__}.Options must subclass PassOptions")
+    if options.model_config.get("extra") != "forbid":
+        raise ValueError(f"register_pass: {cls.__name__}.Options must refuse unknown keys")
+    PASSES[name] = cls
+    return cls
+
+
+for _builtin in (ReadoutPass, PostselectPass, ExtrapolatePass):
+    register_pass(_builtin)
 
 
 def make_pass(spec: Mapping[str, Any], where: str = "recipe[0]") -> MitigationPass:

@@ -5,9 +5,13 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Any, Literal
+from typing import Any, Literal, TypeVar
 
 import numpy as np
+
+from noiselab.mitigate.reports import PassReport, VariantScore
+
+ReportType = TypeVar("ReportType", bound=PassReport)
 
 
 @dataclass(frozen=True, eq=False)
@@ -17,9 +21,17 @@ class RecipeResult:
     ``bias_*_mha``: energy - reference (signed). ``std_mha``: standard error at the budget
     (measurement shots and calibration shots). ``shots_total``: the measurement budget (the
     calibration circuits' shots are in ``details["calibration_shots_total"]``).
+    ``std_mha`` also holds the uncertainty of the realized noise amplification of an
+    extrapolation (``details["std_amplification_mha"]``).
     ``shots_per_circuit``: ``"<variant>|<basis>" -> shots``. ``n_circuits``: distinct circuits
     (variants x bases, plus calibration circuits). ``shots_needed``: measurement shots for
-    ``p_within_target >= confidence`` (None when the bias prevents it).
+    ``p_within_target >= confidence`` (None when the bias prevents it). ``reaches_target``: the
+    one rule of :func:`noiselab.mitigate.target.reaches_target` at the budget.
+
+    Typed fields: ``variants`` (each circuit variant as scored, in the recipe's order) and
+    ``reports`` (pass name -> the pass's :class:`PassReport`, in recipe order). ``details`` is
+    the JSON built from them (``noiselab.mitigate.steps.details_json``). The record form
+    (``dataclasses.asdict``, then JSON) is accepted back for both: they are rebuilt typed.
     """
 
     recipe: str
@@ -34,9 +46,27 @@ class RecipeResult:
     engine_seconds: float
     p_within_target: float
     shots_needed: int | None
-    limited_by: Literal["bias", "calibration", "shots", "none"]
+    limited_by: Literal["bias", "calibration", "amplification", "shots", "none"]
+    reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False
+    variants: tuple[VariantScore, ...] = ()
+    reports: dict[str, PassReport] = field(default_factory=dict)
+
+    def __post_init__(self) -> None:
+        variants = tuple(
+            v if isinstance(v, VariantScore) else VariantScore(**v) for v in self.variants
+        )
+        reports = {
+            name: r if isinstance(r, PassReport) else PassReport.from_record(name, r)
+            for name, r in self.reports.items()
+        }
+        object.__setattr__(self, "variants", variants)
+        object.__setattr__(self, "reports", reports)
+
+    def report(self, cls: type[ReportType]) -> ReportType | None:
+        """The report of type ``cls`` (e.g. the extrapolation's), None if no pass gave one."""
+        return next((r for r in self.reports.values() if isinstance(r, cls)), None)
 
     def to_dict(self) -> dict[str, Any]:
         return plain_json(dataclasses.asdict(self))

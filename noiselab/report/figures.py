@@ -2,23 +2,43 @@
 
 No pyplot state is touched: each function builds a ``matplotlib.figure.Figure`` with an Agg
 canvas, writes it atomically and drops it, so nothing stays open and a notebook's backend is
-left alone. matplotlib is imported inside the functions (``noiselab --help`` stays fast).
+left alone. (The command line imports this module only inside its commands.)
 
-Energies are drawn as errors against the exact energy in mHa, the unit of the target.
+Energies are drawn as errors against the exact energy in mHa, the unit of the target. Every
+figure reads typed records only: an ``AssessResult`` (its ``RecipeResult``s, their variant
+scores and the extrapolation pass's ``ExtrapolationReport``, whose fitted curve is drawn as
+reported), a ``SweepResult``, a ``BudgetResult``, or the figure's own data record.
+
+Over 400 lines: the four figures of the jobs (assess: extrapolation and bias bars; sweep;
+budget) share their records, palette, caution footnote and atomic writing here, and the callers
+(``report.outputs``, the notebook) import them from this one module.
 """
 
 from __future__ import annotations
 
 import dataclasses
 import math
-from collections.abc import Iterable, Mapping, Sequence
+import textwrap
+from collections.abc import Iterable, Sequence
 from pathlib import Path
 from typing import Any
 
-from noiselab.common.atomic import atomic_path
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA, HA_TO_MHA
+import matplotlib
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+from matplotlib.patches import Patch
+from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
 
-CAUTION = "emulated: only as good as the noise model"
+from noiselab.common.atomic import atomic_path
+from noiselab.common.units import HA_TO_MHA
+from noiselab.common.wording import CAUTION, target_words
+from noiselab.mitigate.passes.extrapolate import ExtrapolationReport
+from noiselab.mitigate.result import RecipeResult
+from noiselab.study.budget import BudgetResult
+from noiselab.study.results import AssessResult
+from noiselab.study.sweep import SweepResult
+
 _FORMATS = ("svg", "pdf", "png")
 _DPI = 150
 _RAW_NAMES = ("raw", "none", "unmitigated")
@@ -31,8 +51,8 @@ _RAW_NAMES = ("raw", "none", "unmitigated")
 class ExtrapolationSeries:
     """One recipe's energies against noise scale, and its fit sampled on [0, max scale].
 
-    Energies in Ha; ``curve_*`` is the fit sampled for drawing (empty when the recipe does not
-    extrapolate).
+    Energies in Ha; ``curve_*``: the fitted curve as the extrapolation pass reported it (empty:
+    no curve drawn).
     """
 
     recipe: str
@@ -63,24 +83,37 @@ class BiasBar:
     recipe: str
     bias_mha: float
     std_mha: float
+    reaches_target: bool = False  # the one rule (P >= confidence at the budget)
+
+
+@dataclasses.dataclass(frozen=True)
+class BiasFigureData:
+    """What :func:`plot_bias_bars` draws."""
+
+    study_name: str
+    device_name: str
+    target_mha: float
+    bars: tuple[BiasBar, ...]
 
 
 # ---------------------------------------------------------------- shared helpers
 
 
 def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
-    from matplotlib.backends.backend_agg import FigureCanvasAgg
-    from matplotlib.figure import Figure
-
     fig = Figure(figsize=(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
 
 
 def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
-    ax.set_title(f"{title}\nstudy {study} on device {device}", fontsize=10)
+    """Title, subtitle ``study S on D`` (``D``: 'device NAME', or words such as '4 devices')
+    and the caution line."""
+    where = device if " " in device else f"device {device}"
+    ax.set_title(f"{title}\nstudy {study} on {where}", fontsize=10)
     # a figure-level x label is laid out below everything else (outside legends included)
-    fig.supxlabel(CAUTION, x=0.995, ha="right", fontsize=7, style="italic", color="0.4")
+    # wrapped to the figure's width (about 17 characters per inch at 7 pt)
+    caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
+    fig.supxlabel(caution, x=0.995, ha="right", ma="right", fontsize=7, style="italic", color="0.4")
     ax.grid(True, which="major", alpha=0.3)
 
 
@@ -91,8 +124,6 @@ _SVG_HASH_SALT = "noiselab"
 
 
 def _savefig(fig: Any, target: Path, fmt: str) -> None:
-    import matplotlib
-
     # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42;
     # SVG element ids come from a fixed salt instead of a random one
     rc = {"svg.fonttype": "none", "pdf.fonttype": 42, "svg.hashsalt": _SVG_HASH_SALT}
@@ -123,23 +154,11 @@ def _save_all(fig: Any, stem: str | Path) -> tuple[Path, ...]:
     return tuple(out)
 
 
-def _is_chemical_accuracy(target_mha: float) -> bool:
-    return abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4
-
-
-def _target_label(target_mha: float) -> str:
-    if _is_chemical_accuracy(target_mha):
-        return f"chemical accuracy {target_mha:.3g} mHa"
-    return f"target {target_mha:.3g} mHa"
-
-
 def _is_raw(name: str) -> bool:
     return name.lower() in _RAW_NAMES
 
 
 def _colors(names: Sequence[str]) -> dict[str, Any]:
-    import matplotlib
-
     # green is kept for the target band
     cmap = matplotlib.colormaps["tab10"]
     palette = [cmap(i) for i in (0, 1, 3, 4, 5, 6, 9, 8)]
@@ -159,162 +178,48 @@ def _wide_range(values: Iterable[float], ratio: float = 30.0) -> bool:
     return bool(vals) and max(vals) / max(min(vals), 1e-12) > ratio
 
 
-# ---------------------------------------------------------------- adapters from study results
+# ---------------------------------------------------------------- from the typed study results
 
 
-def _get(obj: Any, name: str, default: Any = None) -> Any:
-    if isinstance(obj, dict):
-        return obj.get(name, default)
-    return getattr(obj, name, default)
-
-
-def _first(obj: Any, names: Sequence[str], default: Any = None) -> Any:
-    for n in names:
-        v = _get(obj, n)
-        if v is not None:
-            return v
-    return default
-
-
-def _recipe_name(result: Any) -> str:
-    r = _get(result, "recipe")
-    if r is None:
-        return str(_get(result, "name", "recipe"))
-    if isinstance(r, str):
-        return r
-    return str(_first(r, ("name", "label"), r))
-
-
-def _fit_curve(
-    fit: Any, scales: Sequence[float], energies_ha: Sequence[float]
-) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    """Sample the extrapolation fit described by ``fit`` (mitigate's details) on [0, max scale].
-
-    Knows: ``poly_coeffs_low_first`` (linear, polynomial), ``exp_a_ha``/``exp_b_ha``/``exp_k``
-    (E = a + b exp(-k c)), Richardson (the interpolating polynomial through the points), and an
-    explicit ``curve`` ([xs], [ys]).
-    """
-    import numpy as np
-
-    xmax = max(scales) if scales else 1.0
-    xs = np.linspace(0.0, xmax * 1.03, 90)
-    curve = _get(fit, "curve")
-    if curve is not None:
-        cx, cy = curve
-        return tuple(map(float, cx)), tuple(map(float, cy))
-    poly = _first(fit, ("poly_coeffs_low_first", "coefficients"), None)
-    if _get(fit, "exp_k") is not None:
-        a, b, k = (float(_get(fit, n)) for n in ("exp_a_ha", "exp_b_ha", "exp_k"))
-        ys = a + b * np.exp(-k * xs)
-    elif poly is not None:
-        ys = np.polynomial.polynomial.polyval(xs, [float(c) for c in poly])
-    elif str(_get(fit, "fit", "")).lower() == "richardson" and len(scales) >= 2:
-        # Richardson is the value at 0 of the polynomial of degree m-1 through the m points
-        coeffs = np.polynomial.polynomial.polyfit(
-            np.asarray(scales, float), np.asarray(energies_ha, float), len(scales) - 1
-        )
-        ys = np.polynomial.polynomial.polyval(xs, coeffs)
-    else:
-        return (), ()
-    return tuple(map(float, xs)), tuple(map(float, ys))
-
-
-def extrapolation_series(result: Any, name: str | None = None) -> ExtrapolationSeries | None:
-    """An :class:`ExtrapolationSeries` from a RecipeResult-like record (None if it does not
-    extrapolate). Reads ``details["extrapolation"]`` (or the details themselves)."""
-    if isinstance(result, ExtrapolationSeries):
-        return result
-    details = _get(result, "details") or {}
-    ext = _get(details, "extrapolation") or details
-    scales = _first(ext, ("scales", "noise_scales", "scale_factors"), None)
-    energies = _first(ext, ("energies_ha", "scale_energies_ha"), None)
-    if scales is None or energies is None:
+def extrapolation_series(name: str, result: RecipeResult) -> ExtrapolationSeries | None:
+    """One recipe's series from its typed records (None if it does not extrapolate): the scales,
+    energies and fitted curve its :class:`ExtrapolationReport` gives, each scale's standard
+    error from the recipe's variant scores, the extrapolated energy and its standard error."""
+    report = result.report(ExtrapolationReport)
+    if report is None:
         return None
-    stds = _first(ext, ("stds_ha", "scale_stds_ha"), None)
-    if stds is None:
-        std_mha = _first(ext, ("stds_mha", "scale_stds_mha", "std_mha"), None)
-        if isinstance(std_mha, list | tuple):
-            stds = [float(s) / HA_TO_MHA for s in std_mha]
-        else:
-            stds = [0.0] * len(scales)
-    scales_f = [float(x) for x in scales]
-    energies_f = [float(e) for e in energies]
-    cx, cy = _fit_curve(ext, scales_f, energies_f)
-    std_mha = _get(result, "std_mha")
+    std_mha = {v.label: v.std_mha for v in result.variants}
     return ExtrapolationSeries(
-        recipe=name or _recipe_name(result),
-        scales=tuple(scales_f),
-        energies_ha=tuple(energies_f),
-        stds_ha=tuple(float(x) for x in stds),
-        estimate_ha=_get(result, "energy_ha"),
-        estimate_std_ha=None if std_mha is None else float(std_mha) / HA_TO_MHA,
-        curve_scales=cx,
-        curve_energies_ha=cy,
+        recipe=name,
+        scales=report.scales,
+        energies_ha=report.energies_ha,
+        stds_ha=tuple(std_mha[label] / HA_TO_MHA for label in report.variants),
+        estimate_ha=result.energy_ha,
+        estimate_std_ha=result.std_mha / HA_TO_MHA,
+        curve_scales=report.curve_scales,
+        curve_energies_ha=report.curve_energies_ha,
     )
 
 
-def _named_results(obj: Any) -> list[tuple[str, Any]]:
-    """(recipe name, RecipeResult-like) pairs from an assess result, a mapping or a list."""
-    if isinstance(obj, Mapping):
-        res: Any = obj
-    elif isinstance(obj, list | tuple):
-        return [(_recipe_name(r), r) for r in obj]
-    else:
-        res = _first(obj, ("recipes", "results", "recipe_results"), None)
-        if res is None:
-            raise TypeError(f"cannot find recipe results in {type(obj).__name__}")
-    if isinstance(res, Mapping):
-        return [(str(k), v) for k, v in res.items()]
-    return [(_recipe_name(r), r) for r in res]
-
-
-def _names_of(obj: Any) -> tuple[str, str]:
-    """(study name, device name) of a result, looking in ``context`` too."""
-    ctx = _get(obj, "context")
-    study = _first(obj, ("study_name",), None) or _first(ctx, ("study",), None)
-    if study is None:
-        spec = _get(obj, "study")
-        study = spec if isinstance(spec, str) else _first(spec, ("name",), "study")
-    device = _first(obj, ("device_name",), None) or _first(ctx, ("device",), None)
-    if device is None:
-        dev = _get(obj, "device") or _get(obj, "profile")
-        device = dev if isinstance(dev, str) else _first(dev, ("name",), "device")
-    return str(study), str(device)
-
-
-def extrapolation_data(obj: Any) -> ExtrapolationFigureData:
-    """Figure data from an assess result (or an ExtrapolationFigureData, returned as is)."""
-    if isinstance(obj, ExtrapolationFigureData):
-        return obj
-    study, device = _names_of(obj)
-    exact = _first(obj, ("exact_energy_ha",), None)
-    results = _named_results(obj)
-    if exact is None:
-        r0 = results[0][1]
-        exact = _get(r0, "energy_ha") - _get(r0, "bias_exact_mha") / HA_TO_MHA
-    series = tuple(
-        s for s in (extrapolation_series(r, name) for name, r in results) if s is not None
+def extrapolation_data(result: AssessResult) -> ExtrapolationFigureData:
+    """What :func:`plot_extrapolation` draws for an assess result (every extrapolating recipe)."""
+    named = ((name, extrapolation_series(name, r)) for name, r in result.recipes.items())
+    return ExtrapolationFigureData(
+        study_name=result.context.study,
+        device_name=result.context.device,
+        exact_energy_ha=result.exact_energy_ha,
+        target_mha=result.target_mha,
+        series=tuple(s for _, s in named if s is not None),
     )
-    target = float(_first(obj, ("target_mha",), CHEMICAL_ACCURACY_MHA))
-    return ExtrapolationFigureData(study, device, float(exact), target, series)
 
 
-def bias_bars(obj: Any) -> tuple[str, str, float, tuple[BiasBar, ...]]:
-    """(study, device, target_mha, bars) from an assess result or a list of RecipeResults."""
-    if isinstance(obj, list | tuple) and obj and all(isinstance(b, BiasBar) for b in obj):
-        return "study", "device", CHEMICAL_ACCURACY_MHA, tuple(obj)
-    plain = isinstance(obj, list | tuple | Mapping)
-    study, device = ("study", "device") if plain else _names_of(obj)
-    target = (
-        CHEMICAL_ACCURACY_MHA
-        if plain
-        else float(_first(obj, ("target_mha",), CHEMICAL_ACCURACY_MHA))
-    )
+def bias_data(result: AssessResult) -> BiasFigureData:
+    """What :func:`plot_bias_bars` draws for an assess result (every recipe, in study order)."""
     bars = tuple(
-        BiasBar(name, float(_get(r, "bias_exact_mha")), float(_get(r, "std_mha") or 0.0))
-        for name, r in _named_results(obj)
+        BiasBar(name, r.bias_exact_mha, r.std_mha, r.reaches_target)
+        for name, r in result.recipes.items()
     )
-    return study, device, target, bars
+    return BiasFigureData(result.context.study, result.context.device, result.target_mha, bars)
 
 
 # ---------------------------------------------------------------- the figures
@@ -374,14 +279,15 @@ def _draw_extrapolation(
             )
 
 
-def plot_extrapolation(assess_result_or_records: Any, path: str | Path) -> Path:
-    """Energy error against noise scale for every extrapolating recipe; fit curves to 0.
+def plot_extrapolation(result: AssessResult | ExtrapolationFigureData, path: str | Path) -> Path:
+    """Energy error against noise scale for every extrapolating recipe; the fitted curves the
+    extrapolation pass reported, down to scale 0.
 
     Points carry error bars of one standard error at the shot budget; the exact energy is the
     zero line and the target band (exact ± target) is shaded. When the band is thin at full
     scale a second panel zooms on it. Returns the path written (format from its suffix).
     """
-    data = extrapolation_data(assess_result_or_records)
+    data = extrapolation_data(result) if isinstance(result, AssessResult) else result
     colors = _colors([s.recipe for s in data.series])
     xmax = max([1.0, *[max(s.scales) for s in data.series if s.scales]])
     all_y = [0.0] + [
@@ -415,33 +321,31 @@ def plot_extrapolation(assess_result_or_records: Any, path: str | Path) -> Path:
     return _save(fig, path)
 
 
-def plot_bias_bars(
-    assess_result_or_records: Any,
-    path: str | Path,
-    study_name: str | None = None,
-    device_name: str | None = None,
-) -> Path:
+def bar_colour(bar: BiasBar, target_mha: float) -> str:
+    """ "green": reaches the target at the budget (the one rule); "amber": only the bias is
+    within the target; "red": the bias is outside it."""
+    if bar.reaches_target:
+        return "green"
+    return "amber" if abs(bar.bias_mha) < target_mha else "red"
+
+
+def plot_bias_bars(result: AssessResult | BiasFigureData, path: str | Path) -> Path:
     """|bias| against the exact energy (mHa) per recipe, error bars of one standard error at the
     budget, the target as a line; log scale when the values span more than a factor 30.
 
-    Bars are green when |bias| + std is within the target, amber when only |bias| is, red
-    otherwise.
+    Bars are green when the recipe reaches the target at the budget (P >= confidence, the rule of
+    :func:`noiselab.mitigate.target.reaches_target`), amber when only its bias is within the
+    target, red otherwise.
     """
-    from matplotlib.lines import Line2D
-    from matplotlib.patches import Patch
-
-    study, device, target, bars = bias_bars(assess_result_or_records)
-    study, device = study_name or study, device_name or device
+    data = bias_data(result) if isinstance(result, AssessResult) else result
+    study, device, target, bars = data.study_name, data.device_name, data.target_mha, data.bars
     fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
     ax = fig.add_subplot(1, 1, 1)
     names = [b.recipe for b in bars]
     mags = [abs(b.bias_mha) for b in bars]
     stds = [b.std_mha for b in bars]
     verdict = {"green": "tab:green", "amber": "tab:orange", "red": "tab:red"}
-    colors = [
-        verdict["green"] if m + s <= target else verdict["amber"] if m <= target else verdict["red"]
-        for m, s in zip(mags, stds, strict=True)
-    ]
+    colors = [verdict[bar_colour(b, target)] for b in bars]
     log = _wide_range([*mags, target])
     pos = [m for m in mags if m > 0] or [target]
     floor = min(min(pos), target) / 5.0
@@ -469,9 +373,9 @@ def plot_bias_bars(
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("|energy − exact energy| (mHa)")
     handles = [
-        Line2D([], [], color="tab:green", ls="--", label=_target_label(target)),
-        Patch(color=verdict["green"], alpha=0.8, label="within target, even with 1 std"),
-        Patch(color=verdict["amber"], alpha=0.8, label="bias within, shot noise not"),
+        Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
+        Patch(color=verdict["green"], alpha=0.8, label="reaches the target at the budget"),
+        Patch(color=verdict["amber"], alpha=0.8, label="bias within, error bar too wide"),
         Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
     ]
     ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
@@ -479,7 +383,7 @@ def plot_bias_bars(
     return _save(fig, path)
 
 
-def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
+def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, ...]:
     """The proposal figure: |energy error| (mHa, log) against the knob, raw and each mitigated
     recipe with a ± one-standard-error band at the budget, the target band shaded, crossings
     marked, the device's current value as a vertical line. Writes SVG, PDF and PNG."""
@@ -508,11 +412,13 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
-    ax.axhline(t, color="tab:green", lw=1.0, label=_target_label(t) + " (shaded below)")
+    ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
+        col = colors.get(c_.recipe, "k")
+        for x in c_.bias_crossings:
+            ax.plot([x * d], [t], marker="D", ms=7, color="white", markeredgecolor=col, zorder=5)
         for x in c_.crossings:
-            col = colors.get(c_.recipe, "k")
             ax.plot([x * d], [t], marker="X", ms=10, color=col, markeredgecolor="k", zorder=5)
             # stagger the labels so that neighbouring crossings stay readable
             ax.annotate(
@@ -534,7 +440,7 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         lw=1.3,
         label=f"device now: {knob.show(sweep_result.current_value)}",
     )
-    low = [p.value * d for p in sweep_result.points if getattr(p, "floored", False)]
+    low = [p.value * d for p in sweep_result.points if p.floored]
     if low:
         # shade up to halfway to the first point above the floor (geometric mean on a log axis)
         above = [x for x in xs if x > max(low)]
@@ -555,8 +461,6 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     positive = [v for v in all_vals if v > floor]
     ax.set_ylim(max(min(positive) / 3.0, floor), max(positive) * 3.0)
     if sweep_result.log:
-        from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter
-
         ax.set_xscale("log")
         # plain numbers at 1, 2, 5 x 10^k read better than 2 x 10^-1 in a proposal
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
@@ -564,7 +468,15 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
         ax.xaxis.set_minor_formatter(NullFormatter())
     ax.set_xlabel(knob.axis_label)
     ax.set_ylabel("|energy − exact energy| (mHa)")
-    ax.plot([], [], "X", color="0.5", markeredgecolor="k", label="crossing of the target")
+    conf = sweep_result.confidence
+    ax.plot(
+        [], [], "X", color="0.5", markeredgecolor="k",
+        label=f"reaching the target at the budget (P >= {conf:g}) starts or stops",
+    )  # fmt: skip
+    ax.plot(
+        [], [], "D", color="white", markeredgecolor="0.3",
+        label="bias alone (unlimited shots) crosses the target",
+    )  # fmt: skip
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
     fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
@@ -579,11 +491,9 @@ def plot_sweep(sweep_result: Any, path_stem: str | Path) -> tuple[Path, ...]:
     return _save_all(fig, path_stem)
 
 
-def plot_budget(budget_result: Any, path: str | Path) -> Path:
+def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
-    from matplotlib.patches import Patch
-
     b = budget_result
     rows = list(b.rows)
     order = [
@@ -650,9 +560,65 @@ def plot_budget(budget_result: Any, path: str | Path) -> Path:
     handles.append(
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
     )
-    from matplotlib.lines import Line2D
-
-    handles.append(Line2D([], [], color="tab:green", ls="--", label=_target_label(t)))
+    handles.append(Line2D([], [], color="tab:green", ls="--", label=target_words(t)))
     fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
     _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
+    return _save(fig, path)
+
+
+def plot_drift(assess_result: Any, path: str | Path) -> Path:
+    """Bias against the exact energy (mHa) on each drawn device day, per recipe: one dot per
+    day, a bar from the 5th to the 95th percentile, the nominal bias as a diamond, the target
+    as a green band and the days that reach the target above each recipe. Symmetric-log axis
+    (linear within the target) when the biases span more than a factor 30."""
+    r = assess_result
+    target = float(r.target_mha)
+    names = [n for n in r.recipes if n in r.drift]
+    draws = max((r.drift[n].draws for n in names), default=0)
+    fig = _new_figure(max(5.5, 1.1 * len(names) + 3.0), 4.6)
+    ax = fig.add_subplot(1, 1, 1)
+    ax.axhspan(-target, target, color="tab:green", alpha=0.15, lw=0)
+    everything = [target]
+    for i, name in enumerate(names):
+        d = r.drift[name]
+        biases = list(d.biases_mha)
+        everything += [abs(b) for b in biases]
+        offsets = [((k * 0.618034) % 1.0 - 0.5) * 0.36 for k in range(len(biases))]
+        ax.scatter(
+            [i + o for o in offsets], biases, s=10, color="tab:blue", alpha=0.55, lw=0, zorder=3
+        )
+        ax.vlines(i, d.bias_mha_p05, d.bias_mha_p95, color="k", lw=2.2, zorder=4)
+        nominal = float(r.recipes[name].bias_exact_mha)
+        ax.plot([i], [nominal], marker="D", color="k", ms=5, zorder=5)
+        top = max(max(biases), nominal, target)
+        ax.annotate(
+            f"reaches {d.reaching}/{d.draws}",
+            (i, top),
+            textcoords="offset points",
+            xytext=(0, 5),
+            ha="center",
+            fontsize=7,
+        )
+    if _wide_range(everything):
+        ax.set_yscale("symlog", linthresh=target)
+    xs = list(range(len(names)))
+    many = len(names) > 4
+    ax.set_xticks(xs, names, rotation=20 if many else 0, ha="right" if many else "center")
+    ax.set_xlim(-0.6, len(names) - 0.4)
+    ax.margins(y=0.12)
+    ax.set_xlabel("mitigation recipe")
+    ax.set_ylabel("energy − exact energy (mHa)")
+    handles = [
+        Patch(color="tab:green", alpha=0.15, label=target_words(target)),
+        Line2D([], [], ls="", marker="o", color="tab:blue", alpha=0.55, label="one drawn day"),
+        Line2D([], [], color="k", lw=2.2, label="5th-95th percentile"),
+        Line2D([], [], ls="", marker="D", color="k", label="nominal device"),
+    ]
+    ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
+    study, device = r.context.study, r.context.device
+    title = (
+        f"Bias over {draws} drawn device days; reaches: P(within target) >= "
+        f"{float(r.confidence):g} at the budget"
+    )
+    _decorate(fig, ax, title, study, device)
     return _save(fig, path)

@@ -7,11 +7,19 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
+from noiselab.report.figures import (
+    extrapolation_data,
+    plot_bias_bars,
+    plot_budget,
+    plot_drift,
+    plot_extrapolation,
+    plot_sweep,
+)
+from noiselab.report.tables import budget_rows, sweep_rows, write_csv
+from noiselab.study.results import jsonable
 
 
 def _json_text(obj: Any) -> str:
-    from noiselab.study.results import jsonable
-
     return json.dumps(jsonable(obj), indent=2) + "\n"
 
 
@@ -20,9 +28,6 @@ def write_sweep_outputs(result: Any, out_dir: str | Path, stem: str | None = Non
 
     ``stem`` defaults to ``sweep-<knob>``.
     """
-    from noiselab.report.figures import plot_sweep
-    from noiselab.report.tables import sweep_rows, write_csv
-
     out = Path(out_dir)
     stem = stem or f"sweep-{result.knob}"
     written = [
@@ -35,9 +40,6 @@ def write_sweep_outputs(result: Any, out_dir: str | Path, stem: str | None = Non
 
 def write_budget_outputs(result: Any, out_dir: str | Path, stem: str = "budget") -> list[Path]:
     """``budget.csv``, ``budget.json`` and ``budget.png`` / ``budget.svg``; returns the paths."""
-    from noiselab.report.figures import plot_budget
-    from noiselab.report.tables import budget_rows, write_csv
-
     out = Path(out_dir)
     written = [
         write_csv(out / f"{stem}.csv", budget_rows(result)),
@@ -49,9 +51,8 @@ def write_budget_outputs(result: Any, out_dir: str | Path, stem: str = "budget")
 
 
 def write_assess_figures(result: Any, out_dir: str | Path) -> list[Path]:
-    """``assess-bias.png``/``.svg`` and, when a recipe extrapolates, ``assess-extrapolation``."""
-    from noiselab.report.figures import extrapolation_data, plot_bias_bars, plot_extrapolation
-
+    """``assess-bias.png``/``.svg``, ``assess-extrapolation`` when a recipe extrapolates and
+    ``assess-drift`` after ``--drift``."""
     out = Path(out_dir)
     written = [
         plot_bias_bars(result, out / "assess-bias.png"),
@@ -61,5 +62,10 @@ def write_assess_figures(result: Any, out_dir: str | Path) -> list[Path]:
         written += [
             plot_extrapolation(result, out / "assess-extrapolation.png"),
             plot_extrapolation(result, out / "assess-extrapolation.svg"),
+        ]
+    if getattr(result, "drift", None):
+        written += [
+            plot_drift(result, out / "assess-drift.png"),
+            plot_drift(result, out / "assess-drift.svg"),
         ]
     return written

@@ -1,7 +1,7 @@
 """Tables (rich) and CSV files from study results; units in every header.
 
 CSV files are written with the ``csv`` module through an atomic rename, so a reader never sees
-half a file. Rich is imported inside the functions.
+half a file.
 """
 
 from __future__ import annotations
@@ -13,7 +13,12 @@ from collections.abc import Mapping, Sequence
 from pathlib import Path
 from typing import Any
 
+from rich import box
+from rich.console import Console
+from rich.table import Table
+
 from noiselab.common.atomic import write_text_atomic
+from noiselab.study.results import TABLE_HEADERS, TUNE_HEADERS, score_values
 
 # ---------------------------------------------------------------- CSV
 
@@ -80,6 +85,7 @@ def sweep_rows(result: Any) -> list[dict[str, Any]]:
                     "std_mha": e.std_mha,
                     "bias_ansatz_mha": e.bias_ansatz_mha,
                     "p_within_target": e.p_within_target,
+                    "reaches_target": bool(e.reaches_target),
                     "limited_by": e.limited_by,
                 }
             )
@@ -87,6 +93,10 @@ def sweep_rows(result: Any) -> list[dict[str, Any]]:
                 t = getattr(e, "trajectory_std_mha", None)
                 rows[-1]["trajectory_std_mha"] = "" if t is None else t
     return rows
+
+
+def _at(values: Sequence[Any], k: int) -> Any:
+    return values[k] if k < len(values) else ""
 
 
 def budget_rows(result: Any) -> list[dict[str, Any]]:
@@ -102,7 +112,8 @@ def budget_rows(result: Any) -> list[dict[str, Any]]:
                     "recipe": name,
                     "error_mha": r.errors_mha[k],
                     "std_mha": r.stds_mha[k],
-                    "within_target": abs(r.errors_mha[k]) <= result.target_mha,
+                    "p_within_target": _at(r.p_within_target, k),
+                    "reaches_target": _at(r.reaches_target, k),
                 }
             )
             if getattr(result, "emulation_method", "density_matrix") == "trajectory":
@@ -121,23 +132,8 @@ def assess_rows(result: Any) -> list[dict[str, Any]]:
         result.recipes.items() if isinstance(result.recipes, Mapping) else enumerate(result.recipes)
     )
     for name, r in items:
-        out.append(
-            {
-                "recipe": str(name),
-                "energy_ha": float(r.energy_ha),
-                "bias_mha": float(r.bias_exact_mha),
-                "std_mha": float(r.std_mha),
-                "p_within_target": float(r.p_within_target),
-                "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
-                "limited_by": str(r.limited_by),
-            }
-        )
+        out.append({"recipe": str(name), **score_values(r)})
     return out
-
-
-def tune_rows(result: Any) -> list[dict[str, Any]]:
-    """CSV rows of a tune result (ranked)."""
-    return list(result.csv_rows())
 
 
 # ---------------------------------------------------------------- rich tables
@@ -146,9 +142,6 @@ def tune_rows(result: Any) -> list[dict[str, Any]]:
 def _table(
     title: str, headers: Sequence[str], rows: Sequence[Sequence[str]], plain: bool = False
 ) -> Any:
-    from rich import box
-    from rich.table import Table
-
     table = Table(title=title, box=box.ASCII if plain else box.ROUNDED, title_justify="left")
     for i, h in enumerate(headers):
         table.add_column(h, justify="left" if i == 0 else "right", no_wrap=i == 0)
@@ -166,12 +159,13 @@ def sweep_table(result: Any, plain: bool = False) -> Any:
         cells = [knob.show(p.value)]
         for name in result.recipes:
             e = p.entry(name)
-            mark = "" if abs(e.error_mha) <= result.target_mha else " *"
+            mark = "" if e.reaches_target else " *"
             cells.append(f"{e.error_mha:+.3f} ± {e.std_mha:.3f}{mark}")
         rows.append(cells)
+    conf = getattr(result, "confidence", 0.95)
     title = (
         f"{result.study_name} on {result.device_name}: sweep of {knob.phrase} "
-        f"(* outside ±{result.target_mha:.3g} mHa)"
+        f"(* does not reach ±{result.target_mha:.3g} mHa at the budget: P < {conf:g})"
     )
     return _table(title, headers, rows, plain)
 
@@ -187,20 +181,9 @@ def budget_table(result: Any, plain: bool = False) -> Any:
     return _table(title, headers, rows, plain)
 
 
-ASSESS_HEADERS = (
-    "recipe",
-    "energy (Ha)",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
-
-
 def assess_table(result: Any, plain: bool = False) -> Any:
     """Rich table of an assess result (one row per recipe)."""
-    headers: Sequence[str] = ASSESS_HEADERS
+    headers: Sequence[str] = TABLE_HEADERS
     if hasattr(result, "table_rows"):
         rows = result.table_rows()
         headers = result.table_headers() if hasattr(result, "table_headers") else headers
@@ -221,17 +204,6 @@ def assess_table(result: Any, plain: bool = False) -> Any:
     return _table(f"{study}: recipes at the shot budget", headers, rows, plain)
 
 
-TUNE_HEADERS = (
-    "rank",
-    "setting",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
-
-
 def tune_table(result: Any, top: int = 10, plain: bool = False) -> Any:
     """Rich table of a tune result, best ``top`` settings."""
     n = len(result.entries)
@@ -241,8 +213,6 @@ def tune_table(result: Any, top: int = 10, plain: bool = False) -> Any:
 
 def render_text(table: Any, width: int = 140) -> str:
     """A rich table as plain text (no colour), for logs and tests."""
-    from rich.console import Console
-
     console = Console(
         file=io.StringIO(),
         width=width,

@@ -7,13 +7,21 @@ repeated assess reads every simulation from the results cache.
 
 from __future__ import annotations
 
+import dataclasses
 import json
+import os
 import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.atomic import write_text_atomic
+from noiselab.common.errors import InputError
+from noiselab.common.shipped import shipped_path
+from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
+from noiselab.study.compiles import bias_spread
 from noiselab.study.context import (
     StudyContext,
     build_context,
@@ -21,6 +29,7 @@ from noiselab.study.context import (
     recipes_verify,
     with_verification,
 )
+from noiselab.study.drift import MAX_DRAWS, assess_drift, drift_sentence
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study, load_study
 
@@ -30,17 +39,8 @@ DEMO_STUDY = "h2-equilibrium.yaml"
 
 
 def demo_study_path() -> Path:
-    """The shipped demo study (configs/studies/ of the source tree)."""
-    here = Path(__file__).resolve()
-    for root in (here.parents[2], Path.cwd()):
-        p = root / "configs" / "studies" / DEMO_STUDY
-        if p.is_file():
-            return p
-    from noiselab.common.errors import NoiselabError
-
-    raise NoiselabError(
-        f"demo: the shipped study configs/studies/{DEMO_STUDY} was not found next to the package"
-    )
+    """The shipped demo study (``configs/studies/`` of a checkout, or the wheel's copy)."""
+    return shipped_path("studies", DEMO_STUDY.removesuffix(".yaml"), "demo", "study")
 
 
 def resolve_study(
@@ -79,10 +79,6 @@ def override_key_options(
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
     """Job-key options of the emulation overrides; "auto" depends on the memory available, so
     the test override of the memory guard enters too."""
-    import os
-
-    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
-
     return {
         "method": method,
         "trajectories": trajectories,
@@ -100,14 +96,46 @@ def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCac
     return open_cache(cache)
 
 
+def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, Any]:
+    """Fields that every assess and tune result takes from the study, its context and the run."""
+    return {
+        "context": ctx.summary(),
+        "target_mha": study.target_mha,
+        "confidence": study.confidence,
+        "shots": study.shots,
+        "seed": study.seed,
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+    }
+
+
+def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
+    """The stored result of an identical earlier job (``cls.from_record``), or None.
+
+    A record that no longer rebuilds (damaged, or written by another version) counts as a miss
+    and is dropped, so that the rerun stores a good one.
+    """
+    hit = store.get(JOB_KIND, key) if key is not None else None
+    if hit is not None and key is not None:
+        try:
+            return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
+        except Exception:  # any damage costs a recomputation, never a crash
+            store.discard(JOB_KIND, key)
+    return None
+
+
+def save_job_result(store: ResultsCache, key: str | None, result: Any) -> None:
+    """Store a job's result under ``key`` for :func:`load_job_result` (None: not stored)."""
+    if key is not None:
+        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), result.stats.wall_seconds)
+
+
 def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
     """Refuse recipes that do not fit this experiment (e.g. post-selection without symmetries).
 
     The error names the study file and ``recipes.<name>[i].<option>``.
     """
-    from noiselab.common.errors import InputError
-    from noiselab.mitigate.recipe import parse_recipe
-
     source = str(ctx.study.source)
     for name, passes in recipes.items():
         where = f"recipes.{name}"
@@ -128,8 +156,6 @@ def run_recipes(
     label: str = "recipes",
 ) -> dict[str, Any]:
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
-    from noiselab.mitigate.recipe import run_recipe
-
     out: dict[str, Any] = {}
     total = len(recipes)
     if progress is not None:
@@ -152,6 +178,7 @@ def assess(
     reuse: bool = True,
     method: str | None = None,
     trajectories: int | None = None,
+    drift: int | None = None,
 ) -> AssessResult:
     """Run every recipe of the study at its budget and name the best.
 
@@ -161,7 +188,11 @@ def assess(
     ``reuse``: return the stored result of an identical earlier assess of the same files (a
     study given as a path; False recomputes, still reading simulations from the cache).
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
+    ``drift``: also run every recipe on this many drawn device days (noiselab.study.drift).
     """
+    if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
+        raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
+    drift = int(drift) if drift else 0
     t0 = time.perf_counter()
     store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
@@ -169,14 +200,12 @@ def assess(
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = override_key_options(study, seed, shots, method, trajectories)
+        if drift:
+            options["drift"] = drift
         key = job_key("assess", study_or_path, options)
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            try:
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return AssessResult.from_record(json.loads(hit[0]), stats)
-            except Exception:  # a damaged entry is a miss: dropped, and the job runs again
-                store.discard(JOB_KIND, key)
+        stored = load_job_result(store, key, AssessResult, t0)
+        if stored is not None:
+            return stored
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
     else:  # measures the verification bases exactly when a recipe verifies
@@ -185,42 +214,52 @@ def assess(
     runner = CachingRunner(ctx.experiment, store)
     with naming_source(study.source):
         results = run_recipes(ctx, study.recipes, runner, progress)
+        spread = bias_spread(ctx, study.recipes, results, store, run_recipes)
+        days = (
+            assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
+        )
     best = best_of(results)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
-    stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
-        wall_seconds=time.perf_counter() - t0,
+    if days is not None:
+        verdict = f"{verdict} {drift_sentence(best, days.stats[best], days.rel_std)}"
+    verdict = with_optimizer_caveat(verdict, ctx.warnings)
+    extra = [r for r in (spread, days) if r is not None]
+    stats = dataclasses.replace(
+        RunStats.of_runner(runner, t0),
+        simulations=runner.simulations + sum(r.simulations for r in extra),
+        cache_hits=runner.cache_hits + sum(r.cache_hits for r in extra),
+        engine_seconds=runner.engine_seconds + sum(r.engine_seconds for r in extra),
     )
     result = AssessResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         recipes=results,
         passes=dict(study.recipes),
         best_recipe=best,
         reachable=reachable,
         verdict=verdict,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
+        bias_spread_mha=spread.spread_mha,
+        drift={} if days is None else days.stats,
+        drift_rel_std={} if days is None else days.rel_std,
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
+
+
+def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:
+    """The verdict, plus one sentence when the noiseless optimum is in doubt (biases are
+    measured against the exact energy, so an optimizer failure would read as device bias)."""
+    if not warnings:
+        return verdict
+    return (
+        f"{verdict} Caveat: the noiseless optimum is in doubt ({len(warnings)} optimizer "
+        "warning(s)); part of every bias may be the optimizer's, not the device's."
+    )
 
 
 def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
     """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
-    import json
-
-    from noiselab.common.atomic import write_text_atomic
-
     folder = Path(out)
     return [
         write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),

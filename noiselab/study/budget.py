@@ -10,8 +10,21 @@ in mHa. The compiled circuit and measurement plan are those of the study, reused
 from __future__ import annotations
 
 import dataclasses
+import time
 from collections.abc import Callable
 from typing import Any
+
+from noiselab.device.profile import scale_profile
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.context import build_context
+from noiselab.study.results import RunStats, trajectory_std_of
+from noiselab.study.sweep import (
+    ConfigTask,
+    chosen_recipes,
+    own_executor,
+    run_configs,
+    scan_fields,
+)
 
 CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
 
@@ -27,6 +40,9 @@ class BudgetRow:
     stds_mha: tuple[float, ...]  # standard error at the budget
     #: the emulator's own error per recipe (trajectory method), None under the density matrix
     trajectory_stds_mha: tuple[float | None, ...] = ()
+    #: P(within target) at the budget and the one rule (P >= confidence), per recipe
+    p_within_target: tuple[float, ...] = ()
+    reaches_target: tuple[bool, ...] = ()
 
 
 @dataclasses.dataclass(frozen=True)
@@ -46,6 +62,7 @@ class BudgetResult:
     stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
+    confidence: float = 0.95
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:
@@ -60,6 +77,7 @@ class BudgetResult:
             "recipes": list(self.recipes),
             "emulation_method": self.emulation_method,
             "target_mha": self.target_mha,
+            "confidence": self.confidence,
             "shots_total": self.shots_total,
             "exact_energy_ha": self.exact_energy_ha,
             "ansatz_energy_ha": self.ansatz_energy_ha,
@@ -74,8 +92,9 @@ def dominant_channel(
 ) -> tuple[str, str]:
     """(channel, sentence): the channel whose removal lowers |error| the most, with its numbers.
 
-    When removal barely matters the largest error alone decides. With ``target_mha`` and an
-    error already within it, the sentence says so instead of naming a cost inside the noise.
+    When removal barely matters the largest error alone decides. With ``target_mha`` and a
+    recipe that already reaches the target with every channel present (the one rule, P >=
+    confidence at the budget), the sentence says so instead of naming a cost inside the noise.
     """
     total = next(r for r in rows if r.kind == "total")
     floor = next(r for r in rows if r.kind == "noiseless")
@@ -90,9 +109,10 @@ def dominant_channel(
         best = max(solo, key=lambda c: solo[c])
     a = alone[best].errors_mha[k]
     w = removed[best].errors_mha[k]
-    if target_mha is not None and t <= target_mha:
+    reaches = total.reaches_target[k] if k < len(total.reaches_target) else False
+    if target_mha is not None and reaches:
         return best, (
-            f"within the {target_mha:.3g} mHa target with every channel present "
+            f"reaches the {target_mha:.3g} mHa target at the budget with every channel present "
             f"({total.errors_mha[k]:+.3g} mHa); largest single cost {best} "
             f"(without it {w:+.3g} mHa)"
         )
@@ -106,8 +126,6 @@ def dominant_channel(
 def configurations(profile: Any) -> list[tuple[str, str, str | None, Any]]:
     """(label, kind, channel, profile) for the device as profiled, each channel alone, each
     channel removed, and the noiseless limit."""
-    from noiselab.device.profile import scale_profile
-
     out: list[tuple[str, str, str | None, Any]] = [("all channels", "total", None, profile)]
     for c in CHANNELS:
         others = [o for o in CHANNELS if o != c]
@@ -140,11 +158,6 @@ def budget(
     ``cluster`` (a Dask scheduler address or Client) on a cluster. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    import time
-
-    from noiselab.study.assess import _default_cache, resolve_study
-    from noiselab.study.sweep import chosen_recipes, own_executor
-
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     picked = chosen_recipes(study, [] if recipe is None else [recipe])
@@ -162,12 +175,6 @@ def _budget_with(
     context: Any,
     t0: float,
 ) -> BudgetResult:
-    import time
-
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats, trajectory_std_of
-    from noiselab.study.sweep import ConfigTask, run_configs
-
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     configs = configurations(study.profile)
     tasks = [ConfigTask(ctx.experiment, prof, picked, store) for _, _, _, prof in configs]
@@ -189,6 +196,8 @@ def _budget_with(
             errors_mha=tuple(float(r.bias_exact_mha) for _, r in out.results),
             stds_mha=tuple(float(r.std_mha) for _, r in out.results),
             trajectory_stds_mha=tuple(trajectory_std_of(r) for _, r in out.results),
+            p_within_target=tuple(float(r.p_within_target) for _, r in out.results),
+            reaches_target=tuple(bool(r.reaches_target) for _, r in out.results),
         )
         for (label, kind, channel, _), out in zip(configs, outs, strict=True)
     )
@@ -199,25 +208,10 @@ def _budget_with(
     if len(names) > 1:
         _, sentence2 = dominant_channel(rows, 1, target)
         sentence += f"; {names[1]}: {sentence2}"
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
-    )
+    stats = RunStats.of_outcomes(outs, t0, described)
     return BudgetResult(
-        study_name=study.name,
-        device_name=str(study.profile.name),
-        recipes=names,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
         rows=rows,
         dominant=dom,
         sentence=sentence,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

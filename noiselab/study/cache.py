@@ -18,12 +18,19 @@ import sqlite3
 import threading
 import time
 from collections.abc import Iterator
+from importlib import metadata
 from pathlib import Path
 from typing import Any
 
 import numpy as np
+import platformdirs
 
 from noiselab.common.errors import InputError
+from noiselab.common.reading import read_input_bytes
+from noiselab.common.yamlio import parse_yaml_mapping
+from noiselab.emulate.engine import BasisDistributions
+from noiselab.mitigate.experiment import make_calibrator, make_runner, variant_key_material
+from noiselab.study.spec import device_profile_path
 
 CACHE_FILE_NAME = "results-v1.sqlite"
 BUSY_TIMEOUT_S = 60.0
@@ -40,7 +47,6 @@ def default_cache_path() -> Path:
     env = os.environ.get("NOISELAB_CACHE")
     if env:
         return Path(env)
-    import platformdirs
 
     return Path(platformdirs.user_cache_dir("noiselab")) / CACHE_FILE_NAME
 
@@ -62,8 +68,6 @@ def package_versions() -> Versions:
     """Versions of noiselab, qiskit, qiskit-aer and numpy (part of every simulation key)."""
     global _VERSIONS
     if _VERSIONS is None:
-        from importlib import metadata
-
         items = []
         for dist in ("noiselab", "qiskit", "qiskit-aer", "numpy"):
             try:
@@ -317,8 +321,6 @@ SIMULATION_KIND = "basis-distributions-v1"
 
 def _simulate(item: tuple[Any, Any]) -> Any:
     """Executor task: one simulation of ``variant`` for ``experiment`` (module level: picklable)."""
-    from noiselab.mitigate.recipe import make_runner
-
     experiment, variant = item
     return make_runner(experiment)(variant)
 
@@ -333,8 +335,6 @@ class CachingRunner:
     def __init__(
         self, experiment: Any, cache: ResultsCache | None = None, base: Any = None
     ) -> None:
-        from noiselab.mitigate.recipe import make_calibrator, make_runner
-
         self.experiment = experiment
         #: readout-calibration distributions, memoized for the whole job (pass to run_recipe)
         self.calibrator = make_calibrator(experiment)
@@ -349,13 +349,9 @@ class CachingRunner:
 
     def key(self, variant: Any) -> str:
         """SHA-256 of everything that determines this variant's simulation."""
-        from noiselab.mitigate.recipe import variant_key_material
-
         return digest(SIMULATION_KIND, variant_key_material(self.experiment, variant))
 
     def _lookup(self, variant: Any) -> Any:
-        from noiselab.emulate.engine import BasisDistributions
-
         if variant in self._memory:
             return self._memory[variant]
         hit = self.cache.get(SIMULATION_KIND, self.key(variant))
@@ -444,9 +440,6 @@ def job_key(job: str, study_path: str | Path, options: dict[str, Any]) -> str | 
     """Key of a whole job on a study file: the file's bytes, its device file's bytes, the
     options, noiselab's source and the package versions (PySCF included). None when the
     inputs cannot be read cheaply (the job then runs and reports the problem itself)."""
-    from noiselab.common.reading import read_input_bytes
-    from noiselab.common.yamlio import parse_yaml_mapping
-
     p = Path(study_path)
     try:
         raw = read_input_bytes(p, "study file")
@@ -454,12 +447,9 @@ def job_key(job: str, study_path: str | Path, options: dict[str, Any]) -> str | 
         device = data.get("device")
         device_bytes = b""
         if isinstance(device, str):
-            dp = Path(device).expanduser()
-            dp = dp if dp.is_absolute() else p.parent / dp
-            device_bytes = read_input_bytes(dp, "device profile")
+            device_bytes = read_input_bytes(device_profile_path(device, p), "device profile")
     except (OSError, UnicodeDecodeError, InputError):
         return None
-    from importlib import metadata
 
     try:
         pyscf_version = metadata.version("pyscf")

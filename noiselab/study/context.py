@@ -2,7 +2,9 @@
 
 Steps: PySCF problem and exact energy -> qubit Hamiltonian -> trial circuit -> noiseless optimum
 (cached in the results cache: it is the slow step for larger ansatzes) -> compiled, scheduled
-circuit on the device -> measurement plan -> mitigation's ``ExperimentContext``.
+circuit on the device (every transpiler seed of ``compile.seeds``; the one with the fewest
+two-qubit gates, then the shortest schedule, is assessed) -> measurement plan -> mitigation's
+``ExperimentContext``.
 """
 
 from __future__ import annotations
@@ -13,13 +15,22 @@ import time
 from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
-from noiselab.common.errors import InputError, input_error
+from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
+from noiselab.chem.encode import encode
+from noiselab.chem.molecule import compute_problem
+from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optimum_warnings
+from noiselab.chem.spin import exact_spin_squared
+from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
+from noiselab.device.compile import compile_ensemble
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.plan import build_plan
+from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
 from noiselab.study.preflight import preflight, resolve_emulation
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
 
-OPTIMUM_KIND = "noiseless-optimum-v1"
+OPTIMUM_KIND = "noiseless-optimum-v3"
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -35,13 +46,20 @@ class StudyContext:
     optimum: Any  # noiselab.chem.optimize.OptimizationResult
     compiled: Any  # noiselab.device.compile.CompiledCircuit (bound at the optimum)
     plan: Any  # noiselab.mitigate.plan.MeasurementPlan
-    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    experiment: Any  # noiselab.mitigate.experiment.ExperimentContext
     seconds: dict[str, float]
     #: "density_matrix" or "trajectory": what the emulator will use (the study's method resolved
     #: against the memory guard for this circuit width), and the one-line notice when "auto"
     #: switched to trajectories.
     emulation_method: str = "density_matrix"
     emulation_notice: str | None = None
+    #: <S^2> of the exact sector ground state (noiselab.chem.spin), beside the exact energy
+    exact_spin_squared: float | None = None
+    #: one-line warnings about the noiseless optimum (noiselab.chem.optimize.optimum_warnings)
+    warnings: tuple[str, ...] = ()
+    #: every transpiler seed's compile (noiselab.device.compile.CompileEnsemble); ``compiled``
+    #: is its chosen one
+    ensemble: Any = None
 
     @property
     def exact_energy_ha(self) -> float:
@@ -60,8 +78,8 @@ class StudyContext:
             device_source=s.device_source,
             qubits=int(qp.num_qubits),
             encoding=str(qp.encoding)
-            + (" + two-qubit reduction" if qp.two_qubit_reduction else ""),
-            two_qubit_reduction=bool(qp.two_qubit_reduction),
+            + (" + fixed parity qubits dropped" if qp.drop_fixed_parity_qubits else ""),
+            drop_fixed_parity_qubits=bool(qp.drop_fixed_parity_qubits),
             ansatz=s.ansatz.label(),
             n_parameters=int(self.ansatz_circuit.num_parameters),
             exact_energy_ha=float(qp.exact_energy_ha),
@@ -75,13 +93,17 @@ class StudyContext:
                 None if c.estimated_fidelity is None else float(c.estimated_fidelity)
             ),
             n_groups=int(self.plan.n_groups),
+            exact_spin_squared=self.exact_spin_squared,
+            ansatz_spin_squared=getattr(self.optimum, "spin_squared", None),
+            optimizer_starts=int(getattr(self.optimum, "starts", 1)),
+            optimizer_stopped=str(getattr(self.optimum, "stopped", "")),
+            warnings=tuple(self.warnings),
+            **compile_fields(self.ensemble),
         )
 
 
 def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
     """The study's parameterized trial circuit on the logical qubits."""
-    from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
-
     a = study.ansatz
     if isinstance(a, LayeredAnsatz):
         n = int(qubit_problem.num_qubits)
@@ -100,16 +122,13 @@ def _optimum_key(study: Study) -> str:
         OPTIMUM_KIND,
         study.molecule.model_dump(mode="json"),
         study.encoding,
-        study.two_qubit_reduction,
-        study.ansatz.model_dump(mode="json"),
-        study.seed,
+        study.drop_fixed_parity_qubits,
+        study.ansatz.model_dump(mode="json"),  # start_seed included; the study's seed is not
     )
 
 
 def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache | None) -> Any:
     """Noiseless optimum of the trial circuit (read from / written to the cache)."""
-    from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
-
     key = _optimum_key(study)
     if cache is not None:
         hit = cache.get(OPTIMUM_KIND, key)
@@ -122,8 +141,9 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
         qubit_problem,
         circuit,
         starts=study.ansatz.starts,
-        seed=study.seed,
+        seed=study.ansatz.start_seed,
         max_iterations=study.ansatz.max_iterations,
+        max_starts=study.ansatz.max_starts,
     )
     if cache is not None:
         cache.put(OPTIMUM_KIND, key, pack_record(result), result.seconds)
@@ -132,8 +152,6 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
 
 def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
     """Whether any of these recipes (lists of pass entries) runs symmetry verification."""
-    from noiselab.mitigate.registry import make_pass
-
     for passes in recipes:
         for entry in passes:
             if entry.get("pass") == "postselect" and make_pass(entry).spec()["mode"] == "verify":
@@ -160,12 +178,15 @@ def build_context(
     cache: ResultsCache | None = None,
     progress: ProgressHook | None = None,
     verification: bool | None = None,
+    optimum: OptimizationResult | None = None,
 ) -> StudyContext:
     """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
 
     Every refusal names the study file (see :func:`_build_context`)."""
     with naming_source(study.source):
-        return _build_context(study, cache=cache, progress=progress, verification=verification)
+        return _build_context(
+            study, cache=cache, progress=progress, verification=verification, optimum=optimum
+        )
 
 
 def _build_context(
@@ -174,20 +195,18 @@ def _build_context(
     cache: ResultsCache | None = None,
     progress: ProgressHook | None = None,
     verification: bool | None = None,
+    optimum: OptimizationResult | None = None,
 ) -> StudyContext:
     """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
 
     ``verification``: measure the extra bases symmetry verification needs; None: exactly when
     a recipe of the study verifies (jobs that run other recipes, like tune, say so, or call
-    :func:`with_verification` on a context they were given).
+    :func:`with_verification` on a context they were given). ``optimum``: a noiseless optimum
+    computed elsewhere for this study's circuit (the scan's warm-started one); None: optimize.
     """
     preflight(study)  # every heavy step's size, before the first of them
     if verification is None:
         verification = recipes_verify(study.recipes.values())
-    from noiselab.chem.encode import encode
-    from noiselab.chem.molecule import compute_problem
-    from noiselab.device.compile import compile_to_device
-    from noiselab.mitigate.plan import build_plan
 
     steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
     seconds: dict[str, float] = {}
@@ -199,7 +218,7 @@ def _build_context(
     tick(0)
     t = time.perf_counter()
     problem = compute_problem(study.molecule)
-    qp = encode(problem, study.encoding, study.two_qubit_reduction)
+    qp = encode(problem, study.encoding, study.drop_fixed_parity_qubits)
     if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
         raise input_error(
             str(study.source),
@@ -210,24 +229,27 @@ def _build_context(
     tick(1)
     t = time.perf_counter()
     circuit = ansatz_circuit(study, qp)
-    optimum = optimize(study, qp, circuit, cache)
+    if optimum is None:
+        optimum = optimize(study, qp, circuit, cache)
+    exact_s2, warnings = optimum_checks(study, qp, optimum)
     seconds["optimize"] = time.perf_counter() - t
     tick(2)
     t = time.perf_counter()
     bound = circuit.assign_parameters(list(optimum.parameters), inplace=False)
     try:
-        compiled = compile_to_device(
+        ensemble = compile_ensemble(
             bound,
             study.profile,
             layout=study.layout,
             optimization_level=study.optimization_level,
-            seed=study.seed,
+            seeds=study.transpiler_seeds,
         )
     except InputError as exc:
         text = str(exc)
         if study.layout is not None and "layout: " in text:  # the study's key, not the profile's
             raise InputError(f"{study.source}: layout: {text.split('layout: ', 1)[1]}") from None
         raise
+    compiled = ensemble.chosen
     plan = build_plan(qp.hamiltonian)
     seconds["compile"] = time.perf_counter() - t
     tick(3)
@@ -247,7 +269,48 @@ def _build_context(
         seconds=seconds,
         emulation_method=method,
         emulation_notice=notice,
+        exact_spin_squared=exact_s2,
+        warnings=warnings,
+        ensemble=ensemble,
     )
+
+
+def compile_fields(ensemble: Any) -> dict[str, Any]:
+    """ContextSummary's compile-ensemble fields (empty without an ensemble)."""
+    if ensemble is None:
+        return {}
+    return {
+        "compile_seeds": tuple(ensemble.seeds),
+        "compile_two_qubit_gates": tuple(int(c.two_qubit_count) for c in ensemble.compiles),
+        "compile_durations_ns": tuple(float(c.duration_ns) for c in ensemble.compiles),
+        "chosen_seed": int(ensemble.chosen_seed),
+        "distinct_compiles": len(ensemble.distinct),
+    }
+
+
+def replace_experiment(experiment: Any, **changes: Any) -> Any:
+    """``dataclasses.replace`` of an ExperimentContext that keeps its computed
+    ``measured_bases`` when neither the plan, the problem nor ``verification_bases`` change
+    (the verification bases take a noticeable time to derive; a new compile or profile does
+    not change them)."""
+    out = dataclasses.replace(experiment, **changes)
+    known = experiment.__dict__.get("measured_bases")
+    if known is not None and not {"plan", "problem", "verification_bases"} & changes.keys():
+        out.__dict__["measured_bases"] = known
+    return out
+
+
+def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, tuple[str, ...]]:
+    """(exact ground state's <S^2>, warnings about the noiseless optimum against the target).
+
+    The exact S^2 needs the sector ground state; past the exact-diagonalization limit it is
+    None and the spin check is skipped.
+    """
+    try:
+        s2: float | None = exact_spin_squared(qp)
+    except ProblemTooLargeError:
+        s2 = None
+    return s2, optimum_warnings(optimum, qp, float(study.target_mha), s2)
 
 
 def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
@@ -270,8 +333,6 @@ def make_experiment(
 ) -> Any:
     """Mitigation's ExperimentContext for this study (budget, target, seed included);
     ``verification``: whether it measures the symmetry-verification bases."""
-    from noiselab.mitigate.recipe import ExperimentContext
-
     return ExperimentContext(
         problem=qp,
         compiled=compiled,
@@ -288,4 +349,6 @@ def make_experiment(
         num_batches=int(study.emulation.batches),
         max_density_matrix_qubits=study.emulation.max_density_matrix_qubits,
         verification_bases=bool(verification),
+        amplification_spread=float(study.amplification_spread),
+        amplification_offset=float(study.amplification_offset),
     )

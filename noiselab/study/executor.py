@@ -18,13 +18,17 @@ point. Exceptions raised by ``fn`` itself are not retried; they propagate to the
 
 from __future__ import annotations
 
+import concurrent.futures
 import contextlib
+import multiprocessing
 import os
 import re
 from collections.abc import Callable, Iterator, Sequence
+from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Protocol, TypeVar, runtime_checkable
 
 from noiselab.common.errors import InputError, NoiselabError, input_error
+from noiselab.emulate.memory import ENGINE_THREADS_ENV, engine_threads
 
 T = TypeVar("T")
 R = TypeVar("R")
@@ -41,23 +45,12 @@ THREAD_ENV_VARS: tuple[str, ...] = (
     "NUMEXPR_NUM_THREADS",
 )
 
-#: Read by the emulator: the qiskit-aer ``max_parallel_threads`` a worker should use (0 = all).
-ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
-
 #: How many times a task is started in total when worker processes die under it.
 DEFAULT_ATTEMPTS = 3
 #: Most local worker processes: each is a full interpreter with its own simulator memory.
 MAX_WORKERS = 256
 
 _CLUSTER_ADDRESS = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s/]+$")
-
-
-def engine_threads() -> int:
-    """The qiskit-aer ``max_parallel_threads`` for this process: 0 (all cores) unless a worker."""
-    try:
-        return max(0, int(os.environ.get(ENGINE_THREADS_ENV, "0")))
-    except ValueError:
-        return 0
 
 
 @runtime_checkable
@@ -189,9 +182,6 @@ class ProcessPoolExecutor(_Base):
 
     def _ensure_pool(self) -> Any:
         if self._pool is None:
-            import concurrent.futures
-            import multiprocessing
-
             self._pool = concurrent.futures.ProcessPoolExecutor(
                 max_workers=self.workers,
                 mp_context=multiprocessing.get_context(self.start_method),
@@ -219,9 +209,6 @@ class ProcessPoolExecutor(_Base):
         *,
         on_result: ResultCallback | None = None,
     ) -> list[Any]:
-        import concurrent.futures
-        from concurrent.futures.process import BrokenProcessPool
-
         items = list(items)
         results: dict[int, Any] = {}
         tries = dict.fromkeys(range(len(items)), 0)
@@ -271,6 +258,7 @@ class ProcessPoolExecutor(_Base):
 
 
 def _import_distributed() -> Any:
+    # optional dependency (the 'cluster' extra): imported only when a cluster is asked for
     try:
         import distributed
     except ImportError as exc:

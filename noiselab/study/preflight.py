@@ -126,7 +126,7 @@ def check_sizes(source: str, molecule: Any, ansatz: Any, num_qubits: int, emulat
         raise ProblemTooLargeError(
             f"{source}: molecule: the problem needs {q} qubits; allowed: at most "
             f"{MAX_STATEVECTOR_QUBITS} (the noiseless optimizer holds statevectors of 2**q "
-            "entries): a smaller active_space or two_qubit_reduction"
+            "entries): a smaller active_space or drop_fixed_parity_qubits"
         )
     emulation_method(source, emulation, q, 1)  # density matrix, or trajectories with one basis
     budget = memory_budget()

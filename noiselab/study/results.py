@@ -7,20 +7,18 @@ form is deterministic for a given study and seed: timings and cache statistics a
 
 from __future__ import annotations
 
+import csv
 import dataclasses
+import io
 import math
+import time
 from collections.abc import Mapping, Sequence
 from typing import Any
 
 import numpy as np
 
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
+from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.result import RecipeResult
-
-CAUTION = (
-    "Caution: this prediction is only as good as the device noise model; real devices drift "
-    "and have errors a profile does not describe."
-)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -33,6 +31,33 @@ class RunStats:
     wall_seconds: float
     executor: str = "in-process"
     reused: bool = False  # the whole result came from the results cache
+
+    @classmethod
+    def of_runner(cls, runner: Any, t0: float, executor: str = "in-process") -> RunStats:
+        """Counts of one caching runner, wall time since ``t0`` (``time.perf_counter``)."""
+        return cls(
+            simulations=runner.simulations,
+            cache_hits=runner.cache_hits,
+            engine_seconds=runner.engine_seconds,
+            wall_seconds=time.perf_counter() - t0,
+            executor=executor,
+        )
+
+    @classmethod
+    def of_outcomes(cls, outs: Sequence[Any], t0: float, executor: str) -> RunStats:
+        """Counts summed over the outcomes of a job's tasks, wall time since ``t0``."""
+        return cls(
+            simulations=sum(o.simulations for o in outs),
+            cache_hits=sum(o.cache_hits for o in outs),
+            engine_seconds=sum(o.engine_seconds for o in outs),
+            wall_seconds=time.perf_counter() - t0,
+            executor=executor,
+        )
+
+    @classmethod
+    def reused_since(cls, t0: float) -> RunStats:
+        """The stats of a job whose whole result was read from the results cache."""
+        return cls(0, 0, 0.0, time.perf_counter() - t0, reused=True)
 
     def to_json(self) -> dict[str, Any]:
         return {
@@ -55,7 +80,7 @@ class ContextSummary:
     device_source: str
     qubits: int
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     ansatz: str
     n_parameters: int
     exact_energy_ha: float
@@ -67,6 +92,16 @@ class ContextSummary:
     duration_ns: float
     estimated_fidelity: float | None
     n_groups: int
+    exact_spin_squared: float | None = None  # <S^2> of the exact ground state
+    ansatz_spin_squared: float | None = None  # <S^2> of the trial state at the optimum
+    optimizer_starts: int = 1
+    optimizer_stopped: str = ""  # noiselab.chem.optimize.STOP_REASONS
+    warnings: tuple[str, ...] = ()  # about the noiseless optimum
+    compile_seeds: tuple[int, ...] = ()  # transpiler seeds tried
+    compile_two_qubit_gates: tuple[int, ...] = ()  # per seed
+    compile_durations_ns: tuple[float, ...] = ()  # per seed
+    chosen_seed: int | None = None
+    distinct_compiles: int = 1
 
     @property
     def ansatz_error_mha(self) -> float:
@@ -80,13 +115,17 @@ class ContextSummary:
             "device_source": self.device_source,
             "qubits": self.qubits,
             "encoding": self.encoding,
-            "two_qubit_reduction": self.two_qubit_reduction,
+            "drop_fixed_parity_qubits": self.drop_fixed_parity_qubits,
             "ansatz": self.ansatz,
             "n_parameters": self.n_parameters,
             "exact_energy": self.exact_energy_ha,
+            "exact_spin_squared": self.exact_spin_squared,
             "hartree_fock_energy": self.hf_energy_ha,
             "ansatz_energy": self.ansatz_energy_ha,
             "ansatz_error_mha": self.ansatz_error_mha,
+            "ansatz_spin_squared": self.ansatz_spin_squared,
+            "optimizer": {"starts": self.optimizer_starts, "stopped": self.optimizer_stopped},
+            "warnings": list(self.warnings),
             "compiled": {
                 "patch": list(self.patch),
                 "two_qubit_count": self.two_qubit_count,
@@ -94,26 +133,42 @@ class ContextSummary:
                 "duration_ns": self.duration_ns,
                 "estimated_fidelity": self.estimated_fidelity,
             },
+            "compile": {
+                "seeds_tried": list(self.compile_seeds),
+                "two_qubit_gates": list(self.compile_two_qubit_gates),
+                "duration_ns": list(self.compile_durations_ns),
+                "chosen_seed": self.chosen_seed,
+                "distinct_circuits": self.distinct_compiles,
+            },
             "measurement_groups": self.n_groups,
         }
 
 
-def rank_key(result: Any) -> tuple[float, float]:
-    """Sort key: highest probability within target first, then fewest shots needed."""
+def context_from_record(data: Mapping[str, Any]) -> ContextSummary:
+    """A ContextSummary from its ``asdict`` form (tuple fields restored)."""
+    ctx = dict(data)
+    ctx["patch"] = tuple(ctx["patch"])
+    for key in ("warnings", "compile_seeds", "compile_two_qubit_gates", "compile_durations_ns"):
+        ctx[key] = tuple(ctx.get(key, ()))
+    return ContextSummary(**ctx)
+
+
+def rank_key(result: Any) -> tuple[float, float, float]:
+    """Sort key: highest probability within target first, then smallest |bias|, then fewest
+    shots needed (so that, when no recipe reaches the target and every P is about 0, the
+    closest one comes first, not the first in file order)."""
     needed = result.shots_needed
-    return (-float(result.p_within_target), math.inf if needed is None else float(needed))
+    return (
+        -float(result.p_within_target),
+        abs(float(result.bias_exact_mha)),
+        math.inf if needed is None else float(needed),
+    )
 
 
 def best_of(results: Mapping[str, Any]) -> str:
-    """Name of the best recipe (order of ``results`` breaks exact ties)."""
+    """Name of the best recipe by :func:`rank_key` (order of ``results`` breaks exact ties)."""
     names = list(results)
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
-
-
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 5e-4:
-        return f"chemical accuracy (±{target_mha:.4g} mHa)"
-    return f"the ±{target_mha:.4g} mHa target"
 
 
 def verdict_line(
@@ -124,38 +179,88 @@ def verdict_line(
     shots: int,
     what: str = "recipe",
 ) -> tuple[bool, str]:
-    """(reachable at the budget, one plain sentence naming the best recipe)."""
-    goal = _target_words(target_mha)
+    """(reachable at the budget, one plain sentence naming the best recipe).
+
+    ``best`` is the first by :func:`rank_key`. When it does not reach the target (the one rule,
+    P >= confidence), no recipe does: the sentence names it as the closest, with its bias.
+    """
+    from noiselab.mitigate.target import reaches_target
+
+    goal = target_words(target_mha)
     p = float(best.p_within_target)
     needed = best.shots_needed
-    if p >= confidence:
+    if reaches_target(p, confidence):
         more = f"; {format_count(needed)} shots would do" if needed is not None else ""
-        return True, (
+        text = (
             f"Verdict: {goal} is reachable with {format_count(shots)} shots: best {what} "
             f"'{best_name}' lands within target with probability {p:.3f} "
             f"(>= {confidence:g}){more}."
         )
-    if needed is not None:
-        return False, (
-            f"Verdict: {goal} is NOT reachable with {format_count(shots)} shots (best {what} "
-            f"'{best_name}', probability {p:.3f} < {confidence:g}); it would need "
-            f"{format_count(needed)} shots."
-        )
-    if str(best.limited_by) == "calibration":
-        cal_std = (getattr(best, "details", None) or {}).get("std_calibration_mha")
-        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
-        return False, (
-            f"Verdict: {goal} is NOT reachable with this readout calibration: the best {what} "
-            f"'{best_name}' keeps a bias of {float(best.bias_exact_mha):+.3g} mHa, but its "
-            f"readout-calibration noise{cal} does not shrink with more measurement shots "
-            f"(probability {p:.3f} at {format_count(shots)} shots); raise the readout pass's "
-            f"calibration_shots."
-        )
-    return False, (
-        f"Verdict: {goal} is NOT reachable at any shot count: the best {what} '{best_name}' "
-        f"keeps a bias of {float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f} at "
-        f"{format_count(shots)} shots)."
+        return True, _with_amplification(text, best)
+    head = (
+        f"Verdict: no {what} reaches {goal} with {format_count(shots)} shots "
+        f"(P >= {confidence:g}); closest is '{best_name}' at "
+        f"{float(best.bias_exact_mha):+.3g} mHa (probability {p:.3f})"
     )
+    details = getattr(best, "details", None) or {}
+    if needed is not None:
+        text = f"{head}: it would need {format_count(needed)} shots."
+    elif str(best.limited_by) == "calibration":
+        cal_std = details.get("std_calibration_mha")
+        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
+        text = (
+            f"{head}: its readout-calibration noise{cal} does not shrink with more measurement "
+            "shots; raise the readout pass's calibration_shots."
+        )
+    elif str(best.limited_by) == "amplification":
+        amp_std = details.get("std_amplification_mha")
+        amp = f" ({float(amp_std):.3g} mHa)" if amp_std is not None else ""
+        text = (
+            f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
+            "with more shots."
+        )
+    else:
+        text = f"{head}: its bias keeps it out of reach at any shot count."
+    return False, _with_amplification(text, best)
+
+
+def amplification_line(result: Any) -> str | None:
+    """One line stating the amplification an extrapolated result assumes (None otherwise)."""
+    details = getattr(result, "details", None) or {}
+    ex = details.get("extrapolation") if isinstance(details, Mapping) else None
+    if not isinstance(ex, Mapping):
+        return None
+
+    def listed(key: str) -> str:
+        return ", ".join(f"{float(c):.3g}" for c in ex.get(key, []))
+
+    if ex.get("amplifier") == "stretch":
+        off = float(ex.get("amplification_offset", 0.0))
+        systematic = (
+            "no systematic error (amplification_offset 0)"
+            if off == 0.0
+            else f"a systematic error of {off * 100:+.3g} % (amplification_offset, in the bias)"
+        )
+        how = f"stretch by {listed('scales_nominal')} with {systematic} and"
+    else:
+        axis = "realized" if ex.get("scale_axis") == "realized" else "nominal"
+        how = (
+            f"{ex.get('amplifier')} folding at {listed('scales_nominal')} (realized "
+            f"{listed('scales_realized')} from the compiled circuits' estimated error; fit "
+            f"against the {axis} scales) with"
+        )
+    spread = float(ex.get("amplification_spread", 0.0))
+    std = details.get("std_amplification_mha")
+    cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
+    return (
+        f"Amplification assumed: {how} a {spread * 100:.3g} % random error (1 std) in each "
+        f"amplified point's realized noise scale (amplification_spread{cost})."
+    )
+
+
+def _with_amplification(text: str, result: Any) -> str:
+    line = amplification_line(result)
+    return text if line is None else f"{text} {line}"
 
 
 def format_count(n: int | float | None) -> str:
@@ -218,6 +323,7 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
         "shots_per_circuit": jsonable(result.shots_per_circuit),
         "n_circuits": int(result.n_circuits),
         "p_within_target": float(result.p_within_target),
+        "reaches_target": bool(result.reaches_target),
         "shots_needed": None if result.shots_needed is None else int(result.shots_needed),
         "limited_by": str(result.limited_by),
     }
@@ -232,17 +338,21 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     return out
 
 
-TABLE_HEADERS = (
-    "recipe",
-    "energy (Ha)",
+#: Columns every scored row has (a recipe of assess, a setting of tune).
+SCORE_HEADERS = (
     "bias (mHa)",
     "std. error (mHa)",
     "P(within target)",
     "shots needed",
     "limited by",
 )
+TABLE_HEADERS = ("recipe", "energy (Ha)", *SCORE_HEADERS)
 #: Extra assess column when the trajectory method was used (its own statistical error).
 TRAJECTORY_HEADER = "trajectory error (mHa)"
+#: Assess column after the bias: max - min bias over the distinct compiles of the seed ensemble.
+SPREAD_HEADER = "compile spread (mHa)"
+#: Assess column with --drift: drawn device days on which the recipe reaches the target.
+DRIFT_HEADER = "drift days reaching"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -250,6 +360,80 @@ def trajectory_std_of(result: Any) -> float | None:
     details = getattr(result, "details", {}) or {}
     value = details.get("trajectory_std_mha") if isinstance(details, Mapping) else None
     return None if value is None else float(value)
+
+
+def _settings_json(result: Any) -> dict[str, Any]:
+    """The run settings that open the JSON of assess and tune (after the context)."""
+    return {
+        "target_mha": result.target_mha,
+        "confidence": result.confidence,
+        "shots_budget": result.shots,
+        "seed": result.seed,
+        "emulation_method": result.emulation_method,
+        "emulation_notice": result.emulation_notice,
+    }
+
+
+def _record_start(result: Any) -> dict[str, Any]:
+    """First fields of an assess or tune record (see ``to_record``)."""
+    return {
+        "context": dataclasses.asdict(result.context),
+        "target_mha": result.target_mha,
+        "confidence": result.confidence,
+        "shots": result.shots,
+        "seed": result.seed,
+    }
+
+
+def _record_end(result: Any) -> dict[str, Any]:
+    """Last fields of an assess or tune record."""
+    return {
+        "verdict": result.verdict,
+        "caution": result.caution,
+        "emulation_method": result.emulation_method,
+        "emulation_notice": result.emulation_notice,
+    }
+
+
+def _common_fields(rec: Mapping[str, Any], stats: RunStats) -> dict[str, Any]:
+    """Constructor fields that assess and tune results share, from a record."""
+    return {
+        "context": context_from_record(rec["context"]),
+        "target_mha": rec["target_mha"],
+        "confidence": rec["confidence"],
+        "shots": rec["shots"],
+        "seed": rec["seed"],
+        "verdict": rec["verdict"],
+        "stats": stats,
+        "caution": rec["caution"],
+        "emulation_method": rec.get("emulation_method", "density_matrix"),
+        "emulation_notice": rec.get("emulation_notice"),
+    }
+
+
+@dataclasses.dataclass(frozen=True)
+class DriftStats:
+    """One recipe over ``assess --drift``'s drawn device days (biases in mHa, draw order)."""
+
+    draws: int
+    p_within_target_mean: float
+    reaching: int  # days on which the recipe reaches the target (P >= confidence)
+    bias_mha_p05: float
+    bias_mha_p95: float
+    biases_mha: tuple[float, ...]
+
+    @property
+    def fraction_reaching(self) -> float:
+        return self.reaching / self.draws
+
+    def to_json(self) -> dict[str, Any]:
+        return {
+            "draws": self.draws,
+            "p_within_target_mean": self.p_within_target_mean,
+            "fraction_reaching": self.fraction_reaching,
+            "bias_mha_p05": self.bias_mha_p05,
+            "bias_mha_p95": self.bias_mha_p95,
+        }
 
 
 @dataclasses.dataclass(frozen=True)
@@ -270,6 +454,11 @@ class AssessResult:
     caution: str = CAUTION
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None  # why auto switched to trajectories
+    #: per recipe, max - min bias over the distinct compiles (None: not computed)
+    bias_spread_mha: dict[str, float | None] = dataclasses.field(default_factory=dict)
+    #: per recipe, noiselab.study.drift.DriftStats over drawn device days (empty: no --drift)
+    drift: dict[str, Any] = dataclasses.field(default_factory=dict)
+    drift_rel_std: dict[str, float] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -288,24 +477,25 @@ class AssessResult:
         out = self.context.to_json()
         out.update(
             {
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots_budget": self.shots,
-                "seed": self.seed,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_settings_json(self),
                 "units": {
                     "energy": "Ha",
                     "bias, std, trajectory_std": "mHa",
                     "shots": "total per estimate",
                 },
                 "recipes": {
-                    name: recipe_json(r, self.passes.get(name)) for name, r in self.recipes.items()
+                    name: {
+                        **recipe_json(r, self.passes.get(name)),
+                        "bias_spread_mha": self.bias_spread_mha.get(name),
+                        "drift": self.drift[name].to_json() if name in self.drift else None,
+                    }
+                    for name, r in self.recipes.items()
                 },
                 "best_recipe": self.best_recipe,
                 "reachable": self.reachable,
                 "verdict": self.verdict,
                 "caution": self.caution,
+                "drift_rel_std": self.drift_rel_std or None,
             }
         )
         if with_stats:
@@ -316,53 +506,60 @@ class AssessResult:
         """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
         return jsonable(
             {
-                "context": dataclasses.asdict(self.context),
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots": self.shots,
-                "seed": self.seed,
+                **_record_start(self),
                 "recipes": {n: dataclasses.asdict(r) for n, r in self.recipes.items()},
                 "passes": {n: list(p) for n, p in self.passes.items()},
                 "best_recipe": self.best_recipe,
                 "reachable": self.reachable,
-                "verdict": self.verdict,
-                "caution": self.caution,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_record_end(self),
+                "bias_spread_mha": self.bias_spread_mha,
+                "drift": {n: dataclasses.asdict(d) for n, d in self.drift.items()},
+                "drift_rel_std": self.drift_rel_std,
             }
         )
 
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> AssessResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
         return cls(
-            context=ContextSummary(**ctx),
-            target_mha=rec["target_mha"],
-            confidence=rec["confidence"],
-            shots=rec["shots"],
-            seed=rec["seed"],
             recipes={n: _rebuild(RecipeResult, r) for n, r in rec["recipes"].items()},
             passes={n: tuple(p) for n, p in rec["passes"].items()},
             best_recipe=rec["best_recipe"],
             reachable=rec["reachable"],
-            verdict=rec["verdict"],
-            stats=stats,
-            caution=rec["caution"],
-            emulation_method=rec.get("emulation_method", "density_matrix"),
-            emulation_notice=rec.get("emulation_notice"),
+            **_common_fields(rec, stats),
+            bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
+            drift={n: _drift_stats(d) for n, d in (rec.get("drift") or {}).items()},
+            drift_rel_std=dict(rec.get("drift_rel_std") or {}),
         )
 
+    @property
+    def has_spread(self) -> bool:
+        """Whether the bias spread over compiles was computed (the table shows its column)."""
+        return any(v is not None for v in self.bias_spread_mha.values())
+
     def table_headers(self) -> tuple[str, ...]:
-        """TABLE_HEADERS, plus the trajectory-error column when trajectories were used."""
-        return (*TABLE_HEADERS, TRAJECTORY_HEADER) if self.uses_trajectories else TABLE_HEADERS
+        """TABLE_HEADERS (with the compile-spread column after the bias when computed), plus
+        the trajectory-error column when trajectories were used."""
+        head = TABLE_HEADERS
+        if self.has_spread:
+            i = head.index("bias (mHa)") + 1
+            head = (*head[:i], SPREAD_HEADER, *head[i:])
+        if self.drift:
+            head = (*head, DRIFT_HEADER)
+        return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
         """Rows for :meth:`table_headers`, formatted for people."""
         rows = []
         for name, r in self.recipes.items():
             row = _row(name, r)
+            if self.has_spread:
+                i = TABLE_HEADERS.index("bias (mHa)") + 1
+                s = self.bias_spread_mha.get(name)
+                row = (*row[:i], "-" if s is None else f"{s:.3f}", *row[i:])
+            if self.drift:
+                d = self.drift.get(name)
+                row = (*row, "-" if d is None else f"{d.reaching}/{d.draws}")
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -383,14 +580,26 @@ class AssessResult:
                     "shots_total": int(r.shots_total),
                     "n_circuits": int(r.n_circuits),
                     "p_within_target": float(r.p_within_target),
+                    "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
                 }
             )
+            if self.has_spread:
+                s = self.bias_spread_mha.get(name)
+                rows[-1]["bias_spread_mha"] = "" if s is None else s
+            if name in self.drift:
+                rows[-1].update(
+                    {f"drift_{k}": v for k, v in self.drift[name].to_json().items()}
+                )
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 rows[-1]["trajectory_std_mha"] = "" if t is None else t
         return rows
+
+
+def _drift_stats(data: Mapping[str, Any]) -> DriftStats:
+    return _rebuild(DriftStats, data)
 
 
 def _rebuild(cls: Any, data: Mapping[str, Any]) -> Any:
@@ -407,9 +616,25 @@ def _rebuild(cls: Any, data: Mapping[str, Any]) -> Any:
 
 
 def _row(name: str, r: Any) -> tuple[str, ...]:
+    return (name, f"{float(r.energy_ha):.6f}", *_score_cells(r))
+
+
+def score_values(r: Any) -> dict[str, Any]:
+    """Energy and score of a recipe result as CSV values (units in the keys)."""
+    return {
+        "energy_ha": float(r.energy_ha),
+        "bias_mha": float(r.bias_exact_mha),
+        "std_mha": float(r.std_mha),
+        "p_within_target": float(r.p_within_target),
+        "reaches_target": bool(r.reaches_target),
+        "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
+        "limited_by": str(r.limited_by),
+    }
+
+
+def _score_cells(r: Any) -> tuple[str, ...]:
+    """The SCORE_HEADERS cells of a recipe result, formatted for people."""
     return (
-        name,
-        f"{float(r.energy_ha):.6f}",
         f"{float(r.bias_exact_mha):+.3f}",
         f"{float(r.std_mha):.3f}",
         f"{float(r.p_within_target):.3f}",
@@ -429,15 +654,7 @@ class TuneEntry:
     result: Any  # RecipeResult
 
 
-TUNE_HEADERS = (
-    "rank",
-    "setting",
-    "bias (mHa)",
-    "std. error (mHa)",
-    "P(within target)",
-    "shots needed",
-    "limited by",
-)
+TUNE_HEADERS = ("rank", "setting", *SCORE_HEADERS)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -467,17 +684,7 @@ class TuneResult:
             r = e.result
             row: dict[str, Any] = {"rank": e.rank, "setting": e.label}
             row.update({k: _csv_value(v) for k, v in e.setting.items()})
-            row.update(
-                {
-                    "energy_ha": float(r.energy_ha),
-                    "bias_mha": float(r.bias_exact_mha),
-                    "std_mha": float(r.std_mha),
-                    "p_within_target": float(r.p_within_target),
-                    "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
-                    "limited_by": str(r.limited_by),
-                    "n_circuits": int(r.n_circuits),
-                }
-            )
+            row.update({**score_values(r), "n_circuits": int(r.n_circuits)})
             if self.emulation_method == "trajectory":
                 t = trajectory_std_of(r)
                 row["trajectory_std_mha"] = "" if t is None else t
@@ -487,29 +694,14 @@ class TuneResult:
     def table_rows(self, top: int = 10) -> list[tuple[str, ...]]:
         out = []
         for e in self.entries[:top]:
-            r = e.result
-            out.append(
-                (
-                    str(e.rank),
-                    e.label,
-                    f"{float(r.bias_exact_mha):+.3f}",
-                    f"{float(r.std_mha):.3f}",
-                    f"{float(r.p_within_target):.3f}",
-                    format_count(r.shots_needed) if r.shots_needed is not None else "never",
-                    str(r.limited_by),
-                )
-            )
+            out.append((str(e.rank), e.label, *_score_cells(e.result)))
         return out
 
     def to_record(self) -> dict[str, Any]:
         """Everything needed to rebuild this result (see :meth:`from_record`), JSON-able."""
         return jsonable(
             {
-                "context": dataclasses.asdict(self.context),
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots": self.shots,
-                "seed": self.seed,
+                **_record_start(self),
                 "entries": [
                     {
                         "rank": e.rank,
@@ -521,18 +713,13 @@ class TuneResult:
                     for e in self.entries
                 ],
                 "distinct_variants": self.distinct_variants,
-                "verdict": self.verdict,
-                "caution": self.caution,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_record_end(self),
             }
         )
 
     @classmethod
     def from_record(cls, rec: Mapping[str, Any], stats: RunStats) -> TuneResult:
         """Inverse of :meth:`to_record` (with the stats of the run that reused it)."""
-        ctx = dict(rec["context"])
-        ctx["patch"] = tuple(ctx["patch"])
         entries = tuple(
             TuneEntry(
                 rank=e["rank"],
@@ -544,30 +731,16 @@ class TuneResult:
             for e in rec["entries"]
         )
         return cls(
-            context=ContextSummary(**ctx),
-            target_mha=rec["target_mha"],
-            confidence=rec["confidence"],
-            shots=rec["shots"],
-            seed=rec["seed"],
             entries=entries,
             distinct_variants=rec["distinct_variants"],
-            stats=stats,
-            verdict=rec["verdict"],
-            caution=rec["caution"],
-            emulation_method=rec.get("emulation_method", "density_matrix"),
-            emulation_notice=rec.get("emulation_notice"),
+            **_common_fields(rec, stats),
         )
 
     def to_json(self, *, with_stats: bool = False) -> dict[str, Any]:
         out = self.context.to_json()
         out.update(
             {
-                "target_mha": self.target_mha,
-                "confidence": self.confidence,
-                "shots_budget": self.shots,
-                "seed": self.seed,
-                "emulation_method": self.emulation_method,
-                "emulation_notice": self.emulation_notice,
+                **_settings_json(self),
                 "settings": len(self.entries),
                 "distinct_variants": self.distinct_variants,
                 "ranking": [
@@ -601,9 +774,6 @@ def _csv_value(v: Any) -> Any:
 
 def csv_text(rows: Sequence[Mapping[str, Any]]) -> str:
     """CSV text of ``rows`` (columns from the first row, then any new keys in order)."""
-    import csv
-    import io
-
     columns: list[str] = []
     for row in rows:
         for k in row:

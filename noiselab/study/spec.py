@@ -7,7 +7,9 @@ profile loaded, molecule and recipes validated by their own layers). Every probl
 
 from __future__ import annotations
 
+import dataclasses
 import math
+import os
 import re
 from collections.abc import Mapping
 from dataclasses import dataclass, field
@@ -25,11 +27,18 @@ from pydantic import (
     model_validator,
 )
 
+from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
+from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
+from noiselab.device.profile import load_profile, profile_from_mapping
 from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
+from noiselab.mitigate.recipe import parse_recipe
+from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
+from noiselab.study.grid import check_tune_section
+from noiselab.study.knobs import KNOB_ALIASES, KNOBS
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 #: Most points of one sweep (each point is a full set of simulations).
@@ -41,6 +50,21 @@ class _Strict(BaseModel):
     model_config = ConfigDict(extra="forbid", frozen=True)
 
 
+def _starts_within_cap(ansatz: Any) -> Any:
+    """``starts`` (the least number of optimizer starts) must not exceed ``max_starts``.
+
+    More starts than ``starts`` run until the two lowest agree (noiselab.chem.optimize);
+    ``start_seed`` seeds the random starts, apart from the study's ``seed`` so that ``--seed``
+    never moves the noiseless optimum.
+    """
+    if ansatz.starts > ansatz.max_starts:
+        raise ValueError(
+            f"max_starts: {ansatz.max_starts} is fewer than starts ({ansatz.starts}); "
+            "allowed: max_starts >= starts"
+        )
+    return ansatz
+
+
 class UccsdAnsatz(_Strict):
     """Unitary coupled cluster (first-order Trotterized), singles and doubles, from Hartree-Fock."""
 
@@ -48,7 +72,13 @@ class UccsdAnsatz(_Strict):
     singles: StrictBool = True
     doubles: StrictBool = True
     starts: Count = Field(default=1, ge=1, le=32, description="optimizer starting points")
+    max_starts: Count = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: Count = Field(default=0, ge=0, le=MAX_SEED, description="random starts' seed")
     max_iterations: Count = Field(default=2000, ge=1, le=100000)
+
+    @model_validator(mode="after")
+    def _check_starts(self) -> UccsdAnsatz:
+        return _starts_within_cap(self)
 
     def label(self) -> str:
         parts = "".join(c for c, on in (("S", self.singles), ("D", self.doubles)) if on)
@@ -63,7 +93,13 @@ class LayeredAnsatz(_Strict):
     pairs: Literal["linear", "ring", "all"] | list[tuple[StrictInt, StrictInt]] = "linear"
     entangler: Literal["cz", "cx"] = "cz"
     starts: Count = Field(default=3, ge=1, le=32, description="optimizer starting points")
+    max_starts: Count = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: Count = Field(default=0, ge=0, le=MAX_SEED, description="random starts' seed")
     max_iterations: Count = Field(default=2000, ge=1, le=100000)
+
+    @model_validator(mode="after")
+    def _check_starts(self) -> LayeredAnsatz:
+        return _starts_within_cap(self)
 
     def label(self) -> str:
         pairs = self.pairs if isinstance(self.pairs, str) else "custom"
@@ -85,9 +121,18 @@ ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": Lay
 
 
 class CompileOptions(_Strict):
-    """How the trial circuit is compiled to the device."""
+    """How the trial circuit is compiled to the device.
+
+    ``seeds``: the circuit is compiled with transpiler seeds 0..seeds-1 and the compile with the
+    fewest two-qubit gates (then the shortest schedule) is assessed; its own setting, not the
+    study's ``seed``, so that ``--seed`` never changes a bias. ``bias_spread``: assess also
+    computes every recipe's bias on the other distinct compiles (one extra simulation per
+    distinct compile and circuit variant; density-matrix emulation only).
+    """
 
     optimization_level: Count = Field(default=2, ge=0, le=3)
+    seeds: Count = Field(default=8, ge=1, le=64)
+    bias_spread: StrictBool = True
 
 
 class TuneGrid(_Strict):
@@ -144,8 +189,6 @@ class SweepDefaults(_Strict):
     def _check_vary(cls, value: str | None) -> str | None:
         if value is None:
             return value
-        from noiselab.study.sweep import KNOB_ALIASES, KNOBS
-
         if KNOB_ALIASES.get(value, value) not in KNOBS:
             raise ValueError(f"unknown knob {quote(value)}; allowed: {', '.join(KNOBS)}")
         return value
@@ -196,7 +239,7 @@ class StudyFile(_Strict):
     description: str | None = None
     molecule: dict[str, Any]
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
-    two_qubit_reduction: StrictBool = False
+    drop_fixed_parity_qubits: StrictBool = False
     ansatz: dict[str, Any]
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
@@ -206,8 +249,14 @@ class StudyFile(_Strict):
     confidence: float = 0.95
     recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
     seed: Count = Field(default=0, ge=0, le=MAX_SEED)
+    #: relative std of the realized noise scale of each amplified point (zero-noise
+    #: extrapolation); the default is a stated common-practice value, 0 reproduces ideal
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    #: relative, systematic error of the stretch amplifier (enters the bias)
+    amplification_offset: float = 0.0
     tune: TuneGrid | None = None
     sweep: SweepDefaults | None = None
+    scan: dict[str, Any] | None = None  # validated by noiselab.study.scan (ScanSection)
     emulation: EmulationSettings = EmulationSettings()
 
     @field_validator("name")
@@ -221,7 +270,26 @@ class StudyFile(_Strict):
             )
         return value
 
-    @field_validator("target_mha", "confidence", mode="before")
+    @field_validator("amplification_spread")
+    @classmethod
+    def _check_spread(cls, value: float) -> float:
+        if not (math.isfinite(value) and 0.0 <= value <= 0.5):
+            raise ValueError(
+                f"{value}; allowed: a relative standard deviation from 0 to 0.5 "
+                f"(0: ideal amplification; default {DEFAULT_AMPLIFICATION_SPREAD})"
+            )
+        return value
+
+    @field_validator("amplification_offset")
+    @classmethod
+    def _check_offset(cls, value: float) -> float:
+        if not (math.isfinite(value) and -0.5 <= value <= 1.0):
+            raise ValueError(f"{value}; allowed: a relative offset from -0.5 to 1 (0: none)")
+        return value
+
+    @field_validator(
+        "target_mha", "confidence", "amplification_spread", "amplification_offset", mode="before"
+    )
     @classmethod
     def _no_bool(cls, value: Any) -> Any:
         if isinstance(value, bool):
@@ -287,7 +355,7 @@ class Study:
     source: Path
     molecule: Any  # noiselab.chem.molecule.MoleculeSpec
     encoding: str
-    two_qubit_reduction: bool
+    drop_fixed_parity_qubits: bool
     ansatz: UccsdAnsatz | LayeredAnsatz
     profile: Any  # noiselab.device.profile.DeviceProfile
     device_source: str  # resolved profile path, or "<inline>"
@@ -300,10 +368,18 @@ class Study:
     seed: int
     num_qubits: int
     tune: TuneGrid | None = None
+    amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
+    amplification_offset: float = 0.0
     sweep: SweepDefaults | None = None
     description: str | None = None
     emulation: EmulationSettings = field(default_factory=EmulationSettings)
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
+    compile_seeds: int = 8  # transpiler seeds 0..compile_seeds-1
+    compile_bias_spread: bool = True
+
+    @property
+    def transpiler_seeds(self) -> tuple[int, ...]:
+        return tuple(range(self.compile_seeds))
 
     def with_overrides(
         self,
@@ -326,7 +402,6 @@ class Study:
         base = dict(self.raw) if self.raw else {"emulation": self.emulation.model_dump()}
         data = apply_overrides(base, str(self.source), overrides)
         spec = StudyFile.model_validate(data)
-        import dataclasses
 
         return dataclasses.replace(
             self, seed=spec.seed, shots=spec.shots, emulation=spec.emulation, raw=data
@@ -426,11 +501,14 @@ def validate_sweep_options(
 
 
 def load_study(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Study:
-    """Read, validate and resolve a study file; bad input raises a one-line InputError.
+    """Read, validate and resolve a study file (a path, or the name of a shipped study such as
+    ``h2-stretched``); bad input raises a one-line InputError.
 
     ``overrides``: command-line values of ``seed``, ``shots``, ``method`` and ``trajectories``
     (see :func:`apply_overrides`), validated with the file."""
     src_path = Path(path)
+    if not src_path.exists() and looks_like_name(str(path)):
+        src_path = shipped_path("studies", str(path), str(path), "study")
     data = load_yaml_mapping(src_path, what="study file")
     return study_from_mapping(data, src_path, overrides)
 
@@ -450,21 +528,19 @@ def study_from_mapping(
     except ValidationError as exc:
         raise from_validation_error(exc, src) from None
 
-    if spec.two_qubit_reduction and spec.encoding != "parity":
+    if spec.drop_fixed_parity_qubits and spec.encoding != "parity":
         raise input_error(
             src,
-            "two_qubit_reduction",
+            "drop_fixed_parity_qubits",
             f"needs encoding parity (the study has {spec.encoding})",
-            "two_qubit_reduction: false, or encoding: parity",
+            "drop_fixed_parity_qubits: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
 
-    # the device first: reading it is cheap, the molecule's check imports PySCF
+    # the device first: reading it is cheap, the molecule's check runs PySCF
     profile, device_source = _resolve_device(spec.device, src_path)
-    from noiselab.chem.molecule import molecule_from_mapping
-
     molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
-    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.two_qubit_reduction)
+    num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
         raise input_error(
@@ -473,11 +549,11 @@ def study_from_mapping(
             f"the problem needs {num_qubits} qubits but device {_profile_name(profile)!r} has "
             f"{len(device_qubits)}",
             f"a device with at least {num_qubits} qubits, a smaller active space, "
-            "or two_qubit_reduction",
+            "or drop_fixed_parity_qubits",
         )
     from noiselab.study.preflight import check_sizes
 
-    check_sizes(src, molecule, ansatz, num_qubits, spec.emulation)  # before the recipes' imports
+    check_sizes(src, molecule, ansatz, num_qubits, spec.emulation)  # before any heavy step
     recipes = {
         name: validate_recipe(passes, src, f"recipes.{name}")
         for name, passes in spec.recipes.items()
@@ -501,8 +577,6 @@ def study_from_mapping(
             )
         layout = tuple(spec.layout)
     if spec.tune is not None:
-        from noiselab.study.tune import check_tune_section
-
         check_tune_section(spec.tune, src)
     if spec.sweep is not None and spec.sweep.recipes is not None:
         for i, name in enumerate(spec.sweep.recipes):
@@ -515,18 +589,22 @@ def study_from_mapping(
         source=src_path,
         molecule=molecule,
         encoding=spec.encoding,
-        two_qubit_reduction=spec.two_qubit_reduction,
+        drop_fixed_parity_qubits=spec.drop_fixed_parity_qubits,
         ansatz=ansatz,
         profile=profile,
         device_source=device_source,
         layout=layout,
         optimization_level=spec.compile.optimization_level,
+        compile_seeds=spec.compile.seeds,
+        compile_bias_spread=spec.compile.bias_spread,
         shots=spec.shots,
         target_mha=float(spec.target_mha),
         confidence=float(spec.confidence),
         recipes=recipes,
         seed=spec.seed,
         num_qubits=num_qubits,
+        amplification_spread=float(spec.amplification_spread),
+        amplification_offset=float(spec.amplification_offset),
         tune=spec.tune,
         sweep=spec.sweep,
         description=spec.description,
@@ -546,17 +624,14 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
         raise from_validation_error(exc, source, prefix="ansatz") from None
 
 
-def logical_qubit_count(molecule: Any, encoding: str, two_qubit_reduction: bool) -> int:
-    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the reduction."""
-    from noiselab.chem.molecule import count_orbitals
-
+def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:
+    """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the two parity
+    qubits that ``drop_fixed_parity_qubits`` drops."""
     n = 2 * count_orbitals(molecule)
-    return n - 2 if two_qubit_reduction and encoding == "parity" else n
+    return n - 2 if drop_fixed_parity_qubits and encoding == "parity" else n
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
-    from noiselab.device.profile import load_profile, profile_from_mapping
-
     src = str(study_path)
     if isinstance(value, dict):
         # the profile layer writes "<source>: <key>: ..."; make its keys read device.<key>
@@ -568,10 +643,20 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             if text.startswith(head) and not text.startswith(head + "(top level)"):
                 text = f"{src}: device." + text.removeprefix(head)
             raise InputError(text) from None
+    resolved = device_profile_path(value, study_path)
+    return load_profile(resolved), str(resolved)
+
+
+def device_profile_path(value: str, study_path: Path) -> Path:
+    """The profile file a study's ``device:`` string names: a path relative to the study file,
+    an absolute path, or a shipped profile's name. One-line InputError when there is none."""
+    src = str(study_path)
     if not value.strip():
         raise input_error(src, "device", "empty profile path", "a path to a device profile file")
     p = Path(value).expanduser()
     resolved = Path(_normpath(p if p.is_absolute() else study_path.parent / p))
+    if not resolved.exists() and looks_like_name(value):
+        resolved = shipped_path("devices", value, src, "device")
     if not resolved.is_file():
         if resolved.is_dir():
             what = "is a folder"
@@ -583,14 +668,13 @@ def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any,
             src,
             "device",
             f"device profile {resolved} {what}",
-            "a profile path relative to the study file, or an inline profile mapping",
+            "a profile path relative to the study file, a shipped profile name "
+            "(noiselab shipped), or an inline profile mapping",
         )
-    return load_profile(resolved), str(resolved)
+    return resolved
 
 
 def _normpath(p: Path) -> str:
-    import os
-
     return os.path.normpath(str(p))
 
 
@@ -617,8 +701,6 @@ def validate_recipe(
 
     Returns the passes with every option filled in (the registry's defaults).
     """
-    from noiselab.mitigate.recipe import parse_recipe
-
     try:
         return tuple(parse_recipe(list(passes), where=key).spec())
     except InputError as exc:

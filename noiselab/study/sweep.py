@@ -8,8 +8,11 @@ times the factor. The compiled circuit, measurement plan and optimised parameter
 across a sweep, only the noise, so one experiment context serves every point; each point's
 simulations go through the study's results cache, which makes an interrupted sweep resumable.
 
-Crossings of the chemical-accuracy target are found by linear interpolation of log10 |error|
-against the knob value (against log10 of the knob value with ``log=True``).
+Crossings of the target are stated for the one rule of reaching it (P(|E - E_exact| <= target)
+>= confidence at the study's budget, :func:`noiselab.mitigate.target.reaches_target`) and
+separately for the bias alone (unlimited shots). Each is located by bisection on the knob to 1 %
+relative, with new evaluations between the grid points that bracket it (through the results
+cache), not by interpolation.
 """
 
 from __future__ import annotations
@@ -18,113 +21,22 @@ import contextlib
 import dataclasses
 import itertools
 import math
+import time
 from collections.abc import Callable, Iterator, Sequence
 from typing import Any
 
 from noiselab.common.errors import input_error
-from noiselab.common.units import CHEMICAL_ACCURACY_MHA
-from noiselab.device.profile import (
-    MAX_COHERENCE_US,
-    MAX_READOUT_ERROR,
-    MAX_SINGLE_QUBIT_ERROR,
-    MAX_TWO_QUBIT_ERROR,
-    MIN_COHERENCE_US,
-)
-from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR as MAX_NOISE_SCALE
+from noiselab.common.wording import CAUTION, target_words
+from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, scale_profile
+from noiselab.mitigate.recipe import run_recipe
+from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.cache import CachingRunner
+from noiselab.study.context import build_context
+from noiselab.study.executor import make_executor
+from noiselab.study.knobs import Knob, get_knob
+from noiselab.study.results import RunStats, trajectory_std_of
 
-_PROBABILITY = "a probability; larger is not an error rate"
-
-# ---------------------------------------------------------------- knobs
-
-
-@dataclasses.dataclass(frozen=True)
-class Knob:
-    """One sweepable quantity.
-
-    ``value`` is in base units (a probability 0..1, microseconds, or a bare factor);
-    ``display_factor`` converts it to the units shown (100 for percent).
-    ``inverse`` is True when the channel's scale factor is reference / value (coherence times:
-    a longer T1 means a smaller relaxation rate).
-    """
-
-    name: str
-    phrase: str  # used in sentences: "the two-qubit gate error"
-    axis_label: str  # with units
-    unit: str  # shown after a value ("%", "us", "")
-    channels: tuple[str, ...] | None  # None: every channel (uniform noise scale)
-    display_factor: float = 1.0
-    inverse: bool = False
-    upper: float | None = None  # largest allowed value (base units)
-    allow_zero: bool = True
-    lower: float | None = None  # smallest allowed value above zero (base units)
-    reason: str = _PROBABILITY  # why the range ends where it does (shown when refused)
-
-    def show(self, value: float) -> str:
-        """``value`` (base units) in display units with three significant digits."""
-        v = value * self.display_factor
-        text = f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
-        return f"{text} {self.unit}" if self.unit else text
-
-
-KNOBS: dict[str, Knob] = {
-    "noise-scale": Knob(
-        name="noise-scale",
-        phrase="the noise scale factor",
-        axis_label="noise scale factor (1 = device as profiled)",
-        unit="",
-        channels=None,
-        upper=MAX_NOISE_SCALE,
-        reason="beyond, every circuit is close to fully depolarized",
-    ),
-    "two-qubit-error": Knob(
-        name="two-qubit-error",
-        phrase="the two-qubit gate error",
-        axis_label="two-qubit gate error (%)",
-        unit="%",
-        channels=("two_qubit",),
-        display_factor=100.0,
-        upper=MAX_TWO_QUBIT_ERROR,
-    ),
-    "one-qubit-error": Knob(
-        name="one-qubit-error",
-        phrase="the single-qubit gate error",
-        axis_label="single-qubit gate error (%)",
-        unit="%",
-        channels=("single_qubit",),
-        display_factor=100.0,
-        upper=MAX_SINGLE_QUBIT_ERROR,
-    ),
-    "coherence-us": Knob(
-        name="coherence-us",
-        phrase="T1 (with T2 scaled alongside)",
-        axis_label="T1 (us), T2 scaled with it",
-        unit="us",
-        channels=("relaxation",),
-        inverse=True,
-        allow_zero=False,
-        lower=MIN_COHERENCE_US,
-        upper=MAX_COHERENCE_US,
-        reason="T1 from 1 ns to 1000 s; outside, a unit typo",
-    ),
-    "readout-error": Knob(
-        name="readout-error",
-        phrase="the readout assignment error",
-        axis_label="readout assignment error (%)",
-        unit="%",
-        channels=("readout",),
-        display_factor=100.0,
-        upper=MAX_READOUT_ERROR,
-    ),
-}
-KNOB_ALIASES = {"scale": "noise-scale"}
-
-
-def get_knob(name: str) -> Knob:
-    """The knob called ``name``; InputError naming the allowed ones otherwise."""
-    key = KNOB_ALIASES.get(name, name)
-    if key not in KNOBS:
-        raise input_error("sweep", "--vary", f"unknown knob {name!r}", ", ".join(KNOBS))
-    return KNOBS[key]
+# ---------------------------------------------------------------- knob values
 
 
 def check_value(knob: Knob, value: float, option: str, log: bool = False) -> float:
@@ -198,6 +110,7 @@ class SweepEntry:
     p_within_target: float
     limited_by: str
     trajectory_std_mha: float | None = None  # emulator's own error (trajectory method only)
+    reaches_target: bool = False  # the one rule at the budget
 
 
 @dataclasses.dataclass(frozen=True)
@@ -218,12 +131,13 @@ class SweepPoint:
 
 @dataclasses.dataclass(frozen=True)
 class RecipeCrossing:
-    """Where one recipe's |error| crosses the target, in knob base units, and the sentence."""
+    """Where one recipe crosses the target, in knob base units, and the sentence."""
 
     recipe: str
-    crossings: tuple[float, ...]  # central |error| = target
-    band_crossings: tuple[float, ...]  # |error| + std = target (shot noise at the budget)
+    crossings: tuple[float, ...]  # reaches the target at the budget (P >= confidence) flips
+    bias_crossings: tuple[float, ...]  # |bias| = target (the bias alone, unlimited shots)
     sentence: str
+    evaluations: int = 0  # new evaluations of the recipe the bisections took
 
 
 @dataclasses.dataclass(frozen=True)
@@ -245,10 +159,20 @@ class SweepResult:
     stats: Any = dataclasses.field(default=None, compare=False)  # RunStats, not in the JSON
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
+    confidence: float = 0.95
 
     @property
     def knob_spec(self) -> Knob:
         return get_knob(self.knob)
+
+    @property
+    def crossing_method(self) -> str:
+        """How the crossings were located (one line)."""
+        n = sum(c.evaluations for c in self.crossings)
+        return (
+            f"crossings located by bisection on the knob to {BISECTION_REL_TOL * 100:g} % relative "
+            f"({n} extra evaluation(s) between the grid points, through the results cache)"
+        )
 
     def notes(self) -> tuple[str, ...]:
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
@@ -285,6 +209,7 @@ class SweepResult:
             "log_spacing": self.log,
             "current_value": self.current_value,
             "target_mha": self.target_mha,
+            "confidence": self.confidence,
             "shots_total": self.shots_total,
             "exact_energy_ha": self.exact_energy_ha,
             "ansatz_energy_ha": self.ansatz_energy_ha,
@@ -300,160 +225,188 @@ class SweepResult:
                 for p in self.points
             ],
             "crossings": [dataclasses.asdict(c) for c in self.crossings],
+            "crossing_method": self.crossing_method,
             "notes": list(self.notes()),
-            "caution": "emulated: only as good as the device noise model",
+            "caution": CAUTION,
         }
 
 
 # ---------------------------------------------------------------- crossings
 
 
-_TINY_MHA = 1e-9
+BISECTION_REL_TOL = 0.01  # a crossing is located until its bracket is 1 % of the knob value
+
+#: A knob value (base units) -> the recipe's entry there (a new, cached evaluation).
+Evaluate = Callable[[float], SweepEntry]
 
 
-def find_crossings(
-    values: Sequence[float], errors_mha: Sequence[float], target_mha: float, log_x: bool = False
-) -> tuple[float, ...]:
-    """Knob values where |error| crosses ``target_mha``, in the order of ``values``.
-
-    Between adjacent points of the same sign whose |error| lies on opposite sides of the
-    target, log10 |error| is interpolated linearly against the value (against log10 value when
-    ``log_x``); where the signed error changes sign (passing through zero: a mitigated estimate
-    over-correcting) the signed error is interpolated linearly instead, which can give two
-    crossings in one interval. A point exactly on the target counts once.
-    """
-    if len(values) != len(errors_mha):
-        raise ValueError("values and errors differ in length")
-    t = float(target_mha)
-    lt = math.log10(t)
-    xs = [math.log10(v) if log_x else float(v) for v in values]
-    es = [float(e) for e in errors_mha]
-    ys = [math.log10(max(abs(e), _TINY_MHA)) - lt for e in es]
-    fractions: list[tuple[int, float]] = []
-    for i in range(len(xs) - 1):
-        e0, e1 = es[i], es[i + 1]
-        if ys[i] == 0.0:
-            fractions.append((i, 0.0))
-            continue
-        if e0 * e1 <= 0:
-            hits = [(lv - e0) / (e1 - e0) for lv in (t, -t) if (e0 - lv) * (e1 - lv) < 0]
-            fractions += [(i, f) for f in sorted(hits)]
-        elif ys[i] * ys[i + 1] < 0:
-            fractions.append((i, -ys[i] / (ys[i + 1] - ys[i])))
-    out = []
-    for i, f in fractions:
-        x = xs[i] + f * (xs[i + 1] - xs[i])
-        out.append(float(values[i]) if f == 0.0 else (10**x if log_x else x))
-    if ys and ys[-1] == 0.0:
-        out.append(float(values[-1]))
-    return tuple(out)
+def bias_within(entry: SweepEntry, target_mha: float) -> bool:
+    """The bias alone (unlimited shots) inside the target: |bias| < target."""
+    return abs(float(entry.error_mha)) < float(target_mha)
 
 
-def _interpolated_abs_error(e0: float, e1: float, f: float) -> float:
-    """|error| a fraction ``f`` of the way between two points, by the rule of find_crossings."""
-    if e0 * e1 <= 0:
-        return abs(e0 + f * (e1 - e0))
-    a0, a1 = max(abs(e0), _TINY_MHA), max(abs(e1), _TINY_MHA)
-    return 10 ** (math.log10(a0) + f * (math.log10(a1) - math.log10(a0)))
+def _midpoint(a: float, b: float, log_x: bool) -> float:
+    if log_x and a > 0 and b > 0:
+        return math.sqrt(a * b)
+    return 0.5 * (a + b)
 
 
-def band_crossings(
-    values: Sequence[float],
-    errors_mha: Sequence[float],
-    stds_mha: Sequence[float],
-    target_mha: float,
+def bisect_crossing(
+    lo: float,
+    hi: float,
+    inside_lo: bool,
+    inside: Callable[[float], bool],
     log_x: bool = False,
-    steps: int = 400,
-) -> tuple[float, ...]:
-    """Knob values where |error| + one standard error crosses the target.
+    rel_tol: float = BISECTION_REL_TOL,
+) -> tuple[float, int]:
+    """(knob value where ``inside`` flips between ``lo`` and ``hi``, evaluations used).
 
-    |error| between points follows :func:`find_crossings`' rule, the standard error is
-    interpolated linearly; roots are located on a fine grid in each interval and refined
-    linearly. Always at or inside the central crossings where the error grows.
+    ``inside(lo)`` is ``inside_lo`` and ``inside(hi)`` its opposite; the bracket is halved
+    (geometrically with ``log_x``) until its width is at most ``rel_tol`` of its larger end, and
+    its midpoint is returned.
     """
-    xs = [math.log10(v) if log_x else float(v) for v in values]
-    out: list[float] = []
-    for i in range(len(xs) - 1):
-        e0, e1 = float(errors_mha[i]), float(errors_mha[i + 1])
-        s0, s1 = float(stds_mha[i]), float(stds_mha[i + 1])
-
-        def g(f: float, e0: float = e0, e1: float = e1, s0: float = s0, s1: float = s1) -> float:
-            return _interpolated_abs_error(e0, e1, f) + s0 + f * (s1 - s0) - target_mha
-
-        fs = [k / steps for k in range(steps + 1)]
-        gs = [g(f) for f in fs]
-        for k in range(steps):
-            if gs[k] == 0.0 and (k > 0 or i == 0):
-                f = fs[k]
-            elif gs[k] * gs[k + 1] < 0:
-                f = fs[k] + (fs[k + 1] - fs[k]) * (-gs[k]) / (gs[k + 1] - gs[k])
-            else:
-                continue
-            x = xs[i] + f * (xs[i + 1] - xs[i])
-            out.append(10**x if log_x else x)
-    return tuple(out)
+    n = 0
+    while abs(hi - lo) > rel_tol * max(abs(lo), abs(hi)):
+        mid = _midpoint(lo, hi, log_x)
+        n += 1
+        if inside(mid) == inside_lo:
+            lo = mid
+        else:
+            hi = mid
+    return _midpoint(lo, hi, log_x), n
 
 
-def _target_words(target_mha: float) -> str:
-    if abs(target_mha - CHEMICAL_ACCURACY_MHA) < 1e-4:
-        return "chemical accuracy"
-    return f"the {target_mha:.3g} mHa target"
-
-
-def crossing_sentence(
-    recipe: str,
-    knob: Knob,
+def locate_crossings(
     values: Sequence[float],
-    errors_mha: Sequence[float],
-    crossings: Sequence[float],
-    target_mha: float,
-) -> str:
-    """One sentence in the device's own units, e.g. 'raw stays within chemical accuracy while
-    the two-qubit gate error is below 0.42 %'."""
-    goal = _target_words(target_mha)
-    inside = [abs(e) <= target_mha for e in errors_mha]
+    entries: Sequence[SweepEntry],
+    inside: Callable[[SweepEntry], bool],
+    evaluate: Evaluate,
+    log_x: bool = False,
+) -> tuple[tuple[float, ...], int]:
+    """(knob values where ``inside(entry)`` flips, in the order of ``values``; evaluations used).
+
+    Each grid interval whose ends differ is bisected with new evaluations. An interval whose
+    ends are both outside while the signed bias changes sign (an over-correcting estimate
+    passing through zero) is probed once where the bias would be zero; when inside there, both
+    halves are bisected.
+    """
+    out: list[float] = []
+    n = 0
+
+    def at(x: float) -> bool:
+        return inside(evaluate(x))
+
+    for i in range(len(values) - 1):
+        a, b = float(values[i]), float(values[i + 1])
+        ea, eb = entries[i], entries[i + 1]
+        ia, ib = inside(ea), inside(eb)
+        if ia != ib:
+            x, k = bisect_crossing(a, b, ia, at, log_x)
+            out.append(x)
+            n += k
+        elif not ia and float(ea.error_mha) * float(eb.error_mha) < 0:
+            f = float(ea.error_mha) / (float(ea.error_mha) - float(eb.error_mha))
+            if log_x and a > 0 and b > 0:
+                probe = 10 ** (math.log10(a) + f * (math.log10(b) - math.log10(a)))
+            else:
+                probe = a + f * (b - a)
+            n += 1
+            if at(probe):
+                x1, k1 = bisect_crossing(a, probe, False, at, log_x)
+                x2, k2 = bisect_crossing(probe, b, True, at, log_x)
+                out += [x1, x2]
+                n += k1 + k2
+    return tuple(out), n
+
+
+def _region(
+    knob: Knob, values: Sequence[float], flags: Sequence[bool], crossings: Sequence[float]
+) -> tuple[str, str]:
+    """(kind, words) of where ``flags`` hold: kind "all", "none" or "part"."""
     lo, hi = min(values), max(values)
-    span = f"{knob.show(lo)} to {knob.show(hi)}"
     if lo == hi:
-        verdict = f"is within {goal}" if all(inside) else f"is outside {goal}"
-        return f"{recipe} {verdict} at {knob.phrase} of {knob.show(lo)}"
+        return ("all" if flags[0] else "none"), f"at {knob.phrase} of {knob.show(lo)}"
+    span = f"over the whole range of {knob.phrase} ({knob.show(lo)} to {knob.show(hi)})"
     if not crossings:
-        if all(inside):
-            return f"{recipe} stays within {goal} over the whole range of {knob.phrase} ({span})"
-        return f"{recipe} does not reach {goal} anywhere in the range of {knob.phrase} ({span})"
+        if all(flags):
+            return "all", span
+        if not any(flags):
+            return "none", span
     ascending = values[-1] > values[0]
-    first_inside = inside[0] if ascending else inside[-1]  # at the smallest value
+    first_inside = flags[0] if ascending else flags[-1]  # at the smallest value
     if len(crossings) == 1:
         word = "below" if first_inside else "above"
-        return (
-            f"{recipe} stays within {goal} while {knob.phrase} is {word} {knob.show(crossings[0])}"
-        )
-    edges = sorted(crossings)
-    bounds = [lo, *edges, hi]
+        return "part", f"while {knob.phrase} is {word} {knob.show(crossings[0])}"
+    bounds = [lo, *sorted(crossings), hi]
     parts = []
     inside_now = first_inside
     for a, b in itertools.pairwise(bounds):
         if inside_now:
             parts.append(f"{knob.show(a)} to {knob.show(b)}")
         inside_now = not inside_now
-    return f"{recipe} is within {goal} for {knob.phrase} from " + " and from ".join(parts)
+    return "part", f"for {knob.phrase} from " + " and from ".join(parts)
+
+
+def crossing_sentence(
+    recipe: str,
+    knob: Knob,
+    values: Sequence[float],
+    reaches: Sequence[bool],
+    crossings: Sequence[float],
+    bias_inside: Sequence[bool],
+    bias_crossings: Sequence[float],
+    target_mha: float,
+    confidence: float,
+) -> str:
+    """One sentence in the device's own units: where the recipe reaches the target at the
+    budget (the rule: P >= confidence), then where its bias alone is within it."""
+    goal = target_words(target_mha)
+    rule = f"at the budget (P >= {confidence:g})"
+    kind, words = _region(knob, values, reaches, crossings)
+    if kind == "none":
+        head = f"{recipe} does not reach {goal} {rule} {words.replace('over', 'anywhere in', 1)}"
+    else:
+        head = f"{recipe} reaches {goal} {rule} {words}"
+    kind, words = _region(knob, values, bias_inside, bias_crossings)
+    if kind == "all":
+        tail = f"its bias alone (unlimited shots) is within the target {words}"
+    elif kind == "none":
+        tail = f"its bias alone (unlimited shots) is outside the target {words}"
+    else:
+        tail = f"its bias alone (unlimited shots) is within the target {words}"
+    return f"{head}; {tail}"
 
 
 def recipe_crossing(
-    recipe: str, knob: Knob, points: Sequence[SweepPoint], target_mha: float, log_x: bool
+    recipe: str,
+    knob: Knob,
+    points: Sequence[SweepPoint],
+    target_mha: float,
+    confidence: float,
+    log_x: bool,
+    evaluate: Evaluate,
 ) -> RecipeCrossing:
-    """Crossings and the sentence for one recipe of a sweep."""
+    """Crossings (by bisection through ``evaluate``) and the sentence for one recipe."""
     values = [p.value for p in points]
-    errs = [p.entry(recipe).error_mha for p in points]
-    stds = [p.entry(recipe).std_mha for p in points]
-    central = find_crossings(values, errs, target_mha, log_x)
-    band = band_crossings(values, errs, stds, target_mha, log_x)
-    sentence = crossing_sentence(recipe, knob, values, errs, central, target_mha)
-    if band and len(central) == 1 and len(band) == 1:
-        sentence += (
-            f" ({knob.show(band[0])} allowing one standard error of shot noise at the budget)"
-        )
-    return RecipeCrossing(recipe=recipe, crossings=central, band_crossings=band, sentence=sentence)
+    entries = [p.entry(recipe) for p in points]
+    rule, n1 = locate_crossings(values, entries, lambda e: e.reaches_target, evaluate, log_x)
+    bias, n2 = locate_crossings(
+        values, entries, lambda e: bias_within(e, target_mha), evaluate, log_x
+    )
+    sentence = crossing_sentence(
+        recipe,
+        knob,
+        values,
+        [e.reaches_target for e in entries],
+        rule,
+        [bias_within(e, target_mha) for e in entries],
+        bias,
+        target_mha,
+        confidence,
+    )
+    return RecipeCrossing(
+        recipe=recipe, crossings=rule, bias_crossings=bias, sentence=sentence, evaluations=n1 + n2
+    )
 
 
 PointHook = Callable[[int, SweepPoint], None]
@@ -467,7 +420,7 @@ class ConfigTask:
     """One noise configuration to evaluate: the study's experiment with ``profile`` swapped in,
     every recipe run through a caching runner on ``cache`` (picklable: executor task)."""
 
-    experiment: Any  # noiselab.mitigate.recipe.ExperimentContext
+    experiment: Any  # noiselab.mitigate.experiment.ExperimentContext
     profile: Any  # DeviceProfile of this configuration
     recipes: tuple[tuple[str, tuple[dict[str, Any], ...]], ...]
     cache: Any  # ResultsCache (reopened in a worker process)
@@ -485,9 +438,6 @@ class ConfigOutcome:
 
 def run_config(task: ConfigTask) -> ConfigOutcome:
     """Run ``task`` (module level, so process pools and dask can run it)."""
-    from noiselab.mitigate.recipe import run_recipe
-    from noiselab.study.cache import CachingRunner
-
     experiment = dataclasses.replace(task.experiment, profile=task.profile)
     runner = CachingRunner(experiment, task.cache)
     results = tuple(
@@ -536,8 +486,6 @@ def run_configs(
 ) -> tuple[list[ConfigOutcome], str]:
     """Evaluate ``tasks`` in order, in-process or through the study executor; ``on_done(i, out)``
     runs in the calling process after each task (in task order for in-process runs)."""
-    from noiselab.study.executor import make_executor
-
     own = executor is None
     ex = make_executor(workers) if own else executor
     try:
@@ -556,10 +504,27 @@ def run_configs(
             ex.close()
 
 
+def scan_fields(
+    study: Any, ctx: Any, recipes: tuple[str, ...], stats: RunStats
+) -> dict[str, Any]:
+    """Fields that sweep and budget results take from the study, its context and the run."""
+    return {
+        "study_name": study.name,
+        "device_name": str(study.profile.name),
+        "recipes": recipes,
+        "target_mha": float(study.target_mha),
+        "shots_total": int(study.shots),
+        "exact_energy_ha": float(ctx.exact_energy_ha),
+        "ansatz_energy_ha": float(ctx.ansatz_energy_ha),
+        "stats": stats,
+        "emulation_method": ctx.emulation_method,
+        "emulation_notice": ctx.emulation_notice,
+        "confidence": float(study.confidence),
+    }
+
+
 def entry_from(name: str, r: Any) -> SweepEntry:
     """A SweepEntry from a RecipeResult."""
-    from noiselab.study.results import trajectory_std_of
-
     return SweepEntry(
         recipe=name,
         energy_ha=float(r.energy_ha),
@@ -569,6 +534,7 @@ def entry_from(name: str, r: Any) -> SweepEntry:
         p_within_target=float(r.p_within_target),
         limited_by=str(r.limited_by),
         trajectory_std_mha=trajectory_std_of(r),
+        reaches_target=bool(r.reaches_target),
     )
 
 
@@ -592,7 +558,7 @@ def reference_value(knob: Knob, profile: Any, patch: Sequence[int]) -> float:
     if knob.name == "one-qubit-error":
         return sum(q.gate_error for q in qubits) / len(qubits)
     if knob.name == "readout-error":
-        return sum(0.5 * (q.p_read1_prep0 + q.p_read0_prep1) for q in qubits) / len(qubits)
+        return sum(0.5 * (q.flip_0to1 + q.flip_1to0) for q in qubits) / len(qubits)
     if knob.name == "coherence-us":
         t1 = [q.t1_us for q in qubits]
         if any(t is None for t in t1):
@@ -610,8 +576,6 @@ def below_relaxation_floor(knob: Knob, profile: Any, patch: Sequence[int]) -> bo
     """True when a gate-error knob's scaled value is below what T1/T2 alone cause over the gate
     on some qubit or pair of the patch (the noise model then uses relaxation alone, so lowering
     the knob further changes nothing)."""
-    from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity
-
     if knob.name == "two-qubit-error":
         gate = profile.two_qubit_gate
         return any(
@@ -676,10 +640,6 @@ def sweep(
     point)`` is called in the calling process as each point finishes. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    import time
-
-    from noiselab.study.assess import _default_cache, resolve_study
-
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     defaults = getattr(study, "sweep", None)
@@ -728,7 +688,6 @@ def own_executor(workers: int | None, cluster: Any, executor: Any) -> Iterator[A
     if executor is not None:
         yield executor
         return
-    from noiselab.study.executor import make_executor
 
     ex = make_executor(workers, cluster)
     try:
@@ -753,12 +712,6 @@ def _sweep_with(
     context: Any,
     t0: float,
 ) -> SweepResult:
-    import time
-
-    from noiselab.device.profile import scale_profile
-    from noiselab.study.context import build_context
-    from noiselab.study.results import RunStats
-
     ctx = context if context is not None else build_context(study, cache=store, progress=progress)
     profile = study.profile
     patch = tuple(ctx.compiled.patch)
@@ -798,28 +751,29 @@ def _sweep_with(
         for i, o in enumerate(outs)
     )
     names = tuple(n for n, _ in picked)
-    crossings = tuple(recipe_crossing(n, spec, pts, study.target_mha, log) for n in names)
-    stats = RunStats(
-        simulations=sum(o.simulations for o in outs),
-        cache_hits=sum(o.cache_hits for o in outs),
-        engine_seconds=sum(o.engine_seconds for o in outs),
-        wall_seconds=time.perf_counter() - t0,
-        executor=described,
+    extra: list[ConfigOutcome] = []
+
+    def evaluator(name: str, passes: tuple[dict[str, Any], ...]) -> Evaluate:
+        def evaluate(value: float) -> SweepEntry:
+            prof = scale_profile(profile, knob_factor(spec, value, ref), channels)
+            out = run_config(ConfigTask(ctx.experiment, prof, ((name, passes),), store))
+            extra.append(out)
+            return entry_from(name, out.results[0][1])
+
+        return evaluate
+
+    target, conf = float(study.target_mha), float(study.confidence)
+    crossings = tuple(
+        recipe_crossing(n, spec, pts, target, conf, log, evaluator(n, passes))
+        for n, passes in picked
     )
+    outs = [*outs, *extra]
+    stats = RunStats.of_outcomes(outs, t0, described)
     return SweepResult(
-        study_name=study.name,
-        device_name=str(profile.name),
         knob=spec.name,
         log=log,
         current_value=ref,
-        target_mha=float(study.target_mha),
-        shots_total=int(study.shots),
-        exact_energy_ha=float(ctx.exact_energy_ha),
-        ansatz_energy_ha=float(ctx.ansatz_energy_ha),
-        recipes=names,
         points=pts,
         crossings=crossings,
-        stats=stats,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **scan_fields(study, ctx, names, stats),
     )

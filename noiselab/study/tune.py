@@ -17,10 +17,24 @@ from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import InputError
-from noiselab.study.assess import _default_cache, override_key_options, resolve_study
-from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key
+from noiselab.mitigate.base import STAGE_COMBINE
+from noiselab.mitigate.recipe import EstimateMemo, run_recipe
+from noiselab.mitigate.registry import make_pass
+from noiselab.mitigate.variants import CircuitVariant
+from noiselab.study.assess import (
+    _default_cache,
+    job_fields,
+    load_job_result,
+    override_key_options,
+    resolve_study,
+    save_job_result,
+)
+from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
+from noiselab.study.executor import make_executor
+from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -34,14 +48,6 @@ from noiselab.study.spec import Study, TuneGrid
 
 ProgressHook = Callable[[str, int, int], None]
 
-NONE = "none"
-DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
-DEFAULT_POSTSELECT = (NONE, "discard", "verify")
-DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
-DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
-DEFAULT_FIT = ("linear", "richardson")
-
-
 @dataclasses.dataclass(frozen=True)
 class GridOverride:
     """Axes given on the command line (None: take the study's ``tune:`` section or the default)."""
@@ -53,17 +59,6 @@ class GridOverride:
     fit: Sequence[str] | None = None
 
 
-@dataclasses.dataclass(frozen=True)
-class Grid:
-    """The resolved axes of a tune grid."""
-
-    readout: tuple[str, ...]
-    postselect: tuple[str, ...]
-    amplification: tuple[str, ...]
-    scales: tuple[tuple[float, ...], ...]
-    fit: tuple[str, ...]
-
-
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
     """Axes from the command line, else the study's tune section, else the defaults.
 
@@ -72,13 +67,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     override = override or GridOverride()
     _validate_override(override)
     section = study.tune or TuneGrid()
-    defaults = {
-        "readout": DEFAULT_READOUT,
-        "postselect": DEFAULT_POSTSELECT,
-        "amplification": DEFAULT_AMPLIFICATION,
-        "scales": DEFAULT_SCALES,
-        "fit": DEFAULT_FIT,
-    }
+    defaults = DEFAULT_AXES
     values: dict[str, Any] = {}
     origin: dict[str, str] = {}
     for axis, default in defaults.items():
@@ -97,7 +86,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
     )
-    _check_axes(grid, origin)
+    check_axes(grid, origin)
     return grid, origin
 
 
@@ -121,56 +110,6 @@ def _validate_override(override: GridOverride) -> None:
         raise InputError(f"--{axis}: {text.removeprefix(axis).lstrip(':. ')}") from None
 
 
-def check_tune_section(section: TuneGrid, source: str) -> None:
-    """Refuse unknown values in a study's ``tune:`` section (errors name tune.<axis>[i])."""
-    defaults = {
-        "readout": DEFAULT_READOUT,
-        "postselect": DEFAULT_POSTSELECT,
-        "amplification": DEFAULT_AMPLIFICATION,
-        "scales": DEFAULT_SCALES,
-        "fit": DEFAULT_FIT,
-    }
-    values = {a: getattr(section, a) or d for a, d in defaults.items()}
-    grid = Grid(
-        readout=tuple(values["readout"]),
-        postselect=tuple(values["postselect"]),
-        amplification=tuple(values["amplification"]),
-        scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
-        fit=tuple(values["fit"]),
-    )
-    _check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
-
-
-def _check_axes(grid: Grid, origin: dict[str, str]) -> None:
-    """Refuse unknown names on an axis, naming the axis and what is allowed."""
-    from noiselab.mitigate.passes.extrapolate import ExtrapolateOptions
-    from noiselab.mitigate.passes.postselect import PostselectOptions
-    from noiselab.mitigate.passes.readout import ReadoutOptions
-
-    def allowed(model: Any, field: str) -> tuple[str, ...]:
-        return tuple(model.model_fields[field].annotation.__args__)
-
-    checks = {
-        "readout": (NONE, *allowed(ReadoutOptions, "method")),
-        "postselect": (NONE, *allowed(PostselectOptions, "mode")),
-        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier")),
-        "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
-    }
-    for axis, ok in checks.items():
-        for i, value in enumerate(getattr(grid, axis)):
-            if value not in ok:
-                where = origin[axis]
-                where = f"{where}[{i}]" if "tune." in where else where
-                raise InputError(f"{where}: unknown value {value!r}; allowed: {', '.join(ok)}")
-    for i, scales in enumerate(grid.scales):
-        bad = len(scales) < 2 or any(s < 1.0 for s in scales) or len(set(scales)) != len(scales)
-        if bad:
-            raise InputError(
-                f"{origin['scales']}: scale set {i} = {list(scales)}; "
-                "allowed: at least 2 distinct factors >= 1, e.g. 1,2,3"
-            )
-
-
 @dataclasses.dataclass(frozen=True)
 class Setting:
     """One point of the grid as options and as a recipe."""
@@ -182,8 +121,6 @@ class Setting:
 
 def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[Setting], list[str]]:
     """Every valid combination of the axes, and notes on what was left out and why."""
-    from noiselab.mitigate.registry import make_pass
-
     notes: list[str] = []
     post_axis = grid.postselect
     if not symmetries_available and any(p != NONE for p in post_axis):
@@ -237,10 +174,6 @@ def _label(o: dict[str, Any]) -> str:
 
 def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:
     """The distinct circuit variants the settings need (combination passes declare theirs)."""
-    from noiselab.mitigate.base import STAGE_COMBINE
-    from noiselab.mitigate.registry import make_pass
-    from noiselab.mitigate.variants import CircuitVariant
-
     out: dict[Any, None] = {}
     for s in settings:
         combine = [p for p in (make_pass(d) for d in s.passes) if p.stage == STAGE_COMBINE]
@@ -286,17 +219,11 @@ def tune(
             "grid": dataclasses.asdict(grid or GridOverride()),
         }
         key = job_key("tune", study_or_path, jsonable(options))
-        hit = store.get(JOB_KIND, key) if key is not None else None
-        if hit is not None:
-            try:
-                stats = RunStats(0, 0, 0.0, time.perf_counter() - t0, reused=True)
-                return TuneResult.from_record(json.loads(hit[0]), stats)
-            except Exception:  # a damaged entry is a miss: dropped, and the job runs again
-                store.discard(JOB_KIND, key)
+        stored = load_job_result(store, key, TuneResult, t0)
+        if stored is not None:
+            return stored
     own_executor = executor is None
     if executor is None:  # before the (slow) context: a bad cluster address fails at once
-        from noiselab.study.executor import make_executor
-
         executor = make_executor(workers, cluster)
     try:
         # the verification bases are measured only when a setting may verify
@@ -323,8 +250,6 @@ def tune(
         if own_executor:
             executor.close()
 
-    from noiselab.mitigate.recipe import EstimateMemo, run_recipe
-
     # settings that differ only in their extrapolation share each variant's corrected estimate
     memo = EstimateMemo()
     results: list[tuple[Setting, Any]] = []
@@ -347,37 +272,19 @@ def tune(
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
-    stats = RunStats(
-        simulations=runner.simulations,
-        cache_hits=runner.cache_hits,
-        engine_seconds=runner.engine_seconds,
-        wall_seconds=time.perf_counter() - t0,
-        executor=getattr(executor, "description", "in-process"),
-    )
+    stats = RunStats.of_runner(runner, t0, getattr(executor, "description", "in-process"))
     result = TuneResult(
-        context=ctx.summary(),
-        target_mha=study.target_mha,
-        confidence=study.confidence,
-        shots=study.shots,
-        seed=study.seed,
         entries=entries,
         distinct_variants=len(runner.requested),
-        stats=stats,
         verdict=verdict,
-        emulation_method=ctx.emulation_method,
-        emulation_notice=ctx.emulation_notice,
+        **job_fields(study, ctx, stats),
     )
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), stats.wall_seconds)
+    save_job_result(store, key, result)
     return result
 
 
 def write_tune_outputs(result: TuneResult, out: str | Path) -> list[Path]:
     """tune.csv (ranked, one row per setting) and tune.json into ``out`` (atomic writes)."""
-    import json
-
-    from noiselab.common.atomic import write_text_atomic
-
     folder = Path(out)
     return [
         write_text_atomic(folder / "tune.csv", csv_text(result.csv_rows())),

@@ -4,36 +4,54 @@ PRX 7, 021050 (2017)).
 Noise amplifiers: ``stretch`` scales the device profile's channels by each factor (pulse
 stretching, Kandala et al., Nature 567, 491 (2019); readout is not stretched unless ``channels``
 says so); ``whole_circuit`` folds the whole compiled circuit, ``two_qubit_gates`` folds only its
-two-qubit gates (unitary folding, Giurgica-Tiron et al., arXiv:2005.10921). Folded circuits use
-the scale factor actually reached (gate counts are integers).
+two-qubit gates (unitary folding, Giurgica-Tiron et al., arXiv:2005.10921).
 
-Fits and their zero-noise estimate as a linear functional of the per-scale energies,
-E(0) = sum_i gamma_i E(c_i):
-``richardson``: gamma_i = prod_{j != i} c_j / (c_j - c_i) (Lagrange interpolation at zero);
-``linear`` and ``polynomial`` (least squares of the given degree): gamma = first row of the
-Vandermonde pseudo-inverse; ``exponential``: E(c) = a + b exp(-k c) by scipy curve_fit,
-E(0) = a + b, gamma from the Gauss-Newton linearization (delta method); when the fit fails,
-or gives k <= 0, the linear fit is used and ``fit_warning`` says so. The variance of E(0) is then
-sum_i gamma_i**2 Var(E_i) with each scale's shots (variance amplification).
+Realistic amplification. Folding does not scale every error alike (single-qubit gates are not
+folded by ``two_qubit_gates``, idle time grows differently): the *realized* noise scale of a
+folded circuit is the ratio of its estimated error (sum of the operations' average
+infidelities, ``device.compile.estimate_error_budget``) to the unfolded circuit's, and the fit
+runs against it (``scale_axis: realized``, default) or against the gate-count scale
+(``nominal``). Stretching is taken at its stretch factor c; the context's
+``amplification_offset`` emulates each stretched point at c (1 + offset) while the fit still
+assumes c (a systematic error: it enters the bias). The context's ``amplification_spread`` is the
+relative standard deviation of each amplified point's realized scale; it enters the standard
+error as sum_i (dE(0)/dc_i * spread * c_i)**2 over the amplified points, with dE(0)/dc_i the
+fit's sensitivity to its i-th abscissa at fixed energies (central differences of the linear
+coefficients; for the exponential fit w_i times the fitted slope at c_i). Sampled evaluations
+draw the realized scales instead.
+
+Fits (:mod:`noiselab.mitigate.fits`): ``richardson``, ``linear``, ``polynomial`` (of
+``degree``), ``exponential`` (the linear fit when it fails, with ``fit_warning``); each gives
+E(0) = sum_i w_i E(c_i), so the variance of E(0) is sum_i w_i**2 Var(E_i) with each scale's
+shots (variance amplification).
+
+The pass reports an :class:`ExtrapolationReport`: the scales (requested, nominal, realized and
+those fitted against), the energies, the weights, the amplification terms and the fitted curve
+E(c) sampled on [0, largest scale] (what a figure draws).
 """
 
 from __future__ import annotations
 
 import math
-import warnings
+from collections.abc import Mapping
+from dataclasses import dataclass
 from typing import Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import Field, field_validator, model_validator
 
 from noiselab.common.counts import Count
-from noiselab.mitigate.base import STAGE_COMBINE, MitigationPass, PassOptions, Workspace
-from noiselab.mitigate.estimate import Estimate, linear_combination
+from noiselab.common.units import HA_TO_MHA
+from noiselab.mitigate.base import STAGE_COMBINE, Combined, MitigationPass, PassOptions, Workspace
+from noiselab.mitigate.estimate import Estimate
+from noiselab.mitigate.experiment import actual_scale, realized_scales
+from noiselab.mitigate.fits import ZeroNoiseFit, fit_through, scale_sensitivity
+from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
 
 ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
 MIN_POINTS = {"linear": 2, "richardson": 2, "exponential": 3}
-EXP_MAX_DECAY = 4.0  # largest k (c_max - c_min) the exponential fit may reach
+CURVE_POINTS = 91  # samples of the reported fitted curve on [0, largest scale]
 #: Largest noise scale factor: beyond about 100 x the device's noise every circuit is close to
 #: fully depolarized, nothing is left to extrapolate from (and a folded circuit is 100 x long).
 MAX_SCALE_FACTOR = 100.0
@@ -50,6 +68,7 @@ class ExtrapolateOptions(PassOptions):
     )
     channels: tuple[ChannelName, ...] | None = None  # stretch only; None: all but readout
     shot_split: Literal["equal", "weighted"] = "equal"
+    scale_axis: Literal["realized", "nominal"] = "realized"  # folding: what the fit runs against
 
     @field_validator("scales")
     @classmethod
@@ -89,73 +108,82 @@ class ExtrapolateOptions(PassOptions):
         return self
 
 
-def richardson_coefficients(scales: np.ndarray) -> np.ndarray:
-    """gamma_i = prod_{j != i} c_j / (c_j - c_i)."""
-    c = np.asarray(scales, dtype=float)
-    g = np.ones(len(c))
-    for i in range(len(c)):
-        for j in range(len(c)):
-            if j != i:
-                g[i] *= c[j] / (c[j] - c[i])
-    return g
+@dataclass(frozen=True)
+class ExtrapolationReport(PassReport):
+    """What an extrapolation did, in the order of its circuit ``variants`` (labels).
+
+    Scales: requested (the options), ``scales`` (the abscissae of the fit: realized or nominal by
+    ``scale_axis``), nominal (gate-count scale of a fold, stretch factor) and realized (from the
+    compiled circuits' error budget). ``energies_ha`` per scale, ``weights`` (E(0) =
+    sum_i w_i E_i), the fit's sensitivity to each abscissa and the standard deviation each
+    amplified point's random realized scale adds (Ha). ``curve_scales`` / ``curve_energies_ha``:
+    the fitted curve sampled on [0, largest scale]. Stretch reports its ``amplification_offset``,
+    folding the realized scale per error kind (``realized_by_kind``).
+    """
+
+    kind: ClassVar[str] = "extrapolate"
+    amplifier: str
+    fit: str
+    scale_axis: str
+    variants: tuple[str, ...]
+    scales_requested: tuple[float, ...]
+    scales: tuple[float, ...]
+    scales_nominal: tuple[float, ...]
+    scales_realized: tuple[float, ...]
+    energies_ha: tuple[float, ...]
+    weights: tuple[float, ...]
+    scale_sensitivity_ha: tuple[float, ...]
+    amplification_spread: float
+    amplification_stds_ha: tuple[float, ...]
+    curve_scales: tuple[float, ...]
+    curve_energies_ha: tuple[float, ...]
+    amplification_offset: float | None = None
+    realized_by_kind: tuple[Mapping[str, float], ...] | None = None
+    poly_coeffs_low_first: tuple[float, ...] | None = None
+    exp_params: tuple[float, float, float] | None = None
+    fit_warning: str | None = None
+
+    @property
+    def variance_amplification(self) -> float:
+        """sum_i w_i**2: the factor the extrapolation multiplies a per-point variance by."""
+        return float(np.sum(np.array(self.weights) ** 2))
+
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        by_label = {v.label: v for v in run.variants}
+        scored = [by_label[label] for label in self.variants]
+        out: dict[str, Any] = {
+            "amplifier": self.amplifier,
+            "fit": self.fit,
+            "scale_axis": self.scale_axis,
+            "scales_requested": list(self.scales_requested),
+            "scales": list(self.scales),
+            "scales_nominal": list(self.scales_nominal),
+            "scales_realized": list(self.scales_realized),
+            "energies_ha": list(self.energies_ha),
+            "weights": list(self.weights),
+            "variance_amplification": self.variance_amplification,
+            "amplification_spread": self.amplification_spread,
+            "scale_sensitivity_ha": list(self.scale_sensitivity_ha),
+            "amplification_stds_mha": [x * HA_TO_MHA for x in self.amplification_stds_ha],
+            "stds_mha": [v.std_mha for v in scored],
+            "engine_seconds": [v.engine_seconds for v in scored],
+            "two_qubit_counts": [v.two_qubit_count for v in scored],
+        }
+        if self.poly_coeffs_low_first is not None:
+            out["poly_coeffs_low_first"] = list(self.poly_coeffs_low_first)
+        if self.exp_params is not None:
+            out.update(zip(("exp_a_ha", "exp_b_ha", "exp_k"), self.exp_params, strict=True))
+        if self.fit_warning is not None:
+            out["fit_warning"] = self.fit_warning
+        if self.amplification_offset is not None:
+            out["amplification_offset"] = self.amplification_offset
+        if self.realized_by_kind is not None:
+            out["realized_by_kind"] = [dict(r) for r in self.realized_by_kind]
+        return {"extrapolation": out}
 
 
-def polynomial_coefficients(scales: np.ndarray, degree: int) -> np.ndarray:
-    """Least-squares polynomial of ``degree`` through (c_i, E_i), evaluated at 0: gamma."""
-    c = np.asarray(scales, dtype=float)
-    v = np.vander(c, degree + 1, increasing=True)
-    return np.linalg.pinv(v)[0]
-
-
-def _exp_model(c: np.ndarray, a: float, b: float, k: float) -> np.ndarray:
-    return a + b * np.exp(-k * c)
-
-
-def exponential_fit(
-    scales: np.ndarray, energies: np.ndarray
-) -> tuple[float, np.ndarray, np.ndarray]:
-    """(E(0), gamma, (a, b, k)) of a least-squares fit E(c) = a + b exp(-k c).
-
-    k is kept in (0, EXP_MAX_DECAY / (c_max - c_min)]: a steeper decay is not resolved by the
-    points (the data beyond the first would be flat) and would amplify noise without bound.
-    Raises ValueError when the fit fails or k ends on a bound."""
-    from scipy.optimize import curve_fit
-
-    c = np.asarray(scales, dtype=float)
-    y = np.asarray(energies, dtype=float)
-    k_max = EXP_MAX_DECAY / float(c.max() - c.min())
-    best = None
-    for k0 in (0.02, 0.05, 0.1, 0.2, 0.5, 1.0, 2.0):
-        k0 = min(k0, 0.5 * k_max)
-        basis = np.column_stack([np.ones_like(c), np.exp(-k0 * c)])
-        ab, *_ = np.linalg.lstsq(basis, y, rcond=None)
-        res = float(np.sum((basis @ ab - y) ** 2))
-        if best is None or res < best[0]:
-            best = (res, (float(ab[0]), float(ab[1]), k0))
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore")
-        try:
-            popt, _ = curve_fit(
-                _exp_model,
-                c,
-                y,
-                p0=best[1],
-                bounds=([-np.inf, -np.inf, 0.0], [np.inf, np.inf, k_max]),
-                maxfev=20000,
-            )
-        except (RuntimeError, ValueError) as exc:
-            raise ValueError(f"curve_fit did not converge ({exc})") from exc
-    a, b, k = (float(x) for x in popt)
-    if not all(math.isfinite(x) for x in popt) or k <= 1e-9:
-        raise ValueError(f"fit gave a non-decaying exponential (k = {k:.3g})")
-    if k >= 0.999 * k_max:
-        raise ValueError(f"the points do not resolve the decay (k = {k:.3g} at its bound)")
-    e = np.exp(-k * c)
-    jac = np.column_stack([np.ones_like(c), e, -b * c * e])
-    if np.linalg.cond(jac) > 1e12:
-        raise ValueError("fit is ill-conditioned (the points show no curvature)")
-    gamma = np.array([1.0, 1.0, 0.0]) @ np.linalg.pinv(jac)
-    return a + b, gamma, np.array([a, b, k])
+def _floats(values: Any) -> tuple[float, ...]:
+    return tuple(float(x) for x in values)
 
 
 class ExtrapolatePass(MitigationPass):
@@ -179,7 +207,7 @@ class ExtrapolatePass(MitigationPass):
         o = self.options
         if o.amplifier == "stretch":
             return
-        method = "global" if o.amplifier == "whole_circuit" else "two_qubit"
+        method = o.amplifier
         scale = max(o.scales)
         gates = folded_gate_count(ctx.compiled.circuit, method, scale)
         if gates > MAX_FOLDED_GATES:
@@ -193,54 +221,72 @@ class ExtrapolatePass(MitigationPass):
         o = self.options
         if o.amplifier == "stretch":
             chans = STRETCH_CHANNELS if o.channels is None else o.channels
-            return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in o.scales)
-        method = "global" if o.amplifier == "whole_circuit" else "two_qubit"
-        return tuple(CircuitVariant(fold_method=method, fold_scale=c) for c in o.scales)
+            off = float(getattr(ctx, "amplification_offset", 0.0))
+            emulated = [c if c == 1.0 else c * (1.0 + off) for c in o.scales]
+            return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in emulated)
+        # the fold method is named as the amplifier: "whole_circuit" or "two_qubit_gates"
+        return tuple(CircuitVariant(fold_method=o.amplifier, fold_scale=c) for c in o.scales)
 
-    def coefficients(
+    def shot_split(self) -> Literal["equal", "weighted"]:
+        return self.options.shot_split
+
+    def scale_sensitivity(
         self, scales: np.ndarray, energies: np.ndarray
-    ) -> tuple[float | None, np.ndarray, dict[str, Any]]:
-        """(nonlinear value or None, gamma, fit details)."""
-        o = self.options
-        if o.fit == "richardson":
-            return None, richardson_coefficients(scales), {}
-        if o.fit == "linear":
-            g = polynomial_coefficients(scales, 1)
-            return None, g, {"poly_coeffs_low_first": _poly(scales, energies, 1)}
-        if o.fit == "polynomial":
-            g = polynomial_coefficients(scales, o.degree or 1)
-            return None, g, {"poly_coeffs_low_first": _poly(scales, energies, o.degree or 1)}
-        try:
-            value, g, params = exponential_fit(scales, energies)
-        except ValueError as exc:
-            g = polynomial_coefficients(scales, 1)
-            return None, g, {"fit_warning": f"exponential fit failed: {exc}; linear fit used"}
-        return value, g, {"exp_a_ha": params[0], "exp_b_ha": params[1], "exp_k": params[2]}
+    ) -> tuple[np.ndarray, ZeroNoiseFit]:
+        """(dE(0)/dc_i at fixed energies (Ha per unit scale), the fit at ``scales``)."""
+        fit = fit_through(self.options.fit, self.options.degree, scales, energies)
+        return scale_sensitivity(fit, self.options.degree), fit
 
     def combine(
         self, variants: tuple[CircuitVariant, ...], estimates: list[Estimate], ws: Workspace
-    ) -> Estimate:
-        from noiselab.mitigate.recipe import actual_scale
-
-        scales = np.array([actual_scale(ws.ctx, v) for v in variants])
+    ) -> Combined:
+        o = self.options
+        ctx = ws.ctx
+        spread = float(ctx.amplification_spread)
+        stretch = o.amplifier == "stretch"
+        if stretch:  # the fit knows the stretch factors (an offset is unknown to it)
+            nominal = np.array(o.scales, dtype=float)
+            realized = nominal.copy()
+            by_kind: list[dict[str, float]] = []
+        else:
+            nominal = np.array([actual_scale(ctx, v) for v in variants])
+            by_kind = [realized_scales(ctx, v) for v in variants]
+            realized = np.array([r["total"] for r in by_kind])
+        scales = realized if o.scale_axis == "realized" else nominal
+        amplified = np.array([c != 1.0 for c in o.scales])
+        fit_scales = scales
+        if ws.rng is not None and spread > 0.0:  # sampled: draw the realized scales
+            draw = ws.rng.normal(0.0, spread, size=len(scales))
+            fit_scales = scales * (1.0 + np.where(amplified, draw, 0.0))
         energies = np.array([e.value for e in estimates])
-        value, gamma, info = self.coefficients(scales, energies)
-        est = linear_combination(list(gamma), estimates)
-        if value is not None:
-            est = Estimate(value, est.influence)
-        ws.details["extrapolation"] = {
-            "amplifier": self.options.amplifier,
-            "fit": self.options.fit,
-            "scales_requested": [float(c) for c in self.options.scales],
-            "scales": [float(c) for c in scales],
-            "energies_ha": [float(e) for e in energies],
-            "gamma": [float(g) for g in gamma],
-            "variance_amplification": float(np.sum(gamma**2)),
-            **{k: (v.tolist() if isinstance(v, np.ndarray) else v) for k, v in info.items()},
-        }
-        return est
-
-
-def _poly(scales: np.ndarray, energies: np.ndarray, degree: int) -> list[float]:
-    v = np.vander(np.asarray(scales, dtype=float), degree + 1, increasing=True)
-    return [float(x) for x in np.linalg.pinv(v) @ np.asarray(energies, dtype=float)]
+        sens, fit = self.scale_sensitivity(fit_scales, energies)
+        amp_std = np.where(amplified, np.abs(sens) * spread * scales, 0.0)
+        # E(0) = sum_i w_i E(c_i); the exponential fit's own E(0) keeps the linearized influence
+        est = sum(float(w) * e for w, e in zip(fit.weights, estimates, strict=True))
+        if fit.value is not None:
+            est = Estimate(fit.value, est.influence)
+        xs = np.linspace(0.0, float(np.max(fit_scales)), CURVE_POINTS)
+        polynomial = o.fit in ("linear", "polynomial")  # (not the exponential's fallback)
+        report = ExtrapolationReport(
+            amplifier=o.amplifier,
+            fit=o.fit,
+            scale_axis=o.scale_axis,
+            variants=tuple(v.label() for v in variants),
+            scales_requested=_floats(o.scales),
+            scales=_floats(scales),
+            scales_nominal=_floats(nominal),
+            scales_realized=_floats(realized),
+            energies_ha=_floats(energies),
+            weights=_floats(fit.weights),
+            scale_sensitivity_ha=_floats(sens),
+            amplification_spread=spread,
+            amplification_stds_ha=_floats(amp_std),
+            curve_scales=_floats(xs),
+            curve_energies_ha=_floats(fit.curve(xs)),
+            amplification_offset=float(ctx.amplification_offset) if stretch else None,
+            realized_by_kind=None if stretch else tuple(by_kind),
+            poly_coeffs_low_first=_floats(fit.poly_coeffs_low_first) if polynomial else None,
+            exp_params=None if fit.exp_params is None else _floats(fit.exp_params),
+            fit_warning=fit.warning,
+        )
+        return Combined(est, report, {"amplification": float(np.sum(amp_std**2))})

@@ -18,24 +18,26 @@ Modes:
 
 from __future__ import annotations
 
-from collections.abc import Sequence
-from itertools import combinations
-from typing import ClassVar, Literal
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any, ClassVar, Literal
 
 import numpy as np
-from qiskit.quantum_info import SparsePauliOp
 
 from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_ESTIMATE,
+    Estimated,
     MitigationPass,
     PassOptions,
     VariantData,
     Workspace,
     plan_estimate,
 )
-from noiselab.mitigate.estimate import Estimate, linear_combination, ratio
+from noiselab.mitigate.estimate import Estimate, total
 from noiselab.mitigate.plan import assign_to_bases, measurable_in, parity_signs, support_mask
+from noiselab.mitigate.reports import PassReport, ScoredRun
+from noiselab.mitigate.symmetry import symmetry_table, verification_ops
 from noiselab.mitigate.variants import CircuitVariant
 
 
@@ -44,67 +46,47 @@ class PostselectOptions(PassOptions):
     symmetries: tuple[str, ...] | None = None  # None: every symmetry the encoding keeps
 
 
-def symmetry_table(problem) -> dict[str, tuple[str, int]]:
-    """name -> (Pauli label, eigenvalue +-1) for the symmetries a QubitProblem declares."""
-    out: dict[str, tuple[str, int]] = {}
-    for sym in getattr(problem, "symmetries", None) or ():
-        name, pauli, eig = _unpack(sym)
-        op = pauli if isinstance(pauli, SparsePauliOp) else SparsePauliOp(pauli)
-        op = op.simplify()
-        if len(op) != 1:
-            raise InputError(f"symmetry {name!r}: must be a single Pauli string")
-        c = complex(op.coeffs[0])
-        label = op.paulis.to_labels()[0]
-        # fold a +-1 coefficient into the eigenvalue
-        sign = 1 if c.real > 0 else -1
-        if abs(abs(c) - 1.0) > 1e-9 or abs(c.imag) > 1e-9:
-            raise InputError(f"symmetry {name!r}: Pauli coefficient must be +-1")
-        out[str(name)] = (label, round(float(eig)) * sign)
-    return out
+@dataclass(frozen=True)
+class PostselectReport(PassReport):
+    """Per variant label: ``discard`` the kept fraction of each basis that reveals a symmetry
+    (the bases that reveal none keep everything), ``verify`` the sector weight <P>; and the
+    fallbacks taken (``warnings``)."""
 
+    kind: ClassVar[str] = "postselect"
+    mode: str
+    acceptance: Mapping[str, Mapping[str, float]]
+    sector_weight: Mapping[str, float]
+    warnings: tuple[str, ...] = ()
 
-def _unpack(sym) -> tuple[str, object, float]:
-    if hasattr(sym, "name"):
-        return sym.name, sym.pauli, sym.eigenvalue
-    name, pauli, eig = sym
-    return name, pauli, eig
+    def kept_shots(self, run: ScoredRun) -> float:
+        """Measurement shots kept after the selection, over all variants and bases."""
+        kept = 0.0
+        for v in run.variants:
+            acc = self.acceptance.get(v.label, {})
+            kept += sum(run.shots[(v.label, b)] * acc.get(b, 1.0) for b in run.bases)
+        return kept
 
+    def acceptance_rate(self, run: ScoredRun) -> float:
+        """Kept fraction of the shots of the bases that reveal a symmetry (1 if none does)."""
+        selected = [
+            (run.shots[(v.label, b)], a)
+            for v in run.variants
+            for b, a in self.acceptance.get(v.label, {}).items()
+        ]
+        n_sel = sum(n for n, _ in selected)
+        return sum(n * a for n, a in selected) / n_sel if n_sel else 1.0
 
-def projector_op(labels_eigs: Sequence[tuple[str, int]], num_qubits: int) -> SparsePauliOp:
-    """P = prod_s (1 + lambda_s S_s) / 2 as a Pauli sum."""
-    p = SparsePauliOp("I" * num_qubits)
-    for label, eig in labels_eigs:
-        p = (p @ SparsePauliOp(["I" * num_qubits, label], [0.5, 0.5 * eig])).simplify()
-    return p
-
-
-def verification_ops(
-    hamiltonian: SparsePauliOp, labels_eigs: Sequence[tuple[str, int]]
-) -> tuple[SparsePauliOp, SparsePauliOp]:
-    """(H P, P) for the sector projector P; refuses symmetries that do not commute with H."""
-    n = hamiltonian.num_qubits
-    p = projector_op(labels_eigs, n)
-    hp = (hamiltonian @ p).simplify(atol=1e-12)
-    if len(hp) and np.max(np.abs(np.asarray(hp.coeffs).imag)) > 1e-8:
-        raise InputError("postselect: a symmetry does not commute with the Hamiltonian")
-    hp = SparsePauliOp(hp.paulis, np.asarray(hp.coeffs).real)
-    return hp, p
-
-
-def verification_bases(plan, problem) -> tuple[str, ...]:
-    """Bases (beyond the plan's) needed to verify any non-empty subset of the symmetries."""
-    table = symmetry_table(problem)
-    bases = list(plan.bases)
-    extra: list[str] = []
-    items = list(table.values())
-    for r in range(1, len(items) + 1):
-        for subset in combinations(items, r):
-            hp, p = verification_ops(problem.hamiltonian, subset)
-            for op in (hp, p):
-                _, _, new = assign_to_bases(op, bases)
-                bases.extend(new)
-                extra.extend(new)
-    return tuple(extra)
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        out: dict[str, Any] = {}
+        if self.mode == "discard":
+            out["acceptance"] = {k: dict(v) for k, v in self.acceptance.items()}
+            out["effective_shots"] = self.kept_shots(run)
+            out["acceptance_rate"] = self.acceptance_rate(run)
+        else:
+            out["sector_weight"] = dict(self.sector_weight)
+        if self.warnings:
+            out["postselect_warnings"] = list(self.warnings)
+        return out
 
 
 class PostselectPass(MitigationPass):
@@ -125,7 +107,7 @@ class PostselectPass(MitigationPass):
         if not table:
             raise InputError(
                 f"{where}.symmetries: this encoding keeps no symmetry to post-select on (the "
-                "two-qubit reduction or tapering removed them); allowed: none, drop this pass"
+                "dropped fixed parity qubits removed them); allowed: none, drop this pass"
             )
         if names is None:
             names = tuple(table)
@@ -174,13 +156,14 @@ class PostselectPass(MitigationPass):
         plan_bases = set(ctx.plan.bases)
         return tuple(b for b in ctx.measured_bases if b in used or b in plan_bases)
 
-    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
-        ctx = ws.ctx
+    def estimate(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         if self.options.mode == "verify":
             return self._verify(variant, data, ws)
+        ctx = ws.ctx
         syms = self.selected(ctx)
         n = ctx.plan.num_qubits
         acc: dict[str, float] = {}
+        warnings: list[str] = []
         parts: list[Estimate] = []
         for g in ctx.plan.groups:
             revealed = [(lab, eig) for _, lab, eig in syms if measurable_in(lab, g.basis)]
@@ -191,34 +174,25 @@ class PostselectPass(MitigationPass):
             signs = parity_signs([support_mask(lab) for lab, _ in revealed], n)
             eigs = np.array([eig for _, eig in revealed], dtype=float)[:, None]
             mask = np.all(signs == eigs, axis=0).astype(float)
-            den = d.estimate(mask)
-            if den.value <= 1e-12:  # nothing accepted (possible with very few sampled shots)
-                ws.details.setdefault("postselect_warnings", []).append(
+            kept = d.estimate(mask)
+            if kept.value <= 1e-12:  # nothing accepted (possible with very few sampled shots)
+                warnings.append(
                     f"{variant.label()}:{g.basis}: no shot accepted; group used without selection"
                 )
                 parts.append(d.estimate(g.weights))
                 continue
-            num = d.estimate(mask * g.weights)
-            parts.append(ratio(num, den))
-            acc[g.basis] = den.value
-        est = linear_combination([1.0] * len(parts), parts)
-        ws.details.setdefault("acceptance", {})[variant.label()] = acc
-        return Estimate(est.value + ctx.plan.constant, est.influence)
+            parts.append(d.estimate(mask * g.weights) / kept)
+            acc[g.basis] = kept.value
+        report = PostselectReport("discard", {variant.label(): acc}, {}, tuple(warnings))
+        return Estimated(total(parts) + ctx.plan.constant, report)
 
-    def _verify(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimate:
+    def _verify(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Estimated:
         c_num, w_num, c_den, w_den = self._verify_weights(ws.ctx)
-        num = linear_combination(
-            [1.0] * len(w_num), [data[b].estimate(w) for b, w in w_num.items()]
-        )
-        den = linear_combination(
-            [1.0] * len(w_den), [data[b].estimate(w) for b, w in w_den.items()]
-        )
-        num = Estimate(num.value + c_num, num.influence)
-        den = Estimate(den.value + c_den, den.influence)
-        ws.details.setdefault("sector_weight", {})[variant.label()] = den.value
-        if den.value <= 1e-12:
-            ws.details.setdefault("postselect_warnings", []).append(
-                f"{variant.label()}: sector weight <P> <= 0; plain estimate used"
-            )
-            return plan_estimate(ws.ctx, data)
-        return ratio(num, den)
+        hp = total([data[b].estimate(w) for b, w in w_num.items()]) + c_num  # <H P>
+        p = total([data[b].estimate(w) for b, w in w_den.items()]) + c_den  # <P>
+        label = variant.label()
+        if p.value <= 1e-12:
+            warning = f"{label}: sector weight <P> <= 0; plain estimate used"
+            report = PostselectReport("verify", {}, {label: p.value}, (warning,))
+            return Estimated(plan_estimate(ws.ctx, data), report)
+        return Estimated(hp / p, PostselectReport("verify", {}, {label: p.value}))

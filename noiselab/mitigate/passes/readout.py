@@ -22,7 +22,9 @@ inversion's pullback (valid while small perturbations do not change the support)
 from __future__ import annotations
 
 import functools
-from typing import ClassVar, Literal
+from collections.abc import Mapping
+from dataclasses import dataclass
+from typing import Any, ClassVar, Literal
 
 import numpy as np
 from pydantic import Field
@@ -31,6 +33,7 @@ from noiselab.common.counts import MAX_SHOTS, Count
 from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_CORRECT,
+    Corrected,
     CorrectedDistribution,
     MitigationPass,
     PassOptions,
@@ -39,6 +42,7 @@ from noiselab.mitigate.base import (
     cal_key,
 )
 from noiselab.mitigate.estimate import SourceKey
+from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.variants import CircuitVariant
 
 MAX_FULL_QUBITS = 10
@@ -54,6 +58,25 @@ class ReadoutOptions(PassOptions):
         le=MAX_SHOTS,
         description="shots per calibration circuit; 0 or null: exact matrices",
     )
+
+
+@dataclass(frozen=True)
+class ReadoutReport(PassReport):
+    """The assignment errors the calibration gave, per variant label and logical qubit:
+    ``(P(1|0), P(0|1))`` (per-qubit methods; the full inverse reports none)."""
+
+    kind: ClassVar[str] = "readout"
+    flips: Mapping[str, tuple[tuple[float, float], ...]]
+
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        if not self.flips:
+            return {}
+        return {
+            "readout_assignment": {
+                label: [{"flip_0to1": f01, "flip_1to0": f10} for f01, f10 in per_qubit]
+                for label, per_qubit in self.flips.items()
+            }
+        }
 
 
 def apply_per_qubit(mats: list[np.ndarray], vec: np.ndarray) -> np.ndarray:
@@ -152,14 +175,15 @@ class ReadoutPass(MitigationPass):
             return tuple(range(2**n))
         return (0, 2**n - 1)
 
-    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> VariantData:
+    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Corrected:
         n = ws.ctx.plan.num_qubits
         states = self.calibration_states(n)
         shots = self.options.calibration_shots or None
         cal = ws.calibration(variant, states, shots)
         keys = [cal_key(variant, s) for s in states]
         if self.options.method == "full_inverse":
-            return {b: _full_inverse(d, cal, keys) for b, d in data.items()}
+            full = {b: _full_inverse(d, cal, keys) for b, d in data.items()}
+            return Corrected(full, ReadoutReport(flips={}))
         mats = per_qubit_matrices(cal[0], cal[1], n)
         for q, m in enumerate(mats):
             _invertible(m, f"readout calibration of logical qubit {q}")
@@ -167,10 +191,8 @@ class ReadoutPass(MitigationPass):
         out = {b: _per_qubit_inverse(d, inv, keys, n) for b, d in data.items()}
         if self.options.method == "nearest_probability":
             out = {b: _project(d) for b, d in out.items()}
-        ws.details.setdefault("readout_assignment", {})[variant.label()] = [
-            {"p1_given0": float(m[1, 0]), "p0_given1": float(m[0, 1])} for m in mats
-        ]
-        return out
+        flips = tuple((float(m[1, 0]), float(m[0, 1])) for m in mats)
+        return Corrected(out, ReadoutReport(flips={variant.label(): flips}))
 
 
 def _per_qubit_inverse(

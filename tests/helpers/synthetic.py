@@ -57,9 +57,9 @@ def full_readout_matrix(mats: Sequence[np.ndarray]) -> np.ndarray:
     return out
 
 
-def assignment_matrix(p1_given0: float, p0_given1: float) -> np.ndarray:
+def assignment_matrix(flip_0to1: float, flip_1to0: float) -> np.ndarray:
     """[[1 - P(1|0), P(0|1)], [P(1|0), 1 - P(0|1)]] (columns: prepared state)."""
-    return np.array([[1 - p1_given0, p0_given1], [p1_given0, 1 - p0_given1]])
+    return np.array([[1 - flip_0to1, flip_1to0], [flip_0to1, 1 - flip_1to0]])
 
 
 def depolarized(state: Statevector | DensityMatrix, p: float) -> DensityMatrix:

@@ -1,5 +1,6 @@
 """A small hand-built noisy device (qiskit-aer noise model + transpiler target) for tests and
-benchmarks of the emulation layer that must not depend on the profile schema.
+benchmarks of the emulation layer that must not depend on the profile schema (test helper, not
+part of the package).
 
 Natives rz (virtual, 0 ns), sx and x (35 ns), cx (300 ns) on a line of qubits; relaxation
 (T1, T2 in us) after every gate and on every delay, depolarizing error after gates.
@@ -11,6 +12,12 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
+from qiskit import QuantumCircuit, transpile
+from qiskit.circuit import Delay, Parameter
+from qiskit.circuit.library import CXGate, RZGate, SXGate, XGate
+from qiskit.transpiler import InstructionProperties, Target
+from qiskit_aer.noise import NoiseModel, depolarizing_error, thermal_relaxation_error
+from qiskit_aer.noise.passes import RelaxationNoisePass
 
 from noiselab.emulate.channels import BasisLayerSpec
 from noiselab.emulate.readout import assignment_matrix
@@ -41,12 +48,6 @@ def toy_device(
     readout_seed: int = 3,
 ) -> ToyDevice:
     """A line device; ``scale`` multiplies every error rate (and divides T1, T2)."""
-    from qiskit.circuit import Delay, Parameter
-    from qiskit.circuit.library import CXGate, RZGate, SXGate, XGate
-    from qiskit.transpiler import InstructionProperties, Target
-    from qiskit_aer.noise import NoiseModel, depolarizing_error, thermal_relaxation_error
-    from qiskit_aer.noise.passes import RelaxationNoisePass
-
     k = num_qubits
     rng = np.random.default_rng(readout_seed)
     t1 = [t1_us * (1 + 0.2 * rng.random()) * 1e-6 / max(scale, 1e-12) for _ in range(k)]
@@ -101,8 +102,6 @@ def toy_device(
 
 def toy_circuit(num_qubits: int, layers: int = 2, seed: int = 7) -> Any:
     """A layered hardware-efficient circuit (ry, rz, cx ladder) with random bound angles."""
-    from qiskit import QuantumCircuit
-
     rng = np.random.default_rng(seed)
     qc = QuantumCircuit(num_qubits)
     for _ in range(layers):
@@ -118,8 +117,6 @@ def toy_circuit(num_qubits: int, layers: int = 2, seed: int = 7) -> Any:
 
 def compile_toy(circuit: Any, device: ToyDevice, seed: int = 11) -> Any:
     """Transpile and ALAP-schedule ``circuit`` for ``device`` (delays inserted on idle qubits)."""
-    from qiskit import transpile
-
     return transpile(
         circuit,
         target=device.target,

@@ -1,0 +1,172 @@
+"""``noiselab compare`` and ``noiselab scan`` (heavy layers imported inside the commands)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Annotated
+
+import typer
+
+from noiselab.cli.study_cmds import (
+    CacheOpt,
+    ClusterOpt,
+    MethodOpt,
+    NoCacheOpt,
+    QuietOpt,
+    SeedOpt,
+    ShotsOpt,
+    StudyArg,
+    TrajectoriesOpt,
+    WorkersOpt,
+    _console,
+    _run_job,
+    echo_written,
+)
+from noiselab.common.wording import CAUTION
+
+OutOpt = Annotated[
+    Path | None,
+    typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
+]
+
+
+def _table(headers: tuple[str, ...], rows: list[tuple[str, ...]], title: str) -> None:
+    from rich.table import Table
+
+    t = Table(title=title)
+    for h in headers:
+        t.add_column(h)
+    for r in rows:
+        t.add_row(*r)
+    _console().print(t)
+
+
+def compare_cmd(
+    ctx: typer.Context,
+    study: StudyArg,
+    devices: Annotated[
+        list[str],
+        typer.Option(
+            "--devices",
+            help="Device profiles (paths or shipped names): --devices a.yaml b.yaml.",
+            show_default=False,
+        ),
+    ],
+    out: OutOpt = None,
+    cache: CacheOpt = None,
+    no_cache: NoCacheOpt = False,
+    seed: SeedOpt = None,
+    shots: ShotsOpt = None,
+    quiet: QuietOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
+) -> None:
+    """The same experiment on several devices, ranked; names the device to ask time on."""
+    from noiselab.study.compare import compare
+
+    result = _run_job(
+        compare, study, cache=cache, no_cache=no_cache, quiet=quiet, method=method,
+        devices=[*devices, *ctx.args], seed=seed, shots=shots, trajectories=trajectories,
+    )  # fmt: skip
+    _table(result.table_headers(), result.table_rows(), f"{result.study_name}: devices ranked")
+    typer.echo(result.verdict)
+    typer.echo(CAUTION)
+    if out is not None:
+        from noiselab.report.scan_figures import write_compare_outputs
+
+        echo_written(write_compare_outputs(result, out))
+
+
+def scan_cmd(
+    study: StudyArg,
+    bond: Annotated[
+        tuple[int, int] | None,
+        typer.Option("--bond", help="Atom indices I J: J's side moves along I-J.",
+                     show_default=False),
+    ] = None,
+    scale: Annotated[
+        bool, typer.Option("--scale", help="Scale every distance instead (values are factors).")
+    ] = False,
+    start: Annotated[
+        float | None,
+        typer.Option("--from", help="First value (Angstrom, or factor with --scale).",
+                     show_default=False),
+    ] = None,
+    stop: Annotated[
+        float | None, typer.Option("--to", help="Last value.", show_default=False)
+    ] = None,
+    points: Annotated[
+        int | None, typer.Option("--points", help="Grid points (default 9).", show_default=False)
+    ] = None,
+    refine: Annotated[
+        int | None,
+        typer.Option("--refine", help="Refinement rounds near the minimum, 2 points each "
+                     "(default 2).", show_default=False),
+    ] = None,
+    recipe: Annotated[
+        list[str] | None,
+        typer.Option("--recipe", help="Recipe to follow (repeat). Default: all.",
+                     show_default=False),
+    ] = None,
+    out: OutOpt = None,
+    cache: CacheOpt = None,
+    no_cache: NoCacheOpt = False,
+    seed: SeedOpt = None,
+    shots: ShotsOpt = None,
+    workers: WorkersOpt = None,
+    cluster: ClusterOpt = None,
+    quiet: QuietOpt = False,
+    method: MethodOpt = None,
+    trajectories: TrajectoriesOpt = None,
+) -> None:
+    """Potential-energy curve under noise along one geometry coordinate."""
+    from noiselab.study.scan import scan
+
+    result = _run_job(
+        scan, study, cache=cache, no_cache=no_cache, quiet=quiet, method=method,
+        bond=bond, scale=scale or None, start=start, stop=stop, points=points, refine=refine,
+        recipes=recipe or None, seed=seed, shots=shots, workers=workers, cluster=cluster,
+        trajectories=trajectories,
+    )  # fmt: skip
+    unit = result.axis.unit
+    headers = ("coordinate", "exact (Ha)", "HF (Ha)", *(f"{n} bias (mHa)" for n in result.recipes))
+    rows = [
+        (
+            f"{p.coordinate:.4g}", f"{p.exact_energy_ha:.6f}", f"{p.hf_energy_ha:.6f}",
+            *(f"{e.bias_mha:+.3f} ± {e.std_mha:.3f}{' *' if e.reaches_target else ''}"
+              for e in p.entries),
+        )
+        for p in result.points
+    ]  # fmt: skip
+    _table(headers, rows, f"{result.study_name}: {result.axis_label} (* reaches the target)")
+    for f in result.fits:
+        eq = "-" if f.equilibrium is None else f"{f.equilibrium:.4f} {unit}"
+        if f.equilibrium_std:
+            eq += f" ± {f.equilibrium_std:.4f}"
+        typer.echo(
+            f"{f.curve}: minimum at {eq}; E(first) - E(last) = {f.difference_mha:+.2f} ± "
+            f"{f.difference_std_mha:.2f} mHa (error {f.difference_error_mha:+.2f} mHa)"
+        )
+    for note in result.notes:
+        typer.echo(f"Note: {note}.")
+    typer.echo(CAUTION)
+    if out is not None:
+        from noiselab.report.scan_figures import write_scan_outputs
+
+        echo_written(write_scan_outputs(result, out))
+
+
+def register(app: typer.Typer) -> None:
+    """Add compare and scan to the ``noiselab`` app."""
+    app.command(
+        "compare",
+        context_settings={"allow_extra_args": True},
+        epilog="Example: noiselab compare h2-equilibrium --devices cobaltgrid-12 "
+        "--devices tallowtrap-8 --out results/compare. Exit codes: 0 done, 1 failure, 2 bad input.",
+    )(compare_cmd)
+    app.command(
+        "scan",
+        epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --from 0.5 --to 2.5 "
+        "--points 9 --recipe zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
+        "2 bad input, 130 interrupted (finished points stay in the cache).",
+    )(scan_cmd)

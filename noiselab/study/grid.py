@@ -1,0 +1,84 @@
+"""The axes of the tune grid: built-in defaults and the checks of values given on any axis.
+
+Below :mod:`noiselab.study.spec` (which checks a study file's ``tune:`` section at load) and
+:mod:`noiselab.study.tune` (which builds and ranks the settings).
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any
+
+from noiselab.common.errors import InputError
+from noiselab.mitigate.passes.extrapolate import ExtrapolateOptions
+from noiselab.mitigate.passes.postselect import PostselectOptions
+from noiselab.mitigate.passes.readout import ReadoutOptions
+
+NONE = "none"
+DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
+DEFAULT_POSTSELECT = (NONE, "discard", "verify")
+DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
+DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
+DEFAULT_FIT = ("linear", "richardson")
+#: The built-in default of every axis, in the grid's axis order.
+DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
+    "readout": DEFAULT_READOUT,
+    "postselect": DEFAULT_POSTSELECT,
+    "amplification": DEFAULT_AMPLIFICATION,
+    "scales": DEFAULT_SCALES,
+    "fit": DEFAULT_FIT,
+}
+
+
+@dataclasses.dataclass(frozen=True)
+class Grid:
+    """The resolved axes of a tune grid."""
+
+    readout: tuple[str, ...]
+    postselect: tuple[str, ...]
+    amplification: tuple[str, ...]
+    scales: tuple[tuple[float, ...], ...]
+    fit: tuple[str, ...]
+
+
+def check_tune_section(section: Any, source: str) -> None:
+    """Refuse unknown values in a study's ``tune:`` section (errors name tune.<axis>[i]).
+
+    ``section``: a :class:`noiselab.study.spec.TuneGrid` (axes left ``None`` take the defaults).
+    """
+    defaults = DEFAULT_AXES
+    values = {a: getattr(section, a) or d for a, d in defaults.items()}
+    grid = Grid(
+        readout=tuple(values["readout"]),
+        postselect=tuple(values["postselect"]),
+        amplification=tuple(values["amplification"]),
+        scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
+        fit=tuple(values["fit"]),
+    )
+    check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
+
+
+def check_axes(grid: Grid, origin: dict[str, str]) -> None:
+    """Refuse unknown names on an axis, naming the axis and what is allowed."""
+    def allowed(model: Any, field: str) -> tuple[str, ...]:
+        return tuple(model.model_fields[field].annotation.__args__)
+
+    checks = {
+        "readout": (NONE, *allowed(ReadoutOptions, "method")),
+        "postselect": (NONE, *allowed(PostselectOptions, "mode")),
+        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier")),
+        "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
+    }
+    for axis, ok in checks.items():
+        for i, value in enumerate(getattr(grid, axis)):
+            if value not in ok:
+                where = origin[axis]
+                where = f"{where}[{i}]" if "tune." in where else where
+                raise InputError(f"{where}: unknown value {value!r}; allowed: {', '.join(ok)}")
+    for i, scales in enumerate(grid.scales):
+        bad = len(scales) < 2 or any(s < 1.0 for s in scales) or len(set(scales)) != len(scales)
+        if bad:
+            raise InputError(
+                f"{origin['scales']}: scale set {i} = {list(scales)}; "
+                "allowed: at least 2 distinct factors >= 1, e.g. 1,2,3"
+            )
