@@ -14,6 +14,7 @@ __version__ = "0.1.0"
 # name -> "module:attribute"; filled in by the study layer.
 _LAZY: dict[str, str] = {
     "assess": "noiselab.study.assess:assess",
+    "rehearse": "noiselab.study.rehearse:rehearse",
     "tune": "noiselab.study.tune:tune",
     "sweep": "noiselab.study.sweep:sweep",
     "budget": "noiselab.study.budget:budget",

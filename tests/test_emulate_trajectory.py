@@ -8,11 +8,18 @@ from pathlib import Path
 import numpy as np
 import pytest
 from helpers.toy import compile_toy, toy_circuit, toy_device
+from qiskit import QuantumCircuit
+from qiskit.circuit.library import SXGate
+from qiskit.quantum_info import DensityMatrix, Kraus
+from qiskit_aer.noise import NoiseModel, amplitude_damping_error
+from qiskit_aer.noise.passes import LocalNoisePass
 
+from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.emulate.channels import EffectCache
 from noiselab.emulate.contract import dm_distributions, effect_rotation, sv_batch_mean_distributions
 from noiselab.emulate.engine import _basis_tables, emulate_bases, emulate_circuit_bases
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+from noiselab.emulate.trajectory import trajectory_distributions, unravelled_circuit
 
 DEVICES = Path(__file__).resolve().parents[1] / "configs" / "devices"
 
@@ -138,3 +145,33 @@ def test_trajectory_batch_options_are_checked() -> None:
             num_trajectories=10,
             num_batches=1,
         )
+
+
+def test_gate_triggered_noise_pass_is_applied_without_delays() -> None:
+    """A noise pass on a gate (not a delay) is written into a circuit that has no delays.
+
+    The pass adds amplitude damping (probability 0.3) after every sx; the trajectory average must
+    equal the channel applied to the density matrix by qiskit.quantum_info.
+    """
+    # source: qiskit.quantum_info (DensityMatrix evolved by the Kraus channel), independent of aer
+    damp = amplitude_damping_error(0.3)
+    nm = NoiseModel(basis_gates=["rz", "sx", "x", "cx"])
+    add_noise_pass(nm, LocalNoisePass(lambda op, qubits: damp, op_types=SXGate, method="append"))
+    qc = QuantumCircuit(1)
+    qc.sx(0)
+    qc.sx(0)  # sx.sx = x: |1> before damping
+    noisy = unravelled_circuit(qc, nm)
+    assert sum(inst.operation.name == "kraus" for inst in noisy.data) == 2
+
+    rho = DensityMatrix.from_label("0")
+    for _ in range(2):
+        rho = rho.evolve(SXGate()).evolve(Kraus(damp.to_quantumchannel()))
+    p1 = float(np.real(rho.data[1, 1]))
+    z = [np.diag([1.0, 0.0]).astype(complex), np.diag([0.0, 1.0]).astype(complex)]
+    out = trajectory_distributions(
+        qc, nm, [0], [[np.array(z)]], [["Z"]], num_trajectories=4000, num_batches=4, seed=7
+    )
+    mean = out.mean(axis=0)[0]
+    se = out[:, 0, 1].std(ddof=1) / 2.0
+    assert abs(mean[1] - p1) < 5 * se + 1e-3
+    assert p1 < 0.9  # the pass changed the outcome: without it P(1) would be 1

@@ -76,15 +76,15 @@ def _hand_context():
 
 def test_realized_scale_is_the_ratio_of_estimated_circuit_error_by_hand() -> None:
     from noiselab.mitigate.experiment import realized_scales
-    from noiselab.mitigate.variants import CircuitVariant
+    from noiselab.mitigate.variants import folded
 
     ctx = _hand_context()
     # hand computation: 3 sx at 1e-3 and 1 cz at 1e-2 = 0.013; folding the cz to 3 (5) copies
     # gives 0.033 (0.053): realized scales 0.033/0.013 and 0.053/0.013, below the nominal 3, 5;
     # folding the whole circuit triples every gate: exactly 3
-    two3 = realized_scales(ctx, CircuitVariant(fold_method="two_qubit_gates", fold_scale=3))
-    two5 = realized_scales(ctx, CircuitVariant(fold_method="two_qubit_gates", fold_scale=5))
-    whole3 = realized_scales(ctx, CircuitVariant(fold_method="whole_circuit", fold_scale=3))
+    two3 = realized_scales(ctx, folded("two_qubit_gates", 3))
+    two5 = realized_scales(ctx, folded("two_qubit_gates", 5))
+    whole3 = realized_scales(ctx, folded("whole_circuit", 3))
     assert two3["total"] == pytest.approx(0.033 / 0.013, rel=1e-9)
     assert two5["total"] == pytest.approx(0.053 / 0.013, rel=1e-9)
     assert two3["two_qubit"] == pytest.approx(3.0) and two3["single_qubit"] == pytest.approx(1.0)

@@ -10,8 +10,8 @@ from pathlib import Path
 import numpy as np
 import pytest
 
-from noiselab.mitigate.folding import two_qubit_gate_folding, whole_circuit_folding
-from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
+from noiselab.device.folding import two_qubit_gate_folding, whole_circuit_folding
+from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant, folded, stretched
 
 ROOT = Path(__file__).resolve().parents[1]
 TYPICAL = ROOT / "configs" / "devices" / "amberline-10.yaml"  # "typical current" invented chip
@@ -191,11 +191,9 @@ def test_folded_variants_in_native_gates(h2_ctx):
 
     ctx, runner = h2_ctx
     n2 = ctx.compiled.two_qubit_count
-    two, _, reached = variant_inputs(
-        ctx, CircuitVariant(fold_method="two_qubit_gates", fold_scale=3)
-    )
+    two, _, reached = variant_inputs(ctx, folded("two_qubit_gates", 3))
     assert two.two_qubit_count == 3 * n2 and reached == 3.0
-    whole, _, _ = variant_inputs(ctx, CircuitVariant(fold_method="whole_circuit", fold_scale=3))
+    whole, _, _ = variant_inputs(ctx, folded("whole_circuit", 3))
     assert whole.two_qubit_count == 3 * n2
     assert whole.duration_ns > 2.5 * ctx.compiled.duration_ns  # re-scheduled, idle time included
     natives = set(ctx.profile.single_qubit_gates) | {ctx.profile.two_qubit_gate, "delay"}
@@ -228,13 +226,11 @@ def test_variant_key_material_separates_simulations(h2_ctx):
 
     ctx, _ = h2_ctx
     base = variant_key_material(ctx, CircuitVariant())
-    same = variant_key_material(ctx, CircuitVariant(noise_scale=1.0, scaled_channels=("readout",)))
-    stretched = variant_key_material(
-        ctx, CircuitVariant(noise_scale=2.0, scaled_channels=STRETCH_CHANNELS)
-    )
-    folded = variant_key_material(ctx, CircuitVariant(fold_method="whole_circuit", fold_scale=3))
-    dump = [json.dumps(m, sort_keys=True) for m in (base, same, stretched, folded)]
+    same = variant_key_material(ctx, stretched(1.0, ("readout",)))
+    stretch = variant_key_material(ctx, stretched(2.0, STRETCH_CHANNELS))
+    fold = variant_key_material(ctx, folded("whole_circuit", 3))
+    dump = [json.dumps(m, sort_keys=True) for m in (base, same, stretch, fold)]
     assert dump[0] == dump[1]
     assert len(set(dump[1:])) == 3
-    assert base["circuit_qpy_sha256"] != folded["circuit_qpy_sha256"]
-    assert base["profile"] != stretched["profile"]
+    assert base["circuit_qpy_sha256"] != fold["circuit_qpy_sha256"]
+    assert base["profile"] != stretch["profile"]

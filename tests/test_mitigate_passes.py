@@ -82,7 +82,7 @@ def setup(h2, ground, readout_matrix):
     ctx = _ctx(h2)
 
     def state(v):
-        return _noisy_state(ground, v.noise_scale * v.fold_scale)
+        return _noisy_state(ground, v.nominal_scale)
 
     runner = make_synthetic_runner(state, ctx.measured_bases, readout_matrix)
     calibrator = make_synthetic_calibrator(readout_matrix, 4)
@@ -342,7 +342,7 @@ def test_sampled_spread_matches_analytic_error(h2, ground, readout_matrix, name)
     ctx = _ctx(h2, shots=6000)
 
     def state(v):
-        return _noisy_state(ground, v.noise_scale * v.fold_scale)
+        return _noisy_state(ground, v.nominal_scale)
 
     runner = make_synthetic_runner(state, ctx.measured_bases, readout_matrix)
     cal = make_synthetic_calibrator(readout_matrix, 4)

@@ -161,11 +161,12 @@ def test_second_assess_runs_no_simulation(cli_runs: dict) -> None:
 
 def test_cache_keys_follow_what_is_simulated(study, context, tmp_path: Path) -> None:
     from noiselab.mitigate.variants import CircuitVariant
+    from noiselab.mitigate.variants import stretched as make_stretched
     from noiselab.study.cache import CachingRunner, open_cache
     from noiselab.study.context import build_context
 
     store = open_cache(tmp_path / "s.db")
-    base, stretched = CircuitVariant(), CircuitVariant(noise_scale=2.0)
+    base, stretched = CircuitVariant(), make_stretched(2.0)
     r1 = CachingRunner(context.experiment, store)
     # the same study prepared again (new qiskit circuit objects, new auto names): same keys
     again = build_context(study, cache=store)

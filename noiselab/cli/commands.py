@@ -25,3 +25,6 @@ REGISTRY.append(shipped_cmd.register)
 from noiselab.cli import scan_cmds  # noqa: E402  (compare, scan)
 
 REGISTRY.append(scan_cmds.register)
+from noiselab.cli import rehearse_cmd  # noqa: E402  (rehearse)
+
+REGISTRY.append(rehearse_cmd.register)

@@ -9,7 +9,10 @@ from noiselab.common.lazy import lazy_exports
 
 _EXPORTS = {
     "DeviceProfile": "profile",
-    "CHANNELS": "profile",
+    "CHANNELS": "channel_registry",
+    "CHANNEL_SPECS": "channel_registry",
+    "DeviceModel": "model",
+    "resolve_device": "model",
     "load_profile": "profile",
     "profile_from_mapping": "profile",
     "profile_warnings": "profile",

@@ -40,6 +40,7 @@ from qiskit_aer.noise.passes import LocalNoisePass
 
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device import thermal
+from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
 
 _UNIT_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
@@ -273,6 +274,72 @@ def attach_idle_relaxation(
 # ---- the noise model ------------------------------------------------------------------------
 
 
+@dataclass(frozen=True)
+class GateRule:
+    """After native ``gate`` on circuit ``qubits`` (physical ``noise.qubits``) acts ``noise``."""
+
+    gate: str
+    qubits: tuple[int, ...]
+    noise: GateNoise
+
+
+@dataclass(frozen=True)
+class NoiseSpec:
+    """The device's noise on a patch, independent of any simulator: one rule per native gate and
+    circuit qubits, and the idle rule (thermal relaxation after every ``delay``, with each circuit
+    qubit's (T1, T2) in us; ``idle_coherence`` is None without idle relaxation)."""
+
+    patch: tuple[int, ...]
+    native_gates: tuple[str, ...]
+    gates: tuple[GateRule, ...]
+    idle_coherence: tuple[tuple[float | None, float | None], ...] | None
+    dt_s: float | None = None
+
+
+def noise_spec(
+    profile: DeviceProfile,
+    patch: Sequence[int],
+    *,
+    idle_relaxation: bool = True,
+    dt_s: float | None = None,
+) -> NoiseSpec:
+    """The noise specification of ``profile`` on ``patch`` (circuit qubit i = ``patch[i]``):
+    every non-virtual single-qubit native on each qubit, the two-qubit gate in both directions of
+    each linked pair, and (``idle_relaxation``, some finite coherence) the idle rule."""
+    patch = check_patch(profile, patch)
+    rules = [
+        GateRule(gate, (i,), gate_noise(profile, gate, (q,)))
+        for i, q in enumerate(patch)
+        for gate in profile.single_qubit_gates
+        if gate not in VIRTUAL_GATES
+    ]
+    g2 = profile.two_qubit_gate
+    rules += [
+        GateRule(g2, (i, j), gate_noise(profile, g2, (qi, qj)))
+        for i, qi in enumerate(patch)
+        for j, qj in enumerate(patch)
+        if i != j and profile.has_pair(qi, qj)
+    ]
+    coherence = tuple((profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in patch)
+    idle = idle_relaxation and any(t != (None, None) for t in coherence)
+    return NoiseSpec(
+        patch, profile.native_gate_names, tuple(rules), coherence if idle else None, dt_s
+    )
+
+
+def noise_model_from_spec(profile: DeviceProfile, spec: NoiseSpec) -> Any:
+    """The qiskit-aer ``NoiseModel`` of a :class:`NoiseSpec` (noiseless rules left out)."""
+    model = NoiseModel(basis_gates=list(spec.native_gates))
+    for rule in spec.gates:
+        err = channel_from_noise(profile, rule.noise)
+        if not err.ideal():
+            model.add_quantum_error(err, rule.gate, list(rule.qubits))
+    if spec.idle_coherence is not None:
+        # aer runs these passes on circuits that contain delays (as NoiseModel.from_backend does)
+        add_noise_pass(model, idle_relaxation_pass(profile, spec.patch, spec.dt_s))
+    return model
+
+
 def build_noise_model(
     profile: DeviceProfile,
     patch: Sequence[int],
@@ -282,31 +349,12 @@ def build_noise_model(
 ) -> Any:
     """qiskit-aer ``NoiseModel`` on circuit qubits 0..k-1, circuit qubit i = physical ``patch[i]``.
 
-    Gate errors on every native gate of the patch (both directions of each linked pair) and,
-    with ``idle_relaxation``, relaxation on delays (a noise pass aer applies at run time).
+    Built from :func:`noise_spec`: gate errors on every native gate of the patch (both directions
+    of each linked pair) and, with ``idle_relaxation``, relaxation on delays (a noise pass aer
+    applies at run time).
     """
-    patch = check_patch(profile, patch)
-    model = NoiseModel(basis_gates=list(profile.native_gate_names))
-    for i, q in enumerate(patch):
-        for gate in profile.single_qubit_gates:
-            if gate in VIRTUAL_GATES:
-                continue
-            err = gate_channel(profile, gate, (q,))
-            if not err.ideal():
-                model.add_quantum_error(err, gate, [i])
-    g2 = profile.two_qubit_gate
-    for i, qi in enumerate(patch):
-        for j, qj in enumerate(patch):
-            if i != j and profile.has_pair(qi, qj):
-                err = gate_channel(profile, g2, (qi, qj))
-                if not err.ideal():
-                    model.add_quantum_error(err, g2, [i, j])
-    if idle_relaxation and any(
-        profile.qubit(q).t1_us is not None or profile.qubit(q).t2_us is not None for q in patch
-    ):
-        # aer runs these passes on circuits that contain delays (as NoiseModel.from_backend does)
-        model._custom_noise_passes.append(idle_relaxation_pass(profile, patch, dt_s))
-    return model
+    spec = noise_spec(profile, patch, idle_relaxation=idle_relaxation, dt_s=dt_s)
+    return noise_model_from_spec(profile, spec)
 
 
 # ---- readout --------------------------------------------------------------------------------

@@ -32,6 +32,7 @@ A profile file looks like this (units are in the key names; rates are probabilit
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
       - {pair: [0, 1], joint_flip: 0.004}
+    repetition_delay_us: 250             # optional; time between shots, reset included
     drift:                               # optional; day-to-day relative standard deviations
       t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
       t2_rel_std: 0.2
@@ -83,22 +84,26 @@ from noiselab.common.errors import InputError, from_validation_error, input_erro
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device import thermal
+from noiselab.device.channel_registry import (
+    CHANNEL_SPECS,
+    CHANNELS,
+    MAX_JOINT_FLIP,
+    MAX_OVER_ROTATION,
+    MAX_READOUT_ERROR,
+    MAX_SINGLE_QUBIT_ERROR,
+    MAX_TWO_QUBIT_ERROR,
+    MAX_ZZ_ANGLE_RAD,
+    check_channels,
+)
+from noiselab.device.model import DeviceModel, resolve_device
 
 SCHEMA_VERSION = 1
 SINGLE_QUBIT_GATES: tuple[str, ...] = ("rz", "sx", "x")
 TWO_QUBIT_GATES: tuple[str, ...] = ("cz", "cx", "ecr")
 VIRTUAL_GATES: frozenset[str] = frozenset({"rz"})
-CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
 ALL_TO_ALL = "all-to-all"
 
-# Physical maxima: a fully depolarizing channel on d dimensions has average infidelity (d-1)/d;
-# a readout worse than a coin toss is a relabelling, not an error.
-MAX_SINGLE_QUBIT_ERROR = 0.5
-MAX_TWO_QUBIT_ERROR = 0.75
-MAX_READOUT_ERROR = 0.5
-MAX_JOINT_FLIP = 0.5
-MAX_OVER_ROTATION = 0.5
-MAX_ZZ_ANGLE_RAD = math.pi
+# physical maxima (MAX_*) and CHANNELS come from noiselab.device.channel_registry
 MAX_QUBITS = 1000
 # Coherence times: a T1 or T2 below 1 ns is shorter than any gate (and a subnormal one breaks
 # the noise model's arithmetic); above 1000 s no qubit has been measured: both are typos.
@@ -331,6 +336,11 @@ class DeviceProfile(BaseModel):
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
     #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
     drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
+    #: time between shots, reset included (us); None: the rehearse job's common-practice
+    #: default. Not part of the noise: excluded like ``drift``
+    repetition_delay_us: float | None = Field(
+        default=None, gt=0, le=1e7, allow_inf_nan=False, exclude=True
+    )
     _source: str = PrivateAttr(default="<profile>")
 
     @field_validator("name", mode="after")
@@ -471,6 +481,10 @@ class DeviceProfile(BaseModel):
             if _norm(*entry.pair) == key:
                 return entry.joint_flip
         return 0.0
+
+    def resolve(self, patch: Iterable[int] | None = None) -> DeviceModel:
+        """The profile on ``patch`` (default: every qubit) as read-only arrays (``DeviceModel``)."""
+        return resolve_device(self, None if patch is None else check_patch(self, patch))
 
     def gate_duration_ns(self, gate: str) -> float:
         """Duration of a native gate in ns (0 for the virtual rz)."""
@@ -751,28 +765,15 @@ def _typo_warnings(profile: DeviceProfile) -> list[str]:
     return out
 
 
-# ---- scaling --------------------------------------------------------------------------------
-
-
-def _scaled_rate(value: float | None, s: float, hi: float) -> float | None:
-    return None if value is None else min(value * s, hi)
-
-
-def _scaled_signed(value: float | None, s: float, hi: float) -> float | None:
-    return None if value is None else max(-hi, min(value * s, hi))
-
-
-def _scaled_time(value: float | None, s: float) -> float | None:
-    if value is None or s == 0.0:
-        return None
-    out = value / s
-    return out if math.isfinite(out) else None  # tiny s: coherence beyond float range
+# ---- scaling ----------------------------------------------------------------------------------
 
 
 def scale_profile(
     profile: DeviceProfile, factor: float, channels: Iterable[str] | None = None
 ) -> DeviceProfile:
     """Scale the noise of chosen channel groups by ``factor`` s >= 0 (``None``: all CHANNELS).
+
+    Each channel's fields and rules come from ``CHANNEL_SPECS`` (``channel_registry``):
 
     * relaxation: T1 and T2 divided by s (s = 0: infinite coherence, stored as ``None``);
     * single_qubit / two_qubit: quoted gate errors times s, clipped at 0.5 / 0.75 (the
@@ -792,55 +793,28 @@ def scale_profile(
         raise input_error(
             None, "noise scale factor", f"{factor!r} is not allowed", "a finite number >= 0"
         )
-    if channels is None:
-        chosen = set(CHANNELS)
-    else:
-        if isinstance(channels, str):
-            channels = [channels]
-        chosen = set(channels)
-        unknown = sorted(chosen - set(CHANNELS))
-        if unknown:
-            raise input_error(
-                None, "channels", f"unknown channel {unknown[0]!r}", ", ".join(CHANNELS)
-            )
+    try:
+        chosen = check_channels(channels)
+    except ValueError as exc:
+        raise input_error(
+            None, "channels", f"unknown channel {str(exc)!r}", ", ".join(CHANNELS)
+        ) from None
 
     data = copy.deepcopy(profile.model_dump(exclude_unset=True))
-    qd = data["qubits"]["default"]
-    q_entries = [qd, *data["qubits"].get("overrides", {}).values()]
-    p_entries = [data["couplers"]["default"], *data["couplers"].get("overrides", [])]
-    if "relaxation" in chosen:
-        for e in q_entries:
-            for key in ("t1_us", "t2_us"):
-                if key in e:
-                    e[key] = _scaled_time(e[key], s)
-        if s == 0.0:  # overrides of infinite times are just the (infinite) default
-            for e in q_entries[1:]:
-                e.pop("t1_us", None)
-                e.pop("t2_us", None)
-    if "single_qubit" in chosen:
-        for e in q_entries:
-            if "gate_error" in e:
-                e["gate_error"] = _scaled_rate(e["gate_error"], s, MAX_SINGLE_QUBIT_ERROR)
-    if "two_qubit" in chosen:
-        for e in p_entries:
-            if "gate_error" in e:
-                e["gate_error"] = _scaled_rate(e["gate_error"], s, MAX_TWO_QUBIT_ERROR)
-    if "coherent" in chosen:
-        for e in q_entries:
-            if "over_rotation_fraction" in e:
-                e["over_rotation_fraction"] = _scaled_signed(
-                    e["over_rotation_fraction"], s, MAX_OVER_ROTATION
-                )
-        for e in p_entries:
-            if "zz_angle_rad" in e:
-                e["zz_angle_rad"] = _scaled_signed(e["zz_angle_rad"], s, MAX_ZZ_ANGLE_RAD)
-    if "readout" in chosen:
-        for e in q_entries:
-            for key in ("flip_0to1", "flip_1to0"):
-                if key in e:
-                    e[key] = _scaled_rate(e[key], s, MAX_READOUT_ERROR)
-        for e in data.get("readout_crosstalk", []):
-            e["joint_flip"] = _scaled_rate(e["joint_flip"], s, MAX_JOINT_FLIP)
+    overrides = list(data["qubits"].get("overrides", {}).values())
+    sections: dict[str, list[dict[str, Any]]] = {
+        "qubit": [data["qubits"]["default"], *overrides],
+        "pair": [data["couplers"]["default"], *data["couplers"].get("overrides", [])],
+        "crosstalk": list(data.get("readout_crosstalk", [])),
+    }
+    for name in chosen:
+        for f in CHANNEL_SPECS[name].fields:
+            for e in sections[f.section]:
+                if f.key in e:
+                    e[f.key] = f.scale(e[f.key], s)
+            if f.rule == "time" and s == 0.0 and f.section == "qubit":
+                for e in overrides:  # an override of an infinite time is the (infinite) default
+                    e.pop(f.key, None)
     try:
         out = DeviceProfile.model_validate(data, context={_CTX_ALLOW_INFINITE: True})
     except ValidationError as exc:  # pragma: no cover - scaling keeps values in range

@@ -26,6 +26,7 @@ from qiskit.quantum_info import SuperOp
 from qiskit.transpiler.exceptions import TranspilerError
 
 from noiselab.common.errors import InputError
+from noiselab.device.aer_adapter import gate_error, instruction_error, run_noise_passes
 
 #: Letters of a measurement basis; 'I' is measured like 'Z'.
 BASIS_LETTERS = ("I", "X", "Y", "Z")
@@ -101,12 +102,7 @@ def _gate_superop_cached(name: str, params: tuple[float, ...]) -> np.ndarray:
 
 def _error_superop(noise_model: object, name: str, qubit: int) -> np.ndarray | None:
     """The noise model's error after gate ``name`` on ``qubit`` (local first, then all-qubit)."""
-    if noise_model is None:
-        return None
-    local = getattr(noise_model, "_local_quantum_errors", {}).get(name, {})
-    err = local.get((qubit,))
-    if err is None:
-        err = getattr(noise_model, "_default_quantum_errors", {}).get(name)
+    err = gate_error(noise_model, name, (qubit,))
     if err is None:
         return None
     if err.num_qubits != 1:
@@ -139,16 +135,15 @@ def qubit_layer_superop(
     for name, params in gates:
         gate = mapping[name]
         qc.append(gate.__class__(*params) if params else gate, [qubit])
-    passes = getattr(noise_model, "_pass_manager", lambda: None)() if noisy else None
-    if passes is not None:
-        qc = passes.run(qc)
+    if noisy:
+        qc = run_noise_passes(qc, noise_model)
     out = np.eye(4, dtype=complex)
     for inst in qc.data:
         op = inst.operation
         if op.name == "delay":
             continue
         if op.name == "quantum_channel":
-            out = SuperOp(op._quantum_error).data @ out
+            out = SuperOp(instruction_error(op)).data @ out
             continue
         out = _gate_superop(op.name, [float(p) for p in op.params]) @ out
         if noisy:

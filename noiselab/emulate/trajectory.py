@@ -22,6 +22,7 @@ from qiskit.quantum_info import Kraus, SuperOp
 from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError
+from noiselab.device.aer_adapter import gate_error, instruction_error, run_noise_passes
 from noiselab.emulate.contract import (
     clean_probabilities,
     effect_rotation,
@@ -35,6 +36,8 @@ def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
 
     Same channels as qiskit-aer attaches at run time: the noise model's passes (relaxation on
     delays) first, then after each gate its local error on those qubits, else the all-qubit one.
+    The passes run on every circuit (aer itself skips circuits without delays), so a
+    gate-triggered pass is never skipped.
     Needed because qiskit-aer 0.18's statevector method failed on some composed two-qubit errors
     of the device layer when given as a noise model ("heevx ... not hermitian", "Kraus is
     empty"); explicit ``kraus`` instructions (canonical Kraus operators from qiskit.quantum_info)
@@ -42,9 +45,7 @@ def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
     """
     if noise_model is None:
         return circuit
-    passes = noise_model._pass_manager()
-    if passes is not None and any(inst.operation.name == "delay" for inst in circuit.data):
-        circuit = passes.run(circuit)
+    circuit = run_noise_passes(circuit, noise_model)
     out = QuantumCircuit(circuit.num_qubits)
     cache: dict[tuple[str, tuple[int, ...]], Any] = {}
     for inst in circuit.data:
@@ -53,14 +54,12 @@ def unravelled_circuit(circuit: Any, noise_model: Any) -> Any:
         if op.name in ("delay", "barrier"):
             continue
         if op.name == "quantum_channel":
-            out.append(Kraus(SuperOp(op._quantum_error)).to_instruction(), list(qs))
+            out.append(Kraus(SuperOp(instruction_error(op))).to_instruction(), list(qs))
             continue
         out.append(op, list(qs))
         key = (op.name, qs)
         if key not in cache:
-            err = noise_model._local_quantum_errors.get(op.name, {}).get(qs)
-            if err is None:
-                err = noise_model._default_quantum_errors.get(op.name)
+            err = gate_error(noise_model, op.name, qs)
             cache[key] = None if err is None else Kraus(SuperOp(err)).to_instruction()
         if cache[key] is not None:
             out.append(cache[key], list(qs))

@@ -10,7 +10,6 @@ scaled profile) pair through :func:`variant_inputs`; :func:`make_runner` and
 from __future__ import annotations
 
 import contextlib
-import dataclasses
 import functools
 import hashlib
 import io
@@ -20,21 +19,14 @@ from dataclasses import dataclass
 from typing import Any, Literal
 
 import numpy as np
-from qiskit import qpy, transpile
+from qiskit import qpy
 
-from noiselab.common.errors import InputError, NoiselabError
+from noiselab.common.errors import InputError
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
-from noiselab.device.compile import (
-    build_target,
-    circuit_duration_ns,
-    estimate_error_budget,
-    estimate_fidelity,
-)
-from noiselab.device.profile import scale_profile
+from noiselab.device.transforms import TransformRealizer
 from noiselab.emulate.calibration import calibration_distributions
 from noiselab.emulate.engine import choose_method, emulate_bases
 from noiselab.mitigate import symmetry
-from noiselab.mitigate.folding import fold_circuit
 from noiselab.mitigate.plan import MeasurementPlan, build_plan
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD, CircuitVariant
 
@@ -114,6 +106,24 @@ class ExperimentContext:
         plan_bases = tuple(self.plan.bases)
         return plan_bases + tuple(b for b in extra if b not in plan_bases)
 
+    @functools.cached_property
+    def realizer(self) -> TransformRealizer:
+        """Applies circuit variants' transforms and keeps what it realized, for the lifetime of
+        this context (a copy made by ``dataclasses.replace`` or pickling starts empty)."""
+        return TransformRealizer(self.compiled, self.profile)
+
+    @functools.cached_property
+    def calibrator(self) -> Calibrator:
+        """The context's :func:`make_calibrator`, shared by every recipe run on it."""
+        return make_calibrator(self)
+
+    def __getstate__(self) -> dict[str, Any]:
+        # the memo of realized circuits and calibrations stays with this process
+        return {k: v for k, v in self.__dict__.items() if k not in ("realizer", "calibrator")}
+
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        self.__dict__.update(state)
+
 
 def _has_symmetries(problem: Any) -> bool:
     return bool(getattr(problem, "symmetries", None))
@@ -141,106 +151,24 @@ def build_context(
     )
 
 
-# ---- circuit variants: folded / scaled inputs, runner, cache keys -----------------------------
+# ---- circuit variants: transformed inputs, runner, cache keys ---------------------------------
 
 
-_TARGETS: dict[tuple[str, tuple[int, ...]], Any] = {}
-
-
-def fold_compiled(compiled: Any, profile: Any, method: str, scale: float) -> tuple[Any, float]:
-    """(CompiledCircuit folded in native gates and re-scheduled, scale actually reached).
-
-    Re-scheduling transpiles at optimization level 0 on the patch's target with the trivial
-    layout (nothing is optimized away, idle delays recomputed); the two-qubit count is checked.
-    """
-    res = fold_circuit(compiled.circuit, method, scale)
-    key = (profile.model_dump_json(), tuple(compiled.patch))
-    if key not in _TARGETS:  # building a target evaluates every gate channel: keep it
-        _TARGETS.clear()
-        _TARGETS[key] = build_target(profile, compiled.patch)
-    target = _TARGETS[key]
-    k = compiled.circuit.num_qubits
-    out = transpile(
-        res.circuit,
-        target=target,
-        initial_layout=list(range(k)),
-        optimization_level=0,
-        scheduling_method="alap",
-        seed_transpiler=0,
-    )
-    n2 = int(out.count_ops().get(profile.two_qubit_gate, 0))
-    if n2 != res.n_two_qubit:
-        raise NoiselabError(
-            f"folding: re-scheduling changed the two-qubit count ({n2}, expected {res.n_two_qubit})"
-        )
-    depth = int(out.depth(filter_function=lambda i: i.operation.name not in ("delay", "barrier")))
-    folded = dataclasses.replace(
-        compiled,
-        circuit=out,
-        two_qubit_count=n2,
-        depth=depth,
-        duration_ns=circuit_duration_ns(out, profile),
-        estimated_fidelity=estimate_fidelity(out, profile, compiled.patch),
-    )
-    scale_reached = res.actual_scale
-    return folded, scale_reached
-
-
-@functools.lru_cache(maxsize=256)
 def variant_inputs(ctx: ExperimentContext, variant: CircuitVariant) -> tuple[Any, Any, float]:
     """(CompiledCircuit, DeviceProfile, scale factor reached) that simulate ``variant``."""
-    profile = ctx.profile
-    if variant.noise_scale != 1.0:
-        profile = scale_profile(ctx.profile, variant.noise_scale, variant.scaled_channels)
-    compiled = ctx.compiled
-    scale = variant.noise_scale
-    if variant.fold_method != "none":
-        if compiled is None:  # synthetic contexts (tests): nominal scale
-            return compiled, profile, scale * variant.fold_scale
-        compiled, reached = fold_compiled(
-            compiled, profile, variant.fold_method, variant.fold_scale
-        )
-        scale *= reached
-    return compiled, profile, scale
+    real = ctx.realizer.realize(variant.transforms)
+    return real.compiled, real.profile, real.scale
 
 
 def actual_scale(ctx: ExperimentContext, variant: CircuitVariant) -> float:
     """Noise scale factor of a variant as reached (folded gate counts are integers)."""
-    if variant.fold_method == "none":
-        return variant.noise_scale
-    return variant_inputs(ctx, variant)[2]
-
-
-@functools.lru_cache(maxsize=256)
-def error_budget(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float] | None:
-    """Estimated error per kind of operation of a variant's compiled circuit on the context's
-    profile (``device.compile.estimate_error_budget``); None without a compiled circuit."""
-    compiled = variant_inputs(ctx, variant)[0]
-    if compiled is None or ctx.profile is None:
-        return None
-    return estimate_error_budget(compiled.circuit, ctx.profile, compiled.patch)
+    return ctx.realizer.realize(variant.transforms).scale
 
 
 def realized_scales(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, float]:
-    """The noise scale a variant realizes relative to the base circuit: ``"total"`` and one
-    entry per kind of operation ("two_qubit", "single_qubit", "idle"; absent where the base
-    circuit has no such error).
-
-    Folded circuits: the ratio of the compiled circuits' estimated error (sum of the
-    operations' average infidelities) to the base circuit's, times any stretch factor. Stretched
-    profiles and contexts without a compiled circuit: the nominal scale.
-    """
-    nominal = actual_scale(ctx, variant)
-    if variant.fold_method == "none":
-        return {"total": nominal}
-    base, folded = error_budget(ctx, CircuitVariant()), error_budget(ctx, variant)
-    if base is None or folded is None or sum(base.values()) <= 0.0:
-        return {"total": nominal}
-    out = {"total": variant.noise_scale * sum(folded.values()) / sum(base.values())}
-    for kind, err in base.items():
-        if err > 0.0:
-            out[kind] = variant.noise_scale * folded[kind] / err
-    return out
+    """The noise scale a variant realizes relative to the base circuit
+    (``TransformRealizer.realized_scales``): ``"total"`` and one entry per kind of operation."""
+    return ctx.realizer.realized_scales(variant.transforms)
 
 
 def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dict[str, Any]:
@@ -300,12 +228,6 @@ def make_runner(ctx: ExperimentContext) -> Runner:
         return memo[variant]
 
     return runner
-
-
-@functools.lru_cache(maxsize=64)
-def default_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """The context's :func:`make_calibrator`, shared by every recipe run on it."""
-    return make_calibrator(ctx)
 
 
 def make_calibrator(ctx: ExperimentContext) -> Calibrator:

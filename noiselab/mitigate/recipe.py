@@ -35,7 +35,7 @@ from noiselab.mitigate.base import (
     MitigationPass,
 )
 from noiselab.mitigate.evaluate import CalibrationSource, EstimateMemo, evaluate
-from noiselab.mitigate.experiment import Calibrator, ExperimentContext, Runner, default_calibrator
+from noiselab.mitigate.experiment import Calibrator, ExperimentContext, Runner
 from noiselab.mitigate.registry import PASSES, make_pass
 from noiselab.mitigate.result import RecipeResult, plain_json
 from noiselab.mitigate.steps import (
@@ -150,7 +150,7 @@ def run_recipe(
     """Apply a recipe to the runner's data and score it (see the module docstring).
 
     ``calibrator(variant, states)``: exact readout-calibration distributions; default
-    :func:`make_calibrator` (emulate's calibration circuits on ``ctx.profile``).
+    ``ctx.calibrator`` (emulate's calibration circuits on ``ctx.profile``, kept by the context).
     ``memo``: an :class:`EstimateMemo` shared by the recipes of one job (None: nothing shared);
     the result is the same with and without it, sampled evaluations never read it.
     """
@@ -158,7 +158,7 @@ def run_recipe(
     for i, p in enumerate(parsed.passes):
         p.check(ctx, f"recipe[{i}]")
     variants, bases = parsed.variants(ctx), parsed.bases(ctx)
-    calibrator = calibrator or default_calibrator(ctx)
+    calibrator = calibrator or ctx.calibrator
 
     data = measure(runner, variants, bases)
     # exact distributions everywhere -> influences, allocation, analytic variance; the bias is

@@ -1,16 +1,32 @@
-"""Circuit variants: the noise-amplified versions of one experiment that passes may ask for."""
+"""Circuit variants: the transformed versions of one experiment that passes may ask for.
+
+A :class:`CircuitVariant` is a tuple of circuit transforms (``noiselab.device.transforms``),
+applied in order to the experiment's compiled circuit and profile. The transforms are an open
+set: ``CircuitVariant((MyTransform(...),))`` works for any registered transform.
+"""
 
 from __future__ import annotations
 
+from collections.abc import Sequence
 from dataclasses import dataclass
-from typing import Literal
+from typing import Any
 
-FoldMethod = Literal["none", "whole_circuit", "two_qubit_gates"]
+from noiselab.device.transforms import (
+    STRETCH_CHANNELS,
+    CircuitTransform,
+    GateFolding,
+    NoiseStretch,
+    untransformed_key,
+)
 
-# every channel group scale_profile knows (device layer contract)
-ALL_CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
-# pulse stretching slows the gates, not the measurement: readout stays as calibrated
-STRETCH_CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent")
+__all__ = [
+    "DEFAULT_AMPLIFICATION_SPREAD",
+    "STRETCH_CHANNELS",
+    "CircuitVariant",
+    "folded",
+    "stretched",
+]
+
 #: Relative standard deviation of the realized noise scale of each amplified point (zero-noise
 #: extrapolation). Common practice, no source: stretched pulses are recalibrated and folded
 #: gates do not scale every error alike, so the realized amplification is known to a few
@@ -20,60 +36,53 @@ DEFAULT_AMPLIFICATION_SPREAD = 0.02
 
 @dataclass(frozen=True)
 class CircuitVariant:
-    """One circuit to emulate: the device profile scaled by ``noise_scale`` on ``scaled_channels``
-    (None: all channels) and the compiled circuit folded by ``fold_method`` to ``fold_scale``."""
+    """One circuit to emulate: the experiment with ``transforms`` applied in order (identity
+    transforms are dropped, so that equal simulations compare and hash equal)."""
 
-    noise_scale: float = 1.0
-    scaled_channels: tuple[str, ...] | None = None
-    fold_method: FoldMethod = "none"
-    fold_scale: float = 1.0
+    transforms: tuple[CircuitTransform, ...] = ()
 
     def __post_init__(self) -> None:
-        # normalize so that equal simulations compare (and hash) equal
-        object.__setattr__(self, "noise_scale", float(self.noise_scale))
-        object.__setattr__(self, "fold_scale", float(self.fold_scale))
-        if self.scaled_channels is not None:
-            chans = tuple(sorted(set(self.scaled_channels)))
-            if chans == tuple(sorted(ALL_CHANNELS)):
-                chans = None
-            object.__setattr__(self, "scaled_channels", chans)
-        if self.noise_scale == 1.0:
-            object.__setattr__(self, "scaled_channels", None)
-        if self.fold_method == "none":
-            object.__setattr__(self, "fold_scale", 1.0)
-        elif self.fold_scale == 1.0:
-            object.__setattr__(self, "fold_method", "none")
+        kept = tuple(t for t in self.transforms if not t.is_identity)
+        object.__setattr__(self, "transforms", kept)
 
     @property
     def is_base(self) -> bool:
-        return self.noise_scale == 1.0 and self.fold_method == "none"
+        return not self.transforms
 
     @property
-    def scales_readout(self) -> bool:
-        if self.noise_scale == 1.0:
-            return False
-        return self.scaled_channels is None or "readout" in self.scaled_channels
+    def nominal_scale(self) -> float:
+        """The product of the transforms' nominal noise scales."""
+        scale = 1.0
+        for t in self.transforms:
+            scale *= t.nominal_scale
+        return scale
 
     def calibration_variant(self) -> CircuitVariant:
         """The variant whose readout calibration circuits see (folding never touches readout)."""
-        if self.scales_readout:
-            return CircuitVariant(noise_scale=self.noise_scale, scaled_channels=("readout",))
-        return CircuitVariant()
+        seen = (t.calibration() for t in self.transforms)
+        return CircuitVariant(tuple(t for t in seen if t is not None))
 
     def label(self) -> str:
         """Short, stable text for tables and keys."""
-        parts = []
-        if self.noise_scale != 1.0:
-            chans = "all" if self.scaled_channels is None else "+".join(self.scaled_channels)
-            parts.append(f"stretch={self.noise_scale:g}[{chans}]")
-        if self.fold_method != "none":
-            parts.append(f"folded_{self.fold_method}={self.fold_scale:g}")
-        return ",".join(parts) or "base"
+        return ",".join(t.label() for t in self.transforms) or "base"
 
-    def as_dict(self) -> dict:
-        return {
-            "noise_scale": self.noise_scale,
-            "scaled_channels": None if self.scaled_channels is None else list(self.scaled_channels),
-            "fold_method": self.fold_method,
-            "fold_scale": self.fold_scale,
-        }
+    def as_dict(self) -> dict[str, Any]:
+        """Cache-key material: the untransformed fields, updated by each transform's; with
+        several transforms also their sequence (order and repeats matter)."""
+        out = untransformed_key()
+        for t in self.transforms:
+            out.update(t.key_fields())
+        if len(self.transforms) > 1:
+            out["sequence"] = [t.key_fields() for t in self.transforms]
+        return out
+
+
+def stretched(scale: float, channels: Sequence[str] | None = None) -> CircuitVariant:
+    """The device's noise scaled by ``scale`` on ``channels`` (None: all)."""
+    chans = None if channels is None else tuple(channels)
+    return CircuitVariant((NoiseStretch(scale, chans),))
+
+
+def folded(method: str, scale: float) -> CircuitVariant:
+    """The circuit folded by ``method`` ("whole_circuit" | "two_qubit_gates") to ``scale``."""
+    return CircuitVariant((GateFolding(method, scale),))

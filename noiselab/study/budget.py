@@ -14,6 +14,7 @@ import time
 from collections.abc import Callable
 from typing import Any
 
+from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
 from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.context import build_context
@@ -26,7 +27,7 @@ from noiselab.study.sweep import (
     scan_fields,
 )
 
-CHANNELS: tuple[str, ...] = ("relaxation", "single_qubit", "two_qubit", "coherent", "readout")
+__all__ = ["CHANNELS", "BudgetResult", "BudgetRow", "budget"]
 
 
 @dataclasses.dataclass(frozen=True)

@@ -292,11 +292,15 @@ def replace_experiment(experiment: Any, **changes: Any) -> Any:
     """``dataclasses.replace`` of an ExperimentContext that keeps its computed
     ``measured_bases`` when neither the plan, the problem nor ``verification_bases`` change
     (the verification bases take a noticeable time to derive; a new compile or profile does
-    not change them)."""
+    not change them), and its realized circuit transforms when neither ``compiled`` nor
+    ``profile`` change."""
     out = dataclasses.replace(experiment, **changes)
     known = experiment.__dict__.get("measured_bases")
     if known is not None and not {"plan", "problem", "verification_bases"} & changes.keys():
         out.__dict__["measured_bases"] = known
+    realizer = experiment.__dict__.get("realizer")  # realized transforms: circuit and profile
+    if realizer is not None and not {"compiled", "profile"} & changes.keys():
+        out.__dict__["realizer"] = realizer
     return out
 
 

@@ -39,6 +39,7 @@ from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
 from noiselab.study.knobs import KNOB_ALIASES, KNOBS
+from noiselab.study.rehearse_spec import RehearseSettings
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
 #: Most points of one sweep (each point is a full set of simulations).
@@ -258,6 +259,7 @@ class StudyFile(_Strict):
     sweep: SweepDefaults | None = None
     scan: dict[str, Any] | None = None  # validated by noiselab.study.scan (ScanSection)
     emulation: EmulationSettings = EmulationSettings()
+    rehearse: RehearseSettings | None = None
 
     @field_validator("name")
     @classmethod
@@ -376,6 +378,7 @@ class Study:
     raw: dict[str, Any] = field(default_factory=dict, repr=False, compare=False)
     compile_seeds: int = 8  # transpiler seeds 0..compile_seeds-1
     compile_bias_spread: bool = True
+    rehearse: RehearseSettings | None = None
 
     @property
     def transpiler_seeds(self) -> tuple[int, ...]:
@@ -584,6 +587,8 @@ def study_from_mapping(
                 raise input_error(
                     src, f"sweep.recipes[{i}]", f"unknown recipe {name!r}", ", ".join(recipes)
                 )
+    if spec.rehearse is not None:
+        _check_rehearse(spec.rehearse, src, recipes)
     return Study(
         name=spec.name,
         source=src_path,
@@ -610,7 +615,21 @@ def study_from_mapping(
         description=spec.description,
         emulation=spec.emulation,
         raw=dict(data),
+        rehearse=spec.rehearse,
     )
+
+
+def _check_rehearse(section: RehearseSettings, src: str, recipes: Mapping[str, Any]) -> None:
+    """The rehearse section's recipe keys: a valid in-loop recipe, a known final recipe."""
+    if section.loop_recipe is not None:
+        validate_recipe(section.loop_recipe, src, "rehearse.loop_recipe")
+    if section.final_recipe is not None and section.final_recipe not in recipes:
+        raise input_error(
+            src,
+            "rehearse.final_recipe",
+            f"unknown recipe {section.final_recipe!r}",
+            ", ".join(recipes),
+        )
 
 
 def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | LayeredAnsatz:

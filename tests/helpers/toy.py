@@ -19,6 +19,7 @@ from qiskit.transpiler import InstructionProperties, Target
 from qiskit_aer.noise import NoiseModel, depolarizing_error, thermal_relaxation_error
 from qiskit_aer.noise.passes import RelaxationNoisePass
 
+from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.emulate.channels import BasisLayerSpec
 from noiselab.emulate.readout import assignment_matrix
 
@@ -67,7 +68,7 @@ def toy_device(
                 rb = thermal_relaxation_error(t1[b], t2[b], CX_NS * 1e-9)
                 err = depolarizing_error(p2 * scale, 2).compose(rb.expand(ra))
                 nm.add_quantum_error(err, ["cx"], [a, b])
-        nm._custom_noise_passes.append(RelaxationNoisePass(t1, t2, op_types=[Delay]))
+        add_noise_pass(nm, RelaxationNoisePass(t1, t2, op_types=[Delay]))
     target = Target(num_qubits=k, dt=None)
     theta = Parameter("theta")
     target.add_instruction(

@@ -42,14 +42,15 @@ from pydantic import Field, field_validator, model_validator
 
 from noiselab.common.counts import Count
 from noiselab.common.units import HA_TO_MHA
+from noiselab.device.channel_registry import CHANNELS
 from noiselab.mitigate.base import STAGE_COMBINE, Combined, MitigationPass, PassOptions, Workspace
 from noiselab.mitigate.estimate import Estimate
 from noiselab.mitigate.experiment import actual_scale, realized_scales
 from noiselab.mitigate.fits import ZeroNoiseFit, fit_through, scale_sensitivity
 from noiselab.mitigate.reports import PassReport, ScoredRun
-from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant
+from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant, folded, stretched
 
-ChannelName = Literal["relaxation", "single_qubit", "two_qubit", "coherent", "readout"]
+ChannelName = Literal[CHANNELS]  # type: ignore[valid-type]  # the device registry's names
 MIN_POINTS = {"linear": 2, "richardson": 2, "exponential": 3}
 CURVE_POINTS = 91  # samples of the reported fitted curve on [0, largest scale]
 #: Largest noise scale factor: beyond about 100 x the device's noise every circuit is close to
@@ -223,9 +224,9 @@ class ExtrapolatePass(MitigationPass):
             chans = STRETCH_CHANNELS if o.channels is None else o.channels
             off = float(getattr(ctx, "amplification_offset", 0.0))
             emulated = [c if c == 1.0 else c * (1.0 + off) for c in o.scales]
-            return tuple(CircuitVariant(noise_scale=c, scaled_channels=chans) for c in emulated)
+            return tuple(stretched(c, chans) for c in emulated)
         # the fold method is named as the amplifier: "whole_circuit" or "two_qubit_gates"
-        return tuple(CircuitVariant(fold_method=o.amplifier, fold_scale=c) for c in o.scales)
+        return tuple(folded(o.amplifier, c) for c in o.scales)
 
     def shot_split(self) -> Literal["equal", "weighted"]:
         return self.options.shot_split

@@ -7,17 +7,23 @@ two-qubit gate G, one more fold on an evenly spread selection of them for fracti
 written in native gates
 (cz, cx, ecr, x are self-inverse; rz(t)^dag = rz(-t); sx^dag = rz(pi) sx rz(pi) up to a global
 phase), so the folded circuit stays in the device's gate set and nothing cancels the folds.
-Delays are dropped before folding: the caller re-schedules the folded circuit.
+Delays are dropped before folding; :func:`reschedule` re-schedules the folded circuit on the
+device (the transform that folds is ``device.transforms.GateFolding``).
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
 from dataclasses import dataclass
+from typing import Any
 
-from qiskit import QuantumCircuit
+from qiskit import QuantumCircuit, transpile
 from qiskit.circuit import CircuitInstruction, Instruction
 from qiskit.circuit.library import RZGate, SXGate
+
+from noiselab.common.errors import NoiselabError
+from noiselab.device.compile import circuit_duration_ns, estimate_fidelity
 
 _SELF_INVERSE = {"cz", "cx", "ecr", "x", "y", "z", "h", "id", "swap", "ccx", "cy"}
 _NEGATE_ANGLE = {"rz", "rx", "ry", "p", "u1", "rzz", "rxx", "ryy", "rzx", "cp", "crz", "crx", "cry"}
@@ -178,3 +184,43 @@ def fold_circuit(circuit: QuantumCircuit, method: str, scale: float) -> FoldResu
     if method == "two_qubit_gates":
         return two_qubit_gate_folding(circuit, scale)
     raise ValueError(f"unknown fold method {method!r}")
+
+
+def reschedule(
+    circuit: QuantumCircuit,
+    like: Any,
+    profile: Any,
+    target: Any,
+    *,
+    expected_two_qubit: int | None = None,
+) -> Any:
+    """``like`` (a CompiledCircuit) with ``circuit`` re-scheduled in its place.
+
+    Transpiles at optimization level 0 on the patch's ``target`` with the trivial layout
+    (nothing is optimized away, idle delays recomputed); the two-qubit count is checked
+    against ``expected_two_qubit`` when given.
+    """
+    k = like.circuit.num_qubits
+    out = transpile(
+        circuit,
+        target=target,
+        initial_layout=list(range(k)),
+        optimization_level=0,
+        scheduling_method="alap",
+        seed_transpiler=0,
+    )
+    n2 = int(out.count_ops().get(profile.two_qubit_gate, 0))
+    if expected_two_qubit is not None and n2 != expected_two_qubit:
+        raise NoiselabError(
+            f"folding: re-scheduling changed the two-qubit count ({n2}, expected "
+            f"{expected_two_qubit})"
+        )
+    depth = int(out.depth(filter_function=lambda i: i.operation.name not in ("delay", "barrier")))
+    return dataclasses.replace(
+        like,
+        circuit=out,
+        two_qubit_count=n2,
+        depth=depth,
+        duration_ns=circuit_duration_ns(out, profile),
+        estimated_fidelity=estimate_fidelity(out, profile, like.patch),
+    )

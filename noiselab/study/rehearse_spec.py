@@ -1,0 +1,60 @@
+"""The ``rehearse:`` section of a study file (every key optional; defaults are small, so the
+demo rehearsal runs in seconds)."""
+
+from __future__ import annotations
+
+from typing import Any, Literal
+
+from pydantic import BaseModel, ConfigDict, Field, StrictInt
+
+from noiselab.mitigate.optimizers import (
+    CobylaOptions,
+    NelderMeadOptions,
+    OptimizerName,
+    ParameterShiftOptions,
+    SpsaOptions,
+)
+
+#: the in-loop recipe when the study names none: readout correction + symmetry verification
+DEFAULT_LOOP_RECIPE: tuple[dict[str, Any], ...] = (
+    {"pass": "readout", "method": "per_qubit_inverse"},
+    {"pass": "postselect", "mode": "verify"},
+)
+#: time between shots (reset included) when the profile states none; superconducting chips:
+#: a few hundred microseconds (common practice, from memory; ../shared REFERENCES.md)
+DEFAULT_REPETITION_DELAY_US = 250.0
+#: time to load and start one circuit (common practice, no source)
+DEFAULT_CIRCUIT_OVERHEAD_S = 0.05
+
+
+class RehearseSettings(BaseModel):
+    """How the variational loop is rehearsed on the emulated device."""
+
+    model_config = ConfigDict(extra="forbid", frozen=True)
+    optimizer: OptimizerName = "spsa"
+    iterations: StrictInt = Field(default=20, ge=1, le=100000)
+    shots_per_evaluation: StrictInt = Field(default=2000, ge=10, le=10**9)
+    #: stop the loop once this many shots (calibration included) are spent; None: no cap
+    max_shots: StrictInt | None = Field(default=None, ge=1)
+    start: Literal["hartree_fock", "perturbed_optimum", "random"] = "hartree_fock"
+    #: rad: the std of the perturbation of the noiseless optimum (start perturbed_optimum)
+    perturbation_rad: float = Field(default=0.2, gt=0, le=3.2, allow_inf_nan=False)
+    repeats: StrictInt = Field(default=8, ge=1, le=1000)
+    seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    #: the recipe of every in-loop evaluation (a list of passes, as under ``recipes:``)
+    loop_recipe: list[dict[str, Any]] | None = None
+    #: name of a study recipe for the final estimate at the study's shots; None: the loop recipe
+    final_recipe: str | None = None
+    circuit_overhead_s: float = Field(
+        default=DEFAULT_CIRCUIT_OVERHEAD_S, ge=0, le=3600, allow_inf_nan=False
+    )
+    spsa: SpsaOptions = SpsaOptions()
+    parameter_shift: ParameterShiftOptions = ParameterShiftOptions()
+    cobyla: CobylaOptions = CobylaOptions()
+    nelder_mead: NelderMeadOptions = NelderMeadOptions()
+
+    def loop_passes(self) -> tuple[dict[str, Any], ...]:
+        return tuple(self.loop_recipe) if self.loop_recipe is not None else DEFAULT_LOOP_RECIPE
+
+    def optimizer_options(self) -> Any:
+        return getattr(self, self.optimizer)

@@ -1,0 +1,216 @@
+"""The rehearse job: optimizers, in-loop evaluations, shot accounting, outputs and refusals."""
+
+from __future__ import annotations
+
+import dataclasses
+import json
+import math
+from pathlib import Path
+
+import numpy as np
+import pytest
+import yaml
+
+from noiselab.common.errors import InputError
+from noiselab.device.profile import scale_profile
+from noiselab.mitigate.experiment import make_calibrator
+from noiselab.mitigate.optimizers import SpsaOptions, spsa, spsa_gains
+from noiselab.study.context import build_context
+from noiselab.study.rehearse import LoopEvaluator, rehearse
+from noiselab.study.rehearse_spec import DEFAULT_LOOP_RECIPE
+from noiselab.study.spec import load_study
+
+ROOT = Path(__file__).resolve().parents[1]
+DEMO = ROOT / "configs" / "studies" / "h2-equilibrium.yaml"
+
+
+@pytest.fixture(scope="module")
+def demo_ctx():
+    study = load_study(DEMO)
+    return study, build_context(study, verification=True)
+
+
+def test_spsa_on_a_quadratic_follows_its_mean_recursion():
+    """f = |x|^2 / 2: the symmetric difference is exact, E[delta delta^T] = I for +-1
+    perturbations, so E[x_{k+1}] = (1 - a_k) E[x_k] with Spall's gains.
+    # source: Spall 1992 (gradient estimate, Bernoulli +-1 perturbations) and Spall 1998 (gain
+    # exponents 0.602 / 0.101, A = 10 % of the iterations); the recursion is derived here
+    """
+    opts = SpsaOptions(a=0.5, c=0.1)
+    n_iter, runs = 30, 300
+    x0 = np.array([1.0, -0.5, 0.8])
+    finals = []
+    for r in range(runs):
+        calls = []
+
+        def f(x, calls=calls):
+            calls.append(1)
+            return 0.5 * float(x @ x)
+
+        out = spsa(f, x0, n_iter, np.random.default_rng(r), opts)
+        assert len(calls) == 2 * n_iter  # two evaluations per iteration
+        finals.append(out.parameters)
+    a_k, c_k = spsa_gains(opts, n_iter, 0.5)
+    # source: Spall 1998, a_k = a/(A+k+1)^0.602, c_k = c/(k+1)^0.101
+    assert a_k[0] == pytest.approx(0.5 / (3.0 + 1.0) ** 0.602)
+    assert c_k[4] == pytest.approx(0.1 / 5.0**0.101)
+    expected = np.prod(1.0 - a_k) * x0
+    finals = np.array(finals)
+    se = finals.std(axis=0, ddof=1) / math.sqrt(runs)
+    assert np.all(np.abs(finals.mean(axis=0) - expected) < 4 * se + 1e-12)
+    assert np.linalg.norm(expected) < 0.1 * np.linalg.norm(x0)  # it does converge
+
+
+def test_spsa_calibration_costs_two_evaluations_per_sample():
+    calls = []
+
+    def f(x):
+        calls.append(1)
+        return float(x @ x)
+
+    spsa(f, [0.5, 0.5], 4, np.random.default_rng(0), SpsaOptions(calibration_samples=3))
+    assert len(calls) == 2 * 3 + 2 * 4
+
+
+def _fci_energy(study) -> float:
+    from pyscf import fci, gto, scf
+
+    mol = gto.M(atom="H 0 0 0; H 0 0 0.735", basis="sto-3g", verbose=0)
+    mf = scf.RHF(mol).run()
+    return float(fci.FCI(mf).kernel()[0])
+
+
+def test_cobyla_noiseless_analytic_reaches_the_uccsd_optimum():
+    study = load_study(DEMO)
+    study = dataclasses.replace(study, profile=scale_profile(study.profile, 0.0))
+    ctx = build_context(study, verification=True)
+    res = rehearse(
+        study, context=ctx, analytic=True, optimizer="cobyla", iterations=300, repeats=1,
+        cobyla={"rhobeg": 0.3, "tol": 1e-9},
+    )  # fmt: skip
+    (run,) = res.repeats
+    # source: PySCF FCI (UCCSD is exact for two electrons)
+    assert abs(run.final_energy_ha - _fci_energy(study)) < 1e-6
+    assert run.start_parameters == (0.0,) * len(run.start_parameters)  # Hartree-Fock start
+
+
+def test_in_loop_sampled_evaluations_match_the_analytic_estimate(demo_ctx):
+    study, ctx = demo_ctx
+    from noiselab.device.compile import compile_to_device
+
+    param = compile_to_device(
+        ctx.ansatz_circuit, study.profile, layout=list(ctx.compiled.patch),
+        seed=ctx.ensemble.chosen_seed,
+    )  # fmt: skip
+    x = np.asarray(ctx.optimum.parameters) + np.array([0.05, -0.03, 0.1])
+    cal = make_calibrator(ctx.experiment)
+    rng = np.random.default_rng(5)
+    ev = LoopEvaluator(ctx, param, DEFAULT_LOOP_RECIPE, 2000, rng, calibrator=cal)
+    analytic = LoopEvaluator(ctx, param, DEFAULT_LOOP_RECIPE, 2000, rng, calibrator=cal,
+                             analytic=True).evaluate(x, 2000)  # fmt: skip
+    n = 200
+    values = np.array([ev(x) for _ in range(n)])
+    mean, std = values.mean(), values.std(ddof=1)
+    std_ha = analytic.std_mha / 1000.0
+    # source: central limit theorem (textbook): mean within 3 standard errors, spread within 15 %
+    assert abs(mean - analytic.energy_ha) < 3 * std_ha / math.sqrt(n)
+    assert abs(std / std_ha - 1.0) < 0.15
+    # shot accounting: every evaluation spends its shots plus two 4000-shot calibrations
+    assert ev.shots_spent == sum(ev.evaluation_shots) == n * (2000 + 2 * 4000)
+
+
+def test_rehearse_separates_errors_accounts_shots_and_more_shots_narrow_the_spread(demo_ctx):
+    study, ctx = demo_ctx
+    common = dict(
+        context=ctx, iterations=6, repeats=4, start="perturbed_optimum",
+        spsa={"calibration_samples": 1, "first_step": 0.05},
+    )  # fmt: skip
+    low = rehearse(study, shots_per_evaluation=500, **common)
+    high = rehearse(study, shots_per_evaluation=8000, **common)
+    for res, shots in ((low, 500), (high, 8000)):
+        for r in res.repeats:
+            assert r.evaluations == 2 * (6 + 1)
+            assert r.loop_shots == sum(r.evaluation_shots) == r.evaluations * (shots + 8000)
+            assert r.final_shots == study.shots + 8000
+            assert r.total_shots == r.loop_shots + r.final_shots
+            parts = r.ansatz_error_mha + r.optimizer_error_mha + r.noise_bias_mha
+            assert parts == pytest.approx(r.final_error_mha, abs=1e-9)
+            assert not np.allclose(r.final_parameters, ctx.optimum.parameters, atol=1e-6)
+            # device time: shots x (schedule + readout + repetition delay) + circuit overheads
+            assert r.device_hours * 3600 == pytest.approx(
+                r.total_shots * res.seconds_per_shot + r.circuit_runs * 0.05
+            )
+    spread = [np.std([r.final_error_mha for r in res.repeats]) for res in (low, high)]
+    assert spread[1] < spread[0]
+    assert high.to_json()["total_shots"] == max(r.total_shots for r in high.repeats)
+
+
+def test_parameter_shift_gradient_equals_finite_differences(demo_ctx):
+    from noiselab.chem.shift_rule import parameter_frequencies
+    from noiselab.chem.statevector import compile_statevector
+    from noiselab.mitigate.optimizers import ShiftRule, shift_gradient
+
+    _, ctx = demo_ctx
+    prog = compile_statevector(ctx.ansatz_circuit)
+    h = ctx.qubit_problem.hamiltonian.to_matrix(sparse=True)
+
+    def f(y):
+        return prog.expectation(h, y)
+
+    rules = [ShiftRule(b, o) for b, o in parameter_frequencies(ctx.ansatz_circuit)]
+    x = np.array([0.3, -0.2, 0.5])
+    eps = 1e-5
+    fd = [(f(x + eps * e) - f(x - eps * e)) / (2 * eps) for e in np.eye(3)]
+    # source: Wierichs et al., Quantum 6, 677 (2022) shift rule vs central differences
+    assert np.allclose(shift_gradient(f, x, rules), fd, atol=1e-7)
+
+
+def test_bad_rehearse_options_are_one_line_errors(tmp_path, demo_ctx):
+    import contextlib
+    import io
+
+    from noiselab.cli.app import main
+
+    data = yaml.safe_load(DEMO.read_text())
+    data["device"] = str(ROOT / "configs" / "devices" / "cobaltgrid-12.yaml")
+    for section, key in (
+        ({"spsa": {"c": -1}}, "rehearse.spsa.c"),
+        ({"optimizer": "newton"}, "rehearse.optimizer"),
+        ({"cobyla": {"rho": 1}}, "rehearse.cobyla.rho"),
+        ({"final_recipe": "nope"}, "rehearse.final_recipe"),
+    ):
+        path = tmp_path / "s.yaml"
+        path.write_text(yaml.safe_dump({**data, "rehearse": section}))
+        out, err = io.StringIO(), io.StringIO()
+        argv = ["rehearse", str(path), "--out", str(tmp_path / "o"), "--no-cache"]
+        with (
+            contextlib.redirect_stdout(out),
+            contextlib.redirect_stderr(err),
+            pytest.raises(SystemExit) as info,
+        ):
+            main(argv)
+        assert info.value.code == 2, err.getvalue()
+        text = out.getvalue() + err.getvalue()
+        lines = [ln for ln in text.splitlines() if ln.strip()]
+        assert len(lines) == 1 and key in lines[0] and "Traceback" not in text
+        assert not (tmp_path / "o").exists()
+    with pytest.raises(InputError, match=r"rehearse\.iterations"):
+        rehearse(demo_ctx[0], context=demo_ctx[1], iterations=0)
+
+
+def test_rehearse_outputs(tmp_path, demo_ctx):
+    from noiselab.report.rehearse_figure import write_rehearse_outputs
+
+    study, ctx = demo_ctx
+    res = rehearse(study, context=ctx, iterations=2, repeats=2,
+                   spsa={"calibration_samples": 1})  # fmt: skip
+    written = write_rehearse_outputs(res, tmp_path)
+    assert {p.name for p in written} == {"rehearse.json", "rehearse_traces.csv", "rehearse.png"}
+    doc = json.loads((tmp_path / "rehearse.json").read_text())
+    for key in ("total_shots", "device_hours", "p_within_target", "reaches_target", "repeats"):
+        assert key in doc
+    rep = doc["repeats"][0]
+    for key in ("seed", "final_error_mha", "optimizer_error_mha", "noise_bias_mha", "std_mha"):
+        assert key in rep
+    assert len(rep["trace"]) == 2
+    assert res.verdict.startswith("Verdict: with 2 SPSA iterations at 2,000 shots")
