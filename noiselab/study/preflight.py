@@ -27,13 +27,10 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from math import comb
-from typing import TYPE_CHECKING, Any
+from typing import Any
 
 from noiselab.common.errors import ProblemTooLargeError, input_error
 from noiselab.common.memory import GIB, memory_budget
-
-if TYPE_CHECKING:
-    from noiselab.study.spec import Study
 
 #: float64 vectors over the determinants the exact solver keeps (Davidson subspace, 3 roots).
 FCI_VECTORS = 40
@@ -140,8 +137,9 @@ def check_sizes(source: str, molecule: Any, ansatz: Any, num_qubits: int, emulat
         )
 
 
-def preflight(study: Study) -> None:
-    """:func:`check_sizes` of a resolved study (overrides included)."""
+def preflight(study: Any) -> None:
+    """:func:`check_sizes` of a resolved :class:`noiselab.study.spec.Study` (overrides
+    included)."""
     check_sizes(str(study.source), study.molecule, study.ansatz, study.num_qubits, study.emulation)
 
 
@@ -178,7 +176,7 @@ def emulation_method(
 
 
 def resolve_emulation(
-    study: Study, circuit_qubits: int, num_bases: int = 1
+    study: Any, circuit_qubits: int, num_bases: int = 1
 ) -> tuple[str, str | None]:
-    """:func:`emulation_method` for a resolved study."""
+    """:func:`emulation_method` for a resolved study (a :class:`noiselab.study.spec.Study`)."""
     return emulation_method(str(study.source), study.emulation, circuit_qubits, num_bases)

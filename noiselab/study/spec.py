@@ -39,6 +39,7 @@ from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
 from noiselab.study.knobs import KNOB_ALIASES, KNOBS
+from noiselab.study.preflight import check_sizes
 from noiselab.study.rehearse_spec import RehearseSettings
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
@@ -554,8 +555,6 @@ def study_from_mapping(
             f"a device with at least {num_qubits} qubits, a smaller active space, "
             "or drop_fixed_parity_qubits",
         )
-    from noiselab.study.preflight import check_sizes
-
     check_sizes(src, molecule, ansatz, num_qubits, spec.emulation)  # before any heavy step
     recipes = {
         name: validate_recipe(passes, src, f"recipes.{name}")
