@@ -203,7 +203,7 @@ class ExtrapolatePass(MitigationPass):
     def check(self, ctx, where: str) -> None:
         """Refuse folding that would make a circuit too long to schedule and emulate."""
         from noiselab.common.errors import ProblemTooLargeError
-        from noiselab.mitigate.folding import MAX_FOLDED_GATES, folded_gate_count
+        from noiselab.device.folding import MAX_FOLDED_GATES, folded_gate_count
 
         o = self.options
         if o.amplifier == "stretch":
