@@ -59,7 +59,7 @@ def test_refusal_is_one_line_with_qubits_and_gib(monkeypatch: pytest.MonkeyPatch
         )
     msg = str(info.value)
     assert "\n" not in msg
-    assert "14 qubits" in msg and "GiB" in msg and "1.00 GiB is available" in msg
+    assert "14 qubits" in msg and "GiB" in msg and "1 GiB usable" in msg
     with pytest.raises(ProblemTooLargeError, match="14 qubits"):
         check_memory(14)
 

@@ -270,3 +270,21 @@ def test_tune_and_assess_tables_from_duck_typed_results() -> None:
     rows = T.assess_rows(assess)
     assert rows[0]["recipe"] == "raw" and rows[0]["bias_mha"] == 2.5
     assert "never (bias)" in T.render_text(T.assess_table(assess, plain=True))
+
+
+def test_identical_runs_write_byte_identical_figures(tmp_path: Path) -> None:
+    # two identical runs: SVG (random ids, date), PDF (creation date) and PNG must not differ
+    runs = []
+    for tag in ("a", "b"):
+        folder = tmp_path / tag
+        written = [*F.plot_sweep(_hand_sweep(), folder / "sweep")]
+        for ext in ("svg", "png"):
+            written.append(F.plot_budget(_hand_budget(), folder / f"budget.{ext}"))
+        runs.append({p.name: p.read_bytes() for p in written})
+    assert sorted(runs[0]) == sorted(runs[1])
+    assert {n.rsplit(".", 1)[1] for n in runs[0]} == {"svg", "pdf", "png"}
+    for name, data in runs[0].items():
+        assert data == runs[1][name], name
+    svg = runs[0]["sweep.svg"].decode()
+    assert "<dc:date>" not in svg  # no date: the run's time would differ
+    assert b"/CreationDate" not in runs[0]["sweep.pdf"]

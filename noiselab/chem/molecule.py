@@ -19,12 +19,22 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, ValidationIn
 from pyscf import ao2mo, fci, gto, mcscf, scf
 from pyscf.data import elements
 
-from noiselab.common.errors import NoiselabError, ProblemTooLargeError, from_validation_error
+from noiselab.common.errors import InputError, ProblemTooLargeError, from_validation_error
 
 Atom = tuple[str, float, float, float]
 
 _BASIS_HINT = "a PySCF basis name such as sto-3g, 6-31g, cc-pvdz"
 MAX_DETERMINANTS = 20_000_000
+#: Atoms per molecule: an exact reference energy is out of reach long before this.
+MAX_ATOMS = 200
+#: Largest coordinate magnitude (Angstrom): a molecule this wide is separate fragments, and a
+#: larger number is a unit typo (pm, bohr) or worse.
+MAX_COORDINATE_ANGSTROM = 1000.0
+#: Basis functions of the whole molecule: Hartree-Fock holds about N**4 bytes of two-electron
+#: integrals (500: 62 GB) and any exact reference then needs a small active space anyway.
+MAX_BASIS_FUNCTIONS = 500
+#: Most negative charge: more than 10 extra electrons are not bound by any molecule.
+MIN_CHARGE = -10
 
 
 def _element_numbers() -> dict[str, int]:
@@ -46,6 +56,11 @@ def _parse_geometry(value: Any) -> tuple[Atom, ...]:
         )
     if not rows:
         raise ValueError("no atoms given; allowed: at least one atom")
+    if len(rows) > MAX_ATOMS:
+        raise ValueError(
+            f"{len(rows)} atoms; allowed: at most {MAX_ATOMS} (an exact reference energy "
+            "is out of reach far below that)"
+        )
     numbers = _element_numbers()
     atoms: list[Atom] = []
     for i, row in enumerate(rows):
@@ -66,11 +81,19 @@ def _parse_geometry(value: Any) -> tuple[Atom, ...]:
             ) from None
         if not all(np.isfinite(xyz)):
             raise ValueError(f"atom {i}: coordinates must be finite numbers (Angstrom)")
+        if max(abs(c) for c in xyz) > MAX_COORDINATE_ANGSTROM:
+            raise ValueError(
+                f"atom {i}: coordinate {max(xyz, key=abs):g} Angstrom; allowed: at most "
+                f"{MAX_COORDINATE_ANGSTROM:g} in magnitude (wider is not one molecule; "
+                "coordinates are in Angstrom)"
+            )
         atoms.append((symbol.capitalize(), xyz[0], xyz[1], xyz[2]))
-    for i in range(len(atoms)):
-        for j in range(i):
-            if np.linalg.norm(np.subtract(atoms[i][1:], atoms[j][1:])) < 0.1:
-                raise ValueError(f"atoms {j} and {i} are closer than 0.1 Angstrom")
+    xyz_all = np.array([a[1:] for a in atoms], dtype=float)
+    dist = np.linalg.norm(xyz_all[:, None, :] - xyz_all[None, :, :], axis=-1)
+    close = np.argwhere(np.triu(dist < 0.1, k=1))
+    if len(close):
+        j, i = (int(v) for v in close[0])
+        raise ValueError(f"atoms {j} and {i} are closer than 0.1 Angstrom")
     return tuple(atoms)
 
 
@@ -95,7 +118,7 @@ class MoleculeSpec(BaseModel):
 
     geometry: tuple[Atom, ...]
     basis: str = "sto-3g"
-    charge: int = 0
+    charge: int = Field(default=0, ge=MIN_CHARGE)
     spin: int = Field(default=0, ge=0)
     active_space: ActiveSpace | None = None
     symmetry: bool = False
@@ -196,6 +219,33 @@ def count_orbitals(spec: MoleculeSpec) -> int:
     return _count_orbitals(spec.geometry, spec.basis, spec.charge, spec.spin)
 
 
+@dataclass(frozen=True)
+class MoleculeSizes:
+    """Sizes known before any integral: basis functions, active orbitals and electrons."""
+
+    n_basis: int
+    n_orb: int
+    n_alpha: int
+    n_beta: int
+
+    @property
+    def n_determinants(self) -> int:
+        """Determinants of the exact (FCI/CASCI) problem in the (N_alpha, N_beta) sector."""
+        return _binom(self.n_orb, self.n_alpha) * _binom(self.n_orb, self.n_beta)
+
+
+def molecule_sizes(spec: MoleculeSpec) -> MoleculeSizes:
+    """Basis functions, active orbitals and active alpha/beta electrons of ``spec`` (cheap:
+    builds the PySCF molecule, computes no integral)."""
+    n_basis = _count_orbitals(spec.geometry, spec.basis, spec.charge, spec.spin)
+    n_elec = _total_electrons(spec.geometry, spec.charge)
+    if spec.active_space is None:
+        n_orb, ne = n_basis, n_elec
+    else:
+        n_orb, ne = spec.active_space.orbitals, spec.active_space.electrons
+    return MoleculeSizes(n_basis, n_orb, (ne + spec.spin) // 2, (ne - spec.spin) // 2)
+
+
 def _build_mole(atoms: tuple[Atom, ...], basis: str, charge: int, spin: int, symmetry: bool) -> Any:
     return gto.M(
         atom=[[a[0], (a[1], a[2], a[3])] for a in atoms],
@@ -277,7 +327,12 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
             f"allowed: at most {MAX_DETERMINANTS} (choose a smaller active_space)"
         )
 
+    from noiselab.common.memory import available_memory_bytes
+
     mf = scf.RHF(mol) if spec.spin == 0 else scf.ROHF(mol)
+    # PySCF keeps integrals in memory up to max_memory (MB; default 4000) and goes out of core
+    # beyond: give it the memory this process may use, not a fixed guess
+    mf.max_memory = max(200.0, available_memory_bytes() / 2**20)
     mf.conv_tol = 1e-12
     mf.max_cycle = 200
     mf.kernel()
@@ -285,12 +340,16 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
         mf = mf.newton()
         mf.kernel()
     if not mf.converged:
-        raise NoiselabError(
-            "molecule: Hartree-Fock did not converge; check the geometry, charge and spin"
+        raise InputError(
+            "molecule: Hartree-Fock did not converge; allowed: a geometry, charge and spin of a "
+            "bound molecule (check the units, Angstrom, and the spin)"
         )
 
     if int(mf.mo_coeff.shape[1]) < n_core + n_cas:
-        raise NoiselabError("molecule: basis is linearly dependent; fewer orbitals than requested")
+        raise InputError(
+            "molecule.basis: linearly dependent for this geometry (fewer orbitals than "
+            "requested); allowed: a smaller basis or atoms further apart"
+        )
 
     # Doubly occupied first, then singly occupied, then virtual (stable within each class), so the
     # active space starts right after the core and the HF determinant fills its lowest orbitals.

@@ -40,13 +40,18 @@ CacheOpt = Annotated[
 NoCacheOpt = Annotated[
     bool, typer.Option("--no-cache", help="Neither read nor write the results cache.")
 ]
+# Counts are read as text and validated by the study file's own model (bounds included), so
+# --shots 1e6 works like shots: 1e6 in the file.
 SeedOpt = Annotated[
-    int | None, typer.Option("--seed", help="Override the study's seed.", show_default=False)
+    str | None,
+    typer.Option("--seed", help="Override the study's seed (0 to 2**32-1).", show_default=False),
 ]
 ShotsOpt = Annotated[
-    int | None,
+    str | None,
     typer.Option(
-        "--shots", help="Override the study's total shot budget per estimate.", show_default=False
+        "--shots",
+        help="Override the study's total shot budget per estimate (e.g. 1e6).",
+        show_default=False,
     ),
 ]
 QuietOpt = Annotated[bool, typer.Option("--quiet", "-q", help="No progress bars.")]
@@ -60,10 +65,9 @@ TimingsOpt = Annotated[
     ),
 ]
 WorkersOpt = Annotated[
-    int | None,
+    str | None,
     typer.Option(
         "--workers",
-        min=1,
         help="Run independent simulations in N local processes.",
         show_default=False,
     ),
@@ -79,10 +83,9 @@ MethodOpt = Annotated[
     ),
 ]
 TrajectoriesOpt = Annotated[
-    int | None,
+    str | None,
     typer.Option(
         "--trajectories",
-        min=2,
         help="Trajectories per circuit variant when the trajectory method runs. "
         "Default: the study's emulation.trajectories, else 256.",
         show_default=False,
@@ -101,6 +104,40 @@ ListOpt = list[str] | None
 
 
 # ---------------------------------------------------------------- helpers shared by the commands
+
+ASSESS_FILES = (
+    "assess.json",
+    "assess.csv",
+    "assess-bias.png",
+    "assess-bias.svg",
+    "assess-extrapolation.png",
+    "assess-extrapolation.svg",
+)
+TUNE_FILES = ("tune.csv", "tune.json")
+
+
+def check_out(out: str | None, names: tuple[str, ...]) -> Path | None:
+    """``--out`` as a folder Path, refused in one line before any work when unusable."""
+    from noiselab.common.atomic import check_output_dir
+
+    return check_output_dir(out, names)
+
+
+def publish(out: Path, write: Callable[[Path], list[Path]]) -> list[Path]:
+    """Write a job's files into ``out`` as one set (staged, then moved into place)."""
+    from noiselab.common.atomic import write_output_set
+
+    return write_output_set(out, write)
+
+
+def workers_count(workers: str | None) -> int | None:
+    """``--workers`` as an int (None when not given); refused in one line when out of range."""
+    if workers is None:
+        return None
+    from noiselab.common.counts import parse_count
+    from noiselab.study.executor import MAX_WORKERS
+
+    return parse_count(workers, "--workers", 1, MAX_WORKERS, "each worker is a full process")
 
 
 def _check_method(method: str | None) -> None:
@@ -265,7 +302,7 @@ def assess_cmd(
     study: StudyArg,
     json_out: JsonOpt = False,
     out: Annotated[
-        Path | None,
+        str | None,
         typer.Option(
             "--out", help="Folder for assess.json, assess.csv and figures.", show_default=False
         ),
@@ -293,6 +330,7 @@ def assess_cmd(
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
     from noiselab.study.assess import assess
 
+    out_dir = check_out(out, ASSESS_FILES)
     result = _run_job(
         assess,
         study,
@@ -305,7 +343,9 @@ def assess_cmd(
         trajectories=trajectories,
         drift=drift,
     )
-    written = _write_assess_outputs(result, out) if out is not None else []
+    written = (
+        publish(out_dir, lambda d: _write_assess_outputs(result, d)) if out_dir is not None else []
+    )
     if json_out:
         _print_json(result.to_json(with_stats=timings))
         return
@@ -399,9 +439,9 @@ def tune_cmd(
     fit: Annotated[
         ListOpt, typer.Option("--fit", help="Extrapolation fit(s) to try.", show_default=False)
     ] = None,
-    top: Annotated[int, typer.Option("--top", min=1, help="How many settings to print.")] = 10,
+    top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     out: Annotated[
-        Path | None,
+        str | None,
         typer.Option(
             "--out", help="Folder for tune.csv (ranked) and tune.json.", show_default=False
         ),
@@ -419,9 +459,14 @@ def tune_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Rank a grid of mitigation settings by the probability of reaching the target."""
+    from noiselab.common.counts import parse_count
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
 
     _check_method(method)  # before --scales is parsed
+    n_top = parse_count(top, "--top", 1, 10**6)
+    out_dir = check_out(out, TUNE_FILES)
+    n_workers = workers_count(workers)
+
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
@@ -439,11 +484,13 @@ def tune_cmd(
         grid=override,
         seed=seed,
         shots=shots,
-        workers=workers,
+        workers=n_workers,
         cluster=cluster,
         trajectories=trajectories,
     )
-    written = write_tune_outputs(result, out) if out is not None else []
+    written = (
+        publish(out_dir, lambda d: write_tune_outputs(result, d)) if out_dir is not None else []
+    )
     if json_out:
         _print_json(result.to_json(with_stats=timings))
         return
@@ -452,14 +499,14 @@ def tune_cmd(
     for line in _context_lines(result.context):
         typer.echo(line)
     title = (
-        f"{result.context.study}: top {min(top, len(result.entries))} of {len(result.entries)} "
+        f"{result.context.study}: top {min(n_top, len(result.entries))} of {len(result.entries)} "
         f"settings at {format_count(result.shots)} shots, target ±{result.target_mha:.4g} mHa"
     )
-    _print_table(title, TUNE_HEADERS, result.table_rows(top))
+    _print_table(title, TUNE_HEADERS, result.table_rows(n_top))
     if result.emulation_method == "trajectory":
         from noiselab.study.results import trajectory_std_of
 
-        shown = [trajectory_std_of(e.result) or 0.0 for e in result.entries[:top]]
+        shown = [trajectory_std_of(e.result) or 0.0 for e in result.entries[:n_top]]
         typer.echo(
             "Emulated with Monte Carlo trajectories: the bias of each setting carries a "
             f"trajectory error of up to {max(shown, default=0.0):.3g} mHa (tune.csv: "
@@ -488,8 +535,8 @@ def tune_cmd(
 
 def demo_cmd(
     out: Annotated[
-        Path, typer.Option("--out", help="Folder for the demo's files (in the current directory).")
-    ] = Path(DEMO_DIR),
+        str, typer.Option("--out", help="Folder for the demo's files (in the current directory).")
+    ] = DEMO_DIR,
     cache: CacheOpt = None,
     no_cache: NoCacheOpt = False,
     quiet: QuietOpt = False,
@@ -497,14 +544,16 @@ def demo_cmd(
     """Assess the shipped demo study (H2 on an invented chip) and write its table and figures."""
     from noiselab.study.assess import assess, demo_study_path
 
+    out_dir = check_out(out, ASSESS_FILES)
+    assert out_dir is not None
     path = demo_study_path()
     typer.echo(f"Demo study: {path}")
     store = _open_cache(cache, no_cache)
     with _progress(quiet) as hook:
         result = assess(path, cache=store, progress=hook)
-    written = _write_assess_outputs(result, out)
+    written = publish(out_dir, lambda d: _write_assess_outputs(result, d))
     _show_assess(result, [])
-    typer.echo(f"Demo files are in {out.resolve()}: " + ", ".join(p.name for p in written))
+    typer.echo(f"Demo files are in {out_dir.resolve()}: " + ", ".join(p.name for p in written))
 
 
 # ---------------------------------------------------------------- registration

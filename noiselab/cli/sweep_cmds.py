@@ -6,7 +6,6 @@ inside the command functions so that ``noiselab --help`` stays fast.
 
 from __future__ import annotations
 
-from pathlib import Path
 from typing import Annotated, Any
 
 import typer
@@ -52,7 +51,7 @@ RecipeOpt = Annotated[
     ),
 ]
 OutOpt = Annotated[
-    Path | None,
+    str | None,
     typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
 ]
 
@@ -90,10 +89,10 @@ def sweep_cmd(
         ),
     ] = None,
     points: Annotated[
-        int | None,
+        str | None,
         typer.Option(
             "--points",
-            help="Number of knob values. Default: the study's, else 5.",
+            help="Number of knob values (2 to 200). Default: the study's, else 5.",
             show_default=False,
         ),
     ] = None,
@@ -119,11 +118,16 @@ def sweep_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
+    from noiselab.cli.study_cmds import check_out, publish, workers_count
+    from noiselab.study.knobs import KNOBS
     from noiselab.study.sweep import get_knob, sweep
 
     _check_method(method)  # before the knob
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
+    names = tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
+    out_dir = check_out(out, names)
+    n_workers = workers_count(workers)
     result = _run_job(
         sweep,
         study,
@@ -139,7 +143,7 @@ def sweep_cmd(
         recipes=recipe or None,
         seed=seed,
         shots=shots,
-        workers=workers,
+        workers=n_workers,
         cluster=cluster,
         trajectories=trajectories,
     )
@@ -160,10 +164,10 @@ def sweep_cmd(
             f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
             f"{s.wall_seconds:.1f} s, {s.executor})"
         )
-    if out is not None:
+    if out_dir is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        echo_written(write_sweep_outputs(result, out))
+        echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
 
 
 def budget_cmd(
@@ -188,8 +192,12 @@ def budget_cmd(
     trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
+    from noiselab.cli.study_cmds import check_out, publish, workers_count
     from noiselab.study.budget import budget
 
+    _check_method(method)
+    out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg")))
+    n_workers = workers_count(workers)
     result = _run_job(
         budget,
         study,
@@ -200,7 +208,7 @@ def budget_cmd(
         recipe=recipe,
         seed=seed,
         shots=shots,
-        workers=workers,
+        workers=n_workers,
         cluster=cluster,
         trajectories=trajectories,
     )
@@ -211,10 +219,10 @@ def budget_cmd(
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
     typer.echo(CAUTION)
-    if out is not None:
+    if out_dir is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        echo_written(write_budget_outputs(result, out))
+        echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
 
 
 _SWEEP_HELP = (

@@ -8,6 +8,32 @@ from __future__ import annotations
 from collections.abc import Sequence
 from typing import Any
 
+#: Longest one-line message; a longer one keeps its start (file, key) and end (what is allowed).
+MAX_MESSAGE_CHARS = 600
+#: Longest quoted user value in a message.
+MAX_QUOTED_CHARS = 60
+
+
+def quote(value: Any, limit: int = MAX_QUOTED_CHARS) -> str:
+    """``repr(value)`` cut to ``limit`` characters (user values in messages stay short)."""
+    try:
+        text = repr(value) if not isinstance(value, str) else repr(value[: limit + 1])
+    except Exception:  # a value whose repr fails (or recurses) still gets a message
+        text = f"<{type(value).__name__}>"
+    if len(text) > limit:
+        size = f"{len(value)} characters" if isinstance(value, str) else type(value).__name__
+        text = f"{text[: limit - 3]}... ({size})"
+    return text
+
+
+def one_line(message: str, limit: int = MAX_MESSAGE_CHARS) -> str:
+    """``message`` on one line with runs of whitespace collapsed, at most ``limit`` characters."""
+    text = " ".join(str(message).split())
+    if len(text) > limit:
+        head = limit * 2 // 3
+        text = f"{text[:head]} [...] {text[-(limit - head - 7) :]}"
+    return text
+
 
 class NoiselabError(Exception):
     """A failure noiselab reports as one line (exit code 1)."""
@@ -15,7 +41,7 @@ class NoiselabError(Exception):
     exit_code = 1
 
     def __init__(self, message: str) -> None:
-        super().__init__(" ".join(str(message).split()))
+        super().__init__(one_line(message))
 
     @property
     def message(self) -> str:
@@ -53,6 +79,8 @@ def _loc_to_path(loc: Sequence[Any]) -> str:
             s = str(item)
             if s.startswith("function-") or s in {"tagged-union", "union"}:
                 continue
+            if len(s) > MAX_QUOTED_CHARS:
+                s = quote(s)
             out += ("." if out else "") + s
     return out or "(top level)"
 

@@ -28,6 +28,9 @@ from noiselab.device.compile import circuit_duration_ns, estimate_fidelity
 _SELF_INVERSE = {"cz", "cx", "ecr", "x", "y", "z", "h", "id", "swap", "ccx", "cy"}
 _NEGATE_ANGLE = {"rz", "rx", "ry", "p", "u1", "rzz", "rxx", "ryy", "rzx", "cp", "crz", "crx", "cry"}
 _NOT_GATES = {"delay", "barrier"}
+#: Most gates of a folded circuit: past this, re-scheduling and emulating it takes hours and the
+#: circuit objects alone take gigabytes.
+MAX_FOLDED_GATES = 200_000
 
 
 @dataclass(frozen=True)
@@ -152,8 +155,30 @@ def two_qubit_gate_folding(circuit: QuantumCircuit, scale: float) -> FoldResult:
     )
 
 
+def folded_gate_count(circuit: QuantumCircuit, method: str, scale: float) -> int:
+    """Gates of ``circuit`` folded to ``scale`` by ``method``, counted without folding."""
+    gates = [inst for inst in circuit.data if inst.operation.name not in _NOT_GATES]
+    d = len(gates)
+    if method == "two_qubit_gates":
+        n2 = sum(1 for g in gates if len(g.qubits) == 2)
+        return d + 2 * round((float(scale) - 1.0) * n2 / 2.0)
+    return d + 2 * round((float(scale) - 1.0) * d / 2.0)
+
+
 def fold_circuit(circuit: QuantumCircuit, method: str, scale: float) -> FoldResult:
-    """Dispatch on ``method`` ("whole_circuit" | "two_qubit_gates", the amplifier names)."""
+    """Dispatch on ``method`` ("whole_circuit" | "two_qubit_gates", the amplifier names);
+    refuses (one line) a folded circuit beyond :data:`MAX_FOLDED_GATES` gates before building
+    it."""
+    from noiselab.common.errors import ProblemTooLargeError
+
+    if not math.isfinite(scale):
+        raise ValueError("fold scale must be finite")
+    gates = folded_gate_count(circuit, method, scale)
+    if gates > MAX_FOLDED_GATES:
+        raise ProblemTooLargeError(
+            f"folding: scale {scale:g} gives a circuit of {gates} gates; allowed: at most "
+            f"{MAX_FOLDED_GATES} (smaller scales, or the 'stretch' amplifier)"
+        )
     if method == "whole_circuit":
         return whole_circuit_folding(circuit, scale)
     if method == "two_qubit_gates":

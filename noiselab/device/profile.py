@@ -66,6 +66,7 @@ from pathlib import Path
 from typing import Annotated, Any, Literal
 
 from pydantic import (
+    AfterValidator,
     BaseModel,
     BeforeValidator,
     ConfigDict,
@@ -78,7 +79,8 @@ from pydantic import (
     model_validator,
 )
 
-from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.counts import Count
+from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device import thermal
@@ -103,6 +105,15 @@ ALL_TO_ALL = "all-to-all"
 
 # physical maxima (MAX_*) and CHANNELS come from noiselab.device.channel_registry
 MAX_QUBITS = 1000
+# Coherence times: a T1 or T2 below 1 ns is shorter than any gate (and a subnormal one breaks
+# the noise model's arithmetic); above 1000 s no qubit has been measured: both are typos.
+MIN_COHERENCE_US = 1e-3
+MAX_COHERENCE_US = 1e9
+# Durations: from 1 ps to 1 ms; a gate or readout outside that range is a unit typo.
+MIN_DURATION_NS = 1e-3
+MAX_DURATION_NS = 1e6
+# All-to-all links on more qubits than this make every routing and noise-model step quadratic.
+MAX_ALL_TO_ALL_QUBITS = 64
 
 _NAME_RE = re.compile(r"[A-Za-z0-9][A-Za-z0-9._-]{0,79}")
 _CFG = ConfigDict(frozen=True, extra="forbid")
@@ -127,7 +138,29 @@ ReadoutRate = _num(0.0, MAX_READOUT_ERROR)
 JointFlip = _num(0.0, MAX_JOINT_FLIP)
 OverRotation = _num(-MAX_OVER_ROTATION, MAX_OVER_ROTATION)
 ZZAngle = _num(-MAX_ZZ_ANGLE_RAD, MAX_ZZ_ANGLE_RAD)
+def _coherence_in_range(value: float, info: ValidationInfo) -> float:
+    if (info.context or {}).get(_CTX_ALLOW_INFINITE):
+        return value  # a scaled profile: any positive time (scaling is bounded where it is asked)
+    if not MIN_COHERENCE_US <= value <= MAX_COHERENCE_US:
+        raise ValueError(
+            f"{value:g} us; allowed: {MIN_COHERENCE_US:g} to {MAX_COHERENCE_US:g} us (below 1 ns "
+            "is shorter than any gate, above 1000 s longer than any qubit: a unit typo?)"
+        )
+    return value
+
+
+def _duration_in_range(value: float) -> float:
+    if not MIN_DURATION_NS <= value <= MAX_DURATION_NS:
+        raise ValueError(
+            f"{value:g} ns; allowed: {MIN_DURATION_NS:g} to {MAX_DURATION_NS:g} ns (1 ps to 1 ms; "
+            "outside, a unit typo?)"
+        )
+    return value
+
+
 PositiveTime = _num(gt=0.0)
+CoherenceTime = Annotated[PositiveTime, AfterValidator(_coherence_in_range)]
+Duration = Annotated[PositiveTime, AfterValidator(_duration_in_range)]
 Pair = tuple[StrictInt, StrictInt]
 
 
@@ -158,8 +191,8 @@ class QubitValues(BaseModel):
     """Per-qubit parameters (all qubits unless overridden). Times in us, rates 0..1."""
 
     model_config = _CFG
-    t1_us: PositiveTime | None
-    t2_us: PositiveTime | None
+    t1_us: CoherenceTime | None
+    t2_us: CoherenceTime | None
     gate_error: Rate1Q
     flip_0to1: ReadoutRate
     flip_1to0: ReadoutRate
@@ -175,8 +208,8 @@ class QubitOverride(BaseModel):
     """Per-qubit overrides; a key left out keeps the default."""
 
     model_config = _CFG
-    t1_us: PositiveTime | None = None
-    t2_us: PositiveTime | None = None
+    t1_us: CoherenceTime | None = None
+    t2_us: CoherenceTime | None = None
     gate_error: Rate1Q | None = None
     flip_0to1: ReadoutRate | None = None
     flip_1to0: ReadoutRate | None = None
@@ -256,9 +289,9 @@ class Durations(BaseModel):
     """Gate and readout durations in ns (rz is virtual: zero)."""
 
     model_config = _CFG
-    single_qubit_ns: PositiveTime
-    two_qubit_ns: PositiveTime
-    readout_ns: PositiveTime
+    single_qubit_ns: Duration
+    two_qubit_ns: Duration
+    readout_ns: Duration
 
 
 @dataclass(frozen=True)
@@ -294,7 +327,7 @@ class DeviceProfile(BaseModel):
     schema_version: Literal[1]
     name: str
     description: str = ""
-    qubit_count: StrictInt = Field(ge=1, le=MAX_QUBITS)
+    qubit_count: Count = Field(ge=1, le=MAX_QUBITS)
     links: Literal["all-to-all"] | tuple[tuple[int, int], ...]
     native_gates: NativeGates
     durations: Durations
@@ -315,7 +348,7 @@ class DeviceProfile(BaseModel):
     def _check_name(cls, value: str) -> str:
         if not _NAME_RE.fullmatch(value):
             raise ValueError(
-                f"{value!r} is not a device name; allowed: 1-80 characters, letters, digits, "
+                f"{quote(value)} is not a device name; allowed: 1-80 characters, letters, digits, "
                 "'.', '_' or '-', starting with a letter or digit"
             )
         return value
@@ -326,7 +359,7 @@ class DeviceProfile(BaseModel):
         if isinstance(value, str):
             if value != ALL_TO_ALL:
                 raise ValueError(
-                    f"unknown connectivity {value!r}; allowed: a list of pairs or {ALL_TO_ALL}"
+                    f"unknown connectivity {quote(value)}; allowed: a list of pairs or {ALL_TO_ALL}"
                 )
             return value
         if not isinstance(value, list | tuple):
@@ -340,7 +373,7 @@ class DeviceProfile(BaseModel):
             )
             if not ok:
                 raise ValueError(
-                    f"entry [{i}] is {item!r}; allowed: a pair of qubit indices like [0, 1]"
+                    f"entry [{i}] is {quote(item)}; allowed: a pair of qubit indices like [0, 1]"
                 )
             out.append((int(item[0]), int(item[1])))
         return tuple(out)
@@ -503,6 +536,13 @@ def _check_semantics(p: DeviceProfile) -> None:
                 "a set containing rz and sx (x optional)",
             )
 
+    if p.is_all_to_all and n > MAX_ALL_TO_ALL_QUBITS:
+        raise ProfileCheckError(
+            "links",
+            f"all-to-all on {n} qubits ({n * (n - 1) // 2} pairs)",
+            f"all-to-all on at most {MAX_ALL_TO_ALL_QUBITS} qubits (every pair is routed and "
+            "modelled), or a list of pairs",
+        )
     if not p.is_all_to_all:
         seen: dict[tuple[int, int], int] = {}
         for i, pair in enumerate(p.links):
@@ -645,10 +685,17 @@ def relaxation_gate_infidelity(profile: DeviceProfile, gate: str, qubits: tuple[
     return thermal.relaxation_infidelity(t_ns, coh)
 
 
+#: A two-qubit gate error above this is more likely a percentage typed as a fraction.
+TYPO_TWO_QUBIT_ERROR = 0.2
+#: T2 this close to its maximum 2 T1 (relative) is more likely copied or computed than measured.
+TYPO_T2_NEAR_2T1 = 0.01
+
+
 def profile_warnings(profile: DeviceProfile) -> list[str]:
-    """Quoted gate errors below what relaxation alone causes over the gate (the noise model then
-    uses relaxation alone for that gate). One line per affected qubit or pair."""
-    out: list[str] = []
+    """One line per implausible value a typo produces, and per quoted gate error below what
+    relaxation alone causes over the gate (the noise model then uses relaxation alone there):
+    a two-qubit gate error above 0.2, a qubit with no link, T2 within 1 % of 2 T1."""
+    out = _typo_warnings(profile)
     physical_1q = [g for g in profile.single_qubit_gates if g not in VIRTUAL_GATES]
     if physical_1q:
         gate = physical_1q[0]
@@ -677,6 +724,43 @@ def profile_warnings(profile: DeviceProfile) -> list[str]:
                 f"is below the {floor:.3g} that T1/T2 alone cause over "
                 f"{profile.durations.two_qubit_ns:g} ns; "
                 "relaxation alone is used for this gate"
+            )
+    return out
+
+
+def _typo_warnings(profile: DeviceProfile) -> list[str]:
+    out: list[str] = []
+    src = profile.source
+    entries = [("couplers.default", profile.couplers.default.gate_error)]
+    entries += [
+        (f"couplers.overrides[{i}]", ov.gate_error)
+        for i, ov in enumerate(profile.couplers.overrides)
+        if ov.gate_error is not None
+    ]
+    for where, value in entries:
+        if value > TYPO_TWO_QUBIT_ERROR:
+            out.append(
+                f"{src}: {where}.gate_error: {value:g} is above {TYPO_TWO_QUBIT_ERROR:g} (a "
+                f"percentage typed as a fraction? {value:g} % is {value / 100:g})"
+            )
+    if profile.qubit_count > 1 and not profile.is_all_to_all:
+        linked = {q for pair in profile.pairs() for q in pair}
+        lonely = [q for q in range(profile.qubit_count) if q not in linked]
+        if lonely:
+            shown = ", ".join(map(str, lonely[:10])) + (" ..." if len(lonely) > 10 else "")
+            out.append(
+                f"{src}: links: qubit(s) {shown} have no link (a missing pair?); "
+                "two-qubit gates can never reach them"
+            )
+    for q in range(profile.qubit_count):
+        rq = profile.qubit(q)
+        t1, t2 = rq.t1_us, rq.t2_us
+        if t1 is not None and t2 is not None and abs(t2 - 2 * t1) <= TYPO_T2_NEAR_2T1 * 2 * t1:
+            where = _qubit_key_owner(profile, q, ("t1_us", "t2_us"))
+            out.append(
+                f"{src}: {where}.t2_us: qubit {q}: T2 = {t2:g} us is within 1 % of "
+                f"2 T1 = {2 * t1:g} us (no pure dephasing at all: T2 computed from "
+                "T1 rather than measured?)"
             )
     return out
 

@@ -14,20 +14,32 @@ the basis contraction and the study layer's worker processes share it.
 from __future__ import annotations
 
 import os
-from pathlib import Path
 
 from noiselab.common.errors import ProblemTooLargeError
+from noiselab.common.memory import (
+    GIB,
+    MEMORY_LIMIT_ENV,
+    available_memory_bytes,
+    memory_budget,
+)
 
-#: Environment variable that overrides the available memory (bytes); used by tests.
-MEMORY_LIMIT_ENV = "NOISELAB_MEMORY_LIMIT_BYTES"
+__all__ = [
+    "ENGINE_THREADS_ENV",
+    "GIB",
+    "MEMORY_LIMIT_ENV",
+    "available_memory_bytes",
+    "check_memory",
+    "engine_threads",
+    "estimate_memory_bytes",
+    "fits_in_memory",
+]
+
 #: Copies of a 16 * 4**k byte density matrix alive at the peak (measured 2.4-2.7, rounded up).
 DM_COPIES = 3.0
 #: Fixed overhead of the interpreter, qiskit and aer (bytes).
 BASE_OVERHEAD_BYTES = 300 * 2**20
 #: Statevector copies per trajectory in flight (simulator state, saved copy, numpy copy).
 SV_COPIES = 3.0
-
-GIB = float(2**30)
 
 #: qiskit-aer ``max_parallel_threads`` (0 = all cores); set by the study layer's worker processes.
 ENGINE_THREADS_ENV = "NOISELAB_ENGINE_THREADS"
@@ -65,49 +77,6 @@ def estimate_memory_bytes(
     raise ValueError(f"unknown method {method!r}")
 
 
-def _cgroup_available_bytes() -> int | None:
-    root = Path("/sys/fs/cgroup")
-    try:
-        limit = (root / "memory.max").read_text().strip()
-        if limit == "max":
-            return None
-        current = int((root / "memory.current").read_text().strip())
-        return max(0, int(limit) - current)
-    except (OSError, ValueError):
-        return None
-
-
-def available_memory_bytes() -> int:
-    """Memory available to this process in bytes.
-
-    ``$NOISELAB_MEMORY_LIMIT_BYTES`` wins when set; otherwise ``MemAvailable`` from
-    ``/proc/meminfo`` (or ``os.sysconf``), capped by a cgroup v2 limit when one applies.
-    """
-    override = os.environ.get(MEMORY_LIMIT_ENV)
-    if override:
-        try:
-            return int(float(override))
-        except ValueError as exc:
-            raise ProblemTooLargeError(
-                f"${MEMORY_LIMIT_ENV}: {override!r} is not a number; allowed: bytes, e.g. 8e9"
-            ) from exc
-    avail: int | None = None
-    try:
-        for line in Path("/proc/meminfo").read_text().splitlines():
-            if line.startswith("MemAvailable:"):
-                avail = int(line.split()[1]) * 1024
-                break
-    except (OSError, ValueError, IndexError):
-        avail = None
-    if avail is None:
-        try:
-            avail = os.sysconf("SC_AVPHYS_PAGES") * os.sysconf("SC_PAGE_SIZE")
-        except (ValueError, OSError, AttributeError):
-            avail = 8 * 2**30  # unknown platform: assume a modest laptop
-    cg = _cgroup_available_bytes()
-    return min(avail, cg) if cg is not None else avail
-
-
 def fits_in_memory(num_qubits: int, method: str = "density_matrix", **kwargs: int) -> bool:
     """Whether :func:`estimate_memory_bytes` fits in :func:`available_memory_bytes`."""
     return estimate_memory_bytes(num_qubits, method, **kwargs) <= available_memory_bytes()
@@ -116,11 +85,11 @@ def fits_in_memory(num_qubits: int, method: str = "density_matrix", **kwargs: in
 def check_memory(num_qubits: int, method: str = "density_matrix", **kwargs: int) -> None:
     """Raise :class:`ProblemTooLargeError` (one line) when the emulation would not fit."""
     need = estimate_memory_bytes(num_qubits, method, **kwargs)
-    have = available_memory_bytes()
-    if need > have:
+    budget = memory_budget()
+    if need > budget.usable:
         what = "density matrix" if method == "density_matrix" else "trajectory emulation"
         raise ProblemTooLargeError(
             f"emulation: {num_qubits} qubits need about {need / GIB:.2f} GiB for the {what} but "
-            f"only {have / GIB:.2f} GiB is available; allowed: fewer qubits (a smaller active "
+            f"only {budget.describe()}; allowed: fewer qubits (a smaller active "
             f"space or patch), method 'auto' or 'trajectory', or more memory"
         )

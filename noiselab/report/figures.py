@@ -117,10 +117,18 @@ def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
     ax.grid(True, which="major", alpha=0.3)
 
 
+#: Metadata that would differ between identical runs (dates, random ids) is fixed or left out,
+#: so the same result gives byte-identical files.
+_METADATA = {"svg": {"Date": None}, "pdf": {"CreationDate": None}, "png": {"Software": None}}
+_SVG_HASH_SALT = "noiselab"
+
+
 def _savefig(fig: Any, target: Path, fmt: str) -> None:
-    # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42
-    with matplotlib.rc_context({"svg.fonttype": "none", "pdf.fonttype": 42}):
-        fig.savefig(target, format=fmt, dpi=_DPI)
+    # SVG text stays text (searchable, editable in a proposal); PDF fonts embedded as Type 42;
+    # SVG element ids come from a fixed salt instead of a random one
+    rc = {"svg.fonttype": "none", "pdf.fonttype": 42, "svg.hashsalt": _SVG_HASH_SALT}
+    with matplotlib.rc_context(rc):
+        fig.savefig(target, format=fmt, dpi=_DPI, metadata=_METADATA.get(fmt))
 
 
 def _save(fig: Any, path: str | Path, fmt: str | None = None) -> Path:

@@ -7,7 +7,6 @@ repeated assess reads every simulation from the results cache.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import json
 import os
@@ -26,6 +25,7 @@ from noiselab.study.compiles import bias_spread
 from noiselab.study.context import (
     StudyContext,
     build_context,
+    naming_source,
     recipes_verify,
     with_verification,
 )
@@ -51,8 +51,29 @@ def resolve_study(
     trajectories: int | None = None,
 ) -> Study:
     """A Study from a Study or a path, with optional seed, shot and emulation overrides."""
-    study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    return study.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
+    if isinstance(study_or_path, Study):
+        return study_or_path.with_overrides(
+            seed=seed, shots=shots, method=method, trajectories=trajectories
+        )
+    overrides = {"seed": seed, "shots": shots, "method": method, "trajectories": trajectories}
+    return load_study(study_or_path, overrides)
+
+
+def override_key_options(
+    study: Study,
+    seed: int | str | None,
+    shots: int | str | None,
+    method: str | None,
+    trajectories: int | str | None,
+) -> dict[str, Any]:
+    """Job-key options of validated overrides (``1e6`` and ``1000000`` give one key)."""
+    return {
+        "seed": None if seed is None else study.seed,
+        "shots": None if shots is None else study.shots,
+        **emulation_key_options(
+            method, None if trajectories is None else study.emulation.trajectories
+        ),
+    }
 
 
 def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
@@ -92,12 +113,15 @@ def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, An
 def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
     """The stored result of an identical earlier job (``cls.from_record``), or None.
 
-    A record that no longer rebuilds (written by another version) counts as a miss.
+    A record that no longer rebuilds (damaged, or written by another version) counts as a miss
+    and is dropped, so that the rerun stores a good one.
     """
     hit = store.get(JOB_KIND, key) if key is not None else None
-    if hit is not None:
-        with contextlib.suppress(ValueError, TypeError, KeyError, ImportError):
+    if hit is not None and key is not None:
+        try:
             return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
+        except Exception:  # any damage costs a recomputation, never a crash
+            store.discard(JOB_KIND, key)
     return None
 
 
@@ -171,25 +195,29 @@ def assess(
     drift = int(drift) if drift else 0
     t0 = time.perf_counter()
     store = _default_cache(cache)
+    # every input is read (bounded) and validated before the cache key reads the files again
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
-        options = {"seed": seed, "shots": shots, **emulation_key_options(method, trajectories)}
+        options = override_key_options(study, seed, shots, method, trajectories)
         if drift:
             options["drift"] = drift
         key = job_key("assess", study_or_path, options)
         stored = load_job_result(store, key, AssessResult, t0)
         if stored is not None:
             return stored
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
     if context is not None:
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
     else:  # measures the verification bases exactly when a recipe verifies
         ctx = build_context(study, cache=store, progress=progress)
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
-    results = run_recipes(ctx, study.recipes, runner, progress)
-    spread = bias_spread(ctx, study.recipes, results, store, run_recipes)
-    days = assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
+    with naming_source(study.source):
+        results = run_recipes(ctx, study.recipes, runner, progress)
+        spread = bias_spread(ctx, study.recipes, results, store, run_recipes)
+        days = (
+            assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
+        )
     best = best_of(results)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots

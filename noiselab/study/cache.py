@@ -26,6 +26,7 @@ import numpy as np
 import platformdirs
 
 from noiselab.common.errors import InputError
+from noiselab.common.reading import read_input_bytes
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.emulate.engine import BasisDistributions
 from noiselab.mitigate.experiment import make_calibrator, make_runner, variant_key_material
@@ -142,6 +143,14 @@ def unpack_record(cls: type, payload: bytes) -> Any:
     return cls(**kwargs)
 
 
+def unpack_or_none(cls: type, payload: bytes) -> Any:
+    """:func:`unpack_record`, or None when the payload is damaged (a cache miss, never a crash)."""
+    try:
+        return unpack_record(cls, payload)
+    except Exception:  # any damage (truncated zip, bad JSON, wrong fields) costs a recomputation
+        return None
+
+
 def _tuplify(value: Any) -> Any:
     if isinstance(value, list):
         return tuple(_tuplify(v) for v in value)
@@ -221,7 +230,7 @@ class ResultsCache:
                     "SELECT payload, engine_seconds FROM entries WHERE kind = ? AND key = ?",
                     (kind, key),
                 ).fetchone()
-        except sqlite3.DatabaseError:
+        except (sqlite3.DatabaseError, OSError):
             return None  # a damaged cache only costs a recomputation
         return None if row is None else (bytes(row[0]), float(row[1]))
 
@@ -243,8 +252,19 @@ class ResultsCache:
                 except BaseException:
                     conn.execute("ROLLBACK")
                     raise
-        except sqlite3.DatabaseError:
-            return  # caching is an optimisation; never fail a run because of it
+        except (sqlite3.DatabaseError, OSError) as exc:
+            # caching is an optimisation; never fail a run because of it, but say so once
+            _warn_write_failed(self.path, exc)
+
+    def discard(self, kind: str, key: str) -> None:
+        """Delete one entry (a damaged one, so that the next put stores a good one)."""
+        if self.path is None:
+            return
+        try:
+            with self._connection() as conn:
+                conn.execute("DELETE FROM entries WHERE kind = ? AND key = ?", (kind, key))
+        except (sqlite3.DatabaseError, OSError) as exc:
+            _warn_write_failed(self.path, exc)
 
     def count(self, kind: str | None = None) -> int:
         """Number of stored entries (of one kind)."""
@@ -262,6 +282,29 @@ class ResultsCache:
         if conn is not None:
             conn.close()
             self._local.conn = None
+
+
+_WARNED: set[str] = set()
+
+
+def _warn_write_failed(path: Path | None, exc: BaseException) -> None:
+    """One line on stderr, once per cache file and process, when a cache write fails."""
+    key = str(path)
+    if key in _WARNED:
+        return
+    _WARNED.add(key)
+    import sys
+
+    from noiselab.common.errors import one_line
+
+    sys.stderr.write(
+        one_line(
+            f"noiselab: warning: results cache {path}: cannot store results ({exc}); this "
+            "run continues, but its results will not be reused (free disk space or use --cache)"
+        )
+        + "\n"
+    )
+    sys.stderr.flush()
 
 
 def open_cache(path: str | Path | None = None, *, enabled: bool = True) -> ResultsCache:
@@ -314,10 +357,10 @@ class CachingRunner:
         hit = self.cache.get(SIMULATION_KIND, self.key(variant))
         if hit is None:
             return None
-        try:
-            value = unpack_record(BasisDistributions, hit[0])
-        except (ValueError, TypeError, KeyError, OSError, json.JSONDecodeError):
-            return None  # unreadable entry: simulate again
+        value = unpack_or_none(BasisDistributions, hit[0])
+        if value is None:  # unreadable entry: dropped and simulated again
+            self.cache.discard(SIMULATION_KIND, self.key(variant))
+            return None
         self.cache_hits += 1
         self._memory[variant] = value
         return value
@@ -399,12 +442,12 @@ def job_key(job: str, study_path: str | Path, options: dict[str, Any]) -> str | 
     inputs cannot be read cheaply (the job then runs and reports the problem itself)."""
     p = Path(study_path)
     try:
-        raw = p.read_bytes()
+        raw = read_input_bytes(p, "study file")
         data = parse_yaml_mapping(raw.decode("utf-8"), str(p))
         device = data.get("device")
         device_bytes = b""
         if isinstance(device, str):
-            device_bytes = device_profile_path(device, p).read_bytes()
+            device_bytes = read_input_bytes(device_profile_path(device, p), "device profile")
     except (OSError, UnicodeDecodeError, InputError):
         return None
 

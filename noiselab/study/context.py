@@ -9,10 +9,10 @@ two-qubit gates, then the shortest schedule, is assessed) -> measurement plan ->
 
 from __future__ import annotations
 
+import contextlib
 import dataclasses
-import json
 import time
-from collections.abc import Callable, Iterable, Mapping
+from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
 from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
@@ -22,12 +22,11 @@ from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optim
 from noiselab.chem.spin import exact_spin_squared
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device.compile import compile_ensemble
-from noiselab.emulate.engine import choose_method
-from noiselab.emulate.memory import check_memory
 from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.plan import build_plan
 from noiselab.mitigate.registry import make_pass
-from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_record
+from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
+from noiselab.study.preflight import preflight, resolve_emulation
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import LayeredAnsatz, Study
 
@@ -134,12 +133,10 @@ def optimize(study: Study, qubit_problem: Any, circuit: Any, cache: ResultsCache
     if cache is not None:
         hit = cache.get(OPTIMUM_KIND, key)
         if hit is not None:
-            try:
-                result = unpack_record(OptimizationResult, hit[0])
-                if len(result.parameters) == circuit.num_parameters:
-                    return result
-            except (ValueError, TypeError, KeyError, json.JSONDecodeError):
-                pass  # an unreadable entry is recomputed
+            result = unpack_or_none(OptimizationResult, hit[0])
+            if result is not None and len(result.parameters) == circuit.num_parameters:
+                return result
+            cache.discard(OPTIMUM_KIND, key)  # damaged: recomputed and stored again
     result = optimize_noiseless(
         qubit_problem,
         circuit,
@@ -162,7 +159,37 @@ def recipes_verify(recipes: Iterable[Iterable[Mapping[str, Any]]]) -> bool:
     return False
 
 
+@contextlib.contextmanager
+def naming_source(source: object) -> Iterator[None]:
+    """Re-raise a one-line InputError that does not name its file with ``source`` in front
+    (chem, device and mitigation refusals know the key, not the study file)."""
+    try:
+        yield
+    except InputError as exc:
+        head = str(source)
+        if str(exc).startswith(head):
+            raise
+        raise type(exc)(f"{head}: {exc}") from None
+
+
 def build_context(
+    study: Study,
+    *,
+    cache: ResultsCache | None = None,
+    progress: ProgressHook | None = None,
+    verification: bool | None = None,
+    optimum: OptimizationResult | None = None,
+) -> StudyContext:
+    """Compute the study's problem, optimum, compiled circuit, plan and mitigation context.
+
+    Every refusal names the study file (see :func:`_build_context`)."""
+    with naming_source(study.source):
+        return _build_context(
+            study, cache=cache, progress=progress, verification=verification, optimum=optimum
+        )
+
+
+def _build_context(
     study: Study,
     *,
     cache: ResultsCache | None = None,
@@ -177,6 +204,7 @@ def build_context(
     :func:`with_verification` on a context they were given). ``optimum``: a noiseless optimum
     computed elsewhere for this study's circuit (the scan's warm-started one); None: optimize.
     """
+    preflight(study)  # every heavy step's size, before the first of them
     if verification is None:
         verification = recipes_verify(study.recipes.values())
 
@@ -302,34 +330,6 @@ def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
     return dataclasses.replace(
         ctx, experiment=experiment, emulation_method=method, emulation_notice=notice
     )
-
-
-def resolve_emulation(
-    study: Study, circuit_qubits: int, num_bases: int = 1
-) -> tuple[str, str | None]:
-    """(method, notice) the emulator will use for ``circuit_qubits`` compiled qubits.
-
-    An emulation that cannot fit (``density_matrix`` beyond the memory guard or beyond
-    ``emulation.max_density_matrix_qubits``; trajectories beyond the memory guard) is refused
-    here, before any simulation: one line naming the study file, the qubit count and the
-    memory estimate in GiB.
-    """
-    e = study.emulation
-    try:
-        method, notice = choose_method(
-            circuit_qubits, e.method, max_density_matrix_qubits=e.max_density_matrix_qubits
-        )
-        if method == "trajectory":
-            check_memory(
-                circuit_qubits,
-                "trajectory",
-                trajectories_per_batch=max(1, e.trajectories // e.batches),
-                num_bases=num_bases,
-                num_batches=e.batches,
-            )
-    except ProblemTooLargeError as exc:
-        raise ProblemTooLargeError(f"{study.source}: {exc.message}") from None
-    return method, notice
 
 
 def make_experiment(

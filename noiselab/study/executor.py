@@ -47,6 +47,8 @@ THREAD_ENV_VARS: tuple[str, ...] = (
 
 #: How many times a task is started in total when worker processes die under it.
 DEFAULT_ATTEMPTS = 3
+#: Most local worker processes: each is a full interpreter with its own simulator memory.
+MAX_WORKERS = 256
 
 _CLUSTER_ADDRESS = re.compile(r"^(tcp|tls|inproc|ucx|ws|wss)://[^\s/]+$")
 
@@ -377,9 +379,11 @@ def make_executor(workers: int | None = None, cluster: Any = None) -> Executor:
     if cluster is not None:
         return DaskExecutor(cluster)
     if workers is not None and (
-        isinstance(workers, bool) or not isinstance(workers, int) or workers < 1
+        isinstance(workers, bool) or not isinstance(workers, int) or not 1 <= workers <= MAX_WORKERS
     ):
-        raise input_error(None, "workers", f"{workers!r}", "an integer >= 1")
+        raise input_error(
+            None, "workers", f"{workers!r}", f"a whole number from 1 to {MAX_WORKERS}"
+        )
     if workers is None or workers == 1:
         return InProcessExecutor()
     return ProcessPoolExecutor(workers)
@@ -388,6 +392,7 @@ def make_executor(workers: int | None = None, cluster: Any = None) -> Executor:
 __all__ = [
     "DEFAULT_ATTEMPTS",
     "ENGINE_THREADS_ENV",
+    "MAX_WORKERS",
     "THREAD_ENV_VARS",
     "DaskExecutor",
     "Executor",

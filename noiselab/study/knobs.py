@@ -9,7 +9,16 @@ from __future__ import annotations
 import dataclasses
 
 from noiselab.common.errors import input_error
-from noiselab.device.profile import MAX_READOUT_ERROR, MAX_SINGLE_QUBIT_ERROR, MAX_TWO_QUBIT_ERROR
+from noiselab.device.profile import (
+    MAX_COHERENCE_US,
+    MAX_READOUT_ERROR,
+    MAX_SINGLE_QUBIT_ERROR,
+    MAX_TWO_QUBIT_ERROR,
+    MIN_COHERENCE_US,
+)
+from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR as MAX_NOISE_SCALE
+
+_PROBABILITY = "a probability; larger is not an error rate"
 
 
 @dataclasses.dataclass(frozen=True)
@@ -31,6 +40,8 @@ class Knob:
     inverse: bool = False
     upper: float | None = None  # largest allowed value (base units)
     allow_zero: bool = True
+    lower: float | None = None  # smallest allowed value above zero (base units)
+    reason: str = _PROBABILITY  # why the range ends where it does (shown when refused)
 
     def show(self, value: float) -> str:
         """``value`` (base units) in display units with three significant digits."""
@@ -46,6 +57,8 @@ KNOBS: dict[str, Knob] = {
         axis_label="noise scale factor (1 = device as profiled)",
         unit="",
         channels=None,
+        upper=MAX_NOISE_SCALE,
+        reason="beyond, every circuit is close to fully depolarized",
     ),
     "two-qubit-error": Knob(
         name="two-qubit-error",
@@ -73,6 +86,9 @@ KNOBS: dict[str, Knob] = {
         channels=("relaxation",),
         inverse=True,
         allow_zero=False,
+        lower=MIN_COHERENCE_US,
+        upper=MAX_COHERENCE_US,
+        reason="T1 from 1 ns to 1000 s; outside, a unit typo",
     ),
     "readout-error": Knob(
         name="readout-error",

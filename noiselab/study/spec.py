@@ -28,19 +28,23 @@ from pydantic import (
 )
 
 from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
-from noiselab.common.errors import InputError, from_validation_error, input_error
+from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
+from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device.profile import load_profile, profile_from_mapping
+from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
 from noiselab.study.knobs import KNOB_ALIASES, KNOBS
+from noiselab.study.preflight import check_sizes
 from noiselab.study.rehearse_spec import RehearseSettings
 
 ENCODINGS = ("jordan_wigner", "parity", "bravyi_kitaev")
-MAX_SHOTS = 10**12
+#: Most points of one sweep (each point is a full set of simulations).
+MAX_SWEEP_POINTS = 200
 _NAME_RE = re.compile(r"^[A-Za-z0-9][A-Za-z0-9_.-]{0,63}$")
 
 
@@ -69,10 +73,10 @@ class UccsdAnsatz(_Strict):
     kind: Literal["uccsd"]
     singles: StrictBool = True
     doubles: StrictBool = True
-    starts: StrictInt = Field(default=1, ge=1, le=32, description="optimizer starting points")
-    max_starts: StrictInt = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
-    start_seed: StrictInt = Field(default=0, ge=0, lt=2**32, description="random starts' seed")
-    max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+    starts: Count = Field(default=1, ge=1, le=32, description="optimizer starting points")
+    max_starts: Count = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: Count = Field(default=0, ge=0, le=MAX_SEED, description="random starts' seed")
+    max_iterations: Count = Field(default=2000, ge=1, le=100000)
 
     @model_validator(mode="after")
     def _check_starts(self) -> UccsdAnsatz:
@@ -87,13 +91,13 @@ class LayeredAnsatz(_Strict):
     """Hardware-efficient layers of ry/rz rotations and entangling pairs, from Hartree-Fock."""
 
     kind: Literal["layered"]
-    layers: StrictInt = Field(default=2, ge=1, le=20)
+    layers: Count = Field(default=2, ge=1, le=20)
     pairs: Literal["linear", "ring", "all"] | list[tuple[StrictInt, StrictInt]] = "linear"
     entangler: Literal["cz", "cx"] = "cz"
-    starts: StrictInt = Field(default=3, ge=1, le=32, description="optimizer starting points")
-    max_starts: StrictInt = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
-    start_seed: StrictInt = Field(default=0, ge=0, lt=2**32, description="random starts' seed")
-    max_iterations: StrictInt = Field(default=2000, ge=1, le=100000)
+    starts: Count = Field(default=3, ge=1, le=32, description="optimizer starting points")
+    max_starts: Count = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: Count = Field(default=0, ge=0, le=MAX_SEED, description="random starts' seed")
+    max_iterations: Count = Field(default=2000, ge=1, le=100000)
 
     @model_validator(mode="after")
     def _check_starts(self) -> LayeredAnsatz:
@@ -128,8 +132,8 @@ class CompileOptions(_Strict):
     distinct compile and circuit variant; density-matrix emulation only).
     """
 
-    optimization_level: StrictInt = Field(default=2, ge=0, le=3)
-    seeds: StrictInt = Field(default=8, ge=1, le=64)
+    optimization_level: Count = Field(default=2, ge=0, le=3)
+    seeds: Count = Field(default=8, ge=1, le=64)
     bias_spread: StrictBool = True
 
 
@@ -155,8 +159,11 @@ class TuneGrid(_Strict):
                 raise ValueError(
                     f"scale set {i} has {len(scales)} factor(s); allowed: at least 2 factors >= 1"
                 )
-            if any(not math.isfinite(s) or s < 1.0 for s in scales):
-                raise ValueError(f"scale set {i} = {scales}: allowed: finite factors >= 1")
+            if any(not math.isfinite(s) or not 1.0 <= s <= MAX_SCALE_FACTOR for s in scales):
+                raise ValueError(
+                    f"scale set {i} = {quote(scales)}: allowed: factors from 1 to "
+                    f"{MAX_SCALE_FACTOR:g} (beyond, every circuit is close to fully depolarized)"
+                )
             if len(set(scales)) != len(scales):
                 raise ValueError(
                     f"scale set {i} = {scales} repeats a factor; allowed: distinct factors"
@@ -175,7 +182,7 @@ class SweepDefaults(_Strict):
     vary: str | None = None
     start: float | None = None
     stop: float | None = None
-    points: StrictInt | None = Field(default=None, ge=2, le=200)
+    points: Count | None = Field(default=None, ge=2, le=MAX_SWEEP_POINTS)
     log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
 
@@ -185,7 +192,7 @@ class SweepDefaults(_Strict):
         if value is None:
             return value
         if KNOB_ALIASES.get(value, value) not in KNOBS:
-            raise ValueError(f"unknown knob {value!r}; allowed: {', '.join(KNOBS)}")
+            raise ValueError(f"unknown knob {quote(value)}; allowed: {', '.join(KNOBS)}")
         return value
 
     @field_validator("start", "stop")
@@ -213,9 +220,9 @@ class EmulationSettings(_Strict):
     """
 
     method: Literal["auto", "density_matrix", "trajectory"] = "auto"
-    trajectories: StrictInt = Field(default=DEFAULT_TRAJECTORIES, ge=2, le=10**7)
-    batches: StrictInt = Field(default=DEFAULT_BATCHES, ge=2, le=10**4)
-    max_density_matrix_qubits: StrictInt | None = Field(default=None, ge=1, le=64)
+    trajectories: Count = Field(default=DEFAULT_TRAJECTORIES, ge=2, le=10**7)
+    batches: Count = Field(default=DEFAULT_BATCHES, ge=2, le=10**4)
+    max_density_matrix_qubits: Count | None = Field(default=None, ge=1, le=64)
 
     @model_validator(mode="after")
     def _check_batches(self) -> EmulationSettings:
@@ -239,11 +246,11 @@ class StudyFile(_Strict):
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
     compile: CompileOptions = CompileOptions()
-    shots: StrictInt = Field(description="total shots per energy estimate")
+    shots: Count = Field(description="total shots per energy estimate")
     target_mha: float = CHEMICAL_ACCURACY_MHA
     confidence: float = 0.95
     recipes: dict[str, list[dict[str, Any]]] = Field(min_length=1)
-    seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    seed: Count = Field(default=0, ge=0, le=MAX_SEED)
     #: relative std of the realized noise scale of each amplified point (zero-noise
     #: extrapolation); the default is a stated common-practice value, 0 reproduces ideal
     amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
@@ -260,7 +267,8 @@ class StudyFile(_Strict):
     def _check_name(cls, value: str) -> str:
         if not _NAME_RE.match(value):
             raise ValueError(
-                f"{value!r} is not a valid study name; allowed: letters, digits, '_', '-', '.', "
+                f"{quote(value)} is not a valid study name; allowed: letters, digits, '_', '-', "
+                "'.', "
                 "at most 64 characters, starting with a letter or digit"
             )
         return value
@@ -295,7 +303,7 @@ class StudyFile(_Strict):
     @classmethod
     def _check_shots(cls, value: int) -> int:
         if not 0 < value <= MAX_SHOTS:
-            raise ValueError(f"{value} shots; allowed: an integer from 1 to {MAX_SHOTS:.0e}")
+            raise ValueError(f"{value} shots; allowed: a whole number from 1 to {MAX_SHOTS:.0e}")
         return value
 
     @field_validator("target_mha")
@@ -336,7 +344,7 @@ class StudyFile(_Strict):
         for name in value:
             if not re.match(r"^[A-Za-z][A-Za-z0-9_-]{0,47}$", name):
                 raise ValueError(
-                    f"recipe name {name!r}: allowed: letters, digits, '_' and '-', "
+                    f"recipe name {quote(name)}: allowed: letters, digits, '_' and '-', "
                     "starting with a letter"
                 )
         return value
@@ -377,59 +385,148 @@ class Study:
     def transpiler_seeds(self) -> tuple[int, ...]:
         return tuple(range(self.compile_seeds))
 
-    def with_seed(self, seed: int | None) -> Study:
+    def with_overrides(
+        self,
+        *,
+        seed: int | str | None = None,
+        shots: int | str | None = None,
+        method: str | None = None,
+        trajectories: int | str | None = None,
+    ) -> Study:
+        """The same study with command-line overrides (None keeps the file's value).
+
+        Each override goes through the file's own model (:class:`StudyFile`), bounds included,
+        so ``--shots 1e6`` is accepted like ``shots: 1e6`` and ``--shots 2.5``, ``--shots 1e20``
+        and ``--seed -1`` are refused like the same values in the file; the message names the
+        option. A smaller ``--trajectories`` than the file's batches lowers the batches.
+        """
+        overrides = {"seed": seed, "shots": shots, "method": method, "trajectories": trajectories}
+        if all(v is None for v in overrides.values()):
+            return self
+        base = dict(self.raw) if self.raw else {"emulation": self.emulation.model_dump()}
+        data = apply_overrides(base, str(self.source), overrides)
+        spec = StudyFile.model_validate(data)
+
+        return dataclasses.replace(
+            self, seed=spec.seed, shots=spec.shots, emulation=spec.emulation, raw=data
+        )
+
+    def with_seed(self, seed: int | str | None) -> Study:
         """The same study with another seed (None keeps the file's)."""
-        if seed is None or seed == self.seed:
-            return self
+        return self.with_overrides(seed=seed)
 
-        return dataclasses.replace(self, seed=int(seed))
+    def with_emulation(
+        self, method: str | None = None, trajectories: int | str | None = None
+    ) -> Study:
+        """The same study with the emulation method and/or trajectory count overridden."""
+        return self.with_overrides(method=method, trajectories=trajectories)
 
-    def with_emulation(self, method: str | None = None, trajectories: int | None = None) -> Study:
-        """The same study with the emulation method and/or trajectory count overridden
-        (command-line ``--method`` / ``--trajectories``; None keeps the study's)."""
-        if method is None and trajectories is None:
-            return self
-
-        data = self.emulation.model_dump()
-        if method is not None:
-            if method not in EMULATION_METHODS:
-                raise input_error(
-                    str(self.source), "--method", f"{method!r}", ", ".join(EMULATION_METHODS)
-                )
-            data["method"] = method
-        if trajectories is not None:
-            data["trajectories"] = trajectories
-            data["batches"] = min(int(data["batches"]), max(2, int(trajectories)))
-        try:
-            emulation = EmulationSettings.model_validate(data)
-        except ValidationError as exc:
-            raise from_validation_error(exc, str(self.source), prefix="--trajectories") from None
-        return dataclasses.replace(self, emulation=emulation)
-
-    def with_shots(self, shots: int | None) -> Study:
+    def with_shots(self, shots: int | str | None) -> Study:
         """The same study with another shot budget (None keeps the file's)."""
-        if shots is None or shots == self.shots:
-            return self
-        if shots <= 0:
-            raise input_error(str(self.source), "--shots", f"{shots} shots", "a positive integer")
-
-        return dataclasses.replace(self, shots=int(shots))
+        return self.with_overrides(shots=shots)
 
 
-def load_study(path: str | Path) -> Study:
+#: Command-line option of each overridable file key (a refused override names the option).
+OVERRIDE_OPTIONS = {
+    "seed": "--seed",
+    "shots": "--shots",
+    "emulation.method": "--method",
+    "emulation.trajectories": "--trajectories",
+    "emulation.batches": "--trajectories",
+    "emulation": "--trajectories",
+}
+
+
+def apply_overrides(
+    data: Mapping[str, Any], source: str, overrides: Mapping[str, Any] | None
+) -> dict[str, Any]:
+    """The study mapping with command-line overrides merged in and validated by the file's own
+    model (:class:`StudyFile`), bounds included.
+
+    ``overrides`` maps ``seed``, ``shots``, ``method``, ``trajectories`` to a value (None: keep
+    the file's). ``--shots 1e6`` is accepted like ``shots: 1e6``; ``--shots 2.5``, ``--shots
+    1e20`` and ``--seed -1`` are refused like the same values in the file, and the one-line
+    message names the option. A ``--trajectories`` below the file's batches lowers the batches.
+    """
+    out = dict(data)
+    given = {k: v for k, v in (overrides or {}).items() if v is not None}
+    if not given:
+        return out
+    emulation = out.get("emulation")
+    emulation = dict(emulation) if isinstance(emulation, Mapping) else {}
+    for key in ("seed", "shots"):
+        if key in given:
+            out[key] = given[key]
+    for key in ("method", "trajectories"):
+        if key in given:
+            emulation[key] = given[key]
+    out["emulation"] = emulation
+    spec = _validate_overridden(out, source, given)
+    e = spec.emulation
+    if "trajectories" in given and e.batches > e.trajectories:
+        emulation["batches"] = max(2, e.trajectories)
+        _validate_overridden(out, source, given)
+    return out
+
+
+def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[str, Any]) -> Any:
+    try:
+        return StudyFile.model_validate(dict(data))
+    except ValidationError as exc:
+        error = from_validation_error(exc, source)
+        text = str(error)
+        for key, option in OVERRIDE_OPTIONS.items():
+            head = f"{source}: {key}: "
+            name = option.removeprefix("--")
+            if text.startswith(head) and name in given:
+                value = quote(given[name])
+                raise InputError(f"{source}: {option} {value}: {text.removeprefix(head)}") from None
+        raise error from None
+
+
+_SWEEP_OPTIONS = {"points": "--points", "start": "--from", "stop": "--to"}
+
+
+def validate_sweep_options(
+    source: str, *, points: Any = None, start: Any = None, stop: Any = None
+) -> SweepDefaults:
+    """Command-line sweep values through the file's own ``sweep:`` model (bounds included);
+    a refused value is named by its option (``--points``)."""
+    data = {"points": points, "start": start, "stop": stop}
+    try:
+        return SweepDefaults.model_validate(data)
+    except ValidationError as exc:
+        first = exc.errors(include_url=False)[0]
+        key = str(first.get("loc", ("?",))[0])
+        option = _SWEEP_OPTIONS.get(key, key)
+        text = str(from_validation_error(exc, None))
+        text = text.removeprefix(f"{key}: ")
+        raise InputError(f"{source}: {option} {quote(data.get(key))}: {text}") from None
+
+
+def load_study(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Study:
     """Read, validate and resolve a study file (a path, or the name of a shipped study such as
-    ``h2-stretched``); bad input raises a one-line InputError."""
+    ``h2-stretched``); bad input raises a one-line InputError.
+
+    ``overrides``: command-line values of ``seed``, ``shots``, ``method`` and ``trajectories``
+    (see :func:`apply_overrides`), validated with the file."""
     src_path = Path(path)
     if not src_path.exists() and looks_like_name(str(path)):
         src_path = shipped_path("studies", str(path), str(path), "study")
     data = load_yaml_mapping(src_path, what="study file")
-    return study_from_mapping(data, src_path)
+    return study_from_mapping(data, src_path, overrides)
 
 
-def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
-    """Validate a study mapping; relative device paths are resolved against ``source``'s folder."""
+def study_from_mapping(
+    data: Mapping[str, Any], source: str | Path, overrides: Mapping[str, Any] | None = None
+) -> Study:
+    """Validate a study mapping; relative device paths are resolved against ``source``'s folder.
+
+    The sizes of the heavy steps are checked against the memory before the recipes (see
+    :mod:`noiselab.study.preflight`), so a study too large for this machine is refused early."""
     src_path = Path(source)
     src = str(src_path)
+    data = apply_overrides(data, src, overrides)
     try:
         spec = StudyFile.model_validate(dict(data))
     except ValidationError as exc:
@@ -443,12 +540,10 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             "drop_fixed_parity_qubits: false, or encoding: parity",
         )
     ansatz = _validate_ansatz(spec.ansatz, src)
-    molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
+
+    # the device first: reading it is cheap, the molecule's check runs PySCF
     profile, device_source = _resolve_device(spec.device, src_path)
-    recipes = {
-        name: validate_recipe(passes, src, f"recipes.{name}")
-        for name, passes in spec.recipes.items()
-    }
+    molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
     num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
@@ -460,6 +555,11 @@ def study_from_mapping(data: Mapping[str, Any], source: str | Path) -> Study:
             f"a device with at least {num_qubits} qubits, a smaller active space, "
             "or drop_fixed_parity_qubits",
         )
+    check_sizes(src, molecule, ansatz, num_qubits, spec.emulation)  # before any heavy step
+    recipes = {
+        name: validate_recipe(passes, src, f"recipes.{name}")
+        for name, passes in spec.recipes.items()
+    }
     layout = None
     if spec.layout is not None:
         missing = [q for q in spec.layout if q not in device_qubits]
@@ -576,11 +676,16 @@ def device_profile_path(value: str, study_path: Path) -> Path:
     if not resolved.exists() and looks_like_name(value):
         resolved = shipped_path("devices", value, src, "device")
     if not resolved.is_file():
-        what = "is a folder" if resolved.is_dir() else "no such file"
+        if resolved.is_dir():
+            what = "is a folder"
+        elif resolved.exists():
+            what = "is not a regular file (a device, pipe or socket)"
+        else:
+            what = "not found (no such file)"
         raise input_error(
             src,
             "device",
-            f"device profile {resolved} not found ({what})",
+            f"device profile {resolved} {what}",
             "a profile path relative to the study file, a shipped profile name "
             "(noiselab shipped), or an inline profile mapping",
         )

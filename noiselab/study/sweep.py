@@ -49,12 +49,13 @@ def check_value(knob: Knob, value: float, option: str, log: bool = False) -> flo
         raise input_error(
             "sweep", option, f"{value} is out of range for {knob.name}", "> 0" if strict else ">= 0"
         )
-    if knob.upper is not None and v > knob.upper:
+    low = 0.0 if knob.lower is None else knob.lower
+    if (knob.upper is not None and v > knob.upper) or (v > 0 and v < low):
         raise input_error(
             "sweep",
             option,
             f"{value} is out of range for {knob.name}",
-            f"0..{knob.upper:g} (a probability; larger is not an error rate)",
+            f"{low:g}..{knob.upper:g} ({knob.reason})",
         )
     return v
 
@@ -654,7 +655,11 @@ def sweep(
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
     stop = stop if not same_knob else default("stop", stop, None)
-    points = int(default("points", points, 5))
+    from noiselab.study.spec import validate_sweep_options
+
+    given = validate_sweep_options(str(study.source), points=points, start=start, stop=stop)
+    start, stop = given.start, given.stop
+    points = int(default("points", given.points, 5))
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     store = _default_cache(cache)

@@ -25,9 +25,9 @@ from noiselab.mitigate.registry import make_pass
 from noiselab.mitigate.variants import CircuitVariant
 from noiselab.study.assess import (
     _default_cache,
-    emulation_key_options,
     job_fields,
     load_job_result,
+    override_key_options,
     resolve_study,
     save_job_result,
 )
@@ -65,6 +65,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     Returns the grid and, per axis, where it came from (for messages: '--fit' or 'tune.fit').
     """
     override = override or GridOverride()
+    _validate_override(override)
     section = study.tune or TuneGrid()
     defaults = DEFAULT_AXES
     values: dict[str, Any] = {}
@@ -87,6 +88,26 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     )
     check_axes(grid, origin)
     return grid, origin
+
+
+def _validate_override(override: GridOverride) -> None:
+    """Command-line axes through the file's own ``tune:`` model (bounds included); a refused
+    value is named by its option (``--scales``)."""
+    from pydantic import ValidationError
+
+    from noiselab.common.errors import from_validation_error
+
+    given = {
+        axis: list(value)
+        for axis, value in dataclasses.asdict(override).items()
+        if value is not None
+    }
+    try:
+        TuneGrid.model_validate(given)
+    except ValidationError as exc:
+        text = str(from_validation_error(exc, None))
+        axis = text.split(":", 1)[0].split(".")[0].split("[")[0]
+        raise InputError(f"--{axis}: {text.removeprefix(axis).lstrip(':. ')}") from None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -188,20 +209,19 @@ def tune(
     """
     t0 = time.perf_counter()
     store = _default_cache(cache)
+    # every input is read (bounded) and validated before the cache key reads the files again
+    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = {
-            "seed": seed,
-            "shots": shots,
+            **override_key_options(study, seed, shots, method, trajectories),
             "grid": dataclasses.asdict(grid or GridOverride()),
-            **emulation_key_options(method, trajectories),
         }
         key = job_key("tune", study_or_path, jsonable(options))
         stored = load_job_result(store, key, TuneResult, t0)
         if stored is not None:
             return stored
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
-    resolved, _ = resolve_grid(study, grid)
     own_executor = executor is None
     if executor is None:  # before the (slow) context: a bad cluster address fails at once
         executor = make_executor(workers, cluster)

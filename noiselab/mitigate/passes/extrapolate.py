@@ -40,6 +40,7 @@ from typing import Any, ClassVar, Literal
 import numpy as np
 from pydantic import Field, field_validator, model_validator
 
+from noiselab.common.counts import Count
 from noiselab.common.units import HA_TO_MHA
 from noiselab.device.channel_registry import CHANNELS
 from noiselab.mitigate.base import STAGE_COMBINE, Combined, MitigationPass, PassOptions, Workspace
@@ -52,13 +53,20 @@ from noiselab.mitigate.variants import STRETCH_CHANNELS, CircuitVariant, folded,
 ChannelName = Literal[CHANNELS]  # type: ignore[valid-type]  # the device registry's names
 MIN_POINTS = {"linear": 2, "richardson": 2, "exponential": 3}
 CURVE_POINTS = 91  # samples of the reported fitted curve on [0, largest scale]
+#: Largest noise scale factor: beyond about 100 x the device's noise every circuit is close to
+#: fully depolarized, nothing is left to extrapolate from (and a folded circuit is 100 x long).
+MAX_SCALE_FACTOR = 100.0
+#: Most scale factors of one extrapolation (each is a full set of simulations).
+MAX_SCALES = 20
 
 
 class ExtrapolateOptions(PassOptions):
     amplifier: Literal["stretch", "whole_circuit", "two_qubit_gates"] = "stretch"
-    scales: tuple[float, ...] = (1.0, 2.0, 3.0)
+    scales: tuple[float, ...] = Field(default=(1.0, 2.0, 3.0), max_length=MAX_SCALES)
     fit: Literal["linear", "richardson", "polynomial", "exponential"] = "richardson"
-    degree: int | None = Field(default=None, ge=1, description="polynomial fit only")
+    degree: Count | None = Field(
+        default=None, ge=1, le=MAX_SCALES - 1, description="polynomial fit only"
+    )
     channels: tuple[ChannelName, ...] | None = None  # stretch only; None: all but readout
     shot_split: Literal["equal", "weighted"] = "equal"
     scale_axis: Literal["realized", "nominal"] = "realized"  # folding: what the fit runs against
@@ -68,6 +76,11 @@ class ExtrapolateOptions(PassOptions):
     def _scales(cls, v: tuple[float, ...]) -> tuple[float, ...]:
         if any(not math.isfinite(c) or c < 1.0 for c in v):
             raise ValueError("scale factors must be finite and >= 1 (1 = the device as it is)")
+        if any(c > MAX_SCALE_FACTOR for c in v):
+            raise ValueError(
+                f"scale factors must be at most {MAX_SCALE_FACTOR:g} (beyond, every circuit is "
+                "close to fully depolarized: nothing left to extrapolate from)"
+            )
         if len(set(v)) != len(v):
             raise ValueError("scale factors must be distinct")
         return tuple(float(c) for c in v)
@@ -186,6 +199,24 @@ class ExtrapolatePass(MitigationPass):
         o = self.options
         fit = f"polynomial{o.degree}" if o.fit == "polynomial" else o.fit
         return f"extrapolate({o.amplifier},{fit},{'/'.join(f'{c:g}' for c in o.scales)})"
+
+    def check(self, ctx, where: str) -> None:
+        """Refuse folding that would make a circuit too long to schedule and emulate."""
+        from noiselab.common.errors import ProblemTooLargeError
+        from noiselab.device.folding import MAX_FOLDED_GATES, folded_gate_count
+
+        o = self.options
+        if o.amplifier == "stretch":
+            return
+        method = o.amplifier
+        scale = max(o.scales)
+        gates = folded_gate_count(ctx.compiled.circuit, method, scale)
+        if gates > MAX_FOLDED_GATES:
+            raise ProblemTooLargeError(
+                f"{where}.scales: folding to {scale:g} gives a circuit of {gates} gates; "
+                f"allowed: at most {MAX_FOLDED_GATES} gates (smaller scales, or amplifier "
+                "'stretch', which does not lengthen the circuit)"
+            )
 
     def variants(self, ctx) -> tuple[CircuitVariant, ...]:
         o = self.options

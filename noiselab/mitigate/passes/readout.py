@@ -29,6 +29,7 @@ from typing import Any, ClassVar, Literal
 import numpy as np
 from pydantic import Field
 
+from noiselab.common.counts import MAX_SHOTS, Count
 from noiselab.common.errors import InputError
 from noiselab.mitigate.base import (
     STAGE_CORRECT,
@@ -51,8 +52,11 @@ class ReadoutOptions(PassOptions):
     method: Literal["per_qubit_inverse", "full_inverse", "nearest_probability"] = (
         "per_qubit_inverse"
     )
-    calibration_shots: int | None = Field(
-        default=4000, ge=0, description="shots per calibration circuit; 0 or null: exact matrices"
+    calibration_shots: Count | None = Field(
+        default=4000,
+        ge=0,
+        le=MAX_SHOTS,
+        description="shots per calibration circuit; 0 or null: exact matrices",
     )
 
 
