@@ -130,10 +130,8 @@ def test_ctrl_c_prints_the_interrupt_line(study: Path, tmp_path: Path) -> None:
 
 def run_main(argv: list[str]) -> tuple[int, str]:
     """(exit code, stdout + stderr) of ``noiselab argv`` in-process."""
-    from noiselab.cli.app import app, main
+    from noiselab.cli.app import main
 
-    # main() registers the commands on the module's app at every call: undo it afterwards
-    n_commands, n_groups = len(app.registered_commands), len(app.registered_groups)
     buf = io.StringIO()
     with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(buf):
         try:
@@ -141,8 +139,6 @@ def run_main(argv: list[str]) -> tuple[int, str]:
             code = 0
         except SystemExit as exc:
             code = int(exc.code or 0)
-        finally:
-            del app.registered_commands[n_commands:], app.registered_groups[n_groups:]
     return code, buf.getvalue()
 
 

@@ -42,11 +42,8 @@ recipes:
 
 def run_main(argv: list[str]) -> tuple[int, str, str]:
     """``noiselab argv`` in-process: (exit code, stdout, stderr)."""
-    from noiselab.cli.app import app, main
+    from noiselab.cli.app import main
 
-    # main() registers the commands on the module's app at every call: undo it afterwards, or
-    # hundreds of in-process calls make each one slower than the last
-    n_commands, n_groups = len(app.registered_commands), len(app.registered_groups)
     out, err = io.StringIO(), io.StringIO()
     with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
         try:
@@ -54,8 +51,6 @@ def run_main(argv: list[str]) -> tuple[int, str, str]:
             code = 0
         except SystemExit as exc:
             code = int(exc.code or 0)
-        finally:
-            del app.registered_commands[n_commands:], app.registered_groups[n_groups:]
     return code, out.getvalue(), err.getvalue()
 
 
