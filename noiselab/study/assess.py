@@ -161,7 +161,7 @@ def run_recipes(
     if progress is not None:
         progress(label, 0, total)
     for i, (name, passes) in enumerate(recipes.items()):
-        out[name] = run_recipe(list(passes), ctx.experiment, runner, calibrator=runner.calibrator)
+        out[name] = run_recipe(list(passes), ctx.experiment, runner)
         if progress is not None:
             progress(label, i + 1, total)
     return out

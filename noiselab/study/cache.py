@@ -29,7 +29,7 @@ from noiselab.common.errors import InputError
 from noiselab.common.reading import read_input_bytes
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.emulate.engine import BasisDistributions
-from noiselab.mitigate.experiment import make_calibrator, make_runner, variant_key_material
+from noiselab.mitigate.experiment import make_runner, variant_key_material
 from noiselab.study.spec import device_profile_path
 
 CACHE_FILE_NAME = "results-v1.sqlite"
@@ -336,8 +336,6 @@ class CachingRunner:
         self, experiment: Any, cache: ResultsCache | None = None, base: Any = None
     ) -> None:
         self.experiment = experiment
-        #: readout-calibration distributions, memoized for the whole job (pass to run_recipe)
-        self.calibrator = make_calibrator(experiment)
         self.cache = cache if cache is not None else ResultsCache.disabled()
         self._base = base if base is not None else make_runner(experiment)
         self._memory: dict[Any, Any] = {}
@@ -346,6 +344,12 @@ class CachingRunner:
         self.cache_hits = 0
         self.engine_seconds = 0.0
         self.requested: set[Any] = set()
+
+    @property
+    def calibrator(self) -> Any:
+        """The experiment's own readout calibrator (``experiment.calibrator``, memoized with the
+        context), so a runner and ``run_recipe``'s default share one memo."""
+        return self.experiment.calibrator
 
     def key(self, variant: Any) -> str:
         """SHA-256 of everything that determines this variant's simulation."""

@@ -31,7 +31,7 @@ from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, s
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.cache import CachingRunner
-from noiselab.study.context import build_context
+from noiselab.study.context import build_context, replace_experiment
 from noiselab.study.executor import make_executor
 from noiselab.study.knobs import Knob, get_knob
 from noiselab.study.results import RunStats, trajectory_std_of
@@ -438,7 +438,7 @@ class ConfigOutcome:
 
 def run_config(task: ConfigTask) -> ConfigOutcome:
     """Run ``task`` (module level, so process pools and dask can run it)."""
-    experiment = dataclasses.replace(task.experiment, profile=task.profile)
+    experiment = replace_experiment(task.experiment, profile=task.profile)
     runner = CachingRunner(experiment, task.cache)
     results = tuple(
         (name, run_recipe(list(passes), experiment, runner)) for name, passes in task.recipes

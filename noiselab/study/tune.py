@@ -254,9 +254,7 @@ def tune(
     memo = EstimateMemo()
     results: list[tuple[Setting, Any]] = []
     for i, s in enumerate(settings):
-        result = run_recipe(
-            list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator, memo=memo
-        )
+        result = run_recipe(list(s.passes), ctx.experiment, runner, memo=memo)
         results.append((s, result))
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
