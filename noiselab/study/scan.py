@@ -52,6 +52,7 @@ from noiselab.chem.encode import encode
 from noiselab.chem.molecule import compute_problem, molecule_from_mapping
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
 from noiselab.common.atomic import write_text_atomic
+from noiselab.common.counts import Count, parse_count
 from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
@@ -94,8 +95,8 @@ class ScanSection(BaseModel):
     scale: bool = False
     start: float | None = Field(default=None, allow_inf_nan=False, gt=0)
     stop: float | None = Field(default=None, allow_inf_nan=False, gt=0)
-    points: int = Field(default=9, ge=2, le=MAX_POINTS)
-    refine: int = Field(default=2, ge=0, le=MAX_REFINE)
+    points: Count = Field(default=9, ge=2, le=MAX_POINTS)
+    refine: Count = Field(default=2, ge=0, le=MAX_REFINE)
     recipes: list[str] | None = None
 
 
@@ -208,8 +209,8 @@ def scan_axis(
     start = section.start if start is None else start
     stop = section.stop if stop is None else stop
     start, stop = (lo_d if start is None else float(start)), (hi_d if stop is None else float(stop))
-    points = section.points if points is None else int(points)
-    refine = section.refine if refine is None else int(refine)
+    points = section.points if points is None else parse_count(points, "--points", 2, MAX_POINTS)
+    refine = section.refine if refine is None else parse_count(refine, "--refine", 0, MAX_REFINE)
     for key, v in (("--from", start), ("--to", stop)):
         if not math.isfinite(v) or v <= 0:
             raise input_error(
