@@ -15,7 +15,6 @@ from collections.abc import Callable, Iterable, Sequence
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-import annotated_types
 from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_validator
 
 from noiselab.common.atomic import check_output_dir, write_output_set
@@ -29,11 +28,10 @@ from noiselab.study.spec import EMULATION_METHODS, EmulationSettings, StudyFile
 def _file_bounds(model: type[BaseModel], name: str) -> dict[str, int]:
     """The ``ge`` / ``le`` bounds of a study-file field (the command line uses the same)."""
     out: dict[str, int] = {}
-    for meta in model.model_fields[name].metadata:
-        if isinstance(meta, annotated_types.Ge):
-            out["ge"] = int(meta.ge)  # type: ignore[call-overload]
-        elif isinstance(meta, annotated_types.Le):
-            out["le"] = int(meta.le)  # type: ignore[call-overload]
+    for meta in model.model_fields[name].metadata:  # pydantic's Ge(ge=...), Le(le=...)
+        for bound in ("ge", "le"):
+            if type(meta).__name__.lower() == bound:
+                out[bound] = int(getattr(meta, bound))
     return out
 
 
