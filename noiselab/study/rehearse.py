@@ -52,6 +52,7 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
+from noiselab.study.job import as_cache
 from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
 from noiselab.study.spec import Study, load_study
 
@@ -311,8 +312,6 @@ def rehearse(
     ``shots_per_evaluation``, ``repeats``, ``start``, ``max_shots``, ``seed``, ...).
     ``analytic``: test-only; in-loop evaluations return the analytic expectation.
     """
-    from noiselab.study.assess import _default_cache
-
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
@@ -322,7 +321,7 @@ def rehearse(
     )
     verify = recipes_verify([loop_passes, final_passes])
     if context is None:
-        context = build_context(study, cache=_default_cache(cache), verification=verify)
+        context = build_context(study, cache=as_cache(cache), verification=verify)
     ctx = with_verification(context, verify)
     for where, passes in (("rehearse.loop_recipe", loop_passes), ("final recipe", final_passes)):
         try:

@@ -57,7 +57,7 @@ from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, check_recipes, resolve_study, run_recipes
+from noiselab.study.assess import check_recipes, run_recipes
 from noiselab.study.cache import (
     CachingRunner,
     ResultsCache,
@@ -68,6 +68,7 @@ from noiselab.study.cache import (
 )
 from noiselab.study.context import _optimum_key, ansatz_circuit, build_context, recipes_verify
 from noiselab.study.executor import make_executor
+from noiselab.study.job import start_job
 from noiselab.study.results import RunStats, csv_text, jsonable
 from noiselab.study.spec import Study
 from noiselab.study.sweep import chosen_recipes
@@ -599,14 +600,15 @@ def scan(
     ``recipes``: the study's recipes to follow (raw always first; default the scan: section's,
     else all). ``on_point(point)`` runs in the calling process as each point finishes.
     """
-    t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     axis = scan_axis(study, bond, scale, start, stop, points, refine)
     if recipes is None:
         section = study.raw.get("scan") if isinstance(study.raw, dict) else None
         recipes = (section or {}).get("recipes")
     picked = chosen_recipes(study, recipes)
-    store = _default_cache(cache)
     for v in (axis.start, axis.stop):  # refuse a bad geometry before any work
         study_at(study, axis, v)
     done: dict[float, ScanPoint] = {}

@@ -17,22 +17,20 @@ cache), not by interpolation.
 
 from __future__ import annotations
 
-import contextlib
 import dataclasses
 import itertools
 import math
-import time
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Sequence
 from typing import Any
 
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, scale_profile
 from noiselab.mitigate.recipe import run_recipe
-from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.cache import CachingRunner
 from noiselab.study.context import build_context, replace_experiment
 from noiselab.study.executor import make_executor
+from noiselab.study.job import own_executor, scan_fields, start_job
 from noiselab.study.knobs import Knob, get_knob
 from noiselab.study.results import RunStats, trajectory_std_of
 
@@ -504,25 +502,6 @@ def run_configs(
             ex.close()
 
 
-def scan_fields(
-    study: Any, ctx: Any, recipes: tuple[str, ...], stats: RunStats
-) -> dict[str, Any]:
-    """Fields that sweep and budget results take from the study, its context and the run."""
-    return {
-        "study_name": study.name,
-        "device_name": str(study.profile.name),
-        "recipes": recipes,
-        "target_mha": float(study.target_mha),
-        "shots_total": int(study.shots),
-        "exact_energy_ha": float(ctx.exact_energy_ha),
-        "ansatz_energy_ha": float(ctx.ansatz_energy_ha),
-        "stats": stats,
-        "emulation_method": ctx.emulation_method,
-        "emulation_notice": ctx.emulation_notice,
-        "confidence": float(study.confidence),
-    }
-
-
 def entry_from(name: str, r: Any) -> SweepEntry:
     """A SweepEntry from a RecipeResult."""
     return SweepEntry(
@@ -640,8 +619,10 @@ def sweep(
     point)`` is called in the calling process as each point finishes. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     defaults = getattr(study, "sweep", None)
 
     def default(name: str, given: Any, fallback: Any) -> Any:
@@ -662,7 +643,6 @@ def sweep(
     points = int(default("points", given.points, 5))
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
-    store = _default_cache(cache)
     if points < 2 and values is None:
         raise input_error("sweep", "--points", f"{points} points", "2 or more")
     # refuse a bad range before the (slow) context is built
@@ -676,24 +656,21 @@ def sweep(
             raise input_error("sweep", "values", "no knob values", "at least one value")
     with own_executor(workers, cluster, executor) as ex:
         return _sweep_with(
-            study, spec, start, stop, points, log, picked, values, store, ex, progress,
-            on_point, context, t0,
+            study,
+            spec,
+            start,
+            stop,
+            points,
+            log,
+            picked,
+            values,
+            store,
+            ex,
+            progress,
+            on_point,
+            context,
+            t0,
         )
-
-
-@contextlib.contextmanager
-def own_executor(workers: int | None, cluster: Any, executor: Any) -> Iterator[Any]:
-    """``executor`` if given, else one made (and closed) here from ``workers`` / ``cluster``;
-    made before the slow context so that a bad cluster address fails at once."""
-    if executor is not None:
-        yield executor
-        return
-
-    ex = make_executor(workers, cluster)
-    try:
-        yield ex
-    finally:
-        ex.close()
 
 
 def _sweep_with(

@@ -12,7 +12,6 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import json
-import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -23,18 +22,17 @@ from noiselab.mitigate.base import STAGE_COMBINE
 from noiselab.mitigate.recipe import EstimateMemo, run_recipe
 from noiselab.mitigate.registry import make_pass
 from noiselab.mitigate.variants import CircuitVariant
-from noiselab.study.assess import (
-    _default_cache,
-    job_fields,
-    load_job_result,
-    override_key_options,
-    resolve_study,
-    save_job_result,
-)
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.executor import make_executor
 from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
+from noiselab.study.job import (
+    job_fields,
+    load_job_result,
+    override_key_options,
+    save_job_result,
+    start_job,
+)
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -47,6 +45,7 @@ from noiselab.study.results import (
 from noiselab.study.spec import Study, TuneGrid
 
 ProgressHook = Callable[[str, int, int], None]
+
 
 @dataclasses.dataclass(frozen=True)
 class GridOverride:
@@ -207,10 +206,11 @@ def tune(
     ``cluster``: a Dask scheduler address (``tcp://HOST:PORT``) or ``distributed.Client``.
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     """
-    t0 = time.perf_counter()
-    store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
