@@ -4,6 +4,10 @@ One file (WAL mode) in the user cache folder, shared by every process: each proc
 opens its own connection, waits on a busy timeout, and writes one entry per transaction, so a
 reader never sees a half-written entry. Keys are SHA-256 digests of everything that determines
 the stored value, including the versions of the packages that computed it.
+
+Over 400 lines: the SQLite store, the record packing it stores, the job keys and the
+``CachingRunner`` that reads and writes through it share the key and packing rules; the
+runner is the store's only simulation client.
 """
 
 from __future__ import annotations

@@ -28,6 +28,10 @@ the lowest point's neighbours: equilibrium coordinate and curvature (spline's se
 there, Ha per unit^2). Not given when the lowest point is the scan's first or last. Error bars:
 linear propagation of each point's standard error through the fit (finite differences). The
 first-minus-last energy difference E(first) - E(last) with sqrt(s_first^2 + s_last^2).
+
+Over 400 lines: the axis (geometry moves), the warm-started point tasks, the resumable point
+cache and the curve fits of one job; the records and their JSON stay beside the fits that
+fill them.
 """
 
 from __future__ import annotations

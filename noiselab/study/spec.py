@@ -3,6 +3,11 @@
 ``load_study(path)`` reads and validates the file and returns a resolved :class:`Study` (device
 profile loaded, molecule and recipes validated by their own layers). Every problem is one
 :class:`~noiselab.common.errors.InputError` line naming the study file and the key.
+
+Over 400 lines: the study file's pydantic sections, the command-line overrides validated by
+the same models, and the resolution of molecule, device and recipes form one validation pass
+whose messages name the file and key; its sections are small models without logic of their
+own.
 """
 
 from __future__ import annotations

@@ -11,6 +11,9 @@ simulations go through the study's results cache, which makes an interrupted swe
 Each knob (:mod:`noiselab.study.knobs`) carries its bounds and its reference value. Crossings
 of the target (:mod:`noiselab.study.crossings`) are located by bisection on the knob with new
 evaluations between the grid points that bracket them, through the results cache.
+
+Just over 400 lines: the sweep record and its JSON, the configuration tasks that budget
+reuses, and the job itself.
 """
 
 from __future__ import annotations
