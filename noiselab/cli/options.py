@@ -50,6 +50,28 @@ def _option(*names: str, help: str) -> Any:
     return typer.Option(*names, help=help, show_default=False)
 
 
+def option(name: str, help: str) -> Any:
+    """A job's own option with no default shown (use inside ``Annotated``)."""
+    return _option(name, help=help)
+
+
+def repeated(name: str, help: str) -> Any:
+    """``Annotated`` type of an option given any number of times (a list, None when absent)."""
+    return Annotated[list[str] | None, _option(name, help=help)]
+
+
+EXIT_CODES = "Exit codes: 0 done, 1 failure, 2 bad input (one line naming the file and key)"
+CLUSTER_CODES = (
+    "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is malformed "
+    "or reaches no scheduler, and a missing dask install)"
+)
+
+
+def epilog(example: str, codes: str = EXIT_CODES, more: str = "") -> str:
+    """A command's epilog: one example command line, then its exit codes."""
+    return f"Example: {example}\n\n{codes}{more}."
+
+
 #: name -> (type, typer option, default) of each run option, in the order --help shows them.
 _RUN: dict[str, tuple[Any, Any, Any]] = {
     "out": (str | None, _option("--out", help="Folder for the job's files."), None),

@@ -6,13 +6,13 @@ The study layer is imported inside the command (``noiselab --help`` stays fast).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated, Any
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
 from noiselab.cli.console import echo_written, print_json, print_table
 from noiselab.cli.jobs import run_job
-from noiselab.cli.options import CountOpt, JsonOpt, StudyArg, run_options
+from noiselab.cli.options import CountOpt, JsonOpt, StudyArg, epilog, option, run_options
 
 if TYPE_CHECKING:
     from noiselab.study.run_options import RunOptions
@@ -25,10 +25,6 @@ _HELP = (
     "shots and device hours. Defaults come from the study's rehearse: section."
 )
 REHEARSE_FILES = ("rehearse.json", "rehearse_traces.csv", "rehearse.png")
-
-
-def _opt(option: str, help: str) -> Any:
-    return typer.Option(option, help=help, show_default=False)
 
 
 @run_options(
@@ -44,19 +40,19 @@ def rehearse_cmd(
     study: StudyArg,
     run: RunOptions,
     optimizer: Annotated[
-        str | None, _opt("--optimizer", "spsa, parameter_shift, cobyla or nelder_mead.")
+        str | None, option("--optimizer", "spsa, parameter_shift, cobyla or nelder_mead.")
     ] = None,
-    iterations: Annotated[CountOpt, _opt("--iterations", "Optimizer iterations.")] = None,
+    iterations: Annotated[CountOpt, option("--iterations", "Optimizer iterations.")] = None,
     shots_per_evaluation: Annotated[
         CountOpt,
-        _opt("--shots-per-evaluation", "Measured shots of one in-loop energy evaluation."),
+        option("--shots-per-evaluation", "Measured shots of one in-loop energy evaluation."),
     ] = None,
     max_shots: Annotated[
-        CountOpt, _opt("--max-shots", "Stop a loop after this many shots.")
+        CountOpt, option("--max-shots", "Stop a loop after this many shots.")
     ] = None,
-    repeats: Annotated[CountOpt, _opt("--repeats", "Runs of the loop.")] = None,
+    repeats: Annotated[CountOpt, option("--repeats", "Runs of the loop.")] = None,
     start: Annotated[
-        str | None, _opt("--start", "hartree_fock, perturbed_optimum or random.")
+        str | None, option("--start", "hartree_fock, perturbed_optimum or random.")
     ] = None,
     json_out: JsonOpt = False,
 ) -> None:
@@ -101,8 +97,5 @@ def register(app: typer.Typer) -> None:
     app.command(
         "rehearse",
         help=_HELP,
-        epilog=(
-            "Example: noiselab rehearse configs/studies/h2-equilibrium.yaml --iterations 20\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (one line naming the file and key)."
-        ),
+        epilog=epilog("noiselab rehearse configs/studies/h2-equilibrium.yaml --iterations 20"),
     )(rehearse_cmd)

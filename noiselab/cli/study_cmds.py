@@ -14,12 +14,15 @@ import typer
 from noiselab.cli.console import echo_written, print_json, print_table
 from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
+    CLUSTER_CODES,
     EXECUTOR_JOB,
     STUDY_JOB,
     CountOpt,
     JsonOpt,
     StudyArg,
     TimingsOpt,
+    epilog,
+    repeated,
     run_options,
 )
 from noiselab.common.errors import input_error
@@ -43,6 +46,13 @@ ASSESS_FILES = (
     "assess-drift.svg",
 )
 TUNE_FILES = ("tune.csv", "tune.json")
+
+# tune's grid axes, each given any number of times
+ReadoutOpt = repeated("--readout", "Readout correction method(s) to try (repeat the option).")
+PostselectOpt = repeated("--postselect", "Symmetry post-selection mode(s) to try.")
+AmplificationOpt = repeated("--amplification", "Noise amplification method(s) to try.")
+ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
+FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
 
 
 def _context_lines(ctx: Any) -> list[str]:
@@ -175,38 +185,11 @@ def _parse_scale_sets(values: list[str] | None) -> list[list[float]] | None:
 def tune_cmd(
     study: StudyArg,
     run: RunOptions,
-    readout: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--readout",
-            help="Readout correction method(s) to try (repeat the option).",
-            show_default=False,
-        ),
-    ] = None,
-    postselect: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--postselect", help="Symmetry post-selection mode(s) to try.", show_default=False
-        ),
-    ] = None,
-    amplification: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--amplification", help="Noise amplification method(s) to try.", show_default=False
-        ),
-    ] = None,
-    scales: Annotated[
-        list[str] | None,
-        typer.Option(
-            "--scales",
-            help="Noise scale set(s) to try, comma-separated, e.g. 1,2,3.",
-            show_default=False,
-        ),
-    ] = None,
-    fit: Annotated[
-        list[str] | None,
-        typer.Option("--fit", help="Extrapolation fit(s) to try.", show_default=False),
-    ] = None,
+    readout: ReadoutOpt = None,
+    postselect: PostselectOpt = None,
+    amplification: AmplificationOpt = None,
+    scales: ScalesOpt = None,
+    fit: FitOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
@@ -310,19 +293,15 @@ def register(app: typer.Typer) -> None:
     app.command(
         "assess",
         help=_ASSESS_HELP,
-        epilog=(
-            "Example: noiselab assess configs/studies/h2-equilibrium.yaml --out results/h2\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (one line naming the file and key)."
-        ),
+        epilog=epilog("noiselab assess configs/studies/h2-equilibrium.yaml --out results/h2"),
     )(assess_cmd)
     app.command(
         "tune",
         help=_TUNE_HELP,
-        epilog=(
-            "Example: noiselab tune configs/studies/h2-equilibrium.yaml --fit linear "
-            "--fit richardson --scales 1,2,3 --scales 1,3,5 --out results/h2-tune\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is "
-            "malformed or reaches no scheduler, and a missing dask install)."
+        epilog=epilog(
+            "noiselab tune configs/studies/h2-equilibrium.yaml --fit linear --fit richardson "
+            "--scales 1,2,3 --scales 1,3,5 --out results/h2-tune",
+            CLUSTER_CODES,
         ),
     )(tune_cmd)
     app.command(

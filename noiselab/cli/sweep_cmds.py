@@ -12,7 +12,15 @@ import typer
 
 from noiselab.cli.console import console, echo_written
 from noiselab.cli.jobs import run_job
-from noiselab.cli.options import EXECUTOR_JOB, CountOpt, RecipesOpt, StudyArg, run_options
+from noiselab.cli.options import (
+    CLUSTER_CODES,
+    EXECUTOR_JOB,
+    CountOpt,
+    RecipesOpt,
+    StudyArg,
+    epilog,
+    run_options,
+)
 from noiselab.common.wording import CAUTION
 
 if TYPE_CHECKING:
@@ -189,12 +197,11 @@ def register(app: typer.Typer) -> None:
     app.command(
         "sweep",
         help=_SWEEP_HELP,
-        epilog=(
-            "Example: noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
-            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is "
-            "malformed or reaches no scheduler, and a missing dask install), 130 interrupted "
-            "(finished points stay in the cache)."
+        epilog=epilog(
+            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
+            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep",
+            CLUSTER_CODES,
+            ", 130 interrupted (finished points stay in the cache)",
         ),
     )(sweep_cmd)
     app.command(
