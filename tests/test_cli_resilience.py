@@ -4,7 +4,6 @@ Ctrl-C prints the interrupt line; random command-line values never give exit 1 o
 from __future__ import annotations
 
 import contextlib
-import io
 import os
 import signal
 import sqlite3
@@ -15,6 +14,7 @@ import time
 from pathlib import Path
 
 import pytest
+from helpers.cli import run_main as run_cli_in_process
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -132,16 +132,8 @@ def test_ctrl_c_prints_the_interrupt_line(study: Path, tmp_path: Path) -> None:
 
 def run_main(argv: list[str]) -> tuple[int, str]:
     """(exit code, stdout + stderr) of ``noiselab argv`` in-process."""
-    from noiselab.cli.app import main
-
-    buf = io.StringIO()
-    with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(buf):
-        try:
-            main(argv)
-            code = 0
-        except SystemExit as exc:
-            code = int(exc.code or 0)
-    return code, buf.getvalue()
+    code, out, err = run_cli_in_process(argv)
+    return code, out + err
 
 
 NUMBERS = st.sampled_from(

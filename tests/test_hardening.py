@@ -4,7 +4,6 @@ unusable --out folders, damaged caches, the memory guard before any work, typo w
 from __future__ import annotations
 
 import contextlib
-import io
 import os
 import sqlite3
 import subprocess
@@ -12,6 +11,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from helpers.cli import run_main
 
 from noiselab.common.counts import whole_number
 from noiselab.common.errors import InputError, ProblemTooLargeError, quote
@@ -38,20 +38,6 @@ seed: 3
 recipes:
   raw: []
 """
-
-
-def run_main(argv: list[str]) -> tuple[int, str, str]:
-    """``noiselab argv`` in-process: (exit code, stdout, stderr)."""
-    from noiselab.cli.app import main
-
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            main(argv)
-            code = 0
-        except SystemExit as exc:
-            code = int(exc.code or 0)
-    return code, out.getvalue(), err.getvalue()
 
 
 def run_cli(args: list[str], cwd: Path | None = None) -> subprocess.CompletedProcess[str]:

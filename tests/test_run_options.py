@@ -4,11 +4,10 @@ unusable --out folders named in one line (exit 2) before any work, options decla
 from __future__ import annotations
 
 import ast
-import contextlib
-import io
 from pathlib import Path
 
 import pytest
+from helpers.cli import run_main as run_cli_in_process
 
 from noiselab.common.errors import InputError
 from noiselab.study.run_options import RunOptions
@@ -19,16 +18,8 @@ STUDY = ROOT / "configs" / "studies" / "h2-equilibrium.yaml"
 
 
 def run_main(argv: list[str]) -> tuple[int, str]:
-    from noiselab.cli.app import main
-
-    buf = io.StringIO()
-    with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(buf):
-        try:
-            main(argv)
-            code = 0
-        except SystemExit as exc:
-            code = int(exc.code or 0)
-    return code, buf.getvalue()
+    code, out, err = run_cli_in_process(argv)
+    return code, out + err
 
 
 def _accepts(build: object) -> bool:
