@@ -7,8 +7,11 @@ import ast
 from pathlib import Path
 
 import pytest
+import typer
 from helpers.cli import run_main as run_cli_in_process
 
+from noiselab.cli.jobs import run_job
+from noiselab.cli.options import STUDY_JOB, StudyArg, run_options
 from noiselab.common.errors import InputError
 from noiselab.study.run_options import RunOptions
 from noiselab.study.spec import load_study
@@ -95,3 +98,37 @@ def test_run_options_are_declared_once() -> None:
             if isinstance(node, ast.Call) and getattr(node.func, "attr", "") == "Option":
                 names = {a.value for a in node.args if isinstance(a, ast.Constant)}
                 assert not names & shared, (path.name, names & shared)
+
+
+def test_a_new_job_command_needs_only_its_own_options(tmp_path: Path) -> None:
+    """The 'adding a job' recipe of DEVELOPERS.md: a command declares its own options, gets the
+    shared ones and one validated RunOptions, and run_job writes its files as one set."""
+    from typer.testing import CliRunner
+
+    seen: dict[str, object] = {}
+
+    def toy_job(study: Path, *, cache: object, progress: object, **keywords: object) -> str:
+        seen.update(keywords, study=study, cache=cache)
+        return "result"
+
+    def write(result: str, folder: Path) -> list[Path]:
+        path = folder / "toy.txt"
+        path.write_text(result, encoding="utf-8")
+        return [path]
+
+    @run_options(STUDY_JOB, files=("toy.txt",))
+    def toy_cmd(study: StudyArg, run: RunOptions, extra: int = 0) -> None:
+        _, written = run_job(toy_job, study, run, write=write, extra=extra)
+        typer.echo(",".join(p.name for p in written))
+
+    app = typer.Typer()
+    app.command("toy")(toy_cmd)
+    app.command("other")(lambda: None)  # two commands: typer keeps the sub-command name
+    out = tmp_path / "out"
+    argv = ["toy", "s.yaml", "--shots", "1e6", "--extra", "3", "--no-cache", "--out", str(out)]
+    result = CliRunner().invoke(app, argv)
+    assert result.exit_code == 0, result.output
+    assert seen["shots"] == 10**6 and seen["extra"] == 3 and seen["seed"] is None
+    assert (out / "toy.txt").read_text(encoding="utf-8") == "result"
+    refused = CliRunner().invoke(app, ["toy", "s.yaml", "--shots", "2.5"])
+    assert isinstance(refused.exception, InputError) and "--shots" in str(refused.exception)
