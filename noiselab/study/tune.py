@@ -24,12 +24,12 @@ from noiselab.mitigate.registry import make_pass
 from noiselab.mitigate.variants import CircuitVariant
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
-from noiselab.study.executor import make_executor
 from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
 from noiselab.study.job import (
     job_fields,
     load_job_result,
     override_key_options,
+    own_executor,
     save_job_result,
     start_job,
 )
@@ -222,10 +222,7 @@ def tune(
         stored = load_job_result(store, key, TuneResult, t0)
         if stored is not None:
             return stored
-    own_executor = executor is None
-    if executor is None:  # before the (slow) context: a bad cluster address fails at once
-        executor = make_executor(workers, cluster)
-    try:
+    with own_executor(workers, cluster, executor) as ex:
         # the verification bases are measured only when a setting may verify
         verify = "verify" in resolved.postselect
         ctx = (
@@ -245,10 +242,8 @@ def tune(
             if progress is not None:
                 progress("simulating circuit variants", done, total)
 
-        runner.prefetch(variants, executor, on_done=sim_progress)
-    finally:
-        if own_executor:
-            executor.close()
+        runner.prefetch(variants, ex, on_done=sim_progress)
+        described = str(getattr(ex, "description", "in-process"))
 
     # settings that differ only in their extrapolation share each variant's corrected estimate
     memo = EstimateMemo()
@@ -270,7 +265,7 @@ def tune(
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
-    stats = RunStats.of_runner(runner, t0, getattr(executor, "description", "in-process"))
+    stats = RunStats.of_runner(runner, t0, described)
     result = TuneResult(
         entries=entries,
         distinct_variants=len(runner.requested),
