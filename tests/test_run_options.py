@@ -50,6 +50,15 @@ def test_bounds_are_the_study_files(key: str, value: str) -> None:
     assert by_options == by_file
 
 
+def test_methods_are_the_study_files() -> None:
+    from typing import get_args
+
+    from noiselab.study.run_options import Method
+    from noiselab.study.spec import EMULATION_METHODS
+
+    assert get_args(Method) == EMULATION_METHODS
+
+
 def test_refusals_name_the_option() -> None:
     with pytest.raises(InputError, match=r"^--workers '0': .*1 to 256"):
         RunOptions.from_command_line(workers="0")

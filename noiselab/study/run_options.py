@@ -88,13 +88,14 @@ def _one_line(exc: ValidationError, given: dict[str, Any]) -> InputError:
     return InputError(f"{option} {value}: {text}")
 
 
-Method = Literal["auto", "density_matrix", "trajectory"]  # spec.EMULATION_METHODS
+#: spec.EMULATION_METHODS as a type (tests/test_run_options.py checks they agree)
+Method = Literal["auto", "density_matrix", "trajectory"]
 
 
 class RunOptions(BaseModel):
     """Everything about how one job runs (None: the study file's value, else the default)."""
 
-    model_config = ConfigDict(frozen=True, extra="forbid", arbitrary_types_allowed=True)
+    model_config = ConfigDict(frozen=True, extra="forbid")
 
     seed: Annotated[Count, Field(**COUNT_BOUNDS["seed"])] | None = None
     shots: Annotated[Count, Field(**COUNT_BOUNDS["shots"])] | None = None
@@ -119,13 +120,10 @@ class RunOptions(BaseModel):
     def from_command_line(cls, out_files: Iterable[str] = (), **given: Any) -> RunOptions:
         """The value from the command line's texts; one-line InputError (exit 2) naming the
         option for anything refused, ``--out`` included, before any work."""
-        out = given.get("out")
         if "out" in given:
-            checked = check_output_dir(out, tuple(out_files))
-            given["out"] = checked
-        if given.get("no_cache") is not None:
+            given["out"] = check_output_dir(given["out"], tuple(out_files))
+        if "no_cache" in given:
             given["use_cache"] = not given.pop("no_cache")
-        given.pop("no_cache", None)
         try:
             return cls.model_validate({**given, "out_files": tuple(out_files)})
         except ValidationError as exc:
