@@ -14,17 +14,15 @@ from noiselab.mitigate.optimizers import (
     ParameterShiftOptions,
     SpsaOptions,
 )
+from noiselab.study.device_time import DEFAULT_CIRCUIT_OVERHEAD_S, DEFAULT_REPETITION_DELAY_US
+
+__all__ = ["DEFAULT_CIRCUIT_OVERHEAD_S", "DEFAULT_REPETITION_DELAY_US", "RehearseSettings"]
 
 #: the in-loop recipe when the study names none: readout correction + symmetry verification
 DEFAULT_LOOP_RECIPE: tuple[dict[str, Any], ...] = (
     {"pass": "readout", "method": "per_qubit_inverse"},
     {"pass": "postselect", "mode": "verify"},
 )
-#: time between shots (reset included) when the profile states none; superconducting chips:
-#: a few hundred microseconds (common practice, from memory; ../shared REFERENCES.md)
-DEFAULT_REPETITION_DELAY_US = 250.0
-#: time to load and start one circuit (common practice, no source)
-DEFAULT_CIRCUIT_OVERHEAD_S = 0.05
 
 
 class RehearseSettings(BaseModel):
