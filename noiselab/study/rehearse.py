@@ -220,6 +220,7 @@ class LoopEvaluator:
         max_shots: int | None = None,
         analytic: bool = False,
         clock: Callable[[Any], DeviceTime] | None = None,
+        shared: Any = None,
     ) -> None:
         self.ctx, self.parameterized, self.passes = ctx, parameterized, list(passes)
         self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
@@ -228,6 +229,7 @@ class LoopEvaluator:
         self.circuit_runs = 0
         self.clock = clock  # device time of one recipe result (noiselab.study.device_time)
         self.device_time = DeviceTime()
+        self.shared = shared
         self.last_energy_ha = math.nan
 
     @property
@@ -238,10 +240,11 @@ class LoopEvaluator:
         """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
         bound = self.parameterized.bind(np.asarray(x, dtype=float))
         exp = replace_experiment(self.ctx.experiment, compiled=bound, shots=int(shots))
+        runner = make_runner(exp) if self.shared is None else self.shared.runner(exp, x)
         return run_recipe(
             self.passes,
             exp,
-            make_runner(exp),
+            runner,
             sampled=not self.analytic,
             rng=self.rng,
             calibrator=self.calibrator,
@@ -314,6 +317,7 @@ def rehearse(
     context: StudyContext | None = None,
     progress: ProgressHook | None = None,
     analytic: bool = False,
+    shared: Any = None,
     **overrides: Any,
 ) -> RehearseResult:
     """Rehearse the variational loop of a study on its emulated device, ``repeats`` times.
@@ -321,6 +325,8 @@ def rehearse(
     ``overrides``: keys of the ``rehearse:`` section (``optimizer``, ``iterations``,
     ``shots_per_evaluation``, ``repeats``, ``start``, ``max_shots``, ``seed``, ...).
     ``analytic``: test-only; in-loop evaluations return the analytic expectation.
+    ``shared``: a ``noiselab.study.rehearse_grid.SharedRuns``, emulations shared with other
+    rehearsals of the same context (the grid).
     """
     from noiselab.study.assess import _default_cache
 
@@ -385,6 +391,7 @@ def rehearse(
         evaluator = LoopEvaluator(
             ctx, parameterized, loop_passes, settings.shots_per_evaluation, rng,
             calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic, clock=clock,
+            shared=shared,
         )  # fmt: skip
         trace: list[TracePoint] = []
 
