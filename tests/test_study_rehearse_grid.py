@@ -42,6 +42,7 @@ def test_grid_covers_every_setting_and_ranks_by_p_then_device_hours(grid_result)
         assert cell.runs_within_target == sum(
             abs(r.final_error_mha) <= res.target_mha for r in rehearsal.repeats
         )
+        assert cell.final_errors_mha == tuple(r.final_error_mha for r in rehearsal.repeats)
     # COBYLA from Hartree-Fock starts every repeat and setting at the same simplex: shared
     assert 0 < res.reused_evaluations < res.evaluations
     assert res.to_json()["settings"][0]["rank"] == 1

@@ -72,6 +72,7 @@ class GridCell:
     median_abs_final_error_mha: float
     total_shots: int  # one run (the largest over the repeats)
     device_hours: float  # one run (the largest over the repeats)
+    final_errors_mha: tuple[float, ...]  # per repeat, signed
 
     def sort_key(self) -> tuple[float, float]:
         return (-self.p_within_target, self.device_hours)
@@ -112,7 +113,13 @@ class RehearseGridResult:
         }
 
     def csv_rows(self) -> list[dict[str, Any]]:
-        return [{"rank": i + 1, **dataclasses.asdict(c)} for i, c in enumerate(self.cells)]
+        """One row per setting (the per-repeat errors are in the JSON only)."""
+        rows = []
+        for i, c in enumerate(self.cells):
+            row = {"rank": i + 1, **dataclasses.asdict(c)}
+            row.pop("final_errors_mha")
+            rows.append(row)
+        return rows
 
     def table_headers(self) -> tuple[str, ...]:
         return (
@@ -152,6 +159,7 @@ def grid_cell(result: RehearseResult, loop_name: str) -> GridCell:
         median_abs_final_error_mha=float(np.median(errors)),
         total_shots=result.total_shots,
         device_hours=result.device_hours,
+        final_errors_mha=tuple(float(r.final_error_mha) for r in result.repeats),
     )
 
 
