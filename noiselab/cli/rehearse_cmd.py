@@ -6,7 +6,7 @@ The study layer is imported inside the command (``noiselab --help`` stays fast).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import TYPE_CHECKING, Annotated
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
@@ -25,11 +25,12 @@ _HELP = (
     "shots and device hours. Defaults come from the study's rehearse: section."
 )
 REHEARSE_FILES = ("rehearse.json", "rehearse_traces.csv", "rehearse.png")
+GRID_FILES = ("rehearse_grid.json", "rehearse_grid.csv")
 
 
 @run_options(
     ("out", "seed", "cache", "no_cache", "quiet"),
-    files=REHEARSE_FILES,
+    files=(*REHEARSE_FILES, *GRID_FILES),
     helps={
         "out": "Folder for rehearse.json, rehearse_traces.csv and rehearse.png. "
         "Default: ./rehearse-<study name>.",
@@ -54,23 +55,31 @@ def rehearse_cmd(
     start: Annotated[
         str | None, option("--start", "hartree_fock, perturbed_optimum or random.")
     ] = None,
+    grid: Annotated[
+        bool,
+        typer.Option(
+            "--grid",
+            help="Rehearse every setting of the study's rehearse.grid (shots per evaluation x "
+            "optimizer x in-loop recipe) and rank them by P(final within target), then device "
+            "hours; writes rehearse_grid.json and .csv.",
+        ),
+    ] = False,
     json_out: JsonOpt = False,
 ) -> None:
     """Rehearse the study's variational loop and write its outputs."""
-    from noiselab.common.atomic import check_output_dir
     from noiselab.report.rehearse_figure import write_rehearse_outputs
     from noiselab.study.rehearse import rehearse
 
+    loop = {"iterations": iterations, "max_shots": max_shots, "repeats": repeats, "start": start}
+    if grid:
+        _grid(study, run, json_out, optimizer, shots_per_evaluation, loop)
+        return
     result, written = run_job(
         rehearse, study, run, keywords={"seed": run.seed}, quiet=json_out,
-        write=write_rehearse_outputs, optimizer=optimizer, iterations=iterations,
-        shots_per_evaluation=shots_per_evaluation, max_shots=max_shots, repeats=repeats,
-        start=start,
+        write=write_rehearse_outputs, optimizer=optimizer,
+        shots_per_evaluation=shots_per_evaluation, **loop,
     )  # fmt: skip
-    if run.out is None:  # the default folder is named after the study: known only now
-        folder = check_output_dir(Path(f"rehearse-{result.study}"), REHEARSE_FILES)
-        rerouted = run.model_copy(update={"out": folder})
-        written = rerouted.write_outputs(lambda d: write_rehearse_outputs(result, d))
+    written = written or _write_default(run, result, write_rehearse_outputs, REHEARSE_FILES)
     if json_out:
         print_json(result.to_json())
         return
@@ -87,6 +96,44 @@ def rehearse_cmd(
         f"{result.study}: rehearsed loop ({result.loop_recipe} in the loop, "
         f"{result.final_recipe} final); ansatz error {ansatz:+.3g} mHa",
         headers, rows,
+    )  # fmt: skip
+    typer.echo(result.verdict)
+    echo_written(written)
+
+
+def _write_default(run: RunOptions, result: Any, write: Any, files: tuple[str, ...]) -> list[Path]:
+    """Without --out: the files into ./rehearse-<study name> (known only once the job ran)."""
+    if run.out is not None:
+        return []
+    from noiselab.common.atomic import check_output_dir
+
+    folder = check_output_dir(Path(f"rehearse-{result.study}"), files)
+    return run.model_copy(update={"out": folder}).write_outputs(lambda d: write(result, d))
+
+
+def _grid(
+    study: Path, run: RunOptions, json_out: bool, optimizer: str | None,
+    shots: str | None, loop: dict[str, Any],
+) -> None:  # fmt: skip
+    """``rehearse --grid``: every setting of the study's grid, ranked."""
+    from noiselab.common.errors import InputError
+    from noiselab.study.rehearse_grid import rehearse_grid, write_grid_data
+
+    for flag, value in (("--optimizer", optimizer), ("--shots-per-evaluation", shots)):
+        if value is not None:
+            raise InputError(f"{flag}: not with --grid; allowed: the axes of rehearse.grid")
+    result, written = run_job(
+        rehearse_grid, study, run, keywords={"seed": run.seed}, quiet=json_out,
+        write=write_grid_data, **loop,
+    )  # fmt: skip
+    written = written or _write_default(run, result, write_grid_data, GRID_FILES)
+    if json_out:
+        print_json(result.to_json())
+        return
+    print_table(
+        f"{result.study}: loop settings ranked ({result.iterations} iterations, "
+        f"{result.reused_evaluations} of {result.evaluations} in-loop evaluations shared)",
+        result.table_headers(), result.table_rows(),
     )  # fmt: skip
     typer.echo(result.verdict)
     echo_written(written)
