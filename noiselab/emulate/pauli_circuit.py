@@ -84,41 +84,52 @@ def basis_observable(
     terms: Sequence[tuple[str, float]],
     qubit_observables: Mapping[int, np.ndarray],
     circuit_qubit: Sequence[int],
-    width: int,
     min_abs_coeff: float = 0.0,
-) -> PauliTerms:
-    """``sum_t h_t prod_{q in supp t} M_q`` as Pauli strings on the circuit's qubits.
+    tag: int = 0,
+) -> tuple[PauliTerms, float]:
+    """``sum_t h_t prod_{q in supp t} M_q`` as Pauli strings on the circuit's qubits, and the
+    sum of the ``|c|`` dropped while expanding.
 
     ``terms``: (label over logical qubits, coefficient); ``qubit_observables[l]``: M of logical
     qubit l in this basis (from :func:`measured_qubit_observable`); ``circuit_qubit[l]``: its
-    position in the circuit. Products below ``min_abs_coeff`` are dropped while expanding (their
-    sum is not needed: they are far below any bound reported)."""
-    xs: list[int] = []
-    zs: list[int] = []
-    cs: list[float] = []
-    for label, h in terms:
-        partial = [(0, 0, float(h))]
-        for logical, ch in enumerate(reversed(label)):
-            if ch == "I":
+    position in the circuit. A partial product below ``min_abs_coeff`` is dropped: every M has
+    operator norm at most 1 (a +-1 outcome's observable), so what it would have become is
+    bounded by its ``|c|`` (the dropped sum joins the truncation bound)."""
+    if not terms:
+        empty = np.zeros(0, dtype=np.uint64)
+        return PauliTerms(empty, empty, np.zeros(0), np.zeros(0, dtype=np.int64)), 0.0
+    letters = np.array([list(reversed(label)) for label, _ in terms])  # (T, logical)
+    row = np.arange(len(terms))  # which term each partial product belongs to
+    x = np.zeros(len(terms), dtype=np.uint64)
+    z = np.zeros(len(terms), dtype=np.uint64)
+    c = np.array([float(h) for _, h in terms])
+    dropped = 0.0
+    for logical in range(letters.shape[1]):
+        acting = letters[row, logical] != "I"
+        if not acting.any():
+            continue
+        m = np.asarray(qubit_observables[logical], dtype=float)
+        bit = np.uint64(int(circuit_qubit[logical]))
+        xa, za, ca, ra = x[acting], z[acting], c[acting], row[acting]
+        parts = [(x[~acting], z[~acting], c[~acting], row[~acting])]
+        for idx in range(4):
+            if m[idx] == 0.0:
                 continue
-            m = qubit_observables[logical]
-            q = int(circuit_qubit[logical])
-            nxt = []
-            for x, z, c in partial:
-                for idx in range(4):
-                    v = c * m[idx]
-                    if v == 0.0 or abs(v) < min_abs_coeff:
-                        continue
-                    nxt.append((x | ((idx & 1) << q), z | ((idx >> 1) << q), v))
-            partial = nxt
-        for x, z, c in partial:
-            xs.append(x)
-            zs.append(z)
-            cs.append(c)
-    del width
-    return merge(
-        PauliTerms(np.array(xs, dtype=np.uint64), np.array(zs, dtype=np.uint64), np.array(cs))
-    )
+            parts.append(
+                (
+                    xa | (np.uint64(idx & 1) << bit),
+                    za | (np.uint64(idx >> 1) << bit),
+                    ca * m[idx],
+                    ra,
+                )
+            )
+        x, z, c, row = (np.concatenate([p[k] for p in parts]) for k in range(4))
+        small = np.abs(c) < min_abs_coeff
+        if small.any():
+            dropped += float(np.abs(c[small]).sum())
+            keep = ~small
+            x, z, c, row = x[keep], z[keep], c[keep], row[keep]
+    return merge(PauliTerms(x, z, c, np.full(len(c), tag, dtype=np.int64))), dropped
 
 
 @dataclass(frozen=True)
@@ -152,9 +163,10 @@ def pauli_energy(
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
-    energies, variances = [], []
-    bound, peak = 0.0, 0
-    for basis, terms in groups:
+    cut = rule.min_abs_coeff
+    parts: list[PauliTerms] = []
+    lost = np.zeros(len(groups))
+    for g, (basis, terms) in enumerate(groups):
         measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
         layer_ns = layer_duration_ns(measured, layer)
         observables = {
@@ -165,20 +177,24 @@ def pauli_energy(
             for l, ch in enumerate(reversed(basis))
             if ch != "I"
         }
-        first = basis_observable(terms, observables, circuit_qubit, width)
-        mean = propagate(first, program, rule)
-        second = basis_observable(_squared_terms(terms), observables, circuit_qubit, width)
-        moment = propagate(second, program, rule)
-        energies.append(mean.value)
-        variances.append(max(0.0, moment.value - mean.value**2))
-        bound += mean.truncation_bound
-        peak = max(peak, mean.peak_strings, moment.peak_strings)
+        # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
+        first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
+        second, _ = basis_observable(
+            _squared_terms(terms), observables, circuit_qubit, cut, 2 * g + 1
+        )
+        parts += [first, second]
+    result = propagate(PauliTerms.join(parts), program, rule)
+    values = np.zeros(2 * len(groups))
+    values[: len(result.values)] = result.values[: 2 * len(groups)]
+    means, moments = values[0::2], values[1::2]
+    bounds = np.zeros(2 * len(groups))
+    bounds[: len(result.bounds)] = result.bounds[: 2 * len(groups)]
     return PauliEnergy(
-        float(constant_ha + sum(energies)),
-        tuple(energies),
-        tuple(variances),
-        bound,
-        peak,
+        float(constant_ha + means.sum()),
+        tuple(float(v) for v in means),
+        tuple(float(max(0.0, m2 - m1**2)) for m1, m2 in zip(means, moments, strict=True)),
+        float(bounds[0::2].sum() + lost.sum()),
+        result.peak_strings,
     )
 
 

@@ -25,6 +25,7 @@ Hermitian operator ``i^{|x & z|} X^x Z^z`` (so ``(1, 1)`` is Y).
 
 from __future__ import annotations
 
+import functools
 import math
 from collections.abc import Iterable, Sequence
 from dataclasses import dataclass
@@ -39,14 +40,30 @@ _ONE = np.uint64(1)
 
 @dataclass(frozen=True)
 class PauliTerms:
-    """A real combination of Pauli strings: ``sum_k coeff[k] * P(x[k], z[k])``."""
+    """Real combinations of Pauli strings: observable ``t`` is the sum of ``coeff[k] *
+    P(x[k], z[k])`` over the k with ``tag[k] == t`` (several observables propagate together:
+    numpy works on one long array instead of many short ones)."""
 
     x: np.ndarray  # uint64 (m,)
     z: np.ndarray  # uint64 (m,)
     coeff: np.ndarray  # float64 (m,)
+    tag: np.ndarray  # int64 (m,)
 
     def __len__(self) -> int:
         return int(self.coeff.shape[0])
+
+    def select(self, mask: np.ndarray) -> PauliTerms:
+        return PauliTerms(self.x[mask], self.z[mask], self.coeff[mask], self.tag[mask])
+
+    @staticmethod
+    def join(parts: Sequence[PauliTerms]) -> PauliTerms:
+        return PauliTerms(
+            *(np.concatenate([getattr(p, f) for p in parts]) for f in ("x", "z", "coeff", "tag"))
+        )
+
+    @property
+    def n_tags(self) -> int:
+        return int(self.tag.max()) + 1 if len(self) else 0
 
 
 @dataclass(frozen=True)
@@ -86,12 +103,21 @@ EXACT = Truncation()
 
 @dataclass(frozen=True)
 class Propagated:
-    """Value on ``|0...0>`` of the propagated observable and the bound on what truncation lost."""
+    """Value on ``|0...0>`` of each propagated observable (by tag) and the bound on what
+    truncation lost from each; ``value`` / ``truncation_bound`` are those of tag 0."""
 
-    value: float
-    truncation_bound: float
+    values: np.ndarray  # float64 (n_tags,)
+    bounds: np.ndarray  # float64 (n_tags,)
     peak_strings: int
     dropped_strings: int
+
+    @property
+    def value(self) -> float:
+        return float(self.values[0])
+
+    @property
+    def truncation_bound(self) -> float:
+        return float(self.bounds[0])
 
 
 # ---- the Pauli algebra on bit words ---------------------------------------------------------
@@ -124,18 +150,27 @@ def terms_from_labels(labels: Sequence[str], coeffs: Sequence[float]) -> PauliTe
                 xs[k] |= bit
             if ch in "ZY":
                 zs[k] |= bit
-    return merge(PauliTerms(xs, zs, np.asarray(coeffs, dtype=float)))
+    coeff = np.asarray(coeffs, dtype=float)
+    return merge(PauliTerms(xs, zs, coeff, np.zeros(len(labels), dtype=np.int64)))
 
 
 def merge(terms: PauliTerms) -> PauliTerms:
-    """Equal strings summed into one (order: sorted by (x, z))."""
+    """Equal strings of one tag summed into one (sorted by tag, then string)."""
     if len(terms) == 0:
         return terms
-    keys = np.stack([terms.x, terms.z], axis=1)
-    uniq, inverse = np.unique(keys, axis=0, return_inverse=True)
-    coeff = np.zeros(uniq.shape[0])
-    np.add.at(coeff, inverse.reshape(-1), terms.coeff)
-    return PauliTerms(uniq[:, 0].copy(), uniq[:, 1].copy(), coeff)
+    if int((terms.x | terms.z).max()) < 1 << 32:  # (x, z) in one 64-bit word: fewer keys
+        cols: tuple[np.ndarray, ...] = ((terms.x << np.uint64(32)) | terms.z, terms.tag)
+    else:
+        cols = (terms.z, terms.x, terms.tag)
+    order = np.lexsort(cols)  # the last key is the primary one
+    same = np.ones(len(order) - 1, dtype=bool)
+    for col in cols:
+        sorted_col = col[order]
+        same &= sorted_col[1:] == sorted_col[:-1]
+    starts = np.concatenate([[True], ~same])
+    coeff = np.bincount(np.cumsum(starts) - 1, weights=terms.coeff[order])
+    first = order[starts]
+    return PauliTerms(terms.x[first], terms.z[first], coeff, terms.tag[first])
 
 
 # ---- one instruction, Heisenberg picture -----------------------------------------------------
@@ -149,22 +184,23 @@ def apply_rotation(terms: PauliTerms, rot: Rotation) -> PauliTerms:
     c, s = math.cos(rot.theta), math.sin(rot.theta)
     c = 0.0 if abs(c) < 1e-15 else c
     s = 0.0 if abs(s) < 1e-15 else s
-    xa, za, ca = terms.x[anti], terms.z[anti], terms.coeff[anti]
-    # i G P: product phase of G P is i^k with k odd for anticommuting strings, so i^(k+1) = +-1
-    k = (_phase_gp(xa, za, rot.x, rot.z) + 1) % 4
-    sign = np.where(k == 0, 1.0, -1.0)
-    new_x, new_z = xa ^ np.uint64(rot.x), za ^ np.uint64(rot.z)
-    keep_x, keep_z, keep_c = terms.x[~anti], terms.z[~anti], terms.coeff[~anti]
-    parts_x, parts_z, parts_c = [keep_x], [keep_z], [keep_c]
+    moved = terms.select(anti)
+    parts = [terms.select(~anti)]
     if c != 0.0:
-        parts_x.append(xa)
-        parts_z.append(za)
-        parts_c.append(c * ca)
+        parts.append(PauliTerms(moved.x, moved.z, c * moved.coeff, moved.tag))
     if s != 0.0:
-        parts_x.append(new_x)
-        parts_z.append(new_z)
-        parts_c.append(s * sign * ca)
-    out = PauliTerms(np.concatenate(parts_x), np.concatenate(parts_z), np.concatenate(parts_c))
+        # i G P: the phase of G P is i^k with k odd for anticommuting strings: i^(k+1) = +-1
+        k = (_phase_gp(moved.x, moved.z, rot.x, rot.z) + 1) % 4
+        sign = np.where(k == 0, 1.0, -1.0)
+        parts.append(
+            PauliTerms(
+                moved.x ^ np.uint64(rot.x),
+                moved.z ^ np.uint64(rot.z),
+                s * sign * moved.coeff,
+                moved.tag,
+            )
+        )
+    out = PauliTerms.join(parts)
     return merge(out) if c != 0.0 and s != 0.0 else out
 
 
@@ -183,35 +219,37 @@ def apply_pauli_diagonal(terms: PauliTerms, channel: PauliDiagonal) -> PauliTerm
         xb = ((terms.x >> qb) & _ONE).astype(np.int64)
         zb = ((terms.z >> qb) & _ONE).astype(np.int64)
         index += (xb + 2 * zb) << (2 * j)
-    return PauliTerms(terms.x, terms.z, terms.coeff * channel.fidelity[index])
+    return PauliTerms(terms.x, terms.z, terms.coeff * channel.fidelity[index], terms.tag)
 
 
-def _truncate(terms: PauliTerms, rule: Truncation) -> tuple[PauliTerms, float, int]:
+def _truncate(terms: PauliTerms, rule: Truncation, bounds: np.ndarray) -> tuple[PauliTerms, int]:
+    """Drop what ``rule`` drops; each tag's dropped ``|c|`` is added to ``bounds``."""
     keep = np.abs(terms.coeff) >= rule.min_abs_coeff
     keep &= terms.coeff != 0.0
     if rule.max_weight is not None:
         keep &= popcount(terms.x | terms.z) <= rule.max_weight
     if keep.all():
-        return terms, 0.0, 0
-    lost = float(np.abs(terms.coeff[~keep]).sum())
-    out = PauliTerms(terms.x[keep], terms.z[keep], terms.coeff[keep])
-    return out, lost, int((~keep).sum())
+        return terms, 0
+    lost = ~keep
+    bounds += np.bincount(terms.tag[lost], weights=np.abs(terms.coeff[lost]), minlength=len(bounds))
+    return terms.select(keep), int(lost.sum())
 
 
 def propagate(
     observable: PauliTerms, program: Sequence[Instruction], rule: Truncation = EXACT
 ) -> Propagated:
-    """Value on ``|0...0>`` of the observable after ``program`` (circuit order), with the
+    """Value on ``|0...0>`` of each observable (tag) after ``program`` (circuit order), with its
     truncation bound (sum of dropped ``|c|``)."""
-    terms, bound, dropped = _truncate(observable, rule)
+    n_tags = max(observable.n_tags, 1)
+    bounds = np.zeros(n_tags)
+    terms, dropped = _truncate(observable, rule, bounds)
     peak = len(terms)
     for inst in reversed(program):
         if isinstance(inst, Rotation):
             terms = apply_rotation(terms, inst)
         else:
             terms = apply_pauli_diagonal(terms, inst)
-        terms, lost, n_lost = _truncate(terms, rule)
-        bound += lost
+        terms, n_lost = _truncate(terms, rule, bounds)
         dropped += n_lost
         peak = max(peak, len(terms))
         if len(terms) > rule.max_strings:
@@ -219,8 +257,9 @@ def propagate(
                 f"pauli propagation: {len(terms)} Pauli strings alive; allowed: at most "
                 f"{rule.max_strings} (raise the truncation threshold or lower the weight cap)"
             )
-    value = float(terms.coeff[terms.x == 0].sum())
-    return Propagated(value, bound, peak, dropped)
+    on_zero = terms.x == 0
+    values = np.bincount(terms.tag[on_zero], weights=terms.coeff[on_zero], minlength=n_tags)
+    return Propagated(values, bounds, peak, dropped)
 
 
 # ---- channels to Pauli fidelities -----------------------------------------------------------
@@ -233,6 +272,7 @@ _SINGLE = {
 }
 
 
+@functools.lru_cache(maxsize=512)
 def pauli_matrix(index: int, k: int) -> np.ndarray:
     """The Hermitian Pauli of ``index`` (``sum_j (x_j + 2 z_j) 4^j``) on k qubits, qiskit order
     (qubit 0 is the least significant tensor factor)."""
@@ -240,6 +280,7 @@ def pauli_matrix(index: int, k: int) -> np.ndarray:
     for j in range(k):
         d = (index >> (2 * j)) & 3
         out = np.kron(_SINGLE[(d & 1, d >> 1)], out)
+    out.setflags(write=False)  # shared by every caller (memoized)
     return out
 
 
