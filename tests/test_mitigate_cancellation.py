@@ -31,13 +31,13 @@ def _kraus(error) -> list[np.ndarray]:
 
 
 @pytest.mark.parametrize("p", [0.001, 0.05, 0.3])
-def test_gamma_of_single_qubit_depolarizing_is_the_closed_form(p: float) -> None:
+def test_norm_of_single_qubit_depolarizing_is_the_closed_form(p: float) -> None:
     # qiskit-aer's depolarizing_error(p, 1) is rho -> (1 - p) rho + p I/2 (its documentation)
     inv = pauli_inverse(twirled_rates(_kraus(depolarizing_error(p, 1))))
     # source: Temme, Bravyi and Gambetta, PRL 119, 180509 (2017) (from memory; derived in
     # ../shared/REFERENCES.md): inverse fidelities 1/(1-p) give q_I = 1 + 3p/(4(1-p)),
-    # q_X = q_Y = q_Z = -p/(4(1-p)), gamma = (1 + p/2)/(1 - p)
-    assert inv.gamma == pytest.approx((1 + p / 2) / (1 - p), rel=1e-12)
+    # q_X = q_Y = q_Z = -p/(4(1-p)), norm = (1 + p/2)/(1 - p)
+    assert inv.norm == pytest.approx((1 + p / 2) / (1 - p), rel=1e-12)
     expected = [1 + 3 * p / (4 * (1 - p))] + [-p / (4 * (1 - p))] * 3
     np.testing.assert_allclose(inv.quasi, expected, rtol=1e-10, atol=1e-15)
 
@@ -57,7 +57,7 @@ def test_twirl_and_inverse_against_qiskit_channels() -> None:
     inv = pauli_inverse(rates)
     inverse = sum(q * SuperOp(Pauli(lab)) for q, lab in zip(inv.quasi, labels, strict=True))
     np.testing.assert_allclose(inverse.compose(twirled).data, np.eye(16), atol=1e-12)
-    # the sign-flagged Kraus form is CPTP and, read with the sign, is gamma^-1 times the inverse
+    # the sign-flagged Kraus form is CPTP and, read with the sign, is norm^-1 times the inverse
     flagged = Kraus(inv.signed_kraus())
     assert flagged.is_cptp()
 
@@ -121,19 +121,19 @@ def test_coherent_noise_left_out_of_the_model_biases() -> None:
     ]
 
 
-def test_gamma_is_the_product_over_the_circuit_and_enters_the_variance() -> None:
+def test_norm_is_the_product_over_the_circuit_and_enters_the_variance() -> None:
     ctx, runner, cal = h2_experiment()
     raw = run_recipe([], ctx, runner, calibrator=cal)
     pec = run_recipe(PEC, ctx, runner, calibrator=cal)
     info = pec.details["error_cancellation"]
-    (gamma,) = info["gamma"].values()
-    (g_gates,) = info["gamma_gates"].values()
-    (g_idle,) = info["gamma_idle"].values()
-    assert gamma == pytest.approx(g_gates * g_idle, rel=1e-12) and gamma > 1.0
-    # per shot the estimator is gamma * sign * w: its variance is about gamma^2 the raw one
+    (norm,) = info["quasi_norm"].values()
+    (g_gates,) = info["quasi_norm_gates"].values()
+    (g_idle,) = info["quasi_norm_idle"].values()
+    assert norm == pytest.approx(g_gates * g_idle, rel=1e-12) and norm > 1.0
+    # per shot the estimator is norm * sign * w: its variance is about norm^2 the raw one
     # (common practice, no source: the PEC sampling overhead)
     ratio = (pec.std_mha / raw.std_mha) ** 2
-    assert 0.5 * gamma**2 < ratio < 2.0 * gamma**2
+    assert 0.5 * norm**2 < ratio < 2.0 * norm**2
 
 
 def test_refusals_are_one_line() -> None:

@@ -46,7 +46,7 @@ def test_tune_ranks_the_families(tmp_path: Path) -> None:
     assert result.distinct_variants == 3
     by_family = {e.setting["family"]: e for e in result.entries if e.setting["readout"] == "none"}
     pec = by_family["error_cancellation"].result
-    assert next(iter(pec.details["error_cancellation"]["gamma"].values())) > 1.0
+    assert next(iter(pec.details["error_cancellation"]["quasi_norm"].values())) > 1.0
     assert by_family["distillation"].label.startswith("family=distillation")
     raw = by_family["none"].result
     assert abs(pec.bias_exact_mha) < abs(raw.bias_exact_mha)

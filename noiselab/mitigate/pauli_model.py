@@ -8,9 +8,10 @@ map p -> f is inverted by p_P = 4**-m sum_Q s(P, Q) f_Q. The Pauli twirl of a ch
 operators K keeps the diagonal of its process matrix, p_P = sum_K |Tr(P K)|**2 / 4**m.
 
 The inverse of a Pauli channel is the Pauli quasi-channel with fidelities 1/f_Q, i.e.
-q_P = 4**-m sum_Q s(P, Q) / f_Q; its sampling cost is gamma = sum_P |q_P| (Temme, Bravyi and
-Gambetta, PRL 119, 180509 (2017)). A model "learned" with a relative error e has every error
-rate p_P (P != I) multiplied by 1 + e (a systematic, deterministic error of the learning).
+q_P = 4**-m sum_Q s(P, Q) / f_Q; its sampling cost is the 1-norm C = sum_P |q_P| (Temme,
+Bravyi and Gambetta, PRL 119, 180509 (2017)). A model "learned" with a relative error e has
+every error rate p_P (P != I) multiplied by 1 + e (a systematic, deterministic error of the
+learning).
 """
 
 from __future__ import annotations
@@ -71,10 +72,10 @@ def learned_rates(rates: np.ndarray, learning_error: float) -> np.ndarray:
 @dataclass(frozen=True, eq=False)
 class Inverse:
     """The inverse of a Pauli channel on m qubits as a quasi-probability distribution:
-    ``quasi[P]`` over :func:`pauli_labels` (sum 1), ``gamma`` = sum |quasi|."""
+    ``quasi[P]`` over :func:`pauli_labels` (sum 1), ``norm`` = sum |quasi| (the sampling cost C)."""
 
     quasi: np.ndarray
-    gamma: float
+    norm: float
 
     @property
     def num_qubits(self) -> int:
@@ -82,8 +83,8 @@ class Inverse:
 
     def signed_kraus(self) -> list[np.ndarray]:
         """Kraus operators on the m qubits plus one flag qubit (the last, most significant):
-        sqrt(|q_P| / gamma) P, with the flag flipped where q_P < 0. Sampling a correction with
-        probability |q_P| / gamma and recording its sign, as a CPTP map."""
+        sqrt(|q_P| / C) P, with the flag flipped where q_P < 0. Sampling a correction with
+        probability |q_P| / C and recording its sign, as a CPTP map."""
         m = self.num_qubits
         flip = np.array([[0.0, 1.0], [1.0, 0.0]])
         out = []
@@ -91,7 +92,7 @@ class Inverse:
             if abs(q) <= 1e-16:
                 continue
             flag = flip if q < 0 else np.eye(2)
-            out.append(np.sqrt(abs(q) / self.gamma) * np.kron(flag, p))
+            out.append(np.sqrt(abs(q) / self.norm) * np.kron(flag, p))
         return out
 
 

@@ -8,16 +8,16 @@ restricted to the channel parts in ``learned``, with every error rate off by the
 ``learning_error``. Over a gate's own qubits this is the sparse Pauli-Lindblad model of van den
 Berg et al. with all its generators, without crosstalk between gates. Its inverse is a
 quasi-probability distribution q over Pauli corrections after the operation
-(:mod:`noiselab.mitigate.pauli_model`), with cost gamma = sum |q|; the circuit's gamma is the
-product over its operations.
+(:mod:`noiselab.mitigate.pauli_model`), whose 1-norm C = sum |q| is its sampling cost (written
+with a Greek letter in Temme et al.); the circuit's C is the product over its operations.
 
 Emulation, exactly: the circuit gets one classical flag qubit. After each corrected operation a
-CPTP instruction applies correction P with probability |q_P| / gamma and flips the flag where
+CPTP instruction applies correction P with probability |q_P| / C and flips the flag where
 q_P < 0 (sampling the corrections and recording their sign, as on a device). The emulator reads
 the flag without error (:func:`noiselab.emulate.engine.emulate_flagged_bases`), so each measured
 row has 2 x 2**n entries (outcome, sign). The pass turns it into the quasi-distribution
-gamma (p(k, +) - p(k, -)), whose expectation is the mitigated one; a weight u on it pulls back
-to gamma (u, -u) on the raw row, so the variance is gamma**2 E[w**2] - E**2 per shot: the
+C (p(k, +) - p(k, -)), whose expectation is the mitigated one; a weight u on it pulls back
+to C (u, -u) on the raw row, so the variance is C**2 E[w**2] - E**2 per shot: the
 sampling overhead of PEC, exact, with nothing assumed.
 
 What stays out of the model enters the bias, as on a device: the non-Pauli part of every channel
@@ -86,13 +86,13 @@ class CancellationOptions(PassOptions):
 
 @dataclass(frozen=True, eq=False)
 class CorrectionPlan:
-    """The corrected circuit (one flag qubit more), the circuit's gamma, the number of
-    corrected operations and the product of gammas by kind ("gates", "idle")."""
+    """The corrected circuit (one flag qubit more), the circuit's 1-norm C, the number
+    of corrected operations and the product of the norms by kind ("gates", "idle")."""
 
     circuit: Any
-    gamma: float
+    norm: float
     corrections: int
-    gamma_by_kind: Mapping[str, float]
+    norm_by_kind: Mapping[str, float]
 
 
 @dataclass(frozen=True)
@@ -137,15 +137,15 @@ def correction_plan(compiled: Any, learn_profile: Any, model: PauliCancellation)
     patch = tuple(compiled.patch)
     out = QuantumCircuit(k + 1, global_phase=circ.global_phase)
     memo: dict[tuple, Inverse | None] = {}
-    gamma = {"gates": 1.0, "idle": 1.0}
+    norm = {"gates": 1.0, "idle": 1.0}
     count = 0
 
     def add(inv: Inverse | None, qubits: list[int], kind: str) -> None:
         nonlocal count
-        if inv is None or inv.gamma <= 1.0 + 1e-15:
+        if inv is None or inv.norm <= 1.0 + 1e-15:
             return
         out.append(Kraus(inv.signed_kraus()).to_instruction(), [*qubits, flag])
-        gamma[kind] *= inv.gamma
+        norm[kind] *= inv.norm
         count += 1
 
     for inst in circ.data:
@@ -179,20 +179,20 @@ def correction_plan(compiled: Any, learn_profile: Any, model: PauliCancellation)
                 kraus = Kraus(err.to_quantumchannel()).data
                 memo[key] = _inverse(kraus, model.learning_error)
         add(memo[key], qs, "gates")
-    total = gamma["gates"] * gamma["idle"]
-    return CorrectionPlan(out, total, count, dict(gamma))
+    total = norm["gates"] * norm["idle"]
+    return CorrectionPlan(out, total, count, dict(norm))
 
 
 @dataclass(frozen=True)
 class CancellationReport(PassReport):
-    """Per variant label: the circuit's gamma, the number of corrected operations and the gamma
+    """Per variant label: the circuit's 1-norm C, the number of corrected operations and C
     of the gates and of the idle periods; the model's options and what it leaves out."""
 
     kind: ClassVar[str] = "error_cancellation"
-    gamma: Mapping[str, float]
+    quasi_norm: Mapping[str, float]
     corrections: Mapping[str, int]
-    gamma_gates: Mapping[str, float]
-    gamma_idle: Mapping[str, float]
+    quasi_norm_gates: Mapping[str, float]
+    quasi_norm_idle: Mapping[str, float]
     learning_error: float
     learned: tuple[str, ...]
     idle: bool
@@ -210,10 +210,10 @@ class CancellationReport(PassReport):
     def details(self, run: ScoredRun) -> dict[str, Any]:
         return {
             "error_cancellation": {
-                "gamma": dict(self.gamma),
-                "sampling_overhead": {k: g * g for k, g in self.gamma.items()},
-                "gamma_gates": dict(self.gamma_gates),
-                "gamma_idle": dict(self.gamma_idle),
+                "quasi_norm": dict(self.quasi_norm),
+                "sampling_overhead": {k: g * g for k, g in self.quasi_norm.items()},
+                "quasi_norm_gates": dict(self.quasi_norm_gates),
+                "quasi_norm_idle": dict(self.quasi_norm_idle),
                 "corrections": dict(self.corrections),
                 "learning_error": self.learning_error,
                 "learned": list(self.learned),
@@ -276,13 +276,13 @@ class ErrorCancellationPass(MitigationPass):
     def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Corrected:
         n = ws.ctx.plan.num_qubits
         plan = self.plan(ws.ctx, variant)
-        out = {b: _fold(d, plan.gamma, 2**n, b) for b, d in data.items()}
+        out = {b: _fold(d, plan.norm, 2**n, b) for b, d in data.items()}
         label = variant.label()
         report = CancellationReport(
-            gamma={label: plan.gamma},
+            quasi_norm={label: plan.norm},
             corrections={label: plan.corrections},
-            gamma_gates={label: plan.gamma_by_kind["gates"]},
-            gamma_idle={label: plan.gamma_by_kind["idle"]},
+            quasi_norm_gates={label: plan.norm_by_kind["gates"]},
+            quasi_norm_idle={label: plan.norm_by_kind["idle"]},
             learning_error=float(self.options.learning_error),
             learned=tuple(self.options.learned),
             idle=bool(self.options.idle),
@@ -290,17 +290,17 @@ class ErrorCancellationPass(MitigationPass):
         return Corrected(out, report)
 
 
-def _fold(d: CorrectedDistribution, gamma: float, dim: int, basis: str) -> CorrectedDistribution:
-    """gamma (p(k, +) - p(k, -)) from a (outcome, sign) row; weights pull back as gamma (u, -u)."""
+def _fold(d: CorrectedDistribution, norm: float, dim: int, basis: str) -> CorrectedDistribution:
+    """C (p(k, +) - p(k, -)) from a (outcome, sign) row; weights pull back as C (u, -u)."""
     p = np.asarray(d.probs, dtype=float)
     if len(p) != 2 * dim:
         raise NoiselabError(
             f"error_cancellation: basis {basis}: expected {2 * dim} (outcome, sign) entries, got "
             f"{len(p)}; the pass must see the rows of its own sign-flagged circuit first"
         )
-    q = gamma * (p[:dim] - p[dim:])
+    q = norm * (p[:dim] - p[dim:])
 
     def pullback(u: np.ndarray) -> dict[SourceKey, np.ndarray]:
-        return d.pullback(gamma * np.concatenate([u, -u]))
+        return d.pullback(norm * np.concatenate([u, -u]))
 
     return CorrectedDistribution(q, pullback)
