@@ -116,9 +116,10 @@ def test_coherent_noise_left_out_of_the_model_biases() -> None:
         calibrator=make_calibrator(coherent),
     )
     assert abs(without.energy_ha - noiseless) > 1e-6
-    assert "coherent part of the gate channels" in without.details["error_cancellation"][
-        "out_of_model"
-    ]
+    assert (
+        "coherent part of the gate channels"
+        in without.details["error_cancellation"]["out_of_model"]
+    )
 
 
 def test_norm_is_the_product_over_the_circuit_and_enters_the_variance() -> None:

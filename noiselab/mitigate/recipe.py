@@ -76,9 +76,7 @@ class ParsedRecipe:
         """The circuit variants to run: the combination pass's, or the device as it is."""
         combiner = self.of_stage(STAGE_COMBINE)
         base = combiner.variants(ctx) if combiner else (CircuitVariant(),)
-        extra = tuple(
-            t for p in self.passes if p.stage != STAGE_COMBINE for t in p.transforms(ctx)
-        )
+        extra = tuple(t for p in self.passes if p.stage != STAGE_COMBINE for t in p.transforms(ctx))
         if not extra:
             return base
         return tuple(CircuitVariant(v.transforms + extra) for v in base)
