@@ -137,6 +137,18 @@ def test_norm_is_the_product_over_the_circuit_and_enters_the_variance() -> None:
     assert 0.5 * norm**2 < ratio < 2.0 * norm**2
 
 
+def test_a_deep_circuit_is_unbiased_but_never_affordable(pauli_only) -> None:
+    # sixty times the two-qubit error: the cost of each gate's inverse multiplies up
+    deep = replace_experiment(
+        pauli_only, profile=scale_profile(pauli_only.profile, 60.0, ["two_qubit"])
+    )
+    result = run_recipe(PEC, deep, make_runner(deep), calibrator=make_calibrator(deep))
+    (norm,) = result.details["error_cancellation"]["quasi_norm"].values()
+    assert norm > 1e4
+    assert abs(result.bias_ansatz_mha) < 1e-5  # still exact in expectation
+    assert result.shots_needed is None and result.limited_by == "shots"  # the honest "never"
+
+
 def test_refusals_are_one_line() -> None:
     ctx, _, _ = h2_experiment()
     with pytest.raises(InputError, match=r"recipe\[1\]\.pass: 'error_cancellation' must come"):
