@@ -104,6 +104,9 @@ class PauliCancellation(CircuitTransform):
     learning_error: float = 0.0
     learned: tuple[str, ...] = ALL_PARTS
     idle: bool = True
+    #: fingerprint of the profile the model is learned on (the experiment's; a stretched or
+    #: drifted variant is emulated on another): part of the cache key
+    learned_on: str = ""
 
     def label(self) -> str:
         parts = "+".join(self.learned) or "nothing"
@@ -239,12 +242,15 @@ class ErrorCancellationPass(MitigationPass):
         o = self.options
         return "error_cancellation" + (f"(e={o.learning_error:g})" if o.learning_error else "")
 
-    def model(self) -> PauliCancellation:
+    def model(self, ctx: Any) -> PauliCancellation:
         o = self.options
-        return PauliCancellation(float(o.learning_error), tuple(o.learned), bool(o.idle))
+        fingerprint = str(getattr(ctx.profile, "fingerprint", ""))
+        return PauliCancellation(
+            float(o.learning_error), tuple(o.learned), bool(o.idle), fingerprint
+        )
 
     def transforms(self, ctx: Any) -> tuple[CircuitTransform, ...]:
-        return (self.model(),)
+        return (self.model(ctx),)
 
     def check(self, ctx: Any, where: str) -> None:
         k = ctx.compiled.circuit.num_qubits + 1
@@ -258,7 +264,7 @@ class ErrorCancellationPass(MitigationPass):
                 "allowed: emulation method auto or density_matrix on a smaller problem"
             )
         try:
-            self.plan(ctx, CircuitVariant((self.model(),)))
+            self.plan(ctx, CircuitVariant((self.model(ctx),)))
         except ValueError as exc:
             raise InputError(f"{where}.learning_error: {exc}; allowed: a smaller error") from None
 
@@ -269,7 +275,7 @@ class ErrorCancellationPass(MitigationPass):
         hit = cache.get(key)
         if hit is None or hit[0] is not ctx:
             compiled = variant_inputs(ctx, variant)[0]
-            hit = (ctx, correction_plan(compiled, ctx.profile, self.model()))
+            hit = (ctx, correction_plan(compiled, ctx.profile, self.model(ctx)))
             cache[key] = hit
         return hit[1]
 
