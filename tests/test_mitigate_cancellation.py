@@ -149,6 +149,24 @@ def test_a_deep_circuit_is_unbiased_but_never_affordable(pauli_only) -> None:
     assert result.shots_needed is None and result.limited_by == "shots"  # the honest "never"
 
 
+def test_sampled_spread_matches_the_analytic_error_at_a_large_norm(pauli_only) -> None:
+    noisy = replace_experiment(
+        pauli_only, profile=scale_profile(pauli_only.profile, 20.0, ["two_qubit"])
+    )
+    runner = make_runner(noisy)
+    analytic = run_recipe(PEC, noisy, runner)
+    (norm,) = analytic.details["error_cancellation"]["quasi_norm"].values()
+    assert norm > 20.0
+    rng = np.random.default_rng(7)
+    draws = np.array(
+        [run_recipe(PEC, noisy, runner, sampled=True, rng=rng).energy_ha for _ in range(60)]
+    )
+    # common practice, no source: the sample std of 60 normal draws is within 30 % of the true
+    # one; the drawn signs and outcomes carry the whole norm^2 overhead
+    assert draws.std(ddof=1) == pytest.approx(analytic.std_mha / 1000, rel=0.3)
+    assert abs(draws.mean() - analytic.energy_ha) < 3 * analytic.std_mha / 1000
+
+
 def test_refusals_are_one_line() -> None:
     ctx, _, _ = h2_experiment()
     with pytest.raises(InputError, match=r"recipe\[1\]\.pass: 'error_cancellation' must come"):
