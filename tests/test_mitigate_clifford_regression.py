@@ -184,3 +184,42 @@ def test_refuses_impossible_options(options: dict, message: str) -> None:
     with pytest.raises(InputError, match=message) as info:
         make_pass({**CDR, **options}, where="recipe[0]")
     assert "\n" not in str(info.value)
+
+
+def test_in_tune_default_grid_and_in_a_small_tune(tmp_path) -> None:
+    from helpers.pass_contract import DEMO
+
+    from noiselab.study.spec import load_study
+    from noiselab.study.tune import GridOverride, grid_settings, resolve_grid, tune
+
+    study = load_study(DEMO)
+    bare = study.__class__(**{**study.__dict__, "tune": None})
+    settings, _ = grid_settings(resolve_grid(bare, GridOverride())[0])
+    assert any(s.passes[-1]["pass"] == "clifford_regression" for s in settings if s.passes)
+    grid = GridOverride(readout=["none"], postselect=["none"], amplification=["none", CDR["pass"]])
+    result = tune(study, grid=grid, cache=tmp_path / "t.db")
+    by_label = {e.label: e.result for e in result.entries}
+    assert len(by_label) == 2
+    cdr = next(r for label, r in by_label.items() if "clifford_regression" in label)
+    raw = next(r for label, r in by_label.items() if "clifford_regression" not in label)
+    assert abs(cdr.bias_exact_mha) * 5 <= abs(raw.bias_exact_mha)
+
+
+def test_in_the_error_budget(tmp_path) -> None:
+    from helpers.pass_contract import DEMO
+
+    from noiselab.study.budget import budget
+
+    text = DEMO.read_text(encoding="utf-8").replace(
+        "recipes:\n",
+        "recipes:\n  regression:\n    - {pass: clifford_regression, training_size: 4}\n",
+        1,
+    )
+    study = tmp_path / "h2-regression.yaml"
+    study.write_text(text, encoding="utf-8")
+    result = budget(study, "regression", cache=False)
+    rows = {r.label: r for r in result.rows}
+    # raw, then the recipe; without noise the fit is the identity (UCCSD is exact for H2), up to
+    # the finite-shot (second-order) shift of the fit, well below a micro-hartree here
+    assert abs(rows["all channels"].errors_mha[1]) * 5 <= abs(rows["all channels"].errors_mha[0])
+    assert rows["noiseless"].errors_mha[1] == pytest.approx(0.0, abs=1e-2)
