@@ -70,6 +70,13 @@ _IDEAL_MEMO: weakref.WeakKeyDictionary[Any, dict[tuple[Any, ...], float]] = (
 MAX_STATEVECTOR_QUBITS = 24
 
 
+#: Said with every result: a modelling choice that favours the experiment.
+ASSUMPTION = (
+    "training circuits run under the target's noise, unchanged between runs (no drift); "
+    "a drifting device fits worse"
+)
+
+
 class CliffordRegressionOptions(PassOptions):
     training_size: Count = Field(
         default=8, ge=3, le=MAX_TRAINING_SIZE, description="training circuits per set"
@@ -155,6 +162,7 @@ class CliffordRegressionReport(PassReport):
                 "choice_std_mha": self.choice_std_ha * HA_TO_MHA,
                 "shot_shift_mha": self.shot_shift_ha * HA_TO_MHA,
                 "classical": self.classical,
+                "assumption": ASSUMPTION,
             }
         }
 
