@@ -9,10 +9,16 @@ device's noise, on the same correction and estimator passes as the target. Per t
 least-squares fit E_exact = b + sum_j a_j E_noisy(c_j) over the ``noise_levels`` c_j (stretched
 circuit noise; (1,) is plain regression) is applied to the target's noisy energies.
 
-Randomness, kept apart as everywhere: the training circuits' shots make the fit uncertain (delta
-method: the gradient of the fitted value with respect to every training and target estimate, so
-the training shots are in the standard error and in the shots needed); the random choice of the
-replaced rotations is a second random part no shot count shrinks. ``training_sets`` (>= 2)
+Randomness, kept apart as everywhere: the training circuits' shots make the fit uncertain. The
+fit is not linear in the noisy energies (errors in the abscissae flatten a least-squares slope),
+so on exact inputs the pass computes the mean and spread of its value under the shot noise at
+the shots the budget gives (the allocation ``run_recipe`` makes next), by a deterministic
+quadrature (scrambled Sobol points, fixed seed): the mean is the energy (bias = expectation at
+the budget, ``shot_shift_mha`` away from the infinite-shot fit), and the delta-method influence
+(gradient of the fitted value with respect to every training and target estimate, which sets
+the allocation and the shots needed) is scaled to the spread (``error_bar_scale``; readout
+calibration noise enters linearly). The random choice of the replaced rotations is a second
+random part no shot count shrinks. ``training_sets`` (>= 2)
 independent training sets are drawn; the energy is the mean of their fitted values, and the
 variance of that mean over choices, (sample variance of the sets' values) / K, enters the error
 bar as ``std_training_choice_mha`` (sampled evaluations draw it). Every training circuit is run
@@ -34,6 +40,8 @@ import numpy as np
 from pydantic import Field, field_validator, model_validator
 from qiskit import QuantumCircuit
 from qiskit.quantum_info import Statevector
+from scipy.special import ndtri
+from scipy.stats import qmc
 
 from noiselab.common.counts import MAX_SEED, Count
 from noiselab.common.errors import InputError, NoiselabError, ProblemTooLargeError
@@ -61,6 +69,9 @@ MAX_TRAINING_SETS = 8
 #: Most noise levels of the variable-noise fit, and the largest level (as extrapolate's bound).
 MAX_NOISE_LEVELS = 4
 MAX_NOISE_LEVEL = 10.0
+#: Points (a power of 2) and seed of the quadrature over the training shots' noise.
+QUADRATURE_POINTS = 2048
+QUADRATURE_SEED = 20211
 #: Per experiment context (dropped with it): noiseless training energies, and the choice
 #: variance of each exact evaluation (what sampled evaluations draw).
 _IDEAL_MEMO: weakref.WeakKeyDictionary[Any, dict[tuple[Any, ...], float]] = (
@@ -144,6 +155,7 @@ class CliffordRegressionReport(PassReport):
     target_noisy_ha: tuple[float, ...]
     choice_std_ha: float
     shot_shift_ha: float = 0.0
+    error_bar_scale: float = 1.0
     classical: bool = False
 
     def details(self, run: ScoredRun) -> dict[str, Any]:
@@ -161,6 +173,7 @@ class CliffordRegressionReport(PassReport):
                 "target_noisy_ha": list(self.target_noisy_ha),
                 "choice_std_mha": self.choice_std_ha * HA_TO_MHA,
                 "shot_shift_mha": self.shot_shift_ha * HA_TO_MHA,
+                "error_bar_scale": self.error_bar_scale,
                 "classical": self.classical,
                 "assumption": ASSUMPTION,
             }
@@ -266,20 +279,44 @@ def fit_and_gradient(
     return float(offset + phi @ beta), coeffs, grad, beta.copy()
 
 
-def _curvature(
-    x: np.ndarray, y: np.ndarray, target: np.ndarray, anchor: float | None, step_ha: float = 1e-4
+def _fit_values(
+    x: np.ndarray, y: np.ndarray, target: np.ndarray, anchor: float | None
 ) -> np.ndarray:
-    """d^2 f / dx_ij^2 of the fitted value f (``fit_and_gradient``), central differences."""
-    f0 = fit_and_gradient(x, y, target, anchor)[0]
-    out = np.zeros_like(x)
-    for idx in np.ndindex(*x.shape):
-        up, down = x.copy(), x.copy()
-        up[idx] += step_ha
-        down[idx] -= step_ha
-        fu = fit_and_gradient(up, y, target, anchor)[0]
-        fd = fit_and_gradient(down, y, target, anchor)[0]
-        out[idx] = (fu - 2.0 * f0 + fd) / step_ha**2
-    return out
+    """Fitted values (``fit_and_gradient``'s f) for a batch: ``x`` (N, m, L), ``target`` (N, L)."""
+    n, m, _ = x.shape
+    if anchor is None:
+        design = np.concatenate([np.ones((n, m, 1)), x], axis=2)
+        phi = np.concatenate([np.ones((n, 1)), target], axis=1)
+        rhs, offset = y, 0.0
+    else:
+        design, phi, rhs, offset = x - anchor, target - anchor, y - anchor, anchor
+    gram = np.einsum("nmi,nmj->nij", design, design)
+    beta = np.linalg.solve(gram, np.einsum("nmi,m->ni", design, rhs)[..., None])[..., 0]
+    return offset + np.einsum("ni,ni->n", phi, beta)
+
+
+def fit_under_shot_noise(
+    sets: list[tuple[np.ndarray, np.ndarray, np.ndarray]],
+    target: np.ndarray,
+    target_std: np.ndarray,
+    anchor: float | None,
+) -> tuple[float, float]:
+    """(mean, variance) of the mean over training sets of the fitted values when every noisy
+    energy carries its shot noise (Ha, Ha^2): a quadrature over Gaussian errors on scrambled
+    Sobol points (:data:`QUADRATURE_POINTS`, fixed seed: deterministic). ``sets``: per set
+    (x (m, L), y (m,), std of x (m, L)); ``target`` (L,) and its std, shared by the sets."""
+    dims = target.size + sum(x.size for x, _, _ in sets)
+    points = qmc.Sobol(dims, scramble=True, seed=QUADRATURE_SEED).random(QUADRATURE_POINTS)
+    z = ndtri(np.clip(points, 1e-12, 1.0 - 1e-12))
+    t = target[None, :] + z[:, : target.size] * target_std[None, :]
+    total = np.zeros(QUADRATURE_POINTS)
+    at = target.size
+    for x, y, sd in sets:
+        dx = z[:, at : at + x.size].reshape(QUADRATURE_POINTS, *x.shape) * sd[None]
+        total += _fit_values(x[None] + dx, y, t, anchor)
+        at += x.size
+    total /= len(sets)
+    return float(total.mean()), float(total.var(ddof=1))
 
 
 def _shot_variances(
@@ -427,7 +464,7 @@ class CliffordRegressionPass(MitigationPass):
             return Combined(Estimate(value, {}), report, {"training_choice": 0.0})
         tx = np.array([e.value for e in target])
         anchor = None if o.intercept == "fitted" else mixed_state_energy_ha(ws)
-        fits, parts, train_sets = [], [], []
+        fits, parts, train_sets, grads = [], [], [], []
         for members in self.training_choice(ctx):
             train = [[by_variant[self._level((s,), c)] for c in levels] for s in members]
             x = np.array([[e.value for e in row] for row in train])
@@ -437,30 +474,40 @@ class CliffordRegressionPass(MitigationPass):
             parts.append(Estimate(f, linear_combination([*dx.ravel(), *dt], flat).influence))
             fits.append((f, beta, x, y))
             train_sets.append((members, train))
+            grads.append((dx, dt))
         k = len(fits)
         set_values = [f for f, _, _, _ in fits]
         value = float(np.mean(set_values))
         influence = linear_combination([1.0 / k] * k, parts).influence
         choice_var = float(np.var(set_values, ddof=1)) / k
         memo = _IDEAL_MEMO.setdefault(ctx, {})
-        choice_key = ("choice", self._estimator_key(ws), self.cache_key())
-        shift = 0.0
+        run_key = (self._estimator_key(ws), self.cache_key())
+        shift, scale = 0.0, 1.0
         if ws.rng is not None:
-            # sampled: the sets' values also differ by shot noise here; the choice's spread is
-            # that of the exact evaluation (run first by every recipe)
-            choice_var = memo.get(choice_key, choice_var)
+            # sampled: the sets' values also differ by shot noise here; the choice's spread and
+            # the error-bar scale are those of the exact evaluation (run first by every recipe)
+            choice_var, scale = memo.get(run_key, (choice_var, 1.0))
             if choice_var > 0.0:  # draw the training choice
                 value += float(ws.rng.normal(0.0, math.sqrt(choice_var)))
         else:
-            memo[choice_key] = (
-                choice_var  # exact inputs: the expectation at the budget's shots, to second order
-            )
+            # exact inputs: mean and spread of the fit at the shots the budget gives
             var_x = _shot_variances(ws, self.options.shot_split, influence, by_variant)
-            for (_, _, x, y), (members, _) in zip(fits, train_sets, strict=True):
-                curv = _curvature(x, y, tx, anchor)
+            sd_t = np.sqrt([var_x[self._level((), c)] for c in levels])
+            noisy_sets, linear_var = [], 0.0
+            for (_, _, x, y), (members, _), (dx, _) in zip(fits, train_sets, grads, strict=True):
                 v = np.array([[var_x[self._level((s,), c)] for c in levels] for s in members])
-                shift += 0.5 * float(np.sum(curv * v)) / k
-            value += shift
+                noisy_sets.append((x, y, np.sqrt(v)))
+                linear_var += float(np.sum((dx / k) ** 2 * v))
+            dt_mean = sum(dt for _, dt in grads) / k
+            linear_var += float(np.sum(dt_mean**2 * sd_t**2))
+            mean, var = fit_under_shot_noise(noisy_sets, tx, sd_t, anchor)
+            shift = mean - value
+            value = mean
+            if linear_var > 0.0 and var > 0.0:
+                scale = math.sqrt(var / linear_var)
+            memo[run_key] = (choice_var, scale)
+        if scale != 1.0:
+            influence = {key: u * scale for key, u in influence.items()}
         report = CliffordRegressionReport(
             noise_levels=levels,
             rotations=len(rotations),
@@ -478,6 +525,7 @@ class CliffordRegressionPass(MitigationPass):
             target_noisy_ha=tuple(float(e.value) for e in target),
             choice_std_ha=math.sqrt(choice_var),
             shot_shift_ha=shift,
+            error_bar_scale=scale,
         )
         return Combined(Estimate(value, influence), report, {"training_choice": choice_var})
 
