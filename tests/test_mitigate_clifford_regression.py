@@ -232,3 +232,25 @@ def test_in_the_error_budget(tmp_path) -> None:
     # the finite-shot (second-order) shift of the fit, well below a micro-hartree here
     assert abs(rows["all channels"].errors_mha[1]) * 5 <= abs(rows["all channels"].errors_mha[0])
     assert rows["noiseless"].errors_mha[1] == pytest.approx(0.0, abs=1e-2)
+
+
+def test_verdict_states_the_training_assumption() -> None:
+    from types import SimpleNamespace
+
+    from noiselab.study.results import _with_amplification
+
+    details = {
+        "clifford_regression": {
+            "assumption": "no drift",
+            "training_circuits": 16,
+            "training_shots": 1_900_000,
+            "classical": False,
+        },
+        "std_training_choice_mha": 0.004,
+    }
+    text = _with_amplification("Verdict.", SimpleNamespace(details=details))
+    assert text == (
+        "Verdict. Training assumed: no drift (16 training circuits, 1.9e6 of the shots; the "
+        "choice of rotations adds 0.004 mHa (1 std))."
+    )
+    assert _with_amplification("Verdict.", SimpleNamespace(details={})) == "Verdict."
