@@ -254,3 +254,13 @@ def test_verdict_states_the_training_assumption() -> None:
         "choice of rotations adds 0.004 mHa (1 std))."
     )
     assert _with_amplification("Verdict.", SimpleNamespace(details={})) == "Verdict."
+
+
+def test_refuses_a_circuit_too_wide_for_exact_training_energies(monkeypatch) -> None:
+    from noiselab.common.errors import ProblemTooLargeError
+    from noiselab.mitigate.passes import clifford_regression as module
+
+    ctx, _, _ = h2_experiment()
+    monkeypatch.setattr(module, "MAX_STATEVECTOR_QUBITS", 3)
+    with pytest.raises(ProblemTooLargeError, match=r"recipe\[1\]\.pass: .* 4 qubits"):
+        make_pass(CDR).check(ctx, "recipe[1]")
