@@ -481,7 +481,8 @@ class CliffordRegressionPass(MitigationPass):
         influence = linear_combination([1.0 / k] * k, parts).influence
         choice_var = float(np.var(set_values, ddof=1)) / k
         memo = _IDEAL_MEMO.setdefault(ctx, {})
-        run_key = (self._estimator_key(ws), self.cache_key())
+        recipe = [*ws.corrections, *([ws.estimator] if ws.estimator is not None else []), self]
+        run_key = tuple(p.cache_key() for p in recipe)
         shift, scale = 0.0, 1.0
         if ws.rng is not None:
             # sampled: the sets' values also differ by shot noise here; the choice's spread and
