@@ -18,13 +18,10 @@ from noiselab.device.clifford_substitute import (
     substitute,
 )
 from noiselab.mitigate.base import Workspace
-from noiselab.mitigate.passes.clifford_regression import (
-    fit_and_gradient,
-    ideal_energy_ha,
-    noiseless_distributions,
-)
+from noiselab.mitigate.passes.clifford_regression import ideal_energy_ha
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.mitigate.registry import make_pass
+from noiselab.mitigate.regression_fit import fit_and_gradient, noiseless_distributions
 
 CDR = {"pass": "clifford_regression"}
 
