@@ -218,7 +218,7 @@ def test_in_the_error_budget(tmp_path) -> None:
 
     text = DEMO.read_text(encoding="utf-8").replace(
         "recipes:\n",
-        "recipes:\n  regression:\n    - {pass: clifford_regression, training_size: 4}\n",
+        "recipes:\n  regression:\n    - {pass: clifford_regression, training_sets: 2}\n",
         1,
     )
     study = tmp_path / "h2-regression.yaml"

@@ -91,10 +91,10 @@ ASSUMPTION = (
 
 class CliffordRegressionOptions(PassOptions):
     training_size: Count = Field(
-        default=8, ge=3, le=MAX_TRAINING_SIZE, description="training circuits per set"
+        default=4, ge=3, le=MAX_TRAINING_SIZE, description="training circuits per set"
     )
     training_sets: Count = Field(
-        default=2,
+        default=4,
         ge=2,
         le=MAX_TRAINING_SETS,
         description="independent training sets (>= 2: their spread is the choice's error bar)",
