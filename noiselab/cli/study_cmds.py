@@ -53,6 +53,10 @@ PostselectOpt = repeated("--postselect", "Symmetry post-selection mode(s) to try
 AmplificationOpt = repeated("--amplification", "Noise amplification method(s) to try.")
 ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
 FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
+FamilyOpt = repeated(
+    "--family",
+    "Mitigation family(ies) to try besides the stack: none, error_cancellation, distillation.",
+)
 
 
 def _context_lines(ctx: Any) -> list[str]:
@@ -191,6 +195,7 @@ def tune_cmd(
     amplification: AmplificationOpt = None,
     scales: ScalesOpt = None,
     fit: FitOpt = None,
+    family: FamilyOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
@@ -206,6 +211,7 @@ def tune_cmd(
         amplification=amplification or None,
         scales=_parse_scale_sets(scales),
         fit=fit or None,
+        family=family or None,
     )
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override
@@ -284,8 +290,9 @@ _ASSESS_HELP = (
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
     "The grid is readout method x post-selection mode x amplification method x scale set x "
-    "fit, from the options here, else the study's tune: section, else a built-in grid of "
-    "more than 50 settings. Settings that need the same circuits share their simulations."
+    "fit, plus the families error cancellation and distillation, from the options here, else "
+    "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
+    "need the same circuits share their simulations."
 )
 
 
