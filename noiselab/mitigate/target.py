@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 from scipy.optimize import brentq
-from scipy.stats import norm
+from scipy.special import ndtr  # standard normal CDF, as scipy.stats.norm.cdf computes it
 
 LimitedBy = Literal["bias", "calibration", "amplification", "shots", "none"]
 MAX_SHOTS = 10**15
@@ -44,7 +44,7 @@ def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
         return 0.0
     if s <= 0.0:
         return 1.0 if abs(b) < t else 0.0
-    return float(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
+    return float(ndtr((t - b) / s) - ndtr((-t - b) / s))
 
 
 def reaches_target(p_within_target: float, confidence: float) -> bool:

@@ -36,12 +36,12 @@ from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.compile import compile_to_device
 from noiselab.mitigate.experiment import make_calibrator, make_runner
 from noiselab.mitigate.optimizers import (
-    BudgetExhaustedError,
     OptimizerOutcome,
     ShiftRule,
-    parameter_shift_descent,
+    Steps,
+    parameter_shift_steps,
     scipy_minimize,
-    spsa,
+    spsa_steps,
 )
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.mitigate.target import p_within, reaches_target
@@ -52,6 +52,7 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
+from noiselab.study.loop import LoopEvaluator, run_lockstep
 from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
 from noiselab.study.spec import Study, load_study
 
@@ -192,62 +193,6 @@ class RehearseResult:
         return rows
 
 
-# ---- one evaluation ---------------------------------------------------------------------------
-
-
-class LoopEvaluator:
-    """Energy evaluations at given parameters, as the device would return them; counts shots.
-
-    ``objective(x)``: bind, emulate, draw counts at ``shots`` and run the recipe on them.
-    Raises :class:`BudgetExhaustedError` once ``max_shots`` are spent.
-    """
-
-    def __init__(
-        self,
-        ctx: StudyContext,
-        parameterized: Any,
-        passes: Sequence[Mapping[str, Any]],
-        shots: int,
-        rng: np.random.Generator,
-        *,
-        calibrator: Any,
-        max_shots: int | None = None,
-        analytic: bool = False,
-    ) -> None:
-        self.ctx, self.parameterized, self.passes = ctx, parameterized, list(passes)
-        self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
-        self.max_shots, self.analytic = max_shots, analytic
-        self.evaluation_shots: list[int] = []
-        self.circuit_runs = 0
-        self.last_energy_ha = math.nan
-
-    @property
-    def shots_spent(self) -> int:
-        return int(sum(self.evaluation_shots))
-
-    def evaluate(self, x: np.ndarray, shots: int) -> Any:
-        """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
-        bound = self.parameterized.bind(np.asarray(x, dtype=float))
-        exp = replace_experiment(self.ctx.experiment, compiled=bound, shots=int(shots))
-        return run_recipe(
-            self.passes,
-            exp,
-            make_runner(exp),
-            sampled=not self.analytic,
-            rng=self.rng,
-            calibrator=self.calibrator,
-        )
-
-    def __call__(self, x: np.ndarray) -> float:
-        if self.max_shots is not None and self.shots_spent >= self.max_shots:
-            raise BudgetExhaustedError
-        res = self.evaluate(x, self.shots)
-        self.evaluation_shots.append(int(res.shots_total) + calibration_shots(res))
-        self.circuit_runs += int(res.n_circuits)
-        self.last_energy_ha = float(res.energy_ha)
-        return float(res.energy_ha)
-
-
 def calibration_shots(result: Any) -> int:
     """Readout-calibration shots a recipe result drew (0 for exact calibration)."""
     return int(result.details.get("calibration_shots_total", 0))
@@ -280,20 +225,24 @@ def start_parameters(
     return rng.uniform(-math.pi, math.pi, n)
 
 
-def run_optimizer(
+#: optimizers written as steps (mitigate.optimizers.Steps): their repeats run in lockstep
+STEPPED_OPTIMIZERS = ("spsa", "parameter_shift")
+
+
+def optimizer_steps(
     settings: RehearseSettings,
-    objective: LoopEvaluator,
     x0: np.ndarray,
     rng: np.random.Generator,
     rules: Sequence[ShiftRule],
     on_iteration: Any,
-) -> OptimizerOutcome:
+) -> Steps | None:
+    """The optimizer as steps (SPSA, parameter shift), or None for the scipy ones."""
     opts, n = settings.optimizer_options(), settings.iterations
     if settings.optimizer == "spsa":
-        return spsa(objective, x0, n, rng, opts, on_iteration)
+        return spsa_steps(x0, n, rng, opts, on_iteration)
     if settings.optimizer == "parameter_shift":
-        return parameter_shift_descent(objective, x0, n, rules, opts, on_iteration)
-    return scipy_minimize(objective, x0, n, settings.optimizer, opts, on_iteration)
+        return parameter_shift_steps(x0, n, rules, opts, on_iteration)
+    return None
 
 
 def rehearse(
@@ -317,9 +266,7 @@ def rehearse(
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
     loop_passes = settings.loop_passes()
-    final_passes = (
-        study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
-    )
+    final_passes = study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
     verify = recipes_verify([loop_passes, final_passes])
     if context is None:
         context = build_context(study, cache=_default_cache(cache), verification=verify)
@@ -360,43 +307,69 @@ def rehearse(
         float(parameterized.duration_ns) + float(profile.durations.readout_ns)
     ) * 1e-9 + delay_us * 1e-6
 
-    repeats = []
+    evaluators, traces, starts, hooks = [], [], [], []
     for r in range(settings.repeats):
-        if progress is not None:
-            progress("rehearsing the loop", r, settings.repeats)
-        seed = settings.seed + r
-        rng = np.random.default_rng(seed)
-        x0 = start_parameters(settings, optimum, rng)
-        evaluator = LoopEvaluator(
-            ctx, parameterized, loop_passes, settings.shots_per_evaluation, rng,
-            calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic,
-        )  # fmt: skip
-        trace: list[TracePoint] = []
-
-        def on_iteration(
-            k: int, x: np.ndarray, values: tuple[float, ...], ev: LoopEvaluator = evaluator,
-            tr: list[TracePoint] = trace,
-        ) -> None:  # fmt: skip
-            measured = float(np.mean(values)) if values else ev.last_energy_ha
-            tr.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
-
-        outcome = run_optimizer(settings, evaluator, x0, rng, rules, on_iteration)
-        repeats.append(
-            final_estimate(
+        rng = np.random.default_rng(settings.seed + r)
+        starts.append(start_parameters(settings, optimum, rng))
+        evaluators.append(
+            LoopEvaluator(
                 ctx,
-                evaluator,
-                final_passes,
-                outcome,
-                seed,
-                x0,
-                trace,
-                noiseless,
-                seconds_per_shot,
-                settings.circuit_overhead_s,
+                parameterized,
+                loop_passes,
+                settings.shots_per_evaluation,
+                rng,
+                calibrator=calibrator,
+                max_shots=settings.max_shots,
+                analytic=analytic,
             )
         )
-    if progress is not None:
-        progress("rehearsing the loop", settings.repeats, settings.repeats)
+        traces.append([])
+        hooks.append(_trace_hook(evaluators[-1], traces[-1], noiseless))
+    lockstep = settings.optimizer in STEPPED_OPTIMIZERS
+    if lockstep and progress is not None:
+        progress("rehearsing the loop (iterations)", 0, settings.iterations)
+        hooks[0] = _with_progress(hooks[0], progress, settings.iterations)
+    steps = [
+        optimizer_steps(settings, x0, ev.rng, rules, hook)
+        for ev, x0, hook in zip(evaluators, starts, hooks, strict=True)
+    ]
+    if lockstep:
+        # every repeat's next points go to the emulator together
+        outcomes = run_lockstep([s for s in steps if s is not None], evaluators)
+    else:
+        outcomes = []
+        for r, (ev, x0) in enumerate(zip(evaluators, starts, strict=True)):
+            if progress is not None:
+                progress("rehearsing the loop", r, settings.repeats)
+            outcomes.append(
+                scipy_minimize(
+                    ev,
+                    x0,
+                    settings.iterations,
+                    settings.optimizer,
+                    settings.optimizer_options(),
+                    hooks[r],
+                )
+            )
+        if progress is not None:
+            progress("rehearsing the loop", settings.repeats, settings.repeats)
+    repeats = [
+        final_estimate(
+            ctx,
+            ev,
+            final_passes,
+            out,
+            settings.seed + r,
+            x0,
+            trace,
+            noiseless,
+            seconds_per_shot,
+            settings.circuit_overhead_s,
+        )
+        for r, (ev, out, x0, trace) in enumerate(
+            zip(evaluators, outcomes, starts, traces, strict=True)
+        )
+    ]
     loop_name = parse_recipe(list(loop_passes)).name
     result = RehearseResult(
         study=study.name,
@@ -416,6 +389,28 @@ def rehearse(
     return dataclasses.replace(
         result, verdict=rehearse_verdict(result), wall_seconds=time.perf_counter() - t0
     )
+
+
+def _trace_hook(
+    ev: LoopEvaluator, trace: list[TracePoint], noiseless: Callable[[np.ndarray], float]
+) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
+    """After each iteration: shots so far, the measured energy, the iterate's noiseless one."""
+
+    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
+        measured = float(np.mean(values)) if values else ev.last_energy_ha
+        trace.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
+
+    return on_iteration
+
+
+def _with_progress(
+    hook: Callable[[int, np.ndarray, tuple[float, ...]], None], progress: ProgressHook, total: int
+) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
+    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
+        hook(k, x, values)
+        progress("rehearsing the loop (iterations)", k + 1, total)
+
+    return on_iteration
 
 
 def final_estimate(

@@ -1,0 +1,165 @@
+"""In-loop energy evaluations of the rehearse job, and the loops that drive optimizers on them.
+
+A :class:`LoopEvaluator` is one repeat's view of the device: one experiment context on the
+parameterized compile (so the recipe's derived tables are built once), the repeat's random
+generator, its shot count, and its readout calibration, drawn once at the first evaluation and
+reused by every later one (a real run calibrates at the start; the calibration's randomness
+differs between repeats and so stays in their spread). Points are emulated in batches
+(:func:`emulate_points`): every parameter set an optimizer step asks for, of every repeat run
+in lockstep, goes to one qiskit-aer call per circuit variant (``emulate_parameter_sets``), and
+each evaluation then draws its counts and runs the recipe on them.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from typing import Any
+
+import numpy as np
+
+from noiselab.emulate.batch import emulate_parameter_sets
+from noiselab.mitigate.experiment import variant_inputs
+from noiselab.mitigate.optimizers import BudgetExhaustedError, OptimizerOutcome, Steps
+from noiselab.mitigate.recipe import parse_recipe, run_recipe
+from noiselab.study.context import StudyContext, replace_experiment
+
+
+class LoopEvaluator:
+    """Energy evaluations at given parameters, as the device would return them; counts shots.
+
+    ``objective(x)``: emulate, draw counts at ``shots`` and run the recipe on them. Raises
+    :class:`BudgetExhaustedError` once ``max_shots`` are spent. The readout calibration is drawn
+    at the first evaluation and reused (``calibration_record``); its shots and circuits are
+    counted once, with that evaluation.
+    """
+
+    def __init__(
+        self,
+        ctx: StudyContext,
+        parameterized: Any,
+        passes: Sequence[Mapping[str, Any]],
+        shots: int,
+        rng: np.random.Generator,
+        *,
+        calibrator: Any,
+        max_shots: int | None = None,
+        analytic: bool = False,
+    ) -> None:
+        self.ctx, self.parameterized = ctx, parameterized
+        self.recipe = parse_recipe(list(passes))
+        self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
+        self.max_shots, self.analytic = max_shots, analytic
+        self.experiment = replace_experiment(
+            ctx.experiment, compiled=parameterized, shots=self.shots
+        )
+        self.calibration_record: dict[Any, tuple[int, np.ndarray]] = {}
+        self.evaluation_shots: list[int] = []
+        self.circuit_runs = 0
+        self.last_energy_ha = math.nan
+
+    @property
+    def shots_spent(self) -> int:
+        return int(sum(self.evaluation_shots))
+
+    @property
+    def exhausted(self) -> bool:
+        return self.max_shots is not None and self.shots_spent >= self.max_shots
+
+    def variants(self) -> tuple[Any, ...]:
+        """The circuit variants one evaluation measures."""
+        return self.recipe.variants(self.experiment)
+
+    def score(self, data: Mapping[Any, Any], shots: int | None = None) -> Any:
+        """The recipe's result on emulated ``data`` (variant -> BasisDistributions), sampled at
+        ``shots`` (default the loop's) unless analytic. Counts nothing."""
+        exp = self.experiment
+        if shots is not None and int(shots) != self.shots:
+            exp = replace_experiment(exp, shots=int(shots))
+        return run_recipe(
+            self.recipe,
+            exp,
+            data.__getitem__,
+            sampled=not self.analytic,
+            rng=self.rng,
+            calibrator=self.calibrator,
+            calibration_record=self.calibration_record,
+        )
+
+    def evaluate(self, x: np.ndarray, shots: int) -> Any:
+        """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
+        return self.score(emulate_points(self, [x])[0], shots)
+
+    def record(self, data: Mapping[Any, Any]) -> float:
+        """One counted evaluation on emulated ``data``: its energy (Ha)."""
+        if self.exhausted:
+            raise BudgetExhaustedError
+        known = set(self.calibration_record)
+        res = self.score(data)
+        new = [self.calibration_record[k][0] for k in self.calibration_record if k not in known]
+        calibration_circuits = int(res.details.get("calibration_circuits", 0))
+        self.evaluation_shots.append(int(res.shots_total) + int(sum(new)))
+        self.circuit_runs += int(res.n_circuits) - calibration_circuits + len(new)
+        self.last_energy_ha = float(res.energy_ha)
+        return float(res.energy_ha)
+
+    def __call__(self, x: np.ndarray) -> float:
+        if self.exhausted:
+            raise BudgetExhaustedError
+        return self.record(emulate_points(self, [x])[0])
+
+
+def emulate_points(evaluator: LoopEvaluator, points: Sequence[np.ndarray]) -> list[dict[Any, Any]]:
+    """Every variant's distributions at each of ``points``: one emulator call per variant."""
+    exp = evaluator.experiment
+    out: list[dict[Any, Any]] = [{} for _ in points]
+    for v in evaluator.variants():
+        compiled, profile, _ = variant_inputs(exp, v)
+        runs = emulate_parameter_sets(
+            compiled,
+            profile,
+            list(exp.measured_bases),
+            points,
+            method=exp.emulation_method,
+            seed=exp.seed,
+            num_trajectories=exp.num_trajectories,
+            num_batches=exp.num_batches,
+            max_density_matrix_qubits=exp.max_density_matrix_qubits,
+        )
+        for d, run in zip(out, runs, strict=True):
+            d[v] = run
+    return out
+
+
+def run_lockstep(
+    steps: Sequence[Steps], evaluators: Sequence[LoopEvaluator]
+) -> list[OptimizerOutcome]:
+    """Drive one optimizer per repeat side by side: the points all repeats ask for next are
+    emulated together, then each repeat evaluates its own in order (its random draws in the
+    same order as one repeat alone). A repeat out of shots is stopped by its optimizer."""
+    outcomes: list[OptimizerOutcome | None] = [None] * len(steps)
+    pending: dict[int, list[np.ndarray]] = {}
+    for r, s in enumerate(steps):
+        try:
+            pending[r] = next(s)
+        except StopIteration as stop:
+            outcomes[r] = stop.value
+    while pending:
+        order = list(pending)
+        flat = [p for r in order for p in pending[r]]
+        data = emulate_points(evaluators[order[0]], flat) if flat else []
+        at = 0
+        for r in order:
+            points = pending.pop(r)
+            mine = data[at : at + len(points)]
+            at += len(points)
+            try:
+                try:
+                    values = [evaluators[r].record(d) for d in mine]
+                except BudgetExhaustedError as exc:
+                    pending[r] = steps[r].throw(exc)
+                    continue
+                pending[r] = steps[r].send(values)
+            except StopIteration as stop:
+                outcomes[r] = stop.value
+    return [o for o in outcomes if o is not None]
