@@ -1,4 +1,5 @@
-"""Many parameter sets of one parameterized circuit in one qiskit-aer call.
+"""Many simulations in one qiskit-aer call: many parameter sets of one parameterized circuit
+(:func:`emulate_parameter_sets`), or circuits under many profiles (:func:`emulate_written`).
 
 A variational loop evaluates the same compiled circuit at many parameter sets. qiskit-aer runs a
 parameterized circuit at a list of parameter bindings in one call: the circuit is converted
@@ -28,6 +29,7 @@ from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, nois
 from noiselab.emulate.engine import (
     BasisDistributions,
     basis_tables,
+    check_circuit,
     choose_method,
     count_engine_call,
     emulate_bases,
@@ -35,6 +37,7 @@ from noiselab.emulate.engine import (
 )
 from noiselab.emulate.memory import engine_threads
 from noiselab.emulate.readout import apply_readout
+from noiselab.emulate.written import WrittenEffects, WrittenNoise
 
 #: bytes of density matrices one batched call may return (the memory bound of a batch)
 BATCH_BYTES = 2**28
@@ -159,6 +162,69 @@ def emulate_parameter_sets(
                     engine_calls=1 if i == 0 else 0,
                     method="density_matrix",
                     notice=notice,
+                )
+            )
+    return out
+
+
+def emulate_written(
+    jobs: Sequence[tuple[Any, Any]], bases: Sequence[str], noises: Sequence[Any] | None = None
+) -> list[BasisDistributions]:
+    """``emulate_bases(compiled, profile, bases)`` of every ``(compiled, profile)`` job, all in
+    one qiskit-aer call (at most :data:`BATCH_BYTES` of density matrices per call): each circuit
+    carries its profile's noise as written ``superop`` instructions
+    (:class:`~noiselab.emulate.written.WrittenNoise`; ``noises[i]`` reuses one built for job
+    i's profile and patch). Density matrix only; equal to ``emulate_bases`` to rounding."""
+    if not jobs:
+        return []
+    prepared = []
+    for i, (compiled, profile) in enumerate(jobs):
+        circuit = compiled.circuit
+        check_circuit(circuit)
+        k = circuit.num_qubits
+        choose_method(k, "density_matrix")  # refuses what does not fit in memory
+        patch = tuple(compiled.patch)
+        qubits = list(compiled.logical_to_circuit)
+        noise = noises[i] if noises is not None else WrittenNoise(profile, patch)
+        qc = noise.written(circuit)
+        qc.save_density_matrix(label="rho")
+        effects, keys = basis_tables(
+            validate_bases(bases, len(qubits)),
+            qubits,
+            WrittenEffects(noise, layer_spec_for(profile, k)),
+        )
+        prepared.append((qc, qubits, effects, keys, logical_readout(profile, patch, qubits)))
+    sim = AerSimulator(method="density_matrix", max_parallel_threads=engine_threads())
+    bases_t = validate_bases(bases, len(prepared[0][1]))
+    out: list[BasisDistributions] = []
+    chunk = max(1, BATCH_BYTES // (16 * 4 ** prepared[0][0].num_qubits))
+    for start in range(0, len(prepared), chunk):
+        part = prepared[start : start + chunk]
+        t0 = time.perf_counter()
+        count_engine_call()
+        result = sim.run([p[0] for p in part], shots=1).result()
+        if not result.success:
+            raise RuntimeError(f"qiskit-aer density-matrix run failed: {result.status}")
+        share = (time.perf_counter() - t0) / len(part)
+        for i, (_, qubits, effects, keys, (mats, terms)) in enumerate(part):
+            t1 = time.perf_counter()
+            rho = result.data(i)["rho"]
+            ideal = dm_distributions(
+                [np.asarray(getattr(rho, "data", rho))],
+                qubits,
+                effects,
+                keys,
+                threads=engine_threads() or None,
+            )
+            out.append(
+                BasisDistributions(
+                    bases=bases_t,
+                    probs_ideal=ideal,
+                    probs=apply_readout(ideal, mats, terms),
+                    num_qubits=len(qubits),
+                    engine_seconds=share + time.perf_counter() - t1,
+                    engine_calls=1 if i == 0 else 0,
+                    method="density_matrix",
                 )
             )
     return out

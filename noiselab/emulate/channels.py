@@ -86,7 +86,8 @@ def _gate_mapping() -> dict[str, object]:
     return get_standard_gate_name_mapping()
 
 
-def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+def gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+    """Superoperator (column stacking, read-only, cached) of qiskit's standard gate ``name``."""
     return _gate_superop_cached(name, tuple(float(p) for p in params))
 
 
@@ -145,7 +146,7 @@ def qubit_layer_superop(
         if op.name == "quantum_channel":
             out = SuperOp(instruction_error(op)).data @ out
             continue
-        out = _gate_superop(op.name, [float(p) for p in op.params]) @ out
+        out = gate_superop(op.name, [float(p) for p in op.params]) @ out
         if noisy:
             e = _error_superop(noise_model, op.name, qubit)
             if e is not None:
