@@ -3,12 +3,16 @@
 Each optimizer calls ``objective(x) -> energy`` (one evaluation; the caller counts its shots)
 and ``on_iteration(k, x, energies)`` after every iteration. A caller that runs out of budget
 raises :class:`BudgetExhaustedError` from the objective; the optimizer then stops and returns its
-current iterate.
+current iterate. SPSA and parameter-shift descent are also written as steps (``*_steps``:
+generators that yield every point one iteration needs and are sent the energies), so a caller
+can evaluate those points, and those of other repeats, in one emulator call.
 
 - SPSA: Spall, IEEE Trans. Autom. Control 37, 332 (1992); gains a_k = a / (A + k + 1)^0.602,
   c_k = c / (k + 1)^0.101, A about 10 % of the iterations, ``a`` calibrated from the
-  magnitude of the first gradient estimates so the first step has a chosen size (Spall, IEEE
-  Trans. Aerosp. Electron. Syst. 34, 817 (1998)). Two evaluations per iteration.
+  magnitude of the first gradient estimates so the first step has the desired size (Spall,
+  IEEE Trans. Aerosp. Electron. Syst. 34, 817 (1998)); the desired size is read from the
+  calibration energies themselves (the minimum of the parabola through them along the probed
+  directions, capped), not a fixed angle. Two evaluations per iteration.
 - Gradient descent with parameter-shift gradients: the general rule for equidistant
   frequencies 1..R (R = 1: [E(x + pi/2) - E(x - pi/2)] / 2, Mitarai et al. 2018; general R:
   Wierichs, Izaac, Wang and Lin, Quantum 6, 677 (2022)); 2R evaluations per parameter.
@@ -45,8 +49,11 @@ class _Options(BaseModel):
 
 
 class SpsaOptions(_Options):
-    """SPSA gains (Spall 1998). ``a`` None: calibrated so the first step moves each parameter
-    by about ``first_step`` (rad) on average; ``stability`` None: 10 % of the iterations."""
+    """SPSA gains (Spall 1998). ``a`` None: calibrated (Spall's rule) so that the first step
+    moves each parameter by the desired first change: with ``first_step_rule`` "curvature" the
+    step to the minimum of the parabola through the calibration energies along the probed
+    directions (one more evaluation, at the start), at most ``first_step`` (rad); with "fixed"
+    ``first_step`` itself. ``stability`` None: 10 % of the iterations."""
 
     a: float | None = Field(default=None, gt=0, allow_inf_nan=False)
     c: float = Field(default=0.1, gt=0, le=3.2, allow_inf_nan=False)
@@ -54,6 +61,7 @@ class SpsaOptions(_Options):
     learning_exponent: float = Field(default=0.602, gt=0, le=1)
     perturbation_exponent: float = Field(default=0.101, gt=0, le=1)
     first_step: float = Field(default=0.2, gt=0, le=3.2, allow_inf_nan=False)
+    first_step_rule: Literal["curvature", "fixed"] = "curvature"
     calibration_samples: int = Field(default=3, ge=1, le=100)
 
 
@@ -114,16 +122,7 @@ def spsa_steps(
     try:
         a = options.a
         if a is None:
-            c0 = options.c
-            pairs = [_perturbations(x, c0, rng) for _ in range(options.calibration_samples)]
-            values = yield [p for _, plus, minus in pairs for p in (plus, minus)]
-            mags = [
-                float(np.mean(np.abs((values[2 * i] - values[2 * i + 1]) / (2.0 * c0) * d)))
-                for i, (d, _, _) in enumerate(pairs)
-            ]
-            big_a = options.stability if options.stability is not None else 0.1 * iterations
-            mag = max(float(np.mean(mags)), 1e-12)
-            a = options.first_step * (big_a + 1.0) ** options.learning_exponent / mag
+            a = yield from _calibrate_a(x, iterations, rng, options)
         a_k, c_k = spsa_gains(options, iterations, a)
         for k in range(iterations):
             delta, plus, minus = _perturbations(x, float(c_k[k]), rng)
@@ -134,6 +133,38 @@ def spsa_steps(
     except BudgetExhaustedError:
         return OptimizerOutcome(x, k, "shot cap")
     return OptimizerOutcome(x, iterations, "iterations")
+
+
+def _calibrate_a(
+    x: np.ndarray, iterations: int, rng: np.random.Generator, options: SpsaOptions
+) -> Generator[list[np.ndarray], list[float], float]:
+    """Spall's (1998) calibration of ``a``: a / (A + 1)^alpha times the mean magnitude of the
+    calibration gradient estimates equals the desired first change of a parameter.
+
+    The desired change ("curvature"): along each probed direction delta the calibration
+    evaluates E(x + c delta), E(x - c delta) (and E(x) once), so the parabola through them has
+    slope g = (E+ - E-) / (2c) and curvature k = (E+ + E- - 2 E(x)) / c^2 per unit step along
+    delta; its minimum lies |g| / k away, which moves every parameter by that much. Means over
+    the samples (ratio of means, steadier under shot noise); capped at ``first_step``, which
+    is also used when the curvature is not positive ("fixed": always ``first_step``)."""
+    c0 = options.c
+    pairs = [_perturbations(x, c0, rng) for _ in range(options.calibration_samples)]
+    points = [p for _, plus, minus in pairs for p in (plus, minus)]
+    curvature = options.first_step_rule == "curvature"
+    values = yield ([*points, x.copy()] if curvature else points)
+    slopes = [(values[2 * i] - values[2 * i + 1]) / (2.0 * c0) for i in range(len(pairs))]
+    mag = max(float(np.mean(np.abs(slopes))), 1e-12)  # |each element of g delta| = |g|
+    desired = options.first_step
+    if curvature:
+        centre = values[-1]
+        bends = [
+            (values[2 * i] + values[2 * i + 1] - 2.0 * centre) / c0**2 for i in range(len(pairs))
+        ]
+        bend = float(np.mean(bends))
+        if bend > 0.0:
+            desired = min(options.first_step, mag / bend)
+    big_a = options.stability if options.stability is not None else 0.1 * iterations
+    return desired * (big_a + 1.0) ** options.learning_exponent / mag
 
 
 def drive(steps: Steps, objective: Objective) -> OptimizerOutcome:
