@@ -18,11 +18,14 @@ from typing import Any
 
 import numpy as np
 from qiskit import QuantumCircuit
-from qiskit.circuit import Instruction
 from qiskit.quantum_info import SuperOp
 from qiskit_aer import AerSimulator
 
-from noiselab.device.aer_adapter import instruction_error, run_noise_passes
+from noiselab.device.aer_adapter import (
+    instruction_error,
+    run_noise_passes,
+    superop_instruction,
+)
 from noiselab.emulate.channels import effect_cache_for
 from noiselab.emulate.contract import dm_distributions
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
@@ -63,7 +66,7 @@ def idle_noise_written(circuit: Any, noise_model: Any) -> Any:
                 continue
             if op.name == "quantum_channel":
                 sop = SuperOp(instruction_error(op)).data
-                out.append(Instruction("superop", len(qs), 0, [sop]), qs)
+                out.append(superop_instruction(sop), qs)
                 continue
             out.append(op, qs)
         entry = (circuit, noise_model, out)

@@ -23,10 +23,11 @@ from typing import Any
 
 import numpy as np
 from qiskit import QuantumCircuit
-from qiskit.circuit import CircuitInstruction, Instruction
+from qiskit.circuit import CircuitInstruction
 from qiskit.circuit.library import RXGate, RZZGate
 from qiskit.quantum_info import Operator
 
+from noiselab.device.aer_adapter import superop_instruction
 from noiselab.device.noise import delay_seconds, noise_spec
 from noiselab.device.profile import VIRTUAL_GATES
 from noiselab.device.thermal import decay_factor
@@ -225,7 +226,7 @@ def _skeleton(circuit: Any) -> list[tuple[Any, ...]]:
 def _add(out: Any, sop: np.ndarray, qs: Sequence[int]) -> None:
     """Append a ``superop`` instruction (qiskit's checked ``append`` costs more than the rest of
     writing a circuit; these qubits are the circuit's own)."""
-    inst = Instruction("superop", len(qs), 0, [sop])
+    inst = superop_instruction(sop)
     out._append(CircuitInstruction(inst, tuple(out.qubits[q] for q in qs), ()))
 
 
