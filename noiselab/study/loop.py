@@ -7,13 +7,15 @@ reused by every later one (a real run calibrates at the start; the calibration's
 differs between repeats and so stays in their spread). Points are emulated in batches
 (:func:`emulate_points`): every parameter set an optimizer step asks for, of every repeat run
 in lockstep, goes to one qiskit-aer call per circuit variant (``emulate_parameter_sets``), and
-each evaluation then draws its counts and runs the recipe on them.
+each evaluation then draws its counts and runs the recipe on them. The records of one repeat
+(:class:`TracePoint`, :class:`RepeatResult`) and its iteration hooks live here too.
 """
 
 from __future__ import annotations
 
+import dataclasses
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Callable, Mapping, Sequence
 from typing import Any
 
 import numpy as np
@@ -23,6 +25,55 @@ from noiselab.mitigate.experiment import variant_inputs
 from noiselab.mitigate.optimizers import BudgetExhaustedError, OptimizerOutcome, Steps
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.context import StudyContext, replace_experiment
+
+
+@dataclasses.dataclass(frozen=True)
+class TracePoint:
+    """After one iteration: shots spent so far, the energy the loop measured (mean of the
+    iteration's evaluations) and the noiseless energy of the current iterate (Ha)."""
+
+    shots: int
+    energy_ha: float
+    noiseless_energy_ha: float
+
+
+@dataclasses.dataclass(frozen=True)
+class RepeatResult:
+    """One run of the loop and its final estimate (energies in Ha, errors in mHa)."""
+
+    seed: int
+    start_parameters: tuple[float, ...]
+    final_parameters: tuple[float, ...]
+    iterations: int
+    evaluations: int
+    stopped: str
+    loop_shots: int  # measured + calibration shots of every in-loop evaluation
+    evaluation_shots: tuple[int, ...]  # each evaluation's shots, calibration included
+    final_shots: int  # the final estimate's, calibration included
+    circuit_runs: int
+    device_hours: float
+    final_energy_ha: float  # expectation of the final estimate (no random draw)
+    final_error_mha: float  # final_energy - exact = ansatz + optimizer + noise bias
+    ansatz_error_mha: float
+    optimizer_error_mha: float
+    noise_bias_mha: float
+    std_mha: float
+    p_within_target: float
+    trace: tuple[TracePoint, ...]
+
+    @property
+    def total_shots(self) -> int:
+        return self.loop_shots + self.final_shots
+
+    def to_json(self) -> dict[str, Any]:
+        out = {
+            f.name: getattr(self, f.name)
+            for f in dataclasses.fields(self)
+            if f.name not in ("trace", "evaluation_shots")
+        }
+        out["total_shots"] = self.total_shots
+        out["trace"] = [dataclasses.asdict(t) for t in self.trace]
+        return out
 
 
 class LoopEvaluator:
@@ -163,3 +214,29 @@ def run_lockstep(
             except StopIteration as stop:
                 outcomes[r] = stop.value
     return [o for o in outcomes if o is not None]
+
+
+def trace_hook(
+    ev: LoopEvaluator, trace: list[TracePoint], noiseless: Callable[[np.ndarray], float]
+) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
+    """After each iteration: shots so far, the measured energy, the iterate's noiseless one."""
+
+    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
+        measured = float(np.mean(values)) if values else ev.last_energy_ha
+        trace.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
+
+    return on_iteration
+
+
+def with_progress(
+    hook: Callable[[int, np.ndarray, tuple[float, ...]], None],
+    progress: Callable[[str, int, int], None],
+    total: int,
+) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
+    """``hook``, then ``progress`` with the iterations done (repeats in lockstep)."""
+
+    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
+        hook(k, x, values)
+        progress("rehearsing the loop (iterations)", k + 1, total)
+
+    return on_iteration

@@ -1,20 +1,21 @@
 """The rehearse job: the variational loop run against the emulated device, repeated.
 
 Every in-loop energy evaluation is what the device would return: the parameterized circuit is
-compiled once (the study's chosen patch and transpiler seed) and bound per evaluation, the
-exact noisy distributions of every measured basis are emulated, finite-shot counts are drawn
-at the evaluation's allocation and the in-loop recipe runs on them (``run_recipe(...,
-sampled=True)``). The analytic expectation is never used in the loop (``analytic=True`` is a
-test-only switch). After the loop the final parameters are assessed with the final recipe at
-the study's budget, analytically, as ``assess`` does, and the final error is split into
-ansatz error + optimizer error under noise + noise bias (they add up exactly), with the shot
-noise apart.
+compiled once (the study's chosen patch and transpiler seed) and its parameters bound in the
+simulator, the exact noisy distributions of every measured basis are emulated, finite-shot
+counts are drawn at the evaluation's allocation and the in-loop recipe runs on them
+(``run_recipe(..., sampled=True)``; :mod:`noiselab.study.loop`). The analytic expectation is
+never used in the loop (``analytic=True`` is a test-only switch). The repeats of SPSA and
+parameter-shift descent run in lockstep, the points of one step of all repeats emulated in one
+call. After the loop the final parameters are assessed with the final recipe at the study's
+budget, analytically, as ``assess`` does, and the final error is split into ansatz error +
+optimizer error under noise + noise bias (they add up exactly), with the shot noise apart.
 
-Shots are counted exactly: every evaluation's measured shots plus the readout-calibration shots
-it draws (the sampled path recalibrates per evaluation), plus the final estimate's. Device time
-per shot: the compiled circuit's scheduled duration + readout + the profile's
-``repetition_delay_us``; each circuit run adds ``circuit_overhead_s``.
-"""
+Shots are counted exactly: every evaluation's measured shots, each repeat's readout
+calibration once (drawn at its first evaluation and reused, as a real run calibrates at its
+start), plus the final estimate's. Device time per shot: the compiled circuit's scheduled
+duration + readout + the profile's ``repetition_delay_us``; each circuit run adds
+``circuit_overhead_s``."""
 
 from __future__ import annotations
 
@@ -52,7 +53,14 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
-from noiselab.study.loop import LoopEvaluator, run_lockstep
+from noiselab.study.loop import (
+    LoopEvaluator,
+    RepeatResult,
+    TracePoint,
+    run_lockstep,
+    trace_hook,
+    with_progress,
+)
 from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
 from noiselab.study.spec import Study, load_study
 
@@ -63,55 +71,6 @@ OPTIMIZER_WORDS = {
     "cobyla": "COBYLA",
     "nelder_mead": "Nelder-Mead",
 }
-
-
-@dataclasses.dataclass(frozen=True)
-class TracePoint:
-    """After one iteration: shots spent so far, the energy the loop measured (mean of the
-    iteration's evaluations) and the noiseless energy of the current iterate (Ha)."""
-
-    shots: int
-    energy_ha: float
-    noiseless_energy_ha: float
-
-
-@dataclasses.dataclass(frozen=True)
-class RepeatResult:
-    """One run of the loop and its final estimate (energies in Ha, errors in mHa)."""
-
-    seed: int
-    start_parameters: tuple[float, ...]
-    final_parameters: tuple[float, ...]
-    iterations: int
-    evaluations: int
-    stopped: str
-    loop_shots: int  # measured + calibration shots of every in-loop evaluation
-    evaluation_shots: tuple[int, ...]  # each evaluation's shots, calibration included
-    final_shots: int  # the final estimate's, calibration included
-    circuit_runs: int
-    device_hours: float
-    final_energy_ha: float  # expectation of the final estimate (no random draw)
-    final_error_mha: float  # final_energy - exact = ansatz + optimizer + noise bias
-    ansatz_error_mha: float
-    optimizer_error_mha: float
-    noise_bias_mha: float
-    std_mha: float
-    p_within_target: float
-    trace: tuple[TracePoint, ...]
-
-    @property
-    def total_shots(self) -> int:
-        return self.loop_shots + self.final_shots
-
-    def to_json(self) -> dict[str, Any]:
-        out = {
-            f.name: getattr(self, f.name)
-            for f in dataclasses.fields(self)
-            if f.name not in ("trace", "evaluation_shots")
-        }
-        out["total_shots"] = self.total_shots
-        out["trace"] = [dataclasses.asdict(t) for t in self.trace]
-        return out
 
 
 @dataclasses.dataclass(frozen=True)
@@ -324,11 +283,11 @@ def rehearse(
             )
         )
         traces.append([])
-        hooks.append(_trace_hook(evaluators[-1], traces[-1], noiseless))
+        hooks.append(trace_hook(evaluators[-1], traces[-1], noiseless))
     lockstep = settings.optimizer in STEPPED_OPTIMIZERS
     if lockstep and progress is not None:
         progress("rehearsing the loop (iterations)", 0, settings.iterations)
-        hooks[0] = _with_progress(hooks[0], progress, settings.iterations)
+        hooks[0] = with_progress(hooks[0], progress, settings.iterations)
     steps = [
         optimizer_steps(settings, x0, ev.rng, rules, hook)
         for ev, x0, hook in zip(evaluators, starts, hooks, strict=True)
@@ -389,28 +348,6 @@ def rehearse(
     return dataclasses.replace(
         result, verdict=rehearse_verdict(result), wall_seconds=time.perf_counter() - t0
     )
-
-
-def _trace_hook(
-    ev: LoopEvaluator, trace: list[TracePoint], noiseless: Callable[[np.ndarray], float]
-) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
-    """After each iteration: shots so far, the measured energy, the iterate's noiseless one."""
-
-    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
-        measured = float(np.mean(values)) if values else ev.last_energy_ha
-        trace.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
-
-    return on_iteration
-
-
-def _with_progress(
-    hook: Callable[[int, np.ndarray, tuple[float, ...]], None], progress: ProgressHook, total: int
-) -> Callable[[int, np.ndarray, tuple[float, ...]], None]:
-    def on_iteration(k: int, x: np.ndarray, values: tuple[float, ...]) -> None:
-        hook(k, x, values)
-        progress("rehearsing the loop (iterations)", k + 1, total)
-
-    return on_iteration
 
 
 def final_estimate(
