@@ -12,6 +12,8 @@ Benchmarks (targets from the project's "Speed and scale" issue):
   drift     assess --drift 32 of the demo / a plain assess of the demo (both cold)         <= 6
   rehearse  the demo's rehearse, SPSA 200 iterations x 8 repeats: wall time / 60 s          <= 1
   rehearse8 rehearse at 8 qubits: wall time per evaluation / bare qiskit-aer time of one    <= 2
+  scan      a 10-point H2 scan / one assess of the demo point (both cold)                  <= 12
+  scan_workers  the 10-point scan with 1 worker / with 2 process workers                   >= 1.6
 
 Results are merged into benchmarks/results/<UTC date>.json (atomic rewrite) and printed.
 ``--quick`` uses smaller problems (for checking the scripts, not for quoting). Not part of the
@@ -45,6 +47,7 @@ from common import (  # benchmarks/ is a folder of scripts, not a package
     rerun_bare,
     results_path,
 )
+from scan_bench import bench_scan_cost, bench_scan_workers
 
 Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
 BIAS_TOLERANCE_MHA = 0.1
@@ -699,6 +702,8 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "rehearse": bench_rehearse,
     "rehearse8": bench_rehearse8,
     "refusal": bench_refusal,
+    "scan": bench_scan_cost,
+    "scan_workers": bench_scan_workers,
 }
 
 

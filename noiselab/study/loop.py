@@ -25,6 +25,7 @@ from noiselab.mitigate.experiment import variant_inputs
 from noiselab.mitigate.optimizers import BudgetExhaustedError, OptimizerOutcome, Steps
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.context import StudyContext, replace_experiment
+from noiselab.study.device_time import DeviceTime, calibration_seconds_per_shot
 
 
 @dataclasses.dataclass(frozen=True)
@@ -96,6 +97,8 @@ class LoopEvaluator:
         calibrator: Any,
         max_shots: int | None = None,
         analytic: bool = False,
+        clock: Callable[[Any], DeviceTime] | None = None,
+        shared: Any = None,
     ) -> None:
         self.ctx, self.parameterized = ctx, parameterized
         self.recipe = parse_recipe(list(passes))
@@ -107,6 +110,9 @@ class LoopEvaluator:
         self.calibration_record: dict[Any, tuple[int, np.ndarray]] = {}
         self.evaluation_shots: list[int] = []
         self.circuit_runs = 0
+        self.clock = clock  # device time of one recipe result (noiselab.study.device_time)
+        self.device_time = DeviceTime()
+        self.shared = shared  # emulations shared with other rehearsals (rehearse --grid)
         self.last_energy_ha = math.nan
 
     @property
@@ -151,6 +157,16 @@ class LoopEvaluator:
         calibration_circuits = int(res.details.get("calibration_circuits", 0))
         self.evaluation_shots.append(int(res.shots_total) + int(sum(new)))
         self.circuit_runs += int(res.n_circuits) - calibration_circuits + len(new)
+        if self.clock is not None:
+            # the result lists the repeat's calibration; it ran once, with the first evaluation
+            spent = self.clock(res)
+            reused_shots = int(res.details.get("calibration_shots_total", 0)) - int(sum(new))
+            self.device_time = self.device_time + DeviceTime(
+                spent.shot_seconds
+                - reused_shots * calibration_seconds_per_shot(self.experiment.profile),
+                spent.circuit_runs - (calibration_circuits - len(new)),
+                spent.circuit_overhead_s,
+            )
         self.last_energy_ha = float(res.energy_ha)
         return float(res.energy_ha)
 
@@ -161,24 +177,42 @@ class LoopEvaluator:
 
 
 def emulate_points(evaluator: LoopEvaluator, points: Sequence[np.ndarray]) -> list[dict[Any, Any]]:
-    """Every variant's distributions at each of ``points``: one emulator call per variant."""
+    """Every variant's distributions at each of ``points``: one emulator call per variant
+    (points the evaluator's ``shared`` store already holds are taken from it)."""
     exp = evaluator.experiment
+    shared = evaluator.shared
+    bases = tuple(exp.measured_bases)
+    variants = evaluator.variants()
     out: list[dict[Any, Any]] = [{} for _ in points]
-    for v in evaluator.variants():
+    todo = list(range(len(points)))
+    if shared is not None:
+        todo = []
+        for i, x in enumerate(points):
+            known = shared.lookup(x, bases, variants)
+            if known is None:
+                todo.append(i)
+            else:
+                out[i] = dict(known)
+    if not todo:
+        return out
+    for v in variants:
         compiled, profile, _ = variant_inputs(exp, v)
         runs = emulate_parameter_sets(
             compiled,
             profile,
-            list(exp.measured_bases),
-            points,
+            list(bases),
+            [points[i] for i in todo],
             method=exp.emulation_method,
             seed=exp.seed,
             num_trajectories=exp.num_trajectories,
             num_batches=exp.num_batches,
             max_density_matrix_qubits=exp.max_density_matrix_qubits,
         )
-        for d, run in zip(out, runs, strict=True):
-            d[v] = run
+        for i, run in zip(todo, runs, strict=True):
+            out[i][v] = run
+    if shared is not None:
+        for i in todo:
+            shared.keep(points[i], bases, out[i])
     return out
 
 

@@ -13,9 +13,10 @@ optimizer error under noise + noise bias (they add up exactly), with the shot no
 
 Shots are counted exactly: every evaluation's measured shots, each repeat's readout
 calibration once (drawn at its first evaluation and reused, as a real run calibrates at its
-start), plus the final estimate's. Device time per shot: the compiled circuit's scheduled
-duration + readout + the profile's ``repetition_delay_us``; each circuit run adds
-``circuit_overhead_s``."""
+start), plus the final estimate's. Device time: ``noiselab.study.device_time`` (the rule
+``assess`` uses too), per evaluation (its calibration once per repeat) and for the final
+estimate, with the rehearse section's ``circuit_overhead_s`` per circuit run.
+"""
 
 from __future__ import annotations
 
@@ -53,6 +54,12 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
+from noiselab.study.device_time import (
+    DeviceTime,
+    recipe_device_time,
+    seconds_per_shot,
+    variant_durations_ns,
+)
 from noiselab.study.loop import (
     LoopEvaluator,
     RepeatResult,
@@ -61,7 +68,7 @@ from noiselab.study.loop import (
     trace_hook,
     with_progress,
 )
-from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
+from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.spec import Study, load_study
 
 ProgressHook = Callable[[str, int, int], None]
@@ -211,6 +218,7 @@ def rehearse(
     context: StudyContext | None = None,
     progress: ProgressHook | None = None,
     analytic: bool = False,
+    shared: Any = None,
     **overrides: Any,
 ) -> RehearseResult:
     """Rehearse the variational loop of a study on its emulated device, ``repeats`` times.
@@ -218,6 +226,8 @@ def rehearse(
     ``overrides``: keys of the ``rehearse:`` section (``optimizer``, ``iterations``,
     ``shots_per_evaluation``, ``repeats``, ``start``, ``max_shots``, ``seed``, ...).
     ``analytic``: test-only; in-loop evaluations return the analytic expectation.
+    ``shared``: a ``noiselab.study.rehearse_grid.SharedRuns``, emulations shared with other
+    rehearsals of the same context (the grid).
     """
     from noiselab.study.assess import _default_cache
 
@@ -261,10 +271,14 @@ def rehearse(
         return float(program.expectation(hmat, np.asarray(x, dtype=float)))
 
     profile = study.profile
-    delay_us = profile.repetition_delay_us or DEFAULT_REPETITION_DELAY_US
-    seconds_per_shot = (
-        float(parameterized.duration_ns) + float(profile.durations.readout_ns)
-    ) * 1e-9 + delay_us * 1e-6
+    # scheduled durations do not depend on the bound values: one bound context gives them all
+    durations = variant_durations_ns(
+        replace_experiment(ctx.experiment, compiled=parameterized.bind(optimum)),
+        [loop_passes, final_passes],
+    )
+
+    def clock(res: Any) -> DeviceTime:
+        return recipe_device_time(res, durations, profile, settings.circuit_overhead_s)
 
     evaluators, traces, starts, hooks = [], [], [], []
     for r in range(settings.repeats):
@@ -280,6 +294,8 @@ def rehearse(
                 calibrator=calibrator,
                 max_shots=settings.max_shots,
                 analytic=analytic,
+                clock=clock,
+                shared=shared,
             )
         )
         traces.append([])
@@ -322,8 +338,7 @@ def rehearse(
             x0,
             trace,
             noiseless,
-            seconds_per_shot,
-            settings.circuit_overhead_s,
+            clock,
         )
         for r, (ev, out, x0, trace) in enumerate(
             zip(evaluators, outcomes, starts, traces, strict=True)
@@ -341,7 +356,7 @@ def rehearse(
         ansatz_energy_ha=ctx.ansatz_energy_ha,
         target_mha=float(study.target_mha),
         confidence=float(study.confidence),
-        seconds_per_shot=seconds_per_shot,
+        seconds_per_shot=seconds_per_shot(parameterized.duration_ns, profile),
         repeats=tuple(repeats),
         verdict="",
     )
@@ -359,8 +374,7 @@ def final_estimate(
     x0: np.ndarray,
     trace: Sequence[TracePoint],
     noiseless: Callable[[np.ndarray], float],
-    seconds_per_shot: float,
-    circuit_overhead_s: float,
+    clock: Callable[[Any], DeviceTime],
 ) -> RepeatResult:
     """The final parameters assessed analytically with the final recipe at the study's shots."""
     x = np.asarray(outcome.parameters, dtype=float)
@@ -373,7 +387,7 @@ def final_estimate(
     final_error = (float(res.energy_ha) - exact) * HA_TO_MHA
     loop_shots = evaluator.shots_spent
     runs = evaluator.circuit_runs + int(res.n_circuits)
-    hours = ((loop_shots + final_shots) * seconds_per_shot + runs * circuit_overhead_s) / 3600.0
+    hours = (evaluator.device_time + clock(res)).hours
     return RepeatResult(
         seed=seed,
         start_parameters=tuple(float(v) for v in x0),
