@@ -224,7 +224,7 @@ def test_rehearse_separates_errors_accounts_shots_and_more_shots_narrow_the_spre
             assert not np.allclose(r.final_parameters, ctx.optimum.parameters, atol=1e-6)
             # device time: measured shots x (schedule + readout + repetition delay), calibration
             # shots x (one 1q gate + readout + delay), 0.05 s per circuit run (the stated rule)
-            cal = (r.evaluations + 1) * 8000
+            cal = 2 * 8000  # the repeat's calibration (once) and the final estimate's
             prof = study.profile
             delay_s = (prof.repetition_delay_us or 250.0) * 1e-6
             cal_s = (prof.durations.single_qubit_ns + prof.durations.readout_ns) * 1e-9 + delay_s
