@@ -19,8 +19,8 @@ term is far below the calibration's standard error; tests/test_mitigate_passes.p
 
 from __future__ import annotations
 
-from collections.abc import Mapping, Sequence
 import dataclasses
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
 
