@@ -298,13 +298,17 @@ def learning_line(result: Any) -> str | None:
         else f"a systematic error of {error * 100:+.3g} % (learning_error, in the bias)"
     )
     spread = float(ec.get("learning_spread", 0.0))
+    if spread == 0.0:
+        return (
+            f"Noise model assumed: the learned Pauli model's rates carry {systematic} and no "
+            "random error (learning_spread 0: learned without statistical error, which favours "
+            "the experiment)."
+        )
     std = ec.get("std_learning_mha")
     cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
-    exact = " (0: the model is taken as exactly known, which favours the experiment)"
     return (
         f"Noise model assumed: the learned Pauli model's rates carry {systematic} and a "
-        f"{spread * 100:.3g} % random error (1 std, learning_spread{cost})"
-        f"{exact if spread == 0.0 else ''}."
+        f"{spread * 100:.3g} % random error (1 std, learning_spread{cost})."
     )
 
 
