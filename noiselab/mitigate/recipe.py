@@ -15,6 +15,11 @@ distributions, exact readout-calibration distributions), so no random draw enter
 the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
 its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
 term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
+
+A pass option that is random in a real run (:class:`~noiselab.mitigate.base.SpreadTerm`, e.g.
+``error_cancellation``'s ``learning_spread``) enters the error bar as a fixed variance: the
+central difference of the exact energy with the option stepped down and up, times its standard
+deviation (:func:`spread_sensitivities`); sampled evaluations draw its linearized shift.
 """
 
 from __future__ import annotations

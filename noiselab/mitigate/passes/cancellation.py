@@ -5,7 +5,11 @@ PRL 119, 180509 (2017); learned-model variant: van den Berg, Minev, Kandala and 
 The *learned model* of each noisy operation is the Pauli twirl of the profile's channel for it
 (every native gate on its qubits, and with ``idle`` the relaxation over every scheduled delay),
 restricted to the channel parts in ``learned``, with every error rate off by the relative
-``learning_error``. Over a gate's own qubits this is the sparse Pauli-Lindblad model of van den
+``learning_error`` (systematic: in the bias). ``learning_spread`` is the random relative error of
+the learned rates in a real run: a :class:`~noiselab.mitigate.base.SpreadTerm` whose
+``std_learning_mha`` (the energy's central difference at ``learning_error`` -+ ``LEARNING_STEP``,
+two more exact emulations, times the spread) enters ``std_mha``; limited_by "learning" when it
+keeps P low. Over a gate's own qubits this is the sparse Pauli-Lindblad model of van den
 Berg et al. with all its generators, without crosstalk between gates. Its inverse is a
 quasi-probability distribution q over Pauli corrections after the operation
 (:mod:`noiselab.mitigate.pauli_model`), whose 1-norm C = sum |q| is its sampling cost (written
