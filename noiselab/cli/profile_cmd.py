@@ -1,4 +1,4 @@
-"""``noiselab profile check``, ``show`` and ``import``: validate, inspect and import device profiles.
+"""``noiselab profile check``, ``show`` and ``import``: validate, inspect, import device profiles.
 
 Only typer is imported at start-up; pydantic/rich and the device layer are imported inside the
 command functions.
@@ -219,8 +219,9 @@ def import_tables(
     ],
     name: Annotated[
         str | None,
-        typer.Option("--name", help="Device name (default: the --out file's name).",
-                     show_default=False),
+        typer.Option(
+            "--name", help="Device name (default: the --out file's name).", show_default=False
+        ),
     ] = None,
     two_qubit_gate: Annotated[
         str, typer.Option("--two-qubit-gate", help="Native two-qubit gate: cz, cx or ecr.")

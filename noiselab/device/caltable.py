@@ -120,7 +120,7 @@ class CalibrationTable:
     source: str
     qubits: Mapping[int, Mapping[str, Value]]
     pairs: Mapping[tuple[int, int], Mapping[str, Value]]
-    rows: Mapping[Any, str]  # qubit id or pair -> its row name, for messages
+    rows: Mapping[Any, str]  # qubit id or pair -> where its key cell is, for messages
 
 
 @dataclass(frozen=True)
@@ -156,7 +156,9 @@ def _columns(
         q = q if q is not None else next((q for q in table.quantities if name == q.stem), None)
         if q is None:
             raise input_error(
-                src, f"{where}, column {quote(name)}", f"unknown column in the {kind} table",
+                src,
+                f"{where}, column {quote(name)}",
+                f"unknown column in the {kind} table",
                 allowed_columns(kind),
             )
         unit = name[len(q.stem) + 1 :]
@@ -165,8 +167,10 @@ def _columns(
             raise input_error(src, f"{where}, column {quote(name)}", problem, q.allowed_columns())
         if q.stem in found:
             raise input_error(
-                src, f"{where}, column {name}", f"{q.stem} is already given as "
-                f"{found[q.stem][0]}", f"one of {q.allowed_columns()}",
+                src,
+                f"{where}, column {name}",
+                f"{q.stem} is already given as {found[q.stem][0]}",
+                f"one of {q.allowed_columns()}",
             )
         found[q.stem] = (name, unit, q)
     if table.key not in names:
@@ -177,12 +181,21 @@ def _columns(
     return found
 
 
-def _number(src: str, where: str, raw: Any, q: Quantity, unit: str) -> float | None:
+class JsonConstant(str):
+    """NaN, Infinity or -Infinity as written in a JSON file (refused as not finite)."""
+
+
+def _number(
+    src: str, where: str, raw: Any, q: Quantity, unit: str, text_cells: bool
+) -> float | None:
     """A cell as a float in canonical units; None for an empty cell."""
-    if raw is None or (isinstance(raw, str) and not raw.strip()):
-        return None
     allowed = f"a number {q.bounds_text(unit)}, or an empty cell"
-    if isinstance(raw, bool) or not isinstance(raw, int | float | str):
+    if isinstance(raw, JsonConstant):
+        raise input_error(src, where, f"{quote(str(raw))} is not a finite number", allowed)
+    if raw is None or (text_cells and isinstance(raw, str) and not raw.strip()):
+        return None
+    kinds = int | float | str if text_cells else int | float
+    if isinstance(raw, bool) or not isinstance(raw, kinds):
         raise input_error(src, where, f"{quote(raw)} is not a number", allowed)
     try:
         x = float(raw)
@@ -216,39 +229,51 @@ def _key(src: str, kind: str, where: str, raw: Any) -> Any:
 
 
 def _rows(
-    src: str, kind: str, header_where: str, names: list[str],
-    cells: Iterator[tuple[str, Mapping[str, Any]]], col_where: Any,
+    src: str,
+    kind: str,
+    header_where: str,
+    names: list[str],
+    cells: Iterator[tuple[str, Mapping[str, Any]]],
+    col_where: Any,
+    text_cells: bool,
 ) -> tuple[dict[Any, dict[str, Value]], dict[Any, str]]:
     cols = _columns(src, kind, names, header_where)
     out: dict[Any, dict[str, Value]] = {}
     rows: dict[Any, str] = {}
+    row_names: dict[Any, str] = {}
     for row_name, row in cells:
         key_where = col_where(row_name, kind)
         key = _key(src, kind, key_where, row.get(kind))
         if key in out:
             shown = key if kind == "qubit" else f"{key[0]}-{key[1]}"
             raise input_error(
-                src, key_where, f"{kind} {shown} repeats {rows[key]}", f"each {kind} once"
+                src, key_where, f"{kind} {shown} repeats {row_names[key]}", f"each {kind} once"
             )
         values: dict[str, Value] = {}
         for stem, (name, unit, q) in cols.items():
             where = col_where(row_name, name)
-            values[stem] = Value(_number(src, where, row.get(name), q, unit), where)
+            values[stem] = Value(_number(src, where, row.get(name), q, unit, text_cells), where)
         if kind == "qubit":
             t1, t2 = values["t1"].value, values["t2"].value
             if t1 is not None and t2 is not None and t2 > 2.0 * t1 * (1 + 1e-12):
                 raise input_error(
-                    src, values["t2"].where, f"T2 = {t2:g} us exceeds 2 T1 = {2 * t1:g} us",
+                    src,
+                    values["t2"].where,
+                    f"T2 = {t2:g} us exceeds 2 T1 = {2 * t1:g} us",
                     "T2 <= 2 T1 (Nielsen & Chuang sec. 8.3)",
                 )
         out[key] = values
-        rows[key] = row_name
+        rows[key] = key_where
+        row_names[key] = row_name
     return out, rows
 
 
 def _finish(
-    src: str, qubits: dict[int, dict[str, Value]] | None,
-    pairs: dict[tuple[int, int], dict[str, Value]] | None, rows: dict[Any, str], what: str,
+    src: str,
+    qubits: dict[int, dict[str, Value]] | None,
+    pairs: dict[tuple[int, int], dict[str, Value]] | None,
+    rows: dict[Any, str],
+    what: str,
 ) -> CalibrationTable:
     if not qubits:
         raise input_error(src, what, "no qubit table (or no rows in it)", allowed_columns("qubit"))
@@ -259,15 +284,19 @@ def _finish(
         if q >= n:
             missing = sorted(set(range(n)) - set(qubits))
             raise input_error(
-                src, f"{rows[q]}, column qubit", f"qubit {q} leaves a gap (missing: "
-                f"{', '.join(map(str, missing[:5]))})", f"ids 0..{n - 1} for {n} qubits",
+                src,
+                rows[q],
+                f"qubit {q} leaves a gap (missing: {', '.join(map(str, missing[:5]))})",
+                f"ids 0..{n - 1} for {n} qubits",
             )
     pairs = pairs or {}
     for pair in pairs:
         for q in pair:
             if q not in qubits:
                 raise input_error(
-                    src, f"{rows[pair]}, column pair", f"qubit {q} is not in the qubit table",
+                    src,
+                    rows[pair],
+                    f"qubit {q} is not in the qubit table",
                     f"qubits 0..{n - 1}",
                 )
     if n >= 2 and not pairs:
@@ -294,7 +323,9 @@ def _read_csv(src: str, text: str) -> CalibrationTable:
         kind = cells[0]
         if kind not in _TABLES:
             raise input_error(
-                src, f"line {line_no}", f"expected a header row, got {quote(cells[0])} first",
+                src,
+                f"line {line_no}",
+                f"expected a header row, got {quote(cells[0])} first",
                 "a header row starting with qubit (qubit table) or pair (pair table)",
             )
         if kind in tables:
@@ -313,11 +344,15 @@ def _read_csv(src: str, text: str) -> CalibrationTable:
                 continue
             if len(row) != len(names):
                 raise input_error(
-                    src, f"line {row_no}", f"{len(row)} cells, the header (line {line_no}) has "
-                    f"{len(names)}", "one cell per column (an empty cell for a missing value)",
+                    src,
+                    f"line {row_no}",
+                    f"{len(row)} cells, the header (line {line_no}) has {len(names)}",
+                    "one cell per column (an empty cell for a missing value)",
                 )
             body.append((f"line {row_no}", dict(zip(names, row, strict=True))))
-        tables[kind] = _rows(src, kind, f"line {line_no}", names, iter(body), col_where)
+        tables[kind] = _rows(
+            src, kind, f"line {line_no}", names, iter(body), col_where, text_cells=True
+        )
     qubits, q_rows = tables.get("qubit", ({}, {}))
     pairs, p_rows = tables.get("pair", ({}, {}))
     return _finish(src, qubits, pairs, {**q_rows, **p_rows}, "(file)")
@@ -334,7 +369,7 @@ def _no_duplicate_keys(pairs: list[tuple[str, Any]]) -> dict[str, Any]:
 
 def _read_json(src: str, text: str) -> CalibrationTable:
     try:
-        data = json.loads(text, object_pairs_hook=_no_duplicate_keys, parse_constant=str)
+        data = json.loads(text, object_pairs_hook=_no_duplicate_keys, parse_constant=JsonConstant)
     except (ValueError, RecursionError) as exc:
         raise input_error(src, None, f"not valid JSON ({one_reason(exc)})", "JSON text") from None
     if not isinstance(data, dict):
@@ -362,12 +397,14 @@ def _read_json(src: str, text: str) -> CalibrationTable:
             _columns(src, kind, list(row), f"{section}[{j}]")
             if set(row) != set(rows[0]):
                 raise input_error(
-                    src, f"{section}[{j}]", f"columns differ from {section}[0]",
+                    src,
+                    f"{section}[{j}]",
+                    f"columns differ from {section}[0]",
                     ", ".join(rows[0]),
                 )
         names = list(rows[0]) if rows else [kind]
         body = ((f"{section}[{j}]", row) for j, row in enumerate(rows))
-        tables[kind] = _rows(src, kind, f"{section}[0]", names, body, col_where)
+        tables[kind] = _rows(src, kind, f"{section}[0]", names, body, col_where, text_cells=False)
     qubits, q_rows = tables["qubit"]
     pairs, p_rows = tables["pair"]
     return _finish(src, qubits, pairs, {**q_rows, **p_rows}, "qubits")
@@ -382,8 +419,9 @@ def read_calibration_table(path: str | Path) -> CalibrationTable:
     src = str(path)
     suffix = Path(path).suffix.lower()
     if suffix not in (".csv", ".json"):
-        raise input_error(src, None, f"unknown table format {quote(suffix or '(none)')}",
-                          ".csv or .json")
+        raise input_error(
+            src, None, f"unknown table format {quote(suffix or '(none)')}", ".csv or .json"
+        )
     text = read_input_text(path, what="calibration table")
     if text.startswith("\ufeff"):  # a byte-order mark from a spreadsheet export
         text = text[1:]

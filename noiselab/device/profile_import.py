@@ -94,7 +94,9 @@ def _same_layout(tables: Sequence[CalibrationTable]) -> None:
                 missing = sorted(set(a) - set(b))
                 extra = sorted(set(b) - set(a))
                 raise input_error(
-                    t.source, what, f"differ from {first.source} (missing: "
+                    t.source,
+                    what,
+                    f"differ from {first.source} (missing: "
                     f"{_ids(missing) or 'none'}; extra: {_ids(extra) or 'none'})",
                     "the same qubits and pairs in every table",
                 )
@@ -124,8 +126,11 @@ def _medians(
         have = [out[k][stem] for k in keys if stem in out[k]]
         if not have:
             raise input_error(
-                tables[0].source, f"column {stem}", f"{stem} is empty in every row of every table",
-                "a measured value on at least one qubit" if section == "qubits"
+                tables[0].source,
+                f"column {stem}",
+                f"{stem} is empty in every row of every table",
+                "a measured value on at least one qubit"
+                if section == "qubits"
                 else "a measured value on at least one pair",
             )
         worst = min(have) if stem in _TIMES else max(have)
@@ -142,15 +147,12 @@ def _medians(
             if t2 > 2.0 * t1:
                 out[k]["t1"] = t2 / 2.0
                 notes.append(
-                    f"qubit {k}: the filled T1 is raised to T2 / 2 = {t2 / 2.0:g} us "
-                    "(T2 <= 2 T1)"
+                    f"qubit {k}: the filled T1 is raised to T2 / 2 = {t2 / 2.0:g} us (T2 <= 2 T1)"
                 )
     return out
 
 
-def _duration(
-    per: dict[Any, dict[str, float]], stem: str, what: str, notes: list[str]
-) -> float:
+def _duration(per: dict[Any, dict[str, float]], stem: str, what: str, notes: list[str]) -> float:
     vals = [v[stem] for v in per.values()]
     longest = max(vals)
     if min(vals) != longest:
@@ -271,12 +273,14 @@ def profile_from_tables(
     notes: list[str] = []
     q_stems = (*QUBIT_KEYS, "gate_duration", "readout_duration")
     per_q = _medians(tables, "qubits", q_stems, notes)
-    per_p = _medians(tables, "pairs", (*PAIR_KEYS, "gate_duration"), notes) if tables[0].pairs \
-        else {}
+    per_p = (
+        _medians(tables, "pairs", (*PAIR_KEYS, "gate_duration"), notes) if tables[0].pairs else {}
+    )
     durations = {
         "single_qubit_ns": _duration(per_q, "gate_duration", "single-qubit gate", notes),
         "two_qubit_ns": _duration(per_p, "gate_duration", "two-qubit gate", notes)
-        if per_p else _duration(per_q, "gate_duration", "single-qubit gate", []),
+        if per_p
+        else _duration(per_q, "gate_duration", "single-qubit gate", []),
         "readout_ns": _duration(per_q, "readout_duration", "readout", notes),
     }
     q_default, q_over = _defaults_and_overrides(per_q, QUBIT_KEYS)
