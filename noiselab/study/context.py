@@ -16,9 +16,9 @@ from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
 from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
-from noiselab.chem.encode import encode
-from noiselab.chem.molecule import compute_problem
+from noiselab.chem.fermion import ENCODINGS
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optimum_warnings
+from noiselab.chem.sources import build_problem
 from noiselab.chem.spin import exact_spin_squared
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device.compile import compile_ensemble
@@ -40,7 +40,7 @@ class StudyContext:
     """Everything a job needs about a study before any noise is applied."""
 
     study: Study
-    problem: Any  # noiselab.chem.molecule.ElectronicProblem
+    problem: Any  # noiselab.chem.molecule.ElectronicProblem (None: a qubit-operator file)
     qubit_problem: Any  # noiselab.chem.encode.QubitProblem
     ansatz_circuit: Any  # parameterized qiskit QuantumCircuit (logical qubits)
     optimum: Any  # noiselab.chem.optimize.OptimizationResult
@@ -217,8 +217,7 @@ def _build_context(
 
     tick(0)
     t = time.perf_counter()
-    problem = compute_problem(study.molecule)
-    qp = encode(problem, study.encoding, study.drop_fixed_parity_qubits)
+    problem, qp = build_problem(study.molecule, study.encoding, study.drop_fixed_parity_qubits)
     if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
         raise input_error(
             str(study.source),
@@ -310,10 +309,10 @@ def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, t
     The exact S^2 needs the sector ground state; past the exact-diagonalization limit it is
     None and the spin check is skipped.
     """
-    try:
-        s2: float | None = exact_spin_squared(qp)
-    except ProblemTooLargeError:
-        s2 = None
+    s2: float | None = None
+    if qp.encoding in ENCODINGS:  # a qubit-operator file has no spin operator
+        with contextlib.suppress(ProblemTooLargeError):
+            s2 = exact_spin_squared(qp)
     return s2, optimum_warnings(optimum, qp, float(study.target_mha), s2)
 
 

@@ -27,7 +27,13 @@ from pydantic import (
     model_validator,
 )
 
-from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
+from noiselab.chem.molecule import molecule_from_mapping
+from noiselab.chem.sources import (
+    fcidump_source,
+    operator_source,
+    read_xyz,
+    source_qubit_count,
+)
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.shipped import looks_like_name, shipped_path
@@ -239,7 +245,10 @@ class StudyFile(_Strict):
 
     name: str
     description: str | None = None
-    molecule: dict[str, Any]
+    #: the problem: exactly one of molecule, integrals ({fcidump: FILE}), hamiltonian ({file: FILE})
+    molecule: dict[str, Any] | None = None
+    integrals: dict[str, Any] | None = None
+    hamiltonian: dict[str, Any] | None = None
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
     drop_fixed_parity_qubits: StrictBool = False
     ansatz: dict[str, Any]
@@ -356,7 +365,7 @@ class Study:
 
     name: str
     source: Path
-    molecule: Any  # noiselab.chem.molecule.MoleculeSpec
+    molecule: Any  # MoleculeSpec, or FcidumpSource / OperatorSource (noiselab.chem.sources)
     encoding: str
     drop_fixed_parity_qubits: bool
     ansatz: UccsdAnsatz | LayeredAnsatz
@@ -543,7 +552,7 @@ def study_from_mapping(
 
     # the device first: reading it is cheap, the molecule's check runs PySCF
     profile, device_source = _resolve_device(spec.device, src_path)
-    molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
+    molecule = _problem_source(spec, data, ansatz, src_path)
     num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
@@ -644,9 +653,47 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
 
 def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:
     """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the two parity
-    qubits that ``drop_fixed_parity_qubits`` drops."""
-    n = 2 * count_orbitals(molecule)
-    return n - 2 if drop_fixed_parity_qubits and encoding == "parity" else n
+    qubits that ``drop_fixed_parity_qubits`` drops (a qubit-operator file: its own count)."""
+    return source_qubit_count(molecule, encoding, drop_fixed_parity_qubits)
+
+
+PROBLEM_KEYS = ("molecule", "integrals", "hamiltonian")
+
+
+def _problem_source(
+    spec: StudyFile, data: Mapping[str, Any], ansatz: Any, study_path: Path
+) -> Any:
+    """The study's problem source: exactly one of molecule, integrals, hamiltonian."""
+    src = str(study_path)
+    given = [k for k in PROBLEM_KEYS if getattr(spec, k) is not None]
+    allowed = "one of molecule, integrals: {fcidump: FILE}, hamiltonian: {file: FILE}"
+    if len(given) != 1:
+        problem = "required key is missing" if not given else f"{' and '.join(given)} together"
+        raise input_error(src, "molecule", problem, allowed)
+    base = study_path.parent
+    if spec.integrals is not None:
+        return fcidump_source(spec.integrals, base, src)
+    if spec.hamiltonian is not None:
+        for key in ("encoding", "drop_fixed_parity_qubits"):
+            if key in data:
+                raise input_error(src, key, "a qubit-operator file is already encoded",
+                                  "leave encoding keys out with hamiltonian: {file: FILE}")
+        if not isinstance(ansatz, LayeredAnsatz):
+            raise input_error(src, "ansatz.kind", "uccsd needs fermionic integrals, "
+                              "hamiltonian: {file: FILE} has none", "layered")
+        return operator_source(spec.hamiltonian, base, src)
+    mol = dict(spec.molecule or {})
+    geometry = mol.get("geometry")
+    if isinstance(geometry, dict):
+        mol["geometry"] = read_xyz(_xyz_value(geometry, src), base, src)
+    return molecule_from_mapping(mol, src, prefix="molecule")
+
+
+def _xyz_value(geometry: Mapping[str, Any], src: str) -> Any:
+    if set(geometry) != {"xyz"}:
+        raise input_error(src, "molecule.geometry", f"keys {sorted(geometry)}",
+                          "an atom string, a list of [symbol, x, y, z], or {xyz: FILE}")
+    return geometry["xyz"]
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:
