@@ -163,9 +163,11 @@ def _duration(per: dict[Any, dict[str, float]], stem: str, what: str, notes: lis
     return longest
 
 
-def _defaults_and_overrides(
+def defaults_and_overrides(
     per: dict[Any, dict[str, float]], keys: dict[str, str]
 ) -> tuple[dict[str, float], dict[Any, dict[str, float]]]:
+    """(default, overrides): per key the lower median over elements; overrides hold only the
+    values that differ from it (``keys``: element quantity -> profile key)."""
     default = {
         key: float(statistics.median_low([v[stem] for v in per.values()]))
         for stem, key in keys.items()
@@ -283,9 +285,9 @@ def profile_from_tables(
         else _duration(per_q, "gate_duration", "single-qubit gate", []),
         "readout_ns": _duration(per_q, "readout_duration", "readout", notes),
     }
-    q_default, q_over = _defaults_and_overrides(per_q, QUBIT_KEYS)
+    q_default, q_over = defaults_and_overrides(per_q, QUBIT_KEYS)
     if per_p:
-        p_default, p_over = _defaults_and_overrides(per_p, PAIR_KEYS)
+        p_default, p_over = defaults_and_overrides(per_p, PAIR_KEYS)
     else:  # one qubit: no pair, a placeholder coupler (no two-qubit gate can run)
         p_default, p_over = {"gate_error": 0.0}, {}
     sources = ", ".join(t.source for t in tables)
