@@ -16,6 +16,7 @@ from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
 from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
+from noiselab.chem.circuit_file import read_circuit_file
 from noiselab.chem.fermion import ENCODINGS
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optimum_warnings
 from noiselab.chem.sources import build_problem
@@ -28,7 +29,7 @@ from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
 from noiselab.study.preflight import preflight, resolve_emulation
 from noiselab.study.results import ContextSummary
-from noiselab.study.spec import LayeredAnsatz, Study
+from noiselab.study.spec import CircuitAnsatz, LayeredAnsatz, Study
 
 OPTIMUM_KIND = "noiseless-optimum-v3"
 
@@ -105,6 +106,16 @@ class StudyContext:
 def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
     """The study's parameterized trial circuit on the logical qubits."""
     a = study.ansatz
+    if isinstance(a, CircuitAnsatz):
+        circuit, sha = read_circuit_file(a.file, f"circuit.file: {a.file}")
+        if sha != a.sha256:
+            raise input_error(
+                f"circuit.file: {a.file}",
+                None,
+                "the file changed after the study was read",
+                "an unchanged file (run again)",
+            )
+        return circuit
     if isinstance(a, LayeredAnsatz):
         n = int(qubit_problem.num_qubits)
         return layered_circuit(

@@ -83,6 +83,8 @@ def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEst
     nnz = min(4**q, 2**q * masks)
     if getattr(ansatz, "kind", "uccsd") == "layered":
         rotations = 2 * q * (int(ansatz.layers) + 1)
+    elif getattr(ansatz, "kind", "uccsd") == "circuit":
+        rotations = int(ansatz.operations)
     else:
         rotations = _uccsd_rotations(
             sizes.n_orb, sizes.n_alpha, sizes.n_beta, ansatz.singles, ansatz.doubles

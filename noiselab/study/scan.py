@@ -179,7 +179,9 @@ def scan_axis(
     src = str(study.source)
     if not isinstance(study.molecule, MoleculeSpec):
         raise input_error(
-            src, "molecule", "a scan moves atoms; this study's problem comes from a file",
+            src,
+            "molecule",
+            "a scan moves atoms; this study's problem comes from a file",
             "a study with molecule: geometry",
         )
     raw = study.raw.get("scan") if isinstance(study.raw, dict) else None
