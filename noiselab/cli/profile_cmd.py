@@ -235,7 +235,7 @@ def import_tables(
     Several tables (days): per-qubit medians and a drift block of the measured spreads.
     Prints what the tables could not fill, the profile's warnings and the spread table.
 
-    Example: noiselab profile import configs/calibration/lanternfield-5-day*.csv --out lf5.yaml
+    Example: noiselab profile import configs/calibration/lanternfield-5-day*.* --out lf5.yaml
     """
     from rich.console import Console
 
@@ -251,7 +251,7 @@ def import_tables(
     )
     write_text_atomic(out, imported.text)
     for line in imported.notes:
-        typer.echo(f"not from the tables: {line}")
+        typer.echo(f"import note: {line}")
     for line in imported.warnings:
         typer.echo(f"noiselab: warning: {line}", err=True)
     if imported.drift:
