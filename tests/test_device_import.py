@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+import os
 import re
 from pathlib import Path
 
@@ -202,3 +203,11 @@ def test_bad_table_refused_in_one_line(path: Path, tmp_path: Path) -> None:
 def test_bad_table_api_raises_input_error() -> None:
     with pytest.raises(InputError, match=r"line 4, column gate_error_prob"):
         read_calibration_table(ROOT / "tests" / "data" / "bad_calibration" / "nan_value.csv")
+
+
+def test_a_named_pipe_is_refused_without_blocking(tmp_path: Path) -> None:
+    """Tables are read through common.reading.read_input_bytes: special files are refused."""
+    fifo = tmp_path / "day.csv"
+    os.mkfifo(fifo)
+    code, _, err = run_main(["profile", "import", str(fifo), "--out", str(tmp_path / "o.yaml")])
+    assert code == 2 and "named pipe" in err and len(err.strip().splitlines()) == 1
