@@ -356,6 +356,13 @@ TRAJECTORY_HEADER = "trajectory error (mHa)"
 SPREAD_HEADER = "compile spread (mHa)"
 #: Assess column with --drift: drawn device days on which the recipe reaches the target.
 DRIFT_HEADER = "drift days reaching"
+#: Assess and compare column: device time of the estimate at the budget.
+DEVICE_HOURS_HEADER = "device hours (h)"
+
+
+def format_hours(hours: float | None) -> str:
+    """Device hours for a table cell (3 significant digits; "-" when unknown)."""
+    return "-" if hours is None else f"{hours:.3g}"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -462,6 +469,10 @@ class AssessResult:
     #: per recipe, noiselab.study.drift.DriftStats over drawn device days (empty: no --drift)
     drift: dict[str, Any] = dataclasses.field(default_factory=dict)
     drift_rel_std: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: per recipe, device hours of its estimate at the budget (noiselab.study.device_time)
+    device_hours: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: the device-time rule's inputs: repetition_delay_us, readout_ns, circuit_overhead_s
+    device_time: dict[str, float] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -485,10 +496,13 @@ class AssessResult:
                     "energy": "Ha",
                     "bias, std, trajectory_std": "mHa",
                     "shots": "total per estimate",
+                    "device_hours": "hours of device time for the estimate at the budget",
                 },
+                "device_time": self.device_time,
                 "recipes": {
                     name: {
                         **recipe_json(r, self.passes.get(name)),
+                        "device_hours": self.device_hours.get(name),
                         "bias_spread_mha": self.bias_spread_mha.get(name),
                         "drift": self.drift[name].to_json() if name in self.drift else None,
                     }
@@ -518,6 +532,8 @@ class AssessResult:
                 "bias_spread_mha": self.bias_spread_mha,
                 "drift": {n: dataclasses.asdict(d) for n, d in self.drift.items()},
                 "drift_rel_std": self.drift_rel_std,
+                "device_hours": self.device_hours,
+                "device_time": self.device_time,
             }
         )
 
@@ -533,6 +549,8 @@ class AssessResult:
             bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
             drift={n: _drift_stats(d) for n, d in (rec.get("drift") or {}).items()},
             drift_rel_std=dict(rec.get("drift_rel_std") or {}),
+            device_hours=dict(rec["device_hours"]),  # older records lack it: recomputed
+            device_time=dict(rec["device_time"]),
         )
 
     @property
@@ -549,6 +567,8 @@ class AssessResult:
             head = (*head[:i], SPREAD_HEADER, *head[i:])
         if self.drift:
             head = (*head, DRIFT_HEADER)
+        if self.device_hours:
+            head = (*head, DEVICE_HOURS_HEADER)
         return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
@@ -563,6 +583,8 @@ class AssessResult:
             if self.drift:
                 d = self.drift.get(name)
                 row = (*row, "-" if d is None else f"{d.reaching}/{d.draws}")
+            if self.device_hours:
+                row = (*row, format_hours(self.device_hours.get(name)))
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -586,6 +608,7 @@ class AssessResult:
                     "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
+                    "device_hours": self.device_hours.get(name, ""),
                 }
             )
             if self.has_spread:
