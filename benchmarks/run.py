@@ -295,6 +295,7 @@ def bench_grid(quick: bool) -> dict[str, Any]:
         amplification=["none", "stretch"],
         scales=[[float(s) for s in sc] for sc in GRID_SCALES],
         fit=["linear", "richardson"],
+        family=["none"],  # the stack only (the families' circuits are other benchmarks)
     )
     t = time.perf_counter()
     tuned = tune(study, grid=grid, cache=False)

@@ -133,6 +133,10 @@ class MitigationPass(ABC):
     name: ClassVar[str]
     stage: ClassVar[int]
     Options: ClassVar[type[PassOptions]]
+    #: passes this one cannot share a recipe with: their name -> why (one line)
+    incompatible: ClassVar[Mapping[str, str]] = {}
+    #: passes that, when in the recipe, must come after this one
+    runs_before: ClassVar[tuple[str, ...]] = ()
 
     def __init__(self, options: PassOptions) -> None:
         self.options = options
@@ -156,6 +160,11 @@ class MitigationPass(ABC):
 
     def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
+
+    def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
+        """Circuit transforms a correction or estimator pass adds to every circuit variant of its
+        recipe (``noiselab.device.transforms.CircuitTransform``; default none)."""
+        return ()
 
     # STAGE_COMBINE
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
