@@ -12,14 +12,8 @@ from pyscf.tools import fcidump
 
 from noiselab.chem.encode import encode
 from noiselab.chem.molecule import compute_problem, molecule_from_mapping
-from noiselab.chem.sources import (
-    OPERATOR_FORMAT,
-    build_problem,
-    fcidump_problem,
-    fcidump_source,
-    operator_problem,
-    operator_source,
-)
+from noiselab.chem.operator_file import OPERATOR_FORMAT, operator_problem, operator_source
+from noiselab.chem.sources import build_problem, fcidump_problem, fcidump_source
 from noiselab.common.errors import InputError
 from noiselab.study.spec import load_study
 

@@ -34,6 +34,8 @@ are named by their line number.
 
 Rows are named ``qubits[i]`` / ``pairs[i]``. Values are converted to the profile's units
 (``t1_us``, ``duration_ns``, probabilities); bounds are the profile's.
+
+(Somewhat over 400 lines on purpose: the format, both readers and every refusal stay together.)
 """
 
 from __future__ import annotations

@@ -29,12 +29,8 @@ from pydantic import (
 
 from noiselab.chem.circuit_file import read_circuit_file
 from noiselab.chem.molecule import molecule_from_mapping
-from noiselab.chem.sources import (
-    fcidump_source,
-    operator_source,
-    read_xyz,
-    source_qubit_count,
-)
+from noiselab.chem.operator_file import operator_source
+from noiselab.chem.sources import fcidump_source, read_xyz, source_qubit_count
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.shipped import looks_like_name, shipped_path
