@@ -23,10 +23,12 @@ def test_default_grid_holds_the_families() -> None:
     settings, _ = grid_settings(grid)
     families = [s.options["family"] for s in settings]
     # by hand: error cancellation with 4 readout x 3 post-selection choices and no
-    # extrapolation (12), distillation alone (1); the stack without a family as before (156)
+    # extrapolation (12), distillation alone (1); the stack without a family: 156 as before plus
+    # Clifford regression on the amplifier axis with each readout and post-selection choice (12)
     assert families.count("error_cancellation") == 12
     assert families.count("distillation") == 1
-    assert families.count("none") == 156
+    assert families.count("none") == 168
+    assert len(settings) == 181
     # the demo's own tune section names no family beyond none: its 81 settings as they were
     own, _ = resolve_grid(study, GridOverride())
     assert len(grid_settings(own)[0]) == 81

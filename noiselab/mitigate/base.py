@@ -90,13 +90,18 @@ class Workspace:
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
     under the variant's readout, registering them as sources with their shot counts. ``rng`` is
     set on sampled evaluations only: a pass draws its own random parts from it (those no shot
-    count shrinks, reported as :attr:`Combined.fixed_variance`).
+    count shrinks, reported as :attr:`Combined.fixed_variance`). ``estimator``: the recipe's
+    estimator pass (None: the plan estimate), for a combination pass that needs the noiseless
+    value of the same estimator (``clifford_regression``'s training energies); ``corrections``:
+    the recipe's correction passes.
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
     rng: np.random.Generator | None = None
+    estimator: MitigationPass | None = None
+    corrections: tuple[MitigationPass, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)

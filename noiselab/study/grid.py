@@ -15,9 +15,12 @@ from noiselab.mitigate.passes.postselect import PostselectOptions
 from noiselab.mitigate.passes.readout import ReadoutOptions
 
 NONE = "none"
+#: The amplification axis also offers Clifford data regression (default options) in place of
+#: an extrapolation: the other combination of the grid, with no scale set or fit of its own.
+REGRESSION = "clifford_regression"
 DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
 DEFAULT_POSTSELECT = (NONE, "discard", "verify")
-DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
+DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
 DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
 DEFAULT_FIT = ("linear", "richardson")
 #: Mitigation families besides the stack above: none, or one whole-circuit method.
@@ -72,7 +75,7 @@ def check_axes(grid: Grid, origin: dict[str, str]) -> None:
     checks = {
         "readout": (NONE, *allowed(ReadoutOptions, "method")),
         "postselect": (NONE, *allowed(PostselectOptions, "mode")),
-        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier")),
+        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
         "family": FAMILIES,
     }

@@ -261,9 +261,24 @@ def amplification_line(result: Any) -> str | None:
     )
 
 
+def training_line(result: Any) -> str | None:
+    """One line stating what a Clifford-regression result assumes of its training circuits
+    (None for other results)."""
+    details = getattr(result, "details", None) or {}
+    cr = details.get("clifford_regression") if isinstance(details, Mapping) else None
+    if not isinstance(cr, Mapping) or cr.get("classical"):
+        return None
+    choice = details.get("std_training_choice_mha")
+    cost = f"; the choice of rotations adds {float(choice):.3g} mHa (1 std)" if choice else ""
+    return (
+        f"Training assumed: {cr.get('assumption')} ({cr.get('training_circuits')} training "
+        f"circuits, {format_count(cr.get('training_shots'))} of the shots{cost})."
+    )
+
+
 def _with_amplification(text: str, result: Any) -> str:
-    line = amplification_line(result)
-    return text if line is None else f"{text} {line}"
+    lines = [line for line in (amplification_line(result), training_line(result)) if line]
+    return " ".join([text, *lines])
 
 
 def format_count(n: int | float | None) -> str:

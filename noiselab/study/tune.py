@@ -32,7 +32,7 @@ from noiselab.study.assess import (
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.executor import make_executor
-from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
+from noiselab.study.grid import DEFAULT_AXES, NONE, REGRESSION, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -142,7 +142,7 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
             if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
                 continue
             zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
-            if amp == NONE:
+            if amp in (NONE, REGRESSION):
                 zne_choices = [(None, None)]
             else:
                 zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
@@ -156,7 +156,9 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
                     passes.append({"pass": "postselect", "mode": ps})
                 if family == "distillation":
                     passes.append({"pass": "distillation"})
-                if amp != NONE:
+                if amp == REGRESSION:
+                    passes.append({"pass": REGRESSION})
+                elif amp != NONE:
                     passes.append(
                         {
                             "pass": "extrapolate",
@@ -190,6 +192,8 @@ def _label(o: dict[str, Any]) -> str:
     parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
     if o["amplification"] == NONE:
         parts.append("zne=none")
+    elif o["amplification"] == REGRESSION:
+        parts.append(f"zne=none {REGRESSION}")
     else:
         scales = ",".join(f"{s:g}" for s in o["scales"])
         parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
