@@ -20,6 +20,9 @@ _LAZY: dict[str, str] = {
     "budget": "noiselab.study.budget:budget",
     "load_study": "noiselab.study.spec:load_study",
     "load_profile": "noiselab.device.profile:load_profile",
+    "profile_from_target": "noiselab.device.qiskit_target:profile_from_target",
+    "profile_to_target": "noiselab.device.qiskit_target:profile_to_target",
+    "aer_simulator": "noiselab.device.qiskit_target:aer_simulator",
 }
 
 
