@@ -53,7 +53,7 @@ def write_day(path: Path, qubit_rows: list[list[float]], pair_rows: list[tuple[s
 def test_shipped_tables_import(tmp_path: Path) -> None:
     assert len(SHIPPED) == 3 and {p.suffix for p in SHIPPED} == {".csv", ".json"}
     out = tmp_path / "lanternfield-5.yaml"
-    code, stdout, err = run_main(["profile", "import", *map(str, SHIPPED), "--out", str(out)])
+    code, stdout, err = run_main(["profile", "import", *map(str, SHIPPED), "--to", str(out)])
     assert code == 0, err
     assert "wrote" in stdout and "t1_rel_std" in stdout and "relative std." in stdout
     assert "optimistic" in stdout  # what the tables could not fill, said so
@@ -173,7 +173,7 @@ def test_tables_of_different_devices_are_refused(tmp_path: Path) -> None:
         [("0-1", 8e-3, 300), ("1-2", 8e-3, 300)],
     )
     code, _, err = run_main(
-        ["profile", "import", str(a), str(b), "--out", str(tmp_path / "o.yaml")]
+        ["profile", "import", str(a), str(b), "--to", str(tmp_path / "o.yaml")]
     )
     assert code == 2 and len(err.strip().splitlines()) == 1
     assert "b.csv: qubits: differ from" in err and "extra: 2" in err
@@ -181,8 +181,8 @@ def test_tables_of_different_devices_are_refused(tmp_path: Path) -> None:
 
 
 def test_out_must_be_a_yaml_file(tmp_path: Path) -> None:
-    code, _, err = run_main(["profile", "import", str(SHIPPED[0]), "--out", str(tmp_path)])
-    assert code == 2 and "--out" in err and len(err.strip().splitlines()) == 1
+    code, _, err = run_main(["profile", "import", str(SHIPPED[0]), "--to", str(tmp_path)])
+    assert code == 2 and "--to" in err and len(err.strip().splitlines()) == 1
 
 
 # ---- malformed tables: one line naming row and column, exit 2, nothing written -----------------
@@ -191,7 +191,7 @@ def test_out_must_be_a_yaml_file(tmp_path: Path) -> None:
 @pytest.mark.parametrize("path", BAD, ids=lambda p: p.name)
 def test_bad_table_refused_in_one_line(path: Path, tmp_path: Path) -> None:
     out = tmp_path / "never.yaml"
-    code, stdout, err = run_main(["profile", "import", str(path), "--out", str(out)])
+    code, stdout, err = run_main(["profile", "import", str(path), "--to", str(out)])
     lines = err.strip().splitlines()
     assert code == 2, err
     assert len(lines) == 1 and "Traceback" not in err and "internal error" not in err
@@ -209,5 +209,5 @@ def test_a_named_pipe_is_refused_without_blocking(tmp_path: Path) -> None:
     """Tables are read through common.reading.read_input_bytes: special files are refused."""
     fifo = tmp_path / "day.csv"
     os.mkfifo(fifo)
-    code, _, err = run_main(["profile", "import", str(fifo), "--out", str(tmp_path / "o.yaml")])
+    code, _, err = run_main(["profile", "import", str(fifo), "--to", str(tmp_path / "o.yaml")])
     assert code == 2 and "named pipe" in err and len(err.strip().splitlines()) == 1

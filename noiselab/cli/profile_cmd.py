@@ -215,12 +215,12 @@ def import_tables(
     ],
     out: Annotated[
         Path,
-        typer.Option("--out", help="Profile YAML file to write (.yaml).", show_default=False),
+        typer.Option("--to", help="Profile YAML file to write (.yaml).", show_default=False),
     ],
     name: Annotated[
         str | None,
         typer.Option(
-            "--name", help="Device name (default: the --out file's name).", show_default=False
+            "--name", help="Device name (default: the --to file's name).", show_default=False
         ),
     ] = None,
     two_qubit_gate: Annotated[
@@ -235,7 +235,7 @@ def import_tables(
     Several tables (days): per-qubit medians and a drift block of the measured spreads.
     Prints what the tables could not fill, the profile's warnings and the spread table.
 
-    Example: noiselab profile import configs/calibration/lanternfield-5-day*.* --out lf5.yaml
+    Example: noiselab profile import configs/calibration/lanternfield-5-day*.* --to lf5.yaml
     """
     from rich.console import Console
 
@@ -244,7 +244,7 @@ def import_tables(
     from noiselab.device.profile_import import profile_from_tables
 
     if out.suffix.lower() not in (".yaml", ".yml") or out.is_dir():
-        raise InputError(f"--out: {out}: not a .yaml file path; allowed: a file ending in .yaml")
+        raise InputError(f"--to: {out}: not a .yaml file path; allowed: a file ending in .yaml")
     read = [read_calibration_table(t) for t in tables]
     imported = profile_from_tables(
         read, name if name is not None else out.stem, str(out), two_qubit_gate, description
