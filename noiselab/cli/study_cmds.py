@@ -77,7 +77,8 @@ MethodOpt = Annotated[
     typer.Option(
         "--method",
         help="Emulation method: auto (density matrix while it fits in memory, else Monte Carlo "
-        "trajectories), density_matrix (exact; refuse when too large) or trajectory. "
+        "trajectories), density_matrix (exact; refuse when too large), trajectory or "
+        "pauli_propagation (assess only; twirled noise, raw and per-qubit readout recipes). "
         "Default: the study's emulation.method, else auto.",
         show_default=False,
     ),
