@@ -207,3 +207,15 @@ def test_twenty_qubits_pass_the_emulation_guard_and_the_plan_stays_sparse() -> N
     assert z.weights == pytest.approx(want, abs=1e-14)
     assert z.weights is z.dense_weights
     assert np.allclose(z.weights, weight_vector(z.labels, z.coeffs, 3))
+
+
+def test_jobs_other_than_assess_are_refused_in_one_line(tmp_path: Path) -> None:
+    from noiselab.study.sweep import sweep
+    from noiselab.study.tune import tune
+
+    path = _study(tmp_path)
+    for job in (tune, sweep):
+        with pytest.raises(InputError) as info:
+            job(path, cache=False)
+        text = str(info.value)
+        assert "\n" not in text and str(path) in text and "assess only" in text

@@ -67,6 +67,16 @@ def resolve_study(
     return load_study(study_or_path, overrides)
 
 
+def refuse_pauli_method(study: Study, job: str) -> None:
+    """Refuse in one line a job other than assess under ``emulation.method: pauli_propagation``
+    (it has no outcome distributions for the other jobs' recipes)."""
+    if study.emulation.method == PAULI_METHOD:
+        raise InputError(
+            f"{study.source}: emulation.method: {PAULI_METHOD} serves assess only, not {job}; "
+            "allowed here: auto, density_matrix, trajectory (--method)"
+        )
+
+
 def override_key_options(
     study: Study,
     seed: int | str | None,

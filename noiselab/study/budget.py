@@ -16,7 +16,7 @@ from typing import Any
 
 from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
-from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.assess import _default_cache, refuse_pauli_method, resolve_study
 from noiselab.study.context import build_context
 from noiselab.study.results import RunStats, trajectory_std_of
 from noiselab.study.sweep import (
@@ -161,6 +161,7 @@ def budget(
     """
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    refuse_pauli_method(study, "budget")
     picked = chosen_recipes(study, [] if recipe is None else [recipe])
     store = _default_cache(cache)
     with own_executor(workers, cluster, executor) as ex:

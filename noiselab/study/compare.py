@@ -21,7 +21,7 @@ from noiselab.common.errors import InputError, input_error
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, assess
+from noiselab.study.assess import _default_cache, assess, refuse_pauli_method
 from noiselab.study.cache import ResultsCache
 from noiselab.study.results import (
     DEVICE_HOURS_HEADER,
@@ -249,6 +249,7 @@ def compare(
     if not devices:
         raise input_error("--devices", "devices", "no device given", "one or more profiles")
     base = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
+    refuse_pauli_method(base, "compare")
     base = base.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
     paths = list(dict.fromkeys(resolve_device(str(d)) for d in devices))
     studies = [study_on_device(base, p) for p in paths]  # every refusal before any work

@@ -45,6 +45,7 @@ from noiselab.mitigate.optimizers import (
 )
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.mitigate.target import p_within, reaches_target
+from noiselab.study.assess import refuse_pauli_method
 from noiselab.study.context import (
     StudyContext,
     build_context,
@@ -332,6 +333,7 @@ def rehearse(
 
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
+    refuse_pauli_method(study, "rehearse")
     settings = resolve_settings(study, overrides)
     loop_passes = settings.loop_passes()
     final_passes = (

@@ -24,6 +24,7 @@ from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.experiment import make_runner
+from noiselab.study.assess import refuse_pauli_method
 from noiselab.study.context import build_context, recipes_verify
 from noiselab.study.rehearse import OPTIMIZER_WORDS, RehearseResult, rehearse, resolve_settings
 from noiselab.study.rehearse_spec import DEFAULT_LOOP_NAME, DEFAULT_LOOP_RECIPE, RehearseGrid
@@ -196,6 +197,7 @@ def rehearse_grid(
 
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
+    refuse_pauli_method(study, "rehearse")
     settings = resolve_settings(study, overrides)
     grid = settings.grid if settings.grid is not None else RehearseGrid()
     loops = _loop_recipes(study, grid)

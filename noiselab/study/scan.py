@@ -57,7 +57,13 @@ from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, check_recipes, resolve_study, run_recipes
+from noiselab.study.assess import (
+    _default_cache,
+    check_recipes,
+    refuse_pauli_method,
+    resolve_study,
+    run_recipes,
+)
 from noiselab.study.cache import (
     CachingRunner,
     ResultsCache,
@@ -618,6 +624,7 @@ def scan(
     """
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    refuse_pauli_method(study, "scan")
     axis = scan_axis(study, bond, scale, start, stop, points, refine)
     if recipes is None:
         section = study.raw.get("scan") if isinstance(study.raw, dict) else None

@@ -29,7 +29,7 @@ from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.profile import VIRTUAL_GATES, relaxation_gate_infidelity, scale_profile
 from noiselab.mitigate.recipe import run_recipe
-from noiselab.study.assess import _default_cache, resolve_study
+from noiselab.study.assess import _default_cache, refuse_pauli_method, resolve_study
 from noiselab.study.cache import CachingRunner
 from noiselab.study.context import build_context
 from noiselab.study.executor import make_executor
@@ -642,6 +642,7 @@ def sweep(
     """
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    refuse_pauli_method(study, "sweep")
     defaults = getattr(study, "sweep", None)
 
     def default(name: str, given: Any, fallback: Any) -> Any:

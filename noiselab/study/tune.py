@@ -26,6 +26,7 @@ from noiselab.study.assess import (
     job_fields,
     load_job_result,
     override_key_options,
+    refuse_pauli_method,
     resolve_study,
     save_job_result,
 )
@@ -258,6 +259,7 @@ def tune(
     store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    refuse_pauli_method(study, "tune")
     resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
