@@ -23,9 +23,8 @@ import numpy as np
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
-from noiselab.mitigate.experiment import make_runner
-from noiselab.study.assess import refuse_pauli_method
 from noiselab.study.context import build_context, recipes_verify
+from noiselab.study.job import as_cache
 from noiselab.study.rehearse import OPTIMIZER_WORDS, RehearseResult, rehearse, resolve_settings
 from noiselab.study.rehearse_spec import DEFAULT_LOOP_NAME, DEFAULT_LOOP_RECIPE, RehearseGrid
 from noiselab.study.results import csv_text
@@ -36,27 +35,37 @@ ProgressHook = Callable[[str, int, int], None]
 
 class SharedRuns:
     """Emulations of bound circuits shared by several rehearsals of one context: keyed by the
-    parameter values bit for bit (and the measured bases), so a point that two settings or two
-    repeats evaluate is simulated once; the results are those of separate runs. At most
-    ``max_points`` points are kept (later ones are simulated and not kept)."""
+    parameter values bit for bit (and the measured bases), each point's distributions per
+    circuit variant, so a point that two settings or two repeats evaluate is simulated once;
+    the results are those of separate runs. At most ``max_points`` points are kept (later ones
+    are simulated and not kept)."""
 
     def __init__(self, max_points: int = 4096) -> None:
         self.max_points = int(max_points)
-        self._runners: dict[tuple[bytes, tuple[str, ...]], Any] = {}
+        self._points: dict[tuple[bytes, tuple[str, ...]], dict[Any, Any]] = {}
         self.evaluations = 0  # evaluations asked for
         self.reused = 0  # of which at a point simulated before
 
-    def runner(self, exp: Any, x: np.ndarray) -> Any:
-        """The runner of ``exp`` (bound at ``x``), shared with earlier evaluations at ``x``."""
-        key = (np.asarray(x, dtype=float).tobytes(), tuple(exp.measured_bases))
+    @staticmethod
+    def _key(x: np.ndarray, bases: tuple[str, ...]) -> tuple[bytes, tuple[str, ...]]:
+        return (np.asarray(x, dtype=float).tobytes(), tuple(bases))
+
+    def lookup(self, x: np.ndarray, bases: tuple[str, ...], variants: Any) -> dict[Any, Any] | None:
+        """The distributions of every one of ``variants`` at ``x``, or None (not all known)."""
         self.evaluations += 1
-        if key in self._runners:
-            self.reused += 1
-            return self._runners[key]
-        runner = make_runner(exp)
-        if len(self._runners) < self.max_points:
-            self._runners[key] = runner
-        return runner
+        known = self._points.get(self._key(x, bases))
+        if known is None or any(v not in known for v in variants):
+            return None
+        self.reused += 1
+        return {v: known[v] for v in variants}
+
+    def keep(self, x: np.ndarray, bases: tuple[str, ...], data: dict[Any, Any]) -> None:
+        """Remember the distributions emulated at ``x`` (variant -> distributions)."""
+        key = self._key(x, bases)
+        if key in self._points:
+            self._points[key].update(data)
+        elif len(self._points) < self.max_points:
+            self._points[key] = dict(data)
 
 
 @dataclasses.dataclass(frozen=True)
@@ -193,17 +202,14 @@ def rehearse_grid(
     ``overrides``: keys of the ``rehearse:`` section applied to every setting (``iterations``,
     ``repeats``, ``seed``, ...; ``grid`` replaces the grid). ``analytic``: test-only.
     """
-    from noiselab.study.assess import _default_cache
-
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    refuse_pauli_method(study, "rehearse")
     settings = resolve_settings(study, overrides)
     grid = settings.grid if settings.grid is not None else RehearseGrid()
     loops = _loop_recipes(study, grid)
     finals = [study.recipes[settings.final_recipe]] if settings.final_recipe else []
     verify = recipes_verify([*loops.values(), *finals])
-    ctx = build_context(study, cache=_default_cache(cache), verification=verify)
+    ctx = build_context(study, cache=as_cache(cache), verification=verify)
     shared = SharedRuns()
     base = {k: v for k, v in overrides.items() if v is not None and k != "grid"}
     combos = list(itertools.product(grid.optimizer, grid.shots_per_evaluation, loops))
