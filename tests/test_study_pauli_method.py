@@ -136,6 +136,7 @@ def test_assess_reports_the_propagated_energy_and_the_target_rule(tmp_path: Path
     assert result.emulation_method == "pauli_propagation"
     assert "Pauli-twirled" in result.emulation_notice
     assert "crosstalk is left out" in result.emulation_notice
+    assert "leaves out the finite calibration's variance" in result.emulation_notice
     raw = result.recipes["raw"]
     # untruncated: the raw recipe's energy is pauli_energy's (checked against aer's density
     # matrix above and in tests/test_emulate_pauli_propagation.py) under the device's noise

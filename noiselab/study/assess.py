@@ -210,7 +210,13 @@ def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> Ass
     bounds = ", ".join(
         f"{name} {r.details['truncation_bound_mha']:.3g} mHa" for name, r in results.items()
     )
-    fields["emulation_notice"] = f"{PAULI_NOTICE}; truncation bound: {bounds}"
+    notice = f"{PAULI_NOTICE}; truncation bound: {bounds}"
+    if any("calibration_note" in r.details for r in results.values()):
+        notice += (
+            "; the readout recipes' std leaves out the finite calibration's variance "
+            "(optimistic: exact calibration matrices)"
+        )
+    fields["emulation_notice"] = notice
     return AssessResult(
         recipes=results,
         passes=dict(study.recipes),
