@@ -262,7 +262,8 @@ def _build_context(
             raise InputError(f"{study.source}: layout: {text.split('layout: ', 1)[1]}") from None
         raise
     compiled = ensemble.chosen
-    plan = build_plan(qp.hamiltonian)
+    # Pauli propagation reads terms, never the 2**n weight vectors (built lazily if asked)
+    plan = build_plan(qp.hamiltonian, dense=study.emulation.method != "pauli_propagation")
     seconds["compile"] = time.perf_counter() - t
     tick(3)
     experiment = make_experiment(study, qp, compiled, plan, optimum, verification)

@@ -157,8 +157,16 @@ def emulation_method(
     """
     from noiselab.emulate.engine import choose_method
     from noiselab.emulate.memory import check_memory
+    from noiselab.emulate.pauli_propagation import MAX_PAULI_QUBITS
 
     e = emulation
+    if e.method == "pauli_propagation":  # strings of two uint64 words; no 2**n array anywhere
+        if circuit_qubits > MAX_PAULI_QUBITS:
+            raise ProblemTooLargeError(
+                f"{source}: emulation.method: pauli_propagation on {circuit_qubits} circuit "
+                f"qubits; allowed: at most {MAX_PAULI_QUBITS}"
+            )
+        return "pauli_propagation", None
     try:
         method, notice = choose_method(
             circuit_qubits, e.method, max_density_matrix_qubits=e.max_density_matrix_qubits

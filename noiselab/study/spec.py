@@ -240,26 +240,42 @@ class SweepDefaults(_Strict):
         return value
 
 
-EMULATION_METHODS = ("auto", "density_matrix", "trajectory")
+EMULATION_METHODS = ("auto", "density_matrix", "trajectory", "pauli_propagation")
 #: Engine defaults (noiselab.emulate.engine.emulate_bases) for the trajectory method.
 DEFAULT_TRAJECTORIES = 256
 DEFAULT_BATCHES = 16
+
+
+class TruncationSettings(_Strict):
+    """Truncation of the ``pauli_propagation`` method (noiselab.emulate.pauli_propagation).
+
+    ``min_abs_coeff``: Pauli strings whose |coefficient| (Ha) falls below it are dropped;
+    ``max_weight``: strings acting on more qubits are dropped (None: no weight cut). The sum
+    of what was dropped bounds the truncation error and is reported in mHa.
+    """
+
+    min_abs_coeff: float = Field(default=1e-5, ge=0.0, le=1.0)
+    max_weight: Count | None = Field(default=None, ge=1, le=64)
 
 
 class EmulationSettings(_Strict):
     """How the noisy circuits are emulated.
 
     ``method``: ``auto`` (density matrix while it fits the memory guard, else Monte Carlo
-    trajectories), ``density_matrix`` (exact; refuse when too large) or ``trajectory``.
+    trajectories; never Pauli propagation), ``density_matrix`` (exact; refuse when too large),
+    ``trajectory`` or ``pauli_propagation`` (Heisenberg-picture Pauli strings under the
+    Pauli-twirled noise, truncated by ``truncation``; assess only, raw and per-qubit readout
+    recipes only).
     ``trajectories``: trajectories per circuit variant, in ``batches`` batches (the batch
     spread gives the trajectory error bar). ``max_density_matrix_qubits``: a cap on the
     circuit width for the density matrix (None: the memory guard alone decides).
     """
 
-    method: Literal["auto", "density_matrix", "trajectory"] = "auto"
+    method: Literal["auto", "density_matrix", "trajectory", "pauli_propagation"] = "auto"
     trajectories: Count = Field(default=DEFAULT_TRAJECTORIES, ge=2, le=10**7)
     batches: Count = Field(default=DEFAULT_BATCHES, ge=2, le=10**4)
     max_density_matrix_qubits: Count | None = Field(default=None, ge=1, le=64)
+    truncation: TruncationSettings = TruncationSettings()
 
     @model_validator(mode="after")
     def _check_batches(self) -> EmulationSettings:
