@@ -106,16 +106,27 @@ def dominant_channel(
     gain = {c: t - abs(removed[c].errors_mha[k]) for c in removed}
     solo = {c: abs(alone[c].errors_mha[k] - floor.errors_mha[k]) for c in alone}
     best = max(gain, key=lambda c: (round(gain[c], 9), solo.get(c, 0.0)))
-    if gain[best] <= 1e-9:
+    lowers = gain[best] > 1e-9  # removing ``best`` lowers |error|: it is a cost
+    if not lowers:
         best = max(solo, key=lambda c: solo[c])
     a = alone[best].errors_mha[k]
     w = removed[best].errors_mha[k]
     reaches = total.reaches_target[k] if k < len(total.reaches_target) else False
     if target_mha is not None and reaches:
+        cost = (
+            f"largest single cost {best} (without it {w:+.3g} mHa)"
+            if lowers
+            else f"no single channel's removal lowers the error (largest alone: {best}, "
+            f"{a:+.3g} mHa)"
+        )
         return best, (
             f"reaches the {target_mha:.3g} mHa target at the budget with every channel present "
-            f"({total.errors_mha[k]:+.3g} mHa); largest single cost {best} "
-            f"(without it {w:+.3g} mHa)"
+            f"({total.errors_mha[k]:+.3g} mHa); {cost}"
+        )
+    if not lowers:
+        return best, (
+            f"no single channel's removal lowers the error ({total.errors_mha[k]:+.3g} mHa with "
+            f"every channel); largest error alone: {best} ({a:+.3g} mHa; without it {w:+.3g} mHa)"
         )
     sentence = (
         f"dominant error source: {best} (alone {a:+.3g} mHa; without it {w:+.3g} mHa, "
