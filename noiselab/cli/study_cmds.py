@@ -15,6 +15,7 @@ from typing import Annotated, Any
 
 import typer
 
+from noiselab.cli.report_opt import ReportOpt
 from noiselab.common.errors import InputError, input_error
 
 # Deliberately lazy: the study and report layers and rich are imported inside the command
@@ -287,12 +288,12 @@ def _spin(s2: float | None, sep: str = " ") -> str:
     return f"{sep}S^2 {s2:.3f}" if sep != " " else f" (S^2 {s2:.3f})"
 
 
-def _write_assess_outputs(result: Any, out: Path) -> list[Path]:
+def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = None) -> list[Path]:
     """assess.json, assess.csv and the figures (from noiselab.report) into ``out``."""
     from noiselab.report.outputs import write_assess_figures
     from noiselab.study.assess import write_assess_data
 
-    return [*write_assess_data(result, out), *write_assess_figures(result, out)]
+    return [*write_assess_data(result, out, prov), *write_assess_figures(result, out)]
 
 
 # ---------------------------------------------------------------- assess
@@ -326,11 +327,14 @@ def assess_cmd(
             show_default=False,
         ),
     ] = None,
+    report: ReportOpt = None,
 ) -> None:
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.study.assess import assess
 
     out_dir = check_out(out, ASSESS_FILES)
+    report_dir = check_report_dir(report, "assess")
     result = _run_job(
         assess,
         study,
@@ -343,13 +347,19 @@ def assess_cmd(
         trajectories=trajectories,
         drift=drift,
     )
+    # the files carry the provenance block; --json (a stream compared between runs) does not
+    prov = job_provenance(study, result.seed) if out_dir is not None else None
     written = (
-        publish(out_dir, lambda d: _write_assess_outputs(result, d)) if out_dir is not None else []
+        publish(out_dir, lambda d: _write_assess_outputs(result, d, prov))
+        if out_dir is not None
+        else []
     )
     if json_out:
         _print_json(result.to_json(with_stats=timings))
+        emit_report("assess", result, report_dir, study, result.seed)
         return
     _show_assess(result, written)
+    emit_report("assess", result, report_dir, study, result.seed)
 
 
 def _show_assess(result: Any, written: list[Path]) -> None:

@@ -10,6 +10,7 @@ from typing import Annotated, Any
 
 import typer
 
+from noiselab.cli.report_opt import ReportOpt
 from noiselab.cli.study_cmds import (
     CacheOpt,
     ClusterOpt,
@@ -116,8 +117,10 @@ def sweep_cmd(
     quiet: QuietOpt = False,
     method: MethodOpt = None,
     trajectories: TrajectoriesOpt = None,
+    report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.cli.study_cmds import check_out, publish, workers_count
     from noiselab.study.knobs import KNOBS
     from noiselab.study.sweep import get_knob, sweep
@@ -127,6 +130,7 @@ def sweep_cmd(
         get_knob(vary)  # a bad knob fails before any work
     names = tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
     out_dir = check_out(out, names)
+    report_dir = check_report_dir(report, "sweep")
     n_workers = workers_count(workers)
     result = _run_job(
         sweep,
@@ -167,7 +171,9 @@ def sweep_cmd(
     if out_dir is not None:
         from noiselab.report.outputs import write_sweep_outputs
 
-        echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
+        prov = job_provenance(study, seed)
+        echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d, provenance=prov)))
+    emit_report("sweep", result, report_dir, study, seed)
 
 
 def budget_cmd(
@@ -190,13 +196,16 @@ def budget_cmd(
     quiet: QuietOpt = False,
     method: MethodOpt = None,
     trajectories: TrajectoriesOpt = None,
+    report: ReportOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.cli.study_cmds import check_out, publish, workers_count
     from noiselab.study.budget import budget
 
     _check_method(method)
-    out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg")))
+    out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg", "pdf")))
+    report_dir = check_report_dir(report, "budget")
     n_workers = workers_count(workers)
     result = _run_job(
         budget,
@@ -222,7 +231,9 @@ def budget_cmd(
     if out_dir is not None:
         from noiselab.report.outputs import write_budget_outputs
 
-        echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
+        prov = job_provenance(study, seed)
+        echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d, provenance=prov)))
+    emit_report("budget", result, report_dir, study, seed)
 
 
 _SWEEP_HELP = (

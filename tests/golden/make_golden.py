@@ -48,8 +48,11 @@ PINNED_ENV = {
     "PYTHONHASHSEED": "0",
 }
 
-#: Keys dropped wherever they appear: timings and file paths (vary by machine and checkout).
-VOLATILE_KEYS = frozenset({"source", "device_source", "run", "engine_seconds", "wall_seconds"})
+#: Keys dropped wherever they appear: timings, file paths and the provenance block (date,
+#: machine, library versions: vary by machine and checkout).
+VOLATILE_KEYS = frozenset(
+    {"source", "device_source", "run", "engine_seconds", "wall_seconds", "provenance"}
+)
 
 
 def strip_volatile(obj: Any) -> Any:
