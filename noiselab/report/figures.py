@@ -359,7 +359,9 @@ def zoom_limits(data: ExtrapolationFigureData) -> tuple[tuple[float, float], tup
     return (lo, hi), tuple(outside)
 
 
-def extrapolation_figure(result: AssessResult | ExtrapolationFigureData) -> Figure:
+def extrapolation_figure(
+    result: AssessResult | ExtrapolationFigureData, ax: Any = None
+) -> Figure:
     """Energy error against noise scale for every extrapolating recipe; the fitted curves the
     extrapolation pass reported, down to scale 0. The legend (below) names each recipe's fit,
     amplifier, scales and shots.
@@ -376,11 +378,16 @@ def extrapolation_figure(result: AssessResult | ExtrapolationFigureData) -> Figu
         (e - data.exact_energy_ha) * HA_TO_MHA for s in data.series for e in s.energies_ha
     ]
     zoom = bool(data.series) and (max(all_y) - min(all_y)) > 12 * data.target_mha
-    fig = _new_figure(10.0 if zoom else 8.0, 5.6 + 0.22 * len(data.series))
-    if zoom:
-        ax, zx = fig.subplots(1, 2, width_ratios=(2.4, 1.0))
+    own = ax is None  # on a caller's axes: one panel, no zoom
+    zoom = zoom and own
+    if own:
+        fig = _new_figure(10.0 if zoom else 8.0, 5.6 + 0.22 * len(data.series))
+        if zoom:
+            ax, zx = fig.subplots(1, 2, width_ratios=(2.4, 1.0))
+        else:
+            ax, zx = fig.add_subplot(1, 1, 1), None
     else:
-        ax, zx = fig.add_subplot(1, 1, 1), None
+        fig, zx = ax.get_figure(), None
     _draw_extrapolation(ax, data, colors, legend=True)
     if not data.series:
         ax.text(
@@ -510,12 +517,20 @@ def crossing_text(knob: Any, value: float, rel_tol: float = BISECTION_REL_TOL) -
 
 
 def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, ...]:
+    """:func:`sweep_figure` written as SVG, PDF and PNG beside ``path_stem``."""
+    return _save_all(sweep_figure(sweep_result), path_stem)
+
+
+def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
     """The proposal figure: |energy error| (mHa, log) against the knob, raw and each mitigated
     recipe with a ± one-standard-error band at the budget, the target band shaded, crossings
     marked, the device's current value as a vertical line. Writes SVG, PDF and PNG."""
     knob = sweep_result.knob_spec
-    fig = _new_figure(9.4, 4.8)
-    ax = fig.add_subplot(1, 1, 1)
+    own = ax is None
+    if own:
+        fig = _new_figure(9.4, 4.8)
+        ax = fig.add_subplot(1, 1, 1)
+    fig = ax.get_figure()
     d = knob.display_factor
     xs = [v * d for v in sweep_result.values]
     t = sweep_result.target_mha
@@ -606,7 +621,10 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
     )  # fmt: skip
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
-    fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+    if own:
+        fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+    else:
+        ax.legend(fontsize=7, framealpha=0.9)
     _decorate(
         fig,
         ax,
@@ -615,7 +633,7 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
         sweep_result.study_name,
         sweep_result.device_name,
     )
-    return _save_all(fig, path_stem)
+    return fig
 
 
 #: The noise channels in a reader's words (figures only; CSV and JSON keep the channel names).
@@ -669,7 +687,7 @@ def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
     return _save(budget_figure(budget_result), path)
 
 
-def budget_figure(budget_result: BudgetResult) -> Figure:
+def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
     b = budget_result
@@ -678,8 +696,11 @@ def budget_figure(budget_result: BudgetResult) -> Figure:
         r for kind in ("total", "alone", "removed", "noiseless") for r in rows if r.kind == kind
     ]
     n = len(b.recipes)
-    fig = _new_figure(8.8, 2.0 + 0.2 * len(order) * max(1, n))
-    ax = fig.add_subplot(1, 1, 1)
+    own = ax is None
+    if own:
+        fig = _new_figure(8.8, 2.0 + 0.2 * len(order) * max(1, n))
+        ax = fig.add_subplot(1, 1, 1)
+    fig = ax.get_figure()
     height = 0.8 / n
     colors = _colors(b.recipes)
     for k, name in enumerate(b.recipes):
@@ -740,7 +761,10 @@ def budget_figure(budget_result: BudgetResult) -> Figure:
         Patch(facecolor="white", edgecolor="k", hatch="//", label="that error source removed")
     )
     handles.append(Line2D([], [], color=TARGET_COLOUR, ls="--", label=target_words(t)))
-    fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
+    if own:
+        fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
+    else:
+        ax.legend(handles=handles, fontsize=7, framealpha=0.9)
     _decorate(fig, ax, budget_title(b), b.study_name, b.device_name)
     return fig
 

@@ -18,6 +18,7 @@ from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
 from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.context import build_context
+from noiselab.study.display import NotebookDisplay
 from noiselab.study.results import RunStats, trajectory_std_of
 from noiselab.study.sweep import (
     ConfigTask,
@@ -46,8 +47,8 @@ class BudgetRow:
     reaches_target: tuple[bool, ...] = ()
 
 
-@dataclasses.dataclass(frozen=True)
-class BudgetResult:
+@dataclasses.dataclass(frozen=True, repr=False)
+class BudgetResult(NotebookDisplay):
     """A finished error budget."""
 
     study_name: str
@@ -64,6 +65,25 @@ class BudgetResult:
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
     confidence: float = 0.95
+
+    def summary(self) -> str:
+        """One line: study, recipes and the budget's sentence."""
+        return f"{self.study_name}: recipes {', '.join(self.recipes)}; {self.sentence}"
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per noise configuration and recipe: error and std (mHa)."""
+        return [
+            {
+                "configuration": r.label,
+                "kind": r.kind,
+                "channel": r.channel,
+                "recipe": name,
+                "error_mha": float(r.errors_mha[k]),
+                "std_mha": float(r.stds_mha[k]),
+            }
+            for r in self.rows
+            for k, name in enumerate(self.recipes)
+        ]
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:

@@ -32,6 +32,7 @@ from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.cache import CachingRunner
 from noiselab.study.context import build_context
+from noiselab.study.display import NotebookDisplay
 from noiselab.study.executor import make_executor
 from noiselab.study.knobs import Knob, get_knob
 from noiselab.study.results import RunStats, trajectory_std_of
@@ -140,8 +141,8 @@ class RecipeCrossing:
     evaluations: int = 0  # new evaluations of the recipe the bisections took
 
 
-@dataclasses.dataclass(frozen=True)
-class SweepResult:
+@dataclasses.dataclass(frozen=True, repr=False)
+class SweepResult(NotebookDisplay):
     """A finished sweep."""
 
     study_name: str
@@ -164,6 +165,31 @@ class SweepResult:
     @property
     def knob_spec(self) -> Knob:
         return get_knob(self.knob)
+
+    def summary(self) -> str:
+        """One line: study, knob and range, recipes, crossings found."""
+        k = self.knob_spec
+        found = sum(len(c.crossings) for c in self.crossings)
+        return (
+            f"{self.study_name}: {k.phrase.removeprefix('the ')} from {k.show(self.values[0])} to "
+            f"{k.show(self.values[-1])} ({len(self.points)} points), recipes "
+            f"{', '.join(self.recipes)}; {found} crossing(s) of ±{self.target_mha:.4g} mHa"
+        )
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per point and recipe: knob value (base units), error and std (mHa), P."""
+        return [
+            {
+                self.knob.replace("-", "_"): p.value,
+                "recipe": e.recipe,
+                "error_mha": float(e.error_mha),
+                "std_mha": float(e.std_mha),
+                "p_within_target": float(e.p_within_target),
+                "reaches_target": bool(e.reaches_target),
+            }
+            for p in self.points
+            for e in p.entries
+        ]
 
     @property
     def crossing_method(self) -> str:
