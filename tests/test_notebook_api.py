@@ -84,3 +84,26 @@ def test_figure_functions_return_a_figure_and_accept_ax() -> None:
              F.sweep_figure(_hand_sweep()), F.extrapolation_figure(_zoom_data())]  # fmt: skip
     assert all(isinstance(f, Figure) for f in alone)
     assert dataclasses.is_dataclass(_hand_budget())
+
+
+def test_tune_prints_a_recipe_ready_to_paste() -> None:
+    import yaml
+
+    from noiselab.mitigate.recipe import parse_recipe
+
+    passes = tuple(
+        parse_recipe(
+            [
+                {"pass": "readout", "method": "per_qubit_inverse"},
+                {"pass": "postselect", "mode": "verify"},
+                {"pass": "extrapolate", "scales": [1, 2.5, 5], "fit": "linear"},
+            ]
+        ).spec()
+    )
+    entry = SimpleNamespace(rank=1, label="readout+verify+stretch", passes=passes)
+    tune = SimpleNamespace(entries=(entry, SimpleNamespace(rank=2, label="raw", passes=())))
+    for rank in (1, 2):
+        text = TuneResult.recipe_yaml(tune, rank)
+        # pasted under "recipes:" it is read back (PyYAML) and validated to the same passes
+        loaded = yaml.safe_load("recipes:\n" + text)["recipes"]["tuned"]
+        assert tuple(parse_recipe(loaded).spec()) == (passes if rank == 1 else ())

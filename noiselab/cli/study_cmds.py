@@ -524,6 +524,8 @@ def tune_cmd(
             "trajectory_std_mha), apart from the shot-noise standard error."
         )
     typer.echo(result.verdict)
+    typer.echo("The first-ranked setting as a recipe to paste under the study's recipes:")
+    typer.echo(result.recipe_yaml())
     typer.echo(result.caution)
     s = result.stats
     if s.reused:

@@ -674,6 +674,17 @@ def _score_cells(r: Any) -> tuple[str, ...]:
     )
 
 
+def _yaml_value(value: Any) -> str:
+    """A recipe option in YAML flow style (numbers as written: 1, 2.5; lists in brackets)."""
+    if isinstance(value, bool):
+        return str(value).lower()
+    if isinstance(value, float):
+        return f"{value:g}"
+    if isinstance(value, list | tuple):
+        return "[" + ", ".join(_yaml_value(v) for v in value) + "]"
+    return str(value)
+
+
 @dataclasses.dataclass(frozen=True)
 class TuneEntry:
     """One mitigation setting of a tune grid and its result."""
@@ -708,6 +719,22 @@ class TuneResult(NotebookDisplay):
     @property
     def best(self) -> TuneEntry:
         return self.entries[0]
+
+    def recipe_yaml(self, rank: int = 1, name: str = "tuned") -> str:
+        """The setting of ``rank`` as a ``recipes:`` entry of a study file, ready to paste
+        (options left at null are left out)."""
+        entry = self.entries[rank - 1]
+        note = f"# tune rank {entry.rank}: {entry.label}"
+        if not entry.passes:
+            return f"  {name}: []  {note}"
+        lines = [f"  {name}:  {note}"]
+        for spec in entry.passes:
+            parts = [f"pass: {spec['pass']}"]
+            parts += [
+                f"{k}: {_yaml_value(v)}" for k, v in spec.items() if k != "pass" and v is not None
+            ]
+            lines.append("    - {" + ", ".join(parts) + "}")
+        return "\n".join(lines)
 
     def summary(self) -> str:
         """One line: study, settings, best setting and its bias."""
