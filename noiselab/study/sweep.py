@@ -99,6 +99,15 @@ def knob_factor(knob: Knob, value: float, reference: float) -> float:
 # ---------------------------------------------------------------- records
 
 
+#: What the coherence knob does to the gate errors (said in its output).
+COHERENCE_NOTE = (
+    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
+    "idle relaxation and the split of each gate's error between relaxation and depolarizing "
+    "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
+    "errors too, sweep one-qubit-error or two-qubit-error alongside"
+)
+
+
 @dataclasses.dataclass(frozen=True)
 class SweepEntry:
     """One recipe at one sweep point. Energies in Ha, errors in mHa (against the exact energy)."""
@@ -203,14 +212,17 @@ class SweepResult(NotebookDisplay):
     def notes(self) -> tuple[str, ...]:
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
         knob = self.knob_spec
+        out: list[str] = []
+        if knob.name == "coherence-us":
+            out.append(COHERENCE_NOTE)
         low = [p.value for p in self.points if p.floored]
-        if not low:
-            return ()
-        return (
-            f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what T1/T2 "
-            "alone cause during the gate: the noise model uses relaxation alone there, so the "
-            "error no longer falls with the knob (use coherence-us to lower that floor)",
-        )
+        if low:
+            out.append(
+                f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what "
+                "T1/T2 alone cause during the gate: the noise model uses relaxation alone there, "
+                "so the error no longer falls with the knob (use coherence-us to lower that floor)"
+            )
+        return tuple(out)
 
     @property
     def values(self) -> tuple[float, ...]:
