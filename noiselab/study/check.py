@@ -15,6 +15,7 @@ from typing import Any
 
 from noiselab.chem.molecule import molecule_sizes
 from noiselab.common.memory import format_bytes, memory_budget
+from noiselab.device.compile import select_patch
 from noiselab.emulate.memory import estimate_memory_bytes
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.study.preflight import emulation_method, estimate_steps
@@ -60,10 +61,11 @@ def describe_study(study: Study) -> StudyOutline:
         else f"{m.active_space.electrons} electrons in {m.active_space.orbitals} orbitals"
     )
     profile = study.profile
+    chosen = select_patch(profile, study.num_qubits, study.layout)
     patch = (
-        f"layout {list(study.layout)}"
+        f"{list(chosen)} (the study's layout)"
         if study.layout is not None
-        else "chosen when compiled (the best connected patch)"
+        else f"{list(chosen)} (the cheapest connected patch, as assess picks it)"
     )
     ctx = SimpleNamespace(amplification_offset=study.amplification_offset)
     variants: set[Any] = set()
