@@ -20,6 +20,14 @@ _LAZY: dict[str, str] = {
     "budget": "noiselab.study.budget:budget",
     "load_study": "noiselab.study.spec:load_study",
     "load_profile": "noiselab.device.profile:load_profile",
+    "study_keys": "noiselab.study.keys:study_keys",
+    "profile_keys": "noiselab.study.keys:profile_keys",
+    "describe_study": "noiselab.study.check:describe_study",
+    "bias_figure": "noiselab.report.figures:bias_figure",
+    "extrapolation_figure": "noiselab.report.figures:extrapolation_figure",
+    "sweep_figure": "noiselab.report.figures:sweep_figure",
+    "budget_figure": "noiselab.report.figures:budget_figure",
+    "write_report": "noiselab.report.proposal:write_report",
 }
 
 

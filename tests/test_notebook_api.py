@@ -107,3 +107,12 @@ def test_tune_prints_a_recipe_ready_to_paste() -> None:
         # pasted under "recipes:" it is read back (PyYAML) and validated to the same passes
         loaded = yaml.safe_load("recipes:\n" + text)["recipes"]["tuned"]
         assert tuple(parse_recipe(loaded).spec()) == (passes if rank == 1 else ())
+
+
+def test_new_names_are_importable_from_noiselab() -> None:
+    import noiselab
+
+    names = ("study_keys", "profile_keys", "describe_study", "bias_figure",
+             "extrapolation_figure", "sweep_figure", "budget_figure", "write_report")  # fmt: skip
+    for name in names:
+        assert callable(getattr(noiselab, name)), name
