@@ -359,9 +359,7 @@ def zoom_limits(data: ExtrapolationFigureData) -> tuple[tuple[float, float], tup
     return (lo, hi), tuple(outside)
 
 
-def extrapolation_figure(
-    result: AssessResult | ExtrapolationFigureData, ax: Any = None
-) -> Figure:
+def extrapolation_figure(result: AssessResult | ExtrapolationFigureData, ax: Any = None) -> Figure:
     """Energy error against noise scale for every extrapolating recipe; the fitted curves the
     extrapolation pass reported, down to scale 0. The legend (below) names each recipe's fit,
     amplifier, scales and shots.
@@ -479,11 +477,16 @@ def bias_figure(result: AssessResult | BiasFigureData, ax: Any = None) -> Figure
         )
     many = len(bars) > 4
     ax.set_xticks(xs, names, rotation=20 if many else 0, ha="right" if many else "center")
-    if _wide_range([*(abs(v) for v in biases), target]):
+    symlog = _wide_range([*(abs(v) for v in biases), target])
+    if symlog:
         ax.set_yscale("symlog", linthresh=target, linscale=1.0)
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
     ax.margins(y=0.15)
     ax.set_xlabel("mitigation recipe")
-    ax.set_ylabel("energy − exact energy (mHa)")
+    ax.set_ylabel(
+        "energy − exact energy (mHa)"
+        + ("\nlinear within ±target, logarithmic beyond" if symlog else "")
+    )
     handles = [
         Patch(color=TARGET_COLOUR, alpha=0.15, label=target_words(target)),
         *(
