@@ -131,3 +131,18 @@ def test_demo_report_from_the_command_line(tmp_path: Path) -> None:
     pngs = sorted(out.glob("*.png"))
     assert {p.name for p in pngs} == {"assess-bias.png", "assess-extrapolation.png"}
     assert len(checker.images) == len(pngs)
+
+
+@pytest.mark.parametrize("command", ["assess", "sweep", "budget"])
+def test_unusable_report_folder_is_refused_before_any_work(
+    command: str, tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    from noiselab.cli.app import main
+
+    blocker = tmp_path / "a-file"
+    blocker.write_text("x", encoding="utf-8")
+    with pytest.raises(SystemExit) as info:
+        main([command, str(DEMO), "--no-cache", "--quiet", "--report", str(blocker)])
+    err = capsys.readouterr().err.strip()
+    assert info.value.code == 2 and len(err.splitlines()) == 1
+    assert f"--report: {blocker} is a file" in err and "a folder path" in err

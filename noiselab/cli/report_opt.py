@@ -27,9 +27,13 @@ def check_report_dir(report: str | None, kind: str) -> Path | None:
     if report is None:
         return None
     from noiselab.common.atomic import check_output_dir
+    from noiselab.common.errors import InputError
     from noiselab.report.proposal import report_files
 
-    return check_output_dir(report, report_files(kind))
+    try:
+        return check_output_dir(report, report_files(kind))
+    except InputError as exc:  # the folder check speaks of --out; this folder is --report's
+        raise InputError("--report" + exc.message.removeprefix("--out")) from None
 
 
 def job_provenance(study: Path, seed: Any) -> dict[str, Any]:

@@ -111,8 +111,10 @@ ASSESS_FILES = (
     "assess.csv",
     "assess-bias.png",
     "assess-bias.svg",
+    "assess-bias.pdf",
     "assess-extrapolation.png",
     "assess-extrapolation.svg",
+    "assess-extrapolation.pdf",
 )
 TUNE_FILES = ("tune.csv", "tune.json")
 
