@@ -10,6 +10,8 @@ Benchmarks (targets from the project's "Speed and scale" issue):
   memory    (peak RSS of a 12-qubit assess - interpreter baseline) / (16 x 4^12 bytes)     <= 3
   scaling   assess wall time against qubit count (4..12), with a figure (PNG + SVG)
   drift     assess --drift 32 of the demo / a plain assess of the demo (both cold)         <= 6
+  scan      a 10-point H2 scan / one assess of the demo point (both cold)                  <= 12
+  scan_workers  the 10-point scan with 1 worker / with 2 process workers                   >= 1.6
 
 Results are merged into benchmarks/results/<UTC date>.json (atomic rewrite) and printed.
 ``--quick`` uses smaller problems (for checking the scripts, not for quoting). Not part of the
@@ -43,6 +45,7 @@ from common import (  # benchmarks/ is a folder of scripts, not a package
     rerun_bare,
     results_path,
 )
+from scan_bench import bench_scan_cost, bench_scan_workers
 
 Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
 BIAS_TOLERANCE_MHA = 0.1
@@ -292,6 +295,7 @@ def bench_grid(quick: bool) -> dict[str, Any]:
         amplification=["none", "stretch"],
         scales=[[float(s) for s in sc] for sc in GRID_SCALES],
         fit=["linear", "richardson"],
+        family=["none"],  # the stack only (the families' circuits are other benchmarks)
     )
     t = time.perf_counter()
     tuned = tune(study, grid=grid, cache=False)
@@ -586,6 +590,8 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "scaling": bench_scaling,
     "drift": bench_drift,
     "refusal": bench_refusal,
+    "scan": bench_scan_cost,
+    "scan_workers": bench_scan_workers,
 }
 
 

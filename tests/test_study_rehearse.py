@@ -136,9 +136,14 @@ def test_rehearse_separates_errors_accounts_shots_and_more_shots_narrow_the_spre
             parts = r.ansatz_error_mha + r.optimizer_error_mha + r.noise_bias_mha
             assert parts == pytest.approx(r.final_error_mha, abs=1e-9)
             assert not np.allclose(r.final_parameters, ctx.optimum.parameters, atol=1e-6)
-            # device time: shots x (schedule + readout + repetition delay) + circuit overheads
+            # device time: measured shots x (schedule + readout + repetition delay), calibration
+            # shots x (one 1q gate + readout + delay), 0.05 s per circuit run (the stated rule)
+            cal = (r.evaluations + 1) * 8000
+            prof = study.profile
+            delay_s = (prof.repetition_delay_us or 250.0) * 1e-6
+            cal_s = (prof.durations.single_qubit_ns + prof.durations.readout_ns) * 1e-9 + delay_s
             assert r.device_hours * 3600 == pytest.approx(
-                r.total_shots * res.seconds_per_shot + r.circuit_runs * 0.05
+                (r.total_shots - cal) * res.seconds_per_shot + cal * cal_s + r.circuit_runs * 0.05
             )
     spread = [np.std([r.final_error_mha for r in res.repeats]) for res in (low, high)]
     assert spread[1] < spread[0]

@@ -22,6 +22,7 @@ from noiselab.cli.study_cmds import (
     _progress,
     echo_written,
 )
+from noiselab.common.errors import InputError
 
 _HELP = (
     "Rehearse the variational loop on the emulated device: every energy evaluation is drawn "
@@ -67,6 +68,13 @@ def rehearse_cmd(
     seed: Annotated[
         int | None, typer.Option("--seed", help="Seed of the first run.", show_default=False)
     ] = None,
+    grid: Annotated[
+        bool,
+        typer.Option("--grid", help="Rehearse every setting of the study's rehearse.grid "
+                     "(shots per evaluation x optimizer x in-loop recipe) and rank them by "
+                     "P(final within target), then device hours; writes rehearse_grid.json "
+                     "and .csv."),
+    ] = False,
     cache: CacheOpt = None,
     no_cache: NoCacheOpt = False,
     quiet: QuietOpt = False,
@@ -77,6 +85,11 @@ def rehearse_cmd(
     from noiselab.study.rehearse import rehearse
 
     store = _open_cache(cache, no_cache)
+    if grid:
+        _grid(study, out, store, quiet or json_out, json_out, optimizer, shots_per_evaluation,
+              dict(iterations=iterations, max_shots=max_shots, repeats=repeats, start=start,
+                   seed=seed))  # fmt: skip
+        return
     with _progress(quiet or json_out) as hook:
         result = rehearse(
             study, cache=store, progress=hook, optimizer=optimizer, iterations=iterations,
@@ -101,6 +114,32 @@ def rehearse_cmd(
         f"{result.study}: rehearsed loop ({result.loop_recipe} in the loop, "
         f"{result.final_recipe} final); ansatz error {ansatz:+.3g} mHa",
         headers, rows,
+    )  # fmt: skip
+    typer.echo(result.verdict)
+    echo_written(written)
+
+
+def _grid(
+    study: Path, out: Path | None, store: object, quiet: bool, json_out: bool,
+    optimizer: str | None, shots: int | None, overrides: dict[str, object],
+) -> None:  # fmt: skip
+    """``rehearse --grid``: every setting of the study's grid, ranked."""
+    from noiselab.study.rehearse_grid import rehearse_grid, write_grid_data
+
+    for flag, value in (("--optimizer", optimizer), ("--shots-per-evaluation", shots)):
+        if value is not None:
+            raise InputError(f"{flag}: not with --grid; allowed: the axes of rehearse.grid")
+    with _progress(quiet) as hook:
+        result = rehearse_grid(study, cache=store, progress=hook, **overrides)
+    folder = out if out is not None else Path(f"rehearse-{result.study}")
+    written = write_grid_data(result, folder)
+    if json_out:
+        _print_json(result.to_json())
+        return
+    _print_table(
+        f"{result.study}: loop settings ranked ({result.iterations} iterations, "
+        f"{result.reused_evaluations} of {result.evaluations} in-loop evaluations shared)",
+        result.table_headers(), result.table_rows(),
     )  # fmt: skip
     typer.echo(result.verdict)
     echo_written(written)

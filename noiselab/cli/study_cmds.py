@@ -452,6 +452,15 @@ def tune_cmd(
     fit: Annotated[
         ListOpt, typer.Option("--fit", help="Extrapolation fit(s) to try.", show_default=False)
     ] = None,
+    family: Annotated[
+        ListOpt,
+        typer.Option(
+            "--family",
+            help="Mitigation family(ies) to try besides the stack: none, error_cancellation, "
+            "distillation.",
+            show_default=False,
+        ),
+    ] = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     out: Annotated[
         str | None,
@@ -486,6 +495,7 @@ def tune_cmd(
         amplification=amplification or None,
         scales=_parse_scale_sets(scales),
         fit=fit or None,
+        family=family or None,
     )
     result = _run_job(
         tune,
@@ -585,8 +595,9 @@ _ASSESS_HELP = (
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
     "The grid is readout method x post-selection mode x amplification method x scale set x "
-    "fit, from the options here, else the study's tune: section, else a built-in grid of "
-    "more than 50 settings. Settings that need the same circuits share their simulations."
+    "fit, plus the families error cancellation and distillation, from the options here, else "
+    "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
+    "need the same circuits share their simulations."
 )
 
 

@@ -291,6 +291,60 @@ def emulate_circuit_bases(
     )
 
 
+def emulate_flagged_bases(
+    compiled: Any,
+    profile: Any,
+    circuit: Any,
+    bases: Sequence[str],
+    *,
+    noise_model: Any = None,
+) -> BasisDistributions:
+    """Like :func:`emulate_bases` for ``circuit``: ``compiled``'s circuit plus one last circuit
+    qubit, a classical *flag* (e.g. the sign of a sampled correction) that instructions only flip
+    and that is read without error. Density matrix only.
+
+    Rows have length ``2**(n+1)``: entry ``k + s 2**n`` is the probability of outcome k of the
+    logical qubits (noisy basis layer and readout as in :func:`emulate_bases`) with flag s.
+    """
+    check_circuit(circuit)
+    k = compiled.circuit.num_qubits
+    if circuit.num_qubits != k + 1:
+        raise ValueError("emulate_flagged_bases: the circuit needs exactly one qubit more")
+    patch = tuple(compiled.patch)
+    qubits = [int(c) for c in compiled.logical_to_circuit]
+    n = len(qubits)
+    bases_t = validate_bases(bases, n)
+    check_memory(k + 1, "density_matrix")
+    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
+    mats, terms = logical_readout(profile, patch, qubits)
+    t0 = time.perf_counter()
+    calls0 = engine_call_count()
+    rho = simulate_density_matrix(circuit, nm)
+    cache = EffectCache(nm, k, layer_spec_for(profile, k), noisy=True)
+    effects, keys = _basis_tables(bases_t, qubits, cache)
+    dim = 2**k
+    ideal_parts = []
+    for s in (0, 1):  # the flag is the most significant circuit qubit
+        block = np.array(rho[s * dim : (s + 1) * dim, s * dim : (s + 1) * dim])
+        weight = float(np.real(np.trace(block)))
+        if weight <= 1e-300:
+            ideal_parts.append(np.zeros((len(bases_t), 2**n)))
+            continue
+        dist = dm_distributions([block / weight], qubits, effects, keys, threads=1)
+        ideal_parts.append(weight * dist)
+    ideal = np.concatenate(ideal_parts, axis=1)
+    probs = np.concatenate([apply_readout(p, mats, terms) for p in ideal_parts], axis=1)
+    return BasisDistributions(
+        bases=bases_t,
+        probs_ideal=ideal,
+        probs=probs,
+        num_qubits=n,
+        engine_seconds=time.perf_counter() - t0,
+        engine_calls=engine_call_count() - calls0,
+        method="density_matrix",
+    )
+
+
 def emulate_bases(
     compiled: Any,
     profile: Any,

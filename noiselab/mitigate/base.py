@@ -90,13 +90,18 @@ class Workspace:
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
     under the variant's readout, registering them as sources with their shot counts. ``rng`` is
     set on sampled evaluations only: a pass draws its own random parts from it (those no shot
-    count shrinks, reported as :attr:`Combined.fixed_variance`).
+    count shrinks, reported as :attr:`Combined.fixed_variance`). ``estimator``: the recipe's
+    estimator pass (None: the plan estimate), for a combination pass that needs the noiseless
+    value of the same estimator (``clifford_regression``'s training energies); ``corrections``:
+    the recipe's correction passes.
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
     rng: np.random.Generator | None = None
+    estimator: MitigationPass | None = None
+    corrections: tuple[MitigationPass, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -133,6 +138,10 @@ class MitigationPass(ABC):
     name: ClassVar[str]
     stage: ClassVar[int]
     Options: ClassVar[type[PassOptions]]
+    #: passes this one cannot share a recipe with: their name -> why (one line)
+    incompatible: ClassVar[Mapping[str, str]] = {}
+    #: passes that, when in the recipe, must come after this one
+    runs_before: ClassVar[tuple[str, ...]] = ()
 
     def __init__(self, options: PassOptions) -> None:
         self.options = options
@@ -156,6 +165,11 @@ class MitigationPass(ABC):
 
     def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
+
+    def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
+        """Circuit transforms a correction or estimator pass adds to every circuit variant of its
+        recipe (``noiselab.device.transforms.CircuitTransform``; default none)."""
+        return ()
 
     # STAGE_COMBINE
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:

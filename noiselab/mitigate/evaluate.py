@@ -212,9 +212,16 @@ def evaluate(
 ) -> Evaluation:
     """The recipe ``passes`` on ``measured`` (variant -> basis -> distribution) and the
     calibration read through ``cal`` (which, with an rng, also drives the passes' own draws)."""
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal, rng=cal.rng)
     corrects = [p for p in passes if p.stage == STAGE_CORRECT]
     estimator = next((p for p in passes if p.stage == STAGE_ESTIMATE), None)
+    ws = Workspace(
+        ctx=ctx,
+        measured=measured,
+        calibration=cal,
+        rng=cal.rng,
+        estimator=estimator,
+        corrections=tuple(corrects),
+    )
     combiner = next((p for p in passes if p.stage == STAGE_COMBINE), None)
     stage_keys = tuple(p.cache_key() for p in [*corrects, *([estimator] if estimator else [])])
     per_variant: dict[CircuitVariant, Estimate] = {}

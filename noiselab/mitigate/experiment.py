@@ -215,6 +215,11 @@ def make_runner(ctx: ExperimentContext) -> Runner:
     def runner(variant: CircuitVariant) -> Any:
         if variant not in memo:
             compiled, profile, _ = variant_inputs(ctx, variant)
+            # a transform that replaces the emulation (e.g. a sign-flagged or two-copy circuit)
+            own = next((t for t in variant.transforms if hasattr(t, "emulate_variant")), None)
+            if own is not None:
+                memo[variant] = own.emulate_variant(ctx, compiled, profile)
+                return memo[variant]
             memo[variant] = emulate_bases(
                 compiled,
                 profile,

@@ -75,7 +75,11 @@ class ParsedRecipe:
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
         """The circuit variants to run: the combination pass's, or the device as it is."""
         combiner = self.of_stage(STAGE_COMBINE)
-        return combiner.variants(ctx) if combiner else (CircuitVariant(),)
+        base = combiner.variants(ctx) if combiner else (CircuitVariant(),)
+        extra = tuple(t for p in self.passes if p.stage != STAGE_COMBINE for t in p.transforms(ctx))
+        if not extra:
+            return base
+        return tuple(CircuitVariant(v.transforms + extra) for v in base)
 
     def bases(self, ctx: ExperimentContext) -> tuple[str, ...]:
         """The measurement bases read: the estimator pass's, or the plan's."""
@@ -129,9 +133,29 @@ def parse_recipe(
         last_stage = p.stage
         seen.add(p.name)
         passes.append(p)
+    _check_pairs(passes, where)
     if not name:
         name = "+".join(p.describe() for p in passes) or "raw"
     return ParsedRecipe(name=name, passes=tuple(passes))
+
+
+def _check_pairs(passes: Sequence[MitigationPass], where: str) -> None:
+    """Refuse passes that declare each other incompatible, or that come in the wrong order."""
+    names = [p.name for p in passes]
+    for i, p in enumerate(passes):
+        for j, q in enumerate(passes):
+            reason = p.incompatible.get(q.name) or q.incompatible.get(p.name)
+            if reason and i < j:
+                raise InputError(
+                    f"{where}[{j}].pass: {q.name!r} cannot share a recipe with {p.name!r} "
+                    f"({reason}); allowed: one of them"
+                )
+        for later in p.runs_before:
+            if later in names[:i]:
+                raise InputError(
+                    f"{where}[{i}].pass: {p.name!r} must come before {later!r}; allowed order: "
+                    f"{p.name}, {later}"
+                )
 
 
 # ---- the recipe as a chain of steps ------------------------------------------------------------

@@ -99,7 +99,7 @@ def assess_target(
     if p_at(1.0) >= confidence:
         n_needed = 1
     elif p_at(MAX_SHOTS) < confidence:
-        return TargetAssessment(p_budget, None, "bias", "needs more than 1e15 shots", hit)
+        return TargetAssessment(p_budget, None, "shots", "needs more than 1e15 shots", hit)
     else:
         root = brentq(
             lambda x: p_at(math.exp(x)) - confidence, 0.0, math.log(MAX_SHOTS), xtol=1e-10

@@ -29,6 +29,11 @@ from noiselab.study.context import (
     recipes_verify,
     with_verification,
 )
+from noiselab.study.device_time import (
+    DEFAULT_CIRCUIT_OVERHEAD_S,
+    device_time_inputs,
+    recipes_device_hours,
+)
 from noiselab.study.drift import MAX_DRAWS, assess_drift, drift_sentence
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study, load_study
@@ -219,6 +224,7 @@ def assess(
             assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
         )
     best = best_of(results)
+    overhead_s = circuit_overhead_s(study)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
@@ -242,9 +248,18 @@ def assess(
         bias_spread_mha=spread.spread_mha,
         drift={} if days is None else days.stats,
         drift_rel_std={} if days is None else days.rel_std,
+        device_hours=recipes_device_hours(ctx.experiment, study.recipes, results, overhead_s),
+        device_time=device_time_inputs(study.profile, overhead_s),
     )
     save_job_result(store, key, result)
     return result
+
+
+def circuit_overhead_s(study: Study) -> float:
+    """Seconds per circuit change: the study's ``rehearse.circuit_overhead_s``, else the
+    common-practice default (``noiselab.study.device_time``)."""
+    section = getattr(study, "rehearse", None)
+    return float(section.circuit_overhead_s) if section is not None else DEFAULT_CIRCUIT_OVERHEAD_S
 
 
 def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:

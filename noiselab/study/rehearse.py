@@ -11,9 +11,9 @@ ansatz error + optimizer error under noise + noise bias (they add up exactly), w
 noise apart.
 
 Shots are counted exactly: every evaluation's measured shots plus the readout-calibration shots
-it draws (the sampled path recalibrates per evaluation), plus the final estimate's. Device time
-per shot: the compiled circuit's scheduled duration + readout + the profile's
-``repetition_delay_us``; each circuit run adds ``circuit_overhead_s``.
+it draws (the sampled path recalibrates per evaluation), plus the final estimate's. Device time:
+``noiselab.study.device_time`` (the rule ``assess`` uses too), per evaluation and for the final
+estimate, with the rehearse section's ``circuit_overhead_s`` per circuit run.
 """
 
 from __future__ import annotations
@@ -52,7 +52,13 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
-from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
+from noiselab.study.device_time import (
+    DeviceTime,
+    recipe_device_time,
+    seconds_per_shot,
+    variant_durations_ns,
+)
+from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.spec import Study, load_study
 
 ProgressHook = Callable[[str, int, int], None]
@@ -213,12 +219,17 @@ class LoopEvaluator:
         calibrator: Any,
         max_shots: int | None = None,
         analytic: bool = False,
+        clock: Callable[[Any], DeviceTime] | None = None,
+        shared: Any = None,
     ) -> None:
         self.ctx, self.parameterized, self.passes = ctx, parameterized, list(passes)
         self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
         self.max_shots, self.analytic = max_shots, analytic
         self.evaluation_shots: list[int] = []
         self.circuit_runs = 0
+        self.clock = clock  # device time of one recipe result (noiselab.study.device_time)
+        self.device_time = DeviceTime()
+        self.shared = shared
         self.last_energy_ha = math.nan
 
     @property
@@ -229,10 +240,11 @@ class LoopEvaluator:
         """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
         bound = self.parameterized.bind(np.asarray(x, dtype=float))
         exp = replace_experiment(self.ctx.experiment, compiled=bound, shots=int(shots))
+        runner = make_runner(exp) if self.shared is None else self.shared.runner(exp, x)
         return run_recipe(
             self.passes,
             exp,
-            make_runner(exp),
+            runner,
             sampled=not self.analytic,
             rng=self.rng,
             calibrator=self.calibrator,
@@ -244,6 +256,8 @@ class LoopEvaluator:
         res = self.evaluate(x, self.shots)
         self.evaluation_shots.append(int(res.shots_total) + calibration_shots(res))
         self.circuit_runs += int(res.n_circuits)
+        if self.clock is not None:
+            self.device_time = self.device_time + self.clock(res)
         self.last_energy_ha = float(res.energy_ha)
         return float(res.energy_ha)
 
@@ -305,6 +319,7 @@ def rehearse(
     context: StudyContext | None = None,
     progress: ProgressHook | None = None,
     analytic: bool = False,
+    shared: Any = None,
     **overrides: Any,
 ) -> RehearseResult:
     """Rehearse the variational loop of a study on its emulated device, ``repeats`` times.
@@ -312,6 +327,8 @@ def rehearse(
     ``overrides``: keys of the ``rehearse:`` section (``optimizer``, ``iterations``,
     ``shots_per_evaluation``, ``repeats``, ``start``, ``max_shots``, ``seed``, ...).
     ``analytic``: test-only; in-loop evaluations return the analytic expectation.
+    ``shared``: a ``noiselab.study.rehearse_grid.SharedRuns``, emulations shared with other
+    rehearsals of the same context (the grid).
     """
     from noiselab.study.assess import _default_cache
 
@@ -357,10 +374,14 @@ def rehearse(
         return float(program.expectation(hmat, np.asarray(x, dtype=float)))
 
     profile = study.profile
-    delay_us = profile.repetition_delay_us or DEFAULT_REPETITION_DELAY_US
-    seconds_per_shot = (
-        float(parameterized.duration_ns) + float(profile.durations.readout_ns)
-    ) * 1e-9 + delay_us * 1e-6
+    # scheduled durations do not depend on the bound values: one bound context gives them all
+    durations = variant_durations_ns(
+        replace_experiment(ctx.experiment, compiled=parameterized.bind(optimum)),
+        [loop_passes, final_passes],
+    )
+
+    def clock(res: Any) -> DeviceTime:
+        return recipe_device_time(res, durations, profile, settings.circuit_overhead_s)
 
     repeats = []
     for r in range(settings.repeats):
@@ -371,7 +392,8 @@ def rehearse(
         x0 = start_parameters(settings, optimum, rng)
         evaluator = LoopEvaluator(
             ctx, parameterized, loop_passes, settings.shots_per_evaluation, rng,
-            calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic,
+            calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic, clock=clock,
+            shared=shared,
         )  # fmt: skip
         trace: list[TracePoint] = []
 
@@ -393,8 +415,7 @@ def rehearse(
                 x0,
                 trace,
                 noiseless,
-                seconds_per_shot,
-                settings.circuit_overhead_s,
+                clock,
             )
         )
     if progress is not None:
@@ -411,7 +432,7 @@ def rehearse(
         ansatz_energy_ha=ctx.ansatz_energy_ha,
         target_mha=float(study.target_mha),
         confidence=float(study.confidence),
-        seconds_per_shot=seconds_per_shot,
+        seconds_per_shot=seconds_per_shot(parameterized.duration_ns, profile),
         repeats=tuple(repeats),
         verdict="",
     )
@@ -429,8 +450,7 @@ def final_estimate(
     x0: np.ndarray,
     trace: Sequence[TracePoint],
     noiseless: Callable[[np.ndarray], float],
-    seconds_per_shot: float,
-    circuit_overhead_s: float,
+    clock: Callable[[Any], DeviceTime],
 ) -> RepeatResult:
     """The final parameters assessed analytically with the final recipe at the study's shots."""
     x = np.asarray(outcome.parameters, dtype=float)
@@ -443,7 +463,7 @@ def final_estimate(
     final_error = (float(res.energy_ha) - exact) * HA_TO_MHA
     loop_shots = evaluator.shots_spent
     runs = evaluator.circuit_runs + int(res.n_circuits)
-    hours = ((loop_shots + final_shots) * seconds_per_shot + runs * circuit_overhead_s) / 3600.0
+    hours = (evaluator.device_time + clock(res)).hours
     return RepeatResult(
         seed=seed,
         start_parameters=tuple(float(v) for v in x0),

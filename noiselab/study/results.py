@@ -262,9 +262,24 @@ def amplification_line(result: Any) -> str | None:
     )
 
 
+def training_line(result: Any) -> str | None:
+    """One line stating what a Clifford-regression result assumes of its training circuits
+    (None for other results)."""
+    details = getattr(result, "details", None) or {}
+    cr = details.get("clifford_regression") if isinstance(details, Mapping) else None
+    if not isinstance(cr, Mapping) or cr.get("classical"):
+        return None
+    choice = details.get("std_training_choice_mha")
+    cost = f"; the choice of rotations adds {float(choice):.3g} mHa (1 std)" if choice else ""
+    return (
+        f"Training assumed: {cr.get('assumption')} ({cr.get('training_circuits')} training "
+        f"circuits, {format_count(cr.get('training_shots'))} of the shots{cost})."
+    )
+
+
 def _with_amplification(text: str, result: Any) -> str:
-    line = amplification_line(result)
-    return text if line is None else f"{text} {line}"
+    lines = [line for line in (amplification_line(result), training_line(result)) if line]
+    return " ".join([text, *lines])
 
 
 def format_count(n: int | float | None) -> str:
@@ -357,6 +372,13 @@ TRAJECTORY_HEADER = "trajectory error (mHa)"
 SPREAD_HEADER = "compile spread (mHa)"
 #: Assess column with --drift: drawn device days on which the recipe reaches the target.
 DRIFT_HEADER = "drift days reaching"
+#: Assess and compare column: device time of the estimate at the budget.
+DEVICE_HOURS_HEADER = "device hours (h)"
+
+
+def format_hours(hours: float | None) -> str:
+    """Device hours for a table cell (3 significant digits; "-" when unknown)."""
+    return "-" if hours is None else f"{hours:.3g}"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -463,6 +485,10 @@ class AssessResult(NotebookDisplay):
     #: per recipe, noiselab.study.drift.DriftStats over drawn device days (empty: no --drift)
     drift: dict[str, Any] = dataclasses.field(default_factory=dict)
     drift_rel_std: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: per recipe, device hours of its estimate at the budget (noiselab.study.device_time)
+    device_hours: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: the device-time rule's inputs: repetition_delay_us, readout_ns, circuit_overhead_s
+    device_time: dict[str, float] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -486,10 +512,13 @@ class AssessResult(NotebookDisplay):
                     "energy": "Ha",
                     "bias, std, trajectory_std": "mHa",
                     "shots": "total per estimate",
+                    "device_hours": "hours of device time for the estimate at the budget",
                 },
+                "device_time": self.device_time,
                 "recipes": {
                     name: {
                         **recipe_json(r, self.passes.get(name)),
+                        "device_hours": self.device_hours.get(name),
                         "bias_spread_mha": self.bias_spread_mha.get(name),
                         "drift": self.drift[name].to_json() if name in self.drift else None,
                     }
@@ -519,6 +548,8 @@ class AssessResult(NotebookDisplay):
                 "bias_spread_mha": self.bias_spread_mha,
                 "drift": {n: dataclasses.asdict(d) for n, d in self.drift.items()},
                 "drift_rel_std": self.drift_rel_std,
+                "device_hours": self.device_hours,
+                "device_time": self.device_time,
             }
         )
 
@@ -534,6 +565,8 @@ class AssessResult(NotebookDisplay):
             bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
             drift={n: _drift_stats(d) for n, d in (rec.get("drift") or {}).items()},
             drift_rel_std=dict(rec.get("drift_rel_std") or {}),
+            device_hours=dict(rec["device_hours"]),  # older records lack it: recomputed
+            device_time=dict(rec["device_time"]),
         )
 
     @property
@@ -577,6 +610,8 @@ class AssessResult(NotebookDisplay):
             head = (*head[:i], SPREAD_HEADER, *head[i:])
         if self.drift:
             head = (*head, DRIFT_HEADER)
+        if self.device_hours:
+            head = (*head, DEVICE_HOURS_HEADER)
         return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
@@ -591,6 +626,8 @@ class AssessResult(NotebookDisplay):
             if self.drift:
                 d = self.drift.get(name)
                 row = (*row, "-" if d is None else f"{d.reaching}/{d.draws}")
+            if self.device_hours:
+                row = (*row, format_hours(self.device_hours.get(name)))
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -614,6 +651,7 @@ class AssessResult(NotebookDisplay):
                     "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
+                    "device_hours": self.device_hours.get(name, ""),
                 }
             )
             if self.has_spread:

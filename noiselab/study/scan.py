@@ -51,6 +51,7 @@ from scipy.optimize import minimize_scalar
 from noiselab.chem.encode import encode
 from noiselab.chem.molecule import compute_problem, molecule_from_mapping
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
+from noiselab.chem.stability import hf_stability
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
@@ -268,6 +269,8 @@ class ScanPoint:
     optimizer_starts: int
     two_qubit_gates: int
     entries: tuple[ScanEntry, ...]
+    hf_stable: bool  # PySCF's stability analysis of the (RO)HF solution (chem.stability)
+    hf_instability: str  # what is unstable, in words ("" when stable)
 
     def recipe(self, name: str) -> ScanEntry:
         return next(e for e in self.entries if e.recipe == name)
@@ -314,6 +317,7 @@ def run_point(task: PointTask) -> PointOutcome:
     check_recipes(ctx, recipes)
     runner = CachingRunner(ctx.experiment, task.cache)
     results = run_recipes(ctx, recipes, runner)
+    stab = hf_stability(task.study.molecule)
     conf = float(task.study.confidence)
     entries = tuple(
         ScanEntry(
@@ -339,6 +343,8 @@ def run_point(task: PointTask) -> PointOutcome:
         optimizer_starts=int(task.optimum.starts),
         two_qubit_gates=int(ctx.compiled.two_qubit_count),
         entries=entries,
+        hf_stable=stab.stable,
+        hf_instability=stab.words(),
     )
     return PointOutcome(point, runner.simulations, runner.cache_hits, runner.engine_seconds)
 
@@ -525,6 +531,7 @@ class ScanResult:
                 "hf_energy_ha": p.hf_energy_ha,
                 "ansatz_energy_ha": p.ansatz_energy_ha,
                 "two_qubit_gates": p.two_qubit_gates,
+                "hf_stable": p.hf_stable,
             }
             for e in p.entries:
                 row[f"{e.recipe}_energy_ha"] = e.energy_ha
@@ -558,8 +565,19 @@ def derive(points: Sequence[ScanPoint], recipes: Sequence[str]) -> tuple[CurveFi
 
 
 def scan_notes(points: Sequence[ScanPoint], target_mha: float) -> tuple[str, ...]:
-    """Warnings: the ansatz error jumping between neighbours by more than the target."""
+    """Warnings: the ansatz error jumping between neighbours by more than the target; the
+    Hartree-Fock solution changing character (stable at one point, unstable at the next)."""
     notes = []
+    for a, b in itertools.pairwise(points):
+        if a.hf_stable != b.hf_stable:
+            bad = b if a.hf_stable else a
+            notes.append(
+                f"Hartree-Fock changes character between {a.coordinate:g} and {b.coordinate:g}: "
+                f"at {bad.coordinate:g} {bad.hf_instability}; there the Hartree-Fock curve, the "
+                "ansatz's start and the active orbitals come from an unstable solution"
+            )
+    if points and not any(p.hf_stable for p in points):
+        notes.append(f"Hartree-Fock is unstable at every point ({points[0].hf_instability})")
     for a, b in itertools.pairwise(points):
         if abs(b.ansatz_error_mha - a.ansatz_error_mha) > target_mha:
             notes.append(

@@ -19,10 +19,8 @@ from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import InputError
-from noiselab.mitigate.base import STAGE_COMBINE
-from noiselab.mitigate.recipe import EstimateMemo, run_recipe
+from noiselab.mitigate.recipe import EstimateMemo, parse_recipe, run_recipe
 from noiselab.mitigate.registry import make_pass
-from noiselab.mitigate.variants import CircuitVariant
 from noiselab.study.assess import (
     _default_cache,
     job_fields,
@@ -34,7 +32,7 @@ from noiselab.study.assess import (
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.context import StudyContext, build_context, with_verification
 from noiselab.study.executor import make_executor
-from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
+from noiselab.study.grid import DEFAULT_AXES, NONE, REGRESSION, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -48,6 +46,7 @@ from noiselab.study.spec import Study, TuneGrid
 
 ProgressHook = Callable[[str, int, int], None]
 
+
 @dataclasses.dataclass(frozen=True)
 class GridOverride:
     """Axes given on the command line (None: take the study's ``tune:`` section or the default)."""
@@ -57,6 +56,7 @@ class GridOverride:
     amplification: Sequence[str] | None = None
     scales: Sequence[Sequence[float]] | None = None
     fit: Sequence[str] | None = None
+    family: Sequence[str] | None = None
 
 
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
@@ -85,6 +85,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         amplification=tuple(dict.fromkeys(str(v) for v in values["amplification"])),
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
+        family=tuple(dict.fromkeys(str(v) for v in values["family"])),
     )
     check_axes(grid, origin)
     return grid, origin
@@ -120,65 +121,111 @@ class Setting:
 
 
 def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[Setting], list[str]]:
-    """Every valid combination of the axes, and notes on what was left out and why."""
+    """Every valid combination of the axes, and notes on what was left out and why.
+
+    The families beyond the stack: ``error_cancellation`` runs first, with every readout and
+    post-selection choice but no extrapolation; ``distillation`` alone (it composes with no
+    readout correction, and is itself the estimator). Both keep the grid small.
+    """
     notes: list[str] = []
     post_axis = grid.postselect
     if not symmetries_available and any(p != NONE for p in post_axis):
         notes.append("post-selection left out: the encoding keeps no symmetry to check")
         post_axis = (NONE,)
+    with_family = any(f != NONE for f in grid.family)
     settings: list[Setting] = []
     skipped = 0
-    for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
-        zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
-        if amp == NONE:
-            zne_choices = [(None, None)]
-        else:
-            zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
-        for scales, fit in zne_choices:
-            passes: list[dict[str, Any]] = []
-            if ro != NONE:
-                passes.append({"pass": "readout", "method": ro})
-            if ps != NONE:
-                passes.append({"pass": "postselect", "mode": ps})
-            if amp != NONE:
-                passes.append(
-                    {"pass": "extrapolate", "amplifier": amp, "scales": list(scales), "fit": fit}
-                )
-            try:
-                specs = tuple(make_pass(p, where="tune").spec() for p in passes)
-            except InputError:
-                skipped += 1  # e.g. an exponential fit given only two scale factors
+    for family in grid.family:
+        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
+            if family == "error_cancellation" and amp != NONE:
                 continue
-            options = {
-                "readout": ro,
-                "postselect": ps,
-                "amplification": amp,
-                "scales": list(scales) if scales is not None else [],
-                "fit": fit or NONE,
-            }
-            settings.append(Setting(_label(options), options, specs))
+            if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
+                continue
+            zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
+            if amp in (NONE, REGRESSION):
+                zne_choices = [(None, None)]
+            else:
+                zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
+            for scales, fit in zne_choices:
+                passes: list[dict[str, Any]] = []
+                if family == "error_cancellation":
+                    passes.append({"pass": "error_cancellation"})
+                if ro != NONE:
+                    passes.append({"pass": "readout", "method": ro})
+                if ps != NONE:
+                    passes.append({"pass": "postselect", "mode": ps})
+                if family == "distillation":
+                    passes.append({"pass": "distillation"})
+                if amp == REGRESSION:
+                    passes.append({"pass": REGRESSION})
+                elif amp != NONE:
+                    passes.append(
+                        {
+                            "pass": "extrapolate",
+                            "amplifier": amp,
+                            "scales": list(scales),
+                            "fit": fit,
+                        }
+                    )
+                try:
+                    specs = tuple(make_pass(p, where="tune").spec() for p in passes)
+                except InputError:
+                    skipped += 1  # e.g. an exponential fit given only two scale factors
+                    continue
+                options = {
+                    "readout": ro,
+                    "postselect": ps,
+                    "amplification": amp,
+                    "scales": list(scales) if scales is not None else [],
+                    "fit": fit or NONE,
+                }
+                if with_family:
+                    options["family"] = family
+                settings.append(Setting(_label(options), options, specs))
     if skipped:
         notes.append(f"{skipped} combination(s) left out: the fit needs more scale factors")
     return settings, notes
 
 
 def _label(o: dict[str, Any]) -> str:
-    parts = [f"readout={o['readout']}", f"post={o['postselect']}"]
+    parts = [] if o.get("family", NONE) == NONE else [f"family={o['family']}"]
+    parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
     if o["amplification"] == NONE:
         parts.append("zne=none")
+    elif o["amplification"] == REGRESSION:
+        parts.append(f"zne=none {REGRESSION}")
     else:
         scales = ",".join(f"{s:g}" for s in o["scales"])
         parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
     return " ".join(parts)
 
 
+def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting], list[str]]:
+    """The settings whose passes this experiment allows, and a note per family left out
+    (e.g. distillation on a device without 2n + 1 qubits)."""
+    kept: list[Setting] = []
+    notes: dict[str, str] = {}
+    for s in settings:
+        family = s.options.get("family", NONE)
+        if family == NONE or family in notes:
+            if family == NONE:
+                kept.append(s)
+            continue
+        try:
+            for p in parse_recipe(list(s.passes)).passes:
+                p.check(ctx.experiment, "tune")
+        except InputError as exc:
+            notes[family] = f"{family} left out: {str(exc).split(': ', 1)[-1]}"
+            continue
+        kept.append(s)
+    return kept, list(notes.values())
+
+
 def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:
-    """The distinct circuit variants the settings need (combination passes declare theirs)."""
+    """The distinct circuit variants the settings need (as their recipes declare them)."""
     out: dict[Any, None] = {}
     for s in settings:
-        combine = [p for p in (make_pass(d) for d in s.passes) if p.stage == STAGE_COMBINE]
-        variants = combine[-1].variants(ctx.experiment) if combine else (CircuitVariant(),)
-        out.update(dict.fromkeys(variants))
+        out.update(dict.fromkeys(parse_recipe(list(s.passes)).variants(ctx.experiment)))
     return list(out)
 
 
@@ -236,6 +283,8 @@ def tune(
         settings, notes = grid_settings(
             resolved, bool(getattr(ctx.qubit_problem, "symmetries", ()))
         )
+        settings, left_out = applicable(ctx, settings)
+        notes += left_out
         if not settings:
             raise InputError(f"{study.source}: tune: the grid has no valid setting")
         runner = CachingRunner(ctx.experiment, store)
