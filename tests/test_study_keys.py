@@ -20,7 +20,7 @@ from noiselab.mitigate.optimizers import (
 )
 from noiselab.mitigate.registry import PASSES
 from noiselab.study import keys as keymod
-from noiselab.study.rehearse_spec import RehearseSettings
+from noiselab.study.rehearse_spec import RehearseGrid, RehearseSettings
 from noiselab.study.scan import ScanSection
 from noiselab.study.spec import (
     CompileOptions,
@@ -50,6 +50,7 @@ STUDY_MODELS: list[tuple[str, type[BaseModel]]] = [
     ("scan", ScanSection),
     ("emulation", EmulationSettings),
     ("rehearse", RehearseSettings),
+    ("rehearse.grid", RehearseGrid),
     ("rehearse.spsa", SpsaOptions),
     ("rehearse.parameter_shift", ParameterShiftOptions),
     ("rehearse.cobyla", CobylaOptions),
@@ -223,3 +224,18 @@ def test_check_refuses_like_assess(path: Path, capsys: pytest.CaptureFixture[str
     rc_assess, _, err_assess = _main(["assess", str(path), "--no-cache", "--quiet"], capsys)
     assert rc == rc_assess == 2
     assert _steady(err) == _steady(err_assess)
+
+
+def test_listed_tune_values_are_the_ones_the_grid_accepts() -> None:
+    from noiselab.common.errors import InputError
+    from noiselab.study.grid import check_tune_section
+
+    rows = {r.path: r for r in keymod.study_keys()}
+    for axis in ("readout", "postselect", "amplification", "fit", "family"):
+        listed = [v.strip() for v in rows[f"tune.{axis}"].allowed.split(",")]
+        for value in listed:
+            check_tune_section(TuneGrid(**{axis: [value]}), "s.yaml")  # accepted
+        with pytest.raises(InputError, match="allowed"):
+            check_tune_section(TuneGrid(**{axis: ["no-such-value"]}), "s.yaml")
+    # the tune grid fits no polynomial (it has no degree axis): the reference must not list it
+    assert "polynomial" not in rows["tune.fit"].allowed

@@ -37,6 +37,7 @@ from noiselab.device.profile import (
 )
 from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
 from noiselab.mitigate.registry import PASSES
+from noiselab.study.grid import axis_values
 from noiselab.study.knobs import KNOBS
 from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.scan import ScanSection
@@ -117,7 +118,8 @@ MEANINGS: dict[str, str] = {
     # tune
     "tune.readout": "readout-correction methods to try (none: no correction)",
     "tune.postselect": "postselection modes to try (none: no postselection)",
-    "tune.amplification": "amplifiers to try (none: no extrapolation)",
+    "tune.amplification": "amplifiers to try (none: no extrapolation; clifford_regression: "
+    "Clifford data regression in place of an extrapolation)",
     "tune.scales": "noise-scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
@@ -186,6 +188,21 @@ MEANINGS: dict[str, str] = {
     "extrapolate.channels": "channels the stretch amplifier scales (default: all but readout)",
     "extrapolate.shot_split": "how the shots are split over the scale factors",
     "extrapolate.scale_axis": "folding: fit against the realized or the nominal scale",
+    "error_cancellation.idle": "include relaxation over scheduled delays in the learned model",
+    "distillation.copy_noise": "emulate the noise of the copy-and-measure circuit (false: ideal)",
+    "clifford_regression.noise_levels": "stretched-noise levels of the training fit "
+    "([1]: plain regression)",
+    "clifford_regression.choice_seed": "seed of which rotations the training circuits replace",
+    "clifford_regression.intercept": "mixed_state: anchor the fit at the maximally mixed "
+    "state's energy; fitted: fit the intercept",
+    "clifford_regression.shot_split": "how the shots are split between training and target "
+    "circuits",
+    "tune.family": "mitigation families to try beside the readout/postselect/extrapolate stack "
+    "(none: the stack alone)",
+    "rehearse.grid": "the settings noiselab rehearse --grid tries (every combination)",
+    "rehearse.grid.shots_per_evaluation": "shots per evaluation to try",
+    "rehearse.grid.optimizer": "optimizers to try",
+    "rehearse.grid.loop_recipe": "in-loop recipes to try: study recipe names, or default",
     # device profile
     "name@profile": "the device's name (shown in outputs)",
     "description@profile": "free text about the device",
@@ -252,10 +269,7 @@ ALLOWED: dict[str, str] = {
     "scan.bond": "two distinct atom indices (0-based) that share a bond",
     "sweep.vary": ", ".join(KNOBS),
     "tune.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct",
-    "tune.readout": "per_qubit_inverse, full_inverse, nearest_probability, none",
-    "tune.postselect": "discard, verify, none",
-    "tune.amplification": "stretch, whole_circuit, two_qubit_gates, none",
-    "tune.fit": "linear, richardson, polynomial, exponential",
+    **{f"tune.{axis}": ", ".join(values) for axis, values in axis_values().items()},
     "extrapolate.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct, at least 2",
     "t1_us": _COHERENCE,
     "t2_us": f"{_COHERENCE}, at most 2 x T1",
