@@ -239,3 +239,19 @@ def test_listed_tune_values_are_the_ones_the_grid_accepts() -> None:
             check_tune_section(TuneGrid(**{axis: ["no-such-value"]}), "s.yaml")
     # the tune grid fits no polynomial (it has no degree axis): the reference must not list it
     assert "polynomial" not in rows["tune.fit"].allowed
+
+
+def test_check_handles_passes_whose_circuits_need_the_compile(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    study = tmp_path / "s.yaml"
+    study.write_text(
+        "name: s\nmolecule: {geometry: 'H 0 0 0; H 0 0 0.735'}\nansatz: {kind: uccsd}\n"
+        "device: cobaltgrid-12\nshots: 1e6\nrecipes:\n  raw: []\n"
+        "  cdr: [{pass: clifford_regression}]\n  dist: [{pass: distillation}]\n",
+        encoding="utf-8",
+    )
+    rc, out, err = _main(["study", "check", str(study)], capsys)
+    assert rc == 0, err
+    assert "cdr: clifford_regression" in out and "known once compiled" in out
+    assert "work: at least" in out and "twice the qubits" in out

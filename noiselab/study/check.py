@@ -69,12 +69,18 @@ def describe_study(study: Study) -> StudyOutline:
     )
     ctx = SimpleNamespace(amplification_offset=study.amplification_offset)
     variants: set[Any] = set()
+    unknown: list[str] = []
     recipe_lines = []
     for name, passes in study.recipes.items():
         parsed = parse_recipe(list(passes), where=f"recipes.{name}")
-        own = parsed.variants(ctx)  # type: ignore[arg-type]
-        variants.update(own)
         words = "; ".join(_pass_words(p) for p in passes) or "no mitigation"
+        try:
+            own = parsed.variants(ctx)  # type: ignore[arg-type]
+        except Exception:  # a pass whose circuits depend on the compiled circuit (training sets)
+            unknown.append(name)
+            recipe_lines.append(f"    {name}: {words} (circuit variants known once compiled)")
+            continue
+        variants.update(own)
         recipe_lines.append(f"    {name}: {words} ({len(own)} circuit variant(s))")
     q = study.num_qubits
     method, _ = emulation_method(str(study.source), study.emulation, q, 1)
@@ -110,10 +116,18 @@ def describe_study(study: Study) -> StudyOutline:
         f"recipes ({len(study.recipes)}):",
         *recipe_lines,
         f"emulation: {method} (emulation.method {e.method})",
-        f"work: {n_var} distinct simulation(s) of {q} qubits for the assessed compile"
+        f"work: {'at least ' if unknown else ''}{n_var} distinct simulation(s) of {q} qubits for "
+        "the assessed compile"
+        + (f" (more for {', '.join(unknown)}, counted once compiled)" if unknown else "")
         + (
             f", up to {spread} more for the bias spread (one per other distinct compile)"
             if spread
+            else ""
+        )
+        + (
+            "; distillation runs two copies (twice the qubits): its time and memory are above "
+            "this estimate"
+            if any(p.get("pass") == "distillation" for ps in study.recipes.values() for p in ps)
             else ""
         ),
         f"memory: peak about {format_bytes(peak)} (the largest of: emulation "
