@@ -21,7 +21,12 @@ import numpy as np
 from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
-from noiselab.emulate.channels import BasisLayerSpec, EffectCache, layer_duration_ns
+from noiselab.emulate.channels import (
+    BasisLayerSpec,
+    EffectCache,
+    effect_cache_for,
+    layer_duration_ns,
+)
 from noiselab.emulate.contract import dm_distributions
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
 from noiselab.emulate.memory import (
@@ -42,6 +47,11 @@ _ENGINE_CALLS = [0]
 def engine_call_count() -> int:
     """Total number of simulator runs made by this module since import (for tests and reports)."""
     return _ENGINE_CALLS[0]
+
+
+def count_engine_call() -> None:
+    """Count one simulator run made elsewhere in the emulate layer (``emulate.batch``)."""
+    _ENGINE_CALLS[0] += 1
 
 
 @dataclass(frozen=True, eq=False)  # arrays inside: compare fields explicitly
@@ -144,11 +154,12 @@ def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
     return np.asarray(getattr(rho, "data", rho))
 
 
-def _basis_tables(
+def basis_tables(
     bases: Sequence[str],
     qubits: Sequence[int],
     cache: EffectCache,
 ) -> tuple[list[list[np.ndarray]], list[list[Hashable]]]:
+    """Per basis, each measured qubit's effect tensor and its key (letter, layer duration)."""
     effects: list[list[np.ndarray]] = []
     keys: list[list[Hashable]] = []
     for b in bases:
@@ -231,8 +242,8 @@ def emulate_circuit_bases(
     bases_t = validate_bases(bases, n)
     chosen, notice = choose_method(k, method, max_density_matrix_qubits=max_density_matrix_qubits)
     t0 = time.perf_counter()
-    cache = EffectCache(noise_model, k, layer, noisy=basis_noise)
-    effects, keys = _basis_tables(bases_t, qubits, cache)
+    cache = effect_cache_for(noise_model, k, layer, noisy=basis_noise)
+    effects, keys = basis_tables(bases_t, qubits, cache)
     mats = list(readout_matrices) if readout_matrices is not None else [None] * n
     if chosen == "density_matrix":
         calls0 = engine_call_count()
@@ -320,8 +331,8 @@ def emulate_flagged_bases(
     t0 = time.perf_counter()
     calls0 = engine_call_count()
     rho = simulate_density_matrix(circuit, nm)
-    cache = EffectCache(nm, k, layer_spec_for(profile, k), noisy=True)
-    effects, keys = _basis_tables(bases_t, qubits, cache)
+    cache = effect_cache_for(nm, k, layer_spec_for(profile, k), noisy=True)
+    effects, keys = basis_tables(bases_t, qubits, cache)
     dim = 2**k
     ideal_parts = []
     for s in (0, 1):  # the flag is the most significant circuit qubit
@@ -387,3 +398,4 @@ def emulate_bases(
         seed=seed,
         max_density_matrix_qubits=max_density_matrix_qubits,
     )
+

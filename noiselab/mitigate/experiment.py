@@ -235,8 +235,11 @@ def make_runner(ctx: ExperimentContext) -> Runner:
     return runner
 
 
-def make_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
+def make_calibrator(ctx: ExperimentContext, written: Any = None) -> Calibrator:
+    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits.
+
+    ``written(profile)``: numpy channels of a profile on the patch
+    (``emulate.written.WrittenNoise``) to use instead of a qiskit-aer noise model."""
     memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
 
     def calibrator(variant: CircuitVariant, states: tuple[int, ...]) -> np.ndarray:
@@ -248,6 +251,7 @@ def make_calibrator(ctx: ExperimentContext) -> Calibrator:
                 ctx.compiled.patch,
                 list(states),
                 measured=list(ctx.compiled.logical_to_circuit),
+                written=None if written is None else written(profile),
             )
             memo[key] = np.asarray(cal.probs, dtype=float)
         return memo[key]

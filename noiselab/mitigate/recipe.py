@@ -162,7 +162,7 @@ def _check_pairs(passes: Sequence[MitigationPass], where: str) -> None:
 
 
 def run_recipe(
-    recipe: Sequence[Mapping[str, Any]] | RecipeSpec,
+    recipe: Sequence[Mapping[str, Any]] | RecipeSpec | ParsedRecipe,
     ctx: ExperimentContext,
     runner: Runner,
     *,
@@ -170,15 +170,20 @@ def run_recipe(
     rng: np.random.Generator | None = None,
     calibrator: Calibrator | None = None,
     memo: EstimateMemo | None = None,
+    calibration_record: dict[Any, tuple[int, np.ndarray]] | None = None,
 ) -> RecipeResult:
     """Apply a recipe to the runner's data and score it (see the module docstring).
 
+    ``recipe``: pass entries, a :class:`RecipeSpec` or an already parsed recipe (its passes
+    keep what they derived from ``ctx`` between calls on the same context).
     ``calibrator(variant, states)``: exact readout-calibration distributions; default
     ``ctx.calibrator`` (emulate's calibration circuits on ``ctx.profile``, kept by the context).
     ``memo``: an :class:`EstimateMemo` shared by the recipes of one job (None: nothing shared);
     the result is the same with and without it, sampled evaluations never read it.
+    ``calibration_record`` (sampled only): drawn readout calibrations shared across calls
+    (see :class:`CalibrationSource`): a loop of evaluations calibrates once.
     """
-    parsed = parse_recipe(recipe)
+    parsed = recipe if isinstance(recipe, ParsedRecipe) else parse_recipe(recipe)
     for i, p in enumerate(parsed.passes):
         p.check(ctx, f"recipe[{i}]")
     variants, bases = parsed.variants(ctx), parsed.bases(ctx)
@@ -195,7 +200,7 @@ def run_recipe(
     if sampled:
         rng = rng if rng is not None else np.random.default_rng(ctx.seed)
         used_data = draw(data, alloc, rng)
-        cal = CalibrationSource(calibrator, rng)
+        cal = CalibrationSource(calibrator, rng, calibration_record)
         used = evaluate(parsed.passes, ctx, variants, bases, used_data.probs, cal)
     errors = variance(exact, used, used_data, alloc, memo)
     scored = score(ctx, float(used.estimate.value), errors)

@@ -1,18 +1,20 @@
 """The rehearse job: the variational loop run against the emulated device, repeated.
 
 Every in-loop energy evaluation is what the device would return: the parameterized circuit is
-compiled once (the study's chosen patch and transpiler seed) and bound per evaluation, the
-exact noisy distributions of every measured basis are emulated, finite-shot counts are drawn
-at the evaluation's allocation and the in-loop recipe runs on them (``run_recipe(...,
-sampled=True)``). The analytic expectation is never used in the loop (``analytic=True`` is a
-test-only switch). After the loop the final parameters are assessed with the final recipe at
-the study's budget, analytically, as ``assess`` does, and the final error is split into
-ansatz error + optimizer error under noise + noise bias (they add up exactly), with the shot
-noise apart.
+compiled once (the study's chosen patch and transpiler seed) and its parameters bound in the
+simulator, the exact noisy distributions of every measured basis are emulated, finite-shot
+counts are drawn at the evaluation's allocation and the in-loop recipe runs on them
+(``run_recipe(..., sampled=True)``; :mod:`noiselab.study.loop`). The analytic expectation is
+never used in the loop (``analytic=True`` is a test-only switch). The repeats of SPSA and
+parameter-shift descent run in lockstep, the points of one step of all repeats emulated in one
+call. After the loop the final parameters are assessed with the final recipe at the study's
+budget, analytically, as ``assess`` does, and the final error is split into ansatz error +
+optimizer error under noise + noise bias (they add up exactly), with the shot noise apart.
 
-Shots are counted exactly: every evaluation's measured shots plus the readout-calibration shots
-it draws (the sampled path recalibrates per evaluation), plus the final estimate's. Device time:
-``noiselab.study.device_time`` (the rule ``assess`` uses too), per evaluation and for the final
+Shots are counted exactly: every evaluation's measured shots, each repeat's readout
+calibration once (drawn at its first evaluation and reused, as a real run calibrates at its
+start), plus the final estimate's. Device time: ``noiselab.study.device_time`` (the rule
+``assess`` uses too), per evaluation (its calibration once per repeat) and for the final
 estimate, with the rehearse section's ``circuit_overhead_s`` per circuit run.
 """
 
@@ -36,12 +38,12 @@ from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.compile import compile_to_device
 from noiselab.mitigate.experiment import make_calibrator, make_runner
 from noiselab.mitigate.optimizers import (
-    BudgetExhaustedError,
     OptimizerOutcome,
     ShiftRule,
-    parameter_shift_descent,
+    Steps,
+    parameter_shift_steps,
     scipy_minimize,
-    spsa,
+    spsa_steps,
 )
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.mitigate.target import p_within, reaches_target
@@ -58,6 +60,14 @@ from noiselab.study.device_time import (
     seconds_per_shot,
     variant_durations_ns,
 )
+from noiselab.study.loop import (
+    LoopEvaluator,
+    RepeatResult,
+    TracePoint,
+    run_lockstep,
+    trace_hook,
+    with_progress,
+)
 from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.spec import Study, load_study
 
@@ -68,55 +78,6 @@ OPTIMIZER_WORDS = {
     "cobyla": "COBYLA",
     "nelder_mead": "Nelder-Mead",
 }
-
-
-@dataclasses.dataclass(frozen=True)
-class TracePoint:
-    """After one iteration: shots spent so far, the energy the loop measured (mean of the
-    iteration's evaluations) and the noiseless energy of the current iterate (Ha)."""
-
-    shots: int
-    energy_ha: float
-    noiseless_energy_ha: float
-
-
-@dataclasses.dataclass(frozen=True)
-class RepeatResult:
-    """One run of the loop and its final estimate (energies in Ha, errors in mHa)."""
-
-    seed: int
-    start_parameters: tuple[float, ...]
-    final_parameters: tuple[float, ...]
-    iterations: int
-    evaluations: int
-    stopped: str
-    loop_shots: int  # measured + calibration shots of every in-loop evaluation
-    evaluation_shots: tuple[int, ...]  # each evaluation's shots, calibration included
-    final_shots: int  # the final estimate's, calibration included
-    circuit_runs: int
-    device_hours: float
-    final_energy_ha: float  # expectation of the final estimate (no random draw)
-    final_error_mha: float  # final_energy - exact = ansatz + optimizer + noise bias
-    ansatz_error_mha: float
-    optimizer_error_mha: float
-    noise_bias_mha: float
-    std_mha: float
-    p_within_target: float
-    trace: tuple[TracePoint, ...]
-
-    @property
-    def total_shots(self) -> int:
-        return self.loop_shots + self.final_shots
-
-    def to_json(self) -> dict[str, Any]:
-        out = {
-            f.name: getattr(self, f.name)
-            for f in dataclasses.fields(self)
-            if f.name not in ("trace", "evaluation_shots")
-        }
-        out["total_shots"] = self.total_shots
-        out["trace"] = [dataclasses.asdict(t) for t in self.trace]
-        return out
 
 
 @dataclasses.dataclass(frozen=True)
@@ -198,70 +159,6 @@ class RehearseResult:
         return rows
 
 
-# ---- one evaluation ---------------------------------------------------------------------------
-
-
-class LoopEvaluator:
-    """Energy evaluations at given parameters, as the device would return them; counts shots.
-
-    ``objective(x)``: bind, emulate, draw counts at ``shots`` and run the recipe on them.
-    Raises :class:`BudgetExhaustedError` once ``max_shots`` are spent.
-    """
-
-    def __init__(
-        self,
-        ctx: StudyContext,
-        parameterized: Any,
-        passes: Sequence[Mapping[str, Any]],
-        shots: int,
-        rng: np.random.Generator,
-        *,
-        calibrator: Any,
-        max_shots: int | None = None,
-        analytic: bool = False,
-        clock: Callable[[Any], DeviceTime] | None = None,
-        shared: Any = None,
-    ) -> None:
-        self.ctx, self.parameterized, self.passes = ctx, parameterized, list(passes)
-        self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
-        self.max_shots, self.analytic = max_shots, analytic
-        self.evaluation_shots: list[int] = []
-        self.circuit_runs = 0
-        self.clock = clock  # device time of one recipe result (noiselab.study.device_time)
-        self.device_time = DeviceTime()
-        self.shared = shared
-        self.last_energy_ha = math.nan
-
-    @property
-    def shots_spent(self) -> int:
-        return int(sum(self.evaluation_shots))
-
-    def evaluate(self, x: np.ndarray, shots: int) -> Any:
-        """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
-        bound = self.parameterized.bind(np.asarray(x, dtype=float))
-        exp = replace_experiment(self.ctx.experiment, compiled=bound, shots=int(shots))
-        runner = make_runner(exp) if self.shared is None else self.shared.runner(exp, x)
-        return run_recipe(
-            self.passes,
-            exp,
-            runner,
-            sampled=not self.analytic,
-            rng=self.rng,
-            calibrator=self.calibrator,
-        )
-
-    def __call__(self, x: np.ndarray) -> float:
-        if self.max_shots is not None and self.shots_spent >= self.max_shots:
-            raise BudgetExhaustedError
-        res = self.evaluate(x, self.shots)
-        self.evaluation_shots.append(int(res.shots_total) + calibration_shots(res))
-        self.circuit_runs += int(res.n_circuits)
-        if self.clock is not None:
-            self.device_time = self.device_time + self.clock(res)
-        self.last_energy_ha = float(res.energy_ha)
-        return float(res.energy_ha)
-
-
 def calibration_shots(result: Any) -> int:
     """Readout-calibration shots a recipe result drew (0 for exact calibration)."""
     return int(result.details.get("calibration_shots_total", 0))
@@ -296,20 +193,24 @@ def start_parameters(
     return rng.uniform(-math.pi, math.pi, n)
 
 
-def run_optimizer(
+#: optimizers written as steps (mitigate.optimizers.Steps): their repeats run in lockstep
+STEPPED_OPTIMIZERS = ("spsa", "parameter_shift")
+
+
+def optimizer_steps(
     settings: RehearseSettings,
-    objective: LoopEvaluator,
     x0: np.ndarray,
     rng: np.random.Generator,
     rules: Sequence[ShiftRule],
     on_iteration: Any,
-) -> OptimizerOutcome:
+) -> Steps | None:
+    """The optimizer as steps (SPSA, parameter shift), or None for the scipy ones."""
     opts, n = settings.optimizer_options(), settings.iterations
     if settings.optimizer == "spsa":
-        return spsa(objective, x0, n, rng, opts, on_iteration)
+        return spsa_steps(x0, n, rng, opts, on_iteration)
     if settings.optimizer == "parameter_shift":
-        return parameter_shift_descent(objective, x0, n, rules, opts, on_iteration)
-    return scipy_minimize(objective, x0, n, settings.optimizer, opts, on_iteration)
+        return parameter_shift_steps(x0, n, rules, opts, on_iteration)
+    return None
 
 
 def rehearse(
@@ -336,9 +237,7 @@ def rehearse(
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
     loop_passes = settings.loop_passes()
-    final_passes = (
-        study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
-    )
+    final_passes = study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
     verify = recipes_verify([loop_passes, final_passes])
     if context is None:
         context = build_context(study, cache=_default_cache(cache), verification=verify)
@@ -383,43 +282,70 @@ def rehearse(
     def clock(res: Any) -> DeviceTime:
         return recipe_device_time(res, durations, profile, settings.circuit_overhead_s)
 
-    repeats = []
+    evaluators, traces, starts, hooks = [], [], [], []
     for r in range(settings.repeats):
-        if progress is not None:
-            progress("rehearsing the loop", r, settings.repeats)
-        seed = settings.seed + r
-        rng = np.random.default_rng(seed)
-        x0 = start_parameters(settings, optimum, rng)
-        evaluator = LoopEvaluator(
-            ctx, parameterized, loop_passes, settings.shots_per_evaluation, rng,
-            calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic, clock=clock,
-            shared=shared,
-        )  # fmt: skip
-        trace: list[TracePoint] = []
-
-        def on_iteration(
-            k: int, x: np.ndarray, values: tuple[float, ...], ev: LoopEvaluator = evaluator,
-            tr: list[TracePoint] = trace,
-        ) -> None:  # fmt: skip
-            measured = float(np.mean(values)) if values else ev.last_energy_ha
-            tr.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
-
-        outcome = run_optimizer(settings, evaluator, x0, rng, rules, on_iteration)
-        repeats.append(
-            final_estimate(
+        rng = np.random.default_rng(settings.seed + r)
+        starts.append(start_parameters(settings, optimum, rng))
+        evaluators.append(
+            LoopEvaluator(
                 ctx,
-                evaluator,
-                final_passes,
-                outcome,
-                seed,
-                x0,
-                trace,
-                noiseless,
-                clock,
+                parameterized,
+                loop_passes,
+                settings.shots_per_evaluation,
+                rng,
+                calibrator=calibrator,
+                max_shots=settings.max_shots,
+                analytic=analytic,
+                clock=clock,
+                shared=shared,
             )
         )
-    if progress is not None:
-        progress("rehearsing the loop", settings.repeats, settings.repeats)
+        traces.append([])
+        hooks.append(trace_hook(evaluators[-1], traces[-1], noiseless))
+    lockstep = settings.optimizer in STEPPED_OPTIMIZERS
+    if lockstep and progress is not None:
+        progress("rehearsing the loop (iterations)", 0, settings.iterations)
+        hooks[0] = with_progress(hooks[0], progress, settings.iterations)
+    steps = [
+        optimizer_steps(settings, x0, ev.rng, rules, hook)
+        for ev, x0, hook in zip(evaluators, starts, hooks, strict=True)
+    ]
+    if lockstep:
+        # every repeat's next points go to the emulator together
+        outcomes = run_lockstep([s for s in steps if s is not None], evaluators)
+    else:
+        outcomes = []
+        for r, (ev, x0) in enumerate(zip(evaluators, starts, strict=True)):
+            if progress is not None:
+                progress("rehearsing the loop", r, settings.repeats)
+            outcomes.append(
+                scipy_minimize(
+                    ev,
+                    x0,
+                    settings.iterations,
+                    settings.optimizer,
+                    settings.optimizer_options(),
+                    hooks[r],
+                )
+            )
+        if progress is not None:
+            progress("rehearsing the loop", settings.repeats, settings.repeats)
+    repeats = [
+        final_estimate(
+            ctx,
+            ev,
+            final_passes,
+            out,
+            settings.seed + r,
+            x0,
+            trace,
+            noiseless,
+            clock,
+        )
+        for r, (ev, out, x0, trace) in enumerate(
+            zip(evaluators, outcomes, starts, traces, strict=True)
+        )
+    ]
     loop_name = parse_recipe(list(loop_passes)).name
     result = RehearseResult(
         study=study.name,

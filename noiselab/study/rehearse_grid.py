@@ -23,7 +23,6 @@ import numpy as np
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
-from noiselab.mitigate.experiment import make_runner
 from noiselab.study.context import build_context, recipes_verify
 from noiselab.study.rehearse import OPTIMIZER_WORDS, RehearseResult, rehearse, resolve_settings
 from noiselab.study.rehearse_spec import DEFAULT_LOOP_NAME, DEFAULT_LOOP_RECIPE, RehearseGrid
@@ -35,27 +34,37 @@ ProgressHook = Callable[[str, int, int], None]
 
 class SharedRuns:
     """Emulations of bound circuits shared by several rehearsals of one context: keyed by the
-    parameter values bit for bit (and the measured bases), so a point that two settings or two
-    repeats evaluate is simulated once; the results are those of separate runs. At most
-    ``max_points`` points are kept (later ones are simulated and not kept)."""
+    parameter values bit for bit (and the measured bases), each point's distributions per
+    circuit variant, so a point that two settings or two repeats evaluate is simulated once;
+    the results are those of separate runs. At most ``max_points`` points are kept (later ones
+    are simulated and not kept)."""
 
     def __init__(self, max_points: int = 4096) -> None:
         self.max_points = int(max_points)
-        self._runners: dict[tuple[bytes, tuple[str, ...]], Any] = {}
+        self._points: dict[tuple[bytes, tuple[str, ...]], dict[Any, Any]] = {}
         self.evaluations = 0  # evaluations asked for
         self.reused = 0  # of which at a point simulated before
 
-    def runner(self, exp: Any, x: np.ndarray) -> Any:
-        """The runner of ``exp`` (bound at ``x``), shared with earlier evaluations at ``x``."""
-        key = (np.asarray(x, dtype=float).tobytes(), tuple(exp.measured_bases))
+    @staticmethod
+    def _key(x: np.ndarray, bases: tuple[str, ...]) -> tuple[bytes, tuple[str, ...]]:
+        return (np.asarray(x, dtype=float).tobytes(), tuple(bases))
+
+    def lookup(self, x: np.ndarray, bases: tuple[str, ...], variants: Any) -> dict[Any, Any] | None:
+        """The distributions of every one of ``variants`` at ``x``, or None (not all known)."""
         self.evaluations += 1
-        if key in self._runners:
-            self.reused += 1
-            return self._runners[key]
-        runner = make_runner(exp)
-        if len(self._runners) < self.max_points:
-            self._runners[key] = runner
-        return runner
+        known = self._points.get(self._key(x, bases))
+        if known is None or any(v not in known for v in variants):
+            return None
+        self.reused += 1
+        return {v: known[v] for v in variants}
+
+    def keep(self, x: np.ndarray, bases: tuple[str, ...], data: dict[Any, Any]) -> None:
+        """Remember the distributions emulated at ``x`` (variant -> distributions)."""
+        key = self._key(x, bases)
+        if key in self._points:
+            self._points[key].update(data)
+        elif len(self._points) < self.max_points:
+            self._points[key] = dict(data)
 
 
 @dataclasses.dataclass(frozen=True)
