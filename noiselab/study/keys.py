@@ -165,6 +165,8 @@ MEANINGS: dict[str, str] = {
     "rehearse.spsa.learning_exponent": "decay exponent of the step gain",
     "rehearse.spsa.perturbation_exponent": "decay exponent of the perturbation",
     "rehearse.spsa.first_step": "average first move of each parameter (rad)",
+    "rehearse.spsa.first_step_rule": "curvature: first move to the minimum of the parabola "
+    "through the calibration energies, at most first_step; fixed: first_step itself",
     "rehearse.spsa.calibration_samples": "gradient samples that calibrate a",
     "rehearse.parameter_shift": "gradient descent with parameter-shift gradients",
     "rehearse.parameter_shift.learning_rate": "step = learning_rate x gradient (Ha/rad)",
