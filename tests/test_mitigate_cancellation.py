@@ -24,6 +24,8 @@ from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.context import replace_experiment
 
 PEC = [{"pass": "error_cancellation"}]
+#: the model taken as exactly known: no learning term in the error bar
+PEC_EXACT = [{"pass": "error_cancellation", "learning_spread": 0.0}]
 
 
 def _kraus(error) -> list[np.ndarray]:
@@ -125,7 +127,7 @@ def test_coherent_noise_left_out_of_the_model_biases() -> None:
 def test_norm_is_the_product_over_the_circuit_and_enters_the_variance() -> None:
     ctx, runner, cal = h2_experiment()
     raw = run_recipe([], ctx, runner, calibrator=cal)
-    pec = run_recipe(PEC, ctx, runner, calibrator=cal)
+    pec = run_recipe(PEC_EXACT, ctx, runner, calibrator=cal)
     info = pec.details["error_cancellation"]
     (norm,) = info["quasi_norm"].values()
     (g_gates,) = info["quasi_norm_gates"].values()
@@ -142,7 +144,7 @@ def test_a_deep_circuit_is_unbiased_but_never_affordable(pauli_only) -> None:
     deep = replace_experiment(
         pauli_only, profile=scale_profile(pauli_only.profile, 60.0, ["two_qubit"])
     )
-    result = run_recipe(PEC, deep, make_runner(deep), calibrator=make_calibrator(deep))
+    result = run_recipe(PEC_EXACT, deep, make_runner(deep), calibrator=make_calibrator(deep))
     (norm,) = result.details["error_cancellation"]["quasi_norm"].values()
     assert norm > 1e4
     assert abs(result.bias_ansatz_mha) < 1e-5  # still exact in expectation

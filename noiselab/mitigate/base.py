@@ -132,6 +132,23 @@ class Combined:
     fixed_variance: Mapping[str, float] = field(default_factory=dict)
 
 
+@dataclass(frozen=True, eq=False)
+class SpreadTerm:
+    """A random part no shot count shrinks that a pass models by one of its options: the option's
+    value in a real run has standard deviation ``std`` (option units) around the one used. The
+    recipe is evaluated exactly with the pass replaced by ``minus`` and ``plus`` (the option
+    ``step`` below and above); the central difference times ``std`` enters ``std_mha`` as the
+    fixed variance ``name`` (``std_<name>_mha``; also written into the pass's own details under
+    ``details_key``, with the sensitivity ``<name>_sensitivity_mha`` per unit of the option)."""
+
+    name: str
+    minus: MitigationPass
+    plus: MitigationPass
+    step: float
+    std: float
+    details_key: str
+
+
 class MitigationPass(ABC):
     """A pass: options, a stage, and the hooks of its stage."""
 
@@ -165,6 +182,11 @@ class MitigationPass(ABC):
 
     def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
+
+    def spread_terms(self, ctx: ExperimentContext) -> tuple[SpreadTerm, ...]:
+        """Options of this pass whose real-run value is random (:class:`SpreadTerm`; default
+        none)."""
+        return ()
 
     def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
         """Circuit transforms a correction or estimator pass adds to every circuit variant of its

@@ -15,10 +15,16 @@ distributions, exact readout-calibration distributions), so no random draw enter
 the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
 its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
 term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
+
+A pass option that is random in a real run (:class:`~noiselab.mitigate.base.SpreadTerm`, e.g.
+``error_cancellation``'s ``learning_spread``) enters the error bar as a fixed variance: the
+central difference of the exact energy with the option stepped down and up, times its standard
+deviation (:func:`spread_sensitivities`); sampled evaluations draw its linearized shift.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -27,13 +33,16 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
 from noiselab.common.errors import InputError
+from noiselab.common.units import HA_TO_MHA
 from noiselab.mitigate.base import (
     STAGE_COMBINE,
     STAGE_CORRECT,
     STAGE_ESTIMATE,
     STAGE_NAMES,
     MitigationPass,
+    SpreadTerm,
 )
+from noiselab.mitigate.estimate import Estimate
 from noiselab.mitigate.evaluate import CalibrationSource, EstimateMemo, evaluate
 from noiselab.mitigate.experiment import Calibrator, ExperimentContext, Runner
 from noiselab.mitigate.registry import PASSES, make_pass
@@ -161,6 +170,34 @@ def _check_pairs(passes: Sequence[MitigationPass], where: str) -> None:
 # ---- the recipe as a chain of steps ------------------------------------------------------------
 
 
+def spread_sensitivities(
+    parsed: ParsedRecipe,
+    ctx: ExperimentContext,
+    runner: Runner,
+    calibrator: Calibrator,
+    memo: EstimateMemo | None = None,
+) -> tuple[tuple[SpreadTerm, float], ...]:
+    """Each :class:`SpreadTerm` of the recipe's passes (those with ``std`` > 0) with the exact
+    energy's sensitivity to its option (Ha per option unit): the central difference of the
+    recipe evaluated exactly with the pass replaced by the term's ``minus`` and ``plus`` (their
+    circuit variants are emulated by ``runner`` like any other, and cached with them)."""
+    out = []
+    for i, p in enumerate(parsed.passes):
+        for term in p.spread_terms(ctx):
+            if term.std <= 0.0:
+                continue
+            energies = []
+            for q in (term.minus, term.plus):
+                other = ParsedRecipe(parsed.name, (*parsed.passes[:i], q, *parsed.passes[i + 1 :]))
+                variants, bases = other.variants(ctx), other.bases(ctx)
+                data = measure(runner, variants, bases)
+                cal = CalibrationSource(calibrator)
+                ev = evaluate(other.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+                energies.append(float(ev.estimate.value))
+            out.append((term, (energies[1] - energies[0]) / (2.0 * term.step)))
+    return tuple(out)
+
+
 def run_recipe(
     recipe: Sequence[Mapping[str, Any]] | RecipeSpec | ParsedRecipe,
     ctx: ExperimentContext,
@@ -195,6 +232,10 @@ def run_recipe(
     # the standard error; first order, see the module docstring)
     cal = CalibrationSource(calibrator)
     exact = evaluate(parsed.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+    spreads = spread_sensitivities(parsed, ctx, runner, calibrator, memo)
+    if spreads:
+        fixed = {t.name: (sens * t.std) ** 2 for t, sens in spreads}
+        exact = dataclasses.replace(exact, fixed_variance={**exact.fixed_variance, **fixed})
     alloc = allocate(ctx, exact.estimate, data, parsed.shot_split())
     used, used_data = exact, data
     if sampled:
@@ -202,6 +243,10 @@ def run_recipe(
         used_data = draw(data, alloc, rng)
         cal = CalibrationSource(calibrator, rng, calibration_record)
         used = evaluate(parsed.passes, ctx, variants, bases, used_data.probs, cal)
+        if spreads:  # draw each spread option's realized value (linearized)
+            shift = sum(sens * t.std * float(rng.normal()) for t, sens in spreads)
+            est = Estimate(used.estimate.value + shift, used.estimate.influence)
+            used = dataclasses.replace(used, estimate=est)
     errors = variance(exact, used, used_data, alloc, memo)
     scored = score(ctx, float(used.estimate.value), errors)
     per_variant = variant_scores(ctx, used, used_data, alloc, errors)
@@ -209,6 +254,11 @@ def run_recipe(
     details = details_json(
         ctx, per_variant, used.reports, used_data, alloc, errors, scored.verdict, cal_shots
     )
+    for t, sens in spreads:
+        own = details.get(t.details_key)
+        if isinstance(own, dict):
+            own[f"std_{t.name}_mha"] = abs(sens * t.std) * HA_TO_MHA
+            own[f"{t.name}_sensitivity_mha"] = sens * HA_TO_MHA
     return RecipeResult(
         recipe=parsed.name,
         spec=tuple(parsed.spec()),

@@ -21,8 +21,9 @@ from noiselab.common.errors import InputError, input_error
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, assess
+from noiselab.study.assess import assess
 from noiselab.study.cache import ResultsCache
+from noiselab.study.job import start_job
 from noiselab.study.results import (
     DEVICE_HOURS_HEADER,
     AssessResult,
@@ -33,7 +34,7 @@ from noiselab.study.results import (
     jsonable,
     rank_key,
 )
-from noiselab.study.spec import Study, load_study, study_from_mapping
+from noiselab.study.spec import Study, study_from_mapping
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -245,14 +246,14 @@ def compare(
     ``devices``: profile paths or shipped names (at least one; repeats are dropped). Every
     device is checked (found, enough qubits) before any computation.
     """
-    t0 = time.perf_counter()
     if not devices:
         raise input_error("--devices", "devices", "no device given", "one or more profiles")
-    base = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    base = base.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    base, store, t0 = job.study, job.store, job.t0
     paths = list(dict.fromkeys(resolve_device(str(d)) for d in devices))
     studies = [study_on_device(base, p) for p in paths]  # every refusal before any work
-    store = _default_cache(cache)
     results: list[AssessResult] = []
     for i, s in enumerate(studies):
         if progress is not None:

@@ -16,6 +16,9 @@ calibration once (drawn at its first evaluation and reused, as a real run calibr
 start), plus the final estimate's. Device time: ``noiselab.study.device_time`` (the rule
 ``assess`` uses too), per evaluation (its calibration once per repeat) and for the final
 estimate, with the rehearse section's ``circuit_overhead_s`` per circuit run.
+
+Just over 400 lines: the job's records, the optimizer driver, exact shot and device-time
+accounting and the final error split (the loop evaluator is :mod:`noiselab.study.loop`).
 """
 
 from __future__ import annotations
@@ -60,6 +63,7 @@ from noiselab.study.device_time import (
     seconds_per_shot,
     variant_durations_ns,
 )
+from noiselab.study.job import as_cache
 from noiselab.study.loop import (
     LoopEvaluator,
     RepeatResult,
@@ -231,8 +235,6 @@ def rehearse(
     ``shared``: a ``noiselab.study.rehearse_grid.SharedRuns``, emulations shared with other
     rehearsals of the same context (the grid).
     """
-    from noiselab.study.assess import _default_cache
-
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
@@ -240,7 +242,7 @@ def rehearse(
     final_passes = study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
     verify = recipes_verify([loop_passes, final_passes])
     if context is None:
-        context = build_context(study, cache=_default_cache(cache), verification=verify)
+        context = build_context(study, cache=as_cache(cache), verification=verify)
     ctx = with_verification(context, verify)
     for where, passes in (("rehearse.loop_recipe", loop_passes), ("final recipe", final_passes)):
         try:

@@ -24,6 +24,7 @@ from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.study.context import build_context, recipes_verify
+from noiselab.study.job import as_cache
 from noiselab.study.rehearse import OPTIMIZER_WORDS, RehearseResult, rehearse, resolve_settings
 from noiselab.study.rehearse_spec import DEFAULT_LOOP_NAME, DEFAULT_LOOP_RECIPE, RehearseGrid
 from noiselab.study.results import csv_text
@@ -201,8 +202,6 @@ def rehearse_grid(
     ``overrides``: keys of the ``rehearse:`` section applied to every setting (``iterations``,
     ``repeats``, ``seed``, ...; ``grid`` replaces the grid). ``analytic``: test-only.
     """
-    from noiselab.study.assess import _default_cache
-
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
@@ -210,7 +209,7 @@ def rehearse_grid(
     loops = _loop_recipes(study, grid)
     finals = [study.recipes[settings.final_recipe]] if settings.final_recipe else []
     verify = recipes_verify([*loops.values(), *finals])
-    ctx = build_context(study, cache=_default_cache(cache), verification=verify)
+    ctx = build_context(study, cache=as_cache(cache), verification=verify)
     shared = SharedRuns()
     base = {k: v for k, v in overrides.items() if v is not None and k != "grid"}
     combos = list(itertools.product(grid.optimizer, grid.shots_per_evaluation, loops))

@@ -5,8 +5,9 @@ from __future__ import annotations
 
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, ConfigDict, Field, StrictInt, model_validator
+from pydantic import BaseModel, ConfigDict, Field, model_validator
 
+from noiselab.common.counts import MAX_SEED, Count
 from noiselab.mitigate.optimizers import (
     CobylaOptions,
     NelderMeadOptions,
@@ -39,7 +40,7 @@ class RehearseGrid(BaseModel):
     """``rehearse.grid``: the settings ``rehearse --grid`` tries (every combination)."""
 
     model_config = ConfigDict(extra="forbid", frozen=True)
-    shots_per_evaluation: list[Annotated[StrictInt, Field(ge=10, le=10**9)]] = Field(
+    shots_per_evaluation: list[Annotated[Count, Field(ge=10, le=10**9)]] = Field(
         default=[500, 2000, 8000], min_length=1, max_length=16
     )
     optimizer: list[OptimizerName] = Field(default=["spsa", "cobyla"], min_length=1, max_length=4)
@@ -66,15 +67,15 @@ class RehearseSettings(BaseModel):
 
     model_config = ConfigDict(extra="forbid", frozen=True)
     optimizer: OptimizerName = "spsa"
-    iterations: StrictInt = Field(default=20, ge=1, le=100000)
-    shots_per_evaluation: StrictInt = Field(default=2000, ge=10, le=10**9)
+    iterations: Count = Field(default=20, ge=1, le=100000)
+    shots_per_evaluation: Count = Field(default=2000, ge=10, le=10**9)
     #: stop the loop once this many shots (calibration included) are spent; None: no cap
-    max_shots: StrictInt | None = Field(default=None, ge=1)
+    max_shots: Count | None = Field(default=None, ge=1)
     start: Literal["hartree_fock", "perturbed_optimum", "random"] = "hartree_fock"
     #: rad: the std of the perturbation of the noiseless optimum (start perturbed_optimum)
     perturbation_rad: float = Field(default=0.2, gt=0, le=3.2, allow_inf_nan=False)
-    repeats: StrictInt = Field(default=8, ge=1, le=1000)
-    seed: StrictInt = Field(default=0, ge=0, lt=2**32)
+    repeats: Count = Field(default=8, ge=1, le=1000)
+    seed: Count = Field(default=0, ge=0, le=MAX_SEED)
     #: the recipe of every in-loop evaluation (a list of passes, as under ``recipes:``)
     loop_recipe: list[dict[str, Any]] | None = None
     #: name of a study recipe for the final estimate at the study's shots; None: the loop recipe

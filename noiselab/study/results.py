@@ -3,6 +3,10 @@
 Energies in Hartree (``_ha``), biases and standard errors in milli-Hartree (``_mha``). The JSON
 form is deterministic for a given study and seed: timings and cache statistics are kept apart
 (``RunStats``) and only added on request.
+
+Over 400 lines: the records of assess and tune (and the run statistics, context summary and
+ranking rule they share) are rebuilt from the cache by one ``_rebuild`` and written by one
+JSON/CSV code path; keeping them together keeps that one round trip in one place.
 """
 
 from __future__ import annotations
@@ -223,6 +227,14 @@ def verdict_line(
             f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
             "with more shots."
         )
+    elif str(best.limited_by) == "learning":
+        ec = details.get("error_cancellation") or {}
+        std = ec.get("std_learning_mha")
+        learn = f" ({float(std):.3g} mHa)" if std is not None else ""
+        text = (
+            f"{head}: the uncertainty of its learned noise model{learn} does not shrink with "
+            "more shots."
+        )
     else:
         text = f"{head}: its bias keeps it out of reach at any shot count."
     return False, _with_amplification(text, best)
@@ -277,8 +289,40 @@ def training_line(result: Any) -> str | None:
     )
 
 
+def learning_line(result: Any) -> str | None:
+    """One line stating what an error-cancellation result assumes of its learned noise model
+    (None for other results)."""
+    details = getattr(result, "details", None) or {}
+    ec = details.get("error_cancellation") if isinstance(details, Mapping) else None
+    if not isinstance(ec, Mapping):
+        return None
+    error = float(ec.get("learning_error", 0.0))
+    systematic = (
+        "no systematic error (learning_error 0)"
+        if error == 0.0
+        else f"a systematic error of {error * 100:+.3g} % (learning_error, in the bias)"
+    )
+    spread = float(ec.get("learning_spread", 0.0))
+    if spread == 0.0:
+        return (
+            f"Noise model assumed: the learned Pauli model's rates carry {systematic} and no "
+            "random error (learning_spread 0: learned without statistical error, which favours "
+            "the experiment)."
+        )
+    std = ec.get("std_learning_mha")
+    cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
+    return (
+        f"Noise model assumed: the learned Pauli model's rates carry {systematic} and a "
+        f"{spread * 100:.3g} % random error (1 std, learning_spread{cost})."
+    )
+
+
 def _with_amplification(text: str, result: Any) -> str:
-    lines = [line for line in (amplification_line(result), training_line(result)) if line]
+    lines = [
+        line
+        for line in (amplification_line(result), training_line(result), learning_line(result))
+        if line
+    ]
     return " ".join([text, *lines])
 
 

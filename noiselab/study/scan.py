@@ -28,6 +28,10 @@ the lowest point's neighbours: equilibrium coordinate and curvature (spline's se
 there, Ha per unit^2). Not given when the lowest point is the scan's first or last. Error bars:
 linear propagation of each point's standard error through the fit (finite differences). The
 first-minus-last energy difference E(first) - E(last) with sqrt(s_first^2 + s_last^2).
+
+Over 400 lines: the axis (geometry moves), the warm-started point tasks, the resumable point
+cache and the curve fits of one job; the records and their JSON stay beside the fits that
+fill them.
 """
 
 from __future__ import annotations
@@ -53,11 +57,12 @@ from noiselab.chem.molecule import compute_problem, molecule_from_mapping
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
 from noiselab.chem.stability import hf_stability
 from noiselab.common.atomic import write_text_atomic
+from noiselab.common.counts import Count, parse_count
 from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, check_recipes, resolve_study, run_recipes
+from noiselab.study.assess import check_recipes, run_recipes
 from noiselab.study.cache import (
     CachingRunner,
     ResultsCache,
@@ -68,6 +73,7 @@ from noiselab.study.cache import (
 )
 from noiselab.study.context import _optimum_key, ansatz_circuit, build_context, recipes_verify
 from noiselab.study.executor import make_executor
+from noiselab.study.job import start_job
 from noiselab.study.results import RunStats, csv_text, jsonable
 from noiselab.study.spec import Study
 from noiselab.study.sweep import chosen_recipes
@@ -95,8 +101,8 @@ class ScanSection(BaseModel):
     scale: bool = False
     start: float | None = Field(default=None, allow_inf_nan=False, gt=0)
     stop: float | None = Field(default=None, allow_inf_nan=False, gt=0)
-    points: int = Field(default=9, ge=2, le=MAX_POINTS)
-    refine: int = Field(default=2, ge=0, le=MAX_REFINE)
+    points: Count = Field(default=9, ge=2, le=MAX_POINTS)
+    refine: Count = Field(default=2, ge=0, le=MAX_REFINE)
     recipes: list[str] | None = None
 
 
@@ -209,8 +215,8 @@ def scan_axis(
     start = section.start if start is None else start
     stop = section.stop if stop is None else stop
     start, stop = (lo_d if start is None else float(start)), (hi_d if stop is None else float(stop))
-    points = section.points if points is None else int(points)
-    refine = section.refine if refine is None else int(refine)
+    points = section.points if points is None else parse_count(points, "--points", 2, MAX_POINTS)
+    refine = section.refine if refine is None else parse_count(refine, "--refine", 0, MAX_REFINE)
     for key, v in (("--from", start), ("--to", stop)):
         if not math.isfinite(v) or v <= 0:
             raise input_error(
@@ -616,14 +622,15 @@ def scan(
     ``recipes``: the study's recipes to follow (raw always first; default the scan: section's,
     else all). ``on_point(point)`` runs in the calling process as each point finishes.
     """
-    t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     axis = scan_axis(study, bond, scale, start, stop, points, refine)
     if recipes is None:
         section = study.raw.get("scan") if isinstance(study.raw, dict) else None
         recipes = (section or {}).get("recipes")
     picked = chosen_recipes(study, recipes)
-    store = _default_cache(cache)
     for v in (axis.start, axis.stop):  # refuse a bad geometry before any work
         study_at(study, axis, v)
     done: dict[float, ScanPoint] = {}

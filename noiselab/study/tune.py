@@ -12,7 +12,6 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import json
-import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
@@ -21,18 +20,17 @@ from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import InputError
 from noiselab.mitigate.recipe import EstimateMemo, parse_recipe, run_recipe
 from noiselab.mitigate.registry import make_pass
-from noiselab.study.assess import (
-    _default_cache,
+from noiselab.study.cache import CachingRunner, ResultsCache, job_key
+from noiselab.study.context import StudyContext, build_context, with_verification
+from noiselab.study.grid import DEFAULT_AXES, NONE, REGRESSION, Grid, check_axes
+from noiselab.study.job import (
     job_fields,
     load_job_result,
     override_key_options,
-    resolve_study,
+    own_executor,
     save_job_result,
+    start_job,
 )
-from noiselab.study.cache import CachingRunner, ResultsCache, job_key
-from noiselab.study.context import StudyContext, build_context, with_verification
-from noiselab.study.executor import make_executor
-from noiselab.study.grid import DEFAULT_AXES, NONE, REGRESSION, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -254,10 +252,11 @@ def tune(
     ``cluster``: a Dask scheduler address (``tcp://HOST:PORT``) or ``distributed.Client``.
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     """
-    t0 = time.perf_counter()
-    store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
@@ -269,10 +268,7 @@ def tune(
         stored = load_job_result(store, key, TuneResult, t0)
         if stored is not None:
             return stored
-    own_executor = executor is None
-    if executor is None:  # before the (slow) context: a bad cluster address fails at once
-        executor = make_executor(workers, cluster)
-    try:
+    with own_executor(workers, cluster, executor) as ex:
         # the verification bases are measured only when a setting may verify
         verify = "verify" in resolved.postselect
         ctx = (
@@ -294,18 +290,14 @@ def tune(
             if progress is not None:
                 progress("simulating circuit variants", done, total)
 
-        runner.prefetch(variants, executor, on_done=sim_progress)
-    finally:
-        if own_executor:
-            executor.close()
+        runner.prefetch(variants, ex, on_done=sim_progress)
+        described = str(getattr(ex, "description", "in-process"))
 
     # settings that differ only in their extrapolation share each variant's corrected estimate
     memo = EstimateMemo()
     results: list[tuple[Setting, Any]] = []
     for i, s in enumerate(settings):
-        result = run_recipe(
-            list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator, memo=memo
-        )
+        result = run_recipe(list(s.passes), ctx.experiment, runner, memo=memo)
         results.append((s, result))
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
@@ -321,7 +313,7 @@ def tune(
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
-    stats = RunStats.of_runner(runner, t0, getattr(executor, "description", "in-process"))
+    stats = RunStats.of_runner(runner, t0, described)
     result = TuneResult(
         entries=entries,
         distinct_variants=len(runner.requested),

@@ -5,7 +5,11 @@ PRL 119, 180509 (2017); learned-model variant: van den Berg, Minev, Kandala and 
 The *learned model* of each noisy operation is the Pauli twirl of the profile's channel for it
 (every native gate on its qubits, and with ``idle`` the relaxation over every scheduled delay),
 restricted to the channel parts in ``learned``, with every error rate off by the relative
-``learning_error``. Over a gate's own qubits this is the sparse Pauli-Lindblad model of van den
+``learning_error`` (systematic: in the bias). ``learning_spread`` is the random relative error of
+the learned rates in a real run: a :class:`~noiselab.mitigate.base.SpreadTerm` whose
+``std_learning_mha`` (the energy's central difference at ``learning_error`` -+ ``LEARNING_STEP``,
+two more exact emulations, times the spread) enters ``std_mha``; limited_by "learning" when it
+keeps P low. Over a gate's own qubits this is the sparse Pauli-Lindblad model of van den
 Berg et al. with all its generators, without crosstalk between gates. Its inverse is a
 quasi-probability distribution q over Pauli corrections after the operation
 (:mod:`noiselab.mitigate.pauli_model`), whose 1-norm C = sum |q| is its sampling cost (written
@@ -48,6 +52,7 @@ from noiselab.mitigate.base import (
     CorrectedDistribution,
     MitigationPass,
     PassOptions,
+    SpreadTerm,
     VariantData,
     Workspace,
 )
@@ -61,6 +66,11 @@ ChannelPart = Literal["relaxation", "depolarizing", "coherent"]
 ALL_PARTS: tuple[str, ...] = ("relaxation", "depolarizing", "coherent")
 #: Largest relative learning error (10 = rates learned 11 x too large).
 MAX_LEARNING_ERROR = 10.0
+#: Default relative standard deviation of the learned rates in a real run (common practice, no
+#: source: a learned Pauli model's rates are known to a few per cent from its fits).
+DEFAULT_LEARNING_SPREAD = 0.05
+#: Relative learning-error step of the central difference behind ``std_learning_mha``.
+LEARNING_STEP = 0.05
 
 
 class CancellationOptions(PassOptions):
@@ -70,6 +80,14 @@ class CancellationOptions(PassOptions):
         le=MAX_LEARNING_ERROR,
         allow_inf_nan=False,
         description="relative error of every learned Pauli error rate (0: exact model)",
+    )
+    learning_spread: float = Field(
+        default=DEFAULT_LEARNING_SPREAD,
+        ge=0.0,
+        lt=1.0,
+        allow_inf_nan=False,
+        description="relative standard deviation of the learned rates in a real run (random: "
+        "enters std_mha as std_learning_mha; 0: a model learned exactly)",
     )
     learned: tuple[ChannelPart, ...] = Field(
         default=ALL_PARTS, description="parts of each gate's channel in the learned model"
@@ -199,6 +217,7 @@ class CancellationReport(PassReport):
     learning_error: float
     learned: tuple[str, ...]
     idle: bool
+    learning_spread: float = 0.0
 
     def out_of_model(self) -> list[str]:
         out = ["non-Pauli part of every channel (coherent rotations, amplitude damping)"]
@@ -219,6 +238,7 @@ class CancellationReport(PassReport):
                 "quasi_norm_idle": dict(self.quasi_norm_idle),
                 "corrections": dict(self.corrections),
                 "learning_error": self.learning_error,
+                "learning_spread": self.learning_spread,
                 "learned": list(self.learned),
                 "idle": self.idle,
                 "out_of_model": self.out_of_model(),
@@ -251,6 +271,20 @@ class ErrorCancellationPass(MitigationPass):
 
     def transforms(self, ctx: Any) -> tuple[CircuitTransform, ...]:
         return (self.model(ctx),)
+
+    def spread_terms(self, ctx: Any) -> tuple[SpreadTerm, ...]:
+        """The learned rates' random relative error ``learning_spread``: as a learning error,
+        (1 + e)(1 + d) - 1 with d ~ N(0, spread), i.e. a standard deviation spread (1 + e)."""
+        o = self.options
+        e = float(o.learning_error)
+        lo, hi = max(e - LEARNING_STEP, -0.9), min(e + LEARNING_STEP, MAX_LEARNING_ERROR)
+        base = o.model_dump()
+
+        def at(value: float) -> ErrorCancellationPass:
+            return ErrorCancellationPass(CancellationOptions(**{**base, "learning_error": value}))
+
+        std = float(o.learning_spread) * (1.0 + e)
+        return (SpreadTerm("learning", at(lo), at(hi), (hi - lo) / 2.0, std, self.name),)
 
     def check(self, ctx: Any, where: str) -> None:
         k = ctx.compiled.circuit.num_qubits + 1
@@ -292,6 +326,7 @@ class ErrorCancellationPass(MitigationPass):
             learning_error=float(self.options.learning_error),
             learned=tuple(self.options.learned),
             idle=bool(self.options.idle),
+            learning_spread=float(self.options.learning_spread),
         )
         return Corrected(out, report)
 
