@@ -28,6 +28,7 @@ from noiselab.study.spec import (
     LayeredAnsatz,
     StudyFile,
     SweepDefaults,
+    TruncationSettings,
     TuneGrid,
     UccsdAnsatz,
 )
@@ -49,6 +50,7 @@ STUDY_MODELS: list[tuple[str, type[BaseModel]]] = [
     ("sweep", SweepDefaults),
     ("scan", ScanSection),
     ("emulation", EmulationSettings),
+    ("emulation.truncation", TruncationSettings),
     ("rehearse", RehearseSettings),
     ("rehearse.grid", RehearseGrid),
     ("rehearse.spsa", SpsaOptions),

@@ -32,6 +32,7 @@ from qiskit import QuantumCircuit
 from scipy.optimize import minimize
 
 from noiselab.chem.encode import QubitProblem
+from noiselab.chem.fermion import ENCODINGS
 from noiselab.chem.spin import spin_squared_op
 from noiselab.chem.statevector import compile_statevector
 from noiselab.common.errors import InputError
@@ -156,7 +157,11 @@ def optimize_noiseless(
     x, e, ok = min(runs, key=lambda r: r[1])
     x.setflags(write=False)
     low = sorted(energies)
-    s2 = program.expectation(spin_squared_op(qubit_problem).to_matrix(sparse=True), x)
+    s2 = (  # a qubit-operator file (no fermionic encoding) has no spin operator
+        program.expectation(spin_squared_op(qubit_problem).to_matrix(sparse=True), x)
+        if qubit_problem.encoding in ENCODINGS
+        else None
+    )
     return OptimizationResult(
         parameters=x,
         energy_ha=e,
@@ -170,7 +175,7 @@ def optimize_noiseless(
         replaced_starts=replaced,
         stopped=stopped,
         spread_mha=(low[1] - low[0]) * 1000.0 if len(low) >= 2 else None,
-        spin_squared=float(s2),
+        spin_squared=None if s2 is None else float(s2),
     )
 
 

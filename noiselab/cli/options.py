@@ -115,7 +115,8 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         _option(
             "--method",
             help="Emulation method: auto (density matrix while it fits in memory, else Monte "
-            "Carlo trajectories), density_matrix (exact; refuse when too large) or trajectory. "
+            "Carlo trajectories), density_matrix (exact; refuse when too large), trajectory or "
+            "pauli_propagation (assess only; twirled noise, raw and per-qubit readout recipes). "
             "Default: the study's emulation.method, else auto.",
         ),
         None,

@@ -1,4 +1,4 @@
-"""``noiselab profile check`` and ``noiselab profile show``: validate and inspect device profiles.
+"""``noiselab profile check``, ``show`` and ``import``: validate, inspect, import device profiles.
 
 Only typer is imported at start-up; pydantic/rich and the device layer are imported inside the
 command functions.
@@ -185,14 +185,93 @@ def show(file: ProfileArg) -> None:
         typer.echo(f"noiselab: warning: {line}", err=True)
 
 
+def _drift_table(imported: Any) -> Any:
+    from rich.table import Table
+
+    table = Table(
+        title=f"Day-to-day spread per channel over {imported.tables} calibration tables "
+        "(relative std., pooled over qubits or pairs)"
+    )
+    for head in ("drift key", "relative std.", "elements", "smallest", "largest"):
+        table.add_column(head, justify="right")
+    for row in imported.drift:
+        table.add_row(
+            row.key,
+            "-" if row.rel_std is None else f"{row.rel_std:.3g}",
+            str(row.elements),
+            "-" if row.smallest is None else f"{row.smallest:.3g}",
+            "-" if row.largest is None else f"{row.largest:.3g}",
+        )
+    return table
+
+
+def import_tables(
+    tables: Annotated[
+        list[Path],
+        typer.Argument(
+            help="Calibration table files (.csv or .json), one per calibration (day).",
+            show_default=False,
+        ),
+    ],
+    out: Annotated[
+        Path,
+        typer.Option("--to", help="Profile YAML file to write (.yaml).", show_default=False),
+    ],
+    name: Annotated[
+        str | None,
+        typer.Option(
+            "--name", help="Device name (default: the --to file's name).", show_default=False
+        ),
+    ] = None,
+    two_qubit_gate: Annotated[
+        str, typer.Option("--two-qubit-gate", help="Native two-qubit gate: cz, cx or ecr.")
+    ] = "cz",
+    description: Annotated[
+        str | None, typer.Option("--description", help="Description line of the profile.")
+    ] = None,
+) -> None:
+    """Write a device profile from calibration tables (format: noiselab.device.caltable).
+
+    Several tables (days): per-qubit medians and a drift block of the measured spreads.
+    Prints what the tables could not fill, the profile's warnings and the spread table.
+
+    Example: noiselab profile import configs/calibration/lanternfield-5-day*.* --to lf5.yaml
+    """
+    from rich.console import Console
+
+    from noiselab.common.atomic import write_text_atomic
+    from noiselab.device.caltable import read_calibration_table
+    from noiselab.device.profile_import import profile_from_tables
+
+    if out.suffix.lower() not in (".yaml", ".yml") or out.is_dir():
+        raise InputError(f"--to: {out}: not a .yaml file path; allowed: a file ending in .yaml")
+    read = [read_calibration_table(t) for t in tables]
+    imported = profile_from_tables(
+        read, name if name is not None else out.stem, str(out), two_qubit_gate, description
+    )
+    write_text_atomic(out, imported.text)
+    for line in imported.notes:
+        typer.echo(f"import note: {line}")
+    for line in imported.warnings:
+        typer.echo(f"noiselab: warning: {line}", err=True)
+    if imported.drift:
+        Console(width=max(100, Console().width)).print(_drift_table(imported))
+    p = imported.profile
+    typer.echo(
+        f"wrote {out}: device '{p.name}', {p.qubit_count} qubits, {len(p.pairs())} links, "
+        f"from {imported.tables} table(s); {len(imported.warnings)} warning(s)"
+    )
+
+
 def register(app: typer.Typer) -> None:
     """Add the ``profile`` command group to the main app."""
     group = typer.Typer(
         name="profile",
-        help="Validate and inspect device noise profiles (YAML).",
+        help="Validate, inspect and import device noise profiles (YAML).",
         no_args_is_help=True,
         add_completion=False,
     )
     group.command("check")(check)
     group.command("show")(show)
+    group.command("import")(import_tables)
     app.add_typer(group, name="profile")

@@ -27,6 +27,11 @@ _EXPORTS = {
     "compile_ensemble": "compile",
     "CompileEnsemble": "compile",
     "select_patch": "compile",
+    "profile_from_target": "qiskit_target",
+    "profile_to_target": "qiskit_target",
+    "aer_simulator": "qiskit_target",
+    "read_calibration_table": "caltable",
+    "profile_from_tables": "profile_import",
 }
 
 __all__ = sorted(_EXPORTS)

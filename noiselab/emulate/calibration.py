@@ -145,3 +145,32 @@ def calibration_distributions(
         patch=patch,
         measured=tuple(qubits),
     )
+
+
+def per_qubit_assignment(
+    profile: Any, patch: Sequence[int], measured: Sequence[int], noise_model: Any = None
+) -> list[np.ndarray]:
+    """Exact 2x2 matrices ``A_l[reported, prepared]`` that the all-0 and all-1 calibration
+    circuits of :func:`calibration_distributions` give for each measured qubit l (its
+    marginals), without forming any 2**n distribution; readout crosstalk (joint flips) is left
+    out, so this equals the marginals of ``calibration_distributions`` only without crosstalk."""
+    patch = tuple(int(q) for q in patch)
+    k = len(patch)
+    qubits = [int(c) for c in measured]
+    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
+    spec = layer_spec_for(profile, k)
+    flip = native_basis_change("FLIP", spec.native_1q)
+    flip_ns = {c: sum(spec.duration_ns(g, c) for g, _ in flip) for c in qubits}
+    layer_ns = max(flip_ns.values(), default=0.0)  # the all-1 state flips every qubit at once
+    ground = np.array([1.0, 0, 0, 0], dtype=complex)
+    mats, _ = logical_readout(profile, patch, qubits)
+    out = []
+    for l, c in enumerate(qubits):
+        cols = []
+        for gates, ns in (((), 0.0), (flip, layer_ns)):
+            sop = qubit_layer_superop(nm, k, c, gates, ns, spec)
+            rho = (sop @ ground).reshape(2, 2, order="F")
+            pop = np.clip(np.real(np.diag(rho)), 0.0, 1.0)
+            cols.append(np.asarray(mats[l], dtype=float) @ (pop / pop.sum()))
+        out.append(np.column_stack(cols))
+    return out

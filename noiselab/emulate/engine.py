@@ -180,6 +180,11 @@ def choose_method(
     num_circuit_qubits: int, method: str, *, max_density_matrix_qubits: int | None = None
 ) -> tuple[str, str | None]:
     """``(method, notice)``: resolve "auto" with the memory guard; refuse impossible requests."""
+    if method == "pauli_propagation":  # no distributions: noiselab.study.pauli_assess only
+        raise InputError(
+            "emulation: method: pauli_propagation serves assess only (raw and per-qubit readout "
+            f"recipes); allowed for this job: {', '.join(METHODS)}"
+        )
     if method not in METHODS:
         raise InputError(f"emulation: method: {method!r}; allowed: {', '.join(METHODS)}")
     k = num_circuit_qubits

@@ -69,14 +69,19 @@ def _twirled(error: object, qubits: tuple[int, ...]) -> PauliDiagonal:
     return PauliDiagonal(qubits, twirled_fidelities(kraus, len(qubits)))
 
 
-def measured_qubit_observable(effects: np.ndarray, readout: np.ndarray | None) -> np.ndarray:
+def measured_qubit_observable(
+    effects: np.ndarray, readout: np.ndarray | None, values: np.ndarray | None = None
+) -> np.ndarray:
     """Pauli coefficients (index 0..3 as I, X, Z, Y by ``x + 2 z``) of the single-qubit
-    observable ``sum_m (-1)^m sum_b R[m, b] E^b`` a measurement of this qubit reports.
+    observable ``sum_m v_m sum_b R[m, b] E^b`` a measurement of this qubit reports.
 
     ``effects[b]`` (2x2): the Heisenberg image of ``|b><b|`` through the basis layer;
-    ``readout[m, b]``: probability to report m when the qubit is in b (None: ideal)."""
+    ``readout[m, b]``: probability to report m when the qubit is in b (None: ideal);
+    ``values[m]``: what the estimator assigns to outcome m (None: the eigenvalue (-1)^m; a
+    per-qubit readout correction assigns ``A^-T (1, -1)``)."""
     r = np.eye(2) if readout is None else np.asarray(readout, dtype=float)
-    m_op = sum(((-1) ** m) * r[m, b] * effects[b] for m in (0, 1) for b in (0, 1))
+    v = np.array([1.0, -1.0]) if values is None else np.asarray(values, dtype=float)
+    m_op = sum(v[m] * r[m, b] * effects[b] for m in (0, 1) for b in (0, 1))
     return np.array([np.real(np.trace(pauli_matrix(i, 1) @ m_op)) / 2 for i in range(4)])
 
 
@@ -86,6 +91,7 @@ def basis_observable(
     circuit_qubit: Sequence[int],
     min_abs_coeff: float = 0.0,
     tag: int = 0,
+    squared: Mapping[int, np.ndarray] | None = None,
 ) -> tuple[PauliTerms, float]:
     """``sum_t h_t prod_{q in supp t} M_q`` as Pauli strings on the circuit's qubits, and the
     sum of the ``|c|`` dropped while expanding.
@@ -94,7 +100,9 @@ def basis_observable(
     qubit l in this basis (from :func:`measured_qubit_observable`); ``circuit_qubit[l]``: its
     position in the circuit. A partial product below ``min_abs_coeff`` is dropped: every M has
     operator norm at most 1 (a +-1 outcome's observable), so what it would have become is
-    bounded by its ``|c|`` (the dropped sum joins the truncation bound)."""
+    bounded by its ``|c|`` (the dropped sum joins the truncation bound; a caller whose M may
+    exceed norm 1 scales it). A lowercase letter in a label stands for the squared outcome of
+    that qubit, ``squared[l]`` (None: lowercase letters are the identity, as for +-1 outcomes)."""
     if not terms:
         empty = np.zeros(0, dtype=np.uint64)
         return PauliTerms(empty, empty, np.zeros(0), np.zeros(0, dtype=np.int64)), 0.0
@@ -104,25 +112,34 @@ def basis_observable(
     z = np.zeros(len(terms), dtype=np.uint64)
     c = np.array([float(h) for _, h in terms])
     dropped = 0.0
+    lower = np.char.islower(letters)  # squared outcomes
     for logical in range(letters.shape[1]):
-        acting = letters[row, logical] != "I"
-        if not acting.any():
+        col, low = letters[row, logical], lower[row, logical]
+        acting = (col != "I") & ~low
+        kinds = [(acting, qubit_observables.get(logical))]
+        if squared is not None:
+            kinds.append((low, squared.get(logical)))
+        touched = acting | low if squared is not None else acting
+        if not touched.any():
             continue
-        m = np.asarray(qubit_observables[logical], dtype=float)
         bit = np.uint64(int(circuit_qubit[logical]))
-        xa, za, ca, ra = x[acting], z[acting], c[acting], row[acting]
-        parts = [(x[~acting], z[~acting], c[~acting], row[~acting])]
-        for idx in range(4):
-            if m[idx] == 0.0:
+        parts = [(x[~touched], z[~touched], c[~touched], row[~touched])]
+        for mask, mo in kinds:
+            if not mask.any():
                 continue
-            parts.append(
-                (
-                    xa | (np.uint64(idx & 1) << bit),
-                    za | (np.uint64(idx >> 1) << bit),
-                    ca * m[idx],
-                    ra,
+            m = np.asarray(mo, dtype=float)
+            xa, za, ca, ra = x[mask], z[mask], c[mask], row[mask]
+            for idx in range(4):
+                if m[idx] == 0.0:
+                    continue
+                parts.append(
+                    (
+                        xa | (np.uint64(idx & 1) << bit),
+                        za | (np.uint64(idx >> 1) << bit),
+                        ca * m[idx],
+                        ra,
+                    )
                 )
-            )
         x, z, c, row = (np.concatenate([p[k] for p in parts]) for k in range(4))
         small = np.abs(c) < min_abs_coeff
         if small.any():
@@ -152,6 +169,7 @@ def pauli_energy(
     readout: Sequence[np.ndarray] | None,
     rule: Truncation = EXACT,
     constant_ha: float = 0.0,
+    outcome_values: Sequence[np.ndarray] | None = None,
 ) -> PauliEnergy:
     """Energy and per-shot variance of each measured group.
 
@@ -159,7 +177,11 @@ def pauli_energy(
     term qubit-wise compatible with its basis; ``readout[l]``: 2x2 assignment matrix of logical
     qubit l (None: ideal). The variance of a group's single-shot estimator ``sum_t h_t o_t`` is
     ``E[(sum h o)^2] - E[sum h o]^2``; each product ``o_t o_s`` of outcomes is the measured
-    observable on the qubits where exactly one of t, s acts, so both moments are propagated."""
+    observable on the qubits where exactly one of t, s acts, so both moments are propagated.
+    ``outcome_values[l]``: the values (for reported 0, 1) the estimator gives logical qubit l's
+    outcome (None: +-1; a per-qubit readout correction ``A_l^-T (1, -1)``); then a shared
+    qubit of o_t o_s contributes its squared value, and the partial products dropped while
+    expanding are bounded with each M's norm bound (sum of |Pauli coefficients|)."""
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
@@ -169,18 +191,31 @@ def pauli_energy(
     for g, (basis, terms) in enumerate(groups):
         measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
         layer_ns = layer_duration_ns(measured, layer)
+        active = [(l, ch) for l, ch in enumerate(reversed(basis)) if ch != "I"]
         observables = {
-            l: measured_qubit_observable(
-                cache.get(int(circuit_qubit[l]), ch, layer_ns),
-                None if readout is None else readout[l],
-            )
-            for l, ch in enumerate(reversed(basis))
-            if ch != "I"
+            l: _qubit_observable(cache, circuit_qubit, readout, outcome_values, l, ch, layer_ns, 1)
+            for l, ch in active
         }
+        squared = None
+        if outcome_values is not None:
+            squared = {
+                l: _qubit_observable(
+                    cache, circuit_qubit, readout, outcome_values, l, ch, layer_ns, 2
+                )
+                for l, ch in active
+            }
         # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
         first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
+        if outcome_values is not None and lost[g] > 0:  # an M of norm > 1 may follow a cut
+            norm = max(1.0, *(float(np.abs(m).sum()) for m in observables.values()))
+            lost[g] *= norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
         second, _ = basis_observable(
-            _squared_terms(terms), observables, circuit_qubit, cut, 2 * g + 1
+            _squared_terms(terms, outcome_values is not None),
+            observables,
+            circuit_qubit,
+            cut,
+            2 * g + 1,
+            squared,
         )
         parts += [first, second]
     result = propagate(PauliTerms.join(parts), program, rule)
@@ -198,14 +233,41 @@ def pauli_energy(
     )
 
 
-def _squared_terms(terms: Sequence[tuple[str, float]]) -> list[tuple[str, float]]:
-    """``(sum_t h_t o_t)^2`` as outcome products: o_t o_s acts where exactly one of t, s does."""
+def _qubit_observable(
+    cache: EffectCache,
+    circuit_qubit: Sequence[int],
+    readout: Sequence[np.ndarray] | None,
+    outcome_values: Sequence[np.ndarray] | None,
+    logical: int,
+    letter: str,
+    layer_ns: float,
+    power: int,
+) -> np.ndarray:
+    """:func:`measured_qubit_observable` of one logical qubit with its outcome values**power."""
+    values = None if outcome_values is None else np.asarray(outcome_values[logical]) ** power
+    return measured_qubit_observable(
+        cache.get(int(circuit_qubit[logical]), letter, layer_ns),
+        None if readout is None else readout[logical],
+        values,
+    )
+
+
+def _squared_terms(
+    terms: Sequence[tuple[str, float]], mark_shared: bool = False
+) -> list[tuple[str, float]]:
+    """``(sum_t h_t o_t)^2`` as outcome products: o_t o_s acts where exactly one of t, s does;
+    with ``mark_shared`` a qubit where both act is a lowercase letter (its squared outcome)."""
+
+    def letter(a: str, b: str) -> str:
+        if a == "I" and b == "I":
+            return "I"
+        if a != "I" and b != "I":
+            return a.lower() if mark_shared else "I"
+        return a if a != "I" else b
+
     out: dict[str, float] = {}
     for lt, ht in terms:
         for ls, hs in terms:
-            label = "".join(
-                "I" if (a == "I") == (b == "I") else (a if a != "I" else b)
-                for a, b in zip(lt, ls, strict=True)
-            )
+            label = "".join(letter(a, b) for a, b in zip(lt, ls, strict=True))
             out[label] = out.get(label, 0.0) + ht * hs
     return list(out.items())

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import dataclasses
 import json
+import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -39,6 +40,9 @@ from noiselab.study.job import (
     save_job_result,
     start_job,
 )
+from noiselab.study.pauli_assess import METHOD as PAULI_METHOD
+from noiselab.study.pauli_assess import NOTICE as PAULI_NOTICE
+from noiselab.study.pauli_assess import pauli_recipes
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study
 
@@ -77,6 +81,11 @@ def run_recipes(
     label: str = "recipes",
 ) -> dict[str, Any]:
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
+    if ctx.emulation_method == PAULI_METHOD:  # no distributions to run recipes on
+        raise InputError(
+            f"{ctx.study.source}: emulation.method: {PAULI_METHOD} is available to assess only "
+            "(raw and per-qubit readout recipes); allowed here: density_matrix, trajectory, auto"
+        )
     out: dict[str, Any] = {}
     total = len(recipes)
     if progress is not None:
@@ -116,7 +125,13 @@ def assess(
     drift = int(drift) if drift else 0
     # every input is read (bounded) and validated before the cache key reads the files again
     job = start_job(
-        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+        study_or_path,
+        cache,
+        seed=seed,
+        shots=shots,
+        method=method,
+        trajectories=trajectories,
+        pauli_ok=True,
     )
     study, store, t0 = job.study, job.store, job.t0
     key = None
@@ -132,6 +147,10 @@ def assess(
         ctx = with_verification(context, recipes_verify(study.recipes.values()))
     else:  # measures the verification bases exactly when a recipe verifies
         ctx = build_context(study, cache=store, progress=progress)
+    if ctx.emulation_method == PAULI_METHOD:
+        result = _assess_pauli(study, ctx, drift, t0)
+        save_job_result(store, key, result)
+        return result
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
     with naming_source(study.source):
@@ -170,6 +189,44 @@ def assess(
     )
     save_job_result(store, key, result)
     return result
+
+
+def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> AssessResult:
+    """assess under ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess)."""
+    if drift:
+        raise InputError(f"--drift: not available with {PAULI_METHOD}; allowed: 0")
+    with naming_source(study.source):
+        t = time.perf_counter()
+        results = pauli_recipes(ctx)
+        seconds = time.perf_counter() - t
+    best = best_of(results)
+    overhead_s = circuit_overhead_s(study)
+    reachable, verdict = verdict_line(
+        best, results[best], study.target_mha, study.confidence, study.shots
+    )
+    verdict = with_optimizer_caveat(verdict, ctx.warnings)
+    stats = RunStats(0, 0, seconds, time.perf_counter() - t0)
+    fields = job_fields(study, ctx, stats)
+    bounds = ", ".join(
+        f"{name} {r.details['truncation_bound_mha']:.3g} mHa" for name, r in results.items()
+    )
+    notice = f"{PAULI_NOTICE}; truncation bound: {bounds}"
+    if any("calibration_note" in r.details for r in results.values()):
+        notice += (
+            "; the readout recipes' std leaves out the finite calibration's variance "
+            "(optimistic: exact calibration matrices)"
+        )
+    fields["emulation_notice"] = notice
+    return AssessResult(
+        recipes=results,
+        passes=dict(study.recipes),
+        best_recipe=best,
+        reachable=reachable,
+        verdict=verdict,
+        **fields,
+        device_hours=recipes_device_hours(ctx.experiment, study.recipes, results, overhead_s),
+        device_time=device_time_inputs(study.profile, overhead_s),
+    )
 
 
 def circuit_overhead_s(study: Study) -> float:

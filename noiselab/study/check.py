@@ -13,7 +13,7 @@ from dataclasses import dataclass
 from types import SimpleNamespace
 from typing import Any
 
-from noiselab.chem.molecule import molecule_sizes
+from noiselab.chem.molecule import MoleculeSpec, molecule_sizes
 from noiselab.common.memory import format_bytes, memory_budget
 from noiselab.device.compile import select_patch
 from noiselab.emulate.memory import estimate_memory_bytes
@@ -54,12 +54,20 @@ def _pass_words(spec: dict[str, Any]) -> str:
 def describe_study(study: Study) -> StudyOutline:
     """The study as the jobs will read it, and what running ``assess`` on it would cost."""
     m = study.molecule
-    sizes = molecule_sizes(m)
-    active = (
-        "every orbital"
-        if m.active_space is None
-        else f"{m.active_space.electrons} electrons in {m.active_space.orbitals} orbitals"
-    )
+    if isinstance(m, MoleculeSpec):
+        sizes = molecule_sizes(m)
+        active = (
+            "every orbital"
+            if m.active_space is None
+            else f"{m.active_space.electrons} electrons in {m.active_space.orbitals} orbitals"
+        )
+        problem = (
+            f"molecule: {_formula(m.geometry)}, basis {m.basis}, charge {m.charge}, spin "
+            f"{m.spin}, active space: {active} ({sizes.n_basis} basis functions, "
+            f"{sizes.n_determinants} determinants)"
+        )
+    else:  # integrals or a qubit Hamiltonian read from a file
+        problem = f"problem: read from a file ({type(m).__name__})"
     profile = study.profile
     chosen = select_patch(profile, study.num_qubits, study.layout)
     patch = (
@@ -91,7 +99,7 @@ def describe_study(study: Study) -> StudyOutline:
         trajectories_per_batch=max(1, e.trajectories // e.batches),
         num_batches=e.batches,
     )
-    steps = estimate_steps(m, study.ansatz, q)
+    steps = estimate_steps(m, study.ansatz, q) if isinstance(m, MoleculeSpec) else ()
     peak = max([emulation_bytes, *(s.bytes for s in steps)])
     n_var = len(variants)
     spread = n_var * (study.compile_seeds - 1) if study.compile_bias_spread else 0
@@ -100,12 +108,10 @@ def describe_study(study: Study) -> StudyOutline:
     budget = memory_budget()
     lines = (
         f"study {study.name} ({study.source})",
-        f"molecule: {_formula(m.geometry)}, basis {m.basis}, charge {m.charge}, spin {m.spin}, "
-        f"active space: {active} ({sizes.n_basis} basis functions, {sizes.n_determinants} "
-        "determinants)",
+        problem,
         f"qubits: {q} ({study.encoding}"
         + (", fixed parity qubits dropped" if study.drop_fixed_parity_qubits else "")
-        + f"), ansatz {study.ansatz.label()}",
+        + f"), ansatz {_label(study.ansatz)}",
         f"device: {profile.name} ({study.device_source}), {profile.qubit_count} qubits, "
         f"natives {', '.join(profile.native_gate_names)}; patch: {patch}",
         f"compile: optimization level {study.optimization_level}, transpiler seeds "
@@ -130,15 +136,22 @@ def describe_study(study: Study) -> StudyOutline:
             if any(p.get("pass") == "distillation" for ps in study.recipes.values() for p in ps)
             else ""
         ),
-        f"memory: peak about {format_bytes(peak)} (the largest of: emulation "
-        f"{format_bytes(emulation_bytes)}, "
-        + ", ".join(f"{s.step} {format_bytes(s.bytes)}" for s in steps)
+        f"memory: peak about {format_bytes(peak)} (the largest of: "
+        + ", ".join(
+            [f"emulation {format_bytes(emulation_bytes)}"]
+            + [f"{s.step} {format_bytes(s.bytes)}" for s in steps]
+        )
         + f"); {budget.describe()}",
         f"time: roughly {_duration(seconds)} for assess (scaled from the demo's measured "
         f"{DEMO_SECONDS_PER_SIMULATION:g} s per {DEMO_QUBITS}-qubit simulation, 4x per extra "
         "qubit; the noiseless optimizer and compiling come on top)",
     )
     return StudyOutline(lines, n_var, spread, peak, seconds)
+
+
+def _label(ansatz: Any) -> str:
+    label = getattr(ansatz, "label", None)
+    return str(label()) if callable(label) else type(ansatz).__name__
 
 
 def _duration(seconds: float) -> str:

@@ -16,9 +16,10 @@ from collections.abc import Callable, Iterable, Iterator, Mapping
 from typing import Any
 
 from noiselab.chem.ansatz import layered_circuit, uccsd_circuit
-from noiselab.chem.encode import encode
-from noiselab.chem.molecule import compute_problem
+from noiselab.chem.circuit_file import read_circuit_file
+from noiselab.chem.fermion import ENCODINGS
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optimum_warnings
+from noiselab.chem.sources import build_problem
 from noiselab.chem.spin import exact_spin_squared
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device.compile import compile_ensemble
@@ -29,7 +30,7 @@ from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
 from noiselab.study.preflight import preflight, resolve_emulation
 from noiselab.study.results import ContextSummary
-from noiselab.study.spec import LayeredAnsatz, Study
+from noiselab.study.spec import CircuitAnsatz, LayeredAnsatz, Study
 
 OPTIMUM_KIND = "noiseless-optimum-v3"
 
@@ -41,7 +42,7 @@ class StudyContext:
     """Everything a job needs about a study before any noise is applied."""
 
     study: Study
-    problem: Any  # noiselab.chem.molecule.ElectronicProblem
+    problem: Any  # noiselab.chem.molecule.ElectronicProblem (None: a qubit-operator file)
     qubit_problem: Any  # noiselab.chem.encode.QubitProblem
     ansatz_circuit: Any  # parameterized qiskit QuantumCircuit (logical qubits)
     optimum: Any  # noiselab.chem.optimize.OptimizationResult
@@ -107,6 +108,16 @@ class StudyContext:
 def ansatz_circuit(study: Study, qubit_problem: Any) -> Any:
     """The study's parameterized trial circuit on the logical qubits."""
     a = study.ansatz
+    if isinstance(a, CircuitAnsatz):
+        circuit, sha = read_circuit_file(a.file, f"circuit.file: {a.file}")
+        if sha != a.sha256:
+            raise input_error(
+                f"circuit.file: {a.file}",
+                None,
+                "the file changed after the study was read",
+                "an unchanged file (run again)",
+            )
+        return circuit
     if isinstance(a, LayeredAnsatz):
         n = int(qubit_problem.num_qubits)
         return layered_circuit(
@@ -219,8 +230,7 @@ def _build_context(
 
     tick(0)
     t = time.perf_counter()
-    problem = compute_problem(study.molecule)
-    qp = encode(problem, study.encoding, study.drop_fixed_parity_qubits)
+    problem, qp = build_problem(study.molecule, study.encoding, study.drop_fixed_parity_qubits)
     if qp.num_qubits != study.num_qubits:  # the study counted spin orbitals before PySCF ran
         raise input_error(
             str(study.source),
@@ -252,7 +262,8 @@ def _build_context(
             raise InputError(f"{study.source}: layout: {text.split('layout: ', 1)[1]}") from None
         raise
     compiled = ensemble.chosen
-    plan = build_plan(qp.hamiltonian)
+    # Pauli propagation reads terms, never the 2**n weight vectors (built lazily if asked)
+    plan = build_plan(qp.hamiltonian, dense=study.emulation.method != "pauli_propagation")
     seconds["compile"] = time.perf_counter() - t
     tick(3)
     experiment = make_experiment(study, qp, compiled, plan, optimum, verification)
@@ -312,10 +323,10 @@ def optimum_checks(study: Study, qp: Any, optimum: Any) -> tuple[float | None, t
     The exact S^2 needs the sector ground state; past the exact-diagonalization limit it is
     None and the spin check is skipped.
     """
-    try:
-        s2: float | None = exact_spin_squared(qp)
-    except ProblemTooLargeError:
-        s2 = None
+    s2: float | None = None
+    if qp.encoding in ENCODINGS:  # a qubit-operator file has no spin operator
+        with contextlib.suppress(ProblemTooLargeError):
+            s2 = exact_spin_squared(qp)
     return s2, optimum_warnings(optimum, qp, float(study.target_mha), s2)
 
 

@@ -15,6 +15,7 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
+from noiselab.common.errors import InputError
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.study.cache import JOB_KIND, ResultsCache, open_cache
 from noiselab.study.context import StudyContext
@@ -40,12 +41,26 @@ def start_job(
     shots: int | str | None = None,
     method: str | None = None,
     trajectories: int | str | None = None,
+    pauli_ok: bool = False,
 ) -> JobStart:
     """Start the clock, resolve the study with its overrides (one-line refusals before any
-    work), then open the results cache (``cache``: see :func:`as_cache`)."""
+    work), then open the results cache (``cache``: see :func:`as_cache`). ``pauli_ok``: the
+    job runs under ``emulation.method: pauli_propagation`` (assess only; others refuse it)."""
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    if not pauli_ok:
+        refuse_pauli_method(study)
     return JobStart(study, as_cache(cache), t0)
+
+
+def refuse_pauli_method(study: Study) -> None:
+    """Refuse in one line a job other than assess under ``emulation.method: pauli_propagation``
+    (it has no outcome distributions for the other jobs' recipes)."""
+    if study.emulation.method == "pauli_propagation":
+        raise InputError(
+            f"{study.source}: emulation.method: pauli_propagation serves assess only; allowed "
+            "for this job: auto, density_matrix, trajectory (--method)"
+        )
 
 
 def as_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCache:

@@ -70,10 +70,14 @@ MEANINGS: dict[str, str] = {
     # study: top level
     "name": "the study's name (used in outputs and figure titles)",
     "description": "free text shown in reports",
-    "molecule": "the molecule: atoms, basis, charge, spin, active space",
+    "molecule": "the molecule: atoms, basis, charge, spin, active space (one of molecule, "
+    "integrals, hamiltonian is required)",
     "encoding": "fermion-to-qubit encoding",
     "drop_fixed_parity_qubits": "drop the two qubits the parity encoding fixes (parity only)",
-    "ansatz": "the trial-state circuit (kind uccsd or layered)",
+    "ansatz": "the trial-state circuit (kind uccsd or layered; or circuit: a file)",
+    "integrals": "the problem from an integrals file instead of molecule: {fcidump: FILE}",
+    "hamiltonian": "the problem as a qubit Hamiltonian file instead of molecule: {file: FILE}",
+    "circuit": "the trial circuit from a file instead of ansatz: {file: FILE, ...}",
     "ansatz.kind": "which trial-state circuit",
     "device": "the device profile: a path relative to the study file, a shipped profile name "
     "(noiselab shipped) or an inline mapping with the profile keys",
@@ -139,8 +143,12 @@ MEANINGS: dict[str, str] = {
     "scan.recipes": "recipes to follow (names under recipes)",
     # emulation
     "emulation.method": "auto (density matrix while it fits, else trajectories), "
-    "density_matrix or trajectory",
+    "density_matrix, trajectory or pauli_propagation",
     "emulation.trajectories": "Monte Carlo trajectories per circuit variant",
+    "emulation.truncation": "truncation of the pauli_propagation method",
+    "emulation.truncation.min_abs_coeff": "drop Pauli strings whose |coefficient| (Ha) falls "
+    "below this",
+    "emulation.truncation.max_weight": "drop strings acting on more qubits (null: no weight cut)",
     "emulation.batches": "batches the trajectories are split into (their spread is the "
     "trajectory error bar)",
     "emulation.max_density_matrix_qubits": "widest circuit emulated as a density matrix "
@@ -553,10 +561,10 @@ def _study_rows(used: set[str]) -> Iterator[KeyInfo]:
                 yield from _walk(sub, name + more, used)
             continue
         if name == "molecule":
-            yield _section("molecule", "section", REQUIRED, used)
+            yield _section("molecule", "section", _default(field), used)
             yield from _walk(MoleculeSpec, "molecule", used)
         elif name == "ansatz":
-            yield _section("ansatz", "section", REQUIRED, used)
+            yield _section("ansatz", "section", _default(field), used)
             kind = KeyInfo(
                 "ansatz.kind",
                 "one of",

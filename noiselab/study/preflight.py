@@ -29,6 +29,7 @@ from dataclasses import dataclass
 from math import comb
 from typing import Any
 
+from noiselab.chem.sources import source_sizes
 from noiselab.common.errors import ProblemTooLargeError, input_error
 from noiselab.common.memory import GIB, memory_budget
 
@@ -66,9 +67,7 @@ def _uccsd_rotations(n_orb: int, n_alpha: int, n_beta: int, singles: bool, doubl
 
 def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEstimate, ...]:
     """Memory estimates of the exact-energy and optimizer steps (see the module docstring)."""
-    from noiselab.chem.molecule import molecule_sizes
-
-    sizes = molecule_sizes(molecule)
+    sizes = source_sizes(molecule)
     q = int(num_qubits)
     n_spin = 2 * sizes.n_orb
     out = [
@@ -84,6 +83,8 @@ def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEst
     nnz = min(4**q, 2**q * masks)
     if getattr(ansatz, "kind", "uccsd") == "layered":
         rotations = 2 * q * (int(ansatz.layers) + 1)
+    elif getattr(ansatz, "kind", "uccsd") == "circuit":
+        rotations = int(ansatz.operations)
     else:
         rotations = _uccsd_rotations(
             sizes.n_orb, sizes.n_alpha, sizes.n_beta, ansatz.singles, ansatz.doubles
@@ -102,10 +103,10 @@ def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEst
 
 def check_sizes(source: str, molecule: Any, ansatz: Any, num_qubits: int, emulation: Any) -> None:
     """Refuse in one line a study whose heavy steps cannot fit (before any of them runs)."""
-    from noiselab.chem.molecule import MAX_BASIS_FUNCTIONS, molecule_sizes
+    from noiselab.chem.molecule import MAX_BASIS_FUNCTIONS
     from noiselab.chem.statevector import MAX_STATEVECTOR_QUBITS
 
-    sizes = molecule_sizes(molecule)
+    sizes = source_sizes(molecule)
     if sizes.n_basis > MAX_BASIS_FUNCTIONS:
         raise ProblemTooLargeError(
             str(
@@ -156,8 +157,16 @@ def emulation_method(
     """
     from noiselab.emulate.engine import choose_method
     from noiselab.emulate.memory import check_memory
+    from noiselab.emulate.pauli_propagation import MAX_PAULI_QUBITS
 
     e = emulation
+    if e.method == "pauli_propagation":  # strings of two uint64 words; no 2**n array anywhere
+        if circuit_qubits > MAX_PAULI_QUBITS:
+            raise ProblemTooLargeError(
+                f"{source}: emulation.method: pauli_propagation on {circuit_qubits} circuit "
+                f"qubits; allowed: at most {MAX_PAULI_QUBITS}"
+            )
+        return "pauli_propagation", None
     try:
         method, notice = choose_method(
             circuit_qubits, e.method, max_density_matrix_qubits=e.max_density_matrix_qubits

@@ -63,7 +63,7 @@ from noiselab.study.device_time import (
     seconds_per_shot,
     variant_durations_ns,
 )
-from noiselab.study.job import as_cache
+from noiselab.study.job import as_cache, refuse_pauli_method
 from noiselab.study.loop import (
     LoopEvaluator,
     RepeatResult,
@@ -237,6 +237,7 @@ def rehearse(
     """
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
+    refuse_pauli_method(study)
     settings = resolve_settings(study, overrides)
     loop_passes = settings.loop_passes()
     final_passes = study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes

@@ -395,6 +395,8 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     # null under the exact density-matrix method
     traj = details.get("trajectory_std_mha") if isinstance(details, Mapping) else None
     out["trajectory_std_mha"] = None if traj is None else float(traj)
+    if isinstance(details, Mapping) and "truncation_bound_mha" in details:  # pauli_propagation
+        out["truncation_bound_mha"] = float(details["truncation_bound_mha"])
     if passes is not None:
         out["passes"] = jsonable(list(passes))
     out["details"] = without_timings(jsonable(getattr(result, "details", {}) or {}))

@@ -89,7 +89,7 @@ def _one_line(exc: ValidationError, given: dict[str, Any]) -> InputError:
 
 
 #: spec.EMULATION_METHODS as a type (tests/test_run_options.py checks they agree)
-Method = Literal["auto", "density_matrix", "trajectory"]
+Method = Literal["auto", "density_matrix", "trajectory", "pauli_propagation"]
 
 
 class RunOptions(BaseModel):

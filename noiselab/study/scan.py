@@ -53,7 +53,7 @@ from scipy.interpolate import CubicSpline
 from scipy.optimize import minimize_scalar
 
 from noiselab.chem.encode import encode
-from noiselab.chem.molecule import compute_problem, molecule_from_mapping
+from noiselab.chem.molecule import MoleculeSpec, compute_problem, molecule_from_mapping
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
 from noiselab.chem.stability import hf_stability
 from noiselab.common.atomic import write_text_atomic
@@ -184,6 +184,13 @@ def scan_axis(
 ) -> ScanAxis:
     """The axis from the options, else the study's ``scan:`` section; one-line refusals."""
     src = str(study.source)
+    if not isinstance(study.molecule, MoleculeSpec):
+        raise input_error(
+            src,
+            "molecule",
+            "a scan moves atoms; this study's problem comes from a file",
+            "a study with molecule: geometry",
+        )
     raw = study.raw.get("scan") if isinstance(study.raw, dict) else None
     try:
         section = ScanSection.model_validate(raw or {})

@@ -32,7 +32,10 @@ from pydantic import (
     model_validator,
 )
 
-from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
+from noiselab.chem.circuit_file import read_circuit_file
+from noiselab.chem.molecule import molecule_from_mapping
+from noiselab.chem.operator_file import operator_source
+from noiselab.chem.sources import fcidump_source, read_xyz, source_qubit_count
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count, whole_number
 from noiselab.common.errors import (
     InputError,
@@ -130,6 +133,34 @@ class LayeredAnsatz(_Strict):
         return [tuple(p) for p in self.pairs]  # type: ignore[misc]
 
 
+class CircuitSection(_Strict):
+    """``circuit: {file: FILE, ...}``: a trial circuit from a file, and its optimizer options."""
+
+    file: str
+    starts: Count = Field(default=3, ge=1, le=32, description="optimizer starting points")
+    max_starts: Count = Field(default=16, ge=1, le=64, description="cap on adaptive starts")
+    start_seed: Count = Field(default=0, ge=0, le=MAX_SEED, description="random starts' seed")
+    max_iterations: Count = Field(default=2000, ge=1, le=100000)
+
+    @model_validator(mode="after")
+    def _check_starts(self) -> CircuitSection:
+        return _starts_within_cap(self)
+
+
+class CircuitAnsatz(CircuitSection):
+    """A trial circuit read from a file (noiselab.chem.circuit_file), with its digest and sizes
+    (the digest keys the cached noiseless optimum)."""
+
+    kind: Literal["circuit"] = "circuit"
+    sha256: str
+    num_qubits: int
+    num_parameters: int
+    operations: int
+
+    def label(self) -> str:
+        return f"circuit {Path(self.file).name} ({self.num_parameters} parameters)"
+
+
 ANSATZ_KINDS: dict[str, type[BaseModel]] = {"uccsd": UccsdAnsatz, "layered": LayeredAnsatz}
 
 
@@ -215,26 +246,42 @@ class SweepDefaults(_Strict):
         return value
 
 
-EMULATION_METHODS = ("auto", "density_matrix", "trajectory")
+EMULATION_METHODS = ("auto", "density_matrix", "trajectory", "pauli_propagation")
 #: Engine defaults (noiselab.emulate.engine.emulate_bases) for the trajectory method.
 DEFAULT_TRAJECTORIES = 256
 DEFAULT_BATCHES = 16
+
+
+class TruncationSettings(_Strict):
+    """Truncation of the ``pauli_propagation`` method (noiselab.emulate.pauli_propagation).
+
+    ``min_abs_coeff``: Pauli strings whose |coefficient| (Ha) falls below it are dropped;
+    ``max_weight``: strings acting on more qubits are dropped (None: no weight cut). The sum
+    of what was dropped bounds the truncation error and is reported in mHa.
+    """
+
+    min_abs_coeff: float = Field(default=1e-5, ge=0.0, le=1.0)
+    max_weight: Count | None = Field(default=None, ge=1, le=64)
 
 
 class EmulationSettings(_Strict):
     """How the noisy circuits are emulated.
 
     ``method``: ``auto`` (density matrix while it fits the memory guard, else Monte Carlo
-    trajectories), ``density_matrix`` (exact; refuse when too large) or ``trajectory``.
+    trajectories; never Pauli propagation), ``density_matrix`` (exact; refuse when too large),
+    ``trajectory`` or ``pauli_propagation`` (Heisenberg-picture Pauli strings under the
+    Pauli-twirled noise, truncated by ``truncation``; assess only, raw and per-qubit readout
+    recipes only).
     ``trajectories``: trajectories per circuit variant, in ``batches`` batches (the batch
     spread gives the trajectory error bar). ``max_density_matrix_qubits``: a cap on the
     circuit width for the density matrix (None: the memory guard alone decides).
     """
 
-    method: Literal["auto", "density_matrix", "trajectory"] = "auto"
+    method: Literal["auto", "density_matrix", "trajectory", "pauli_propagation"] = "auto"
     trajectories: Count = Field(default=DEFAULT_TRAJECTORIES, ge=2, le=10**7)
     batches: Count = Field(default=DEFAULT_BATCHES, ge=2, le=10**4)
     max_density_matrix_qubits: Count | None = Field(default=None, ge=1, le=64)
+    truncation: TruncationSettings = TruncationSettings()
 
     @model_validator(mode="after")
     def _check_batches(self) -> EmulationSettings:
@@ -251,10 +298,15 @@ class StudyFile(_Strict):
 
     name: str
     description: str | None = None
-    molecule: dict[str, Any]
+    #: the problem: exactly one of molecule, integrals ({fcidump: FILE}), hamiltonian ({file: FILE})
+    molecule: dict[str, Any] | None = None
+    integrals: dict[str, Any] | None = None
+    hamiltonian: dict[str, Any] | None = None
     encoding: Literal["jordan_wigner", "parity", "bravyi_kitaev"] = "jordan_wigner"
     drop_fixed_parity_qubits: StrictBool = False
-    ansatz: dict[str, Any]
+    ansatz: dict[str, Any] | None = None
+    #: instead of ansatz: a trial circuit from a file ({file: FILE}, OpenQASM 3 or QPY)
+    circuit: dict[str, Any] | None = None
     device: str | dict[str, Any]
     layout: list[StrictInt] | None = Field(default=None, min_length=1)
     compile: CompileOptions = CompileOptions()
@@ -368,10 +420,10 @@ class Study:
 
     name: str
     source: Path
-    molecule: Any  # noiselab.chem.molecule.MoleculeSpec
+    molecule: Any  # MoleculeSpec, or FcidumpSource / OperatorSource (noiselab.chem.sources)
     encoding: str
     drop_fixed_parity_qubits: bool
-    ansatz: UccsdAnsatz | LayeredAnsatz
+    ansatz: UccsdAnsatz | LayeredAnsatz | CircuitAnsatz
     profile: Any  # noiselab.device.profile.DeviceProfile
     device_source: str  # resolved profile path, or "<inline>"
     layout: tuple[int, ...] | None
@@ -561,12 +613,19 @@ def study_from_mapping(
             f"needs encoding parity (the study has {spec.encoding})",
             "drop_fixed_parity_qubits: false, or encoding: parity",
         )
-    ansatz = _validate_ansatz(spec.ansatz, src)
+    ansatz = _study_ansatz(spec, src_path)
 
     # the device first: reading it is cheap, the molecule's check runs PySCF
     profile, device_source = _resolve_device(spec.device, src_path)
-    molecule = molecule_from_mapping(spec.molecule, src, prefix="molecule")
+    molecule = _problem_source(spec, data, ansatz, src_path)
     num_qubits = logical_qubit_count(molecule, spec.encoding, spec.drop_fixed_parity_qubits)
+    if isinstance(ansatz, CircuitAnsatz) and ansatz.num_qubits != num_qubits:
+        raise input_error(
+            src,
+            "circuit.file",
+            f"the circuit has {ansatz.num_qubits} qubits, the problem {num_qubits}",
+            f"a circuit on {num_qubits} qubits (the Hamiltonian's)",
+        )
     device_qubits = _device_qubits(profile)
     if num_qubits > len(device_qubits):
         raise input_error(
@@ -653,6 +712,30 @@ def _check_rehearse(section: RehearseSettings, src: str, recipes: Mapping[str, A
         )
 
 
+def _study_ansatz(spec: StudyFile, study_path: Path) -> Any:
+    """The trial circuit: exactly one of ansatz and circuit ({file: FILE})."""
+    src = str(study_path)
+    if (spec.ansatz is None) == (spec.circuit is None):
+        problem = "required key is missing" if spec.ansatz is None else "both given"
+        raise input_error(src, "ansatz", problem, "ansatz: {kind: ...} or circuit: {file: FILE}")
+    if spec.ansatz is not None:
+        return _validate_ansatz(spec.ansatz, src)
+    try:
+        section = CircuitSection.model_validate(spec.circuit)
+    except ValidationError as exc:
+        raise from_validation_error(exc, src, prefix="circuit") from None
+    path = Path(section.file).expanduser()
+    path = path if path.is_absolute() else study_path.parent / path
+    circuit, sha = read_circuit_file(path, f"{src}: circuit.file: {path}")
+    return CircuitAnsatz(
+        **{**section.model_dump(), "file": str(path)},
+        sha256=sha,
+        num_qubits=circuit.num_qubits,
+        num_parameters=circuit.num_parameters,
+        operations=len(circuit.data),
+    )
+
+
 def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | LayeredAnsatz:
     kind = data.get("kind")
     if kind not in ANSATZ_KINDS:
@@ -672,9 +755,57 @@ def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | Layered
 
 def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:
     """Qubits of the encoded Hamiltonian: two per active spatial orbital, minus the two parity
-    qubits that ``drop_fixed_parity_qubits`` drops."""
-    n = 2 * count_orbitals(molecule)
-    return n - 2 if drop_fixed_parity_qubits and encoding == "parity" else n
+    qubits that ``drop_fixed_parity_qubits`` drops (a qubit-operator file: its own count)."""
+    return source_qubit_count(molecule, encoding, drop_fixed_parity_qubits)
+
+
+PROBLEM_KEYS = ("molecule", "integrals", "hamiltonian")
+
+
+def _problem_source(spec: StudyFile, data: Mapping[str, Any], ansatz: Any, study_path: Path) -> Any:
+    """The study's problem source: exactly one of molecule, integrals, hamiltonian."""
+    src = str(study_path)
+    given = [k for k in PROBLEM_KEYS if getattr(spec, k) is not None]
+    allowed = "one of molecule, integrals: {fcidump: FILE}, hamiltonian: {file: FILE}"
+    if len(given) != 1:
+        problem = "required key is missing" if not given else f"{' and '.join(given)} together"
+        raise input_error(src, "molecule", problem, allowed)
+    base = study_path.parent
+    if spec.integrals is not None:
+        return fcidump_source(spec.integrals, base, src)
+    if spec.hamiltonian is not None:
+        for key in ("encoding", "drop_fixed_parity_qubits"):
+            if key in data:
+                raise input_error(
+                    src,
+                    key,
+                    "a qubit-operator file is already encoded",
+                    "leave encoding keys out with hamiltonian: {file: FILE}",
+                )
+        if isinstance(ansatz, UccsdAnsatz):
+            raise input_error(
+                src,
+                "ansatz.kind",
+                "uccsd needs fermionic integrals, hamiltonian: {file: FILE} has none",
+                "layered, or circuit: {file: FILE}",
+            )
+        return operator_source(spec.hamiltonian, base, src)
+    mol = dict(spec.molecule or {})
+    geometry = mol.get("geometry")
+    if isinstance(geometry, dict):
+        mol["geometry"] = read_xyz(_xyz_value(geometry, src), base, src)
+    return molecule_from_mapping(mol, src, prefix="molecule")
+
+
+def _xyz_value(geometry: Mapping[str, Any], src: str) -> Any:
+    if set(geometry) != {"xyz"}:
+        raise input_error(
+            src,
+            "molecule.geometry",
+            f"keys {sorted(geometry)}",
+            "an atom string, a list of [symbol, x, y, z], or {xyz: FILE}",
+        )
+    return geometry["xyz"]
 
 
 def _resolve_device(value: str | dict[str, Any], study_path: Path) -> tuple[Any, str]:

@@ -1,0 +1,222 @@
+"""assess with ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess)."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import numpy as np
+import pytest
+from qiskit.quantum_info import Kraus, SparsePauliOp
+from scipy.stats import norm
+
+from noiselab.common.errors import InputError, ProblemTooLargeError
+
+ROOT = Path(__file__).resolve().parents[1]
+
+STUDY = """\
+name: h2-pauli
+molecule:
+  geometry: "H 0 0 0; H 0 0 0.735"
+  basis: sto-3g
+encoding: jordan_wigner
+ansatz:
+  kind: uccsd
+device: cobaltgrid-12
+shots: 4000000
+seed: 11
+emulation:
+  method: pauli_propagation
+  truncation:
+    min_abs_coeff: {cut}
+recipes:
+{recipes}
+"""
+RAW_AND_READOUT = """\
+  raw: []
+  readout:
+    - {pass: readout, method: per_qubit_inverse, calibration_shots: 0}
+"""
+
+
+def _study(tmp_path: Path, recipes: str = RAW_AND_READOUT, cut: float = 0.0) -> Path:
+    path = tmp_path / "h2-pauli.yaml"
+    path.write_text(STUDY.replace("{cut}", repr(cut)).replace("{recipes}", recipes))
+    return path
+
+
+def _twirled_model(profile, patch):
+    """The device's gate channels, each replaced by its explicit Pauli twirl (no idle pass);
+    built with qiskit.quantum_info, independently of noiselab's twirled fidelities."""
+    from qiskit_aer.noise import NoiseModel, QuantumError
+
+    from noiselab.device.noise import channel_from_noise, noise_spec
+
+    spec = noise_spec(profile, patch, idle_relaxation=False)
+    model = NoiseModel(basis_gates=list(spec.native_gates))
+    for rule in spec.gates:
+        err = channel_from_noise(profile, rule.noise)
+        if err.ideal():
+            continue
+        kraus = Kraus(err.to_quantumchannel()).data
+        model.add_quantum_error(
+            QuantumError(_twirl(kraus, len(rule.qubits))), rule.gate, list(rule.qubits)
+        )
+    return model
+
+
+def _twirl(kraus, n):
+    # Pauli twirl: average of P E P over the n-qubit Paulis (Wallman and Emerson, PRA 94, 052325
+    # (2016)); the result is a Kraus channel of the twirled map
+    from qiskit.quantum_info import Pauli, SuperOp
+
+    sop = SuperOp(Kraus(list(kraus))).data
+    total = np.zeros_like(sop)
+    labels = ["".join(p) for p in np.array(np.meshgrid(*[list("IXYZ")] * n)).T.reshape(-1, n)]
+    for lab in labels:
+        u = Pauli(lab).to_matrix()
+        s = SuperOp(Kraus([u])).data
+        total += s @ sop @ s
+    return Kraus(SuperOp(total / len(labels)))
+
+
+def test_readout_corrected_moments_equal_the_density_matrix_engine(tmp_path: Path) -> None:
+    # outside reference: qiskit-aer's density matrix (through noiselab's engine: basis layer and
+    # per-qubit readout) of the same explicitly twirled noise; the per-qubit inverse applied to
+    # its exact distributions gives each outcome k the value u[k] = (A^-T x ... x A^-T) w [k],
+    # so the corrected mean is u . p and the single-shot variance u**2 . p - mean**2
+    from noiselab.emulate.calibration import per_qubit_assignment
+    from noiselab.emulate.device_inputs import layer_spec_for, logical_readout
+    from noiselab.emulate.engine import emulate_circuit_bases
+    from noiselab.emulate.pauli_circuit import pauli_energy
+    from noiselab.mitigate.passes.readout import apply_per_qubit
+    from noiselab.study.context import build_context
+    from noiselab.study.spec import load_study
+
+    ctx = build_context(load_study(_study(tmp_path)))
+    compiled, profile, plan = ctx.compiled, ctx.study.profile, ctx.plan
+    l2c = list(compiled.logical_to_circuit)
+    model = _twirled_model(profile, compiled.patch)
+    mats, _ = logical_readout(profile, compiled.patch, l2c)
+    layer = layer_spec_for(profile, compiled.circuit.num_qubits)
+    cal = per_qubit_assignment(profile, compiled.patch, l2c)
+    inv_t = [np.linalg.inv(a).T for a in cal]
+    dist = emulate_circuit_bases(
+        compiled.circuit,
+        model,
+        plan.bases,
+        layer=layer,
+        logical_to_circuit=l2c,
+        readout_matrices=mats,
+        method="density_matrix",
+    )
+    us = [apply_per_qubit(inv_t, g.weights) for g in plan.groups]
+    want_means = [float(dist.probs[i] @ u) for i, u in enumerate(us)]
+    want_vars = [float(dist.probs[i] @ u**2) - want_means[i] ** 2 for i, u in enumerate(us)]
+    groups = [(g.basis, list(zip(g.labels, g.coeffs, strict=True))) for g in plan.groups]
+    got = pauli_energy(
+        compiled.circuit,
+        model,
+        groups,
+        l2c,
+        layer,
+        mats,
+        constant_ha=plan.constant,
+        outcome_values=[m @ np.array([1.0, -1.0]) for m in inv_t],
+    )
+    assert got.group_energy_ha == pytest.approx(want_means, abs=1e-10)
+    assert got.group_variance_ha2 == pytest.approx(want_vars, abs=1e-10)
+
+
+def test_assess_reports_the_propagated_energy_and_the_target_rule(tmp_path: Path) -> None:
+    from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
+    from noiselab.emulate.pauli_circuit import pauli_energy
+    from noiselab.study.assess import assess
+
+    result = assess(_study(tmp_path), cache=False)
+    assert result.emulation_method == "pauli_propagation"
+    assert "Pauli-twirled" in result.emulation_notice
+    assert "crosstalk is left out" in result.emulation_notice
+    assert "leaves out the finite calibration's variance" in result.emulation_notice
+    raw = result.recipes["raw"]
+    # untruncated: the raw recipe's energy is pauli_energy's (checked against aer's density
+    # matrix above and in tests/test_emulate_pauli_propagation.py) under the device's noise
+    from noiselab.study.context import build_context
+    from noiselab.study.spec import load_study
+
+    ctx = build_context(load_study(_study(tmp_path)))
+    c = ctx.compiled
+    mats, _ = logical_readout(ctx.study.profile, c.patch, list(c.logical_to_circuit))
+    groups = [(g.basis, list(zip(g.labels, g.coeffs, strict=True))) for g in ctx.plan.groups]
+    want = pauli_energy(
+        c.circuit,
+        noise_model_for(ctx.study.profile, c.patch),
+        groups,
+        c.logical_to_circuit,
+        layer_spec_for(ctx.study.profile, c.circuit.num_qubits),
+        mats,
+        constant_ha=ctx.plan.constant,
+    )
+    assert raw.energy_ha == pytest.approx(want.energy_ha, abs=1e-12)
+    assert raw.details["truncation_bound_mha"] == 0.0
+    assert sum(raw.shots_per_circuit.values()) == 4_000_000
+    # P(|E - E_exact| <= t) of a normal estimate (textbook; scipy.stats.norm)
+    b, s, t = raw.bias_exact_mha, raw.std_mha, result.target_mha
+    assert raw.p_within_target == pytest.approx(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
+    assert "calibration_note" in result.recipes["readout"].details
+    assert result.to_json()["recipes"]["raw"]["truncation_bound_mha"] == 0.0
+
+
+def test_truncated_assess_stays_within_its_bound(tmp_path: Path) -> None:
+    from noiselab.study.assess import assess
+
+    exact = assess(_study(tmp_path), cache=False).recipes["raw"]
+    cut = assess(_study(tmp_path, cut=1e-3), cache=False).recipes["raw"]
+    bound_mha = cut.details["truncation_bound_mha"]
+    assert bound_mha > 0
+    assert abs(cut.energy_ha - exact.energy_ha) * 1e3 <= bound_mha + 1e-9
+
+
+def test_recipes_needing_distributions_are_refused_in_one_line(tmp_path: Path) -> None:
+    from noiselab.study.assess import assess
+
+    recipes = "  post:\n    - {pass: postselect, mode: discard}\n"
+    with pytest.raises(InputError) as info:
+        assess(_study(tmp_path, recipes), cache=False)
+    text = str(info.value)
+    assert "\n" not in text and "recipes.post" in text and "per_qubit_inverse" in text
+
+
+def test_twenty_qubits_pass_the_emulation_guard_and_the_plan_stays_sparse() -> None:
+    from noiselab.mitigate.plan import build_plan, weight_vector
+    from noiselab.study.preflight import emulation_method
+    from noiselab.study.spec import EmulationSettings
+
+    pauli = EmulationSettings(method="pauli_propagation")
+    assert emulation_method("s.yaml", pauli, 20, 1448) == ("pauli_propagation", None)
+    with pytest.raises(ProblemTooLargeError):  # 16 x 4**20 bytes
+        emulation_method("s.yaml", EmulationSettings(method="density_matrix"), 20, 1448)
+    rng = np.random.default_rng(3)
+    labels = ["".join(rng.choice(list("IXZ"), size=20)) for _ in range(300)]
+    plan = build_plan(SparsePauliOp(labels, rng.normal(size=300)), dense=False)
+    assert plan.n_groups > 10
+    assert all(g.dense_weights is None for g in plan.groups)  # no 2**20 vector per group
+    # lazily computed weights: a Z-only group's weights are the diagonal of its operator
+    # (qiskit.quantum_info.SparsePauliOp.to_matrix)
+    small = build_plan(SparsePauliOp(["ZIZ", "IZZ", "XXI"], [0.5, -0.25, 0.1]), dense=False)
+    z = next(g for g in small.groups if set(g.basis) == {"Z"})
+    want = np.real(np.diag(SparsePauliOp(list(z.labels), z.coeffs).to_matrix()))
+    assert z.weights == pytest.approx(want, abs=1e-14)
+    assert z.weights is z.dense_weights
+    assert np.allclose(z.weights, weight_vector(z.labels, z.coeffs, 3))
+
+
+def test_jobs_other_than_assess_are_refused_in_one_line(tmp_path: Path) -> None:
+    from noiselab.study.sweep import sweep
+    from noiselab.study.tune import tune
+
+    path = _study(tmp_path)
+    for job in (tune, sweep):
+        with pytest.raises(InputError) as info:
+            job(path, cache=False)
+        text = str(info.value)
+        assert "\n" not in text and str(path) in text and "assess only" in text
