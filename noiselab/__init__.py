@@ -23,6 +23,14 @@ _LAZY: dict[str, str] = {
     "profile_from_target": "noiselab.device.qiskit_target:profile_from_target",
     "profile_to_target": "noiselab.device.qiskit_target:profile_to_target",
     "aer_simulator": "noiselab.device.qiskit_target:aer_simulator",
+    "study_keys": "noiselab.study.keys:study_keys",
+    "profile_keys": "noiselab.study.keys:profile_keys",
+    "describe_study": "noiselab.study.check:describe_study",
+    "bias_figure": "noiselab.report.figures:bias_figure",
+    "extrapolation_figure": "noiselab.report.figures:extrapolation_figure",
+    "sweep_figure": "noiselab.report.figures:sweep_figure",
+    "budget_figure": "noiselab.report.figures:budget_figure",
+    "write_report": "noiselab.report.proposal:write_report",
 }
 
 

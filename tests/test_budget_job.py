@@ -92,7 +92,7 @@ def test_budget_files(result: BudgetResult, tmp_path: Path) -> None:
 
     written = write_budget_outputs(result, tmp_path)
     assert sorted(p.name for p in written) == sorted(
-        ["budget.csv", "budget.json", "budget.png", "budget.svg"]
+        ["budget.csv", "budget.json", "budget.png", "budget.svg", "budget.pdf"]
     )
     import csv
 

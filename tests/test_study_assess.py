@@ -257,7 +257,10 @@ def test_assess_out_writes_files(cli_runs: dict, tmp_path: Path, capsys) -> None
     text, err = capsys.readouterr()
     assert info.value.code in (0, None), err
     assert "Verdict:" in text and "only as good as the device noise model" in text
-    assert json.loads((out / "assess.json").read_text()) == cli_runs["a"]
+    written = json.loads((out / "assess.json").read_text())
+    # the file adds its provenance block (date, machine, inputs' sha256) to the job's JSON
+    assert written.pop("provenance")["files"]["study"]["sha256"]
+    assert written == cli_runs["a"]
     header = (out / "assess.csv").read_text().splitlines()[0]
     assert header.startswith("recipe,energy_ha,bias_mha")
     assert (out / "assess-bias.png").stat().st_size > 1000

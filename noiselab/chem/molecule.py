@@ -268,7 +268,7 @@ def molecule_from_mapping(
     try:
         return MoleculeSpec.model_validate(dict(data))
     except ValidationError as exc:
-        raise from_validation_error(exc, source, prefix=prefix) from None
+        raise from_validation_error(exc, source, prefix=prefix, model=MoleculeSpec) from None
 
 
 @dataclass(frozen=True, eq=False)

@@ -28,3 +28,6 @@ REGISTRY.append(scan_cmds.register)
 from noiselab.cli import rehearse_cmd  # noqa: E402  (rehearse)
 
 REGISTRY.append(rehearse_cmd.register)
+from noiselab.cli import study_keys_cmd  # noqa: E402  (study keys, study check)
+
+REGISTRY.append(study_keys_cmd.register)

@@ -25,6 +25,7 @@ from noiselab.cli.options import (
     repeated,
     run_options,
 )
+from noiselab.cli.report_opt import ReportOpt
 from noiselab.common.errors import input_error
 
 if TYPE_CHECKING:
@@ -40,10 +41,13 @@ ASSESS_FILES = (
     "assess.csv",
     "assess-bias.png",
     "assess-bias.svg",
+    "assess-bias.pdf",
     "assess-extrapolation.png",
     "assess-extrapolation.svg",
+    "assess-extrapolation.pdf",
     "assess-drift.png",
     "assess-drift.svg",
+    "assess-drift.pdf",
 )
 TUNE_FILES = ("tune.csv", "tune.json")
 
@@ -81,12 +85,12 @@ def _spin(s2: float | None, sep: str = " ") -> str:
     return f"{sep}S^2 {s2:.3f}" if sep != " " else f" (S^2 {s2:.3f})"
 
 
-def _write_assess_outputs(result: Any, out: Path) -> list[Path]:
+def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = None) -> list[Path]:
     """assess.json, assess.csv and the figures (from noiselab.report) into ``out``."""
     from noiselab.report.outputs import write_assess_figures
     from noiselab.study.assess import write_assess_data
 
-    return [*write_assess_data(result, out), *write_assess_figures(result, out)]
+    return [*write_assess_data(result, out, prov), *write_assess_figures(result, out)]
 
 
 # ---------------------------------------------------------------- assess
@@ -112,20 +116,28 @@ def assess_cmd(
             show_default=False,
         ),
     ] = None,
+    report: ReportOpt = None,
 ) -> None:
     """Emulate the study's experiment on its device and score every recipe at the shot budget."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.common.counts import parse_count
     from noiselab.study.assess import assess
     from noiselab.study.drift import MAX_DRAWS
 
+    report_dir = check_report_dir(report, "assess")
     draws = None if drift is None else parse_count(drift, "--drift", 1, MAX_DRAWS)
-    result, written = run_job(
-        assess, study, run, write=_write_assess_outputs, quiet=json_out, drift=draws
-    )
+
+    def write(res: Any, folder: Path) -> list[Path]:
+        # the files carry the provenance block; --json (a stream compared between runs) does not
+        return _write_assess_outputs(res, folder, job_provenance(study, res.seed))
+
+    result, written = run_job(assess, study, run, write=write, quiet=json_out, drift=draws)
     if json_out:
         print_json(result.to_json(with_stats=timings))
+        emit_report("assess", result, report_dir, study, result.seed)
         return
     _show_assess(result, written)
+    emit_report("assess", result, report_dir, study, result.seed)
 
 
 def _show_assess(result: Any, written: list[Path]) -> None:
@@ -238,6 +250,8 @@ def tune_cmd(
             "trajectory_std_mha), apart from the shot-noise standard error."
         )
     typer.echo(result.verdict)
+    typer.echo("The first-ranked setting as a recipe to paste under the study's recipes:")
+    typer.echo(result.recipe_yaml())
     typer.echo(result.caution)
     s = result.stats
     if s.reused:

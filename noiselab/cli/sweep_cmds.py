@@ -21,6 +21,7 @@ from noiselab.cli.options import (
     epilog,
     run_options,
 )
+from noiselab.cli.report_opt import ReportOpt
 from noiselab.common.wording import CAUTION
 
 if TYPE_CHECKING:
@@ -50,7 +51,7 @@ def sweep_files() -> tuple[str, ...]:
     return tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
 
 
-BUDGET_FILES = tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg"))
+BUDGET_FILES = tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg", "pdf"))
 
 
 def _print(table: Any) -> None:
@@ -105,18 +106,26 @@ def sweep_cmd(
         ),
     ] = None,
     recipe: RecipesOpt = None,
+    report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.report.outputs import write_sweep_outputs
     from noiselab.study.sweep import get_knob, sweep
 
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
+    report_dir = check_report_dir(report, "sweep")
+
+    def write(res: Any, folder: Any) -> list[Any]:
+        prov = job_provenance(study, run.seed)
+        return write_sweep_outputs(res, folder, provenance=prov)
+
     result, written = run_job(
         sweep,
         study,
         run,
-        write=write_sweep_outputs,
+        write=write,
         executor=True,
         knob=vary,
         start=start,
@@ -143,6 +152,7 @@ def sweep_cmd(
             f"{s.wall_seconds:.1f} s, {s.executor})"
         )
     echo_written(written)
+    emit_report("sweep", result, report_dir, study, run.seed)
 
 
 @run_options(EXECUTOR_JOB, files=BUDGET_FILES, helps=OUT_HELP)
@@ -157,13 +167,21 @@ def budget_cmd(
             show_default=False,
         ),
     ] = None,
+    report: ReportOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
+    from noiselab.cli.report_opt import check_report_dir, emit_report, job_provenance
     from noiselab.report.outputs import write_budget_outputs
     from noiselab.study.budget import budget
 
+    report_dir = check_report_dir(report, "budget")
+
+    def write(res: Any, folder: Any) -> list[Any]:
+        prov = job_provenance(study, run.seed)
+        return write_budget_outputs(res, folder, provenance=prov)
+
     result, written = run_job(
-        budget, study, run, write=write_budget_outputs, executor=True, recipe=recipe
+        budget, study, run, write=write, executor=True, recipe=recipe
     )
     from noiselab.report.tables import budget_table
 
@@ -173,6 +191,7 @@ def budget_cmd(
         typer.echo(TRAJECTORY_NOTE)
     typer.echo(CAUTION)
     echo_written(written)
+    emit_report("budget", result, report_dir, study, run.seed)
 
 
 _SWEEP_HELP = (

@@ -5,6 +5,9 @@ Every message is one line: ``<source>: <key.path>: <what is wrong>; allowed: <wh
 
 from __future__ import annotations
 
+import difflib
+import types
+import typing
 from collections.abc import Sequence
 from typing import Any
 
@@ -85,21 +88,102 @@ def _loc_to_path(loc: Sequence[Any]) -> str:
     return out or "(top level)"
 
 
-def from_validation_error(exc: Any, source: str | None, prefix: str = "") -> InputError:
+def closest_key(key: str, allowed: Sequence[str]) -> str | None:
+    """The allowed key closest to ``key`` (case ignored; difflib ratio >= 0.6), or None."""
+    by_lower = {a.lower(): a for a in allowed}
+    if key.lower() in by_lower:
+        return by_lower[key.lower()]
+    found = difflib.get_close_matches(key.lower(), list(by_lower), n=1, cutoff=0.6)
+    return by_lower[found[0]] if found else None
+
+
+def did_you_mean(key: str, allowed: Sequence[str]) -> str:
+    """' (did you mean `x`?)' for the closest allowed key, or ''."""
+    near = closest_key(key, allowed)
+    return f" (did you mean `{near}`?)" if near else ""
+
+
+def _unwrap(tp: Any) -> list[Any]:
+    """The types inside Annotated / Optional / unions."""
+    while typing.get_origin(tp) is typing.Annotated:
+        tp = typing.get_args(tp)[0]
+    if typing.get_origin(tp) in (typing.Union, types.UnionType):
+        return [t for a in typing.get_args(tp) for t in _unwrap(a)]
+    return [tp]
+
+
+def _model_at(model: Any, loc: Sequence[Any]) -> Any:
+    """The pydantic model class that holds the key at ``loc`` (walking field types through
+    lists, tuples, mappings and optionals), or None."""
+    current = [model]
+    for item in loc:
+        nxt: list[Any] = []
+        for tp in current:
+            fields = getattr(tp, "model_fields", None)
+            if isinstance(fields, dict) and isinstance(item, str) and item in fields:
+                nxt += _unwrap(fields[item].annotation)
+                continue
+            origin = typing.get_origin(tp)
+            args = typing.get_args(tp)
+            if origin in (list, tuple) and args:
+                nxt += _unwrap(args[0])
+            elif origin is dict and len(args) == 2:
+                nxt += _unwrap(args[1])
+        current = [t for t in nxt if t is not None]
+    for tp in current:
+        if isinstance(getattr(tp, "model_fields", None), dict):
+            return tp
+    return None
+
+
+def _allowed_keys(model: Any, loc: Sequence[Any]) -> list[str]:
+    holder = _model_at(model, loc) if model is not None else None
+    return list(holder.model_fields) if holder is not None else []
+
+
+def _join(prefix: str, path: str) -> str:
+    if not prefix:
+        return path
+    return prefix if path == "(top level)" else f"{prefix}.{path}"
+
+
+def from_validation_error(
+    exc: Any, source: str | None, prefix: str = "", model: Any = None
+) -> InputError:
     """Turn a ``pydantic.ValidationError`` into a one-line :class:`InputError`.
 
     Only the first error is reported (fix one thing at a time); the count of others is appended.
     ``prefix`` is prepended to the key path (e.g. ``"molecule"`` when validating an embedded model).
+    ``model`` (the validated pydantic model class): an unknown key then gets the closest
+    allowed key ("did you mean") and the keys allowed at its level, and a required key reported
+    missing beside an unknown key that resembles it is reported as that misspelt key.
     """
     errors = exc.errors(include_url=False)
     first = errors[0]
-    path = _loc_to_path(first.get("loc", ()))
-    if prefix:
-        path = prefix if path == "(top level)" else f"{prefix}.{path}"
+    if first.get("type") == "missing":
+        misspelt = _misspelt_for(first, errors)
+        if misspelt is not None:
+            first = misspelt
+    loc = tuple(first.get("loc", ()))
+    path = _join(prefix, _loc_to_path(loc))
     msg = str(first.get("msg", "invalid value"))
     msg = msg.removeprefix("Value error, ").removeprefix("Assertion failed, ")
     if first.get("type") == "extra_forbidden":
-        msg = "unknown key (check the spelling)"
+        key = str(loc[-1]) if loc else ""
+        allowed = _allowed_keys(model, loc[:-1]) if model is not None else []
+        near = did_you_mean(key, allowed) if allowed else ""
+        missing = [
+            str(e["loc"][-1])
+            for e in errors
+            if e.get("type") == "missing" and tuple(e.get("loc", ()))[:-1] == loc[:-1]
+        ]
+        msg = f"unknown key{near}" if near else "unknown key (check the spelling)"
+        near_key = closest_key(key, allowed) if allowed else None
+        if near_key is not None and near_key in missing:
+            msg = f"unknown key; the required key `{near_key}` is missing: `{key}` looks misspelt"
+            errors = [e for e in errors if tuple(e.get("loc", ())) != (*loc[:-1], near_key)]
+        if allowed:
+            msg += f"; allowed: {', '.join(allowed)}"
     elif first.get("type") == "missing":
         msg = "required key is missing"
     more = (
@@ -107,4 +191,26 @@ def from_validation_error(exc: Any, source: str | None, prefix: str = "") -> Inp
         if len(errors) > 1
         else ""
     )
+    if "; allowed: " in msg and more:  # keep "allowed" last
+        head, allowed_text = msg.split("; allowed: ", 1)
+        return InputError(
+            f"{': '.join(p for p in (source, path) if p)}: {head}{more}; allowed: {allowed_text}"
+        )
     return InputError(f"{': '.join(p for p in (source, path) if p)}: {msg}{more}")
+
+
+def _misspelt_for(missing: dict[str, Any], errors: Sequence[dict[str, Any]]) -> Any:
+    """The unknown-key error at the same level as ``missing`` whose key resembles it, or None."""
+    loc = tuple(missing.get("loc", ()))
+    if not loc:
+        return None
+    for e in errors:
+        eloc = tuple(e.get("loc", ()))
+        if (
+            e.get("type") == "extra_forbidden"
+            and eloc
+            and eloc[:-1] == loc[:-1]
+            and closest_key(str(eloc[-1]), [str(loc[-1])]) is not None
+        ):
+            return e
+    return None

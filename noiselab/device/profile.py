@@ -659,7 +659,7 @@ def profile_from_mapping(
             dict(data), context={_CTX_ALLOW_INFINITE: allow_infinite_coherence}
         )
     except ValidationError as exc:
-        raise from_validation_error(exc, source) from None
+        raise from_validation_error(exc, source, model=DeviceProfile) from None
     except ProfileCheckError as exc:
         raise exc.with_source(source) from None
     except (TypeError, ValueError, OverflowError, RecursionError) as exc:  # defensive: odd inputs

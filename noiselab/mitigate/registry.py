@@ -11,7 +11,7 @@ from typing import Any, TypeVar
 
 from pydantic import ValidationError
 
-from noiselab.common.errors import InputError, from_validation_error
+from noiselab.common.errors import InputError, did_you_mean, from_validation_error
 from noiselab.mitigate.base import STAGE_NAMES, MitigationPass, PassOptions
 from noiselab.mitigate.passes.cancellation import ErrorCancellationPass
 from noiselab.mitigate.passes.clifford_regression import CliffordRegressionPass
@@ -78,11 +78,12 @@ def make_pass(spec: Mapping[str, Any], where: str = "recipe[0]") -> MitigationPa
         raise InputError(f"{where}.pass: required key is missing; allowed: {allowed}")
     name = spec["pass"]
     if not isinstance(name, str) or name not in PASSES:
-        raise InputError(f"{where}.pass: unknown pass {name!r}; allowed: {allowed}")
+        near = did_you_mean(name, list(PASSES)) if isinstance(name, str) else ""
+        raise InputError(f"{where}.pass: unknown pass {name!r}{near}; allowed: {allowed}")
     cls = PASSES[name]
     options = {k: v for k, v in spec.items() if k != "pass"}
     try:
         opts = cls.Options.model_validate(options)
     except ValidationError as exc:
-        raise from_validation_error(exc, None, prefix=where) from None
+        raise from_validation_error(exc, None, prefix=where, model=cls.Options) from None
     return cls(opts)

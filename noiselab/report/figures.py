@@ -37,7 +37,7 @@ from noiselab.mitigate.passes.extrapolate import ExtrapolationReport
 from noiselab.mitigate.result import RecipeResult
 from noiselab.study.budget import BudgetResult
 from noiselab.study.results import AssessResult
-from noiselab.study.sweep import SweepResult
+from noiselab.study.sweep import BISECTION_REL_TOL, SweepResult
 
 _FORMATS = ("svg", "pdf", "png")
 _DPI = 150
@@ -63,6 +63,23 @@ class ExtrapolationSeries:
     estimate_std_ha: float | None = None
     curve_scales: tuple[float, ...] = ()
     curve_energies_ha: tuple[float, ...] = ()
+    fit: str = ""
+    amplifier: str = ""
+    shots: int | None = None  # the recipe's total shots at the budget
+
+    def describe(self) -> str:
+        """'linear fit, stretch amplifier, scales 1, 3, 5; 4,000,000 shots' (what is known)."""
+        parts = [
+            p
+            for p in (
+                f"{self.fit} fit" if self.fit else "",
+                f"{self.amplifier} amplifier" if self.amplifier else "",
+            )
+            if p
+        ]
+        parts.append("scales " + ", ".join(f"{c:g}" for c in self.scales))
+        text = ", ".join(parts)
+        return f"{text}; {self.shots:,} shots" if self.shots else text
 
 
 @dataclasses.dataclass(frozen=True)
@@ -158,17 +175,40 @@ def _is_raw(name: str) -> bool:
     return name.lower() in _RAW_NAMES
 
 
+#: Okabe & Ito's colour-blind-safe palette ("Color Universal Design", 2008): black, orange,
+#: sky blue, bluish green, yellow, blue, vermillion, reddish purple.
+OKABE_ITO = {
+    "black": "#000000",
+    "orange": "#E69F00",
+    "sky_blue": "#56B4E9",
+    "bluish_green": "#009E73",
+    "yellow": "#F0E442",
+    "blue": "#0072B2",
+    "vermillion": "#D55E00",
+    "reddish_purple": "#CC79A7",
+}
+#: the target band and "reaches the target"
+TARGET_COLOUR = OKABE_ITO["bluish_green"]
+#: recipes, in order (bluish green is kept for the target)
+RECIPE_COLOURS = tuple(
+    OKABE_ITO[n] for n in ("blue", "orange", "reddish_purple", "vermillion", "sky_blue", "yellow")
+)
+#: verdict colours of the bias bars, with a hatch each so that colour is never the only cue
+VERDICT_STYLE = {
+    "green": (OKABE_ITO["bluish_green"], ""),
+    "amber": (OKABE_ITO["orange"], ".."),
+    "red": (OKABE_ITO["vermillion"], "xx"),
+}
+
+
 def _colors(names: Sequence[str]) -> dict[str, Any]:
-    # green is kept for the target band
-    cmap = matplotlib.colormaps["tab10"]
-    palette = [cmap(i) for i in (0, 1, 3, 4, 5, 6, 9, 8)]
     out: dict[str, Any] = {}
     k = 0
     for n in names:
         if _is_raw(n):
             out[n] = "0.25"
         else:
-            out[n] = palette[k % len(palette)]
+            out[n] = RECIPE_COLOURS[k % len(RECIPE_COLOURS)]
             k += 1
     return out
 
@@ -198,6 +238,9 @@ def extrapolation_series(name: str, result: RecipeResult) -> ExtrapolationSeries
         estimate_std_ha=result.std_mha / HA_TO_MHA,
         curve_scales=report.curve_scales,
         curve_energies_ha=report.curve_energies_ha,
+        fit=report.fit,
+        amplifier=report.amplifier,
+        shots=int(result.shots_total) if result.shots_total else None,
     )
 
 
@@ -226,11 +269,22 @@ def bias_data(result: AssessResult) -> BiasFigureData:
 
 
 def _draw_extrapolation(
-    ax: Any, data: ExtrapolationFigureData, colors: dict[str, Any], legend: bool
+    ax: Any,
+    data: ExtrapolationFigureData,
+    colors: dict[str, Any],
+    legend: bool,
+    dodge: float = 0.0,
 ) -> None:
+    """Draw every series on ``ax``; ``dodge``: horizontal step between the stars at scale 0
+    (the zoom panel sets one so that stars at equal energies stay apart)."""
     t = data.target_mha
+    n = len(data.series)
     ax.axhspan(
-        -t, t, color="tab:green", alpha=0.18, label=f"target band ±{t:.3g} mHa" if legend else None
+        -t,
+        t,
+        color=TARGET_COLOUR,
+        alpha=0.18,
+        label=f"target band ±{t:.3g} mHa" if legend else None,
     )
     ax.axhline(
         0.0,
@@ -238,7 +292,7 @@ def _draw_extrapolation(
         lw=1.0,
         label=f"exact energy {data.exact_energy_ha:.6f} Ha" if legend else None,
     )
-    for s in data.series:
+    for i, s in enumerate(data.series):
         c = colors[s.recipe]
         ys = [(e - data.exact_energy_ha) * HA_TO_MHA for e in s.energies_ha]
         es = [v * HA_TO_MHA for v in s.stds_ha]
@@ -249,7 +303,7 @@ def _draw_extrapolation(
             fmt="o",
             color=c,
             capsize=3,
-            label=f"{s.recipe}: at each scale" if legend else None,
+            label=f"{s.recipe}: {s.describe()}" if legend else None,
         )
         if s.curve_scales:
             cy = [(e - data.exact_energy_ha) * HA_TO_MHA for e in s.curve_energies_ha]
@@ -260,13 +314,12 @@ def _draw_extrapolation(
                 color=c,
                 lw=1.2,
                 alpha=0.8,
-                label=f"{s.recipe}: fit" if legend else None,
             )
         if s.estimate_ha is not None:
             y0 = (s.estimate_ha - data.exact_energy_ha) * HA_TO_MHA
             e0 = None if s.estimate_std_ha is None else [s.estimate_std_ha * HA_TO_MHA]
             ax.errorbar(
-                [0.0],
+                [dodge * (i - (n - 1) / 2)],
                 [y0],
                 yerr=e0,
                 fmt="*",
@@ -275,17 +328,46 @@ def _draw_extrapolation(
                 capsize=3,
                 mec="k",
                 mew=0.5,
-                label=f"{s.recipe}: extrapolated {y0:+.2f} mHa" if legend else None,
+                label=(
+                    f"{s.recipe}: extrapolated {y0:+.2f} ± {(e0 or [0.0])[0]:.2f} mHa"
+                    if legend
+                    else None
+                ),
             )
 
 
-def plot_extrapolation(result: AssessResult | ExtrapolationFigureData, path: str | Path) -> Path:
+#: The zoom panel spans at least ±ZOOM_TARGETS targets and grows to hold every star within
+#: ±ZOOM_MAX_TARGETS targets; a star beyond is named in a note on the panel.
+ZOOM_TARGETS = 4.0
+ZOOM_MAX_TARGETS = 25.0
+
+
+def zoom_limits(data: ExtrapolationFigureData) -> tuple[tuple[float, float], tuple[str, ...]]:
+    """(y limits of the zoom panel in mHa, recipes whose extrapolated energy lies outside)."""
+    t = data.target_mha
+    lo, hi = -ZOOM_TARGETS * t, ZOOM_TARGETS * t
+    outside = []
+    for s in data.series:
+        if s.estimate_ha is None:
+            continue
+        y0 = (s.estimate_ha - data.exact_energy_ha) * HA_TO_MHA
+        e0 = (s.estimate_std_ha or 0.0) * HA_TO_MHA
+        if abs(y0) > ZOOM_MAX_TARGETS * t:
+            outside.append(s.recipe)
+            continue
+        lo, hi = min(lo, y0 - 1.3 * e0 - 0.3 * t), max(hi, y0 + 1.3 * e0 + 0.3 * t)
+    return (lo, hi), tuple(outside)
+
+
+def extrapolation_figure(result: AssessResult | ExtrapolationFigureData, ax: Any = None) -> Figure:
     """Energy error against noise scale for every extrapolating recipe; the fitted curves the
-    extrapolation pass reported, down to scale 0.
+    extrapolation pass reported, down to scale 0. The legend (below) names each recipe's fit,
+    amplifier, scales and shots.
 
     Points carry error bars of one standard error at the shot budget; the exact energy is the
     zero line and the target band (exact ± target) is shaded. When the band is thin at full
-    scale a second panel zooms on it. Returns the path written (format from its suffix).
+    scale a second panel zooms on it (same scales), sized to hold every extrapolated energy
+    (star) within ±25 targets; a star beyond is named on the panel.
     """
     data = extrapolation_data(result) if isinstance(result, AssessResult) else result
     colors = _colors([s.recipe for s in data.series])
@@ -294,31 +376,56 @@ def plot_extrapolation(result: AssessResult | ExtrapolationFigureData, path: str
         (e - data.exact_energy_ha) * HA_TO_MHA for s in data.series for e in s.energies_ha
     ]
     zoom = bool(data.series) and (max(all_y) - min(all_y)) > 12 * data.target_mha
-    fig = _new_figure(11.0 if zoom else 8.6, 4.8)
-    if zoom:
-        ax, zx = fig.subplots(1, 2, width_ratios=(1.7, 1.0))
+    own = ax is None  # on a caller's axes: one panel, no zoom
+    zoom = zoom and own
+    if own:
+        fig = _new_figure(10.0 if zoom else 8.0, 5.6 + 0.22 * len(data.series))
+        if zoom:
+            ax, zx = fig.subplots(1, 2, width_ratios=(2.4, 1.0))
+        else:
+            ax, zx = fig.add_subplot(1, 1, 1), None
     else:
-        ax, zx = fig.add_subplot(1, 1, 1), None
+        fig, zx = ax.get_figure(), None
     _draw_extrapolation(ax, data, colors, legend=True)
     if not data.series:
         ax.text(
             0.5, 0.5, "no extrapolating recipe in this study", transform=ax.transAxes, ha="center"
         )
-    for a in (ax, zx):
-        if a is not None:
-            a.set_xlim(-0.05 * xmax, xmax * 1.08)
-            a.set_xlabel("noise scale factor (1 = device as profiled)")
+    ax.set_xlim(-0.05 * xmax, xmax * 1.08)
+    ax.set_xlabel("noise scale factor (1 = device as profiled)")
     ax.set_ylabel("energy − exact energy (mHa)")
     if zx is not None:
-        _draw_extrapolation(zx, data, colors, legend=False)
-        zx.set_ylim(-4.0 * data.target_mha, 4.0 * data.target_mha)
         smallest = min(min(s.scales) for s in data.series if s.scales)
-        zx.set_xlim(-0.08 * smallest, 0.6 * smallest)
-        zx.set_title(f"zoom on the target band (±{4 * data.target_mha:.3g} mHa)", fontsize=9)
+        half = 0.25 * smallest
+        _draw_extrapolation(zx, data, colors, legend=False, dodge=half / max(2, len(data.series)))
+        (lo, hi), outside = zoom_limits(data)
+        zx.set_ylim(lo, hi)
+        zx.set_xlim(-half, half)  # around scale 0, where the stars are
+        zx.set_xticks([0.0], ["0"])
+        zx.set_xlabel("noise scale factor 0 (extrapolated)")
+        zx.set_title("zoom on the target band:\nthe extrapolated energies", fontsize=9)
+        if outside:
+            zx.text(
+                0.02, 0.02, "outside this panel: " + ", ".join(outside),
+                transform=zx.transAxes, fontsize=7, va="bottom",
+                bbox={"fc": "white", "ec": "0.6", "alpha": 0.9},
+            )  # fmt: skip
         zx.grid(True, alpha=0.3)
-    fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+    # below the main panel (the layout reserves its room), above the caution line
+    ax.legend(
+        loc="upper left",
+        bbox_to_anchor=(0.0, -0.13),
+        ncols=1 if zoom else 2,
+        fontsize=8,
+        framealpha=0.9,
+    )
     _decorate(fig, ax, "Zero-noise extrapolation", data.study_name, data.device_name)
-    return _save(fig, path)
+    return fig
+
+
+def plot_extrapolation(result: AssessResult | ExtrapolationFigureData, path: str | Path) -> Path:
+    """:func:`extrapolation_figure` written to ``path`` (format from its suffix)."""
+    return _save(extrapolation_figure(result), path)
 
 
 def bar_colour(bar: BiasBar, target_mha: float) -> str:
@@ -329,67 +436,104 @@ def bar_colour(bar: BiasBar, target_mha: float) -> str:
     return "amber" if abs(bar.bias_mha) < target_mha else "red"
 
 
-def plot_bias_bars(result: AssessResult | BiasFigureData, path: str | Path) -> Path:
-    """|bias| against the exact energy (mHa) per recipe, error bars of one standard error at the
-    budget, the target as a line; log scale when the values span more than a factor 30.
+def bias_figure(result: AssessResult | BiasFigureData, ax: Any = None) -> Figure:
+    """Signed bias against the exact energy (mHa) per recipe, error bars of one standard error
+    at the budget on both sides, the target band ±target shaded; a symmetric-log axis (linear
+    within ±target) when the values span more than a factor 30. Draws on ``ax`` when given.
 
     Bars are green when the recipe reaches the target at the budget (P >= confidence, the rule of
-    :func:`noiselab.mitigate.target.reaches_target`), amber when only its bias is within the
-    target, red otherwise.
+    :func:`noiselab.mitigate.target.reaches_target`), amber (dotted) when only its bias is within
+    the target, red (crossed) otherwise.
     """
     data = bias_data(result) if isinstance(result, AssessResult) else result
     study, device, target, bars = data.study_name, data.device_name, data.target_mha, data.bars
-    fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
-    ax = fig.add_subplot(1, 1, 1)
+    if ax is None:
+        fig = _new_figure(max(5.5, 1.1 * len(bars) + 3.0), 4.4)
+        ax = fig.add_subplot(1, 1, 1)
+    fig = ax.get_figure()
     names = [b.recipe for b in bars]
-    mags = [abs(b.bias_mha) for b in bars]
+    biases = [b.bias_mha for b in bars]
     stds = [b.std_mha for b in bars]
-    verdict = {"green": "tab:green", "amber": "tab:orange", "red": "tab:red"}
-    colors = [verdict[bar_colour(b, target)] for b in bars]
-    log = _wide_range([*mags, target])
-    pos = [m for m in mags if m > 0] or [target]
-    floor = min(min(pos), target) / 5.0
-    heights = [max(m, floor) for m in mags] if log else mags
+    styles = [VERDICT_STYLE[bar_colour(b, target)] for b in bars]
     xs = list(range(len(bars)))
-    ax.bar(xs, heights, color=colors, alpha=0.8, edgecolor="k", lw=0.6)
-    # on a log axis an arm reaching zero cannot be drawn: it is clipped at the bottom
-    lower = [min(s, h * 0.999) for s, h in zip(stds, heights, strict=True)] if log else stds
-    ax.errorbar(xs, heights, yerr=[lower, stds], fmt="none", ecolor="k", capsize=4, lw=1)
-    ax.axhline(target, color="tab:green", ls="--", lw=1.2)
+    ax.axhspan(-target, target, color=TARGET_COLOUR, alpha=0.15, lw=0, zorder=0)
+    ax.axhline(0.0, color="k", lw=0.8)
+    drawn = ax.bar(
+        xs, biases, color=[c for c, _ in styles], alpha=0.85, edgecolor="k", lw=0.6, zorder=2
+    )
+    for patch, (_, hatch) in zip(drawn, styles, strict=True):
+        patch.set_hatch(hatch)
+    ax.errorbar(xs, biases, yerr=stds, fmt="none", ecolor="k", capsize=4, lw=1, zorder=3)
     for i, b in enumerate(bars):
+        up = b.bias_mha >= 0
         ax.annotate(
             f"{b.bias_mha:+.2f} ± {b.std_mha:.2f}",
-            (i, heights[i] + stds[i]),
+            (i, b.bias_mha + (b.std_mha if up else -b.std_mha)),
             textcoords="offset points",
-            xytext=(0, 3),
+            xytext=(0, 3 if up else -3),
             ha="center",
+            va="bottom" if up else "top",
             fontsize=7,
         )
     many = len(bars) > 4
     ax.set_xticks(xs, names, rotation=20 if many else 0, ha="right" if many else "center")
-    if log:
-        ax.set_yscale("log")
-        ax.set_ylim(bottom=floor)
+    symlog = _wide_range([*(abs(v) for v in biases), target])
+    if symlog:
+        ax.set_yscale("symlog", linthresh=target, linscale=1.0)
+        ax.yaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
+    ax.margins(y=0.15)
     ax.set_xlabel("mitigation recipe")
-    ax.set_ylabel("|energy − exact energy| (mHa)")
+    ax.set_ylabel(
+        "energy − exact energy (mHa)"
+        + ("\nlinear within ±target, logarithmic beyond" if symlog else "")
+    )
     handles = [
-        Line2D([], [], color="tab:green", ls="--", label=target_words(target)),
-        Patch(color=verdict["green"], alpha=0.8, label="reaches the target at the budget"),
-        Patch(color=verdict["amber"], alpha=0.8, label="bias within, error bar too wide"),
-        Patch(color=verdict["red"], alpha=0.8, label="bias outside target"),
-    ]
+        Patch(color=TARGET_COLOUR, alpha=0.15, label=target_words(target)),
+        *(
+            Patch(facecolor=VERDICT_STYLE[k][0], hatch=VERDICT_STYLE[k][1], edgecolor="k",
+                  alpha=0.85, label=words)
+            for k, words in (
+                ("green", "reaches the target at the budget"),
+                ("amber", "bias within, error bar too wide"),
+                ("red", "bias outside target"),
+            )
+        ),
+    ]  # fmt: skip
     ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
-    _decorate(fig, ax, "Bias per recipe (error bars: 1 std at the shot budget)", study, device)
-    return _save(fig, path)
+    _decorate(fig, ax, "Bias per recipe (error bars: ±1 std at the shot budget)", study, device)
+    return fig
+
+
+def plot_bias_bars(result: AssessResult | BiasFigureData, path: str | Path) -> Path:
+    """:func:`bias_figure` written to ``path`` (format from its suffix)."""
+    return _save(bias_figure(result), path)
+
+
+def crossing_text(knob: Any, value: float, rel_tol: float = BISECTION_REL_TOL) -> str:
+    """A crossing quoted to the resolution it was located at: bisection stops at a bracket of
+    ``rel_tol`` of the value, so the midpoint is known to ±rel_tol/2 ('0.431 ± 0.002 %')."""
+    v = value * knob.display_factor
+    half = abs(v) * rel_tol / 2.0
+    decimals = max(0, -math.floor(math.log10(half))) if half > 0 else 0
+    unit = f" {knob.unit}" if knob.unit else ""
+    return f"{v:.{decimals}f} ± {half:.{decimals}f}{unit}"
 
 
 def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, ...]:
+    """:func:`sweep_figure` written as SVG, PDF and PNG beside ``path_stem``."""
+    return _save_all(sweep_figure(sweep_result), path_stem)
+
+
+def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
     """The proposal figure: |energy error| (mHa, log) against the knob, raw and each mitigated
     recipe with a ± one-standard-error band at the budget, the target band shaded, crossings
     marked, the device's current value as a vertical line. Writes SVG, PDF and PNG."""
     knob = sweep_result.knob_spec
-    fig = _new_figure(9.4, 4.8)
-    ax = fig.add_subplot(1, 1, 1)
+    own = ax is None
+    if own:
+        fig = _new_figure(9.4, 4.8)
+        ax = fig.add_subplot(1, 1, 1)
+    fig = ax.get_figure()
     d = knob.display_factor
     xs = [v * d for v in sweep_result.values]
     t = sweep_result.target_mha
@@ -411,8 +555,8 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
             ax.plot([x], [m], "o", ms=4.5, color=c, mfc=c if e >= 0 else "white", mew=1.2)
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
-    ax.axhspan(floor * 0.5, t, color="tab:green", alpha=0.12, zorder=0)
-    ax.axhline(t, color="tab:green", lw=1.0, label=target_words(t) + " (shaded below)")
+    ax.axhspan(floor * 0.5, t, color=TARGET_COLOUR, alpha=0.12, zorder=0)
+    ax.axhline(t, color=TARGET_COLOUR, lw=1.0, label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
         col = colors.get(c_.recipe, "k")
@@ -422,7 +566,7 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
             ax.plot([x * d], [t], marker="X", ms=10, color=col, markeredgecolor="k", zorder=5)
             # stagger the labels so that neighbouring crossings stay readable
             ax.annotate(
-                knob.show(x),
+                crossing_text(knob, x),
                 (x * d, t),
                 textcoords="offset points",
                 xytext=(6, -14 - 11 * k),
@@ -471,7 +615,8 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
     conf = sweep_result.confidence
     ax.plot(
         [], [], "X", color="0.5", markeredgecolor="k",
-        label=f"reaching the target at the budget (P >= {conf:g}) starts or stops",
+        label=f"reaching the target at the budget (P >= {conf:g}) starts or stops\n"
+        f"(located by bisection to ±{BISECTION_REL_TOL * 50:g} %)",
     )  # fmt: skip
     ax.plot(
         [], [], "D", color="white", markeredgecolor="0.3",
@@ -479,7 +624,10 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
     )  # fmt: skip
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
-    fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+    if own:
+        fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+    else:
+        ax.legend(fontsize=7, framealpha=0.9)
     _decorate(
         fig,
         ax,
@@ -488,10 +636,61 @@ def plot_sweep(sweep_result: SweepResult, path_stem: str | Path) -> tuple[Path, 
         sweep_result.study_name,
         sweep_result.device_name,
     )
-    return _save_all(fig, path_stem)
+    return fig
+
+
+#: The noise channels in a reader's words (figures only; CSV and JSON keep the channel names).
+CHANNEL_WORDS = {
+    "relaxation": "relaxation (T1/T2)",
+    "single_qubit": "one-qubit gate errors",
+    "two_qubit": "two-qubit gate errors",
+    "coherent": "coherent errors (ZZ, over-rotation)",
+    "readout": "readout errors",
+}
+
+
+def budget_label(row: Any) -> str:
+    """A budget row's label in a reader's words ('without two-qubit gate errors')."""
+    words = CHANNEL_WORDS.get(row.channel, str(row.channel))
+    return {
+        "total": "device as profiled",
+        "alone": f"only {words}",
+        "removed": f"without {words}",
+        "noiseless": "noiseless",
+    }.get(row.kind, row.label)
+
+
+def budget_title(b: BudgetResult) -> str:
+    """'Error budget: two-qubit gate errors cost the most' when removing that channel lowers
+    the first recipe's |error|; no channel is named a cost when no removal lowers it."""
+    total = next(r for r in b.rows if r.kind == "total")
+    removed = next((r for r in b.rows if r.kind == "removed" and r.channel == b.dominant), None)
+    if removed is None or abs(removed.errors_mha[0]) >= abs(total.errors_mha[0]):
+        return "Error budget: no single channel's removal lowers the error"
+    return f"Error budget: {CHANNEL_WORDS.get(b.dominant, b.dominant)} cost the most"
+
+
+def _ticks_with_target(ax: Any, t: float, negative: bool) -> None:
+    """The value axis' ticks plus ±target, labelled as plain numbers."""
+    lo, hi = ax.get_xlim()
+    ticks = [v for v in ax.get_xticks() if lo <= v <= hi]
+    extra = [t, -t] if negative else [t]
+    # drop a default tick too close to a target tick to be read apart
+    span = hi - lo
+    kept = [v for v in ticks if all(abs(v - e) > 0.07 * span for e in extra)]
+    if ax.get_xscale() == "symlog":
+        kept = [v for v in ticks if all(abs(v - e) > 0.25 * abs(e) or v == 0 for e in extra)]
+    ax.set_xticks(sorted({*kept, *extra}))
+    ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:.3g}"))
+    ax.xaxis.set_minor_formatter(NullFormatter())
 
 
 def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
+    """:func:`budget_figure` written to ``path`` (format from its suffix)."""
+    return _save(budget_figure(budget_result), path)
+
+
+def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
     """Error budget as horizontal bars (mHa): the device as profiled, each channel alone, each
     channel removed and the noiseless limit, one bar per recipe, with the target lines."""
     b = budget_result
@@ -500,8 +699,11 @@ def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
         r for kind in ("total", "alone", "removed", "noiseless") for r in rows if r.kind == kind
     ]
     n = len(b.recipes)
-    fig = _new_figure(8.8, 2.0 + 0.2 * len(order) * max(1, n))
-    ax = fig.add_subplot(1, 1, 1)
+    own = ax is None
+    if own:
+        fig = _new_figure(8.8, 2.0 + 0.2 * len(order) * max(1, n))
+        ax = fig.add_subplot(1, 1, 1)
+    fig = ax.get_figure()
     height = 0.8 / n
     colors = _colors(b.recipes)
     for k, name in enumerate(b.recipes):
@@ -533,9 +735,9 @@ def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
                 fontsize=6.5,
             )
     t = b.target_mha
-    ax.axvline(t, color="tab:green", ls="--", lw=1.2)
+    ax.axvline(t, color=TARGET_COLOUR, ls="--", lw=1.2)
     if any(r.errors_mha[k] < 0 for r in order for k in range(n)):
-        ax.axvline(-t, color="tab:green", ls="--", lw=1.2)
+        ax.axvline(-t, color=TARGET_COLOUR, ls="--", lw=1.2)
     ax.axvline(0.0, color="k", lw=0.6)
     values = [abs(v) for r in order for v in r.errors_mha]
     symlog = bool(values) and max(values) > 30 * t
@@ -549,21 +751,25 @@ def plot_budget(budget_result: BudgetResult, path: str | Path) -> Path:
     ax.set_xlim(lo_x * (3.0 if symlog else 1.25), hi_x * (3.0 if symlog else 1.15))
     for sep in (0.5, 0.5 + len([r for r in order if r.kind == "alone"])):
         ax.axhline(sep, color="0.6", lw=0.6)
-    ax.set_yticks(range(len(order)), [r.label for r in order], fontsize=8)
+    ax.set_yticks(range(len(order)), [budget_label(r) for r in order], fontsize=8)
+    _ticks_with_target(ax, t, any(r.errors_mha[k] < 0 for r in order for k in range(n)))
     ax.invert_yaxis()
     ax.set_xlabel(
         "energy − exact energy (mHa), error bars: 1 std at the shot budget"
         + ("\n(linear within ±target, logarithmic beyond)" if symlog else "")
     )
-    ax.set_ylabel("noise channels present")
+    ax.set_ylabel("error sources present")
     handles = [Patch(facecolor=colors[nm], edgecolor="k", label=nm) for nm in b.recipes]
     handles.append(
-        Patch(facecolor="white", edgecolor="k", hatch="//", label="that channel removed")
+        Patch(facecolor="white", edgecolor="k", hatch="//", label="that error source removed")
     )
-    handles.append(Line2D([], [], color="tab:green", ls="--", label=target_words(t)))
-    fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
-    _decorate(fig, ax, f"Error budget: {b.dominant} dominates", b.study_name, b.device_name)
-    return _save(fig, path)
+    handles.append(Line2D([], [], color=TARGET_COLOUR, ls="--", label=target_words(t)))
+    if own:
+        fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
+    else:
+        ax.legend(handles=handles, fontsize=7, framealpha=0.9)
+    _decorate(fig, ax, budget_title(b), b.study_name, b.device_name)
+    return fig
 
 
 def plot_drift(assess_result: Any, path: str | Path) -> Path:
@@ -577,7 +783,7 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
     draws = max((r.drift[n].draws for n in names), default=0)
     fig = _new_figure(max(5.5, 1.1 * len(names) + 3.0), 4.6)
     ax = fig.add_subplot(1, 1, 1)
-    ax.axhspan(-target, target, color="tab:green", alpha=0.15, lw=0)
+    ax.axhspan(-target, target, color=TARGET_COLOUR, alpha=0.15, lw=0)
     everything = [target]
     for i, name in enumerate(names):
         d = r.drift[name]
@@ -585,7 +791,13 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
         everything += [abs(b) for b in biases]
         offsets = [((k * 0.618034) % 1.0 - 0.5) * 0.36 for k in range(len(biases))]
         ax.scatter(
-            [i + o for o in offsets], biases, s=10, color="tab:blue", alpha=0.55, lw=0, zorder=3
+            [i + o for o in offsets],
+            biases,
+            s=10,
+            color=OKABE_ITO["blue"],
+            alpha=0.55,
+            lw=0,
+            zorder=3,
         )
         ax.vlines(i, d.bias_mha_p05, d.bias_mha_p95, color="k", lw=2.2, zorder=4)
         nominal = float(r.recipes[name].bias_exact_mha)
@@ -609,8 +821,10 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
     ax.set_xlabel("mitigation recipe")
     ax.set_ylabel("energy − exact energy (mHa)")
     handles = [
-        Patch(color="tab:green", alpha=0.15, label=target_words(target)),
-        Line2D([], [], ls="", marker="o", color="tab:blue", alpha=0.55, label="one drawn day"),
+        Patch(color=TARGET_COLOUR, alpha=0.15, label=target_words(target)),
+        Line2D(
+            [], [], ls="", marker="o", color=OKABE_ITO["blue"], alpha=0.55, label="one drawn day"
+        ),
         Line2D([], [], color="k", lw=2.2, label="5th-95th percentile"),
         Line2D([], [], ls="", marker="D", color="k", label="nominal device"),
     ]

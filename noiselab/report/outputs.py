@@ -18,12 +18,26 @@ from noiselab.report.figures import (
 from noiselab.report.tables import budget_rows, sweep_rows, write_csv
 from noiselab.study.results import jsonable
 
+#: Every figure is written in these formats (PNG to look at, SVG and PDF for a document).
+FIGURE_FORMATS = ("png", "svg", "pdf")
+
+
+def with_provenance(obj: dict[str, Any], provenance: dict[str, Any] | None) -> dict[str, Any]:
+    """The job's JSON with its ``provenance`` block (kept out of ``to_json`` and the goldens:
+    date and machine change from run to run)."""
+    return obj if provenance is None else {**obj, "provenance": provenance}
+
 
 def _json_text(obj: Any) -> str:
     return json.dumps(jsonable(obj), indent=2) + "\n"
 
 
-def write_sweep_outputs(result: Any, out_dir: str | Path, stem: str | None = None) -> list[Path]:
+def write_sweep_outputs(
+    result: Any,
+    out_dir: str | Path,
+    stem: str | None = None,
+    provenance: dict[str, Any] | None = None,
+) -> list[Path]:
     """``<stem>.csv``, ``<stem>.json`` and the figure as SVG, PDF and PNG; returns the paths.
 
     ``stem`` defaults to ``sweep-<knob>``.
@@ -32,40 +46,39 @@ def write_sweep_outputs(result: Any, out_dir: str | Path, stem: str | None = Non
     stem = stem or f"sweep-{result.knob}"
     written = [
         write_csv(out / f"{stem}.csv", sweep_rows(result)),
-        write_text_atomic(out / f"{stem}.json", _json_text(result.to_json())),
+        write_text_atomic(
+            out / f"{stem}.json", _json_text(with_provenance(result.to_json(), provenance))
+        ),
     ]
     written += list(plot_sweep(result, out / stem))
     return written
 
 
-def write_budget_outputs(result: Any, out_dir: str | Path, stem: str = "budget") -> list[Path]:
-    """``budget.csv``, ``budget.json`` and ``budget.png`` / ``budget.svg``; returns the paths."""
+def write_budget_outputs(
+    result: Any,
+    out_dir: str | Path,
+    stem: str = "budget",
+    provenance: dict[str, Any] | None = None,
+) -> list[Path]:
+    """``budget.csv``, ``budget.json`` and the figure as PNG, SVG and PDF; returns the paths."""
     out = Path(out_dir)
     written = [
         write_csv(out / f"{stem}.csv", budget_rows(result)),
-        write_text_atomic(out / f"{stem}.json", _json_text(result.to_json())),
-        plot_budget(result, out / f"{stem}.png"),
-        plot_budget(result, out / f"{stem}.svg"),
+        write_text_atomic(
+            out / f"{stem}.json", _json_text(with_provenance(result.to_json(), provenance))
+        ),
+        *(plot_budget(result, out / f"{stem}.{ext}") for ext in FIGURE_FORMATS),
     ]
     return written
 
 
 def write_assess_figures(result: Any, out_dir: str | Path) -> list[Path]:
-    """``assess-bias.png``/``.svg``, ``assess-extrapolation`` when a recipe extrapolates and
-    ``assess-drift`` after ``--drift``."""
+    """``assess-bias``, ``assess-extrapolation`` when a recipe extrapolates and
+    ``assess-drift`` after ``--drift``, each as PNG, SVG and PDF."""
     out = Path(out_dir)
-    written = [
-        plot_bias_bars(result, out / "assess-bias.png"),
-        plot_bias_bars(result, out / "assess-bias.svg"),
-    ]
+    plots = [("assess-bias", plot_bias_bars)]
     if extrapolation_data(result).series:
-        written += [
-            plot_extrapolation(result, out / "assess-extrapolation.png"),
-            plot_extrapolation(result, out / "assess-extrapolation.svg"),
-        ]
+        plots.append(("assess-extrapolation", plot_extrapolation))
     if getattr(result, "drift", None):
-        written += [
-            plot_drift(result, out / "assess-drift.png"),
-            plot_drift(result, out / "assess-drift.svg"),
-        ]
-    return written
+        plots.append(("assess-drift", plot_drift))
+    return [plot(result, out / f"{stem}.{ext}") for stem, plot in plots for ext in FIGURE_FORMATS]

@@ -247,10 +247,16 @@ def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:
     )
 
 
-def write_assess_data(result: AssessResult, out: str | Path) -> list[Path]:
-    """assess.json and assess.csv into ``out`` (atomic writes); figures are the report layer's."""
+def write_assess_data(
+    result: AssessResult, out: str | Path, provenance: dict[str, Any] | None = None
+) -> list[Path]:
+    """assess.json (with the ``provenance`` block when given) and assess.csv into ``out``
+    (atomic writes); figures are the report layer's."""
     folder = Path(out)
+    data = result.to_json()
+    if provenance is not None:
+        data = {**data, "provenance": provenance}
     return [
-        write_text_atomic(folder / "assess.json", json.dumps(result.to_json(), indent=2) + "\n"),
+        write_text_atomic(folder / "assess.json", json.dumps(data, indent=2) + "\n"),
         write_text_atomic(folder / "assess.csv", csv_text(result.csv_rows())),
     ]

@@ -16,6 +16,7 @@ from typing import Any
 from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
 from noiselab.study.context import build_context
+from noiselab.study.display import NotebookDisplay
 from noiselab.study.job import own_executor, scan_fields, start_job
 from noiselab.study.results import RunStats, trajectory_std_of
 from noiselab.study.sweep import (
@@ -43,8 +44,8 @@ class BudgetRow:
     reaches_target: tuple[bool, ...] = ()
 
 
-@dataclasses.dataclass(frozen=True)
-class BudgetResult:
+@dataclasses.dataclass(frozen=True, repr=False)
+class BudgetResult(NotebookDisplay):
     """A finished error budget."""
 
     study_name: str
@@ -61,6 +62,25 @@ class BudgetResult:
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
     confidence: float = 0.95
+
+    def summary(self) -> str:
+        """One line: study, recipes and the budget's sentence."""
+        return f"{self.study_name}: recipes {', '.join(self.recipes)}; {self.sentence}"
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per noise configuration and recipe: error and std (mHa)."""
+        return [
+            {
+                "configuration": r.label,
+                "kind": r.kind,
+                "channel": r.channel,
+                "recipe": name,
+                "error_mha": float(r.errors_mha[k]),
+                "std_mha": float(r.stds_mha[k]),
+            }
+            for r in self.rows
+            for k, name in enumerate(self.recipes)
+        ]
 
     def row(self, kind: str, channel: str | None = None) -> BudgetRow:
         for r in self.rows:
@@ -103,16 +123,27 @@ def dominant_channel(
     gain = {c: t - abs(removed[c].errors_mha[k]) for c in removed}
     solo = {c: abs(alone[c].errors_mha[k] - floor.errors_mha[k]) for c in alone}
     best = max(gain, key=lambda c: (round(gain[c], 9), solo.get(c, 0.0)))
-    if gain[best] <= 1e-9:
+    lowers = gain[best] > 1e-9  # removing ``best`` lowers |error|: it is a cost
+    if not lowers:
         best = max(solo, key=lambda c: solo[c])
     a = alone[best].errors_mha[k]
     w = removed[best].errors_mha[k]
     reaches = total.reaches_target[k] if k < len(total.reaches_target) else False
     if target_mha is not None and reaches:
+        cost = (
+            f"largest single cost {best} (without it {w:+.3g} mHa)"
+            if lowers
+            else f"no single channel's removal lowers the error (largest alone: {best}, "
+            f"{a:+.3g} mHa)"
+        )
         return best, (
             f"reaches the {target_mha:.3g} mHa target at the budget with every channel present "
-            f"({total.errors_mha[k]:+.3g} mHa); largest single cost {best} "
-            f"(without it {w:+.3g} mHa)"
+            f"({total.errors_mha[k]:+.3g} mHa); {cost}"
+        )
+    if not lowers:
+        return best, (
+            f"no single channel's removal lowers the error ({total.errors_mha[k]:+.3g} mHa with "
+            f"every channel); largest error alone: {best} ({a:+.3g} mHa; without it {w:+.3g} mHa)"
         )
     sentence = (
         f"dominant error source: {best} (alone {a:+.3g} mHa; without it {w:+.3g} mHa, "

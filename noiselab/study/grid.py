@@ -67,18 +67,24 @@ def check_tune_section(section: Any, source: str) -> None:
     check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
 
 
-def check_axes(grid: Grid, origin: dict[str, str]) -> None:
-    """Refuse unknown names on an axis, naming the axis and what is allowed."""
+def axis_values() -> dict[str, tuple[str, ...]]:
+    """The names each named axis of the grid accepts (from the pass options' models)."""
+
     def allowed(model: Any, field: str) -> tuple[str, ...]:
         return tuple(model.model_fields[field].annotation.__args__)
 
-    checks = {
+    return {
         "readout": (NONE, *allowed(ReadoutOptions, "method")),
         "postselect": (NONE, *allowed(PostselectOptions, "mode")),
         "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
         "family": FAMILIES,
     }
+
+
+def check_axes(grid: Grid, origin: dict[str, str]) -> None:
+    """Refuse unknown names on an axis, naming the axis and what is allowed."""
+    checks = axis_values()
     for axis, ok in checks.items():
         for i, value in enumerate(getattr(grid, axis)):
             if value not in ok:

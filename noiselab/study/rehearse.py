@@ -180,7 +180,9 @@ def resolve_settings(study: Study, overrides: Mapping[str, Any] | None) -> Rehea
     try:
         return RehearseSettings.model_validate({**base, **changes})
     except ValidationError as exc:
-        raise from_validation_error(exc, str(study.source), prefix="rehearse") from None
+        raise from_validation_error(
+            exc, str(study.source), prefix="rehearse", model=RehearseSettings
+        ) from None
 
 
 def start_parameters(

@@ -23,6 +23,7 @@ import numpy as np
 
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.result import RecipeResult
+from noiselab.study.display import NotebookDisplay
 
 
 @dataclasses.dataclass(frozen=True)
@@ -507,8 +508,8 @@ class DriftStats:
         }
 
 
-@dataclasses.dataclass(frozen=True)
-class AssessResult:
+@dataclasses.dataclass(frozen=True, repr=False)
+class AssessResult(NotebookDisplay):
     """``assess``: every recipe of a study at its shot budget, the best one and the verdict."""
 
     context: ContextSummary
@@ -618,6 +619,33 @@ class AssessResult:
     def has_spread(self) -> bool:
         """Whether the bias spread over compiles was computed (the table shows its column)."""
         return any(v is not None for v in self.bias_spread_mha.values())
+
+    def summary(self) -> str:
+        """One line: study, recipes, budget, best recipe and whether it reaches the target."""
+        best = self.recipes[self.best_recipe]
+        word = "reaches" if self.reachable else "does not reach"
+        return (
+            f"{self.context.study}: {len(self.recipes)} recipes at {self.shots:,} shots; best "
+            f"{self.best_recipe!r} (bias {best.bias_exact_mha:+.3g} ± {best.std_mha:.3g} mHa) "
+            f"{word} ±{self.target_mha:.4g} mHa"
+        )
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per recipe: energy (Ha), bias and standard error (mHa), P(within target),
+        reaches, shots needed, what limits it."""
+        return [
+            {
+                "recipe": name,
+                "energy_ha": float(r.energy_ha),
+                "bias_mha": float(r.bias_exact_mha),
+                "std_mha": float(r.std_mha),
+                "p_within_target": float(r.p_within_target),
+                "reaches_target": bool(r.reaches_target),
+                "shots_needed": r.shots_needed,
+                "limited_by": r.limited_by,
+            }
+            for name, r in self.recipes.items()
+        ]
 
     def table_headers(self) -> tuple[str, ...]:
         """TABLE_HEADERS (with the compile-spread column after the bias when computed), plus
@@ -730,6 +758,17 @@ def _score_cells(r: Any) -> tuple[str, ...]:
     )
 
 
+def _yaml_value(value: Any) -> str:
+    """A recipe option in YAML flow style (numbers as written: 1, 2.5; lists in brackets)."""
+    if isinstance(value, bool):
+        return str(value).lower()
+    if isinstance(value, float):
+        return f"{value:g}"
+    if isinstance(value, list | tuple):
+        return "[" + ", ".join(_yaml_value(v) for v in value) + "]"
+    return str(value)
+
+
 @dataclasses.dataclass(frozen=True)
 class TuneEntry:
     """One mitigation setting of a tune grid and its result."""
@@ -744,8 +783,8 @@ class TuneEntry:
 TUNE_HEADERS = ("rank", "setting", *SCORE_HEADERS)
 
 
-@dataclasses.dataclass(frozen=True)
-class TuneResult:
+@dataclasses.dataclass(frozen=True, repr=False)
+class TuneResult(NotebookDisplay):
     """``tune``: every setting of the grid, ranked (best first)."""
 
     context: ContextSummary
@@ -764,6 +803,46 @@ class TuneResult:
     @property
     def best(self) -> TuneEntry:
         return self.entries[0]
+
+    def recipe_yaml(self, rank: int = 1, name: str = "tuned") -> str:
+        """The setting of ``rank`` as a ``recipes:`` entry of a study file, ready to paste
+        (options left at null are left out)."""
+        entry = self.entries[rank - 1]
+        note = f"# tune rank {entry.rank}: {entry.label}"
+        if not entry.passes:
+            return f"  {name}: []  {note}"
+        lines = [f"  {name}:  {note}"]
+        for spec in entry.passes:
+            parts = [f"pass: {spec['pass']}"]
+            parts += [
+                f"{k}: {_yaml_value(v)}" for k, v in spec.items() if k != "pass" and v is not None
+            ]
+            lines.append("    - {" + ", ".join(parts) + "}")
+        return "\n".join(lines)
+
+    def summary(self) -> str:
+        """One line: study, settings, best setting and its bias."""
+        r = self.best.result
+        return (
+            f"{self.context.study}: {len(self.entries)} settings ranked; best {self.best.label!r} "
+            f"(bias {r.bias_exact_mha:+.3g} ± {r.std_mha:.3g} mHa, P(within "
+            f"±{self.target_mha:.4g} mHa) {r.p_within_target:.3f})"
+        )
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per setting, best first: rank, setting, bias and std (mHa), P, reaches."""
+        return [
+            {
+                "rank": e.rank,
+                "setting": e.label,
+                "bias_mha": float(e.result.bias_exact_mha),
+                "std_mha": float(e.result.std_mha),
+                "p_within_target": float(e.result.p_within_target),
+                "reaches_target": bool(e.result.reaches_target),
+                "shots_needed": e.result.shots_needed,
+            }
+            for e in self.entries
+        ]
 
     def csv_rows(self) -> list[dict[str, Any]]:
         rows = []

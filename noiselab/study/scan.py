@@ -195,7 +195,7 @@ def scan_axis(
     try:
         section = ScanSection.model_validate(raw or {})
     except ValidationError as exc:
-        raise from_validation_error(exc, src, prefix="scan") from None
+        raise from_validation_error(exc, src, prefix="scan", model=ScanSection) from None
     if bond is not None and scale:
         raise input_error("scan", "--bond/--scale", "both given", "one of --bond I J or --scale")
     if bond is None and not scale:

@@ -37,7 +37,13 @@ from noiselab.chem.molecule import molecule_from_mapping
 from noiselab.chem.operator_file import operator_source
 from noiselab.chem.sources import fcidump_source, read_xyz, source_qubit_count
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count, whole_number
-from noiselab.common.errors import InputError, from_validation_error, input_error, quote
+from noiselab.common.errors import (
+    InputError,
+    did_you_mean,
+    from_validation_error,
+    input_error,
+    quote,
+)
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
@@ -541,7 +547,7 @@ def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[st
     try:
         return StudyFile.model_validate(dict(data))
     except ValidationError as exc:
-        error = from_validation_error(exc, source)
+        error = from_validation_error(exc, source, model=StudyFile)
         text = str(error)
         for key, option in OVERRIDE_OPTIONS.items():
             head = f"{source}: {key}: "
@@ -598,7 +604,7 @@ def study_from_mapping(
     try:
         spec = StudyFile.model_validate(dict(data))
     except ValidationError as exc:
-        raise from_validation_error(exc, src) from None
+        raise from_validation_error(exc, src, model=StudyFile) from None
 
     if spec.drop_fixed_parity_qubits and spec.encoding != "parity":
         raise input_error(
@@ -733,12 +739,18 @@ def _study_ansatz(spec: StudyFile, study_path: Path) -> Any:
 def _validate_ansatz(data: dict[str, Any], source: str) -> UccsdAnsatz | LayeredAnsatz:
     kind = data.get("kind")
     if kind not in ANSATZ_KINDS:
-        problem = "missing kind" if kind is None else f"unknown kind {kind!r}"
+        problem = (
+            "missing kind"
+            if kind is None
+            else f"unknown kind {quote(kind)}{did_you_mean(str(kind), list(ANSATZ_KINDS))}"
+        )
         raise input_error(source, "ansatz.kind", problem, ", ".join(ANSATZ_KINDS))
     try:
         return ANSATZ_KINDS[kind].model_validate(data)  # type: ignore[return-value]
     except ValidationError as exc:
-        raise from_validation_error(exc, source, prefix="ansatz") from None
+        raise from_validation_error(
+            exc, source, prefix="ansatz", model=ANSATZ_KINDS[kind]
+        ) from None
 
 
 def logical_qubit_count(molecule: Any, encoding: str, drop_fixed_parity_qubits: bool) -> int:

@@ -36,6 +36,7 @@ from noiselab.study.crossings import (
     SweepPoint,
     recipe_crossing,
 )
+from noiselab.study.display import NotebookDisplay
 from noiselab.study.executor import make_executor
 from noiselab.study.job import own_executor, scan_fields, start_job
 from noiselab.study.knobs import Knob, get_knob
@@ -44,8 +45,17 @@ from noiselab.study.results import RunStats, trajectory_std_of
 # ---------------------------------------------------------------- records
 
 
-@dataclasses.dataclass(frozen=True)
-class SweepResult:
+#: What the coherence knob does to the gate errors (said in its output).
+COHERENCE_NOTE = (
+    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
+    "idle relaxation and the split of each gate's error between relaxation and depolarizing "
+    "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
+    "errors too, sweep one-qubit-error or two-qubit-error alongside"
+)
+
+
+@dataclasses.dataclass(frozen=True, repr=False)
+class SweepResult(NotebookDisplay):
     """A finished sweep."""
 
     study_name: str
@@ -69,6 +79,31 @@ class SweepResult:
     def knob_spec(self) -> Knob:
         return get_knob(self.knob)
 
+    def summary(self) -> str:
+        """One line: study, knob and range, recipes, crossings found."""
+        k = self.knob_spec
+        found = sum(len(c.crossings) for c in self.crossings)
+        return (
+            f"{self.study_name}: {k.phrase.removeprefix('the ')} from {k.show(self.values[0])} to "
+            f"{k.show(self.values[-1])} ({len(self.points)} points), recipes "
+            f"{', '.join(self.recipes)}; {found} crossing(s) of ±{self.target_mha:.4g} mHa"
+        )
+
+    def to_records(self) -> list[dict[str, Any]]:
+        """One dict per point and recipe: knob value (base units), error and std (mHa), P."""
+        return [
+            {
+                self.knob.replace("-", "_"): p.value,
+                "recipe": e.recipe,
+                "error_mha": float(e.error_mha),
+                "std_mha": float(e.std_mha),
+                "p_within_target": float(e.p_within_target),
+                "reaches_target": bool(e.reaches_target),
+            }
+            for p in self.points
+            for e in p.entries
+        ]
+
     @property
     def crossing_method(self) -> str:
         """How the crossings were located (one line)."""
@@ -81,14 +116,17 @@ class SweepResult:
     def notes(self) -> tuple[str, ...]:
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
         knob = self.knob_spec
+        out: list[str] = []
+        if knob.name == "coherence-us":
+            out.append(COHERENCE_NOTE)
         low = [p.value for p in self.points if p.floored]
-        if not low:
-            return ()
-        return (
-            f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what T1/T2 "
-            "alone cause during the gate: the noise model uses relaxation alone there, so the "
-            "error no longer falls with the knob (use coherence-us to lower that floor)",
-        )
+        if low:
+            out.append(
+                f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what "
+                "T1/T2 alone cause during the gate: the noise model uses relaxation alone there, "
+                "so the error no longer falls with the knob (use coherence-us to lower that floor)"
+            )
+        return tuple(out)
 
     @property
     def values(self) -> tuple[float, ...]:

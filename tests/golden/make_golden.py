@@ -55,8 +55,11 @@ if platform.machine() in ("x86_64", "AMD64"):
     # current x86 server CPUs have) makes the golden numbers machine-independent.
     PINNED_ENV["OPENBLAS_CORETYPE"] = "Haswell"
 
-#: Keys dropped wherever they appear: timings and file paths (vary by machine and checkout).
-VOLATILE_KEYS = frozenset({"source", "device_source", "run", "engine_seconds", "wall_seconds"})
+#: Keys dropped wherever they appear: timings, file paths and the provenance block (date,
+#: machine, library versions: vary by machine and checkout).
+VOLATILE_KEYS = frozenset(
+    {"source", "device_source", "run", "engine_seconds", "wall_seconds", "provenance"}
+)
 
 
 def strip_volatile(obj: Any) -> Any:
