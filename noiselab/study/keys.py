@@ -20,10 +20,8 @@ from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import Any, Literal
 
-import annotated_types as at
 from pydantic import BaseModel
 from pydantic.fields import FieldInfo
-from pydantic_core import PydanticUndefined
 
 from noiselab.chem.molecule import MoleculeSpec
 from noiselab.common.counts import MAX_SHOTS, whole_number
@@ -395,19 +393,18 @@ def _bounds(tp: Any, meta: list[Any]) -> str:
         inner += _strip(arg)[1]
     parts = []
     for m in [*meta, *inner]:
-        for cls, sign, attr in (
-            (at.Ge, ">=", "ge"),
-            (at.Gt, ">", "gt"),
-            (at.Le, "<=", "le"),
-            (at.Lt, "<", "lt"),
-        ):
-            if isinstance(m, cls):
-                value = getattr(m, attr)
+        # pydantic's constraint records (annotated_types' Ge, Gt, Le, Lt, MinLen, MaxLen) by
+        # their one attribute: annotated_types is pydantic's dependency, not ours
+        for attr, sign in (("ge", ">="), ("gt", ">"), ("le", "<="), ("lt", "<")):
+            value = getattr(m, attr, None)
+            if value is not None and not callable(value):
                 parts.append(f"{sign} {value:g}" if isinstance(value, float) else f"{sign} {value}")
-        if isinstance(m, at.MinLen) and m.min_length > 0:
-            parts.append(f"at least {m.min_length} entr{'y' if m.min_length == 1 else 'ies'}")
-        if isinstance(m, at.MaxLen):
-            parts.append(f"at most {m.max_length} entries")
+        low = getattr(m, "min_length", None)
+        if isinstance(low, int) and low > 0:
+            parts.append(f"at least {low} entr{'y' if low == 1 else 'ies'}")
+        high = getattr(m, "max_length", None)
+        if isinstance(high, int):
+            parts.append(f"at most {high} entries")
     return ", ".join(dict.fromkeys(parts))
 
 
@@ -416,7 +413,7 @@ def _default(field: FieldInfo) -> str:
         return REQUIRED
     factory = field.default_factory
     value = factory() if factory is not None else field.default  # type: ignore[call-arg]
-    if value is PydanticUndefined:
+    if type(value).__name__ == "PydanticUndefinedType":  # pydantic's "no default" marker
         return REQUIRED
     if value is None:
         return "null"
