@@ -146,27 +146,12 @@ def emulate_parameter_sets(
             raise RuntimeError(f"qiskit-aer density-matrix run failed: {result.status}")
         share = (time.perf_counter() - t0) / len(part)
         for i in range(len(part)):
-            t1 = time.perf_counter()
-            rho = result.data(i)["rho"]
-            ideal = dm_distributions(
-                [np.asarray(getattr(rho, "data", rho))],
-                qubits,
-                effects,
-                keys,
-                threads=engine_threads() or None,
-            )
             out.append(
-                BasisDistributions(
-                    bases=bases_t,
-                    probs_ideal=ideal,
-                    probs=apply_readout(ideal, mats, terms),
-                    num_qubits=len(qubits),
-                    engine_seconds=share + time.perf_counter() - t1,
-                    engine_calls=1 if i == 0 else 0,
-                    method="density_matrix",
-                    notice=notice,
+                _distributions(
+                    result.data(i)["rho"], bases_t, qubits, effects, keys, mats, terms,
+                    share, first=i == 0, notice=notice,
                 )
-            )
+            )  # fmt: skip
     return out
 
 
@@ -210,24 +195,45 @@ def emulate_written(
             raise RuntimeError(f"qiskit-aer density-matrix run failed: {result.status}")
         share = (time.perf_counter() - t0) / len(part)
         for i, (_, qubits, effects, keys, (mats, terms)) in enumerate(part):
-            t1 = time.perf_counter()
-            rho = result.data(i)["rho"]
-            ideal = dm_distributions(
-                [np.asarray(getattr(rho, "data", rho))],
-                qubits,
-                effects,
-                keys,
-                threads=engine_threads() or None,
-            )
             out.append(
-                BasisDistributions(
-                    bases=bases_t,
-                    probs_ideal=ideal,
-                    probs=apply_readout(ideal, mats, terms),
-                    num_qubits=len(qubits),
-                    engine_seconds=share + time.perf_counter() - t1,
-                    engine_calls=1 if i == 0 else 0,
-                    method="density_matrix",
+                _distributions(
+                    result.data(i)["rho"], bases_t, qubits, effects, keys, mats, terms,
+                    share, first=i == 0,
                 )
-            )
+            )  # fmt: skip
     return out
+
+
+def _distributions(
+    rho: Any,
+    bases: tuple[str, ...],
+    qubits: list[int],
+    effects: Any,
+    keys: Any,
+    mats: Any,
+    terms: Any,
+    share_s: float,
+    *,
+    first: bool,
+    notice: str | None = None,
+) -> BasisDistributions:
+    """One saved density matrix of a batched run contracted to its bases, readout applied
+    (``share_s``: this circuit's share of the simulator call; the first carries the call)."""
+    t1 = time.perf_counter()
+    ideal = dm_distributions(
+        [np.asarray(getattr(rho, "data", rho))],
+        qubits,
+        effects,
+        keys,
+        threads=engine_threads() or None,
+    )
+    return BasisDistributions(
+        bases=bases,
+        probs_ideal=ideal,
+        probs=apply_readout(ideal, mats, terms),
+        num_qubits=len(qubits),
+        engine_seconds=share_s + time.perf_counter() - t1,
+        engine_calls=1 if first else 0,
+        method="density_matrix",
+        notice=notice,
+    )
