@@ -157,6 +157,10 @@ class MitigationPass(ABC):
     def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
 
+    def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
+        """Circuit transforms added to every variant the recipe runs (suppression passes)."""
+        return ()
+
     # STAGE_COMBINE
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
         """Circuit variants this pass needs (combination passes only)."""

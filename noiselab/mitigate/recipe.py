@@ -73,9 +73,14 @@ class ParsedRecipe:
         return found[0] if found else None
 
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
-        """The circuit variants to run: the combination pass's, or the device as it is."""
+        """The circuit variants to run: the combination pass's, or the device as it is, each
+        with the suppression passes' transforms appended."""
         combiner = self.of_stage(STAGE_COMBINE)
-        return combiner.variants(ctx) if combiner else (CircuitVariant(),)
+        base = combiner.variants(ctx) if combiner else (CircuitVariant(),)
+        extra = tuple(t for p in self.passes for t in p.transforms(ctx))
+        if not extra:
+            return base
+        return tuple(CircuitVariant(v.transforms + extra) for v in base)
 
     def bases(self, ctx: ExperimentContext) -> tuple[str, ...]:
         """The measurement bases read: the estimator pass's, or the plan's."""

@@ -16,6 +16,7 @@ from noiselab.mitigate.base import STAGE_NAMES, MitigationPass, PassOptions
 from noiselab.mitigate.passes.extrapolate import ExtrapolatePass
 from noiselab.mitigate.passes.postselect import PostselectPass
 from noiselab.mitigate.passes.readout import ReadoutPass
+from noiselab.mitigate.passes.suppress import DecouplePass, MeasureTwirlPass, TwirlPass
 
 PASSES: dict[str, type[MitigationPass]] = {}
 
@@ -49,7 +50,14 @@ def register_pass(cls: PassClass, *, replace: bool = False) -> PassClass:
     return cls
 
 
-for _builtin in (ReadoutPass, PostselectPass, ExtrapolatePass):
+for _builtin in (
+    TwirlPass,
+    DecouplePass,
+    MeasureTwirlPass,
+    ReadoutPass,
+    PostselectPass,
+    ExtrapolatePass,
+):
     register_pass(_builtin)
 
 

@@ -1,0 +1,78 @@
+"""Suppression passes: ``twirl``, ``decouple``, ``measure_twirl``.
+
+Each adds a circuit transform (``noiselab.device.suppression``) to every circuit variant the
+recipe runs (after the combination pass's own transforms, so folded circuits are decoupled
+after re-scheduling), and leaves the data unchanged: they compose with readout correction,
+post-selection and extrapolation. They sit with the correction passes (first in a recipe).
+"""
+
+from __future__ import annotations
+
+from typing import ClassVar, Literal
+
+from pydantic import Field
+
+from noiselab.device.suppression import Decouple, MeasureTwirl, PauliTwirl
+from noiselab.device.transforms import CircuitTransform
+from noiselab.mitigate.base import (
+    STAGE_CORRECT,
+    Corrected,
+    MitigationPass,
+    PassOptions,
+    VariantData,
+    Workspace,
+)
+from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.variants import CircuitVariant
+
+
+class _NoOptions(PassOptions):
+    pass
+
+
+class DecoupleOptions(PassOptions):
+    sequence: Literal["x_x", "xy4"] = "xy4"
+    min_window_ns: float = Field(
+        default=0.0, ge=0.0, le=1e6, allow_inf_nan=False, description="shortest window filled"
+    )
+
+
+class _SuppressPass(MitigationPass):
+    stage: ClassVar[int] = STAGE_CORRECT
+
+    def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Corrected:
+        return Corrected(data, None)
+
+
+class TwirlPass(_SuppressPass):
+    """Pauli twirling of every two-qubit gate, emulated exactly (the twirl average)."""
+
+    name: ClassVar[str] = "twirl"
+    Options: ClassVar[type[PassOptions]] = _NoOptions
+
+    def transforms(self, ctx: ExperimentContext) -> tuple[CircuitTransform, ...]:
+        return (PauliTwirl(),)
+
+
+class DecouplePass(_SuppressPass):
+    """Dynamical decoupling (X-X or XY4) in idle windows."""
+
+    name: ClassVar[str] = "decouple"
+    Options: ClassVar[type[PassOptions]] = DecoupleOptions
+    options: DecoupleOptions
+
+    def describe(self) -> str:
+        return f"decouple({self.options.sequence})"
+
+    def transforms(self, ctx: ExperimentContext) -> tuple[CircuitTransform, ...]:
+        return (Decouple(self.options.sequence, self.options.min_window_ns),)
+
+
+class MeasureTwirlPass(_SuppressPass):
+    """Measurement twirling: symmetric readout assignment (calibration twirled alike)."""
+
+    name: ClassVar[str] = "measure_twirl"
+    Options: ClassVar[type[PassOptions]] = _NoOptions
+
+    def transforms(self, ctx: ExperimentContext) -> tuple[CircuitTransform, ...]:
+        return (MeasureTwirl(),)
