@@ -26,8 +26,12 @@ from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.variants import CircuitVariant
 
 
-class _NoOptions(PassOptions):
-    pass
+class TwirlOptions(PassOptions):
+    gates: Literal["two_qubit"] = "two_qubit"  # which gates are twirled (two-qubit gates only)
+
+
+class MeasureTwirlOptions(PassOptions):
+    qubits: Literal["measured"] = "measured"  # which qubits are twirled (every measured one)
 
 
 class DecoupleOptions(PassOptions):
@@ -48,7 +52,7 @@ class TwirlPass(_SuppressPass):
     """Pauli twirling of every two-qubit gate, emulated exactly (the twirl average)."""
 
     name: ClassVar[str] = "twirl"
-    Options: ClassVar[type[PassOptions]] = _NoOptions
+    Options: ClassVar[type[PassOptions]] = TwirlOptions
 
     def transforms(self, ctx: ExperimentContext) -> tuple[CircuitTransform, ...]:
         return (PauliTwirl(),)
@@ -72,7 +76,7 @@ class MeasureTwirlPass(_SuppressPass):
     """Measurement twirling: symmetric readout assignment (calibration twirled alike)."""
 
     name: ClassVar[str] = "measure_twirl"
-    Options: ClassVar[type[PassOptions]] = _NoOptions
+    Options: ClassVar[type[PassOptions]] = MeasureTwirlOptions
 
     def transforms(self, ctx: ExperimentContext) -> tuple[CircuitTransform, ...]:
         return (MeasureTwirl(),)
