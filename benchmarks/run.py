@@ -511,6 +511,55 @@ def bench_drift(quick: bool) -> dict[str, Any]:
     }
 
 
+# --------------------------------------------------------------------------- refusal
+
+
+REFUSED_STUDY = HERE.parent / "tests" / "data" / "bad_studies" / "density_matrix_20_qubits.yaml"
+
+
+def bench_refusal(quick: bool) -> dict[str, Any]:
+    """The CLI's refusal of a 20-qubit density-matrix study in a fresh process: wall time (s)
+    and peak resident memory (MiB), the whole command, interpreter start and imports included."""
+    import resource
+    import tempfile
+
+    walls = []
+    with tempfile.TemporaryDirectory() as tmp:
+        cmd = [
+            sys.executable,
+            "-c",
+            "from noiselab.cli.app import main; main()",
+            "assess",
+            str(REFUSED_STUDY),
+            "--cache",
+            str(Path(tmp) / "c.sqlite"),
+        ]
+        for _ in range(1 if quick else 3):
+            t = time.perf_counter()
+            proc = subprocess.run(cmd, capture_output=True, text=True, check=False)
+            walls.append(time.perf_counter() - t)
+            if proc.returncode != 2 or "usable" not in proc.stderr:
+                raise RuntimeError(
+                    f"expected a one-line refusal, got {proc.returncode}: {proc.stderr[-500:]}"
+                )
+    # ru_maxrss of children is in KiB on Linux: the largest of the runs above
+    peak_mib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+    wall = min(walls)
+    _say(f"  refusal in {wall:.2f} s (best of {len(walls)}), peak {peak_mib:.0f} MiB")
+    return {
+        "ratio": wall / 2.0,
+        "target": "<= 1 (at most 2 s) and at most 500 MiB",
+        "met": wall <= 2.0 and peak_mib <= 500,
+        "wall_s": wall,
+        "peak_mib": peak_mib,
+        "message": proc.stderr.strip()[:300],
+        "notes": [
+            "absolute targets from the hardening issue: under 2 s and 500 MB; "
+            "ratio = best wall time / 2 s"
+        ],
+    }
+
+
 def _start_profiler() -> Any:
     from pyinstrument import Profiler
 
@@ -536,6 +585,7 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "memory": bench_memory,
     "scaling": bench_scaling,
     "drift": bench_drift,
+    "refusal": bench_refusal,
 }
 
 

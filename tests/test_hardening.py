@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import contextlib
 import io
+import json
 import os
 import sqlite3
 import subprocess
@@ -453,3 +454,25 @@ def test_profile_check_refuses_every_bad_profile_in_one_line(path: Path) -> None
     code, out, err = run_main(["profile", "check", str(path)])
     assert_one_line_refusal(code, err, str(path))
     assert out == ""
+
+
+def test_jobs_carry_the_profile_typo_warnings(tmp_path: Path) -> None:
+    # a two-qubit error of 0.25 is a percentage typed as a fraction (common practice, no
+    # source: two-qubit errors of current chips are of order 1e-3..1e-2); every job that loads
+    # the profile says so, on the screen and in its JSON, not only `profile check`
+    text = DEVICE.read_text(encoding="utf-8").replace(
+        "    gate_error: 2.5e-3", "    gate_error: 0.25", 1
+    )
+    assert "gate_error: 0.25" in text
+    device = tmp_path / "typo-chip.yaml"
+    device.write_text(text, encoding="utf-8")
+    study = tmp_path / "study.yaml"
+    study.write_text(TINY_STUDY.replace("DEVICE", str(device)), encoding="utf-8")
+    cache = ["--cache", str(tmp_path / "c.sqlite"), "-q"]
+    code, out, err = run_main(["assess", str(study), *cache])
+    assert code == 0, err
+    assert "percentage typed as a fraction" in out + err
+    code, out, err = run_main(["assess", str(study), "--json", *cache])
+    assert code == 0, err
+    warned = json.loads(out)["device_warnings"]
+    assert any("couplers.default.gate_error" in w for w in warned), warned

@@ -277,6 +277,7 @@ def _context_lines(ctx: Any) -> list[str]:
         f"({c.ansatz_error_mha:+.3f} mHa from exact{_spin(c.ansatz_spin_squared, ', ')}; "
         f"{c.optimizer_starts} optimizer start(s))",
         *(f"Warning: {w}" for w in getattr(c, "warnings", ())),
+        *(f"Warning: {w}" for w in getattr(c, "device_warnings", ())),
     ]
 
 

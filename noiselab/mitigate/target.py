@@ -26,7 +26,7 @@ from dataclasses import dataclass
 from typing import Literal
 
 from scipy.optimize import brentq
-from scipy.stats import norm
+from scipy.special import ndtr
 
 LimitedBy = Literal["bias", "calibration", "amplification", "shots", "none"]
 MAX_SHOTS = 10**15
@@ -38,13 +38,16 @@ FIXED_WORDS = {
 
 
 def p_within(bias_mha: float, std_mha: float, target_mha: float) -> float:
-    """Phi((t - b)/s) - Phi((-t - b)/s); a step function when s = 0."""
+    """Phi((t - b)/s) - Phi((-t - b)/s); a step function when s = 0.
+
+    Phi is ``scipy.special.ndtr`` (what ``scipy.stats.norm.cdf`` calls; importing scipy.stats
+    would add 0.3 s to every command, the memory guard's refusals included)."""
     b, s, t = float(bias_mha), float(std_mha), float(target_mha)
     if not math.isfinite(b) or not math.isfinite(s):
         return 0.0
     if s <= 0.0:
         return 1.0 if abs(b) < t else 0.0
-    return float(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
+    return float(ndtr((t - b) / s) - ndtr((-t - b) / s))
 
 
 def reaches_target(p_within_target: float, confidence: float) -> bool:

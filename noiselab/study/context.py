@@ -22,6 +22,7 @@ from noiselab.chem.optimize import OptimizationResult, optimize_noiseless, optim
 from noiselab.chem.spin import exact_spin_squared
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device.compile import compile_ensemble
+from noiselab.device.profile import profile_warnings
 from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.plan import build_plan
 from noiselab.mitigate.registry import make_pass
@@ -98,6 +99,7 @@ class StudyContext:
             optimizer_starts=int(getattr(self.optimum, "starts", 1)),
             optimizer_stopped=str(getattr(self.optimum, "stopped", "")),
             warnings=tuple(self.warnings),
+            device_warnings=tuple(profile_warnings(self.study.profile)),
             **compile_fields(self.ensemble),
         )
 

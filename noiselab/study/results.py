@@ -97,6 +97,8 @@ class ContextSummary:
     optimizer_starts: int = 1
     optimizer_stopped: str = ""  # noiselab.chem.optimize.STOP_REASONS
     warnings: tuple[str, ...] = ()  # about the noiseless optimum
+    #: implausible profile values a typo produces (noiselab.device.profile.profile_warnings)
+    device_warnings: tuple[str, ...] = ()
     compile_seeds: tuple[int, ...] = ()  # transpiler seeds tried
     compile_two_qubit_gates: tuple[int, ...] = ()  # per seed
     compile_durations_ns: tuple[float, ...] = ()  # per seed
@@ -126,6 +128,7 @@ class ContextSummary:
             "ansatz_spin_squared": self.ansatz_spin_squared,
             "optimizer": {"starts": self.optimizer_starts, "stopped": self.optimizer_stopped},
             "warnings": list(self.warnings),
+            "device_warnings": list(self.device_warnings),
             "compiled": {
                 "patch": list(self.patch),
                 "two_qubit_count": self.two_qubit_count,
