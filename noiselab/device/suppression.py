@@ -47,7 +47,7 @@ def _with_profile_values(profile: DeviceProfile, **updates: Any) -> DeviceProfil
     data = profile.model_dump(exclude_unset=True)
     for path, value in updates.items():
         node = data
-        keys = path.split(".")
+        keys: list[Any] = [int(k) if k.isdigit() else k for k in path.split(".")]
         for k in keys[:-1]:
             node = node.setdefault(k, {})
         node[keys[-1]] = value
