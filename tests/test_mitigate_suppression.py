@@ -156,3 +156,5 @@ def test_suppression_composes_with_every_stage() -> None:
     assert len(labels) == 2 and all("twirled" in s and "decoupled_x_x" in s for s in labels)
     assert all("measure_twirled" in s for s in labels)
     assert np.isfinite(result.energy_ha) and result.std_mha > 0.0
+    for name in ("twirl", "decouple", "measure_twirl"):  # choices in the experiment's favour
+        assert result.details[f"{name}_assumption"]

@@ -8,7 +8,8 @@ post-selection and extrapolation. They sit with the correction passes (first in 
 
 from __future__ import annotations
 
-from typing import ClassVar, Literal
+from dataclasses import dataclass
+from typing import Any, ClassVar, Literal
 
 from pydantic import Field
 
@@ -23,6 +24,7 @@ from noiselab.mitigate.base import (
     Workspace,
 )
 from noiselab.mitigate.experiment import ExperimentContext
+from noiselab.mitigate.reports import PassReport, ScoredRun
 from noiselab.mitigate.variants import CircuitVariant
 
 
@@ -41,11 +43,46 @@ class DecoupleOptions(PassOptions):
     )
 
 
+#: modelling choices in the experiment's favour, stated in each pass's details
+ASSUMPTIONS = {
+    "twirl": "twirling Paulis merged into neighbouring single-qubit gates at no cost; "
+    "always-on ZZ and detuning not twirled",
+    "decouple": "always-on terms absent during the measurement basis change",
+    "measure_twirl": "the twirling X pulse's own gate error (half the shots) left out",
+}
+
+
+@dataclass(frozen=True)
+class TwirlReport(PassReport):
+    kind: ClassVar[str] = "twirl"
+    assumption: str
+
+    def details(self, run: ScoredRun) -> dict[str, Any]:
+        return {f"{self.kind}_assumption": self.assumption}
+
+
+@dataclass(frozen=True)
+class DecoupleReport(TwirlReport):
+    kind: ClassVar[str] = "decouple"
+
+
+@dataclass(frozen=True)
+class MeasureTwirlReport(TwirlReport):
+    kind: ClassVar[str] = "measure_twirl"
+
+
+_REPORTS: dict[str, type[TwirlReport]] = {
+    "twirl": TwirlReport,
+    "decouple": DecoupleReport,
+    "measure_twirl": MeasureTwirlReport,
+}
+
+
 class _SuppressPass(MitigationPass):
     stage: ClassVar[int] = STAGE_CORRECT
 
     def correct(self, variant: CircuitVariant, data: VariantData, ws: Workspace) -> Corrected:
-        return Corrected(data, None)
+        return Corrected(data, _REPORTS[self.name](ASSUMPTIONS[self.name]))
 
 
 class TwirlPass(_SuppressPass):
