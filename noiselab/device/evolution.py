@@ -220,7 +220,8 @@ def quadrature_nodes(max_phase_rad: float) -> int:
     Taylor remainder is bounded by x^(2m) (2m-1)!! / (2m)! = x^(2m) / (2^m m!)."""
     x2 = max_phase_rad**2
     m = 2
-    while m * math.log(x2 / 2.0 + 1e-300) - math.log(math.factorial(m)) >= math.log(QUADRATURE_TOLERANCE):
+    log_tol = math.log(QUADRATURE_TOLERANCE)
+    while m * math.log(x2 / 2.0 + 1e-300) - math.log(math.factorial(m)) >= log_tol:
         m += 1
     return m
 
