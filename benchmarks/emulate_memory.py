@@ -24,7 +24,7 @@ def one(k: int) -> None:
     from noiselab.emulate.channels import EffectCache
     from noiselab.emulate.contract import dm_distributions
     from noiselab.emulate.engine import (
-        _basis_tables,
+        basis_tables,
         emulate_circuit_bases,
         simulate_density_matrix,
     )
@@ -41,7 +41,7 @@ def one(k: int) -> None:
     t1 = time.perf_counter()
     rho = simulate_density_matrix(qc, dev.noise_model)
     t2 = time.perf_counter()
-    effects, keys = _basis_tables(bases, list(range(k)), EffectCache(dev.noise_model, k, dev.layer))
+    effects, keys = basis_tables(bases, list(range(k)), EffectCache(dev.noise_model, k, dev.layer))
     t3, c3 = time.perf_counter(), time.process_time()
     dm_distributions(rho, list(range(k)), effects, keys)
     t4, c4 = time.perf_counter(), time.process_time()

@@ -10,6 +10,10 @@ Benchmarks (targets from the project's "Speed and scale" issue):
   memory    (peak RSS of a 12-qubit assess - interpreter baseline) / (16 x 4^12 bytes)     <= 3
   scaling   assess wall time against qubit count (4..12), with a figure (PNG + SVG)
   drift     assess --drift 32 of the demo / a plain assess of the demo (both cold)         <= 6
+  rehearse  the demo's rehearse, SPSA 200 iterations x 8 repeats: wall time / 60 s          <= 1
+  rehearse8 rehearse at 8 qubits: wall time per evaluation / bare qiskit-aer time of one    <= 2
+  scan      a 10-point H2 scan / one assess of the demo point (both cold)                  <= 12
+  scan_workers  the 10-point scan with 1 worker / with 2 process workers                   >= 1.6
 
 Results are merged into benchmarks/results/<UTC date>.json (atomic rewrite) and printed.
 ``--quick`` uses smaller problems (for checking the scripts, not for quoting). Not part of the
@@ -43,6 +47,7 @@ from common import (  # benchmarks/ is a folder of scripts, not a package
     rerun_bare,
     results_path,
 )
+from scan_bench import bench_scan_cost, bench_scan_workers
 
 Z_95 = 1.959963984540054  # two-sided 95 % normal quantile (scipy.stats.norm.ppf(0.975))
 BIAS_TOLERANCE_MHA = 0.1
@@ -292,6 +297,7 @@ def bench_grid(quick: bool) -> dict[str, Any]:
         amplification=["none", "stretch"],
         scales=[[float(s) for s in sc] for sc in GRID_SCALES],
         fit=["linear", "richardson"],
+        family=["none"],  # the stack only (the families' circuits are other benchmarks)
     )
     t = time.perf_counter()
     tuned = tune(study, grid=grid, cache=False)
@@ -511,6 +517,115 @@ def bench_drift(quick: bool) -> dict[str, Any]:
     }
 
 
+# --------------------------------------------------------------------------- rehearse
+
+
+def _timed_rehearse(study: Any, ctx: Any, **options: Any) -> tuple[Any, float, float]:
+    """(result, wall s, process CPU s, every thread) of one rehearse with a built context."""
+    from noiselab.study.rehearse import rehearse
+
+    t, c = time.perf_counter(), time.process_time()
+    res = rehearse(study, context=ctx, **options)
+    return res, time.perf_counter() - t, time.process_time() - c
+
+
+def bench_rehearse(quick: bool) -> dict[str, Any]:
+    """The demo's rehearse loop, SPSA 200 iterations x 8 repeats (20 with --quick): wall time /
+    60 s (target: under a minute)."""
+    from noiselab.study.assess import demo_study_path
+    from noiselab.study.context import build_context
+    from noiselab.study.spec import load_study
+
+    iterations = 20 if quick else 200
+    study = load_study(demo_study_path())
+    ctx = build_context(study, verification=True)
+    _timed_rehearse(study, ctx, iterations=2, repeats=2)  # first-use set-up out of the timing
+    load_before = machine_info().get("load_average_1min")
+    res, wall, cpu = _timed_rehearse(study, ctx, iterations=iterations, repeats=8)
+    evaluations = sum(r.evaluations for r in res.repeats)
+    _say(
+        f"  SPSA {iterations} x 8 repeats, {evaluations} evaluations: {wall:.1f} s wall, "
+        f"{cpu:.1f} s CPU (load {load_before}); {1e3 * wall / evaluations:.2f} ms per evaluation"
+    )
+    return {
+        "ratio": wall / 60.0,
+        "target": "<= 1 (under 60 s)",
+        "met": wall <= 60.0,
+        "iterations": iterations,
+        "repeats": 8,
+        "evaluations": evaluations,
+        "wall_s": wall,
+        "cpu_s": cpu,
+        "ms_per_evaluation": 1e3 * wall / evaluations,
+        "optimizer_error_mha": [r.optimizer_error_mha for r in res.repeats],
+        "notes": [
+            "demo study (H2, 4 qubits), default loop recipe (readout + verify), 2000 shots per "
+            "evaluation; context (optimizer, compile) built before the timing; the final "
+            "estimates of the 8 repeats are inside it",
+            "cpu_s counts every thread of the process: the time an idle machine would take",
+        ],
+    }
+
+
+def bench_rehearse8(quick: bool) -> dict[str, Any]:
+    """Rehearse at 8 qubits (hchain-8, SPSA 10 iterations x 8 repeats; 3 with --quick): wall
+    time per in-loop evaluation / bare qiskit-aer time of one evaluation's simulation."""
+    from qiskit_aer import AerSimulator
+
+    from noiselab.device.compile import compile_to_device
+    from noiselab.emulate.device_inputs import noise_model_for
+    from noiselab.study.context import build_context
+
+    iterations = 3 if quick else 10
+    study = load(8)
+    ctx = build_context(study, verification=True)
+    _timed_rehearse(study, ctx, iterations=1, repeats=2)
+    res, wall, cpu = _timed_rehearse(study, ctx, iterations=iterations, repeats=8)
+    evaluations = sum(r.evaluations for r in res.repeats)
+    per_eval = wall / evaluations
+    # the bare engine: one bound circuit of the loop, the same noise model, a fresh simulator
+    param = compile_to_device(
+        ctx.ansatz_circuit,
+        study.profile,
+        layout=list(ctx.compiled.patch),
+        optimization_level=study.optimization_level,
+        seed=ctx.ensemble.chosen_seed if ctx.ensemble is not None else 1234,
+    )
+    nm = noise_model_for(study.profile, param.patch)
+    bare = []
+    for r in res.repeats[:3]:
+        qc = param.bind(list(r.final_parameters)).circuit.copy()
+        qc.save_density_matrix(label="rho")
+        best = math.inf
+        for _ in range(3):
+            sim = AerSimulator(method="density_matrix", noise_model=nm, max_parallel_threads=1)
+            t = time.perf_counter()
+            sim.run(qc, shots=1).result()
+            best = min(best, time.perf_counter() - t)
+        bare.append(best)
+    bare_s = float(sorted(bare)[len(bare) // 2])
+    ratio = per_eval / bare_s
+    _say(
+        f"  hchain-8: {evaluations} evaluations in {wall:.1f} s wall ({cpu:.1f} s CPU): "
+        f"{1e3 * per_eval:.1f} ms each; bare qiskit-aer run of one: {1e3 * bare_s:.1f} ms"
+    )
+    return {
+        "ratio": ratio,
+        "target": "<= 2",
+        "met": ratio <= 2.0,
+        "qubits": study.num_qubits,
+        "evaluations": evaluations,
+        "wall_s": wall,
+        "cpu_s": cpu,
+        "ms_per_evaluation": 1e3 * per_eval,
+        "bare_engine_ms": 1e3 * bare_s,
+        "notes": [
+            "per evaluation: the whole rehearse (8 final estimates included) / loop evaluations",
+            "bare: median over 3 bound circuits of the best of 3 fresh AerSimulator runs",
+        ],
+    }
+
+
 # --------------------------------------------------------------------------- refusal
 
 
@@ -585,7 +700,11 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "memory": bench_memory,
     "scaling": bench_scaling,
     "drift": bench_drift,
+    "rehearse": bench_rehearse,
+    "rehearse8": bench_rehearse8,
     "refusal": bench_refusal,
+    "scan": bench_scan_cost,
+    "scan_workers": bench_scan_workers,
 }
 
 

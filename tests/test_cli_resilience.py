@@ -4,7 +4,6 @@ Ctrl-C prints the interrupt line; random command-line values never give exit 1 o
 from __future__ import annotations
 
 import contextlib
-import io
 import os
 import signal
 import sqlite3
@@ -15,6 +14,7 @@ import time
 from pathlib import Path
 
 import pytest
+from helpers.cli import run_main as run_cli_in_process
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
@@ -37,6 +37,8 @@ recipes:
   raw: []
   zne:
     - {{pass: extrapolate, scales: [1, 2, 3], fit: richardson}}
+rehearse:
+  loop_recipe: [{{pass: readout, method: per_qubit_inverse}}]
 """
 
 SWEEP = ["--vary", "two-qubit-error", "--from", "0.002", "--to", "0.05", "--points", "20", "--log"]
@@ -130,20 +132,8 @@ def test_ctrl_c_prints_the_interrupt_line(study: Path, tmp_path: Path) -> None:
 
 def run_main(argv: list[str]) -> tuple[int, str]:
     """(exit code, stdout + stderr) of ``noiselab argv`` in-process."""
-    from noiselab.cli.app import app, main
-
-    # main() registers the commands on the module's app at every call: undo it afterwards
-    n_commands, n_groups = len(app.registered_commands), len(app.registered_groups)
-    buf = io.StringIO()
-    with contextlib.redirect_stdout(buf), contextlib.redirect_stderr(buf):
-        try:
-            main(argv)
-            code = 0
-        except SystemExit as exc:
-            code = int(exc.code or 0)
-        finally:
-            del app.registered_commands[n_commands:], app.registered_groups[n_groups:]
-    return code, buf.getvalue()
+    code, out, err = run_cli_in_process(argv)
+    return code, out + err
 
 
 NUMBERS = st.sampled_from(
@@ -165,6 +155,15 @@ WILD = {
     "--fit": st.sampled_from(["linear", "richardson", "spline", ""]),
     "--scales": st.sampled_from(["1,3", "1,2,3", "1", "1,1e9", "a,b", "1,nan", ""]),
     "--readout": st.sampled_from(["none", "per_qubit_inverse", "magic"]),
+    "--iterations": st.one_of(NUMBERS, st.integers(-3, 10**6).map(str)),
+    "--repeats": st.one_of(NUMBERS, st.integers(-3, 10**4).map(str)),
+    "--shots-per-evaluation": st.one_of(NUMBERS, st.integers(-3, 10**10).map(str)),
+    "--max-shots": st.one_of(NUMBERS, st.integers(-3, 10**16).map(str)),
+    "--optimizer": st.sampled_from(["spsa", "cobyla", "newton", ""]),
+    "--start": st.sampled_from(["hartree_fock", "random", "middle", ""]),
+    "--devices": st.sampled_from(["cobaltgrid-12", "no-such-chip", "", "/dev/null"]),
+    "--refine": st.one_of(NUMBERS, st.integers(-3, 100).map(str)),
+    "--bond": st.sampled_from([["0", "1"], ["0", "0"], ["0", "7"], ["-1", "1"], ["a", "1"]]),
 }
 # values that keep a valid run small (2 qubits, a few points, cached simulations)
 TAME = {
@@ -182,7 +181,18 @@ TAME = {
     "--fit": st.sampled_from(["linear", "richardson"]),
     "--scales": st.sampled_from(["1,3", "1,2,3"]),
     "--readout": st.sampled_from(["none", "per_qubit_inverse"]),
+    "--iterations": st.sampled_from(["1", "2", "2e0"]),
+    "--repeats": st.just("1"),
+    "--shots-per-evaluation": st.sampled_from(["100", "1e3"]),
+    "--max-shots": st.sampled_from(["1e9", "5000"]),
+    "--optimizer": st.sampled_from(["spsa", "cobyla"]),
+    "--start": st.sampled_from(["hartree_fock", "random"]),
+    "--devices": st.sampled_from(["cobaltgrid-12", "tallowtrap-8"]),
+    "--refine": st.sampled_from(["0", "0e0"]),
+    "--bond": st.just(["0", "1"]),
 }
+# scan: a tame line keeps its geometry small (two points near equilibrium, no refinement)
+SCAN_TAME = {"--from": st.sampled_from(["0.6", "0.7"]), "--to": st.sampled_from(["0.8", "0.9"])}
 OPTIONS = {
     "assess": ["--shots", "--seed", "--method", "--trajectories"],
     "sweep": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--points",
@@ -190,14 +200,33 @@ OPTIONS = {
     "tune": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--top", "--fit",
              "--scales", "--readout"],
     "budget": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--recipe"],
+    "rehearse": ["--seed", "--iterations", "--repeats", "--shots-per-evaluation", "--max-shots",
+                 "--optimizer", "--start"],
+    "compare": ["--devices", "--shots", "--seed", "--method", "--trajectories"],
+    "scan": ["--bond", "--from", "--to", "--points", "--refine", "--recipe", "--shots",
+             "--seed", "--method", "--trajectories", "--workers"],
+}  # fmt: skip
+#: what a tame line of a job always carries, unless the option was drawn (small, fast runs)
+REQUIRED = {
+    "tune": [("--scales", "1,3"), ("--fit", "linear"), ("--readout", "none")],
+    "rehearse": [("--iterations", "1"), ("--repeats", "1"), ("--shots-per-evaluation", "100")],
+    "compare": [("--devices", "cobaltgrid-12")],
+    "scan": [("--bond", ["0", "1"]), ("--from", "0.6"), ("--to", "0.8"), ("--points", "2"),
+             ("--refine", "0"), ("--recipe", "raw")],
 }  # fmt: skip
 
 
+def _words(option: str, value: str | list[str]) -> list[str]:
+    return [option, *value] if isinstance(value, list) else [option, value]
+
+
 @st.composite
-def command_lines(draw: st.DrawFn, study: Path, cache: Path, folder: Path) -> list[str]:
+def command_lines(
+    draw: st.DrawFn, study: Path, cache: Path, folder: Path, jobs: tuple[str, ...]
+) -> list[str]:
     """One job's command line: every option absent, tame or wild (wild values are refused or
     accepted, never crash); about a third of the lines use tame values only."""
-    job = draw(st.sampled_from(sorted(OPTIONS)))
+    job = draw(st.sampled_from(sorted(jobs)))
     tame_only = draw(st.integers(0, 2)) == 0
     args = [job, str(study), "--cache", str(cache), "-q"]
     if job == "tune":
@@ -205,12 +234,12 @@ def command_lines(draw: st.DrawFn, study: Path, cache: Path, folder: Path) -> li
     kinds = ["absent", "tame"] if tame_only else ["absent", "tame", "wild"]
     for option in OPTIONS[job]:
         kind = draw(st.sampled_from(kinds))
+        tame = {**TAME, **SCAN_TAME} if job == "scan" else TAME
         if kind != "absent":
-            args += [option, draw((TAME if kind == "tame" else WILD)[option])]
-    if job == "tune":  # tune's own grid would be a long run: one value per axis unless drawn
-        for option, value in (("--scales", "1,3"), ("--fit", "linear"), ("--readout", "none")):
-            if option not in args:
-                args += [option, value]
+            args += _words(option, draw((tame if kind == "tame" else WILD)[option]))
+    for option, value in REQUIRED.get(job, []):  # the job's own defaults would be long runs
+        if option not in args:
+            args += _words(option, value)
     out = draw(st.sampled_from([None, "NEW"] if tame_only else [None, "", "FILE", "NEW"]))
     if out == "FILE":
         blocker = folder / "a-file"
@@ -223,11 +252,15 @@ def command_lines(draw: st.DrawFn, study: Path, cache: Path, folder: Path) -> li
     return args
 
 
-def test_random_command_lines_never_fail_internally(study: Path, tmp_path: Path) -> None:
+def _check_random_lines(
+    study: Path, tmp_path: Path, jobs: tuple[str, ...], examples: int
+) -> dict[int, int]:
+    """Run ``examples`` random command lines of ``jobs``; every one exits 0 or 2 (one error
+    line), never 1, never a traceback. Returns how often each exit code came."""
     cache = tmp_path / "shared.sqlite"
 
     @settings(
-        max_examples=40,
+        max_examples=examples,
         deadline=None,
         derandomize=True,
         suppress_health_check=[HealthCheck.too_slow, HealthCheck.data_too_large],
@@ -235,7 +268,7 @@ def test_random_command_lines_never_fail_internally(study: Path, tmp_path: Path)
     @given(st.data())
     def check(data: st.DataObject) -> None:
         with tempfile.TemporaryDirectory(dir=tmp_path) as folder:
-            argv = data.draw(command_lines(study, cache, Path(folder)))
+            argv = data.draw(command_lines(study, cache, Path(folder), jobs))
             code, text = run_main(argv)
             seen[code] = seen.get(code, 0) + 1
             assert code in (0, 2), (argv, text)
@@ -246,4 +279,16 @@ def test_random_command_lines_never_fail_internally(study: Path, tmp_path: Path)
 
     seen: dict[int, int] = {}
     check()
+    return seen
+
+
+def test_random_command_lines_never_fail_internally(study: Path, tmp_path: Path) -> None:
+    seen = _check_random_lines(study, tmp_path, ("assess", "sweep", "tune", "budget"), 40)
     assert seen.get(0, 0) >= 3 and seen.get(2, 0) >= 10, seen  # both kinds were exercised
+
+
+def test_random_rehearse_compare_scan_lines_never_fail_internally(
+    study: Path, tmp_path: Path
+) -> None:
+    seen = _check_random_lines(study, tmp_path, ("rehearse", "compare", "scan"), 24)
+    assert seen.get(0, 0) >= 2 and seen.get(2, 0) >= 6, seen  # both kinds were exercised

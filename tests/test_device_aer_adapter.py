@@ -6,8 +6,11 @@ from __future__ import annotations
 import re
 from pathlib import Path
 
+import numpy as np
 from qiskit import QuantumCircuit
 from qiskit.circuit import Delay
+from qiskit.quantum_info import DensityMatrix, SuperOp
+from qiskit_aer import AerSimulator
 from qiskit_aer.noise import NoiseModel, depolarizing_error, thermal_relaxation_error
 from qiskit_aer.noise.passes import LocalNoisePass
 
@@ -17,6 +20,7 @@ from noiselab.device.aer_adapter import (
     instruction_error,
     noise_passes,
     run_noise_passes,
+    superop_instruction,
 )
 
 ROOT = Path(__file__).resolve().parents[1]
@@ -60,3 +64,19 @@ def test_no_private_aer_access_outside_the_adapter() -> None:
         and PRIVATE.search(p.read_text(encoding="utf-8"))
     ]
     assert offenders == []
+
+
+def test_superop_instruction_runs_as_that_channel() -> None:
+    chan = SuperOp(thermal_relaxation_error(30e-6, 20e-6, 5e-6))
+    qc = QuantumCircuit(2)
+    qc.h(0)
+    qc.cx(0, 1)
+    qc.append(superop_instruction(chan.expand(chan).data), [0, 1])
+    ref = QuantumCircuit(2)
+    ref.h(0)
+    ref.cx(0, 1)
+    # source: qiskit.quantum_info DensityMatrix.evolve with the same channel
+    expected = DensityMatrix(ref).evolve(chan.expand(chan), [0, 1])
+    qc.save_density_matrix(label="rho")
+    rho = AerSimulator(method="density_matrix").run(qc, shots=1).result().data(0)["rho"]
+    np.testing.assert_allclose(np.asarray(rho), expected.data, atol=1e-12)

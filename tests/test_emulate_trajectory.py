@@ -17,7 +17,7 @@ from qiskit_aer.noise.passes import LocalNoisePass
 from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.emulate.channels import EffectCache
 from noiselab.emulate.contract import dm_distributions, effect_rotation, sv_batch_mean_distributions
-from noiselab.emulate.engine import _basis_tables, emulate_bases, emulate_circuit_bases
+from noiselab.emulate.engine import basis_tables, emulate_bases, emulate_circuit_bases
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.emulate.trajectory import trajectory_distributions, unravelled_circuit
 
@@ -55,7 +55,7 @@ def test_pure_state_kernel_equals_density_kernel() -> None:
     qubits = [3, 0, 2]  # circuit qubit 1 is not measured
     rng = np.random.default_rng(4)
     bases = ["".join(rng.choice(list("IXYZ"), 3)) for _ in range(12)]
-    effects, keys = _basis_tables(bases, qubits, EffectCache(dev.noise_model, 4, dev.layer))
+    effects, keys = basis_tables(bases, qubits, EffectCache(dev.noise_model, 4, dev.layer))
     rotations = [[effect_rotation(e) for e in row] for row in effects]
     psis = rng.normal(size=(3, 16)) + 1j * rng.normal(size=(3, 16))
     psis /= np.linalg.norm(psis, axis=1, keepdims=True)

@@ -4,7 +4,6 @@ unusable --out folders, damaged caches, the memory guard before any work, typo w
 from __future__ import annotations
 
 import contextlib
-import io
 import json
 import os
 import sqlite3
@@ -13,6 +12,7 @@ import sys
 from pathlib import Path
 
 import pytest
+from helpers.cli import run_main
 
 from noiselab.common.counts import whole_number
 from noiselab.common.errors import InputError, ProblemTooLargeError, quote
@@ -39,25 +39,6 @@ seed: 3
 recipes:
   raw: []
 """
-
-
-def run_main(argv: list[str]) -> tuple[int, str, str]:
-    """``noiselab argv`` in-process: (exit code, stdout, stderr)."""
-    from noiselab.cli.app import app, main
-
-    # main() registers the commands on the module's app at every call: undo it afterwards, or
-    # hundreds of in-process calls make each one slower than the last
-    n_commands, n_groups = len(app.registered_commands), len(app.registered_groups)
-    out, err = io.StringIO(), io.StringIO()
-    with contextlib.redirect_stdout(out), contextlib.redirect_stderr(err):
-        try:
-            main(argv)
-            code = 0
-        except SystemExit as exc:
-            code = int(exc.code or 0)
-        finally:
-            del app.registered_commands[n_commands:], app.registered_groups[n_groups:]
-    return code, out.getvalue(), err.getvalue()
 
 
 def run_cli(args: list[str], cwd: Path | None = None) -> subprocess.CompletedProcess[str]:

@@ -114,6 +114,12 @@ H2_RECIPES = {
         {"pass": "postselect", "mode": "verify"},
         {"pass": "extrapolate", "amplifier": "stretch", "scales": [1, 2, 3], "fit": "richardson"},
     ],
+    "clifford_regression": [{"pass": "clifford_regression"}],
+    "readout+verify+regression": [
+        {"pass": "readout"},
+        {"pass": "postselect", "mode": "verify"},
+        {"pass": "clifford_regression"},
+    ],
 }
 
 

@@ -34,7 +34,6 @@ from noiselab.study.sweep import (
     SweepPoint,
     SweepResult,
     get_knob,
-    knob_values,
     recipe_crossing,
 )
 
@@ -44,7 +43,7 @@ EXACT_HA = -1.137
 
 def _hand_sweep(log: bool = True) -> SweepResult:
     knob = get_knob("two-qubit-error")
-    values = knob_values(knob, 1e-3, 5e-2, 6, log)
+    values = knob.values(1e-3, 5e-2, 6, log)
     points = []
     for v in values:
         x = v / 0.01

@@ -35,6 +35,10 @@ def test_compare_ranks_the_shipped_devices_by_p(result) -> None:
         t, b, s = result.target_mha, row.bias_mha, row.std_mha
         assert row.p_within_target == pytest.approx(norm.cdf((t - b) / s) - norm.cdf((-t - b) / s))
         assert row.reaches_target == (row.p_within_target >= result.confidence)
+        # device hours of the best recipe's estimate, as assess states them for that device
+        assert row.device_hours == assessed.device_hours[row.best_recipe] > 0
+    assert "device hours (h)" in result.table_headers()
+    assert all(r["device_hours"] > 0 for r in result.to_json()["devices"])
     assert f"'{result.rows[0].device}'" in result.verdict
 
 

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 import json
 import math
 from pathlib import Path
@@ -93,7 +94,9 @@ def test_zero_drift_every_day_equals_nominal(tmp_path):
     for name, r in res.recipes.items():
         d = res.drift[name]
         assert d.draws == 3
-        assert d.biases_mha == (float(r.bias_exact_mha),) * 3
+        # the days are simulated together with their noise written into the circuits
+        # (emulate.batch.emulate_written): equal to the nominal noise-model run to rounding
+        assert d.biases_mha == pytest.approx((float(r.bias_exact_mha),) * 3, rel=0, abs=1e-9)
         assert d.p_within_target_mean == pytest.approx(float(r.p_within_target), abs=1e-12)
         assert d.fraction_reaching == float(r.p_within_target >= study.confidence)
     assert "of 3 drawn days" in res.verdict
@@ -135,3 +138,34 @@ def test_drift_json_table_figure(tmp_path, capsys):
         main([*argv, "-q"])  # the table: read back from the cache
     text = capsys.readouterr().out
     assert "drift days reaching" in text and "/4 " in text
+
+
+def test_batched_days_equal_day_by_day_simulation(tmp_path, monkeypatch):
+    """The drawn days simulated together (noise written into the circuits, one qiskit-aer call)
+    give the biases of simulating each day on its own through the noise model and the cache,
+    stretched variants and readout calibration included."""
+    import noiselab.study.drift as drift_mod
+    from noiselab.emulate.engine import engine_call_count
+    from noiselab.study.assess import assess
+
+    study = _study(str(COBALT))
+    recipes = {
+        "readout": [{"pass": "readout", "method": "per_qubit_inverse"}],
+        "zne": [
+            {"pass": "readout", "method": "per_qubit_inverse"},
+            {"pass": "extrapolate", "amplifier": "stretch", "scales": [1, 3], "fit": "linear"},
+        ],
+    }
+    study = dataclasses.replace(study, recipes=recipes)
+    calls = engine_call_count()
+    batched = assess(study, cache=False, drift=3)
+    batched_calls = engine_call_count() - calls
+    monkeypatch.setattr(drift_mod, "batched_days", lambda *args: None)
+    calls = engine_call_count()
+    alone = assess(study, cache=False, drift=3)
+    assert engine_call_count() - calls == batched_calls - 1 + 3 * 2  # 2 variants x 3 days
+    for name in recipes:
+        a, b = batched.drift[name], alone.drift[name]
+        assert a.biases_mha == pytest.approx(b.biases_mha, rel=0, abs=1e-9)
+        assert a.p_within_target_mean == pytest.approx(b.p_within_target_mean, abs=1e-12)
+        assert len(set(a.biases_mha)) == 3  # the days differ

@@ -202,3 +202,18 @@ def test_postselect_without_symmetries_is_refused_with_its_key(tmp_path: Path) -
     with pytest.raises(InputError) as info:
         assess(path, cache=False)
     assert str(path) in str(info.value) and "recipes.ps[0]" in str(info.value)
+
+
+def test_main_registers_the_commands_once() -> None:
+    """Repeated in-process calls reuse one command tree (no re-registration, no slow-down)."""
+    import contextlib
+    import io
+
+    from noiselab.cli.app import _command, app, main
+
+    for _ in range(3):
+        with contextlib.redirect_stdout(io.StringIO()), pytest.raises(SystemExit):
+            main(["--version"])
+    names = [c.name for c in app.registered_commands]
+    assert len(names) == len(set(names)) and "assess" in names
+    assert _command() is _command()

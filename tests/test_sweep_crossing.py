@@ -10,18 +10,16 @@ import pytest
 from noiselab.common.errors import InputError
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.mitigate.target import p_within, reaches_target
-from noiselab.study.sweep import (
+from noiselab.study.crossings import (
     SweepEntry,
     SweepPoint,
     bias_within,
     bisect_crossing,
     crossing_sentence,
-    get_knob,
-    knob_factor,
-    knob_values,
     locate_crossings,
     recipe_crossing,
 )
+from noiselab.study.knobs import get_knob
 
 
 def _entry(error_mha: float, std_mha: float, conf: float = 0.95) -> SweepEntry:
@@ -141,7 +139,7 @@ def test_sentences_in_device_units() -> None:
 )
 def test_bad_ranges_are_input_errors(knob: str, start: float, stop: float) -> None:
     with pytest.raises(InputError):
-        knob_values(get_knob(knob), start, stop, 3, log=knob == "noise-scale")
+        get_knob(knob).values(start, stop, 3, log=knob == "noise-scale")
 
 
 def test_unknown_knob() -> None:
@@ -150,12 +148,12 @@ def test_unknown_knob() -> None:
 
 
 def test_knob_values_and_factors() -> None:
-    vals = knob_values(get_knob("coherence-us"), 10.0, 1000.0, 3, log=True)
+    vals = get_knob("coherence-us").values(10.0, 1000.0, 3, log=True)
     assert vals == pytest.approx((10.0, 100.0, 1000.0))
     # coherence: twice the T1 halves the relaxation rate
-    assert knob_factor(get_knob("coherence-us"), 200.0, 100.0) == pytest.approx(0.5)
-    assert knob_factor(get_knob("two-qubit-error"), 0.02, 0.01) == pytest.approx(2.0)
-    assert knob_factor(get_knob("scale"), 1.7, 123.0) == pytest.approx(1.7)
+    assert get_knob("coherence-us").factor(200.0, 100.0) == pytest.approx(0.5)
+    assert get_knob("two-qubit-error").factor(0.02, 0.01) == pytest.approx(2.0)
+    assert get_knob("scale").factor(1.7, 123.0) == pytest.approx(1.7)
 
 
 def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
@@ -184,16 +182,14 @@ def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
 
 
 def test_relaxation_floor_and_reference_values() -> None:
-    from noiselab.study.sweep import below_relaxation_floor, reference_value
-
     knob = get_knob("two-qubit-error")
     # T1 = 50 us over a 300 ns gate costs of order t / T1 = 0.6 % of fidelity (Nielsen & Chuang
     # sec. 8.3, to first order): 1e-5 is far below that floor, 5 % far above
-    assert below_relaxation_floor(knob, _profile(1e-5), (0, 1))
-    assert not below_relaxation_floor(knob, _profile(5e-2), (0, 1))
-    assert not below_relaxation_floor(get_knob("readout-error"), _profile(1e-5), (0, 1))
+    assert knob.below_floor(_profile(1e-5), (0, 1))
+    assert not knob.below_floor(_profile(5e-2), (0, 1))
+    assert not get_knob("readout-error").below_floor(_profile(1e-5), (0, 1))
     p = _profile(2e-2)
-    assert reference_value(knob, p, (0, 1)) == pytest.approx(2e-2)
+    assert knob.reference(p, (0, 1)) == pytest.approx(2e-2)
     # readout knob: the mean of P(1|0) and P(0|1), (0.01 + 0.02) / 2
-    assert reference_value(get_knob("readout-error"), p, (0, 1)) == pytest.approx(0.015)
-    assert reference_value(get_knob("coherence-us"), p, (0, 1)) == pytest.approx(50.0)
+    assert get_knob("readout-error").reference(p, (0, 1)) == pytest.approx(0.015)
+    assert get_knob("coherence-us").reference(p, (0, 1)) == pytest.approx(50.0)

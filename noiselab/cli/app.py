@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import os
 import sys
+from typing import Any
 
 import typer
 
@@ -50,10 +51,25 @@ def _root(
     """noiselab command line."""
 
 
+_COMMAND: list[Any] = []  # the click command built from ``app``, once per process
+
+
 def _register_commands() -> None:
+    """Add every command module's commands to ``app`` (once: a second call does nothing)."""
+    if app.registered_commands:
+        return
     # Each module defines ``register(app)``; keep this list in data-flow order.
     for register in commands.REGISTRY:
         register(app)
+
+
+def _command() -> Any:
+    """The click command of ``app`` with every command registered, built on first use only
+    (in-process callers such as the tests call :func:`main` many times)."""
+    if not _COMMAND:
+        _register_commands()
+        _COMMAND.append(typer.main.get_command(app))
+    return _COMMAND[0]
 
 
 def _cli_error_classes() -> tuple[type[Exception], type[Exception]]:
@@ -73,8 +89,7 @@ INTERRUPTED = "noiselab: interrupted; finished results are kept in the cache"
 def main(argv: list[str] | None = None) -> None:
     """Console entry point: one-line errors, exit 2 for bad input, 1 for failures."""
     usage_error, click_error = _cli_error_classes()
-    _register_commands()
-    command = typer.main.get_command(app)
+    command = _command()
     args = sys.argv[1:] if argv is None else argv
     try:
         rc = command.main(args=args, prog_name="noiselab", standalone_mode=False)

@@ -6,22 +6,16 @@ The study layer is imported inside the command (``noiselab --help`` stays fast).
 from __future__ import annotations
 
 from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from noiselab.cli.study_cmds import (
-    CacheOpt,
-    JsonOpt,
-    NoCacheOpt,
-    QuietOpt,
-    StudyArg,
-    _open_cache,
-    _print_json,
-    _print_table,
-    _progress,
-    echo_written,
-)
+from noiselab.cli.console import echo_written, print_json, print_table
+from noiselab.cli.jobs import run_job
+from noiselab.cli.options import CountOpt, JsonOpt, StudyArg, epilog, option, run_options
+
+if TYPE_CHECKING:
+    from noiselab.study.run_options import RunOptions
 
 _HELP = (
     "Rehearse the variational loop on the emulated device: every energy evaluation is drawn "
@@ -30,63 +24,64 @@ _HELP = (
     "final error split into ansatz, optimizer and noise parts, P(final within target), total "
     "shots and device hours. Defaults come from the study's rehearse: section."
 )
+REHEARSE_FILES = ("rehearse.json", "rehearse_traces.csv", "rehearse.png")
+GRID_FILES = ("rehearse_grid.json", "rehearse_grid.csv")
 
 
+@run_options(
+    ("out", "seed", "cache", "no_cache", "quiet"),
+    files=(*REHEARSE_FILES, *GRID_FILES),
+    helps={
+        "out": "Folder for rehearse.json, rehearse_traces.csv and rehearse.png. "
+        "Default: ./rehearse-<study name>.",
+        "seed": "Seed of the first run.",
+    },
+)
 def rehearse_cmd(
     study: StudyArg,
-    out: Annotated[
-        Path | None,
-        typer.Option("--out", help="Folder for rehearse.json, rehearse_traces.csv and "
-                     "rehearse.png. Default: ./rehearse-<study name>.", show_default=False),
-    ] = None,
+    run: RunOptions,
     optimizer: Annotated[
-        str | None,
-        typer.Option("--optimizer", help="spsa, parameter_shift, cobyla or nelder_mead.",
-                     show_default=False),
+        str | None, option("--optimizer", "spsa, parameter_shift, cobyla or nelder_mead.")
     ] = None,
-    iterations: Annotated[
-        int | None, typer.Option("--iterations", help="Optimizer iterations.", show_default=False)
-    ] = None,
+    iterations: Annotated[CountOpt, option("--iterations", "Optimizer iterations.")] = None,
     shots_per_evaluation: Annotated[
-        int | None,
-        typer.Option("--shots-per-evaluation", help="Measured shots of one in-loop energy "
-                     "evaluation.", show_default=False),
+        CountOpt,
+        option("--shots-per-evaluation", "Measured shots of one in-loop energy evaluation."),
     ] = None,
     max_shots: Annotated[
-        int | None,
-        typer.Option("--max-shots", help="Stop a loop after this many shots.", show_default=False),
+        CountOpt, option("--max-shots", "Stop a loop after this many shots.")
     ] = None,
-    repeats: Annotated[
-        int | None, typer.Option("--repeats", help="Runs of the loop.", show_default=False)
-    ] = None,
+    repeats: Annotated[CountOpt, option("--repeats", "Runs of the loop.")] = None,
     start: Annotated[
-        str | None,
-        typer.Option("--start", help="hartree_fock, perturbed_optimum or random.",
-                     show_default=False),
+        str | None, option("--start", "hartree_fock, perturbed_optimum or random.")
     ] = None,
-    seed: Annotated[
-        int | None, typer.Option("--seed", help="Seed of the first run.", show_default=False)
-    ] = None,
-    cache: CacheOpt = None,
-    no_cache: NoCacheOpt = False,
-    quiet: QuietOpt = False,
+    grid: Annotated[
+        bool,
+        typer.Option(
+            "--grid",
+            help="Rehearse every setting of the study's rehearse.grid (shots per evaluation x "
+            "optimizer x in-loop recipe) and rank them by P(final within target), then device "
+            "hours; writes rehearse_grid.json and .csv.",
+        ),
+    ] = False,
     json_out: JsonOpt = False,
 ) -> None:
     """Rehearse the study's variational loop and write its outputs."""
     from noiselab.report.rehearse_figure import write_rehearse_outputs
     from noiselab.study.rehearse import rehearse
 
-    store = _open_cache(cache, no_cache)
-    with _progress(quiet or json_out) as hook:
-        result = rehearse(
-            study, cache=store, progress=hook, optimizer=optimizer, iterations=iterations,
-            shots_per_evaluation=shots_per_evaluation, max_shots=max_shots, repeats=repeats,
-            start=start, seed=seed,
-        )  # fmt: skip
-    folder = out if out is not None else Path(f"rehearse-{result.study}")
-    written = write_rehearse_outputs(result, folder)
+    loop = {"iterations": iterations, "max_shots": max_shots, "repeats": repeats, "start": start}
+    if grid:
+        _grid(study, run, json_out, optimizer, shots_per_evaluation, loop)
+        return
+    result, written = run_job(
+        rehearse, study, run, keywords={"seed": run.seed}, quiet=json_out,
+        write=write_rehearse_outputs, optimizer=optimizer,
+        shots_per_evaluation=shots_per_evaluation, **loop,
+    )  # fmt: skip
+    written = written or _write_default(run, result, write_rehearse_outputs, REHEARSE_FILES)
     if json_out:
-        _print_json(result.to_json())
+        print_json(result.to_json())
         return
     headers = ("seed", "final error (mHa)", "optimizer error (mHa)", "noise bias (mHa)",
                "std (mHa)", "P within", "shots", "device hours")  # fmt: skip
@@ -97,10 +92,48 @@ def rehearse_cmd(
         for r in result.repeats
     ]  # fmt: skip
     ansatz = (result.ansatz_energy_ha - result.exact_energy_ha) * 1000.0
-    _print_table(
+    print_table(
         f"{result.study}: rehearsed loop ({result.loop_recipe} in the loop, "
         f"{result.final_recipe} final); ansatz error {ansatz:+.3g} mHa",
         headers, rows,
+    )  # fmt: skip
+    typer.echo(result.verdict)
+    echo_written(written)
+
+
+def _write_default(run: RunOptions, result: Any, write: Any, files: tuple[str, ...]) -> list[Path]:
+    """Without --out: the files into ./rehearse-<study name> (known only once the job ran)."""
+    if run.out is not None:
+        return []
+    from noiselab.common.atomic import check_output_dir
+
+    folder = check_output_dir(Path(f"rehearse-{result.study}"), files)
+    return run.model_copy(update={"out": folder}).write_outputs(lambda d: write(result, d))
+
+
+def _grid(
+    study: Path, run: RunOptions, json_out: bool, optimizer: str | None,
+    shots: str | None, loop: dict[str, Any],
+) -> None:  # fmt: skip
+    """``rehearse --grid``: every setting of the study's grid, ranked."""
+    from noiselab.common.errors import InputError
+    from noiselab.study.rehearse_grid import rehearse_grid, write_grid_data
+
+    for flag, value in (("--optimizer", optimizer), ("--shots-per-evaluation", shots)):
+        if value is not None:
+            raise InputError(f"{flag}: not with --grid; allowed: the axes of rehearse.grid")
+    result, written = run_job(
+        rehearse_grid, study, run, keywords={"seed": run.seed}, quiet=json_out,
+        write=write_grid_data, **loop,
+    )  # fmt: skip
+    written = written or _write_default(run, result, write_grid_data, GRID_FILES)
+    if json_out:
+        print_json(result.to_json())
+        return
+    print_table(
+        f"{result.study}: loop settings ranked ({result.iterations} iterations, "
+        f"{result.reused_evaluations} of {result.evaluations} in-loop evaluations shared)",
+        result.table_headers(), result.table_rows(),
     )  # fmt: skip
     typer.echo(result.verdict)
     echo_written(written)
@@ -111,8 +144,5 @@ def register(app: typer.Typer) -> None:
     app.command(
         "rehearse",
         help=_HELP,
-        epilog=(
-            "Example: noiselab rehearse configs/studies/h2-equilibrium.yaml --iterations 20\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (one line naming the file and key)."
-        ),
+        epilog=epilog("noiselab rehearse configs/studies/h2-equilibrium.yaml --iterations 20"),
     )(rehearse_cmd)

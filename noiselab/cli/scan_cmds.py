@@ -2,48 +2,37 @@
 
 from __future__ import annotations
 
-from pathlib import Path
-from typing import Annotated
+from typing import TYPE_CHECKING, Annotated
 
 import typer
 
-from noiselab.cli.study_cmds import (
-    CacheOpt,
-    ClusterOpt,
-    MethodOpt,
-    NoCacheOpt,
-    QuietOpt,
-    SeedOpt,
-    ShotsOpt,
+from noiselab.cli.console import echo_written
+from noiselab.cli.console import print_plain_table as _table
+from noiselab.cli.jobs import run_job
+from noiselab.cli.options import (
+    EXECUTOR_JOB,
+    STUDY_JOB,
+    CountOpt,
+    RecipesOpt,
     StudyArg,
-    TrajectoriesOpt,
-    WorkersOpt,
-    _console,
-    _run_job,
-    echo_written,
+    run_options,
 )
 from noiselab.common.wording import CAUTION
 
-OutOpt = Annotated[
-    Path | None,
-    typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
-]
+if TYPE_CHECKING:
+    from noiselab.study.run_options import RunOptions
+
+OUT_HELP = {"out": "Folder for the CSV, JSON and figure files."}
+FIGURE_EXTS = ("svg", "pdf", "png")
+COMPARE_FILES = ("compare.json", "compare.csv", *(f"compare.{e}" for e in FIGURE_EXTS))
+SCAN_FILES = ("scan.json", "scan.csv", *(f"scan.{e}" for e in FIGURE_EXTS))
 
 
-def _table(headers: tuple[str, ...], rows: list[tuple[str, ...]], title: str) -> None:
-    from rich.table import Table
-
-    t = Table(title=title)
-    for h in headers:
-        t.add_column(h)
-    for r in rows:
-        t.add_row(*r)
-    _console().print(t)
-
-
+@run_options(STUDY_JOB, files=COMPARE_FILES, helps=OUT_HELP)
 def compare_cmd(
     ctx: typer.Context,
     study: StudyArg,
+    run: RunOptions,
     devices: Annotated[
         list[str],
         typer.Option(
@@ -52,81 +41,63 @@ def compare_cmd(
             show_default=False,
         ),
     ],
-    out: OutOpt = None,
-    cache: CacheOpt = None,
-    no_cache: NoCacheOpt = False,
-    seed: SeedOpt = None,
-    shots: ShotsOpt = None,
-    quiet: QuietOpt = False,
-    method: MethodOpt = None,
-    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """The same experiment on several devices, ranked; names the device to ask time on."""
+    from noiselab.report.scan_figures import write_compare_outputs
     from noiselab.study.compare import compare
 
-    result = _run_job(
-        compare, study, cache=cache, no_cache=no_cache, quiet=quiet, method=method,
-        devices=[*devices, *ctx.args], seed=seed, shots=shots, trajectories=trajectories,
-    )  # fmt: skip
+    result, written = run_job(
+        compare, study, run, write=write_compare_outputs, devices=[*devices, *ctx.args]
+    )
     _table(result.table_headers(), result.table_rows(), f"{result.study_name}: devices ranked")
     typer.echo(result.verdict)
     typer.echo(CAUTION)
-    if out is not None:
-        from noiselab.report.scan_figures import write_compare_outputs
-
-        echo_written(write_compare_outputs(result, out))
+    echo_written(written)
 
 
+@run_options(EXECUTOR_JOB, files=SCAN_FILES, helps=OUT_HELP)
 def scan_cmd(
     study: StudyArg,
+    run: RunOptions,
     bond: Annotated[
         tuple[int, int] | None,
-        typer.Option("--bond", help="Atom indices I J: J's side moves along I-J.",
-                     show_default=False),
+        typer.Option(
+            "--bond", help="Atom indices I J: J's side moves along I-J.", show_default=False
+        ),
     ] = None,
     scale: Annotated[
         bool, typer.Option("--scale", help="Scale every distance instead (values are factors).")
     ] = False,
     start: Annotated[
         float | None,
-        typer.Option("--from", help="First value (Angstrom, or factor with --scale).",
-                     show_default=False),
+        typer.Option(
+            "--from", help="First value (Angstrom, or factor with --scale).", show_default=False
+        ),
     ] = None,
     stop: Annotated[
         float | None, typer.Option("--to", help="Last value.", show_default=False)
     ] = None,
     points: Annotated[
-        int | None, typer.Option("--points", help="Grid points (default 9).", show_default=False)
+        CountOpt, typer.Option("--points", help="Grid points (default 9).", show_default=False)
     ] = None,
     refine: Annotated[
-        int | None,
-        typer.Option("--refine", help="Refinement rounds near the minimum, 2 points each "
-                     "(default 2).", show_default=False),
+        CountOpt,
+        typer.Option(
+            "--refine",
+            help="Refinement rounds near the minimum, 2 points each (default 2).",
+            show_default=False,
+        ),
     ] = None,
-    recipe: Annotated[
-        list[str] | None,
-        typer.Option("--recipe", help="Recipe to follow (repeat). Default: all.",
-                     show_default=False),
-    ] = None,
-    out: OutOpt = None,
-    cache: CacheOpt = None,
-    no_cache: NoCacheOpt = False,
-    seed: SeedOpt = None,
-    shots: ShotsOpt = None,
-    workers: WorkersOpt = None,
-    cluster: ClusterOpt = None,
-    quiet: QuietOpt = False,
-    method: MethodOpt = None,
-    trajectories: TrajectoriesOpt = None,
+    recipe: RecipesOpt = None,
 ) -> None:
     """Potential-energy curve under noise along one geometry coordinate."""
+    from noiselab.report.scan_figures import write_scan_outputs
     from noiselab.study.scan import scan
 
-    result = _run_job(
-        scan, study, cache=cache, no_cache=no_cache, quiet=quiet, method=method,
+    result, written = run_job(
+        scan, study, run, write=write_scan_outputs, executor=True,
         bond=bond, scale=scale or None, start=start, stop=stop, points=points, refine=refine,
-        recipes=recipe or None, seed=seed, shots=shots, workers=workers, cluster=cluster,
-        trajectories=trajectories,
+        recipes=recipe or None,
     )  # fmt: skip
     unit = result.axis.unit
     headers = ("coordinate", "exact (Ha)", "HF (Ha)", *(f"{n} bias (mHa)" for n in result.recipes))
@@ -150,10 +121,7 @@ def scan_cmd(
     for note in result.notes:
         typer.echo(f"Note: {note}.")
     typer.echo(CAUTION)
-    if out is not None:
-        from noiselab.report.scan_figures import write_scan_outputs
-
-        echo_written(write_scan_outputs(result, out))
+    echo_written(written)
 
 
 def register(app: typer.Typer) -> None:

@@ -6,27 +6,25 @@ inside the command functions so that ``noiselab --help`` stays fast.
 
 from __future__ import annotations
 
-from typing import Annotated, Any
+from typing import TYPE_CHECKING, Annotated, Any
 
 import typer
 
-from noiselab.cli.study_cmds import (
-    CacheOpt,
-    ClusterOpt,
-    MethodOpt,
-    NoCacheOpt,
-    QuietOpt,
-    SeedOpt,
-    ShotsOpt,
+from noiselab.cli.console import console, echo_written
+from noiselab.cli.jobs import run_job
+from noiselab.cli.options import (
+    CLUSTER_CODES,
+    EXECUTOR_JOB,
+    CountOpt,
+    RecipesOpt,
     StudyArg,
-    TrajectoriesOpt,
-    WorkersOpt,
-    _check_method,
-    _console,
-    _run_job,
-    echo_written,
+    epilog,
+    run_options,
 )
 from noiselab.common.wording import CAUTION
+
+if TYPE_CHECKING:
+    from noiselab.study.run_options import RunOptions
 
 # Deliberately lazy: the study and report layers are imported inside the command functions
 # (noiselab --help stays fast).
@@ -42,26 +40,27 @@ TRAJECTORY_NOTE = (
     "trajectory error of each value is in the JSON (trajectory_std_mha)."
 )
 
-RecipeOpt = Annotated[
-    list[str] | None,
-    typer.Option(
-        "--recipe",
-        help="Recipe of the study to follow (repeat the option). Default: all of the study's.",
-        show_default=False,
-    ),
-]
-OutOpt = Annotated[
-    str | None,
-    typer.Option("--out", help="Folder for the CSV, JSON and figure files.", show_default=False),
-]
+OUT_HELP = {"out": "Folder for the CSV, JSON and figure files."}
+
+
+def sweep_files() -> tuple[str, ...]:
+    """Every file a sweep may write (one set per knob)."""
+    from noiselab.study.knobs import KNOBS
+
+    return tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
+
+
+BUDGET_FILES = tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg"))
 
 
 def _print(table: Any) -> None:
-    _console().print(table)
+    console().print(table)
 
 
+@run_options(EXECUTOR_JOB, files=sweep_files, helps=OUT_HELP)
 def sweep_cmd(
     study: StudyArg,
+    run: RunOptions,
     vary: Annotated[
         str | None,
         typer.Option(
@@ -89,7 +88,7 @@ def sweep_cmd(
         ),
     ] = None,
     points: Annotated[
-        str | None,
+        CountOpt,
         typer.Option(
             "--points",
             help="Number of knob values (2 to 200). Default: the study's, else 5.",
@@ -105,47 +104,26 @@ def sweep_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipeOpt = None,
-    out: OutOpt = None,
-    cache: CacheOpt = None,
-    no_cache: NoCacheOpt = False,
-    seed: SeedOpt = None,
-    shots: ShotsOpt = None,
-    workers: WorkersOpt = None,
-    cluster: ClusterOpt = None,
-    quiet: QuietOpt = False,
-    method: MethodOpt = None,
-    trajectories: TrajectoriesOpt = None,
+    recipe: RecipesOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
-    from noiselab.cli.study_cmds import check_out, publish, workers_count
-    from noiselab.study.knobs import KNOBS
+    from noiselab.report.outputs import write_sweep_outputs
     from noiselab.study.sweep import get_knob, sweep
 
-    _check_method(method)  # before the knob
     if vary is not None:
         get_knob(vary)  # a bad knob fails before any work
-    names = tuple(f"sweep-{k}.{ext}" for k in KNOBS for ext in ("csv", "json", "svg", "pdf", "png"))
-    out_dir = check_out(out, names)
-    n_workers = workers_count(workers)
-    result = _run_job(
+    result, written = run_job(
         sweep,
         study,
-        cache=cache,
-        no_cache=no_cache,
-        quiet=quiet,
-        method=method,
+        run,
+        write=write_sweep_outputs,
+        executor=True,
         knob=vary,
         start=start,
         stop=stop,
         points=points,
         log=log,
         recipes=recipe or None,
-        seed=seed,
-        shots=shots,
-        workers=n_workers,
-        cluster=cluster,
-        trajectories=trajectories,
     )
     from noiselab.report.tables import sweep_table
 
@@ -164,14 +142,13 @@ def sweep_cmd(
             f"({s.simulations} new simulation(s), {s.cache_hits} from cache, "
             f"{s.wall_seconds:.1f} s, {s.executor})"
         )
-    if out_dir is not None:
-        from noiselab.report.outputs import write_sweep_outputs
-
-        echo_written(publish(out_dir, lambda d: write_sweep_outputs(result, d)))
+    echo_written(written)
 
 
+@run_options(EXECUTOR_JOB, files=BUDGET_FILES, helps=OUT_HELP)
 def budget_cmd(
     study: StudyArg,
+    run: RunOptions,
     recipe: Annotated[
         str | None,
         typer.Option(
@@ -180,37 +157,13 @@ def budget_cmd(
             show_default=False,
         ),
     ] = None,
-    out: OutOpt = None,
-    cache: CacheOpt = None,
-    no_cache: NoCacheOpt = False,
-    seed: SeedOpt = None,
-    shots: ShotsOpt = None,
-    workers: WorkersOpt = None,
-    cluster: ClusterOpt = None,
-    quiet: QuietOpt = False,
-    method: MethodOpt = None,
-    trajectories: TrajectoriesOpt = None,
 ) -> None:
     """Error budget: the energy error with each noise channel alone and with each removed."""
-    from noiselab.cli.study_cmds import check_out, publish, workers_count
+    from noiselab.report.outputs import write_budget_outputs
     from noiselab.study.budget import budget
 
-    _check_method(method)
-    out_dir = check_out(out, tuple(f"budget.{ext}" for ext in ("csv", "json", "png", "svg")))
-    n_workers = workers_count(workers)
-    result = _run_job(
-        budget,
-        study,
-        cache=cache,
-        no_cache=no_cache,
-        quiet=quiet,
-        method=method,
-        recipe=recipe,
-        seed=seed,
-        shots=shots,
-        workers=n_workers,
-        cluster=cluster,
-        trajectories=trajectories,
+    result, written = run_job(
+        budget, study, run, write=write_budget_outputs, executor=True, recipe=recipe
     )
     from noiselab.report.tables import budget_table
 
@@ -219,10 +172,7 @@ def budget_cmd(
     if result.emulation_method == "trajectory":
         typer.echo(TRAJECTORY_NOTE)
     typer.echo(CAUTION)
-    if out_dir is not None:
-        from noiselab.report.outputs import write_budget_outputs
-
-        echo_written(publish(out_dir, lambda d: write_budget_outputs(result, d)))
+    echo_written(written)
 
 
 _SWEEP_HELP = (
@@ -247,12 +197,11 @@ def register(app: typer.Typer) -> None:
     app.command(
         "sweep",
         help=_SWEEP_HELP,
-        epilog=(
-            "Example: noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
-            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep\n\n"
-            "Exit codes: 0 done, 1 failure, 2 bad input (also a --cluster address that is "
-            "malformed or reaches no scheduler, and a missing dask install), 130 interrupted "
-            "(finished points stay in the cache)."
+        epilog=epilog(
+            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
+            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep",
+            CLUSTER_CODES,
+            ", 130 interrupted (finished points stay in the cache)",
         ),
     )(sweep_cmd)
     app.command(

@@ -13,12 +13,18 @@ is checked here only (``tests/test_device_aer_adapter.py`` pins each function):
   (slow, lossy); we read the same ``QuantumError`` objects aer uses.
 * ``QuantumChannelInstruction._quantum_error``: the ``QuantumError`` behind an instruction a noise
   pass inserted; its public ``params`` hold only aer's internal encoding.
+* an instruction named ``superop`` whose one parameter is the superoperator matrix: aer's circuit
+  compiler runs it as a superoperator in the density-matrix method (no public class builds one
+  for a circuit; ``SuperOp.to_instruction`` converts to Kraus operators).
 """
 
 from __future__ import annotations
 
 from collections.abc import Sequence
 from typing import Any
+
+import numpy as np
+from qiskit.circuit import Instruction
 
 
 def add_noise_pass(noise_model: Any, noise_pass: Any) -> None:
@@ -56,3 +62,10 @@ def gate_error(noise_model: Any, name: str, qubits: Sequence[int]) -> Any:
 def instruction_error(op: Any) -> Any:
     """The ``QuantumError`` of a ``quantum_channel`` instruction inserted by a noise pass."""
     return op._quantum_error
+
+
+def superop_instruction(matrix: np.ndarray) -> Any:
+    """A circuit instruction that qiskit-aer's density-matrix method applies as the
+    superoperator ``matrix`` (qiskit's column stacking, on the qubits it is appended to)."""
+    num_qubits = (int(matrix.shape[0]).bit_length() - 1) // 2  # dimension 4**k
+    return Instruction("superop", num_qubits, 0, [np.asarray(matrix)])

@@ -62,6 +62,10 @@ two-qubit gate's error by its Pauli-twirled part.
 
 Quoted gate errors are the stochastic part (relaxation during the gate included); coherent terms
 (ZZ angle, over-rotation) come on top of them.
+
+Over 400 lines: the schema of a profile file, its physical bounds (each with its reason), the
+per-qubit / per-pair resolution, the plausibility warnings and ``scale_profile`` all read the
+same pydantic models; split apart, each piece would import the others' private validators.
 """
 
 from __future__ import annotations

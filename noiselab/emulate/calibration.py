@@ -18,6 +18,7 @@ from noiselab.common.errors import InputError
 from noiselab.emulate.channels import native_basis_change, qubit_layer_superop
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
 from noiselab.emulate.readout import apply_readout
+from noiselab.emulate.written import WrittenNoise
 
 #: Largest number of measured qubits for calibration over all 2**n basis states.
 MAX_FULL_CALIBRATION_QUBITS = 10
@@ -87,6 +88,7 @@ def calibration_distributions(
     *,
     measured: Sequence[int] | None = None,
     noise_model: Any = None,
+    written: WrittenNoise | None = None,
 ) -> CalibrationDistributions:
     """Exact distributions of readout-calibration circuits on ``patch`` of ``profile``.
 
@@ -94,7 +96,9 @@ def calibration_distributions(
     position; pass ``compiled.logical_to_circuit`` for logical order matching
     :class:`~noiselab.emulate.engine.BasisDistributions`). The mitigation layer samples finite
     shots from ``probs`` to estimate assignment matrices; state-preparation error (noisy X
-    gates, relaxation during them) is part of the result.
+    gates, relaxation during them) is part of the result. ``written``: take the channels from
+    these numpy channels of the same profile instead of a qiskit-aer noise model (no noise
+    model is built; equal to rounding).
     """
     patch = tuple(int(q) for q in patch)
     k = len(patch)
@@ -103,7 +107,9 @@ def calibration_distributions(
     if len(set(qubits)) != n or any(not 0 <= c < k for c in qubits):
         raise InputError(f"calibration: measured: {qubits}; allowed: distinct positions 0..{k - 1}")
     chosen = calibration_states(states, n)
-    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
+    nm = None
+    if written is None:
+        nm = noise_model_for(profile, patch) if noise_model is None else noise_model
     spec = layer_spec_for(profile, k)
     flip = native_basis_change("FLIP", spec.native_1q)
     flip_ns = {c: sum(spec.duration_ns(g, c) for g, _ in flip) for c in qubits}
@@ -113,7 +119,11 @@ def calibration_distributions(
     def populations(c: int, bit: int, layer_ns: float) -> np.ndarray:
         key = (c, bit, layer_ns)
         if key not in cache:
-            sop = qubit_layer_superop(nm, k, c, flip if bit else (), layer_ns, spec)
+            gates = flip if bit else ()
+            if written is not None:
+                sop = written.layer_superop(c, gates, layer_ns, spec)
+            else:
+                sop = qubit_layer_superop(nm, k, c, gates, layer_ns, spec)
             rho = (sop @ ground).reshape(2, 2, order="F")
             cache[key] = np.clip(np.real(np.diag(rho)), 0.0, 1.0)
         return cache[key]

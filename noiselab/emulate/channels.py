@@ -86,7 +86,8 @@ def _gate_mapping() -> dict[str, object]:
     return get_standard_gate_name_mapping()
 
 
-def _gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+def gate_superop(name: str, params: Sequence[float]) -> np.ndarray:
+    """Superoperator (column stacking, read-only, cached) of qiskit's standard gate ``name``."""
     return _gate_superop_cached(name, tuple(float(p) for p in params))
 
 
@@ -145,7 +146,7 @@ def qubit_layer_superop(
         if op.name == "quantum_channel":
             out = SuperOp(instruction_error(op)).data @ out
             continue
-        out = _gate_superop(op.name, [float(p) for p in op.params]) @ out
+        out = gate_superop(op.name, [float(p) for p in op.params]) @ out
         if noisy:
             e = _error_superop(noise_model, op.name, qubit)
             if e is not None:
@@ -178,7 +179,9 @@ def layer_duration_ns(measured: Mapping[int, str], spec: BasisLayerSpec) -> floa
 
 
 class EffectCache:
-    """Effect tensors per (circuit qubit, letter, layer duration), computed once per call."""
+    """Effect tensors per (circuit qubit, letter, layer duration) of one noise model and layer
+    spec; :func:`effect_cache_for` shares one across calls (the tables depend on the noise model,
+    never on the circuit, so a loop over bound circuits builds them once)."""
 
     def __init__(
         self, noise_model: object, num_qubits: int, spec: BasisLayerSpec, *, noisy: bool = True
@@ -204,3 +207,27 @@ class EffectCache:
             )
             self._cache[key] = effects_from_superop(sop)
         return self._cache[key]
+
+
+#: Effect caches by noise model (identity; the entry keeps the model alive) and layer spec, most
+#: recently used last; the noise models themselves are memoized per process the same way
+#: (``emulate.device_inputs.noise_model_for``).
+_EFFECT_CACHES: dict[tuple[int, int, tuple, bool], tuple[object, EffectCache]] = {}
+_EFFECT_CACHE_SLOTS = 16
+
+
+def effect_cache_for(
+    noise_model: object, num_qubits: int, spec: BasisLayerSpec, *, noisy: bool = True
+) -> EffectCache:
+    """The :class:`EffectCache` of this noise model, width and layer spec, shared per process
+    (last 16). Callers must not modify the noise model afterwards (nor do they: see
+    ``noise_model_for``)."""
+    spec_key = (spec.native_1q, tuple(sorted(spec.durations_ns.items())))
+    key = (id(noise_model), int(num_qubits), spec_key, bool(noisy))
+    entry = _EFFECT_CACHES.pop(key, None)
+    if entry is None or entry[0] is not noise_model:
+        entry = (noise_model, EffectCache(noise_model, num_qubits, spec, noisy=noisy))
+        while len(_EFFECT_CACHES) >= _EFFECT_CACHE_SLOTS:
+            _EFFECT_CACHES.pop(next(iter(_EFFECT_CACHES)))
+    _EFFECT_CACHES[key] = entry
+    return entry[1]

@@ -22,7 +22,12 @@ from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
 from noiselab.device.evolution import EvolutionSpec, evolution_ensemble, evolution_spec
-from noiselab.emulate.channels import BasisLayerSpec, EffectCache, layer_duration_ns
+from noiselab.emulate.channels import (
+    BasisLayerSpec,
+    EffectCache,
+    effect_cache_for,
+    layer_duration_ns,
+)
 from noiselab.emulate.contract import dm_distributions
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
 from noiselab.emulate.memory import (
@@ -43,6 +48,11 @@ _ENGINE_CALLS = [0]
 def engine_call_count() -> int:
     """Total number of simulator runs made by this module since import (for tests and reports)."""
     return _ENGINE_CALLS[0]
+
+
+def count_engine_call() -> None:
+    """Count one simulator run made elsewhere in the emulate layer (``emulate.batch``)."""
+    _ENGINE_CALLS[0] += 1
 
 
 @dataclass(frozen=True, eq=False)  # arrays inside: compare fields explicitly
@@ -178,11 +188,12 @@ def simulate_mixture(
     return total
 
 
-def _basis_tables(
+def basis_tables(
     bases: Sequence[str],
     qubits: Sequence[int],
     cache: EffectCache,
 ) -> tuple[list[list[np.ndarray]], list[list[Hashable]]]:
+    """Per basis, each measured qubit's effect tensor and its key (letter, layer duration)."""
     effects: list[list[np.ndarray]] = []
     keys: list[list[Hashable]] = []
     for b in bases:
@@ -267,8 +278,8 @@ def emulate_circuit_bases(
     bases_t = validate_bases(bases, n)
     chosen, notice = choose_method(k, method, max_density_matrix_qubits=max_density_matrix_qubits)
     t0 = time.perf_counter()
-    cache = EffectCache(noise_model, k, layer, noisy=basis_noise)
-    effects, keys = _basis_tables(bases_t, qubits, cache)
+    cache = effect_cache_for(noise_model, k, layer, noisy=basis_noise)
+    effects, keys = basis_tables(bases_t, qubits, cache)
     mats = list(readout_matrices) if readout_matrices is not None else [None] * n
     ensemble = evolution_ensemble(circuit, evolution)
     if chosen == "density_matrix":
@@ -328,6 +339,66 @@ def emulate_circuit_bases(
     )
 
 
+def emulate_flagged_bases(
+    compiled: Any,
+    profile: Any,
+    circuit: Any,
+    bases: Sequence[str],
+    *,
+    noise_model: Any = None,
+) -> BasisDistributions:
+    """Like :func:`emulate_bases` for ``circuit``: ``compiled``'s circuit plus one last circuit
+    qubit, a classical *flag* (e.g. the sign of a sampled correction) that instructions only flip
+    and that is read without error. Density matrix only.
+
+    Rows have length ``2**(n+1)``: entry ``k + s 2**n`` is the probability of outcome k of the
+    logical qubits (noisy basis layer and readout as in :func:`emulate_bases`) with flag s.
+    """
+    check_circuit(circuit)
+    if evolution_spec(profile, tuple(compiled.patch)) is not None:
+        raise InputError(
+            f"{getattr(profile, 'source', 'device')}: couplers/qubits: always-on terms "
+            "(zz_rate_khz, spectator_phase_rad, detuning_std_khz) are not modelled in flagged "
+            "circuits (error cancellation); allowed: a device without them for this pass"
+        )
+    k = compiled.circuit.num_qubits
+    if circuit.num_qubits != k + 1:
+        raise ValueError("emulate_flagged_bases: the circuit needs exactly one qubit more")
+    patch = tuple(compiled.patch)
+    qubits = [int(c) for c in compiled.logical_to_circuit]
+    n = len(qubits)
+    bases_t = validate_bases(bases, n)
+    check_memory(k + 1, "density_matrix")
+    nm = noise_model_for(profile, patch) if noise_model is None else noise_model
+    mats, terms = logical_readout(profile, patch, qubits)
+    t0 = time.perf_counter()
+    calls0 = engine_call_count()
+    rho = simulate_density_matrix(circuit, nm)
+    cache = effect_cache_for(nm, k, layer_spec_for(profile, k), noisy=True)
+    effects, keys = basis_tables(bases_t, qubits, cache)
+    dim = 2**k
+    ideal_parts = []
+    for s in (0, 1):  # the flag is the most significant circuit qubit
+        block = np.array(rho[s * dim : (s + 1) * dim, s * dim : (s + 1) * dim])
+        weight = float(np.real(np.trace(block)))
+        if weight <= 1e-300:
+            ideal_parts.append(np.zeros((len(bases_t), 2**n)))
+            continue
+        dist = dm_distributions([block / weight], qubits, effects, keys, threads=1)
+        ideal_parts.append(weight * dist)
+    ideal = np.concatenate(ideal_parts, axis=1)
+    probs = np.concatenate([apply_readout(p, mats, terms) for p in ideal_parts], axis=1)
+    return BasisDistributions(
+        bases=bases_t,
+        probs_ideal=ideal,
+        probs=probs,
+        num_qubits=n,
+        engine_seconds=time.perf_counter() - t0,
+        engine_calls=engine_call_count() - calls0,
+        method="density_matrix",
+    )
+
+
 def emulate_bases(
     compiled: Any,
     profile: Any,
@@ -371,3 +442,4 @@ def emulate_bases(
         max_density_matrix_qubits=max_density_matrix_qubits,
         evolution=evolution_spec(profile, patch),
     )
+

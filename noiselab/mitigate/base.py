@@ -90,13 +90,18 @@ class Workspace:
     calibration circuits preparing the computational states ``states`` (ints, logical bit order)
     under the variant's readout, registering them as sources with their shot counts. ``rng`` is
     set on sampled evaluations only: a pass draws its own random parts from it (those no shot
-    count shrinks, reported as :attr:`Combined.fixed_variance`).
+    count shrinks, reported as :attr:`Combined.fixed_variance`). ``estimator``: the recipe's
+    estimator pass (None: the plan estimate), for a combination pass that needs the noiseless
+    value of the same estimator (``clifford_regression``'s training energies); ``corrections``:
+    the recipe's correction passes.
     """
 
     ctx: ExperimentContext
     measured: Mapping[CircuitVariant, Mapping[str, np.ndarray]]
     calibration: Callable[[CircuitVariant, tuple[int, ...], int | None], np.ndarray]
     rng: np.random.Generator | None = None
+    estimator: MitigationPass | None = None
+    corrections: tuple[MitigationPass, ...] = ()
 
 
 @dataclass(frozen=True, eq=False)
@@ -127,12 +132,33 @@ class Combined:
     fixed_variance: Mapping[str, float] = field(default_factory=dict)
 
 
+@dataclass(frozen=True, eq=False)
+class SpreadTerm:
+    """A random part no shot count shrinks that a pass models by one of its options: the option's
+    value in a real run has standard deviation ``std`` (option units) around the one used. The
+    recipe is evaluated exactly with the pass replaced by ``minus`` and ``plus`` (the option
+    ``step`` below and above); the central difference times ``std`` enters ``std_mha`` as the
+    fixed variance ``name`` (``std_<name>_mha``; also written into the pass's own details under
+    ``details_key``, with the sensitivity ``<name>_sensitivity_mha`` per unit of the option)."""
+
+    name: str
+    minus: MitigationPass
+    plus: MitigationPass
+    step: float
+    std: float
+    details_key: str
+
+
 class MitigationPass(ABC):
     """A pass: options, a stage, and the hooks of its stage."""
 
     name: ClassVar[str]
     stage: ClassVar[int]
     Options: ClassVar[type[PassOptions]]
+    #: passes this one cannot share a recipe with: their name -> why (one line)
+    incompatible: ClassVar[Mapping[str, str]] = {}
+    #: passes that, when in the recipe, must come after this one
+    runs_before: ClassVar[tuple[str, ...]] = ()
 
     def __init__(self, options: PassOptions) -> None:
         self.options = options
@@ -157,8 +183,14 @@ class MitigationPass(ABC):
     def check(self, ctx: ExperimentContext, where: str) -> None:  # noqa: B027 (optional hook)
         """Refuse options that do not fit this experiment (InputError naming ``where``.option)."""
 
+    def spread_terms(self, ctx: ExperimentContext) -> tuple[SpreadTerm, ...]:
+        """Options of this pass whose real-run value is random (:class:`SpreadTerm`; default
+        none)."""
+        return ()
+
     def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
-        """Circuit transforms added to every variant the recipe runs (suppression passes)."""
+        """Circuit transforms a correction or estimator pass adds to every circuit variant of its
+        recipe (``noiselab.device.transforms.CircuitTransform``; default none)."""
         return ()
 
     # STAGE_COMBINE

@@ -49,11 +49,21 @@ class CalibrationUse:
 
 class CalibrationSource:
     """Calibration distributions for one evaluation: exact (``rng`` None) or drawn from ``rng``;
-    each source is drawn once and recorded (:meth:`use`)."""
+    each source is drawn once and recorded (:meth:`use`).
 
-    def __init__(self, calibrator: Calibrator, rng: np.random.Generator | None = None) -> None:
+    ``record``: drawn calibrations kept across evaluations (source key -> (shots, drawn
+    distribution)): a source found there is reused, not drawn again, and a new draw is added to
+    it, so a loop of evaluations calibrates once, as a real run does."""
+
+    def __init__(
+        self,
+        calibrator: Calibrator,
+        rng: np.random.Generator | None = None,
+        record: dict[Any, tuple[int, np.ndarray]] | None = None,
+    ) -> None:
         self.calibrator = calibrator
         self.rng = rng
+        self.record = record
         self._exact: dict[Any, np.ndarray] = {}
         self._used: dict[Any, np.ndarray] = {}
         self._shots: dict[Any, int | None] = {}
@@ -74,8 +84,12 @@ class CalibrationSource:
                 self._shots[key] = shots
                 if shots is None or self.rng is None:
                     self._used[key] = exact[i]
+                elif self.record is not None and key in self.record:
+                    self._used[key] = self.record[key][1]
                 else:
                     self._used[key] = sample_distribution(exact[i], shots, self.rng)
+                    if self.record is not None:
+                        self.record[key] = (int(shots), self._used[key])
             out[i] = self._used[key]
         return out
 
@@ -212,9 +226,16 @@ def evaluate(
 ) -> Evaluation:
     """The recipe ``passes`` on ``measured`` (variant -> basis -> distribution) and the
     calibration read through ``cal`` (which, with an rng, also drives the passes' own draws)."""
-    ws = Workspace(ctx=ctx, measured=measured, calibration=cal, rng=cal.rng)
     corrects = [p for p in passes if p.stage == STAGE_CORRECT]
     estimator = next((p for p in passes if p.stage == STAGE_ESTIMATE), None)
+    ws = Workspace(
+        ctx=ctx,
+        measured=measured,
+        calibration=cal,
+        rng=cal.rng,
+        estimator=estimator,
+        corrections=tuple(corrects),
+    )
     combiner = next((p for p in passes if p.stage == STAGE_COMBINE), None)
     stage_keys = tuple(p.cache_key() for p in [*corrects, *([estimator] if estimator else [])])
     per_variant: dict[CircuitVariant, Estimate] = {}

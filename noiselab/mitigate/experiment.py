@@ -215,6 +215,11 @@ def make_runner(ctx: ExperimentContext) -> Runner:
     def runner(variant: CircuitVariant) -> Any:
         if variant not in memo:
             compiled, profile, _ = variant_inputs(ctx, variant)
+            # a transform that replaces the emulation (e.g. a sign-flagged or two-copy circuit)
+            own = next((t for t in variant.transforms if hasattr(t, "emulate_variant")), None)
+            if own is not None:
+                memo[variant] = own.emulate_variant(ctx, compiled, profile)
+                return memo[variant]
             memo[variant] = emulate_bases(
                 compiled,
                 profile,
@@ -230,8 +235,11 @@ def make_runner(ctx: ExperimentContext) -> Runner:
     return runner
 
 
-def make_calibrator(ctx: ExperimentContext) -> Calibrator:
-    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits."""
+def make_calibrator(ctx: ExperimentContext, written: Any = None) -> Calibrator:
+    """Exact readout-calibration distributions (n_states, 2**n) over the logical qubits.
+
+    ``written(profile)``: numpy channels of a profile on the patch
+    (``emulate.written.WrittenNoise``) to use instead of a qiskit-aer noise model."""
     memo: dict[tuple[CircuitVariant, tuple[int, ...]], np.ndarray] = {}
 
     def calibrator(variant: CircuitVariant, states: tuple[int, ...]) -> np.ndarray:
@@ -243,6 +251,7 @@ def make_calibrator(ctx: ExperimentContext) -> Calibrator:
                 ctx.compiled.patch,
                 list(states),
                 measured=list(ctx.compiled.logical_to_circuit),
+                written=None if written is None else written(profile),
             )
             memo[key] = np.asarray(cal.probs, dtype=float)
         return memo[key]

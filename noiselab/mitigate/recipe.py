@@ -15,10 +15,16 @@ distributions, exact readout-calibration distributions), so no random draw enter
 the study's seed changes only sampled paths. Readout inversion is non-linear in the calibration;
 its expectation is taken to first order, i.e. evaluated at the exact calibration (the second-order
 term is far below the calibration's standard error; tests/test_mitigate_passes.py checks it).
+
+A pass option that is random in a real run (:class:`~noiselab.mitigate.base.SpreadTerm`, e.g.
+``error_cancellation``'s ``learning_spread``) enters the error bar as a fixed variance: the
+central difference of the exact energy with the option stepped down and up, times its standard
+deviation (:func:`spread_sensitivities`); sampled evaluations draw its linearized shift.
 """
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any, Literal
@@ -27,13 +33,16 @@ import numpy as np
 from pydantic import BaseModel, ConfigDict, Field
 
 from noiselab.common.errors import InputError
+from noiselab.common.units import HA_TO_MHA
 from noiselab.mitigate.base import (
     STAGE_COMBINE,
     STAGE_CORRECT,
     STAGE_ESTIMATE,
     STAGE_NAMES,
     MitigationPass,
+    SpreadTerm,
 )
+from noiselab.mitigate.estimate import Estimate
 from noiselab.mitigate.evaluate import CalibrationSource, EstimateMemo, evaluate
 from noiselab.mitigate.experiment import Calibrator, ExperimentContext, Runner
 from noiselab.mitigate.registry import PASSES, make_pass
@@ -77,7 +86,7 @@ class ParsedRecipe:
         with the suppression passes' transforms appended."""
         combiner = self.of_stage(STAGE_COMBINE)
         base = combiner.variants(ctx) if combiner else (CircuitVariant(),)
-        extra = tuple(t for p in self.passes for t in p.transforms(ctx))
+        extra = tuple(t for p in self.passes if p.stage != STAGE_COMBINE for t in p.transforms(ctx))
         if not extra:
             return base
         return tuple(CircuitVariant(v.transforms + extra) for v in base)
@@ -134,16 +143,64 @@ def parse_recipe(
         last_stage = p.stage
         seen.add(p.name)
         passes.append(p)
+    _check_pairs(passes, where)
     if not name:
         name = "+".join(p.describe() for p in passes) or "raw"
     return ParsedRecipe(name=name, passes=tuple(passes))
 
 
+def _check_pairs(passes: Sequence[MitigationPass], where: str) -> None:
+    """Refuse passes that declare each other incompatible, or that come in the wrong order."""
+    names = [p.name for p in passes]
+    for i, p in enumerate(passes):
+        for j, q in enumerate(passes):
+            reason = p.incompatible.get(q.name) or q.incompatible.get(p.name)
+            if reason and i < j:
+                raise InputError(
+                    f"{where}[{j}].pass: {q.name!r} cannot share a recipe with {p.name!r} "
+                    f"({reason}); allowed: one of them"
+                )
+        for later in p.runs_before:
+            if later in names[:i]:
+                raise InputError(
+                    f"{where}[{i}].pass: {p.name!r} must come before {later!r}; allowed order: "
+                    f"{p.name}, {later}"
+                )
+
+
 # ---- the recipe as a chain of steps ------------------------------------------------------------
 
 
+def spread_sensitivities(
+    parsed: ParsedRecipe,
+    ctx: ExperimentContext,
+    runner: Runner,
+    calibrator: Calibrator,
+    memo: EstimateMemo | None = None,
+) -> tuple[tuple[SpreadTerm, float], ...]:
+    """Each :class:`SpreadTerm` of the recipe's passes (those with ``std`` > 0) with the exact
+    energy's sensitivity to its option (Ha per option unit): the central difference of the
+    recipe evaluated exactly with the pass replaced by the term's ``minus`` and ``plus`` (their
+    circuit variants are emulated by ``runner`` like any other, and cached with them)."""
+    out = []
+    for i, p in enumerate(parsed.passes):
+        for term in p.spread_terms(ctx):
+            if term.std <= 0.0:
+                continue
+            energies = []
+            for q in (term.minus, term.plus):
+                other = ParsedRecipe(parsed.name, (*parsed.passes[:i], q, *parsed.passes[i + 1 :]))
+                variants, bases = other.variants(ctx), other.bases(ctx)
+                data = measure(runner, variants, bases)
+                cal = CalibrationSource(calibrator)
+                ev = evaluate(other.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+                energies.append(float(ev.estimate.value))
+            out.append((term, (energies[1] - energies[0]) / (2.0 * term.step)))
+    return tuple(out)
+
+
 def run_recipe(
-    recipe: Sequence[Mapping[str, Any]] | RecipeSpec,
+    recipe: Sequence[Mapping[str, Any]] | RecipeSpec | ParsedRecipe,
     ctx: ExperimentContext,
     runner: Runner,
     *,
@@ -151,15 +208,20 @@ def run_recipe(
     rng: np.random.Generator | None = None,
     calibrator: Calibrator | None = None,
     memo: EstimateMemo | None = None,
+    calibration_record: dict[Any, tuple[int, np.ndarray]] | None = None,
 ) -> RecipeResult:
     """Apply a recipe to the runner's data and score it (see the module docstring).
 
+    ``recipe``: pass entries, a :class:`RecipeSpec` or an already parsed recipe (its passes
+    keep what they derived from ``ctx`` between calls on the same context).
     ``calibrator(variant, states)``: exact readout-calibration distributions; default
     ``ctx.calibrator`` (emulate's calibration circuits on ``ctx.profile``, kept by the context).
     ``memo``: an :class:`EstimateMemo` shared by the recipes of one job (None: nothing shared);
     the result is the same with and without it, sampled evaluations never read it.
+    ``calibration_record`` (sampled only): drawn readout calibrations shared across calls
+    (see :class:`CalibrationSource`): a loop of evaluations calibrates once.
     """
-    parsed = parse_recipe(recipe)
+    parsed = recipe if isinstance(recipe, ParsedRecipe) else parse_recipe(recipe)
     for i, p in enumerate(parsed.passes):
         p.check(ctx, f"recipe[{i}]")
     variants, bases = parsed.variants(ctx), parsed.bases(ctx)
@@ -171,13 +233,21 @@ def run_recipe(
     # the standard error; first order, see the module docstring)
     cal = CalibrationSource(calibrator)
     exact = evaluate(parsed.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+    spreads = spread_sensitivities(parsed, ctx, runner, calibrator, memo)
+    if spreads:
+        fixed = {t.name: (sens * t.std) ** 2 for t, sens in spreads}
+        exact = dataclasses.replace(exact, fixed_variance={**exact.fixed_variance, **fixed})
     alloc = allocate(ctx, exact.estimate, data, parsed.shot_split())
     used, used_data = exact, data
     if sampled:
         rng = rng if rng is not None else np.random.default_rng(ctx.seed)
         used_data = draw(data, alloc, rng)
-        cal = CalibrationSource(calibrator, rng)
+        cal = CalibrationSource(calibrator, rng, calibration_record)
         used = evaluate(parsed.passes, ctx, variants, bases, used_data.probs, cal)
+        if spreads:  # draw each spread option's realized value (linearized)
+            shift = sum(sens * t.std * float(rng.normal()) for t, sens in spreads)
+            est = Estimate(used.estimate.value + shift, used.estimate.influence)
+            used = dataclasses.replace(used, estimate=est)
     errors = variance(exact, used, used_data, alloc, memo)
     scored = score(ctx, float(used.estimate.value), errors)
     per_variant = variant_scores(ctx, used, used_data, alloc, errors)
@@ -185,6 +255,11 @@ def run_recipe(
     details = details_json(
         ctx, per_variant, used.reports, used_data, alloc, errors, scored.verdict, cal_shots
     )
+    for t, sens in spreads:
+        own = details.get(t.details_key)
+        if isinstance(own, dict):
+            own[f"std_{t.name}_mha"] = abs(sens * t.std) * HA_TO_MHA
+            own[f"{t.name}_sensitivity_mha"] = sens * HA_TO_MHA
     return RecipeResult(
         recipe=parsed.name,
         spec=tuple(parsed.spec()),

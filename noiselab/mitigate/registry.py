@@ -13,6 +13,9 @@ from pydantic import ValidationError
 
 from noiselab.common.errors import InputError, from_validation_error
 from noiselab.mitigate.base import STAGE_NAMES, MitigationPass, PassOptions
+from noiselab.mitigate.passes.cancellation import ErrorCancellationPass
+from noiselab.mitigate.passes.clifford_regression import CliffordRegressionPass
+from noiselab.mitigate.passes.distillation import DistillationPass
 from noiselab.mitigate.passes.extrapolate import ExtrapolatePass
 from noiselab.mitigate.passes.postselect import PostselectPass
 from noiselab.mitigate.passes.readout import ReadoutPass
@@ -57,6 +60,9 @@ for _builtin in (
     ReadoutPass,
     PostselectPass,
     ExtrapolatePass,
+    ErrorCancellationPass,
+    DistillationPass,
+    CliffordRegressionPass,
 ):
     register_pass(_builtin)
 

@@ -46,7 +46,7 @@ class RecipeResult:
     engine_seconds: float
     p_within_target: float
     shots_needed: int | None
-    limited_by: Literal["bias", "calibration", "amplification", "shots", "none"]
+    limited_by: Literal["bias", "calibration", "amplification", "learning", "shots", "none"]
     reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False

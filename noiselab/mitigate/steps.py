@@ -88,13 +88,13 @@ def allocate(
 ) -> Allocation:
     """``ctx.shots`` over the variants' bases by :func:`~noiselab.mitigate.plan.allocate_shots`,
     from the single-shot standard deviation of the estimate's part in each (exact) source."""
-    zeros = np.zeros(2**ctx.plan.num_qubits)
     sigmas = np.array(
         [
             np.sqrt(
                 [
                     single_shot_variance(
-                        data.probs[v][b], estimate.influence.get(meas_key(v, b), zeros)
+                        data.probs[v][b],
+                        estimate.influence.get(meas_key(v, b), np.zeros(len(data.probs[v][b]))),
                     )
                     for b in data.bases
                 ]

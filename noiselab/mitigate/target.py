@@ -14,8 +14,9 @@ calibration with its own fixed shot count).
 ``limited_by``: "bias" when no measurement budget reaches the confidence because of the bias
 (|b| >= t, or b alone too close to t); "calibration" (or "amplification") when |b| < t but the
 fixed variance C keeps the probability below the confidence at any measurement budget, C being
-mostly readout-calibration noise (more calibration shots would help) or the uncertainty of the
-realized noise amplification of an extrapolation; "shots" when the confidence needs more shots
+mostly readout-calibration noise (more calibration shots would help), the uncertainty of the
+realized noise amplification of an extrapolation, or ("learning") that of the learned noise
+model of error cancellation; "shots" when the confidence needs more shots
 than the budget; "none" when the budget suffices.
 """
 
@@ -28,12 +29,13 @@ from typing import Literal
 from scipy.optimize import brentq
 from scipy.special import ndtr
 
-LimitedBy = Literal["bias", "calibration", "amplification", "shots", "none"]
+LimitedBy = Literal["bias", "calibration", "amplification", "learning", "shots", "none"]
 MAX_SHOTS = 10**15
 #: how a note names the fixed part of the variance that keeps P low
 FIXED_WORDS = {
     "calibration": "the fixed readout-calibration noise",
     "amplification": "the uncertainty of the realized noise amplification",
+    "learning": "the uncertainty of the learned noise model",
 }
 
 
@@ -77,7 +79,7 @@ def assess_target(
 ) -> TargetAssessment:
     """``var_per_shot_mha2`` = A (so that the measurement variance at N shots is A / N);
     ``fixed_source``: what most of C is (named by ``limited_by`` when C alone keeps P low:
-    "calibration", "amplification", or the name a pass gives its fixed variance)."""
+    "calibration", "amplification", "learning", or the name a pass gives its fixed variance)."""
     b, t = float(bias_mha), float(target_mha)
     a, c = max(float(var_per_shot_mha2), 0.0), max(float(var_fixed_mha2), 0.0)
 
@@ -99,7 +101,7 @@ def assess_target(
     if p_at(1.0) >= confidence:
         n_needed = 1
     elif p_at(MAX_SHOTS) < confidence:
-        return TargetAssessment(p_budget, None, "bias", "needs more than 1e15 shots", hit)
+        return TargetAssessment(p_budget, None, "shots", "needs more than 1e15 shots", hit)
     else:
         root = brentq(
             lambda x: p_at(math.exp(x)) - confidence, 0.0, math.log(MAX_SHOTS), xtol=1e-10

@@ -9,8 +9,6 @@ from __future__ import annotations
 
 import dataclasses
 import json
-import os
-import time
 from collections.abc import Callable
 from pathlib import Path
 from typing import Any
@@ -18,9 +16,8 @@ from typing import Any
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import InputError
 from noiselab.common.shipped import shipped_path
-from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
-from noiselab.study.cache import JOB_KIND, CachingRunner, ResultsCache, job_key, open_cache
+from noiselab.study.cache import CachingRunner, ResultsCache, job_key
 from noiselab.study.compiles import bias_spread
 from noiselab.study.context import (
     StudyContext,
@@ -29,9 +26,21 @@ from noiselab.study.context import (
     recipes_verify,
     with_verification,
 )
+from noiselab.study.device_time import (
+    DEFAULT_CIRCUIT_OVERHEAD_S,
+    device_time_inputs,
+    recipes_device_hours,
+)
 from noiselab.study.drift import MAX_DRAWS, assess_drift, drift_sentence
+from noiselab.study.job import (
+    job_fields,
+    load_job_result,
+    override_key_options,
+    save_job_result,
+    start_job,
+)
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
-from noiselab.study.spec import Study, load_study
+from noiselab.study.spec import Study
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -41,94 +50,6 @@ DEMO_STUDY = "h2-equilibrium.yaml"
 def demo_study_path() -> Path:
     """The shipped demo study (``configs/studies/`` of a checkout, or the wheel's copy)."""
     return shipped_path("studies", DEMO_STUDY.removesuffix(".yaml"), "demo", "study")
-
-
-def resolve_study(
-    study_or_path: Study | str | Path,
-    seed: int | None,
-    shots: int | None,
-    method: str | None = None,
-    trajectories: int | None = None,
-) -> Study:
-    """A Study from a Study or a path, with optional seed, shot and emulation overrides."""
-    if isinstance(study_or_path, Study):
-        return study_or_path.with_overrides(
-            seed=seed, shots=shots, method=method, trajectories=trajectories
-        )
-    overrides = {"seed": seed, "shots": shots, "method": method, "trajectories": trajectories}
-    return load_study(study_or_path, overrides)
-
-
-def override_key_options(
-    study: Study,
-    seed: int | str | None,
-    shots: int | str | None,
-    method: str | None,
-    trajectories: int | str | None,
-) -> dict[str, Any]:
-    """Job-key options of validated overrides (``1e6`` and ``1000000`` give one key)."""
-    return {
-        "seed": None if seed is None else study.seed,
-        "shots": None if shots is None else study.shots,
-        **emulation_key_options(
-            method, None if trajectories is None else study.emulation.trajectories
-        ),
-    }
-
-
-def emulation_key_options(method: str | None, trajectories: int | None) -> dict[str, Any]:
-    """Job-key options of the emulation overrides; "auto" depends on the memory available, so
-    the test override of the memory guard enters too."""
-    return {
-        "method": method,
-        "trajectories": trajectories,
-        "memory_limit": os.environ.get(MEMORY_LIMIT_ENV),
-    }
-
-
-def _default_cache(cache: ResultsCache | str | Path | bool | None) -> ResultsCache:
-    if isinstance(cache, ResultsCache):
-        return cache
-    if cache is False:
-        return ResultsCache.disabled()
-    if cache is None or cache is True:
-        return open_cache()
-    return open_cache(cache)
-
-
-def job_fields(study: Study, ctx: StudyContext, stats: RunStats) -> dict[str, Any]:
-    """Fields that every assess and tune result takes from the study, its context and the run."""
-    return {
-        "context": ctx.summary(),
-        "target_mha": study.target_mha,
-        "confidence": study.confidence,
-        "shots": study.shots,
-        "seed": study.seed,
-        "stats": stats,
-        "emulation_method": ctx.emulation_method,
-        "emulation_notice": ctx.emulation_notice,
-    }
-
-
-def load_job_result(store: ResultsCache, key: str | None, cls: Any, t0: float) -> Any:
-    """The stored result of an identical earlier job (``cls.from_record``), or None.
-
-    A record that no longer rebuilds (damaged, or written by another version) counts as a miss
-    and is dropped, so that the rerun stores a good one.
-    """
-    hit = store.get(JOB_KIND, key) if key is not None else None
-    if hit is not None and key is not None:
-        try:
-            return cls.from_record(json.loads(hit[0]), RunStats.reused_since(t0))
-        except Exception:  # any damage costs a recomputation, never a crash
-            store.discard(JOB_KIND, key)
-    return None
-
-
-def save_job_result(store: ResultsCache, key: str | None, result: Any) -> None:
-    """Store a job's result under ``key`` for :func:`load_job_result` (None: not stored)."""
-    if key is not None:
-        store.put(JOB_KIND, key, json.dumps(result.to_record()).encode(), result.stats.wall_seconds)
 
 
 def check_recipes(ctx: StudyContext, recipes: dict[str, tuple[dict[str, Any], ...]]) -> None:
@@ -161,7 +82,7 @@ def run_recipes(
     if progress is not None:
         progress(label, 0, total)
     for i, (name, passes) in enumerate(recipes.items()):
-        out[name] = run_recipe(list(passes), ctx.experiment, runner, calibrator=runner.calibrator)
+        out[name] = run_recipe(list(passes), ctx.experiment, runner)
         if progress is not None:
             progress(label, i + 1, total)
     return out
@@ -193,10 +114,11 @@ def assess(
     if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
         raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
     drift = int(drift) if drift else 0
-    t0 = time.perf_counter()
-    store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = override_key_options(study, seed, shots, method, trajectories)
@@ -219,6 +141,7 @@ def assess(
             assess_drift(ctx, study.recipes, drift, store, run_recipes, progress) if drift else None
         )
     best = best_of(results)
+    overhead_s = circuit_overhead_s(study)
     reachable, verdict = verdict_line(
         best, results[best], study.target_mha, study.confidence, study.shots
     )
@@ -242,9 +165,18 @@ def assess(
         bias_spread_mha=spread.spread_mha,
         drift={} if days is None else days.stats,
         drift_rel_std={} if days is None else days.rel_std,
+        device_hours=recipes_device_hours(ctx.experiment, study.recipes, results, overhead_s),
+        device_time=device_time_inputs(study.profile, overhead_s),
     )
     save_job_result(store, key, result)
     return result
+
+
+def circuit_overhead_s(study: Study) -> float:
+    """Seconds per circuit change: the study's ``rehearse.circuit_overhead_s``, else the
+    common-practice default (``noiselab.study.device_time``)."""
+    section = getattr(study, "rehearse", None)
+    return float(section.circuit_overhead_s) if section is not None else DEFAULT_CIRCUIT_OVERHEAD_S
 
 
 def with_optimizer_caveat(verdict: str, warnings: tuple[str, ...]) -> str:

@@ -10,21 +10,18 @@ in mHa. The compiled circuit and measurement plan are those of the study, reused
 from __future__ import annotations
 
 import dataclasses
-import time
 from collections.abc import Callable
 from typing import Any
 
 from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
-from noiselab.study.assess import _default_cache, resolve_study
 from noiselab.study.context import build_context
+from noiselab.study.job import own_executor, scan_fields, start_job
 from noiselab.study.results import RunStats, trajectory_std_of
 from noiselab.study.sweep import (
     ConfigTask,
     chosen_recipes,
-    own_executor,
     run_configs,
-    scan_fields,
 )
 
 __all__ = ["CHANNELS", "BudgetResult", "BudgetRow", "budget"]
@@ -159,12 +156,12 @@ def budget(
     ``cluster`` (a Dask scheduler address or Client) on a cluster. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section.
     """
-    t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
-    picked = chosen_recipes(study, [] if recipe is None else [recipe])
-    store = _default_cache(cache)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    picked = chosen_recipes(job.study, [] if recipe is None else [recipe])
     with own_executor(workers, cluster, executor) as ex:
-        return _budget_with(study, picked, store, ex, progress, context, t0)
+        return _budget_with(job.study, picked, job.store, ex, progress, context, job.t0)
 
 
 def _budget_with(

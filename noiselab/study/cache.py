@@ -4,6 +4,10 @@ One file (WAL mode) in the user cache folder, shared by every process: each proc
 opens its own connection, waits on a busy timeout, and writes one entry per transaction, so a
 reader never sees a half-written entry. Keys are SHA-256 digests of everything that determines
 the stored value, including the versions of the packages that computed it.
+
+Over 400 lines: the SQLite store, the record packing it stores, the job keys and the
+``CachingRunner`` that reads and writes through it share the key and packing rules; the
+runner is the store's only simulation client.
 """
 
 from __future__ import annotations
@@ -29,7 +33,7 @@ from noiselab.common.errors import InputError
 from noiselab.common.reading import read_input_bytes
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.emulate.engine import BasisDistributions
-from noiselab.mitigate.experiment import make_calibrator, make_runner, variant_key_material
+from noiselab.mitigate.experiment import make_runner, variant_key_material
 from noiselab.study.spec import device_profile_path
 
 CACHE_FILE_NAME = "results-v1.sqlite"
@@ -336,8 +340,6 @@ class CachingRunner:
         self, experiment: Any, cache: ResultsCache | None = None, base: Any = None
     ) -> None:
         self.experiment = experiment
-        #: readout-calibration distributions, memoized for the whole job (pass to run_recipe)
-        self.calibrator = make_calibrator(experiment)
         self.cache = cache if cache is not None else ResultsCache.disabled()
         self._base = base if base is not None else make_runner(experiment)
         self._memory: dict[Any, Any] = {}
@@ -346,6 +348,12 @@ class CachingRunner:
         self.cache_hits = 0
         self.engine_seconds = 0.0
         self.requested: set[Any] = set()
+
+    @property
+    def calibrator(self) -> Any:
+        """The experiment's own readout calibrator (``experiment.calibrator``, memoized with the
+        context), so a runner and ``run_recipe``'s default share one memo."""
+        return self.experiment.calibrator
 
     def key(self, variant: Any) -> str:
         """SHA-256 of everything that determines this variant's simulation."""

@@ -21,17 +21,20 @@ from noiselab.common.errors import InputError, input_error
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, assess
+from noiselab.study.assess import assess
 from noiselab.study.cache import ResultsCache
+from noiselab.study.job import start_job
 from noiselab.study.results import (
+    DEVICE_HOURS_HEADER,
     AssessResult,
     RunStats,
     csv_text,
     format_count,
+    format_hours,
     jsonable,
     rank_key,
 )
-from noiselab.study.spec import Study, load_study, study_from_mapping
+from noiselab.study.spec import Study, study_from_mapping
 
 ProgressHook = Callable[[str, int, int], None]
 
@@ -48,6 +51,7 @@ class DeviceRow:
     bias_mha: float
     std_mha: float
     shots_needed: int | None
+    device_hours: float  # the best recipe's estimate at the budget (noiselab.study.device_time)
     limited_by: str
     two_qubit_gates: int
     duration_ns: float
@@ -77,7 +81,12 @@ class CompareResult:
                 "target_mha": self.target_mha,
                 "confidence": self.confidence,
                 "shots": self.shots,
-                "units": {"bias, std": "mHa", "duration": "ns", "shots": "total per estimate"},
+                "units": {
+                    "bias, std": "mHa",
+                    "duration": "ns",
+                    "shots": "total per estimate",
+                    "device_hours": "hours of device time for the best recipe at the budget",
+                },
                 "ranking": "best recipe per device; devices by P within target, then |bias|, "
                 "then shots needed",
                 "devices": [
@@ -94,7 +103,8 @@ class CompareResult:
     def table_headers(self) -> tuple[str, ...]:
         return (
             "rank", "device", "best recipe", "P(within target)", "reaches", "bias (mHa)",
-            "std. error (mHa)", "shots needed", "two-qubit gates", "limited by", "raw bias (mHa)",
+            "std. error (mHa)", "shots needed", DEVICE_HOURS_HEADER, "two-qubit gates",
+            "limited by", "raw bias (mHa)",
         )  # fmt: skip
 
     def table_rows(self) -> list[tuple[str, ...]]:
@@ -108,6 +118,7 @@ class CompareResult:
                 f"{r.bias_mha:+.3f}",
                 f"{r.std_mha:.3f}",
                 "never" if r.shots_needed is None else format_count(r.shots_needed),
+                format_hours(r.device_hours),
                 str(r.two_qubit_gates),
                 r.limited_by,
                 f"{r.raw_bias_mha:+.3f}",
@@ -168,6 +179,7 @@ def device_row(result: AssessResult) -> DeviceRow:
         bias_mha=float(best.bias_exact_mha),
         std_mha=float(best.std_mha),
         shots_needed=None if best.shots_needed is None else int(best.shots_needed),
+        device_hours=float(result.device_hours.get(result.best_recipe, float("nan"))),
         limited_by=str(best.limited_by),
         two_qubit_gates=int(c.two_qubit_count),
         duration_ns=float(c.duration_ns),
@@ -191,13 +203,15 @@ def compare_verdict(rows: Sequence[DeviceRow], target_mha: float, confidence: fl
         return (
             f"Verdict: ask for time on '{top.device}': with recipe '{top.best_recipe}' it reaches "
             f"{goal} with probability {top.p_within_target:.3f} (>= {confidence:g}), "
-            f"{top.two_qubit_gates} two-qubit gates, bias {top.bias_mha:+.3g} mHa{alt}."
+            f"{top.two_qubit_gates} two-qubit gates, bias {top.bias_mha:+.3g} mHa, "
+            f"{top.device_hours:.2g} device hours at the budget{alt}."
         )
     return (
         f"Verdict: no device reaches {goal} at the budget (P >= {confidence:g}); closest is "
         f"'{top.device}' with recipe '{top.best_recipe}' (probability "
         f"{top.p_within_target:.3f}, bias {top.bias_mha:+.3g} mHa, limited by {top.limited_by}, "
-        f"{top.two_qubit_gates} two-qubit gates): ask for time there only with a larger budget "
+        f"{top.two_qubit_gates} two-qubit gates, {top.device_hours:.2g} device hours at the "
+        "budget): ask for time there only with a larger budget "
         "or a better recipe."
     )
 
@@ -232,14 +246,14 @@ def compare(
     ``devices``: profile paths or shipped names (at least one; repeats are dropped). Every
     device is checked (found, enough qubits) before any computation.
     """
-    t0 = time.perf_counter()
     if not devices:
         raise input_error("--devices", "devices", "no device given", "one or more profiles")
-    base = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
-    base = base.with_seed(seed).with_shots(shots).with_emulation(method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    base, store, t0 = job.study, job.store, job.t0
     paths = list(dict.fromkeys(resolve_device(str(d)) for d in devices))
     studies = [study_on_device(base, p) for p in paths]  # every refusal before any work
-    store = _default_cache(cache)
     results: list[AssessResult] = []
     for i, s in enumerate(studies):
         if progress is not None:

@@ -325,7 +325,7 @@ def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
     harmless, and its simulations may already be cached)."""
     if not needed or ctx.experiment.verification_bases:
         return ctx
-    experiment = dataclasses.replace(ctx.experiment, verification_bases=True)
+    experiment = replace_experiment(ctx.experiment, verification_bases=True)
     method, notice = resolve_emulation(
         ctx.study, int(ctx.compiled.circuit.num_qubits), len(experiment.measured_bases)
     )

@@ -2,8 +2,11 @@
 
 Every draw shares the nominal context: noiseless optimum, chosen compile, measurement plan,
 budget and target; only the device profile changes (the readout calibration is taken on the
-drawn day). Each draw's recipes run on the analytic path through the results cache, so the cost
-is one simulation per draw and circuit variant. The draws come from
+drawn day). Each draw's recipes run on the analytic path. With the density-matrix method every
+(day, circuit variant) simulation is made in ONE qiskit-aer call, each circuit carrying its day's
+noise as written superoperators (``emulate.batch.emulate_written``; equal to the noise-model
+path to rounding, not stored in the results cache: the whole assess is); otherwise each day is
+simulated through the results cache. The draws come from
 ``numpy.random.default_rng([seed, DRIFT_STREAM])`` with the study's seed: drift is a random part
 of the prediction, so ``--seed`` moves it (and nothing else of the nominal result).
 """
@@ -11,12 +14,18 @@ of the prediction, so ``--seed`` moves it (and nothing else of the nominal resul
 from __future__ import annotations
 
 import dataclasses
-from collections.abc import Callable, Mapping
+from collections.abc import Callable, Iterator, Mapping
 from typing import Any
 
 import numpy as np
 
+from noiselab.common.errors import InputError
 from noiselab.device.drift import draw_profiles
+from noiselab.emulate.batch import BATCH_BYTES, emulate_written
+from noiselab.emulate.engine import choose_method
+from noiselab.emulate.written import WrittenNoise
+from noiselab.mitigate.experiment import make_calibrator, variant_inputs
+from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.target import reaches_target
 from noiselab.study.cache import CachingRunner, ResultsCache
 from noiselab.study.context import replace_experiment
@@ -52,6 +61,73 @@ def drift_stats(biases_mha: list[float], p_within: list[float], confidence: floa
     )
 
 
+class DrawnDayRunner:
+    """The runner of one drawn day whose simulations were all made in one batch beforehand
+    (``emulate.batch.emulate_written``); readout calibration from the same numpy channels."""
+
+    def __init__(self, experiment: Any, runs: Mapping[Any, Any], noises: Mapping[Any, Any]):
+        self.experiment = experiment
+        self._runs = dict(runs)
+        patch = tuple(experiment.compiled.patch)
+        self.calibrator = make_calibrator(
+            experiment, written=lambda p: noises.get(p.fingerprint) or WrittenNoise(p, patch)
+        )
+        self.simulations = len(self._runs)
+        self.cache_hits = 0
+        self.engine_seconds = float(sum(r.engine_seconds for r in self._runs.values()))
+
+    def __call__(self, variant: Any) -> Any:
+        return self._runs[variant]
+
+
+def batched_days(
+    ctx: Any, recipes: Mapping[str, Any], profiles: list[Any]
+) -> Iterator[DrawnDayRunner] | None:
+    """One runner per drawn profile, in order; the (day, circuit variant) simulations of as many
+    days as :data:`~noiselab.emulate.batch.BATCH_BYTES` of results allow (all of them on small
+    problems) are made in one qiskit-aer call, each circuit with its day's noise written in.
+    None when the density-matrix method does not apply (trajectories, memory guard): the caller
+    then simulates day by day through the results cache."""
+    exp = ctx.experiment
+    k = exp.compiled.circuit.num_qubits
+    try:
+        method, _ = choose_method(
+            k, exp.emulation_method, max_density_matrix_qubits=exp.max_density_matrix_qubits
+        )
+    except InputError:
+        return None
+    if method != "density_matrix":
+        return None
+    wanted = (v for passes in recipes.values() for v in parse_recipe(list(passes)).variants(exp))
+    variants = list(dict.fromkeys(wanted))
+    n = exp.compiled.num_logical_qubits
+    day_bytes = len(variants) * (2 * len(exp.measured_bases) * 8 * 2**n + 16 * 4**k)
+    group = max(1, BATCH_BYTES // day_bytes)
+    return _day_runners(exp, variants, profiles, group)
+
+
+def _day_runners(
+    exp: Any, variants: list[Any], profiles: list[Any], group: int
+) -> Iterator[DrawnDayRunner]:
+    for start in range(0, len(profiles), group):
+        days = [replace_experiment(exp, profile=p) for p in profiles[start : start + group]]
+        jobs, noises = [], []
+        per_day: list[dict[str, WrittenNoise]] = []
+        for day in days:
+            known: dict[str, WrittenNoise] = {}
+            for v in variants:
+                compiled, profile, _ = variant_inputs(day, v)
+                if profile.fingerprint not in known:
+                    known[profile.fingerprint] = WrittenNoise(profile, compiled.patch)
+                jobs.append((compiled, profile))
+                noises.append(known[profile.fingerprint])
+            per_day.append(known)
+        runs = emulate_written(jobs, list(exp.measured_bases), noises)
+        for i, day in enumerate(days):
+            mine = runs[i * len(variants) : (i + 1) * len(variants)]
+            yield DrawnDayRunner(day, dict(zip(variants, mine, strict=True)), per_day[i])
+
+
 def assess_drift(
     ctx: Any,
     recipes: Mapping[str, Any],
@@ -69,10 +145,15 @@ def assess_drift(
     seconds = 0.0
     if progress is not None:
         progress("drift draws", 0, len(profiles))
+    batched = batched_days(ctx, recipes, profiles)
     for i, profile in enumerate(profiles):
-        experiment = replace_experiment(ctx.experiment, profile=profile)
+        if batched is not None:
+            runner = next(batched)
+            experiment = runner.experiment
+        else:
+            experiment = replace_experiment(ctx.experiment, profile=profile)
+            runner = CachingRunner(experiment, store)
         day = dataclasses.replace(ctx, experiment=experiment)
-        runner = CachingRunner(experiment, store)
         for name, r in run_recipes(day, recipes, runner).items():
             biases[name].append(float(r.bias_exact_mha))
             ps[name].append(float(r.p_within_target))

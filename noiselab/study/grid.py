@@ -15,11 +15,17 @@ from noiselab.mitigate.passes.postselect import PostselectOptions
 from noiselab.mitigate.passes.readout import ReadoutOptions
 
 NONE = "none"
+#: The amplification axis also offers Clifford data regression (default options) in place of
+#: an extrapolation: the other combination of the grid, with no scale set or fit of its own.
+REGRESSION = "clifford_regression"
 DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
 DEFAULT_POSTSELECT = (NONE, "discard", "verify")
-DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates")
+DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
 DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
 DEFAULT_FIT = ("linear", "richardson")
+#: Mitigation families besides the stack above: none, or one whole-circuit method.
+FAMILIES = (NONE, "error_cancellation", "distillation")
+DEFAULT_FAMILY = FAMILIES
 #: The built-in default of every axis, in the grid's axis order.
 DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "readout": DEFAULT_READOUT,
@@ -27,6 +33,7 @@ DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "amplification": DEFAULT_AMPLIFICATION,
     "scales": DEFAULT_SCALES,
     "fit": DEFAULT_FIT,
+    "family": DEFAULT_FAMILY,
 }
 
 
@@ -39,6 +46,7 @@ class Grid:
     amplification: tuple[str, ...]
     scales: tuple[tuple[float, ...], ...]
     fit: tuple[str, ...]
+    family: tuple[str, ...] = (NONE,)
 
 
 def check_tune_section(section: Any, source: str) -> None:
@@ -54,6 +62,7 @@ def check_tune_section(section: Any, source: str) -> None:
         amplification=tuple(values["amplification"]),
         scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
         fit=tuple(values["fit"]),
+        family=tuple(values["family"]),
     )
     check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
 
@@ -66,8 +75,9 @@ def check_axes(grid: Grid, origin: dict[str, str]) -> None:
     checks = {
         "readout": (NONE, *allowed(ReadoutOptions, "method")),
         "postselect": (NONE, *allowed(PostselectOptions, "mode")),
-        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier")),
+        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
+        "family": FAMILIES,
     }
     for axis, ok in checks.items():
         for i, value in enumerate(getattr(grid, axis)):

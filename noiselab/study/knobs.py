@@ -1,12 +1,17 @@
-"""Sweep knobs: the device-noise quantities a sweep can vary, with their units and ranges.
+"""Sweep knobs: the device-noise quantities a sweep can vary, each with its units, its bounds
+and its own reference value (the device's value over the circuit's qubits or pairs).
 
 Below :mod:`noiselab.study.spec` (a study's ``sweep.vary`` names a knob) and
-:mod:`noiselab.study.sweep` (which scales the device along one).
+:mod:`noiselab.study.sweep` (which scales the device along one). A new device channel that a
+sweep should vary needs one entry in :data:`KNOBS`: its channels, bounds and reference.
 """
 
 from __future__ import annotations
 
 import dataclasses
+import math
+from collections.abc import Callable, Sequence
+from typing import Any
 
 from noiselab.common.errors import input_error
 from noiselab.device.profile import (
@@ -15,8 +20,12 @@ from noiselab.device.profile import (
     MAX_SINGLE_QUBIT_ERROR,
     MAX_TWO_QUBIT_ERROR,
     MIN_COHERENCE_US,
+    VIRTUAL_GATES,
+    relaxation_gate_infidelity,
 )
 from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR as MAX_NOISE_SCALE
+
+Patch = Sequence[int]
 
 _PROBABILITY = "a probability; larger is not an error rate"
 
@@ -42,12 +51,145 @@ class Knob:
     allow_zero: bool = True
     lower: float | None = None  # smallest allowed value above zero (base units)
     reason: str = _PROBABILITY  # why the range ends where it does (shown when refused)
+    #: the device's value (base units) over a patch; None: a bare factor whose reference is 1
+    reference_of: Callable[[Any, Patch], float] | None = None
+    #: whether a scaled device is below the T1/T2 floor of the knob's gates (None: never)
+    floor_of: Callable[[Any, Patch], bool] | None = None
 
     def show(self, value: float) -> str:
         """``value`` (base units) in display units with three significant digits."""
         v = value * self.display_factor
         text = f"{v:.0f}" if abs(v) >= 100 else f"{v:.3g}"
         return f"{text} {self.unit}" if self.unit else text
+
+    def reference(self, profile: Any, patch: Patch) -> float:
+        """The device's value of the knob (base units): its mean over the circuit's qubits or
+        pairs (1 for the noise scale factor)."""
+        return 1.0 if self.reference_of is None else self.reference_of(profile, patch)
+
+    def below_floor(self, profile: Any, patch: Patch) -> bool:
+        """True when a gate-error knob's scaled value is below what T1/T2 alone cause over the
+        gate on some qubit or pair of the patch (the noise model then uses relaxation alone,
+        so lowering the knob further changes nothing)."""
+        return False if self.floor_of is None else self.floor_of(profile, patch)
+
+    def check(self, value: float, option: str, log: bool = False) -> float:
+        """``value`` (base units) if the knob allows it, else InputError naming ``option``."""
+        v = float(value)
+        if not math.isfinite(v):
+            raise input_error("sweep", option, f"{value} is not a finite number")
+        strict = not self.allow_zero or log
+        if v < 0 or (v == 0 and strict):
+            raise input_error(
+                "sweep",
+                option,
+                f"{value} is out of range for {self.name}",
+                "> 0" if strict else ">= 0",
+            )
+        low = 0.0 if self.lower is None else self.lower
+        if (self.upper is not None and v > self.upper) or (v > 0 and v < low):
+            raise input_error(
+                "sweep",
+                option,
+                f"{value} is out of range for {self.name}",
+                f"{low:g}..{self.upper:g} ({self.reason})",
+            )
+        return v
+
+    def values(self, start: float, stop: float, points: int, log: bool) -> tuple[float, ...]:
+        """``points`` knob values from ``start`` to ``stop`` (base units), evenly or log spaced.
+
+        Raises InputError for values outside the knob's range (negative rates, errors above
+        the physical maximum, zero coherence time, zero ends with ``log``) and for fewer than 2
+        points.
+        """
+        start = self.check(start, "--from", log)
+        stop = self.check(stop, "--to", log)
+        if start == stop:
+            raise input_error("sweep", "--from/--to", "the range is empty", "two different values")
+        if points < 2:
+            raise input_error("sweep", "--points", f"{points} points", "2 or more")
+        if log:
+            a, b = math.log10(start), math.log10(stop)
+            inner = [10 ** (a + (b - a) * i / (points - 1)) for i in range(1, points - 1)]
+            return (start, *inner, stop)  # the ends exactly as given
+        return tuple(start + (stop - start) * i / (points - 1) for i in range(points))
+
+    def factor(self, value: float, reference: float) -> float:
+        """Scale factor of the knob's channels that moves the reference value to ``value``."""
+        if self.channels is None:
+            return value
+        if self.inverse:
+            return reference / value
+        if reference <= 0:
+            raise input_error(
+                "sweep",
+                "--vary",
+                f"the device has no {self.phrase.removeprefix('the ')} to scale (reference "
+                "value 0)",
+                "a knob whose channel is present in the profile",
+            )
+        return value / reference
+
+    def default_range(self, reference: float) -> tuple[float, float]:
+        """A quarter to four times the device's value (clipped to the knob's range)."""
+        lo, hi = reference / 4.0, reference * 4.0
+        if self.upper is not None:
+            hi = min(hi, self.upper)
+        return lo, hi
+
+
+# ---------------------------------------------------------------- reference values
+
+
+def _patch_pairs(profile: Any, patch: Patch) -> list[tuple[int, int]]:
+    inside = set(patch)
+    pairs = [p for p in profile.pairs() if p[0] in inside and p[1] in inside]
+    return pairs or list(profile.pairs())
+
+
+def _two_qubit_error(profile: Any, patch: Patch) -> float:
+    pairs = _patch_pairs(profile, patch)
+    return sum(profile.pair_error(a, b) for a, b in pairs) / max(len(pairs), 1)
+
+
+def _one_qubit_error(profile: Any, patch: Patch) -> float:
+    return sum(profile.qubit(q).gate_error for q in patch) / len(patch)
+
+
+def _readout_error(profile: Any, patch: Patch) -> float:
+    qubits = [profile.qubit(q) for q in patch]
+    return sum(0.5 * (q.flip_0to1 + q.flip_1to0) for q in qubits) / len(qubits)
+
+
+def _t1_us(profile: Any, patch: Patch) -> float:
+    t1 = [profile.qubit(q).t1_us for q in patch]
+    if any(t is None for t in t1):
+        raise input_error(
+            profile.source,
+            "qubits.default.t1_us",
+            "infinite T1 cannot be swept",
+            "finite T1 and T2",
+        )
+    return sum(t1) / len(t1)
+
+
+def _two_qubit_floor(profile: Any, patch: Patch) -> bool:
+    gate = profile.two_qubit_gate
+    return any(
+        profile.pair_error(a, b) < relaxation_gate_infidelity(profile, gate, (a, b))
+        for a, b in _patch_pairs(profile, patch)
+    )
+
+
+def _one_qubit_floor(profile: Any, patch: Patch) -> bool:
+    physical = [g for g in profile.single_qubit_gates if g not in VIRTUAL_GATES]
+    if not physical:
+        return False
+    return any(
+        profile.qubit(q).gate_error < relaxation_gate_infidelity(profile, physical[0], (q,))
+        for q in patch
+    )
 
 
 KNOBS: dict[str, Knob] = {
@@ -68,6 +210,8 @@ KNOBS: dict[str, Knob] = {
         channels=("two_qubit",),
         display_factor=100.0,
         upper=MAX_TWO_QUBIT_ERROR,
+        reference_of=_two_qubit_error,
+        floor_of=_two_qubit_floor,
     ),
     "one-qubit-error": Knob(
         name="one-qubit-error",
@@ -77,6 +221,8 @@ KNOBS: dict[str, Knob] = {
         channels=("single_qubit",),
         display_factor=100.0,
         upper=MAX_SINGLE_QUBIT_ERROR,
+        reference_of=_one_qubit_error,
+        floor_of=_one_qubit_floor,
     ),
     "coherence-us": Knob(
         name="coherence-us",
@@ -89,6 +235,7 @@ KNOBS: dict[str, Knob] = {
         lower=MIN_COHERENCE_US,
         upper=MAX_COHERENCE_US,
         reason="T1 from 1 ns to 1000 s; outside, a unit typo",
+        reference_of=_t1_us,
     ),
     "readout-error": Knob(
         name="readout-error",
@@ -98,6 +245,7 @@ KNOBS: dict[str, Knob] = {
         channels=("readout",),
         display_factor=100.0,
         upper=MAX_READOUT_ERROR,
+        reference_of=_readout_error,
     ),
 }
 KNOB_ALIASES = {"scale": "noise-scale"}

@@ -1,19 +1,24 @@
 """The rehearse job: the variational loop run against the emulated device, repeated.
 
 Every in-loop energy evaluation is what the device would return: the parameterized circuit is
-compiled once (the study's chosen patch and transpiler seed) and bound per evaluation, the
-exact noisy distributions of every measured basis are emulated, finite-shot counts are drawn
-at the evaluation's allocation and the in-loop recipe runs on them (``run_recipe(...,
-sampled=True)``). The analytic expectation is never used in the loop (``analytic=True`` is a
-test-only switch). After the loop the final parameters are assessed with the final recipe at
-the study's budget, analytically, as ``assess`` does, and the final error is split into
-ansatz error + optimizer error under noise + noise bias (they add up exactly), with the shot
-noise apart.
+compiled once (the study's chosen patch and transpiler seed) and its parameters bound in the
+simulator, the exact noisy distributions of every measured basis are emulated, finite-shot
+counts are drawn at the evaluation's allocation and the in-loop recipe runs on them
+(``run_recipe(..., sampled=True)``; :mod:`noiselab.study.loop`). The analytic expectation is
+never used in the loop (``analytic=True`` is a test-only switch). The repeats of SPSA and
+parameter-shift descent run in lockstep, the points of one step of all repeats emulated in one
+call. After the loop the final parameters are assessed with the final recipe at the study's
+budget, analytically, as ``assess`` does, and the final error is split into ansatz error +
+optimizer error under noise + noise bias (they add up exactly), with the shot noise apart.
 
-Shots are counted exactly: every evaluation's measured shots plus the readout-calibration shots
-it draws (the sampled path recalibrates per evaluation), plus the final estimate's. Device time
-per shot: the compiled circuit's scheduled duration + readout + the profile's
-``repetition_delay_us``; each circuit run adds ``circuit_overhead_s``.
+Shots are counted exactly: every evaluation's measured shots, each repeat's readout
+calibration once (drawn at its first evaluation and reused, as a real run calibrates at its
+start), plus the final estimate's. Device time: ``noiselab.study.device_time`` (the rule
+``assess`` uses too), per evaluation (its calibration once per repeat) and for the final
+estimate, with the rehearse section's ``circuit_overhead_s`` per circuit run.
+
+Just over 400 lines: the job's records, the optimizer driver, exact shot and device-time
+accounting and the final error split (the loop evaluator is :mod:`noiselab.study.loop`).
 """
 
 from __future__ import annotations
@@ -36,12 +41,12 @@ from noiselab.common.wording import CAUTION, target_words
 from noiselab.device.compile import compile_to_device
 from noiselab.mitigate.experiment import make_calibrator, make_runner
 from noiselab.mitigate.optimizers import (
-    BudgetExhaustedError,
     OptimizerOutcome,
     ShiftRule,
-    parameter_shift_descent,
+    Steps,
+    parameter_shift_steps,
     scipy_minimize,
-    spsa,
+    spsa_steps,
 )
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.mitigate.target import p_within, reaches_target
@@ -52,7 +57,22 @@ from noiselab.study.context import (
     replace_experiment,
     with_verification,
 )
-from noiselab.study.rehearse_spec import DEFAULT_REPETITION_DELAY_US, RehearseSettings
+from noiselab.study.device_time import (
+    DeviceTime,
+    recipe_device_time,
+    seconds_per_shot,
+    variant_durations_ns,
+)
+from noiselab.study.job import as_cache
+from noiselab.study.loop import (
+    LoopEvaluator,
+    RepeatResult,
+    TracePoint,
+    run_lockstep,
+    trace_hook,
+    with_progress,
+)
+from noiselab.study.rehearse_spec import RehearseSettings
 from noiselab.study.spec import Study, load_study
 
 ProgressHook = Callable[[str, int, int], None]
@@ -62,55 +82,6 @@ OPTIMIZER_WORDS = {
     "cobyla": "COBYLA",
     "nelder_mead": "Nelder-Mead",
 }
-
-
-@dataclasses.dataclass(frozen=True)
-class TracePoint:
-    """After one iteration: shots spent so far, the energy the loop measured (mean of the
-    iteration's evaluations) and the noiseless energy of the current iterate (Ha)."""
-
-    shots: int
-    energy_ha: float
-    noiseless_energy_ha: float
-
-
-@dataclasses.dataclass(frozen=True)
-class RepeatResult:
-    """One run of the loop and its final estimate (energies in Ha, errors in mHa)."""
-
-    seed: int
-    start_parameters: tuple[float, ...]
-    final_parameters: tuple[float, ...]
-    iterations: int
-    evaluations: int
-    stopped: str
-    loop_shots: int  # measured + calibration shots of every in-loop evaluation
-    evaluation_shots: tuple[int, ...]  # each evaluation's shots, calibration included
-    final_shots: int  # the final estimate's, calibration included
-    circuit_runs: int
-    device_hours: float
-    final_energy_ha: float  # expectation of the final estimate (no random draw)
-    final_error_mha: float  # final_energy - exact = ansatz + optimizer + noise bias
-    ansatz_error_mha: float
-    optimizer_error_mha: float
-    noise_bias_mha: float
-    std_mha: float
-    p_within_target: float
-    trace: tuple[TracePoint, ...]
-
-    @property
-    def total_shots(self) -> int:
-        return self.loop_shots + self.final_shots
-
-    def to_json(self) -> dict[str, Any]:
-        out = {
-            f.name: getattr(self, f.name)
-            for f in dataclasses.fields(self)
-            if f.name not in ("trace", "evaluation_shots")
-        }
-        out["total_shots"] = self.total_shots
-        out["trace"] = [dataclasses.asdict(t) for t in self.trace]
-        return out
 
 
 @dataclasses.dataclass(frozen=True)
@@ -192,62 +163,6 @@ class RehearseResult:
         return rows
 
 
-# ---- one evaluation ---------------------------------------------------------------------------
-
-
-class LoopEvaluator:
-    """Energy evaluations at given parameters, as the device would return them; counts shots.
-
-    ``objective(x)``: bind, emulate, draw counts at ``shots`` and run the recipe on them.
-    Raises :class:`BudgetExhaustedError` once ``max_shots`` are spent.
-    """
-
-    def __init__(
-        self,
-        ctx: StudyContext,
-        parameterized: Any,
-        passes: Sequence[Mapping[str, Any]],
-        shots: int,
-        rng: np.random.Generator,
-        *,
-        calibrator: Any,
-        max_shots: int | None = None,
-        analytic: bool = False,
-    ) -> None:
-        self.ctx, self.parameterized, self.passes = ctx, parameterized, list(passes)
-        self.shots, self.rng, self.calibrator = int(shots), rng, calibrator
-        self.max_shots, self.analytic = max_shots, analytic
-        self.evaluation_shots: list[int] = []
-        self.circuit_runs = 0
-        self.last_energy_ha = math.nan
-
-    @property
-    def shots_spent(self) -> int:
-        return int(sum(self.evaluation_shots))
-
-    def evaluate(self, x: np.ndarray, shots: int) -> Any:
-        """The recipe's result at parameters ``x`` and ``shots`` (sampled unless analytic)."""
-        bound = self.parameterized.bind(np.asarray(x, dtype=float))
-        exp = replace_experiment(self.ctx.experiment, compiled=bound, shots=int(shots))
-        return run_recipe(
-            self.passes,
-            exp,
-            make_runner(exp),
-            sampled=not self.analytic,
-            rng=self.rng,
-            calibrator=self.calibrator,
-        )
-
-    def __call__(self, x: np.ndarray) -> float:
-        if self.max_shots is not None and self.shots_spent >= self.max_shots:
-            raise BudgetExhaustedError
-        res = self.evaluate(x, self.shots)
-        self.evaluation_shots.append(int(res.shots_total) + calibration_shots(res))
-        self.circuit_runs += int(res.n_circuits)
-        self.last_energy_ha = float(res.energy_ha)
-        return float(res.energy_ha)
-
-
 def calibration_shots(result: Any) -> int:
     """Readout-calibration shots a recipe result drew (0 for exact calibration)."""
     return int(result.details.get("calibration_shots_total", 0))
@@ -280,20 +195,24 @@ def start_parameters(
     return rng.uniform(-math.pi, math.pi, n)
 
 
-def run_optimizer(
+#: optimizers written as steps (mitigate.optimizers.Steps): their repeats run in lockstep
+STEPPED_OPTIMIZERS = ("spsa", "parameter_shift")
+
+
+def optimizer_steps(
     settings: RehearseSettings,
-    objective: LoopEvaluator,
     x0: np.ndarray,
     rng: np.random.Generator,
     rules: Sequence[ShiftRule],
     on_iteration: Any,
-) -> OptimizerOutcome:
+) -> Steps | None:
+    """The optimizer as steps (SPSA, parameter shift), or None for the scipy ones."""
     opts, n = settings.optimizer_options(), settings.iterations
     if settings.optimizer == "spsa":
-        return spsa(objective, x0, n, rng, opts, on_iteration)
+        return spsa_steps(x0, n, rng, opts, on_iteration)
     if settings.optimizer == "parameter_shift":
-        return parameter_shift_descent(objective, x0, n, rules, opts, on_iteration)
-    return scipy_minimize(objective, x0, n, settings.optimizer, opts, on_iteration)
+        return parameter_shift_steps(x0, n, rules, opts, on_iteration)
+    return None
 
 
 def rehearse(
@@ -303,6 +222,7 @@ def rehearse(
     context: StudyContext | None = None,
     progress: ProgressHook | None = None,
     analytic: bool = False,
+    shared: Any = None,
     **overrides: Any,
 ) -> RehearseResult:
     """Rehearse the variational loop of a study on its emulated device, ``repeats`` times.
@@ -310,19 +230,17 @@ def rehearse(
     ``overrides``: keys of the ``rehearse:`` section (``optimizer``, ``iterations``,
     ``shots_per_evaluation``, ``repeats``, ``start``, ``max_shots``, ``seed``, ...).
     ``analytic``: test-only; in-loop evaluations return the analytic expectation.
+    ``shared``: a ``noiselab.study.rehearse_grid.SharedRuns``, emulations shared with other
+    rehearsals of the same context (the grid).
     """
-    from noiselab.study.assess import _default_cache
-
     t0 = time.perf_counter()
     study = study_or_path if isinstance(study_or_path, Study) else load_study(study_or_path)
     settings = resolve_settings(study, overrides)
     loop_passes = settings.loop_passes()
-    final_passes = (
-        study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
-    )
+    final_passes = study.recipes[settings.final_recipe] if settings.final_recipe else loop_passes
     verify = recipes_verify([loop_passes, final_passes])
     if context is None:
-        context = build_context(study, cache=_default_cache(cache), verification=verify)
+        context = build_context(study, cache=as_cache(cache), verification=verify)
     ctx = with_verification(context, verify)
     for where, passes in (("rehearse.loop_recipe", loop_passes), ("final recipe", final_passes)):
         try:
@@ -355,48 +273,79 @@ def rehearse(
         return float(program.expectation(hmat, np.asarray(x, dtype=float)))
 
     profile = study.profile
-    delay_us = profile.repetition_delay_us or DEFAULT_REPETITION_DELAY_US
-    seconds_per_shot = (
-        float(parameterized.duration_ns) + float(profile.durations.readout_ns)
-    ) * 1e-9 + delay_us * 1e-6
+    # scheduled durations do not depend on the bound values: one bound context gives them all
+    durations = variant_durations_ns(
+        replace_experiment(ctx.experiment, compiled=parameterized.bind(optimum)),
+        [loop_passes, final_passes],
+    )
 
-    repeats = []
+    def clock(res: Any) -> DeviceTime:
+        return recipe_device_time(res, durations, profile, settings.circuit_overhead_s)
+
+    evaluators, traces, starts, hooks = [], [], [], []
     for r in range(settings.repeats):
-        if progress is not None:
-            progress("rehearsing the loop", r, settings.repeats)
-        seed = settings.seed + r
-        rng = np.random.default_rng(seed)
-        x0 = start_parameters(settings, optimum, rng)
-        evaluator = LoopEvaluator(
-            ctx, parameterized, loop_passes, settings.shots_per_evaluation, rng,
-            calibrator=calibrator, max_shots=settings.max_shots, analytic=analytic,
-        )  # fmt: skip
-        trace: list[TracePoint] = []
-
-        def on_iteration(
-            k: int, x: np.ndarray, values: tuple[float, ...], ev: LoopEvaluator = evaluator,
-            tr: list[TracePoint] = trace,
-        ) -> None:  # fmt: skip
-            measured = float(np.mean(values)) if values else ev.last_energy_ha
-            tr.append(TracePoint(ev.shots_spent, measured, noiseless(x)))
-
-        outcome = run_optimizer(settings, evaluator, x0, rng, rules, on_iteration)
-        repeats.append(
-            final_estimate(
+        rng = np.random.default_rng(settings.seed + r)
+        starts.append(start_parameters(settings, optimum, rng))
+        evaluators.append(
+            LoopEvaluator(
                 ctx,
-                evaluator,
-                final_passes,
-                outcome,
-                seed,
-                x0,
-                trace,
-                noiseless,
-                seconds_per_shot,
-                settings.circuit_overhead_s,
+                parameterized,
+                loop_passes,
+                settings.shots_per_evaluation,
+                rng,
+                calibrator=calibrator,
+                max_shots=settings.max_shots,
+                analytic=analytic,
+                clock=clock,
+                shared=shared,
             )
         )
-    if progress is not None:
-        progress("rehearsing the loop", settings.repeats, settings.repeats)
+        traces.append([])
+        hooks.append(trace_hook(evaluators[-1], traces[-1], noiseless))
+    lockstep = settings.optimizer in STEPPED_OPTIMIZERS
+    if lockstep and progress is not None:
+        progress("rehearsing the loop (iterations)", 0, settings.iterations)
+        hooks[0] = with_progress(hooks[0], progress, settings.iterations)
+    steps = [
+        optimizer_steps(settings, x0, ev.rng, rules, hook)
+        for ev, x0, hook in zip(evaluators, starts, hooks, strict=True)
+    ]
+    if lockstep:
+        # every repeat's next points go to the emulator together
+        outcomes = run_lockstep([s for s in steps if s is not None], evaluators)
+    else:
+        outcomes = []
+        for r, (ev, x0) in enumerate(zip(evaluators, starts, strict=True)):
+            if progress is not None:
+                progress("rehearsing the loop", r, settings.repeats)
+            outcomes.append(
+                scipy_minimize(
+                    ev,
+                    x0,
+                    settings.iterations,
+                    settings.optimizer,
+                    settings.optimizer_options(),
+                    hooks[r],
+                )
+            )
+        if progress is not None:
+            progress("rehearsing the loop", settings.repeats, settings.repeats)
+    repeats = [
+        final_estimate(
+            ctx,
+            ev,
+            final_passes,
+            out,
+            settings.seed + r,
+            x0,
+            trace,
+            noiseless,
+            clock,
+        )
+        for r, (ev, out, x0, trace) in enumerate(
+            zip(evaluators, outcomes, starts, traces, strict=True)
+        )
+    ]
     loop_name = parse_recipe(list(loop_passes)).name
     result = RehearseResult(
         study=study.name,
@@ -409,7 +358,7 @@ def rehearse(
         ansatz_energy_ha=ctx.ansatz_energy_ha,
         target_mha=float(study.target_mha),
         confidence=float(study.confidence),
-        seconds_per_shot=seconds_per_shot,
+        seconds_per_shot=seconds_per_shot(parameterized.duration_ns, profile),
         repeats=tuple(repeats),
         verdict="",
     )
@@ -427,8 +376,7 @@ def final_estimate(
     x0: np.ndarray,
     trace: Sequence[TracePoint],
     noiseless: Callable[[np.ndarray], float],
-    seconds_per_shot: float,
-    circuit_overhead_s: float,
+    clock: Callable[[Any], DeviceTime],
 ) -> RepeatResult:
     """The final parameters assessed analytically with the final recipe at the study's shots."""
     x = np.asarray(outcome.parameters, dtype=float)
@@ -441,7 +389,7 @@ def final_estimate(
     final_error = (float(res.energy_ha) - exact) * HA_TO_MHA
     loop_shots = evaluator.shots_spent
     runs = evaluator.circuit_runs + int(res.n_circuits)
-    hours = ((loop_shots + final_shots) * seconds_per_shot + runs * circuit_overhead_s) / 3600.0
+    hours = (evaluator.device_time + clock(res)).hours
     return RepeatResult(
         seed=seed,
         start_parameters=tuple(float(v) for v in x0),

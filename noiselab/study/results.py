@@ -3,6 +3,10 @@
 Energies in Hartree (``_ha``), biases and standard errors in milli-Hartree (``_mha``). The JSON
 form is deterministic for a given study and seed: timings and cache statistics are kept apart
 (``RunStats``) and only added on request.
+
+Over 400 lines: the records of assess and tune (and the run statistics, context summary and
+ranking rule they share) are rebuilt from the cache by one ``_rebuild`` and written by one
+JSON/CSV code path; keeping them together keeps that one round trip in one place.
 """
 
 from __future__ import annotations
@@ -222,6 +226,14 @@ def verdict_line(
             f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
             "with more shots."
         )
+    elif str(best.limited_by) == "learning":
+        ec = details.get("error_cancellation") or {}
+        std = ec.get("std_learning_mha")
+        learn = f" ({float(std):.3g} mHa)" if std is not None else ""
+        text = (
+            f"{head}: the uncertainty of its learned noise model{learn} does not shrink with "
+            "more shots."
+        )
     else:
         text = f"{head}: its bias keeps it out of reach at any shot count."
     return False, _with_amplification(text, best)
@@ -261,9 +273,56 @@ def amplification_line(result: Any) -> str | None:
     )
 
 
+def training_line(result: Any) -> str | None:
+    """One line stating what a Clifford-regression result assumes of its training circuits
+    (None for other results)."""
+    details = getattr(result, "details", None) or {}
+    cr = details.get("clifford_regression") if isinstance(details, Mapping) else None
+    if not isinstance(cr, Mapping) or cr.get("classical"):
+        return None
+    choice = details.get("std_training_choice_mha")
+    cost = f"; the choice of rotations adds {float(choice):.3g} mHa (1 std)" if choice else ""
+    return (
+        f"Training assumed: {cr.get('assumption')} ({cr.get('training_circuits')} training "
+        f"circuits, {format_count(cr.get('training_shots'))} of the shots{cost})."
+    )
+
+
+def learning_line(result: Any) -> str | None:
+    """One line stating what an error-cancellation result assumes of its learned noise model
+    (None for other results)."""
+    details = getattr(result, "details", None) or {}
+    ec = details.get("error_cancellation") if isinstance(details, Mapping) else None
+    if not isinstance(ec, Mapping):
+        return None
+    error = float(ec.get("learning_error", 0.0))
+    systematic = (
+        "no systematic error (learning_error 0)"
+        if error == 0.0
+        else f"a systematic error of {error * 100:+.3g} % (learning_error, in the bias)"
+    )
+    spread = float(ec.get("learning_spread", 0.0))
+    if spread == 0.0:
+        return (
+            f"Noise model assumed: the learned Pauli model's rates carry {systematic} and no "
+            "random error (learning_spread 0: learned without statistical error, which favours "
+            "the experiment)."
+        )
+    std = ec.get("std_learning_mha")
+    cost = f"; {float(std):.3g} mHa of the error bar" if std is not None else ""
+    return (
+        f"Noise model assumed: the learned Pauli model's rates carry {systematic} and a "
+        f"{spread * 100:.3g} % random error (1 std, learning_spread{cost})."
+    )
+
+
 def _with_amplification(text: str, result: Any) -> str:
-    line = amplification_line(result)
-    return text if line is None else f"{text} {line}"
+    lines = [
+        line
+        for line in (amplification_line(result), training_line(result), learning_line(result))
+        if line
+    ]
+    return " ".join([text, *lines])
 
 
 def format_count(n: int | float | None) -> str:
@@ -356,6 +415,13 @@ TRAJECTORY_HEADER = "trajectory error (mHa)"
 SPREAD_HEADER = "compile spread (mHa)"
 #: Assess column with --drift: drawn device days on which the recipe reaches the target.
 DRIFT_HEADER = "drift days reaching"
+#: Assess and compare column: device time of the estimate at the budget.
+DEVICE_HOURS_HEADER = "device hours (h)"
+
+
+def format_hours(hours: float | None) -> str:
+    """Device hours for a table cell (3 significant digits; "-" when unknown)."""
+    return "-" if hours is None else f"{hours:.3g}"
 
 
 def trajectory_std_of(result: Any) -> float | None:
@@ -462,6 +528,10 @@ class AssessResult:
     #: per recipe, noiselab.study.drift.DriftStats over drawn device days (empty: no --drift)
     drift: dict[str, Any] = dataclasses.field(default_factory=dict)
     drift_rel_std: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: per recipe, device hours of its estimate at the budget (noiselab.study.device_time)
+    device_hours: dict[str, float] = dataclasses.field(default_factory=dict)
+    #: the device-time rule's inputs: repetition_delay_us, readout_ns, circuit_overhead_s
+    device_time: dict[str, float] = dataclasses.field(default_factory=dict)
 
     @property
     def uses_trajectories(self) -> bool:
@@ -485,10 +555,13 @@ class AssessResult:
                     "energy": "Ha",
                     "bias, std, trajectory_std": "mHa",
                     "shots": "total per estimate",
+                    "device_hours": "hours of device time for the estimate at the budget",
                 },
+                "device_time": self.device_time,
                 "recipes": {
                     name: {
                         **recipe_json(r, self.passes.get(name)),
+                        "device_hours": self.device_hours.get(name),
                         "bias_spread_mha": self.bias_spread_mha.get(name),
                         "drift": self.drift[name].to_json() if name in self.drift else None,
                     }
@@ -518,6 +591,8 @@ class AssessResult:
                 "bias_spread_mha": self.bias_spread_mha,
                 "drift": {n: dataclasses.asdict(d) for n, d in self.drift.items()},
                 "drift_rel_std": self.drift_rel_std,
+                "device_hours": self.device_hours,
+                "device_time": self.device_time,
             }
         )
 
@@ -533,6 +608,8 @@ class AssessResult:
             bias_spread_mha=dict(rec.get("bias_spread_mha") or {}),
             drift={n: _drift_stats(d) for n, d in (rec.get("drift") or {}).items()},
             drift_rel_std=dict(rec.get("drift_rel_std") or {}),
+            device_hours=dict(rec["device_hours"]),  # older records lack it: recomputed
+            device_time=dict(rec["device_time"]),
         )
 
     @property
@@ -549,6 +626,8 @@ class AssessResult:
             head = (*head[:i], SPREAD_HEADER, *head[i:])
         if self.drift:
             head = (*head, DRIFT_HEADER)
+        if self.device_hours:
+            head = (*head, DEVICE_HOURS_HEADER)
         return (*head, TRAJECTORY_HEADER) if self.uses_trajectories else head
 
     def table_rows(self) -> list[tuple[str, ...]]:
@@ -563,6 +642,8 @@ class AssessResult:
             if self.drift:
                 d = self.drift.get(name)
                 row = (*row, "-" if d is None else f"{d.reaching}/{d.draws}")
+            if self.device_hours:
+                row = (*row, format_hours(self.device_hours.get(name)))
             if self.uses_trajectories:
                 t = trajectory_std_of(r)
                 row = (*row, "-" if t is None else f"{t:.3f}")
@@ -586,6 +667,7 @@ class AssessResult:
                     "reaches_target": bool(r.reaches_target),
                     "shots_needed": "" if r.shots_needed is None else int(r.shots_needed),
                     "limited_by": str(r.limited_by),
+                    "device_hours": self.device_hours.get(name, ""),
                 }
             )
             if self.has_spread:

@@ -28,6 +28,10 @@ the lowest point's neighbours: equilibrium coordinate and curvature (spline's se
 there, Ha per unit^2). Not given when the lowest point is the scan's first or last. Error bars:
 linear propagation of each point's standard error through the fit (finite differences). The
 first-minus-last energy difference E(first) - E(last) with sqrt(s_first^2 + s_last^2).
+
+Over 400 lines: the axis (geometry moves), the warm-started point tasks, the resumable point
+cache and the curve fits of one job; the records and their JSON stay beside the fits that
+fill them.
 """
 
 from __future__ import annotations
@@ -51,12 +55,14 @@ from scipy.optimize import minimize_scalar
 from noiselab.chem.encode import encode
 from noiselab.chem.molecule import compute_problem, molecule_from_mapping
 from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
+from noiselab.chem.stability import hf_stability
 from noiselab.common.atomic import write_text_atomic
+from noiselab.common.counts import Count, parse_count
 from noiselab.common.errors import from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.target import reaches_target
-from noiselab.study.assess import _default_cache, check_recipes, resolve_study, run_recipes
+from noiselab.study.assess import check_recipes, run_recipes
 from noiselab.study.cache import (
     CachingRunner,
     ResultsCache,
@@ -67,6 +73,7 @@ from noiselab.study.cache import (
 )
 from noiselab.study.context import _optimum_key, ansatz_circuit, build_context, recipes_verify
 from noiselab.study.executor import make_executor
+from noiselab.study.job import start_job
 from noiselab.study.results import RunStats, csv_text, jsonable
 from noiselab.study.spec import Study
 from noiselab.study.sweep import chosen_recipes
@@ -94,8 +101,8 @@ class ScanSection(BaseModel):
     scale: bool = False
     start: float | None = Field(default=None, allow_inf_nan=False, gt=0)
     stop: float | None = Field(default=None, allow_inf_nan=False, gt=0)
-    points: int = Field(default=9, ge=2, le=MAX_POINTS)
-    refine: int = Field(default=2, ge=0, le=MAX_REFINE)
+    points: Count = Field(default=9, ge=2, le=MAX_POINTS)
+    refine: Count = Field(default=2, ge=0, le=MAX_REFINE)
     recipes: list[str] | None = None
 
 
@@ -208,8 +215,8 @@ def scan_axis(
     start = section.start if start is None else start
     stop = section.stop if stop is None else stop
     start, stop = (lo_d if start is None else float(start)), (hi_d if stop is None else float(stop))
-    points = section.points if points is None else int(points)
-    refine = section.refine if refine is None else int(refine)
+    points = section.points if points is None else parse_count(points, "--points", 2, MAX_POINTS)
+    refine = section.refine if refine is None else parse_count(refine, "--refine", 0, MAX_REFINE)
     for key, v in (("--from", start), ("--to", stop)):
         if not math.isfinite(v) or v <= 0:
             raise input_error(
@@ -268,6 +275,8 @@ class ScanPoint:
     optimizer_starts: int
     two_qubit_gates: int
     entries: tuple[ScanEntry, ...]
+    hf_stable: bool  # PySCF's stability analysis of the (RO)HF solution (chem.stability)
+    hf_instability: str  # what is unstable, in words ("" when stable)
 
     def recipe(self, name: str) -> ScanEntry:
         return next(e for e in self.entries if e.recipe == name)
@@ -314,6 +323,7 @@ def run_point(task: PointTask) -> PointOutcome:
     check_recipes(ctx, recipes)
     runner = CachingRunner(ctx.experiment, task.cache)
     results = run_recipes(ctx, recipes, runner)
+    stab = hf_stability(task.study.molecule)
     conf = float(task.study.confidence)
     entries = tuple(
         ScanEntry(
@@ -339,6 +349,8 @@ def run_point(task: PointTask) -> PointOutcome:
         optimizer_starts=int(task.optimum.starts),
         two_qubit_gates=int(ctx.compiled.two_qubit_count),
         entries=entries,
+        hf_stable=stab.stable,
+        hf_instability=stab.words(),
     )
     return PointOutcome(point, runner.simulations, runner.cache_hits, runner.engine_seconds)
 
@@ -525,6 +537,7 @@ class ScanResult:
                 "hf_energy_ha": p.hf_energy_ha,
                 "ansatz_energy_ha": p.ansatz_energy_ha,
                 "two_qubit_gates": p.two_qubit_gates,
+                "hf_stable": p.hf_stable,
             }
             for e in p.entries:
                 row[f"{e.recipe}_energy_ha"] = e.energy_ha
@@ -558,8 +571,19 @@ def derive(points: Sequence[ScanPoint], recipes: Sequence[str]) -> tuple[CurveFi
 
 
 def scan_notes(points: Sequence[ScanPoint], target_mha: float) -> tuple[str, ...]:
-    """Warnings: the ansatz error jumping between neighbours by more than the target."""
+    """Warnings: the ansatz error jumping between neighbours by more than the target; the
+    Hartree-Fock solution changing character (stable at one point, unstable at the next)."""
     notes = []
+    for a, b in itertools.pairwise(points):
+        if a.hf_stable != b.hf_stable:
+            bad = b if a.hf_stable else a
+            notes.append(
+                f"Hartree-Fock changes character between {a.coordinate:g} and {b.coordinate:g}: "
+                f"at {bad.coordinate:g} {bad.hf_instability}; there the Hartree-Fock curve, the "
+                "ansatz's start and the active orbitals come from an unstable solution"
+            )
+    if points and not any(p.hf_stable for p in points):
+        notes.append(f"Hartree-Fock is unstable at every point ({points[0].hf_instability})")
     for a, b in itertools.pairwise(points):
         if abs(b.ansatz_error_mha - a.ansatz_error_mha) > target_mha:
             notes.append(
@@ -598,14 +622,15 @@ def scan(
     ``recipes``: the study's recipes to follow (raw always first; default the scan: section's,
     else all). ``on_point(point)`` runs in the calling process as each point finishes.
     """
-    t0 = time.perf_counter()
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     axis = scan_axis(study, bond, scale, start, stop, points, refine)
     if recipes is None:
         section = study.raw.get("scan") if isinstance(study.raw, dict) else None
         recipes = (section or {}).get("recipes")
     picked = chosen_recipes(study, recipes)
-    store = _default_cache(cache)
     for v in (axis.start, axis.stop):  # refuse a bad geometry before any work
         study_at(study, axis, v)
     done: dict[float, ScanPoint] = {}

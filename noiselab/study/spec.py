@@ -3,6 +3,11 @@
 ``load_study(path)`` reads and validates the file and returns a resolved :class:`Study` (device
 profile loaded, molecule and recipes validated by their own layers). Every problem is one
 :class:`~noiselab.common.errors.InputError` line naming the study file and the key.
+
+Over 400 lines: the study file's pydantic sections, the command-line overrides validated by
+the same models, and the resolution of molecule, device and recipes form one validation pass
+whose messages name the file and key; its sections are small models without logic of their
+own.
 """
 
 from __future__ import annotations
@@ -28,7 +33,7 @@ from pydantic import (
 )
 
 from noiselab.chem.molecule import count_orbitals, molecule_from_mapping
-from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count
+from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count, whole_number
 from noiselab.common.errors import InputError, from_validation_error, input_error, quote
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
@@ -148,6 +153,7 @@ class TuneGrid(_Strict):
     amplification: list[str] | None = Field(default=None, min_length=1)
     scales: list[list[float]] | None = Field(default=None, min_length=1)
     fit: list[str] | None = Field(default=None, min_length=1)
+    family: list[str] | None = Field(default=None, min_length=1)
 
     @field_validator("scales")
     @classmethod
@@ -460,13 +466,23 @@ def apply_overrides(
     for key in ("method", "trajectories"):
         if key in given:
             emulation[key] = given[key]
+    if "trajectories" in given:
+        _lower_batches(emulation)
     out["emulation"] = emulation
-    spec = _validate_overridden(out, source, given)
-    e = spec.emulation
-    if "trajectories" in given and e.batches > e.trajectories:
-        emulation["batches"] = max(2, e.trajectories)
-        _validate_overridden(out, source, given)
+    _validate_overridden(out, source, given)
     return out
+
+
+def _lower_batches(emulation: dict[str, Any]) -> None:
+    """Fewer trajectories than the batches: as many batches as trajectories (before the
+    model checks trajectories >= batches; unreadable counts are left to the model)."""
+    try:
+        n = whole_number(emulation["trajectories"])
+        batches = whole_number(emulation.get("batches", DEFAULT_BATCHES))
+    except ValueError:
+        return
+    if isinstance(n, int) and isinstance(batches, int) and 2 <= n < batches:
+        emulation["batches"] = n
 
 
 def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[str, Any]) -> Any:

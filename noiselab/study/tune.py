@@ -12,29 +12,25 @@ from __future__ import annotations
 import dataclasses
 import itertools
 import json
-import time
 from collections.abc import Callable, Sequence
 from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.errors import InputError
-from noiselab.mitigate.base import STAGE_COMBINE
-from noiselab.mitigate.recipe import EstimateMemo, run_recipe
+from noiselab.mitigate.recipe import EstimateMemo, parse_recipe, run_recipe
 from noiselab.mitigate.registry import make_pass
-from noiselab.mitigate.variants import CircuitVariant
-from noiselab.study.assess import (
-    _default_cache,
+from noiselab.study.cache import CachingRunner, ResultsCache, job_key
+from noiselab.study.context import StudyContext, build_context, with_verification
+from noiselab.study.grid import DEFAULT_AXES, NONE, REGRESSION, Grid, check_axes
+from noiselab.study.job import (
     job_fields,
     load_job_result,
     override_key_options,
-    resolve_study,
+    own_executor,
     save_job_result,
+    start_job,
 )
-from noiselab.study.cache import CachingRunner, ResultsCache, job_key
-from noiselab.study.context import StudyContext, build_context, with_verification
-from noiselab.study.executor import make_executor
-from noiselab.study.grid import DEFAULT_AXES, NONE, Grid, check_axes
 from noiselab.study.results import (
     RunStats,
     TuneEntry,
@@ -48,6 +44,7 @@ from noiselab.study.spec import Study, TuneGrid
 
 ProgressHook = Callable[[str, int, int], None]
 
+
 @dataclasses.dataclass(frozen=True)
 class GridOverride:
     """Axes given on the command line (None: take the study's ``tune:`` section or the default)."""
@@ -57,6 +54,7 @@ class GridOverride:
     amplification: Sequence[str] | None = None
     scales: Sequence[Sequence[float]] | None = None
     fit: Sequence[str] | None = None
+    family: Sequence[str] | None = None
 
 
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
@@ -85,6 +83,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         amplification=tuple(dict.fromkeys(str(v) for v in values["amplification"])),
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
+        family=tuple(dict.fromkeys(str(v) for v in values["family"])),
     )
     check_axes(grid, origin)
     return grid, origin
@@ -120,65 +119,111 @@ class Setting:
 
 
 def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[Setting], list[str]]:
-    """Every valid combination of the axes, and notes on what was left out and why."""
+    """Every valid combination of the axes, and notes on what was left out and why.
+
+    The families beyond the stack: ``error_cancellation`` runs first, with every readout and
+    post-selection choice but no extrapolation; ``distillation`` alone (it composes with no
+    readout correction, and is itself the estimator). Both keep the grid small.
+    """
     notes: list[str] = []
     post_axis = grid.postselect
     if not symmetries_available and any(p != NONE for p in post_axis):
         notes.append("post-selection left out: the encoding keeps no symmetry to check")
         post_axis = (NONE,)
+    with_family = any(f != NONE for f in grid.family)
     settings: list[Setting] = []
     skipped = 0
-    for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
-        zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
-        if amp == NONE:
-            zne_choices = [(None, None)]
-        else:
-            zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
-        for scales, fit in zne_choices:
-            passes: list[dict[str, Any]] = []
-            if ro != NONE:
-                passes.append({"pass": "readout", "method": ro})
-            if ps != NONE:
-                passes.append({"pass": "postselect", "mode": ps})
-            if amp != NONE:
-                passes.append(
-                    {"pass": "extrapolate", "amplifier": amp, "scales": list(scales), "fit": fit}
-                )
-            try:
-                specs = tuple(make_pass(p, where="tune").spec() for p in passes)
-            except InputError:
-                skipped += 1  # e.g. an exponential fit given only two scale factors
+    for family in grid.family:
+        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
+            if family == "error_cancellation" and amp != NONE:
                 continue
-            options = {
-                "readout": ro,
-                "postselect": ps,
-                "amplification": amp,
-                "scales": list(scales) if scales is not None else [],
-                "fit": fit or NONE,
-            }
-            settings.append(Setting(_label(options), options, specs))
+            if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
+                continue
+            zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
+            if amp in (NONE, REGRESSION):
+                zne_choices = [(None, None)]
+            else:
+                zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
+            for scales, fit in zne_choices:
+                passes: list[dict[str, Any]] = []
+                if family == "error_cancellation":
+                    passes.append({"pass": "error_cancellation"})
+                if ro != NONE:
+                    passes.append({"pass": "readout", "method": ro})
+                if ps != NONE:
+                    passes.append({"pass": "postselect", "mode": ps})
+                if family == "distillation":
+                    passes.append({"pass": "distillation"})
+                if amp == REGRESSION:
+                    passes.append({"pass": REGRESSION})
+                elif amp != NONE:
+                    passes.append(
+                        {
+                            "pass": "extrapolate",
+                            "amplifier": amp,
+                            "scales": list(scales),
+                            "fit": fit,
+                        }
+                    )
+                try:
+                    specs = tuple(make_pass(p, where="tune").spec() for p in passes)
+                except InputError:
+                    skipped += 1  # e.g. an exponential fit given only two scale factors
+                    continue
+                options = {
+                    "readout": ro,
+                    "postselect": ps,
+                    "amplification": amp,
+                    "scales": list(scales) if scales is not None else [],
+                    "fit": fit or NONE,
+                }
+                if with_family:
+                    options["family"] = family
+                settings.append(Setting(_label(options), options, specs))
     if skipped:
         notes.append(f"{skipped} combination(s) left out: the fit needs more scale factors")
     return settings, notes
 
 
 def _label(o: dict[str, Any]) -> str:
-    parts = [f"readout={o['readout']}", f"post={o['postselect']}"]
+    parts = [] if o.get("family", NONE) == NONE else [f"family={o['family']}"]
+    parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
     if o["amplification"] == NONE:
         parts.append("zne=none")
+    elif o["amplification"] == REGRESSION:
+        parts.append(f"zne=none {REGRESSION}")
     else:
         scales = ",".join(f"{s:g}" for s in o["scales"])
         parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
     return " ".join(parts)
 
 
+def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting], list[str]]:
+    """The settings whose passes this experiment allows, and a note per family left out
+    (e.g. distillation on a device without 2n + 1 qubits)."""
+    kept: list[Setting] = []
+    notes: dict[str, str] = {}
+    for s in settings:
+        family = s.options.get("family", NONE)
+        if family == NONE or family in notes:
+            if family == NONE:
+                kept.append(s)
+            continue
+        try:
+            for p in parse_recipe(list(s.passes)).passes:
+                p.check(ctx.experiment, "tune")
+        except InputError as exc:
+            notes[family] = f"{family} left out: {str(exc).split(': ', 1)[-1]}"
+            continue
+        kept.append(s)
+    return kept, list(notes.values())
+
+
 def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:
-    """The distinct circuit variants the settings need (combination passes declare theirs)."""
+    """The distinct circuit variants the settings need (as their recipes declare them)."""
     out: dict[Any, None] = {}
     for s in settings:
-        combine = [p for p in (make_pass(d) for d in s.passes) if p.stage == STAGE_COMBINE]
-        variants = combine[-1].variants(ctx.experiment) if combine else (CircuitVariant(),)
-        out.update(dict.fromkeys(variants))
+        out.update(dict.fromkeys(parse_recipe(list(s.passes)).variants(ctx.experiment)))
     return list(out)
 
 
@@ -207,10 +252,11 @@ def tune(
     ``cluster``: a Dask scheduler address (``tcp://HOST:PORT``) or ``distributed.Client``.
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     """
-    t0 = time.perf_counter()
-    store = _default_cache(cache)
     # every input is read (bounded) and validated before the cache key reads the files again
-    study = resolve_study(study_or_path, seed, shots, method, trajectories)
+    job = start_job(
+        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    )
+    study, store, t0 = job.study, job.store, job.t0
     resolved, _ = resolve_grid(study, grid)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
@@ -222,10 +268,7 @@ def tune(
         stored = load_job_result(store, key, TuneResult, t0)
         if stored is not None:
             return stored
-    own_executor = executor is None
-    if executor is None:  # before the (slow) context: a bad cluster address fails at once
-        executor = make_executor(workers, cluster)
-    try:
+    with own_executor(workers, cluster, executor) as ex:
         # the verification bases are measured only when a setting may verify
         verify = "verify" in resolved.postselect
         ctx = (
@@ -236,6 +279,8 @@ def tune(
         settings, notes = grid_settings(
             resolved, bool(getattr(ctx.qubit_problem, "symmetries", ()))
         )
+        settings, left_out = applicable(ctx, settings)
+        notes += left_out
         if not settings:
             raise InputError(f"{study.source}: tune: the grid has no valid setting")
         runner = CachingRunner(ctx.experiment, store)
@@ -245,18 +290,14 @@ def tune(
             if progress is not None:
                 progress("simulating circuit variants", done, total)
 
-        runner.prefetch(variants, executor, on_done=sim_progress)
-    finally:
-        if own_executor:
-            executor.close()
+        runner.prefetch(variants, ex, on_done=sim_progress)
+        described = str(getattr(ex, "description", "in-process"))
 
     # settings that differ only in their extrapolation share each variant's corrected estimate
     memo = EstimateMemo()
     results: list[tuple[Setting, Any]] = []
     for i, s in enumerate(settings):
-        result = run_recipe(
-            list(s.passes), ctx.experiment, runner, calibrator=runner.calibrator, memo=memo
-        )
+        result = run_recipe(list(s.passes), ctx.experiment, runner, memo=memo)
         results.append((s, result))
         if progress is not None:
             progress("scoring settings", i + 1, len(settings))
@@ -272,7 +313,7 @@ def tune(
     )
     if notes:
         verdict += " (" + "; ".join(notes) + ")"
-    stats = RunStats.of_runner(runner, t0, getattr(executor, "description", "in-process"))
+    stats = RunStats.of_runner(runner, t0, described)
     result = TuneResult(
         entries=entries,
         distinct_variants=len(runner.requested),

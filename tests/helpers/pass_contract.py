@@ -109,14 +109,23 @@ def check_cache_key(cls: type[MitigationPass]) -> None:
 
 
 def composed_recipe(cls: type[MitigationPass]) -> list[dict[str, Any]]:
-    """``cls`` with one registered pass of each other stage, in the order a recipe needs."""
+    """``cls`` with one registered pass of each other stage, in the order a recipe needs (the
+    first of that stage that neither declares incompatible; none where every one does)."""
     recipe = []
     for stage in sorted(STAGE_NAMES):
         if stage == cls.stage:
             recipe.append({"pass": cls.name})
-        else:
-            partner = next(n for n, c in PASSES.items() if c.stage == stage and c is not cls)
-            recipe.append({"pass": partner})
+            continue
+        partners = [
+            n
+            for n, c in PASSES.items()
+            if c.stage == stage
+            and c is not cls
+            and n not in cls.incompatible
+            and cls.name not in c.incompatible
+        ]
+        if partners:
+            recipe.append({"pass": partners[0]})
     return recipe
 
 

@@ -102,6 +102,9 @@ class PostselectPass(MitigationPass):
         return f"postselect({self.options.mode}{syms})"
 
     def selected(self, ctx, where: str = "postselect") -> list[tuple[str, str, int]]:
+        known = getattr(self, "_selected", None)
+        if known is not None and known[0] is ctx.problem:
+            return list(known[1])
         table = symmetry_table(ctx.problem)
         names = self.options.symmetries
         if not table:
@@ -119,7 +122,9 @@ class PostselectPass(MitigationPass):
                     f"{where}.symmetries: {nm!r} is not a symmetry of this encoding; "
                     f"allowed: {', '.join(table)}"
                 )
-        return [(nm, *table[nm]) for nm in names]
+        out = [(nm, *table[nm]) for nm in names]
+        self._selected = (ctx.problem, tuple(out))  # a loop re-runs the recipe on one problem
+        return out
 
     def check(self, ctx, where: str) -> None:
         self.selected(ctx, where)

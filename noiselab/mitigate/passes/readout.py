@@ -144,7 +144,8 @@ def project_to_simplex(x: np.ndarray) -> np.ndarray:
 
 
 def _invertible(mat: np.ndarray, what: str) -> None:
-    if not np.isfinite(np.linalg.cond(mat)) or np.linalg.cond(mat) > 1e12:
+    cond = np.linalg.cond(mat)
+    if not np.isfinite(cond) or cond > 1e12:
         raise InputError(
             f"{what}: the estimated assignment matrix is singular (readout error near 50%)"
         )

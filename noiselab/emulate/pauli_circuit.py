@@ -1,0 +1,211 @@
+"""A compiled circuit, its device noise and its measurement as a Pauli-propagation program.
+
+Builds what :mod:`noiselab.emulate.pauli_propagation` runs: every native gate as Pauli
+rotations followed by the Pauli-twirled channel the device's noise model attaches to it, every
+idle window (``delay``) as the twirled relaxation channel the model's noise pass inserts, and
+the measured observable of each measurement basis including the basis-change layer (its gates'
+noise and the idle relaxation of qubits waiting for it, exactly, as single-qubit channels) and
+the readout assignment matrix of each qubit. Readout crosstalk (joint flips) is left out: a
+product of per-qubit observables cannot carry it (callers say so).
+
+``pauli_energy(...)`` gives the energy a plan's grouped measurement would estimate, its variance
+per shot of each group, and the truncation bound, without any density matrix.
+"""
+
+from __future__ import annotations
+
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from qiskit.quantum_info import Kraus
+
+from noiselab.device.aer_adapter import gate_error, instruction_error, run_noise_passes
+from noiselab.emulate.channels import BasisLayerSpec, EffectCache, layer_duration_ns
+from noiselab.emulate.pauli_propagation import (
+    EXACT,
+    Instruction,
+    PauliDiagonal,
+    PauliTerms,
+    Truncation,
+    gate_rotations,
+    merge,
+    pauli_matrix,
+    propagate,
+    twirled_fidelities,
+)
+
+_ONE = np.uint64(1)
+
+
+def circuit_program(circuit: object, noise_model: object | None) -> list[Instruction]:
+    """The instructions of ``circuit`` (qiskit, native gates, scheduled) with twirled noise."""
+    qc = run_noise_passes(circuit, noise_model) if noise_model is not None else circuit
+    index = {bit: i for i, bit in enumerate(qc.qubits)}
+    memo: dict[tuple[str, tuple[int, ...]], PauliDiagonal | None] = {}
+    program: list[Instruction] = []
+    for inst in qc.data:
+        op = inst.operation
+        qubits = tuple(index[b] for b in inst.qubits)
+        if op.name in ("delay", "barrier", "measure"):
+            continue
+        if op.name == "quantum_channel":  # inserted by a noise pass (idle relaxation)
+            program.append(_twirled(instruction_error(op), qubits))
+            continue
+        program.extend(gate_rotations(op.name, [float(p) for p in op.params], qubits))
+        if noise_model is None:
+            continue
+        key = (op.name, qubits)
+        if key not in memo:
+            err = gate_error(noise_model, op.name, qubits)
+            memo[key] = None if err is None else _twirled(err, qubits)
+        if memo[key] is not None:
+            program.append(memo[key])
+    return program
+
+
+def _twirled(error: object, qubits: tuple[int, ...]) -> PauliDiagonal:
+    kraus = Kraus(error.to_quantumchannel()).data  # type: ignore[attr-defined]
+    return PauliDiagonal(qubits, twirled_fidelities(kraus, len(qubits)))
+
+
+def measured_qubit_observable(effects: np.ndarray, readout: np.ndarray | None) -> np.ndarray:
+    """Pauli coefficients (index 0..3 as I, X, Z, Y by ``x + 2 z``) of the single-qubit
+    observable ``sum_m (-1)^m sum_b R[m, b] E^b`` a measurement of this qubit reports.
+
+    ``effects[b]`` (2x2): the Heisenberg image of ``|b><b|`` through the basis layer;
+    ``readout[m, b]``: probability to report m when the qubit is in b (None: ideal)."""
+    r = np.eye(2) if readout is None else np.asarray(readout, dtype=float)
+    m_op = sum(((-1) ** m) * r[m, b] * effects[b] for m in (0, 1) for b in (0, 1))
+    return np.array([np.real(np.trace(pauli_matrix(i, 1) @ m_op)) / 2 for i in range(4)])
+
+
+def basis_observable(
+    terms: Sequence[tuple[str, float]],
+    qubit_observables: Mapping[int, np.ndarray],
+    circuit_qubit: Sequence[int],
+    min_abs_coeff: float = 0.0,
+    tag: int = 0,
+) -> tuple[PauliTerms, float]:
+    """``sum_t h_t prod_{q in supp t} M_q`` as Pauli strings on the circuit's qubits, and the
+    sum of the ``|c|`` dropped while expanding.
+
+    ``terms``: (label over logical qubits, coefficient); ``qubit_observables[l]``: M of logical
+    qubit l in this basis (from :func:`measured_qubit_observable`); ``circuit_qubit[l]``: its
+    position in the circuit. A partial product below ``min_abs_coeff`` is dropped: every M has
+    operator norm at most 1 (a +-1 outcome's observable), so what it would have become is
+    bounded by its ``|c|`` (the dropped sum joins the truncation bound)."""
+    if not terms:
+        empty = np.zeros(0, dtype=np.uint64)
+        return PauliTerms(empty, empty, np.zeros(0), np.zeros(0, dtype=np.int64)), 0.0
+    letters = np.array([list(reversed(label)) for label, _ in terms])  # (T, logical)
+    row = np.arange(len(terms))  # which term each partial product belongs to
+    x = np.zeros(len(terms), dtype=np.uint64)
+    z = np.zeros(len(terms), dtype=np.uint64)
+    c = np.array([float(h) for _, h in terms])
+    dropped = 0.0
+    for logical in range(letters.shape[1]):
+        acting = letters[row, logical] != "I"
+        if not acting.any():
+            continue
+        m = np.asarray(qubit_observables[logical], dtype=float)
+        bit = np.uint64(int(circuit_qubit[logical]))
+        xa, za, ca, ra = x[acting], z[acting], c[acting], row[acting]
+        parts = [(x[~acting], z[~acting], c[~acting], row[~acting])]
+        for idx in range(4):
+            if m[idx] == 0.0:
+                continue
+            parts.append(
+                (
+                    xa | (np.uint64(idx & 1) << bit),
+                    za | (np.uint64(idx >> 1) << bit),
+                    ca * m[idx],
+                    ra,
+                )
+            )
+        x, z, c, row = (np.concatenate([p[k] for p in parts]) for k in range(4))
+        small = np.abs(c) < min_abs_coeff
+        if small.any():
+            dropped += float(np.abs(c[small]).sum())
+            keep = ~small
+            x, z, c, row = x[keep], z[keep], c[keep], row[keep]
+    return merge(PauliTerms(x, z, c, np.full(len(c), tag, dtype=np.int64))), dropped
+
+
+@dataclass(frozen=True)
+class PauliEnergy:
+    """Energy (Ha) of a grouped measurement by Pauli propagation, with its pieces."""
+
+    energy_ha: float
+    group_energy_ha: tuple[float, ...]
+    group_variance_ha2: tuple[float, ...]  # per shot, of each group's estimator
+    truncation_bound_ha: float  # on the energy (sum of the groups' bounds)
+    peak_strings: int
+
+
+def pauli_energy(
+    circuit: object,
+    noise_model: object | None,
+    groups: Sequence[tuple[str, Sequence[tuple[str, float]]]],
+    circuit_qubit: Sequence[int],
+    layer: BasisLayerSpec,
+    readout: Sequence[np.ndarray] | None,
+    rule: Truncation = EXACT,
+    constant_ha: float = 0.0,
+) -> PauliEnergy:
+    """Energy and per-shot variance of each measured group.
+
+    ``groups``: (basis label over logical qubits, [(term label, coefficient), ...]) with every
+    term qubit-wise compatible with its basis; ``readout[l]``: 2x2 assignment matrix of logical
+    qubit l (None: ideal). The variance of a group's single-shot estimator ``sum_t h_t o_t`` is
+    ``E[(sum h o)^2] - E[sum h o]^2``; each product ``o_t o_s`` of outcomes is the measured
+    observable on the qubits where exactly one of t, s acts, so both moments are propagated."""
+    width = int(circuit.num_qubits)  # type: ignore[attr-defined]
+    program = circuit_program(circuit, noise_model)
+    cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
+    cut = rule.min_abs_coeff
+    parts: list[PauliTerms] = []
+    lost = np.zeros(len(groups))
+    for g, (basis, terms) in enumerate(groups):
+        measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
+        layer_ns = layer_duration_ns(measured, layer)
+        observables = {
+            l: measured_qubit_observable(
+                cache.get(int(circuit_qubit[l]), ch, layer_ns),
+                None if readout is None else readout[l],
+            )
+            for l, ch in enumerate(reversed(basis))
+            if ch != "I"
+        }
+        # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
+        first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
+        second, _ = basis_observable(
+            _squared_terms(terms), observables, circuit_qubit, cut, 2 * g + 1
+        )
+        parts += [first, second]
+    result = propagate(PauliTerms.join(parts), program, rule)
+    values = np.zeros(2 * len(groups))
+    values[: len(result.values)] = result.values[: 2 * len(groups)]
+    means, moments = values[0::2], values[1::2]
+    bounds = np.zeros(2 * len(groups))
+    bounds[: len(result.bounds)] = result.bounds[: 2 * len(groups)]
+    return PauliEnergy(
+        float(constant_ha + means.sum()),
+        tuple(float(v) for v in means),
+        tuple(float(max(0.0, m2 - m1**2)) for m1, m2 in zip(means, moments, strict=True)),
+        float(bounds[0::2].sum() + lost.sum()),
+        result.peak_strings,
+    )
+
+
+def _squared_terms(terms: Sequence[tuple[str, float]]) -> list[tuple[str, float]]:
+    """``(sum_t h_t o_t)^2`` as outcome products: o_t o_s acts where exactly one of t, s does."""
+    out: dict[str, float] = {}
+    for lt, ht in terms:
+        for ls, hs in terms:
+            label = "".join(
+                "I" if (a == "I") == (b == "I") else (a if a != "I" else b)
+                for a, b in zip(lt, ls, strict=True)
+            )
+            out[label] = out.get(label, 0.0) + ht * hs
+    return list(out.items())
