@@ -216,13 +216,16 @@ def evolve_circuit(
 
 def quadrature_nodes(max_phase_rad: float) -> int:
     """Gauss-Hermite nodes so that E[exp(i x z)], z ~ N(0, 1), |x| <= ``max_phase_rad``, is
-    integrated to ``QUADRATURE_TOLERANCE``: the m-node rule is exact to degree 2m - 1, and the
+    integrated to ``QUADRATURE_TOLERANCE`` (more than ``MAX_NODES_PER_QUBIT``: refused by the
+    caller): the m-node rule is exact to degree 2m - 1, and the
     Taylor remainder is bounded by x^(2m) (2m-1)!! / (2m)! = x^(2m) / (2^m m!)."""
     x2 = max_phase_rad**2
-    m = 2
     log_tol = math.log(QUADRATURE_TOLERANCE)
-    while m * math.log(x2 / 2.0 + 1e-300) - math.log(math.factorial(m)) >= log_tol:
+    m = 2
+    log_fact = math.log(2.0)  # log(m!), kept incrementally
+    while m <= MAX_NODES_PER_QUBIT and m * math.log(x2 / 2.0 + 1e-300) - log_fact >= log_tol:
         m += 1
+        log_fact += math.log(m)
     return m
 
 
