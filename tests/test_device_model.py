@@ -25,7 +25,7 @@ from noiselab.device.profile import (
     scale_profile,
 )
 
-DEVICES = ("rustbucket-6", "cobaltgrid-12", "amberline-10", "tallowtrap-8")
+DEVICES = ("rustbucket-6", "cobaltgrid-12", "amberline-10", "tallowtrap-8", "mossline-6")
 SUBSETS = [None, *[(c,) for c in CHANNELS], CIRCUIT_CHANNELS, ("relaxation", "readout")]
 
 
@@ -54,6 +54,7 @@ def test_arrays_are_the_profiles_values(name: str) -> None:
         assert m.gate_error[i] == qp.gate_error
         assert (m.flip_0to1[i], m.flip_1to0[i]) == (qp.flip_0to1, qp.flip_1to0)
         assert m.over_rotation_fraction[i] == qp.over_rotation_fraction
+        assert m.detuning_std_khz[i] == qp.detuning_std_khz
     linked = [
         (i, j)
         for i, j in itertools.combinations(range(len(patch)), 2)
@@ -63,6 +64,8 @@ def test_arrays_are_the_profiles_values(name: str) -> None:
     for k, (i, j) in enumerate(linked):
         pp = prof.pair(patch[i], patch[j])
         assert m.pair_gate_error[k] == pp.gate_error and m.zz_angle_rad[k] == pp.zz_angle_rad
+        assert m.zz_rate_khz[k] == pp.zz_rate_khz
+        assert m.spectator_phase_rad[k] == pp.spectator_phase_rad
     assert m.two_qubit_ns == prof.durations.two_qubit_ns
     np.testing.assert_array_equal(m.readout_matrices(), readout_matrices(prof, patch))
     flips = {(i, j): c for i, j, c in readout_crosstalk(prof, patch)}

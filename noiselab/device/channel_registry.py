@@ -27,6 +27,9 @@ MAX_READOUT_ERROR = 0.5
 MAX_JOINT_FLIP = 0.5
 MAX_OVER_ROTATION = 0.5
 MAX_ZZ_ANGLE_RAD = math.pi
+# Always-on terms: 10 MHz is far beyond any usable coupler (common practice, no source).
+MAX_ZZ_RATE_KHZ = 1.0e4
+MAX_DETUNING_STD_KHZ = 1.0e4
 
 Section = Literal["qubit", "pair", "crosstalk"]
 Rule = Literal["rate", "signed", "time"]
@@ -118,6 +121,9 @@ CHANNEL_SPECS: Mapping[str, Channel] = MappingProxyType(
                 (
                     _q("over_rotation_fraction", "signed", MAX_OVER_ROTATION),
                     _p("zz_angle_rad", "zz_angle_rad", "signed", MAX_ZZ_ANGLE_RAD),
+                    _p("zz_rate_khz", "zz_rate_khz", "signed", MAX_ZZ_RATE_KHZ),
+                    _p("spectator_phase_rad", "spectator_phase_rad", "signed", MAX_ZZ_ANGLE_RAD),
+                    _q("detuning_std_khz", "rate", MAX_DETUNING_STD_KHZ),
                 ),
                 True,
             ),

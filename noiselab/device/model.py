@@ -46,11 +46,14 @@ class DeviceModel:
     flip_0to1: np.ndarray
     flip_1to0: np.ndarray
     over_rotation_fraction: np.ndarray
+    detuning_std_khz: np.ndarray
     # per linked pair within the patch (length m)
     pairs: np.ndarray  # (m, 2) circuit indices, i < j
     pair_gate_error: np.ndarray
     zz_angle_rad: np.ndarray
     joint_flip: np.ndarray
+    zz_rate_khz: np.ndarray
+    spectator_phase_rad: np.ndarray
 
     @property
     def num_qubits(self) -> int:
@@ -101,8 +104,11 @@ def resolve_device(profile: Any, patch: Sequence[int] | None = None) -> DeviceMo
         flip_0to1=_frozen([q.flip_0to1 for q in qs]),
         flip_1to0=_frozen([q.flip_1to0 for q in qs]),
         over_rotation_fraction=_frozen([q.over_rotation_fraction for q in qs]),
+        detuning_std_khz=_frozen([q.detuning_std_khz for q in qs]),
         pairs=_frozen(np.array(pairs, dtype=int).reshape(-1, 2), dtype=int),
         pair_gate_error=_frozen([p.gate_error for p in pps]),
         zz_angle_rad=_frozen([p.zz_angle_rad for p in pps]),
         joint_flip=_frozen([profile.joint_flip(patch_t[i], patch_t[j]) for i, j in pairs]),
+        zz_rate_khz=_frozen([p.zz_rate_khz for p in pps]),
+        spectator_phase_rad=_frozen([p.spectator_phase_rad for p in pps]),
     )

@@ -37,13 +37,14 @@ import numpy as np
 from qiskit import QuantumCircuit
 from qiskit.circuit import Delay
 from qiskit.circuit.library import RXGate, RZZGate
-from qiskit.quantum_info import Kraus, Operator, SuperOp, average_gate_fidelity
+from qiskit.quantum_info import PTM, Kraus, Operator, SuperOp, average_gate_fidelity
 from qiskit_aer.noise import NoiseModel, QuantumError, thermal_relaxation_error
 from qiskit_aer.noise.passes import LocalNoisePass
 
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
 from noiselab.device import thermal
 from noiselab.device.aer_adapter import add_noise_pass
+from noiselab.device.evolution import EvolutionSpec, evolution_spec
 from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
 
 _UNIT_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
@@ -178,11 +179,14 @@ def _is_noiseless(key: tuple) -> bool:
 def channel_from_noise(
     profile: DeviceProfile, noise: GateNoise, parts: Iterable[str] | None = None
 ) -> Any:
-    """qiskit-aer ``QuantumError`` (one Kraus instruction) for a :class:`GateNoise`."""
+    """qiskit-aer ``QuantumError`` (one Kraus instruction) for a :class:`GateNoise`; with
+    ``profile.twirled_two_qubit_gates`` a two-qubit gate's error is its Pauli-twirled part."""
     key = _noise_key(profile, noise, parts)
     if _is_noiseless(key):
         return _identity_error(len(noise.qubits))
-    error = QuantumError(Kraus(_noise_superop(*key)))
+    twirled = profile.twirled_two_qubit_gates and len(noise.qubits) == 2
+    chan = _twirled_superop(*key) if twirled else _noise_superop(*key)
+    error = QuantumError(Kraus(chan))
     # known not to be the identity (_is_noiseless): skip aer's ideal() test, which tries a
     # Clifford conversion and formats every Kraus matrix into an exception message (most of the
     # time of building a noise model); the instance attribute shadows the method
@@ -204,6 +208,18 @@ def gate_channel(
     checks.
     """
     return channel_from_noise(profile, gate_noise(profile, gate, qubits), parts)
+
+
+def pauli_twirl(channel: Any) -> Any:
+    """The average of P^dagger E(P . P^dagger) P over the Pauli group: the channel whose Pauli
+    transfer matrix is the diagonal of ``channel``'s (a ``SuperOp``; returns a ``SuperOp``)."""
+    ptm = PTM(channel).data
+    return SuperOp(PTM(np.diag(np.real(np.diag(ptm)))))
+
+
+@functools.lru_cache(maxsize=1024)
+def _twirled_superop(*key: Any) -> Any:
+    return pauli_twirl(_noise_superop(*key))
 
 
 def gate_infidelity(profile: DeviceProfile, gate: str, qubits: Sequence[int]) -> float:
@@ -297,6 +313,7 @@ class NoiseSpec:
     gates: tuple[GateRule, ...]
     idle_coherence: tuple[tuple[float | None, float | None], ...] | None
     dt_s: float | None = None
+    evolution: EvolutionSpec | None = None  # always-on terms, written into the circuit
 
 
 def noise_spec(
@@ -326,7 +343,12 @@ def noise_spec(
     coherence = tuple((profile.qubit(q).t1_us, profile.qubit(q).t2_us) for q in patch)
     idle = idle_relaxation and any(t != (None, None) for t in coherence)
     return NoiseSpec(
-        patch, profile.native_gate_names, tuple(rules), coherence if idle else None, dt_s
+        patch,
+        profile.native_gate_names,
+        tuple(rules),
+        coherence if idle else None,
+        dt_s,
+        evolution_spec(profile, patch),
     )
 
 

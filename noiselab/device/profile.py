@@ -22,12 +22,15 @@ A profile file looks like this (units are in the key names; rates are probabilit
         flip_0to1: 0.015                 # P(read 1 | prepared 0)
         flip_1to0: 0.03                  # P(read 0 | prepared 1)
         over_rotation_fraction: 0.0      # optional: sx/x rotate by (1 + f) x their angle
+        detuning_std_khz: 0.0            # optional: quasi-static frequency offset, std. (kHz)
       overrides:
         2: {t1_us: 60, t2_us: 45}
     couplers:
       default:
         gate_error: 8.0e-3               # average infidelity of the two-qubit gate
         zz_angle_rad: 0.0                # optional: residual exp(-i theta/2 ZZ) after each gate
+        zz_rate_khz: 0.0                 # optional: always-on ZZ (kHz), idles and other gates
+        spectator_phase_rad: 0.0         # optional: rz on each linked neighbour per gate
       overrides:
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
@@ -47,6 +50,15 @@ measured qubits this is C_ab = (1 - c) I + c F_ab, F_ab the permutation k -> k ^
 The full readout map is M = (prod over pairs of C_ab) @ (A_{n-1} x ... x A_0); the C_ab commute
 with each other. A joint flip keeps the parity Z_a Z_b, so a per-qubit (tensor-product)
 inversion, which sees it as an extra symmetric flip on each qubit, over-corrects correlations.
+
+Always-on terms (see :mod:`noiselab.device.evolution`): ``zz_rate_khz`` nu of a linked pair acts
+as exp(-i pi nu t Z x Z / 2) (conditional phase 2 pi nu t) during every idle window and every
+gate except the pair's own two-qubit gate, whose calibration absorbs it; ``detuning_std_khz``
+sigma is a frequency offset constant within a shot, Gaussian between shots (free decay
+exp(-(2 pi sigma t)^2 / 2) on top of T2, which stays the echo time); ``spectator_phase_rad``
+phi: each two-qubit gate of the pair applies rz(phi) to every other qubit linked to it.
+``twirled_two_qubit_gates`` (set by the ``twirl`` transform, not a device property) replaces each
+two-qubit gate's error by its Pauli-twirled part.
 
 Quoted gate errors are the stochastic part (relaxation during the gate included); coherent terms
 (ZZ angle, over-rotation) come on top of them.
@@ -91,12 +103,14 @@ from noiselab.device import thermal
 from noiselab.device.channel_registry import (
     CHANNEL_SPECS,
     CHANNELS,
+    MAX_DETUNING_STD_KHZ,
     MAX_JOINT_FLIP,
     MAX_OVER_ROTATION,
     MAX_READOUT_ERROR,
     MAX_SINGLE_QUBIT_ERROR,
     MAX_TWO_QUBIT_ERROR,
     MAX_ZZ_ANGLE_RAD,
+    MAX_ZZ_RATE_KHZ,
     check_channels,
 )
 from noiselab.device.model import DeviceModel, resolve_device
@@ -142,6 +156,9 @@ ReadoutRate = _num(0.0, MAX_READOUT_ERROR)
 JointFlip = _num(0.0, MAX_JOINT_FLIP)
 OverRotation = _num(-MAX_OVER_ROTATION, MAX_OVER_ROTATION)
 ZZAngle = _num(-MAX_ZZ_ANGLE_RAD, MAX_ZZ_ANGLE_RAD)
+ZZRate = _num(-MAX_ZZ_RATE_KHZ, MAX_ZZ_RATE_KHZ)
+DetuningStd = _num(0.0, MAX_DETUNING_STD_KHZ)
+SpectatorPhase = _num(-MAX_ZZ_ANGLE_RAD, MAX_ZZ_ANGLE_RAD)
 def _coherence_in_range(value: float, info: ValidationInfo) -> float:
     if (info.context or {}).get(_CTX_ALLOW_INFINITE):
         return value  # a scaled profile: any positive time (scaling is bounded where it is asked)
@@ -201,6 +218,7 @@ class QubitValues(BaseModel):
     flip_0to1: ReadoutRate
     flip_1to0: ReadoutRate
     over_rotation_fraction: OverRotation = 0.0
+    detuning_std_khz: DetuningStd = 0.0
 
     @field_validator("t1_us", "t2_us", mode="after")
     @classmethod
@@ -218,6 +236,7 @@ class QubitOverride(BaseModel):
     flip_0to1: ReadoutRate | None = None
     flip_1to0: ReadoutRate | None = None
     over_rotation_fraction: OverRotation | None = None
+    detuning_std_khz: DetuningStd | None = None
 
     @model_validator(mode="before")
     @classmethod
@@ -241,6 +260,8 @@ class PairValues(BaseModel):
     model_config = _CFG
     gate_error: Rate2Q
     zz_angle_rad: ZZAngle = 0.0
+    zz_rate_khz: ZZRate = 0.0
+    spectator_phase_rad: SpectatorPhase = 0.0
 
 
 class PairOverride(BaseModel):
@@ -248,6 +269,8 @@ class PairOverride(BaseModel):
     pair: Pair
     gate_error: Rate2Q | None = None
     zz_angle_rad: ZZAngle | None = None
+    zz_rate_khz: ZZRate | None = None
+    spectator_phase_rad: SpectatorPhase | None = None
 
 
 class PairSection(BaseModel):
@@ -309,6 +332,7 @@ class QubitParams:
     flip_0to1: float
     flip_1to0: float
     over_rotation_fraction: float
+    detuning_std_khz: float = 0.0
 
 
 @dataclass(frozen=True)
@@ -318,6 +342,8 @@ class PairParams:
     pair: tuple[int, int]
     gate_error: float
     zz_angle_rad: float
+    zz_rate_khz: float = 0.0
+    spectator_phase_rad: float = 0.0
 
 
 def _norm(a: int, b: int) -> tuple[int, int]:
@@ -338,6 +364,9 @@ class DeviceProfile(BaseModel):
     qubits: QubitSection
     couplers: PairSection
     readout_crosstalk: tuple[CrosstalkEntry, ...] = ()
+    #: set by the ``twirl`` transform (not a device property): two-qubit gate errors are
+    #: replaced by their Pauli-twirled part
+    twirled_two_qubit_gates: bool = False
     #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
     drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
     #: time between shots, reset included (us); None: the rehearse job's common-practice
@@ -468,7 +497,7 @@ class DeviceProfile(BaseModel):
                 values.update(
                     {
                         k: getattr(ov, k)
-                        for k in ("gate_error", "zz_angle_rad")
+                        for k in PairValues.model_fields
                         if k in ov.model_fields_set
                     }
                 )

@@ -1,5 +1,7 @@
 """Many simulations in one qiskit-aer call: many parameter sets of one parameterized circuit
 (:func:`emulate_parameter_sets`), or circuits under many profiles (:func:`emulate_written`).
+A profile with always-on terms (``device.evolution``) goes through ``emulate_bases`` one
+simulation at a time, which writes them into the circuit.
 
 A variational loop evaluates the same compiled circuit at many parameter sets. qiskit-aer runs a
 parameterized circuit at a list of parameter bindings in one call: the circuit is converted
@@ -26,6 +28,7 @@ from noiselab.device.aer_adapter import (
     run_noise_passes,
     superop_instruction,
 )
+from noiselab.device.evolution import evolution_spec
 from noiselab.emulate.channels import effect_cache_for
 from noiselab.emulate.contract import dm_distributions
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
@@ -102,7 +105,8 @@ def emulate_parameter_sets(
         return []
     k = circuit.num_qubits
     chosen, notice = choose_method(k, method, max_density_matrix_qubits=max_density_matrix_qubits)
-    if chosen != "density_matrix" or not circuit.parameters:
+    always_on = evolution_spec(profile, tuple(compiled.patch)) is not None
+    if chosen != "density_matrix" or not circuit.parameters or always_on:
         return [
             emulate_bases(
                 compiled.bind(v) if circuit.parameters else compiled,
@@ -165,6 +169,9 @@ def emulate_written(
     i's profile and patch). Density matrix only; equal to ``emulate_bases`` to rounding."""
     if not jobs:
         return []
+    if any(evolution_spec(p, tuple(c.patch)) is not None for c, p in jobs):
+        # always-on terms are written into each circuit by emulate_bases (device.evolution)
+        return [emulate_bases(c, p, bases, method="density_matrix") for c, p in jobs]
     prepared = []
     for i, (compiled, profile) in enumerate(jobs):
         circuit = compiled.circuit

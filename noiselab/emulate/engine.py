@@ -21,6 +21,7 @@ import numpy as np
 from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
+from noiselab.device.evolution import EvolutionSpec, evolution_ensemble, evolution_spec
 from noiselab.emulate.channels import (
     BasisLayerSpec,
     EffectCache,
@@ -154,6 +155,39 @@ def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
     return np.asarray(getattr(rho, "data", rho))
 
 
+#: circuits per qiskit-aer call when a state is a weighted average (quadrature of detuning)
+_MIXTURE_CHUNK = 32
+
+
+def simulate_mixture(
+    ensemble: Sequence[tuple[float, Any]], noise_model: Any
+) -> np.ndarray:
+    """sum_i w_i rho_i over weighted circuits (one circuit: :func:`simulate_density_matrix`)."""
+    if len(ensemble) == 1:
+        return simulate_density_matrix(ensemble[0][1], noise_model)
+    sim = AerSimulator(
+        method="density_matrix", noise_model=noise_model, max_parallel_threads=engine_threads()
+    )
+    total = None
+    for start in range(0, len(ensemble), _MIXTURE_CHUNK):
+        chunk = ensemble[start : start + _MIXTURE_CHUNK]
+        circs = []
+        for _, circ in chunk:
+            qc = circ.copy()
+            qc.save_density_matrix(label="rho")
+            circs.append(qc)
+        _ENGINE_CALLS[0] += 1
+        result = sim.run(circs, shots=1).result()
+        if not result.success:
+            raise RuntimeError(f"qiskit-aer density-matrix run failed: {result.status}")
+        for n, (w, _) in enumerate(chunk):
+            rho = result.data(n)["rho"]
+            part = w * np.asarray(getattr(rho, "data", rho))
+            total = part if total is None else total + part
+    assert total is not None
+    return total
+
+
 def basis_tables(
     bases: Sequence[str],
     qubits: Sequence[int],
@@ -229,12 +263,14 @@ def emulate_circuit_bases(
     num_batches: int = 16,
     seed: int | None = None,
     max_density_matrix_qubits: int | None = None,
+    evolution: EvolutionSpec | None = None,
 ) -> BasisDistributions:
     """Lower-level :func:`emulate_bases` on a circuit and a qiskit-aer noise model.
 
     ``logical_to_circuit[l]``: circuit qubit of logical qubit l (default: the identity over all
     circuit qubits). ``readout_matrices[l]`` / ``readout_crosstalk``: readout error in LOGICAL
     indices (``None``: no readout error). ``basis_noise=False`` makes the basis layer noiseless.
+    ``evolution``: the always-on terms (``device.evolution``), written into the circuit first.
     """
     check_circuit(circuit)
     k = circuit.num_qubits
@@ -250,12 +286,13 @@ def emulate_circuit_bases(
     cache = effect_cache_for(noise_model, k, layer, noisy=basis_noise)
     effects, keys = basis_tables(bases_t, qubits, cache)
     mats = list(readout_matrices) if readout_matrices is not None else [None] * n
+    ensemble = evolution_ensemble(circuit, evolution)
     if chosen == "density_matrix":
         calls0 = engine_call_count()
         # handed over in a list so the contraction can drop the only reference once it has its
         # own copy (one density matrix less at the peak)
         ideal = dm_distributions(
-            [simulate_density_matrix(circuit, noise_model)],
+            [simulate_mixture(ensemble, noise_model)],
             qubits,
             effects,
             keys,
@@ -281,7 +318,7 @@ def emulate_circuit_bases(
     )
     calls0 = engine_call_count()
     batches_ideal = trajectory_distributions(
-        circuit,
+        ensemble,
         noise_model,
         qubits,
         effects,
@@ -323,6 +360,12 @@ def emulate_flagged_bases(
     logical qubits (noisy basis layer and readout as in :func:`emulate_bases`) with flag s.
     """
     check_circuit(circuit)
+    if evolution_spec(profile, tuple(compiled.patch)) is not None:
+        raise InputError(
+            f"{getattr(profile, 'source', 'device')}: couplers/qubits: always-on terms "
+            "(zz_rate_khz, spectator_phase_rad, detuning_std_khz) are not modelled in flagged "
+            "circuits (error cancellation); allowed: a device without them for this pass"
+        )
     k = compiled.circuit.num_qubits
     if circuit.num_qubits != k + 1:
         raise ValueError("emulate_flagged_bases: the circuit needs exactly one qubit more")
@@ -402,5 +445,6 @@ def emulate_bases(
         num_batches=num_batches,
         seed=seed,
         max_density_matrix_qubits=max_density_matrix_qubits,
+        evolution=evolution_spec(profile, patch),
     )
 

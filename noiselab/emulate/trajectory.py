@@ -94,7 +94,10 @@ def trajectory_distributions(
     seed: int | None = None,
     counter: list[int] | None = None,
 ) -> np.ndarray:
-    """Batch-mean distributions ``(num_batches, n_bases, 2**n)`` before readout error."""
+    """Batch-mean distributions ``(num_batches, n_bases, 2**n)`` before readout error.
+
+    ``circuit``: one circuit, or weighted circuits ``((w, circuit), ...)`` whose weighted state
+    average is wanted (each batch runs every one of them; quadrature of static detuning)."""
     if num_batches < 2 or num_trajectories < num_batches:
         raise InputError(
             f"emulation: trajectories: {num_trajectories} trajectories in {num_batches} batches; "
@@ -102,14 +105,17 @@ def trajectory_distributions(
         )
     per_batch = num_trajectories // num_batches
     rotations = [[effect_rotation(e) for e in row] for row in effects]
-    noisy = unravelled_circuit(circuit, noise_model)
+    ensemble = ((1.0, circuit),) if isinstance(circuit, QuantumCircuit) else tuple(circuit)
+    noisy = [(w, unravelled_circuit(c, noise_model)) for w, c in ensemble]
     rng = np.random.default_rng(seed)
-    out = np.empty((num_batches, len(effects), 2 ** len(qubits)))
+    out = np.zeros((num_batches, len(effects), 2 ** len(qubits)))
     for b in range(num_batches):
         batch_seed = int(rng.integers(0, 2**31 - 1))
-        if counter is not None:
-            counter[0] += 1
-        psis = simulate_trajectories(noisy, per_batch, batch_seed)
-        out[b] = sv_batch_mean_distributions(psis, qubits, rotations, keys)
-        del psis
+        for w, circ in noisy:
+            if counter is not None:
+                counter[0] += 1
+            psis = simulate_trajectories(circ, per_batch, batch_seed)
+            part = sv_batch_mean_distributions(psis, qubits, rotations, keys)
+            out[b] = part if len(noisy) == 1 else out[b] + w * part
+            del psis
     return clean_probabilities(out, what="trajectory distribution")

@@ -82,7 +82,8 @@ class ParsedRecipe:
         return found[0] if found else None
 
     def variants(self, ctx: ExperimentContext) -> tuple[CircuitVariant, ...]:
-        """The circuit variants to run: the combination pass's, or the device as it is."""
+        """The circuit variants to run: the combination pass's, or the device as it is, each
+        with the suppression passes' transforms appended."""
         combiner = self.of_stage(STAGE_COMBINE)
         base = combiner.variants(ctx) if combiner else (CircuitVariant(),)
         extra = tuple(t for p in self.passes if p.stage != STAGE_COMBINE for t in p.transforms(ctx))

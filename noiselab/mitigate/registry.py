@@ -19,6 +19,7 @@ from noiselab.mitigate.passes.distillation import DistillationPass
 from noiselab.mitigate.passes.extrapolate import ExtrapolatePass
 from noiselab.mitigate.passes.postselect import PostselectPass
 from noiselab.mitigate.passes.readout import ReadoutPass
+from noiselab.mitigate.passes.suppress import DecouplePass, MeasureTwirlPass, TwirlPass
 
 PASSES: dict[str, type[MitigationPass]] = {}
 
@@ -53,6 +54,9 @@ def register_pass(cls: PassClass, *, replace: bool = False) -> PassClass:
 
 
 for _builtin in (
+    TwirlPass,
+    DecouplePass,
+    MeasureTwirlPass,
     ReadoutPass,
     PostselectPass,
     ExtrapolatePass,
