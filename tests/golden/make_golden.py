@@ -71,9 +71,14 @@ def strip_volatile(obj: Any) -> Any:
     return obj
 
 
+#: The shipped studies the golden files pin (those of the refactor they were made for; studies
+#: shipped later are pinned by their own tests, e.g. h2-idle-line by test_mitigate_suppression).
+GOLDEN_STUDIES = ("h2-equilibrium", "h2-stretched", "lih-active-space")
+
+
 def study_paths() -> list[Path]:
-    """The shipped studies, sorted by name."""
-    return sorted(STUDIES.glob("*.yaml"))
+    """The pinned shipped studies, sorted by name."""
+    return [STUDIES / f"{name}.yaml" for name in sorted(GOLDEN_STUDIES)]
 
 
 def compute_goldens(cache_dir: Path) -> dict[str, Any]:
