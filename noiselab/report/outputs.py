@@ -24,8 +24,12 @@ FIGURE_FORMATS = ("png", "svg", "pdf")
 
 def with_provenance(obj: dict[str, Any], provenance: dict[str, Any] | None) -> dict[str, Any]:
     """The job's JSON with its ``provenance`` block (kept out of ``to_json`` and the goldens:
-    date and machine change from run to run)."""
-    return obj if provenance is None else {**obj, "provenance": provenance}
+    the machine changes between machines). The block leaves out the time of writing
+    (``date_utc``; the report pages carry it), so that a resumed or repeated job writes the
+    same bytes as an uninterrupted one."""
+    if provenance is None:
+        return obj
+    return {**obj, "provenance": {k: v for k, v in provenance.items() if k != "date_utc"}}
 
 
 def _json_text(obj: Any) -> str:
