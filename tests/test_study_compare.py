@@ -11,7 +11,9 @@ from noiselab.cli.app import main
 from noiselab.common.shipped import shipped_files
 from noiselab.study.compare import compare
 
-SHIPPED = [p.stem for p in shipped_files("devices")]
+#: the shipped devices but mossline-6, whose quasi-static detuning on three qubits makes every
+#: demo simulation a quadrature of hundreds of circuits (minutes per device in the suite)
+SHIPPED = [p.stem for p in shipped_files("devices") if p.stem != "mossline-6"]
 
 
 @pytest.fixture(scope="module")
@@ -21,7 +23,7 @@ def result(tmp_path_factory: pytest.TempPathFactory):
 
 
 def test_compare_ranks_the_shipped_devices_by_p(result) -> None:
-    assert len(SHIPPED) == 5
+    assert len(SHIPPED) == 4
     assert sorted(r.device for r in result.rows) == sorted(SHIPPED)
     ps = [r.p_within_target for r in result.rows]
     assert ps == sorted(ps, reverse=True)

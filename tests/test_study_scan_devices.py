@@ -63,7 +63,7 @@ def curves(tmp_path_factory: pytest.TempPathFactory):
 
 @pytest.mark.slow
 def test_raw_errors_at_the_stretched_point_on_every_shipped_device(curves) -> None:
-    assert len(SHIPPED) == 4
+    assert {"amberline-10", "cobaltgrid-12", "rustbucket-6", "tallowtrap-8"} <= set(SHIPPED)
     gap = {r: _mixed_state_energy_ha(r) for r in (EQUILIBRIUM, STRETCHED)}
     for name, result in curves.items():
         eq, st = result.points

@@ -198,6 +198,8 @@ MEANINGS: dict[str, str] = {
     "extrapolate.scale_axis": "folding: fit against the realized or the nominal scale",
     "error_cancellation.idle": "include relaxation over scheduled delays in the learned model",
     "distillation.copy_noise": "emulate the noise of the copy-and-measure circuit (false: ideal)",
+    "twirl.gates": "which gates are Pauli-twirled (their errors replaced by the twirled part)",
+    "decouple.sequence": "dynamical-decoupling sequence inserted in idle windows (X-X or XY4)",
     "clifford_regression.noise_levels": "stretched-noise levels of the training fit "
     "([1]: plain regression)",
     "clifford_regression.choice_seed": "seed of which rotations the training circuits replace",
@@ -239,6 +241,13 @@ MEANINGS: dict[str, str] = {
     "over_rotation_fraction": "coherent over-rotation of single-qubit gates "
     "(fraction of the angle)",
     "zz_angle_rad": "residual ZZ phase after each two-qubit gate",
+    "zz_rate_khz": "always-on ZZ coupling rate of the pair, acting during idles and other gates",
+    "spectator_phase_rad": "phase each two-qubit gate of the pair puts on the other qubits linked "
+    "to it",
+    "detuning_std_khz": "quasi-static frequency offset (standard deviation; constant within a "
+    "shot, Gaussian between shots)",
+    "twirled_two_qubit_gates": "set by the twirl pass, not by hand: two-qubit gate errors "
+    "replaced by their Pauli-twirled part",
     "readout_crosstalk": "correlated readout errors of linked pairs",
     "readout_crosstalk[i].pair": "the linked pair [a, b]",
     "readout_crosstalk[i].joint_flip": "probability that both bits flip together",

@@ -42,6 +42,7 @@ from qiskit import QuantumCircuit
 from qiskit.quantum_info import Kraus
 
 from noiselab.common.errors import InputError, NoiselabError
+from noiselab.device.evolution import evolution_spec
 from noiselab.device.noise import delay_seconds, gate_channel, relaxation_error
 from noiselab.device.profile import VIRTUAL_GATES
 from noiselab.device.transforms import Applied, CircuitTransform, register_transform
@@ -291,6 +292,12 @@ class ErrorCancellationPass(MitigationPass):
         method, _ = choose_method(
             k, ctx.emulation_method, max_density_matrix_qubits=ctx.max_density_matrix_qubits
         )
+        if evolution_spec(ctx.profile, tuple(ctx.compiled.patch)) is not None:
+            raise InputError(
+                f"{where}.pass: error_cancellation does not model the device's always-on terms "
+                "(zz_rate_khz, spectator_phase_rad, detuning_std_khz) in its flagged circuits; "
+                "allowed: a device without them for this pass"
+            )
         if method != "density_matrix":
             raise InputError(
                 f"{where}.pass: error_cancellation needs the density-matrix method for {k} "

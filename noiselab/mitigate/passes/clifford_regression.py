@@ -260,6 +260,12 @@ class CliffordRegressionPass(MitigationPass):
     stage: ClassVar[int] = STAGE_COMBINE
     Options: ClassVar[type[PassOptions]] = CliffordRegressionOptions
     options: CliffordRegressionOptions
+    # the training circuits are substituted in the compiled circuit; suppression transforms on
+    # every variant would change the circuits the fit pairs up (not built yet)
+    incompatible: ClassVar[Mapping[str, str]] = {
+        name: "suppression transforms are not applied to the training circuits yet"
+        for name in ("twirl", "decouple", "measure_twirl")
+    }
 
     def describe(self) -> str:
         o = self.options
