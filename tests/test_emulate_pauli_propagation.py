@@ -26,6 +26,7 @@ from noiselab.emulate.pauli_propagation import (
     terms_from_labels,
     twirled_fidelities,
 )
+from tests.helpers.twirl import explicit_twirl, twirled_noise_model
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -154,16 +155,6 @@ def test_twirled_fidelities_closed_forms() -> None:
     assert f == pytest.approx([1.0, e2, e1, e2], abs=1e-12)  # I, X, Z, Y (index x + 2 z)
 
 
-def _twirl_superop(kraus: list[np.ndarray], k: int):
-    """The explicit twirl (1/4^k) sum_P P E(P rho P) P as Kraus operators (Wallman and Emerson
-    2016, eq. 2): every P K_j P / 2^k."""
-    out = []
-    for i in range(4**k):
-        p = pauli_matrix(i, k)
-        out += [p @ a @ p / 2**k for a in kraus]
-    return Kraus(out)
-
-
 def test_twirled_device_noise_equals_density_matrix_of_the_twirled_channels() -> None:
     # outside reference: qiskit.quantum_info.DensityMatrix evolved through the compiled circuit,
     # every gate's device channel and every idle relaxation replaced by its explicit Pauli twirl
@@ -185,13 +176,13 @@ def test_twirled_device_noise_equals_density_matrix_of_the_twirled_channels() ->
             continue
         if op.name == "quantum_channel":
             k = Kraus(instruction_error(op).to_quantumchannel())
-            rho = rho.evolve(_twirl_superop(k.data, len(qubits)), qubits)
+            rho = rho.evolve(explicit_twirl(k.data, len(qubits)), qubits)
             continue
         rho = rho.evolve(Operator(op), qubits)
         err = gate_error(nm, op.name, tuple(qubits))
         if err is not None:
             k = Kraus(err.to_quantumchannel())
-            rho = rho.evolve(_twirl_superop(k.data, len(qubits)), qubits)
+            rho = rho.evolve(explicit_twirl(k.data, len(qubits)), qubits)
     # the Hamiltonian on the circuit's qubits (logical l sits at circuit position l2c[l])
     h = ctx.qubit_problem.hamiltonian
     labels = []
@@ -232,26 +223,6 @@ def test_truncation_error_is_within_the_reported_bound() -> None:
         assert cut.peak_strings <= exact.peak_strings
 
 
-def _twirled_noise_model(profile, patch):
-    """qiskit-aer noise model whose every gate error is the explicit Pauli twirl of the device's
-    channel (no idle pass: the reference and the propagation then see the same noise)."""
-    from qiskit_aer.noise import NoiseModel, QuantumError
-
-    from noiselab.device.noise import channel_from_noise, noise_spec
-
-    spec = noise_spec(profile, patch, idle_relaxation=False)
-    model = NoiseModel(basis_gates=list(spec.native_gates))
-    for rule in spec.gates:
-        err = channel_from_noise(profile, rule.noise)
-        if err.ideal():
-            continue
-        kraus = Kraus(err.to_quantumchannel()).data
-        model.add_quantum_error(
-            QuantumError(_twirl_superop(kraus, len(rule.qubits))), rule.gate, list(rule.qubits)
-        )
-    return model
-
-
 def test_grouped_energy_and_variance_equal_the_density_matrix_engine() -> None:
     # outside reference: qiskit-aer's density-matrix simulation (through noiselab's engine, which
     # adds the basis layer and the per-qubit readout to aer's state) of the same twirled noise;
@@ -266,7 +237,7 @@ def test_grouped_energy_and_variance_equal_the_density_matrix_engine() -> None:
     study = load_study(ROOT / "configs" / "studies" / "h2-equilibrium.yaml")
     ctx = build_context(study)
     compiled, profile = ctx.compiled, study.profile
-    model = _twirled_noise_model(profile, compiled.patch)
+    model = twirled_noise_model(profile, compiled.patch)
     plan = build_plan(ctx.qubit_problem.hamiltonian)
     from noiselab.device.noise import readout_matrices
 

@@ -6,10 +6,11 @@ from pathlib import Path
 
 import numpy as np
 import pytest
-from qiskit.quantum_info import Kraus, SparsePauliOp
+from qiskit.quantum_info import SparsePauliOp
 from scipy.stats import norm
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
+from tests.helpers.twirl import twirled_noise_model
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -44,41 +45,6 @@ def _study(tmp_path: Path, recipes: str = RAW_AND_READOUT, cut: float = 0.0) -> 
     return path
 
 
-def _twirled_model(profile, patch):
-    """The device's gate channels, each replaced by its explicit Pauli twirl (no idle pass);
-    built with qiskit.quantum_info, independently of noiselab's twirled fidelities."""
-    from qiskit_aer.noise import NoiseModel, QuantumError
-
-    from noiselab.device.noise import channel_from_noise, noise_spec
-
-    spec = noise_spec(profile, patch, idle_relaxation=False)
-    model = NoiseModel(basis_gates=list(spec.native_gates))
-    for rule in spec.gates:
-        err = channel_from_noise(profile, rule.noise)
-        if err.ideal():
-            continue
-        kraus = Kraus(err.to_quantumchannel()).data
-        model.add_quantum_error(
-            QuantumError(_twirl(kraus, len(rule.qubits))), rule.gate, list(rule.qubits)
-        )
-    return model
-
-
-def _twirl(kraus, n):
-    # Pauli twirl: average of P E P over the n-qubit Paulis (Wallman and Emerson, PRA 94, 052325
-    # (2016)); the result is a Kraus channel of the twirled map
-    from qiskit.quantum_info import Pauli, SuperOp
-
-    sop = SuperOp(Kraus(list(kraus))).data
-    total = np.zeros_like(sop)
-    labels = ["".join(p) for p in np.array(np.meshgrid(*[list("IXYZ")] * n)).T.reshape(-1, n)]
-    for lab in labels:
-        u = Pauli(lab).to_matrix()
-        s = SuperOp(Kraus([u])).data
-        total += s @ sop @ s
-    return Kraus(SuperOp(total / len(labels)))
-
-
 def test_readout_corrected_moments_equal_the_density_matrix_engine(tmp_path: Path) -> None:
     # outside reference: qiskit-aer's density matrix (through noiselab's engine: basis layer and
     # per-qubit readout) of the same explicitly twirled noise; the per-qubit inverse applied to
@@ -95,7 +61,7 @@ def test_readout_corrected_moments_equal_the_density_matrix_engine(tmp_path: Pat
     ctx = build_context(load_study(_study(tmp_path)))
     compiled, profile, plan = ctx.compiled, ctx.study.profile, ctx.plan
     l2c = list(compiled.logical_to_circuit)
-    model = _twirled_model(profile, compiled.patch)
+    model = twirled_noise_model(profile, compiled.patch)
     mats, _ = logical_readout(profile, compiled.patch, l2c)
     layer = layer_spec_for(profile, compiled.circuit.num_qubits)
     cal = per_qubit_assignment(profile, compiled.patch, l2c)

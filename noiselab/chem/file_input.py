@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import hashlib
 from pathlib import Path
 from typing import Any
 
@@ -25,3 +26,17 @@ def only_key(data: Any, key: str, src: str, section: str) -> Any:
         shown = sorted(data) if isinstance(data, dict) else type(data).__name__
         raise input_error(src, section, f"got {quote(shown)}", f"{{{key}: FILE}}")
     return data[key]
+
+
+def read_unchanged(file: str, sha256: str, what: str, where: str) -> bytes:
+    """The bytes of an input file the study was validated with; refused in one line when the
+    file changed since (its SHA-256 is part of the cache keys)."""
+    raw = read_input_bytes(file, what=what, source=where)
+    if hashlib.sha256(raw).hexdigest() != sha256:
+        raise input_error(
+            where,
+            None,
+            "the file changed after the study was read",
+            "an unchanged file (run again)",
+        )
+    return raw

@@ -33,9 +33,8 @@ from qiskit.quantum_info import SparsePauliOp, Statevector
 
 from noiselab.chem.encode import QubitProblem
 from noiselab.chem.exact import MAX_EXACT_QUBITS, sector_ground_energy
-from noiselab.chem.file_input import only_key, resolve_file
+from noiselab.chem.file_input import only_key, read_unchanged, resolve_file
 from noiselab.common.errors import input_error, quote
-from noiselab.common.reading import read_input_bytes
 
 OPERATOR_FORMAT = "noiselab-qubit-operator-1"
 #: QubitProblem.encoding of a problem read from a qubit-operator file
@@ -133,14 +132,7 @@ def operator_source(data: Any, base: Path, src: str) -> OperatorSource:
 def operator_problem(source: OperatorSource) -> QubitProblem:
     """The :class:`QubitProblem` of a qubit-operator file (encoding ``qubit_operator``)."""
     where = f"hamiltonian.file: {source.file}"
-    raw = read_input_bytes(source.file, what="qubit-operator file", source=where)
-    if hashlib.sha256(raw).hexdigest() != source.sha256:
-        raise input_error(
-            where,
-            None,
-            "the file changed after the study was read",
-            "an unchanged file (run again)",
-        )
+    raw = read_unchanged(source.file, source.sha256, "qubit-operator file", where)
     return _operator_problem(raw, where)
 
 

@@ -30,7 +30,7 @@ from pyscf import ao2mo, fci
 from pyscf.tools import fcidump as pyscf_fcidump
 
 from noiselab.chem.encode import QubitProblem, encode
-from noiselab.chem.file_input import only_key, resolve_file
+from noiselab.chem.file_input import only_key, read_unchanged, resolve_file
 from noiselab.chem.molecule import (
     MAX_ATOMS,
     MAX_DETERMINANTS,
@@ -42,7 +42,6 @@ from noiselab.chem.molecule import (
 )
 from noiselab.chem.operator_file import OperatorSource, operator_problem
 from noiselab.common.errors import InputError, ProblemTooLargeError, input_error, quote
-from noiselab.common.reading import read_input_bytes
 
 #: Spatial orbitals an FCIDUMP may have (40 qubits under Jordan-Wigner, the encoder's limit).
 MAX_FCIDUMP_ORBITALS = 20
@@ -164,14 +163,7 @@ def _parse_fcidump(raw: bytes, where: str) -> dict[str, Any]:
 def fcidump_problem(source: FcidumpSource) -> ElectronicProblem:
     """Integrals of the FCIDUMP file, FCI in its (N_alpha, N_beta) sector, the HF determinant."""
     where = f"integrals.fcidump: {source.file}"
-    raw = read_input_bytes(source.file, what="FCIDUMP file", source=where)
-    if hashlib.sha256(raw).hexdigest() != source.sha256:
-        raise input_error(
-            where,
-            None,
-            "the file changed after the study was read",
-            "an unchanged file (run again)",
-        )
+    raw = read_unchanged(source.file, source.sha256, "FCIDUMP file", where)
     d = _parse_fcidump(raw, where)
     n, na, nb = source.n_orb, source.n_alpha, source.n_beta
     n_det = math.comb(n, na) * math.comb(n, nb)
