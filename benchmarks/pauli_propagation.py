@@ -278,6 +278,67 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
     }
 
 
+STUDY_20 = HERE / "studies" / "hchain-20-pauli.yaml"
+
+
+def assess_end_to_end(study: Path = STUDY_20) -> dict:
+    """``assess`` of the 20-qubit study in a child process (OMP_NUM_THREADS=1, no cache): wall
+    time, peak resident memory (VmHWM) and the result; the load average before and after is
+    recorded (the machine may be shared)."""
+    import os
+    import subprocess
+
+    code = (
+        "import json, sys, time\n"
+        f"sys.path[:0] = [{str(HERE)!r}, {str(HERE.parent)!r}]\n"
+        "from memory_child import peak_rss_bytes\n"
+        "from noiselab.study.assess import assess\n"
+        "t = time.perf_counter()\n"
+        f"r = assess({str(study)!r}, cache=False)\n"
+        "wall = time.perf_counter() - t\n"
+        "print(json.dumps({'wall_s': wall, 'maxrss_bytes': peak_rss_bytes(), "
+        "'result': r.to_json()}))\n"
+    )
+    env = {**os.environ, "OMP_NUM_THREADS": "1", "PYTHONPATH": str(HERE.parent)}
+    load_before = os.getloadavg()
+    done = subprocess.run(
+        [sys.executable, "-c", code], env=env, capture_output=True, text=True, check=False
+    )
+    load_after = os.getloadavg()
+    if done.returncode != 0:
+        print(done.stderr[-2000:], flush=True)
+        return {"failed": done.returncode, "stderr": done.stderr[-2000:]}
+    out = json.loads(done.stdout.strip().splitlines()[-1])
+    res = out["result"]
+    rows = {
+        name: {
+            k: r.get(k)
+            for k in ("energy", "bias_exact_mha", "std_mha", "p_within_target", "details")
+        }
+        for name, r in res["recipes"].items()
+    }
+    print(
+        f"  assess {study.name}: {out['wall_s']:.0f} s, peak {out['maxrss_bytes'] / 2**30:.2f} "
+        f"GiB, method {res.get('emulation_method')}, load {load_before[0]:.1f} -> "
+        f"{load_after[0]:.1f}; "
+        + "; ".join(
+            f"{k}: bias {v['bias_exact_mha']:+.2f} mHa, bound "
+            f"{(v['details'] or {}).get('truncation_bound_mha', float('nan')):.3g} mHa"
+            for k, v in rows.items()
+        ),
+        flush=True,
+    )
+    return {
+        "study": study.name,
+        "wall_s": out["wall_s"],
+        "peak_rss_gib": out["maxrss_bytes"] / 2**30,
+        "loadavg_before": load_before,
+        "loadavg_after": load_after,
+        "cpu_count": os.cpu_count(),
+        "result": res,
+    }
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true")
@@ -287,7 +348,20 @@ def main() -> int:
         default=None,
         help="groups of the 20-qubit study slice (default: all; --quick: 2)",
     )
+    ap.add_argument(
+        "--assess-only",
+        action="store_true",
+        help="only part 4: assess of the 20-qubit study end to end (time, memory, result)",
+    )
     args = ap.parse_args()
+    if args.assess_only:
+        print("20-qubit study end to end (assess, child process, no cache):")
+        got = {"date": dt.datetime.now(dt.UTC).isoformat(timespec="seconds")}
+        got["assess_20"] = assess_end_to_end()
+        path = HERE / "results" / f"pauli-assess20-{dt.date.today().isoformat()}.json"
+        path.write_text(json.dumps(got, indent=1) + "\n")
+        print(f"results: {path}")
+        return 0
     out = {
         "date": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
         "agreement": [],
@@ -309,6 +383,9 @@ def main() -> int:
         / "results"
         / f"pauli-{dt.date.today().isoformat()}{'-quick' if args.quick else ''}.json"
     )
+    if not args.quick:
+        print("20-qubit study end to end (assess, child process, no cache):")
+        out["assess_20"] = assess_end_to_end()
     path.write_text(json.dumps(out, indent=1) + "\n")
     print(f"results: {path}")
     return 0

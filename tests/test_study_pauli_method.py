@@ -186,3 +186,41 @@ def test_jobs_other_than_assess_are_refused_in_one_line(tmp_path: Path) -> None:
             job(path, cache=False)
         text = str(info.value)
         assert "\n" not in text and str(path) in text and "assess only" in text
+
+
+def test_auto_chooses_pauli_propagation_past_the_density_matrix_and_says_why(
+    tmp_path: Path,
+) -> None:
+    from noiselab.study.assess import assess
+
+    text = _study(tmp_path).read_text().replace(
+        "  method: pauli_propagation\n", "  method: auto\n  max_density_matrix_qubits: 3\n"
+    )
+    path = tmp_path / "h2-auto.yaml"
+    path.write_text(text)
+    result = assess(path, cache=False)
+    assert result.emulation_method == "pauli_propagation"
+    notice = result.emulation_notice
+    assert notice.startswith("emulation.method auto:") and "density-matrix limit" in notice
+    assert "Pauli-twirled" in notice
+    # the same study asked explicitly gives the same numbers (the auto path changes nothing)
+    explicit = assess(_study(tmp_path), cache=False)
+    assert result.recipes["raw"].energy_ha == explicit.recipes["raw"].energy_ha
+    # within the density-matrix limit auto keeps the density matrix
+    inside = tmp_path / "h2-auto-inside.yaml"
+    inside.write_text(text.replace("max_density_matrix_qubits: 3", "max_density_matrix_qubits: 8"))
+    assert assess(inside, cache=False).emulation_method == "density_matrix"
+
+
+def test_auto_with_distribution_recipes_that_fit_nowhere_names_the_alternatives(
+    monkeypatch: pytest.MonkeyPatch,
+) -> None:
+    from noiselab.emulate.memory import MEMORY_LIMIT_ENV
+    from noiselab.study.assess import assess, demo_study_path
+
+    monkeypatch.setenv(MEMORY_LIMIT_ENV, "1000")  # bytes: neither method fits
+    with pytest.raises(ProblemTooLargeError) as info:
+        assess(demo_study_path(), cache=False, method="auto")
+    text = str(info.value)
+    assert "\n" not in text and "trajector" in text and "pauli_propagation" in text
+    assert info.value.exit_code == 2

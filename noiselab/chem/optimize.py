@@ -1,7 +1,9 @@
 """Noiseless variational optimization of a trial circuit (energies in Hartree).
 
 Energies come from the compiled statevector of :mod:`noiselab.chem.statevector`; gradients are
-exact (adjoint differentiation), so quasi-Newton methods (BFGS, L-BFGS-B) converge tightly.
+exact (adjoint differentiation), so quasi-Newton methods (BFGS, L-BFGS-B) converge tightly. The
+Hamiltonian is a sparse matrix (:func:`noiselab.chem.pauli_sparse.operator_matrix`: qiskit's
+below 17 qubits, else built block by block from the X-masks, real values: ~4 GiB at 20 qubits).
 
 Starts: start 0 is all parameters zero (the Hartree-Fock state for :func:`uccsd_circuit`, and
 for :func:`layered_circuit` started from ``hf_bitstring``), or ``initial`` when given; starts
@@ -33,6 +35,7 @@ from scipy.optimize import minimize
 
 from noiselab.chem.encode import QubitProblem
 from noiselab.chem.fermion import ENCODINGS
+from noiselab.chem.pauli_sparse import operator_matrix
 from noiselab.chem.spin import spin_squared_op
 from noiselab.chem.statevector import compile_statevector
 from noiselab.common.errors import InputError
@@ -110,7 +113,7 @@ def optimize_noiseless(
         )
     t0 = time.perf_counter()
     program = compile_statevector(circuit)
-    hmat = qubit_problem.hamiltonian.to_matrix(sparse=True).tocsr()
+    hmat = operator_matrix(qubit_problem.hamiltonian)
     n_par = program.num_parameters
     rng = np.random.default_rng(seed)
     exact = float(qubit_problem.exact_energy_ha)
@@ -157,8 +160,9 @@ def optimize_noiseless(
     x, e, ok = min(runs, key=lambda r: r[1])
     x.setflags(write=False)
     low = sorted(energies)
+    hmat = None  # freed before the spin operator's matrix is built (20 qubits: GiB each)
     s2 = (  # a qubit-operator file (no fermionic encoding) has no spin operator
-        program.expectation(spin_squared_op(qubit_problem).to_matrix(sparse=True), x)
+        program.expectation(operator_matrix(spin_squared_op(qubit_problem)), x)
         if qubit_problem.encoding in ENCODINGS
         else None
     )
@@ -229,4 +233,4 @@ def noiseless_energy(
 ) -> float:
     """<psi|H|psi> (Hartree) of the circuit at ``parameters`` (``circuit.parameters`` order)."""
     program = compile_statevector(circuit)
-    return program.expectation(qubit_problem.hamiltonian.to_matrix(sparse=True), parameters)
+    return program.expectation(operator_matrix(qubit_problem.hamiltonian), parameters)

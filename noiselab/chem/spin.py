@@ -16,6 +16,7 @@ from qiskit.quantum_info import SparsePauliOp
 
 from noiselab.chem.encode import QubitProblem, encode_fermion_operator
 from noiselab.chem.exact import _DENSE_LIMIT, sector_indices
+from noiselab.chem.pauli_sparse import MASK_BUILD_FROM_QUBITS, pauli_sparse
 
 #: Two sector eigenvalues closer than this (Ha) count as one degenerate ground level.
 DEGENERACY_HA = 1e-8
@@ -49,8 +50,8 @@ def exact_spin_squared(qubit_problem: QubitProblem) -> float:
     degenerate space and its smallest value is returned (the lowest-spin exact ground state).
     """
     idx = sector_indices(qubit_problem)
-    h = qubit_problem.hamiltonian.to_matrix(sparse=True).tocsr()[idx][:, idx]
-    s2 = spin_squared_op(qubit_problem).to_matrix(sparse=True).tocsr()[idx][:, idx]
+    h = _sector_block(qubit_problem.hamiltonian, idx)
+    s2 = _sector_block(spin_squared_op(qubit_problem), idx)
     if len(idx) <= _DENSE_LIMIT:
         vals, vecs = np.linalg.eigh(h.toarray())
     else:
@@ -61,3 +62,11 @@ def exact_spin_squared(qubit_problem: QubitProblem) -> float:
     ground = vecs[:, np.abs(vals - vals[0]) < DEGENERACY_HA]
     block = ground.conj().T @ (s2 @ ground)
     return float(np.linalg.eigvalsh(0.5 * (block + block.conj().T))[0])
+
+
+def _sector_block(op: SparsePauliOp, idx: np.ndarray) -> object:
+    """Sparse block of ``op`` on the sector's basis states ``idx`` (sorted); from
+    ``MASK_BUILD_FROM_QUBITS`` qubits on built on those rows only (no full matrix)."""
+    if op.num_qubits < MASK_BUILD_FROM_QUBITS:
+        return op.to_matrix(sparse=True).tocsr()[idx][:, idx]
+    return pauli_sparse(op, rows=np.asarray(idx, dtype=np.int64)).matrix

@@ -119,10 +119,50 @@ def _split_constant(op: SparsePauliOp, what: str) -> tuple[float, SparsePauliOp 
     return constant, SparsePauliOp([labels[i] for i in keep], coeffs[keep])
 
 
-def _groups_from(op: SparsePauliOp, dense: bool = True) -> list[MeasurementGroup]:
+#: How terms are split into qubit-wise commuting groups: qiskit's graph colouring (default), or
+#: sorted insertion (terms by decreasing |coefficient|, each into the first group it commutes
+#: with qubit-wise; Crawford et al., Quantum 5, 385 (2021)), vectorized over bit arrays:
+#: well under a second at 20 qubits where the colouring takes ~40 s.
+GROUPINGS = ("coloring", "sorted_insertion")
+
+
+def sorted_insertion(op: SparsePauliOp) -> list[list[int]]:
+    """Term indices per qubit-wise commuting group, by sorted insertion (see ``GROUPINGS``)."""
+    x = np.packbits(op.paulis.x, axis=1)
+    z = np.packbits(op.paulis.z, axis=1)
+    support = x | z
+    order = np.argsort(-np.abs(np.asarray(op.coeffs)), kind="stable")
+    gx = np.zeros((len(order), x.shape[1]), dtype=np.uint8)
+    gz, gs = gx.copy(), gx.copy()
+    members: list[list[int]] = []
+    for t in order.tolist():
+        k = len(members)
+        clash = (((gx[:k] ^ x[t]) | (gz[:k] ^ z[t])) & gs[:k] & support[t]).any(axis=1)
+        free = np.flatnonzero(~clash)
+        g = int(free[0]) if free.size else k
+        if g == k:
+            members.append([])
+        members[g].append(t)
+        gx[g] |= x[t]
+        gz[g] |= z[t]
+        gs[g] |= support[t]
+    return members
+
+
+def _parts(op: SparsePauliOp, grouping: str) -> list[SparsePauliOp]:
+    if grouping == "coloring":
+        return list(op.group_commuting(qubit_wise=True))
+    if grouping == "sorted_insertion":
+        return [op[idx] for idx in sorted_insertion(op)]
+    raise InputError(f"grouping: {grouping!r}; allowed: {', '.join(GROUPINGS)}")
+
+
+def _groups_from(
+    op: SparsePauliOp, dense: bool = True, grouping: str = "coloring"
+) -> list[MeasurementGroup]:
     n = op.num_qubits
     groups = []
-    for part in op.group_commuting(qubit_wise=True):
+    for part in _parts(op, grouping):
         labels = tuple(part.paulis.to_labels())
         coeffs = part.coeffs.real.astype(float)
         groups.append(
@@ -148,11 +188,14 @@ def _groups_from(op: SparsePauliOp, dense: bool = True) -> list[MeasurementGroup
     return list(merged.values())
 
 
-def build_plan(op: SparsePauliOp, what: str = "hamiltonian", dense: bool = True) -> MeasurementPlan:
+def build_plan(
+    op: SparsePauliOp, what: str = "hamiltonian", dense: bool = True, grouping: str = "coloring"
+) -> MeasurementPlan:
     """Measurement plan of a Hermitian Pauli sum (coefficients in Ha); ``dense=False`` leaves
-    every group's 2**n weight vector to be computed on first use."""
+    every group's 2**n weight vector to be computed on first use; ``grouping``: see
+    ``GROUPINGS``."""
     constant, rest = _split_constant(op, what)
-    groups = _groups_from(rest, dense) if rest is not None else []
+    groups = _groups_from(rest, dense, grouping) if rest is not None else []
     return MeasurementPlan(num_qubits=op.num_qubits, constant=constant, groups=tuple(groups))
 
 

@@ -42,7 +42,7 @@ from noiselab.study.job import (
 )
 from noiselab.study.pauli_assess import METHOD as PAULI_METHOD
 from noiselab.study.pauli_assess import NOTICE as PAULI_NOTICE
-from noiselab.study.pauli_assess import pauli_recipes
+from noiselab.study.pauli_assess import auto_method, pauli_recipes
 from noiselab.study.results import AssessResult, RunStats, best_of, csv_text, verdict_line
 from noiselab.study.spec import Study
 
@@ -134,6 +134,7 @@ def assess(
         pauli_ok=True,
     )
     study, store, t0 = job.study, job.store, job.t0
+    study, auto_reason = auto_method(study)
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = override_key_options(study, seed, shots, method, trajectories)
@@ -148,7 +149,7 @@ def assess(
     else:  # measures the verification bases exactly when a recipe verifies
         ctx = build_context(study, cache=store, progress=progress)
     if ctx.emulation_method == PAULI_METHOD:
-        result = _assess_pauli(study, ctx, drift, t0)
+        result = _assess_pauli(study, ctx, drift, t0, auto_reason)
         save_job_result(store, key, result)
         return result
     check_recipes(ctx, study.recipes)
@@ -191,8 +192,11 @@ def assess(
     return result
 
 
-def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> AssessResult:
-    """assess under ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess)."""
+def _assess_pauli(
+    study: Study, ctx: StudyContext, drift: int, t0: float, auto_reason: str | None = None
+) -> AssessResult:
+    """assess under ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess);
+    ``auto_reason``: why ``auto`` chose it (first in the notice)."""
     if drift:
         raise InputError(f"--drift: not available with {PAULI_METHOD}; allowed: 0")
     with naming_source(study.source):
@@ -211,6 +215,8 @@ def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> Ass
         f"{name} {r.details['truncation_bound_mha']:.3g} mHa" for name, r in results.items()
     )
     notice = f"{PAULI_NOTICE}; truncation bound: {bounds}"
+    if auto_reason:
+        notice = f"{auto_reason}. {notice}"
     if any("calibration_note" in r.details for r in results.values()):
         notice += (
             "; the readout recipes' std leaves out the finite calibration's variance "

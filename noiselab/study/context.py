@@ -263,7 +263,11 @@ def _build_context(
         raise
     compiled = ensemble.chosen
     # Pauli propagation reads terms, never the 2**n weight vectors (built lazily if asked)
-    plan = build_plan(qp.hamiltonian, dense=study.emulation.method != "pauli_propagation")
+    # (and ~1500 groups at 20 qubits: sorted insertion, not the ~40 s colouring)
+    pauli = study.emulation.method == "pauli_propagation"
+    plan = build_plan(
+        qp.hamiltonian, dense=not pauli, grouping="sorted_insertion" if pauli else "coloring"
+    )
     seconds["compile"] = time.perf_counter() - t
     tick(3)
     experiment = make_experiment(study, qp, compiled, plan, optimum, verification)

@@ -9,6 +9,10 @@ calibration assigns each outcome of logical qubit l the value ``A_l^-T (1, -1)``
 single-qubit observable), with ``A_l`` the exact per-qubit matrix of the all-0 / all-1
 calibration circuits; the finite calibration's extra variance is left out and the recipe's
 details say so. Recipes that need distributions (other passes) are refused in one line.
+
+:func:`auto_method` resolves assess's ``emulation.method: auto``: the density matrix while it
+fits the memory guard, then this method when every recipe is one it serves (with the reason,
+for the output); other recipes keep the trajectory method's place.
 """
 
 from __future__ import annotations
@@ -22,6 +26,7 @@ import numpy as np
 from noiselab.common.errors import InputError
 from noiselab.emulate.calibration import per_qubit_assignment
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
+from noiselab.emulate.engine import choose_method
 from noiselab.emulate.pauli_circuit import PauliEnergy, pauli_energy
 from noiselab.emulate.pauli_propagation import Truncation
 from noiselab.mitigate.plan import allocate_shots
@@ -58,6 +63,29 @@ def recipe_kinds(source: str, recipes: Mapping[str, Sequence[Mapping[str, Any]]]
             )
         out[name] = parsed.passes[0] if parsed.passes else None
     return out
+
+
+def auto_method(study: Any) -> tuple[Any, str | None]:
+    """(study, reason): ``study`` with ``emulation.method: pauli_propagation`` and the reason
+    when its method is ``auto``, the density matrix does not fit and the recipes need no
+    distributions; else the study unchanged and None."""
+    e = study.emulation
+    if e.method != "auto":
+        return study, None
+    q = len(study.layout) if study.layout is not None else int(study.num_qubits)
+    method, why = choose_method(q, "auto", max_density_matrix_qubits=e.max_density_matrix_qubits)
+    if method == "density_matrix":
+        return study, None
+    try:
+        recipe_kinds(str(study.source), study.recipes)
+    except InputError:
+        return study, None  # trajectories (their own memory guard decides)
+    head = (why or f"{q} qubits: the density matrix does not fit").split("; using")[0]
+    reason = (
+        f"emulation.method auto: {head}; using {METHOD} (every recipe is raw or per-qubit "
+        "readout correction, which need no outcome distributions)"
+    )
+    return study.with_emulation(method=METHOD), reason
 
 
 def _groups(plan: Any) -> list[tuple[str, list[tuple[str, float]]]]:

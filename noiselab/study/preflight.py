@@ -15,7 +15,15 @@ The estimates are upper bounds from counting, not measurements:
 * Hamiltonian: a number-conserving two-body Hamiltonian on n spin orbitals has X-masks of
   weight 0, 2 or 4 only (every encoding maps them linearly, so the count is the same), so its
   sparse matrix has at most ``2**q * (1 + C(n,2) + C(n,4))`` non-zeros (capped at ``4**q``),
-  24 bytes each (complex value and index), twice while it is built;
+  24 bytes each (complex value and index), twice while it is built; from
+  ``MASK_BUILD_FROM_QUBITS`` qubits on the matrix is built block by block with real values
+  (:mod:`noiselab.chem.pauli_sparse`, 12 bytes a non-zero, stored once) and a spin- and
+  number-conserving Hamiltonian has per row on average (all 2**n occupations) at most
+  ``1 + C(m,2) + 2 C(m,4) 6/16 + C(m,2)**2 / 4`` non-zeros (m spatial orbitals: the diagonal,
+  same-spin hops, same-spin and opposite-spin double hops, each with the share of occupations
+  it connects), at most the largest row count (occupations half filled) times ``2**q`` when
+  qubits were dropped; a molecule with point-group symmetry has fewer (linear H10: 360 a row
+  against the bound's 710);
 * statevector program: one permutation (int64) and one phase (complex128) vector of ``2**q``
   entries per Pauli rotation (UCCSD: 2 per single, 8 per double excitation; layered: 2 per
   qubit and layer), plus a few statevectors;
@@ -29,6 +37,7 @@ from dataclasses import dataclass
 from math import comb
 from typing import Any
 
+from noiselab.chem.pauli_sparse import MASK_BUILD_FROM_QUBITS
 from noiselab.chem.sources import source_sizes
 from noiselab.common.errors import ProblemTooLargeError, input_error
 from noiselab.common.memory import GIB, memory_budget
@@ -39,6 +48,8 @@ FCI_VECTORS = 40
 SPARSE_BYTES = 2 * 24
 #: Bytes per statevector entry of one compiled Pauli rotation (int64 permutation + phase).
 ROTATION_BYTES = 8 + 16
+#: Bytes per non-zero of the block-built real matrix (float64 value + int32 index).
+MASKED_BYTES = 12
 #: Statevectors alive during an adjoint-gradient sweep (and its temporaries).
 STATEVECTORS = 8
 
@@ -81,6 +92,9 @@ def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEst
     ]
     masks = 1 + comb(n_spin, 2) + comb(n_spin, 4)
     nnz = min(4**q, 2**q * masks)
+    matrix_bytes = SPARSE_BYTES * nnz
+    if q >= MASK_BUILD_FROM_QUBITS:
+        nnz, matrix_bytes = _masked_build(sizes, q, masks)
     if getattr(ansatz, "kind", "uccsd") == "layered":
         rotations = 2 * q * (int(ansatz.layers) + 1)
     elif getattr(ansatz, "kind", "uccsd") == "circuit":
@@ -93,12 +107,28 @@ def estimate_steps(molecule: Any, ansatz: Any, num_qubits: int) -> tuple[StepEst
         StepEstimate(
             "noiseless optimizer",
             "ansatz",
-            SPARSE_BYTES * nnz + (ROTATION_BYTES * rotations + 16 * STATEVECTORS) * 2**q,
+            matrix_bytes + (ROTATION_BYTES * rotations + 16 * STATEVECTORS) * 2**q,
             f"{q} qubits, {rotations} Pauli rotations, Hamiltonian with up to {nnz:.3g} non-zeros",
             "a smaller active space (fewer qubits) or a shorter ansatz",
         )
     )
     return tuple(out)
+
+
+def _masked_build(sizes: Any, q: int, masks: int) -> tuple[int, int]:
+    """(non-zeros, bytes) of the Hamiltonian built by :mod:`noiselab.chem.pauli_sparse`."""
+    m = sizes.n_orb
+    if sizes.n_alpha + sizes.n_beta == 0:  # a qubit-operator file: no structure known
+        nnz = min(4**q, 2**q * masks)
+        return nnz, nnz * (16 + 4) + 8 * 2**q
+    if q == 2 * m:
+        per_row = 1 + comb(m, 2) + 2 * comb(m, 4) * 6 / 16 + comb(m, 2) ** 2 / 4
+    else:  # qubits dropped: rows of one parity, at most the largest row count each
+        k = m // 2
+        hops = k * (m - k)
+        per_row = 1 + 2 * hops + 2 * comb(k, 2) * comb(m - k, 2) + hops**2
+    nnz = min(4**q, int(2**q * per_row))
+    return nnz, nnz * MASKED_BYTES + 8 * 2**q
 
 
 def check_sizes(source: str, molecule: Any, ansatz: Any, num_qubits: int, emulation: Any) -> None:
@@ -180,7 +210,13 @@ def emulation_method(
                 num_batches=e.batches,
             )
     except ProblemTooLargeError as exc:
-        raise ProblemTooLargeError(f"{source}: {exc.message}") from None
+        also = (  # auto past the density matrix with recipes that need distributions
+            "; or, for assess, emulation.method pauli_propagation with recipes raw [] and "
+            "{pass: readout, method: per_qubit_inverse} (no distributions)"
+            if e.method == "auto"
+            else ""
+        )
+        raise ProblemTooLargeError(f"{source}: {exc.message}{also}") from None
     return method, notice
 
 
