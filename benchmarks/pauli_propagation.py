@@ -281,6 +281,60 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
 STUDY_20 = HERE / "studies" / "hchain-20-pauli.yaml"
 
 
+def grouping_cost(atoms: int) -> dict:
+    """Shots sorted-insertion grouping costs against qiskit's colouring on a linear H chain
+    (STO-3G, 1.8 Angstrom, Jordan-Wigner): per-group single-shot deviations on the noiseless
+    state of a 1-layer layered circuit at seeded small angles (exact, from the statevector);
+    with the plan's optimal allocation the variance at N shots is (sum of deviations)**2 / N, so
+    their ratio squared is the shot factor. Group counts and grouping time at any size."""
+    from qiskit import QuantumCircuit
+    from qiskit.quantum_info import Statevector
+
+    from noiselab.chem.ansatz import layered_circuit
+    from noiselab.chem.encode import encode
+    from noiselab.chem.molecule import compute_problem, molecule_from_mapping
+    from noiselab.mitigate.plan import build_plan
+
+    geometry = "; ".join(f"H 0 0 {1.8 * i:.2f}" for i in range(atoms))
+    spec = molecule_from_mapping({"geometry": geometry, "basis": "sto-3g", "charge": atoms % 2})
+    qp = encode(compute_problem(spec), "jordan_wigner")
+    n = qp.num_qubits
+    row: dict = {"qubits": n}
+    plans = {}
+    for grouping in ("coloring", "sorted_insertion"):
+        t = time.perf_counter()
+        plans[grouping] = build_plan(qp.hamiltonian, dense=n <= 14, grouping=grouping)
+        row[f"{grouping}_seconds"] = time.perf_counter() - t
+        row[f"{grouping}_groups"] = plans[grouping].n_groups
+    if n <= 14:
+        circuit = layered_circuit(n, 1, initial_bitstring=list(qp.hf_bitstring))
+        rng = np.random.default_rng(1)
+        state = circuit.assign_parameters(rng.normal(scale=0.1, size=circuit.num_parameters))
+        sums = {}
+        for grouping, plan in plans.items():
+            total = 0.0
+            for g in plan.groups:
+                rotate = QuantumCircuit(n)
+                for q in range(n):
+                    letter = g.basis[n - 1 - q]
+                    if letter == "Y":
+                        rotate.sdg(q)
+                    if letter in "XY":
+                        rotate.h(q)
+                p = Statevector(state.compose(rotate)).probabilities()
+                total += float(np.sqrt(max(p @ g.weights**2 - (p @ g.weights) ** 2, 0.0)))
+            sums[grouping] = total
+        row["shot_factor"] = (sums["sorted_insertion"] / sums["coloring"]) ** 2
+    print(
+        f"  {n} qubits: colouring {row['coloring_groups']} groups in "
+        f"{row['coloring_seconds']:.1f} s, sorted insertion {row['sorted_insertion_groups']} in "
+        f"{row['sorted_insertion_seconds']:.1f} s"
+        + (f"; shots needed x{row['shot_factor']:.3f}" if "shot_factor" in row else ""),
+        flush=True,
+    )
+    return row
+
+
 def assess_end_to_end(study: Path = STUDY_20) -> dict:
     """``assess`` of the 20-qubit study in a child process (OMP_NUM_THREADS=1, no cache): wall
     time, peak resident memory (VmHWM) and the result; the load average before and after is
@@ -289,25 +343,29 @@ def assess_end_to_end(study: Path = STUDY_20) -> dict:
     import subprocess
 
     code = (
-        "import json, sys, time\n"
+        "import json, os, sys, time\n"
         f"sys.path[:0] = [{str(HERE)!r}, {str(HERE.parent)!r}]\n"
         "from memory_child import peak_rss_bytes\n"
         "from noiselab.study.assess import assess\n"
         "t = time.perf_counter()\n"
-        f"r = assess({str(study)!r}, cache=False)\n"
+        "def hook(what, done, total):\n"
+        "    c = sum(os.times()[:2])\n"
+        "    print(f'    {time.perf_counter() - t:7.0f} s wall, {c:7.0f} s cpu, load '\n"
+        "          f'{os.getloadavg()[0]:.1f}: {what} {done}/{total}', file=sys.stderr,\n"
+        "          flush=True)\n"
+        f"r = assess({str(study)!r}, cache=False, progress=hook)\n"
         "wall = time.perf_counter() - t\n"
-        "print(json.dumps({'wall_s': wall, 'maxrss_bytes': peak_rss_bytes(), "
-        "'result': r.to_json()}))\n"
+        "print(json.dumps({'wall_s': wall, 'cpu_s': sum(os.times()[:2]), "
+        "'maxrss_bytes': peak_rss_bytes(), 'result': r.to_json()}))\n"
     )
     env = {**os.environ, "OMP_NUM_THREADS": "1", "PYTHONPATH": str(HERE.parent)}
     load_before = os.getloadavg()
-    done = subprocess.run(
-        [sys.executable, "-c", code], env=env, capture_output=True, text=True, check=False
+    done = subprocess.run(  # progress goes to this process's stderr as it comes
+        [sys.executable, "-c", code], env=env, stdout=subprocess.PIPE, text=True, check=False
     )
     load_after = os.getloadavg()
     if done.returncode != 0:
-        print(done.stderr[-2000:], flush=True)
-        return {"failed": done.returncode, "stderr": done.stderr[-2000:]}
+        return {"failed": done.returncode}
     out = json.loads(done.stdout.strip().splitlines()[-1])
     res = out["result"]
     rows = {
@@ -318,9 +376,9 @@ def assess_end_to_end(study: Path = STUDY_20) -> dict:
         for name, r in res["recipes"].items()
     }
     print(
-        f"  assess {study.name}: {out['wall_s']:.0f} s, peak {out['maxrss_bytes'] / 2**30:.2f} "
-        f"GiB, method {res.get('emulation_method')}, load {load_before[0]:.1f} -> "
-        f"{load_after[0]:.1f}; "
+        f"  assess {study.name}: {out['wall_s']:.0f} s wall, {out['cpu_s']:.0f} s cpu, peak "
+        f"{out['maxrss_bytes'] / 2**30:.2f} GiB, method {res.get('emulation_method')}, "
+        f"load {load_before[0]:.1f} -> {load_after[0]:.1f}; "
         + "; ".join(
             f"{k}: bias {v['bias_exact_mha']:+.2f} mHa, bound "
             f"{(v['details'] or {}).get('truncation_bound_mha', float('nan')):.3g} mHa"
@@ -331,6 +389,7 @@ def assess_end_to_end(study: Path = STUDY_20) -> dict:
     return {
         "study": study.name,
         "wall_s": out["wall_s"],
+        "cpu_s": out["cpu_s"],
         "peak_rss_gib": out["maxrss_bytes"] / 2**30,
         "loadavg_before": load_before,
         "loadavg_after": load_after,
@@ -353,7 +412,20 @@ def main() -> int:
         action="store_true",
         help="only part 4: assess of the 20-qubit study end to end (time, memory, result)",
     )
+    ap.add_argument(
+        "--grouping",
+        action="store_true",
+        help="only the grouping comparison (sorted insertion against colouring: groups, time, "
+        "shots)",
+    )
     args = ap.parse_args()
+    if args.grouping:
+        print("grouping: sorted insertion against qiskit's colouring:")
+        rows = [grouping_cost(a) for a in (4, 5, 6, 10)]
+        path = HERE / "results" / f"pauli-grouping-{dt.date.today().isoformat()}.json"
+        path.write_text(json.dumps({"grouping": rows}, indent=1) + "\n")
+        print(f"results: {path}")
+        return 0
     if args.assess_only:
         print("20-qubit study end to end (assess, child process, no cache):")
         got = {"date": dt.datetime.now(dt.UTC).isoformat(timespec="seconds")}

@@ -193,8 +193,12 @@ def test_auto_chooses_pauli_propagation_past_the_density_matrix_and_says_why(
 ) -> None:
     from noiselab.study.assess import assess
 
-    text = _study(tmp_path).read_text().replace(
-        "  method: pauli_propagation\n", "  method: auto\n  max_density_matrix_qubits: 3\n"
+    text = (
+        _study(tmp_path)
+        .read_text()
+        .replace(
+            "  method: pauli_propagation\n", "  method: auto\n  max_density_matrix_qubits: 3\n"
+        )
     )
     path = tmp_path / "h2-auto.yaml"
     path.write_text(text)
