@@ -140,7 +140,8 @@ MEANINGS: dict[str, str] = {
     "scan.refine": "refinement passes around each crossing",
     "scan.recipes": "recipes to follow (names under recipes)",
     # emulation
-    "emulation.method": "auto (density matrix while it fits, else trajectories), "
+    "emulation.method": "auto (density matrix while it fits; past it, for assess with raw and "
+    "per-qubit readout recipes pauli_propagation, else trajectories), "
     "density_matrix, trajectory or pauli_propagation",
     "emulation.trajectories": "Monte Carlo trajectories per circuit variant",
     "emulation.truncation": "truncation of the pauli_propagation method",

@@ -267,8 +267,9 @@ class TruncationSettings(_Strict):
 class EmulationSettings(_Strict):
     """How the noisy circuits are emulated.
 
-    ``method``: ``auto`` (density matrix while it fits the memory guard, else Monte Carlo
-    trajectories; never Pauli propagation), ``density_matrix`` (exact; refuse when too large),
+    ``method``: ``auto`` (density matrix while it fits the memory guard; past it, for assess
+    whose recipes are all raw or per-qubit readout, Pauli propagation, else Monte Carlo
+    trajectories), ``density_matrix`` (exact; refuse when too large),
     ``trajectory`` or ``pauli_propagation`` (Heisenberg-picture Pauli strings under the
     Pauli-twirled noise, truncated by ``truncation``; assess only, raw and per-qubit readout
     recipes only).
