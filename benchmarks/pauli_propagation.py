@@ -369,21 +369,13 @@ def assess_end_to_end(study: Path = STUDY_20) -> dict:
     out = json.loads(done.stdout.strip().splitlines()[-1])
     res = out["result"]
     rows = {
-        name: {
-            k: r.get(k)
-            for k in ("energy", "bias_exact_mha", "std_mha", "p_within_target", "details")
-        }
+        name: {k: r.get(k) for k in ("energy", "bias_mha", "std_mha", "truncation_bound_mha")}
         for name, r in res["recipes"].items()
     }
     print(
         f"  assess {study.name}: {out['wall_s']:.0f} s wall, {out['cpu_s']:.0f} s cpu, peak "
         f"{out['maxrss_bytes'] / 2**30:.2f} GiB, method {res.get('emulation_method')}, "
-        f"load {load_before[0]:.1f} -> {load_after[0]:.1f}; "
-        + "; ".join(
-            f"{k}: bias {v['bias_exact_mha']:+.2f} mHa, bound "
-            f"{(v['details'] or {}).get('truncation_bound_mha', float('nan')):.3g} mHa"
-            for k, v in rows.items()
-        ),
+        f"load {load_before[0]:.1f} -> {load_after[0]:.1f}; {json.dumps(rows)}",
         flush=True,
     )
     return {
