@@ -80,11 +80,15 @@ def test_twirled_gate_channel_is_the_pauli_diagonal() -> None:
 def test_decouple_cuts_the_idle_zz_bias() -> None:
     raw = bias_mha("raw", "zz")
     assert abs(raw) > 2.0  # the always-on ZZ alone biases the demo by several mHa
-    # Hahn/CPMG refocusing (from memory): the ZZ of decoupled idle windows cancels; what is
-    # left acts during gates (34 cz of 300 ns on 4 qubits: most of this circuit's time is spent
-    # in gates), so the demo's cut is about 2.6x with XY4 (the issue asks 5x: not reached here)
-    assert abs(bias_mha("xy4", "zz")) * 2.5 <= abs(raw)
-    assert abs(bias_mha("x_x", "zz")) < abs(raw)
+    # Hahn/CPMG refocusing (from memory): the ZZ of decoupled idle windows cancels. Measured
+    # on this demo (bias in mHa, raw / XY4): 8.6 / 3.3 while the pair's own cz also carried
+    # ZZ (now in the calibrated gate, as documented), 4.7 / 1.16 with XY4 needing twice its
+    # pulses' length, 4.7 / 0.70 now (any window the pulses fit, X-X where XY4 does not fit).
+    # What is left: windows before a qubit's first gate (0.70 -> 0.54 if those were decoupled
+    # too, not done: the qubit sits in |0>), then ZZ while both qubits are in gates and windows
+    # too short for any sequence
+    assert abs(bias_mha("xy4", "zz")) * 5 <= abs(raw)
+    assert abs(bias_mha("x_x", "zz")) * 3 <= abs(raw)
 
 
 def test_twirl_makes_coherent_error_linear_for_extrapolation() -> None:

@@ -7,9 +7,11 @@ a transform all see the same evolution:
 
 * always-on ZZ of a linked pair, rate nu (kHz): H = h nu Z x Z / 4, i.e. rzz(pi nu t) over a time
   t (conditional phase 2 pi nu t). It acts during idle windows and during every gate on either
-  qubit except the pair's own two-qubit gate (its calibration absorbs the static ZZ; the residual
-  is ``zz_angle_rad``). Between two gates touching the pair it is one rzz; during a gate (or a
-  run of overlapping gates) on the pair's qubits half of that time is put before and half after
+  qubit except the pair's own two-qubit gate, whatever the gate (cz included, though it commutes
+  with ZZ): the gate's calibration tunes its conditional phase with the static ZZ present, so
+  that part is in the calibrated gate, and what calibration misses is ``zz_angle_rad``. Between
+  two gates touching the pair it is one rzz; during a gate (or a run of overlapping gates) on
+  the pair's qubits half of that time is put before and half after
   (midpoint rule: exact for instantaneous pulses, and a symmetric echo still cancels exactly);
 * quasi-static detuning of a qubit, std sigma (kHz): rz(2 pi delta t) with delta constant in a
   shot and Gaussian N(0, sigma^2) between shots, placed like the ZZ. The emulated state is the
@@ -140,14 +142,22 @@ def _phase_events(
 ) -> list[tuple[float, float]]:
     """(time ns, accumulated time ns) at which to place the term of ``qubits``: between runs of
     gates touching them, with each run's active time split half before, half after."""
+
+    def own(t: _Timed) -> bool:
+        return own_gate is not None and t.name == own_gate and set(t.qubits) == set(qubits)
+
+    # the pair's own gate is a block even where it commutes with Z (cz): its time is taken out
     busy = sorted(
-        (t for t in timed if set(t.qubits) & set(qubits) and not _commutes_with_z(t.name)),
+        (
+            t
+            for t in timed
+            if set(t.qubits) & set(qubits) and (own(t) or not _commutes_with_z(t.name))
+        ),
         key=lambda t: (t.start_ns, t.index),
     )
     blocks: list[list[float]] = []  # [start, end, time of the pair's own gate]
     for t in busy:
-        own = own_gate is not None and t.name == own_gate and set(t.qubits) == set(qubits)
-        own_ns = t.end_ns - t.start_ns if own else 0.0
+        own_ns = t.end_ns - t.start_ns if own(t) else 0.0
         if blocks and t.start_ns < blocks[-1][1]:
             blocks[-1][1] = max(blocks[-1][1], t.end_ns)
             blocks[-1][2] += own_ns
