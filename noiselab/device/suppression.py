@@ -18,9 +18,12 @@ decoupling in idle windows, measurement twirling.
   :mod:`noiselab.device.evolution` its neighbours still pick up a phase then, which stays).
 * :class:`MeasureTwirl` (``measure_twirl``): a random X before each measurement, undone
   classically. The exact average replaces each qubit's assignment matrix A by (A + X A X) / 2
-  (P(1|0) = P(0|1) = their mean); the joint flips are symmetric already. The X pulse's own gate
-  error on half the shots is left out (in the experiment's favour; it is a single-qubit error,
-  small beside readout error). The readout calibration circuits are twirled the same way.
+  (P(1|0) = P(0|1) = their mean); the joint flips are symmetric already. Outcome-dependent
+  flips are not: on the qubits they touch the readout map becomes the exact average over the
+  2^m flips (``untwirled_readout_flips``, :func:`noiselab.device.noise.readout_terms`). The X
+  pulse's own gate error on half the shots is left out (in the experiment's favour; it is a
+  single-qubit error, small beside readout error). The readout calibration circuits are
+  twirled the same way.
 """
 
 from __future__ import annotations
@@ -98,6 +101,18 @@ class MeasureTwirl(CircuitTransform):
         data = profile.model_dump(exclude_unset=True)
         for q, values in overrides.items():
             data["qubits"].setdefault("overrides", {}).setdefault(q, {}).update(values)
+        conditional = sorted(
+            {
+                q
+                for e in profile.readout_crosstalk
+                if e.flip_a_if_b_reads_1 > 0.0 or e.flip_b_if_a_reads_1 > 0.0
+                for q in e.pair
+            }
+        )
+        if conditional and not profile.untwirled_readout_flips:
+            data["untwirled_readout_flips"] = [
+                (q, profile.qubit(q).flip_0to1, profile.qubit(q).flip_1to0) for q in conditional
+            ]
         out = DeviceProfile.model_validate(data, context={_CTX_ALLOW_INFINITE: True})
         out._source = profile.source
         return Applied(compiled, out, 1.0)
