@@ -99,6 +99,8 @@ def test_full_map_is_no_tensor_product_and_matches_the_dense_reference() -> None
 def test_keys_validated_scaled_and_resolved() -> None:
     with pytest.raises(InputError, match=r"readout_crosstalk.*flip_a_if_b_reads_1"):
         line([{"pair": [0, 1], "flip_a_if_b_reads_1": 0.7}])
+    with pytest.raises(InputError, match=r"untwirled_readout_flips\[0\].*qubit 9"):
+        _with_profile_values(line([]), untwirled_readout_flips=[[9, 0.01, 0.02]])
     prof = line([{"pair": [1, 0], "flip_a_if_b_reads_1": 0.04}])
     assert prof.conditional_flips(1, 0) == (0.04, 0.0)
     assert prof.conditional_flips(0, 1) == (0.0, 0.04)

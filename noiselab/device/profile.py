@@ -384,7 +384,7 @@ class DeviceProfile(BaseModel):
     #: set by the ``measure_twirl`` transform (not a device property): (qubit, P(1|0), P(0|1))
     #: before twirling, of the qubits with a conditional readout flip, whose flips the twirled
     #: profile has made symmetric; readout then applies the exact twirl average
-    untwirled_readout_flips: tuple[tuple[int, float, float], ...] = ()
+    untwirled_readout_flips: tuple[tuple[StrictInt, ReadoutRate, ReadoutRate], ...] = ()
     #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
     drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
     #: time between shots, reset included (us); None: the rehearse job's common-practice
@@ -648,6 +648,11 @@ def _check_semantics(p: DeviceProfile) -> None:
 
     check_linked_list("couplers.overrides", p.couplers.overrides)
     check_linked_list("readout_crosstalk", p.readout_crosstalk)
+    for i, entry in enumerate(p.untwirled_readout_flips):
+        if not 0 <= entry[0] < n:
+            raise ProfileCheckError(
+                f"untwirled_readout_flips[{i}]", f"qubit {entry[0]} does not exist", f"0..{n - 1}"
+            )
 
     for q in range(n):
         rq = p.qubit(q)
