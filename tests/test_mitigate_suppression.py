@@ -9,11 +9,12 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+from qiskit import QuantumCircuit
 from qiskit.quantum_info import PTM
 
 from noiselab.device.noise import gate_channel, pauli_twirl, readout_transfer_matrix
 from noiselab.device.profile import DeviceProfile, load_profile, scale_profile
-from noiselab.device.suppression import MeasureTwirl, _with_profile_values
+from noiselab.device.suppression import MeasureTwirl, _with_profile_values, decouple_circuit
 from noiselab.mitigate.experiment import make_runner
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.context import build_context, replace_experiment
@@ -89,6 +90,34 @@ def test_decouple_cuts_the_idle_zz_bias() -> None:
     # too short for any sequence
     assert abs(bias_mha("xy4", "zz")) * 5 <= abs(raw)
     assert abs(bias_mha("x_x", "zz")) * 3 <= abs(raw)
+
+
+def test_decouple_fills_every_window_its_pulses_fit_in() -> None:
+    profile = load_profile(AMBERLINE)
+    pulse_ns = profile.durations.single_qubit_ns
+    patch = (0, 1)  # linked: qubit 0 first colour, qubit 1 second (twice the pulses)
+    assert profile.has_pair(*patch)
+
+    def pulses(window_pulses: float, sequence: str = "xy4") -> tuple[int, int]:
+        qc = QuantumCircuit(2)
+        qc.x(0)
+        qc.x(1)
+        for q in (0, 1):
+            qc.delay(window_pulses * pulse_ns * 1e-9, q, unit="s")
+        out = decouple_circuit(qc, profile, patch, sequence)
+        counts = [0, 0]
+        for inst in out.data[2:]:
+            if inst.operation.name == "x":
+                counts[out.find_bit(inst.qubits[0]).index] += 1
+        return counts[0], counts[1]
+
+    # common practice (from memory): a sequence goes where its pulses fit; XY4 (4 pulses,
+    # doubled on the second colour), else X-X (2, doubled), else nothing
+    assert pulses(9.0) == (4, 8)
+    assert pulses(5.0) == (4, 4)
+    assert pulses(3.0) == (2, 0)
+    assert pulses(1.5) == (0, 0)
+    assert pulses(5.0, "x_x") == (2, 4)
 
 
 def test_twirl_makes_coherent_error_linear_for_extrapolation() -> None:
