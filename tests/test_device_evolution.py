@@ -14,6 +14,7 @@ from noiselab.common.errors import ProblemTooLargeError
 from noiselab.device.evolution import evolution_ensemble, evolution_spec
 from noiselab.device.noise import noise_spec
 from noiselab.device.profile import DeviceProfile, scale_profile
+from noiselab.device.suppression import _with_profile_values
 from noiselab.emulate.engine import emulate_bases
 
 GATE_NS = 0.001  # the shortest allowed duration: gates are (nearly) instantaneous
@@ -131,6 +132,9 @@ def test_own_cz_carries_no_extra_zz_but_a_neighbours_cz_does() -> None:
     other.cz(1, 2)  # 300 ns, from 1 ps; qubit 0 waits until 300.002 ns
     other.delay(300e-9, 0, unit="s")
     assert phase_shift(other) == pytest.approx(expected(GATE_NS / 2 + 300.0 + GATE_NS), abs=1e-12)
+    # the other convention: a gate calibrated without the static ZZ present carries it too
+    profile = _with_profile_values(profile, zz_during_own_gate="extra")
+    assert phase_shift(own) == pytest.approx(expected(GATE_NS / 2 + 300.0), abs=1e-12)
 
 
 def test_quasi_static_detuning_ramsey_gaussian_and_echo() -> None:

@@ -9,7 +9,9 @@ a transform all see the same evolution:
   t (conditional phase 2 pi nu t). It acts during idle windows and during every gate on either
   qubit except the pair's own two-qubit gate, whatever the gate (cz included, though it commutes
   with ZZ): the gate's calibration tunes its conditional phase with the static ZZ present, so
-  that part is in the calibrated gate, and what calibration misses is ``zz_angle_rad``. Between
+  that part is in the calibrated gate, and what calibration misses is ``zz_angle_rad`` (profile
+  key ``zz_during_own_gate: in_calibration``, the default; ``extra`` lets it act then too, for a
+  gate calibrated without the static ZZ present). Between
   two gates touching the pair it is one rzz; during a gate (or a run of overlapping gates) on
   the pair's qubits half of that time is put before and half after
   (midpoint rule: exact for instantaneous pulses, and a symmetric echo still cancels exactly);
@@ -59,6 +61,9 @@ class EvolutionSpec:
     two_qubit_gate: str
     single_qubit_ns: float
     two_qubit_ns: float
+    #: the profile's ``zz_during_own_gate``: "in_calibration" (the pair's own gate carries no
+    #: extra ZZ) or "extra" (the ZZ acts during it too)
+    zz_during_own_gate: str = "in_calibration"
 
     @property
     def is_empty(self) -> bool:
@@ -95,6 +100,7 @@ def evolution_spec(profile: DeviceProfile, patch: Sequence[int]) -> EvolutionSpe
         profile.two_qubit_gate,
         float(d.single_qubit_ns),
         float(d.two_qubit_ns),
+        profile.zz_during_own_gate,
     )
     return None if spec.is_empty else spec
 
@@ -205,7 +211,8 @@ def evolve_circuit(
                     placed.append(_Placed(t.end_ns, 0, 2 * t.index + 1, RZGate(phi), (other,)))
     extra = 0
     for i, j, nu in spec.zz:
-        for when, dt in _phase_events(timed, total_ns, (i, j), spec.two_qubit_gate):
+        own = spec.two_qubit_gate if spec.zz_during_own_gate == "in_calibration" else None
+        for when, dt in _phase_events(timed, total_ns, (i, j), own):
             theta = math.pi * nu * dt * 1e-6  # kHz x ns
             if theta != 0.0:
                 extra += 1

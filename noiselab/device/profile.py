@@ -35,6 +35,7 @@ A profile file looks like this (units are in the key names; rates are probabilit
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
       - {pair: [0, 1], joint_flip: 0.004, flip_a_if_b_reads_1: 0.0, flip_b_if_a_reads_1: 0.0}
+    zz_during_own_gate: in_calibration   # optional; or extra (ZZ also during the pair's gate)
     repetition_delay_us: 250             # optional; time between shots, reset included
     drift:                               # optional; day-to-day relative standard deviations
       t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
@@ -63,7 +64,8 @@ a tensor product, so only a full (2^n) inversion undoes it.
 
 Always-on terms (see :mod:`noiselab.device.evolution`): ``zz_rate_khz`` nu of a linked pair acts
 as exp(-i pi nu t Z x Z / 2) (conditional phase 2 pi nu t) during every idle window and every
-gate except the pair's own two-qubit gate, whose calibration absorbs it; ``detuning_std_khz``
+gate except the pair's own two-qubit gate, whose calibration absorbs it (``zz_during_own_gate:
+extra`` lets it act then too); ``detuning_std_khz``
 sigma is a frequency offset constant within a shot, Gaussian between shots (free decay
 exp(-(2 pi sigma t)^2 / 2) on top of T2, which stays the echo time); ``spectator_phase_rad``
 phi: each two-qubit gate of the pair applies rz(phi) to every other qubit linked to it.
@@ -381,6 +383,10 @@ class DeviceProfile(BaseModel):
     #: set by the ``twirl`` transform (not a device property): two-qubit gate errors are
     #: replaced by their Pauli-twirled part
     twirled_two_qubit_gates: bool = False
+    #: whether the always-on ZZ of a pair acts during the pair's own two-qubit gate:
+    #: "in_calibration" (no: the gate was calibrated with it present; its residual is
+    #: zz_angle_rad) or "extra" (yes, on top of the calibrated gate)
+    zz_during_own_gate: Literal["in_calibration", "extra"] = "in_calibration"
     #: set by the ``measure_twirl`` transform (not a device property): (qubit, P(1|0), P(0|1))
     #: before twirling, of the qubits with a conditional readout flip, whose flips the twirled
     #: profile has made symmetric; readout then applies the exact twirl average

@@ -248,6 +248,9 @@ MEANINGS: dict[str, str] = {
     "shot, Gaussian between shots)",
     "twirled_two_qubit_gates": "set by the twirl pass, not by hand: two-qubit gate errors "
     "replaced by their Pauli-twirled part",
+    "zz_during_own_gate": "whether a pair's always-on ZZ also acts during its own two-qubit "
+    "gate: in_calibration (no, the default: the gate's conditional phase was calibrated with the "
+    "static ZZ present, as on a chip) or extra (yes, on top of the calibrated gate)",
     "readout_crosstalk": "correlated readout errors of linked pairs",
     "readout_crosstalk[i].pair": "the linked pair [a, b]",
     "readout_crosstalk[i].joint_flip": "probability that both bits flip together",
