@@ -20,7 +20,7 @@ decoupling in idle windows, measurement twirling.
   classically. The exact average replaces each qubit's assignment matrix A by (A + X A X) / 2
   (P(1|0) = P(0|1) = their mean); the joint flips are symmetric already. Outcome-dependent
   flips are not: on the qubits they touch the readout map becomes the exact average over the
-  2^m flips (``untwirled_readout_flips``, :func:`noiselab.device.noise.readout_terms`). The X
+  2^m flips (``untwirled_readout_flips``, :func:`noiselab.device.readout_map.readout_terms`). The X
   pulse's own gate error on half the shots is left out (in the experiment's favour; it is a
   single-qubit error, small beside readout error). The readout calibration circuits are
   twirled the same way.

@@ -12,7 +12,8 @@ from typing import Any
 
 import numpy as np
 
-from noiselab.device.noise import build_noise_model, readout_matrices, readout_terms
+from noiselab.device.noise import build_noise_model
+from noiselab.device.readout_map import readout_matrices, readout_terms
 from noiselab.emulate.channels import BasisLayerSpec
 from noiselab.emulate.readout import PairMatrix
 
@@ -29,7 +30,7 @@ def layer_spec_for(profile: Any, num_qubits: int) -> BasisLayerSpec:
 def logical_readout(
     profile: Any, patch: Sequence[int], qubits: Sequence[int]
 ) -> tuple[list[np.ndarray], list[PairMatrix]]:
-    """Readout matrices and crosstalk terms (``device.noise.readout_terms``) in LOGICAL indices.
+    """Readout matrices and crosstalk terms (``readout_map.readout_terms``) in LOGICAL indices.
 
     ``qubits[l]`` is the circuit position of logical qubit l; circuit position i is physical
     ``patch[i]``. Crosstalk terms touching an unmeasured patch qubit are dropped (that qubit is
