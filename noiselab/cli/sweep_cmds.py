@@ -106,6 +106,16 @@ def sweep_cmd(
         ),
     ] = None,
     recipe: RecipesOpt = None,
+    coherence_gate_errors: Annotated[
+        str | None,
+        typer.Option(
+            "--coherence-gate-errors",
+            help="With --vary coherence-us: follow (the relaxation part of every quoted gate "
+            "error moves with T1/T2, the rest is held) or fixed (quoted gate errors kept). "
+            "Default: the study's sweep.coherence_gate_errors, else follow.",
+            show_default=False,
+        ),
+    ] = None,
     report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
@@ -133,6 +143,7 @@ def sweep_cmd(
         points=points,
         log=log,
         recipes=recipe or None,
+        coherence_gate_errors=coherence_gate_errors,
     )
     from noiselab.report.tables import sweep_table
 
