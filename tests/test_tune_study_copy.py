@@ -56,7 +56,7 @@ def test_the_original_is_refused_before_any_work(tmp_path: Path) -> None:
     study = tmp_path / "demo.yaml"
     shutil.copy(DEMO, study)
     before = study.read_bytes()
-    code, out, err = run_main(["tune", str(study), "--study-copy", str(study), "--no-cache"])
+    code, _, err = run_main(["tune", str(study), "--study-copy", str(study), "--no-cache"])
     assert code == 2
     assert "--study-copy" in err and "study file itself" in err and "Traceback" not in err
     assert study.read_bytes() == before
