@@ -16,6 +16,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
+    FIGURES,
     STUDY_JOB,
     CountOpt,
     JsonOpt,
@@ -97,7 +98,7 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    STUDY_JOB,
+    (*STUDY_JOB, *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -287,7 +288,7 @@ def tune_cmd(
 
 
 @run_options(
-    ("out", "cache", "no_cache", "quiet"),
+    ("out", "cache", "no_cache", "quiet", *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for the demo's files (in the current directory)."},
     defaults={"out": DEMO_DIR},

@@ -15,6 +15,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
+    FIGURES,
     CountOpt,
     RecipesOpt,
     StudyArg,
@@ -58,7 +59,7 @@ def _print(table: Any) -> None:
     console().print(table)
 
 
-@run_options(EXECUTOR_JOB, files=sweep_files, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=sweep_files, helps=OUT_HELP)
 def sweep_cmd(
     study: StudyArg,
     run: RunOptions,
@@ -166,7 +167,7 @@ def sweep_cmd(
     emit_report("sweep", result, report_dir, study, run.seed)
 
 
-@run_options(EXECUTOR_JOB, files=BUDGET_FILES, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=BUDGET_FILES, helps=OUT_HELP)
 def budget_cmd(
     study: StudyArg,
     run: RunOptions,
