@@ -101,8 +101,9 @@ def test_quoted_error_below_its_relaxation_part_is_clipped_and_said() -> None:
 
 
 def test_raw_error_falls_monotonically_with_t1_on_the_demo() -> None:
-    res = sweep("h2-equilibrium", "coherence-us", 100.0, 1000.0, 3, True, recipes=["raw"],
-                cache=False)
+    res = sweep(
+        "h2-equilibrium", "coherence-us", 100.0, 1000.0, 3, True, recipes=["raw"], cache=False
+    )
     assert res.coherence_gate_errors == "follow"  # the default
     errors, _ = res.series(res.recipes[0])
     assert errors[0] > errors[1] > errors[2] > 0
@@ -114,8 +115,14 @@ def test_raw_error_falls_monotonically_with_t1_on_the_demo() -> None:
 
 
 def test_fixed_mode_keeps_the_quoted_errors_and_says_so() -> None:
-    res = sweep("h2-equilibrium", "coherence-us", values=[200.0], recipes=["raw"], cache=False,
-                coherence_gate_errors="fixed")
+    res = sweep(
+        "h2-equilibrium",
+        "coherence-us",
+        values=[200.0],
+        recipes=["raw"],
+        cache=False,
+        coherence_gate_errors="fixed",
+    )
     assert res.to_json()["coherence_gate_errors"] == "fixed"
     assert COHERENCE_NOTE in res.notes()
     other = sweep("h2-equilibrium", "readout-error", values=[0.01], recipes=["raw"], cache=False)
