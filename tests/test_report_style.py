@@ -9,6 +9,7 @@ import pytest
 from helpers.cli import run_main
 from test_report_figures import _check_png, _hand_budget, _hand_sweep
 
+import noiselab
 from noiselab.common.errors import InputError
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.report import figures as F  # noqa: N812
@@ -40,6 +41,7 @@ def test_talk_is_larger_than_paper_in_type_lines_and_size() -> None:
     for key in paper:
         assert talk[key] > paper[key], key
     assert current_style().name == "paper"  # the block ends the style
+    assert noiselab.figure_style is figure_style  # the notebook's way in
 
 
 def test_paper_is_the_default_look() -> None:

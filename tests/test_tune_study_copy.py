@@ -8,6 +8,7 @@ from pathlib import Path
 import pytest
 from helpers.cli import run_main
 
+import noiselab
 from noiselab.common.errors import InputError
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.study.spec import load_study
@@ -25,6 +26,7 @@ def tuned() -> object:
 
 def test_copy_holds_the_winner_loads_and_checks(tuned: object, tmp_path: Path) -> None:
     before = DEMO.read_bytes()
+    assert noiselab.write_tuned_study is write_tuned_study
     copy = write_tuned_study(tuned, DEMO, tmp_path / "tuned.yaml")
     assert DEMO.read_bytes() == before  # the original is never touched
     text = copy.read_text(encoding="utf-8")
