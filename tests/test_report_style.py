@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import dataclasses
 from pathlib import Path
 
 import matplotlib.image
@@ -101,3 +102,16 @@ def test_assess_writes_talk_figures(tmp_path: Path) -> None:
     _check_png(png)
     # paper: 1.1 in per bar + 3 in for the demo's 5 recipes, at 150 dpi; talk is wider
     assert matplotlib.image.imread(png).shape[1] > 1.1 * (1.1 * 5 + 3.0) * 150
+
+
+@pytest.mark.parametrize("style", ["paper", "talk"])
+@pytest.mark.parametrize("knob", ["two-qubit-error", "coherence-us"])
+def test_sweep_and_budget_titles_stay_clear_of_the_legend(style: str, knob: str) -> None:
+    sweep = dataclasses.replace(_hand_sweep(), knob=knob, shots_total=4_000_000)
+    with figure_style(style):
+        for fig in (F.sweep_figure(sweep), F.budget_figure(_hand_budget())):
+            fig.canvas.draw()
+            renderer = fig.canvas.get_renderer()
+            title = fig.axes[0].title.get_window_extent(renderer)
+            legend = fig.legends[0].get_window_extent(renderer)
+            assert title.x1 < legend.x0, (style, knob, fig.axes[0].title.get_text())

@@ -112,6 +112,9 @@ def test_raw_error_falls_monotonically_with_t1_on_the_demo() -> None:
     from noiselab.report.tables import sweep_table
 
     assert "follow T1/T2" in sweep_table(res, plain=True).title
+    from noiselab.report.figures import sweep_figure
+
+    assert "gate errors follow" in sweep_figure(res).axes[0].get_xlabel()
 
 
 def test_fixed_mode_keeps_the_quoted_errors_and_says_so() -> None:

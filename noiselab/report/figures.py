@@ -124,14 +124,18 @@ def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
     return fig
 
 
-def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
+def _decorate(fig: Any, ax: Any, title: str, study: str, device: str, room: float = 1.0) -> None:
     """Title, subtitle ``study S on D`` (``D``: 'device NAME', or words such as '4 devices')
-    and the caution line."""
+    and the caution line. ``room``: the share of the figure's width the title may take (less
+    beside a legend outside the axes); a longer title is wrapped."""
     where = device if " " in device else f"device {device}"
-    if current_style().font_scale > 1.0:
-        # larger type: wrap the title to about half the figure's width (13 characters per
-        # inch at 10 pt), so that it stays clear of a legend beside the axes
-        title = textwrap.fill(title, width=int(0.55 * fig.get_figwidth() * 130 / font(10)))
+    # about 13 characters per inch at 10 pt; a legend beside the axes grows with the type
+    style = current_style()
+    chars = int(room * style.size_scale / style.font_scale * fig.get_figwidth() * 130 / font(10))
+    if len(title) > chars and " (" in title:  # a parenthesis goes to its own line first
+        head, _, tail = title.rpartition(" (")
+        title = f"{head}\n({tail}"
+    title = "\n".join(textwrap.fill(part, width=chars) for part in title.split("\n"))
     ax.set_title(f"{title}\nstudy {study} on {where}", fontsize=font(10))
     # a figure-level x label is laid out below everything else (outside legends included)
     # wrapped to the figure's width (about 17 characters per inch at 7 pt)
@@ -625,7 +629,9 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
         ax.xaxis.set_minor_formatter(NullFormatter())
-    ax.set_xlabel(knob.axis_label)
+    mode = sweep_result.coherence_gate_errors
+    gates = {"follow": "; gate errors follow (relaxation part)", "fixed": "; gate errors fixed"}
+    ax.set_xlabel(knob.axis_label + gates.get(mode or "", ""))
     ax.set_ylabel("|energy − exact energy| (mHa)")
     conf = sweep_result.confidence
     ax.plot(
@@ -650,6 +656,7 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         f"{sweep_result.shots_total:,} shots)",
         sweep_result.study_name,
         sweep_result.device_name,
+        room=0.6 if own else 1.0,  # the legend takes the rest
     )
     return fig
 
@@ -784,7 +791,7 @@ def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
         fig.legend(handles=handles, fontsize=font(7), loc="outside right upper", framealpha=0.9)
     else:
         ax.legend(handles=handles, fontsize=font(7), framealpha=0.9)
-    _decorate(fig, ax, budget_title(b), b.study_name, b.device_name)
+    _decorate(fig, ax, budget_title(b), b.study_name, b.device_name, room=0.45 if own else 1.0)
     return fig
 
 
