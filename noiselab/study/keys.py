@@ -131,6 +131,9 @@ MEANINGS: dict[str, str] = {
     "sweep.points": "number of values",
     "sweep.log": "space the values logarithmically",
     "sweep.recipes": "recipes to follow (names under recipes)",
+    "sweep.coherence_gate_errors": "coherence-us knob only: follow (the relaxation part of "
+    "each quoted gate error moves with T1/T2, the rest is held) or fixed (quoted gate errors "
+    "kept); default follow",
     # scan
     "scan.bond": "the two atoms (0-based) whose bond is stretched",
     "scan.scale": "scale the whole geometry instead of one bond",
