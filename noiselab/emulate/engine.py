@@ -371,7 +371,9 @@ def emulate_circuit_bases(
         "num_trajectories": int(num_trajectories // num_batches * num_batches),
     }
     if batch_values is None:
-        batches_ideal = np.stack(list(batches))
+        batches_ideal = np.empty((num_batches, len(bases_t), 2**n))
+        for b, part in enumerate(batches):
+            batches_ideal[b] = part
         probs_b = apply_readout(batches_ideal, mats, readout_crosstalk)
         return BasisDistributions(
             probs_ideal=batches_ideal.mean(axis=0),
