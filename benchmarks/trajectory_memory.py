@@ -54,9 +54,7 @@ def one(k: int, store: str) -> dict:
     bases = ["".join(rng.choice(list("XYZ"), k)) for _ in range(BASES)]
     spec = None
     if store == "values":
-        masks = tuple(
-            np.unique(rng.integers(1, 2**k, size=MASKS)).astype(np.uint64) for _ in bases
-        )
+        masks = tuple(np.unique(rng.integers(1, 2**k, size=MASKS)).astype(np.uint64) for _ in bases)
         flip = np.array([[0.98, 0.03], [0.02, 0.97]])
         spec = BatchValueSpec(masks, (None, tuple(np.linalg.inv(flip) for _ in range(k))))
     mats = [np.array([[0.98, 0.03], [0.02, 0.97]])] * k

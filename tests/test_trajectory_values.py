@@ -110,12 +110,19 @@ def test_memory_estimate_of_a_16_qubit_study_is_under_the_guard() -> None:
     from noiselab.mitigate.experiment import ExperimentContext
     from noiselab.mitigate.plan import build_plan
 
-    study = load_study(Path(__file__).resolve().parents[1] / "benchmarks/studies/hchain-16-traj.yaml")
+    root = Path(__file__).resolve().parents[1]
+    study = load_study(root / "benchmarks" / "studies" / "hchain-16-traj.yaml")
     _, qp = build_problem(study.molecule, study.encoding, study.drop_fixed_parity_qubits)
     plan = build_plan(qp.hamiltonian, dense=False)
     ctx = ExperimentContext(
-        problem=qp, compiled=None, profile=None, plan=plan, exact_energy_ha=0.0,
-        ansatz_energy_ha=0.0, shots=10**6, verification_bases=False,
+        problem=qp,
+        compiled=None,
+        profile=None,
+        plan=plan,
+        exact_energy_ha=0.0,
+        ansatz_energy_ha=0.0,
+        shots=10**6,
+        verification_bases=False,
     )
     n, bases = 16, len(ctx.measured_bases)
     values = 2 * sum(len(m) for m in value_masks(ctx))
@@ -148,8 +155,12 @@ def test_recipe_needing_distributions_refused_before_simulation(
     assert not ctx.experiment.trajectory_values
     e = ctx.study.emulation
     need = estimate_memory_bytes(
-        4, "trajectory", trajectories_per_batch=e.trajectories // e.batches,
-        num_bases=len(ctx.experiment.measured_bases), num_batches=e.batches, num_qubits_measured=4,
+        4,
+        "trajectory",
+        trajectories_per_batch=e.trajectories // e.batches,
+        num_bases=len(ctx.experiment.measured_bases),
+        num_batches=e.batches,
+        num_qubits_measured=4,
     )
     monkeypatch.setenv(MEMORY_LIMIT_ENV, str(need - 1))  # distributions just do not fit
     calls = engine_call_count()

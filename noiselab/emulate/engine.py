@@ -187,9 +187,7 @@ def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
 _MIXTURE_CHUNK = 32
 
 
-def simulate_mixture(
-    ensemble: Sequence[tuple[float, Any]], noise_model: Any
-) -> np.ndarray:
+def simulate_mixture(ensemble: Sequence[tuple[float, Any]], noise_model: Any) -> np.ndarray:
     """sum_i w_i rho_i over weighted circuits (one circuit: :func:`simulate_density_matrix`)."""
     if len(ensemble) == 1:
         return simulate_density_matrix(ensemble[0][1], noise_model)
@@ -513,4 +511,3 @@ def emulate_bases(
         evolution=evolution_spec(profile, patch),
         batch_values=batch_values,
     )
-

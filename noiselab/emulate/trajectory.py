@@ -6,9 +6,10 @@ channels); qiskit-aer's statevector method samples one Kraus branch per instruct
 noisy density matrix. We run the circuit in ``num_batches`` batches of
 ``num_trajectories // num_batches`` shots with ``save_statevector(pershot=True)``; every
 trajectory's state serves all bases through the pure-state kernel
-(:func:`noiselab.emulate.contract.sv_batch_mean_distributions`), and the per-batch means (or only
-the estimator values read from them, :mod:`noiselab.emulate.batch_values`) are kept so that the trajectory error can be estimated separately from shot noise (batch means are
-independent: standard error = std of batch means / sqrt(n_batches)).
+(:func:`noiselab.emulate.contract.sv_batch_mean_distributions`), and the per-batch means (or
+the estimator values read from them, :mod:`noiselab.emulate.batch_values`) are kept so that
+the trajectory error can be estimated separately from shot noise (batch means are independent:
+standard error = std of batch means / sqrt(n_batches)).
 """
 
 from __future__ import annotations

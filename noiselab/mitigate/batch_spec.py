@@ -76,8 +76,11 @@ def value_masks(ctx: Any) -> tuple[np.ndarray, ...]:
     sym_masks = label_masks([lab for lab, _ in table], n)
     for g in ctx.plan.groups:
         terms = label_masks(list(g.labels), n)
-        revealed = [int(m) for (lab, _), m in zip(table, sym_masks, strict=True)
-                    if measurable_in(lab, g.basis)]
+        revealed = [
+            int(m)
+            for (lab, _), m in zip(table, sym_masks, strict=True)
+            if measurable_in(lab, g.basis)
+        ]
         for s in _products(revealed):
             per[index[g.basis]].update(int(t) ^ s for t in terms)
             per[index[g.basis]].add(s)
