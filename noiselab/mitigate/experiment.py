@@ -27,7 +27,7 @@ from noiselab.device.transforms import TransformRealizer
 from noiselab.emulate.calibration import calibration_distributions
 from noiselab.emulate.engine import choose_method, emulate_bases
 from noiselab.mitigate import symmetry
-from noiselab.mitigate.batch_spec import batch_value_spec
+from noiselab.mitigate.batch_spec import batch_value_spec, value_masks
 from noiselab.mitigate.plan import MeasurementPlan, build_plan
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD, CircuitVariant
 
@@ -210,8 +210,12 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
     }
     if method != "density_matrix":
         material["trajectories"] = [int(ctx.num_trajectories), int(ctx.num_batches)]
-        if ctx.trajectory_values:
-            material["kept"] = "per-batch values"
+        if ctx.trajectory_values:  # which values: the masks per basis (the transforms follow
+            # from the profile, already in the key)
+            h = hashlib.sha256()
+            for m in value_masks(ctx):
+                h.update(np.asarray(m, dtype=np.uint64).tobytes() + b"|")
+            material["kept"] = f"per-batch values {h.hexdigest()}"
     return material
 
 
