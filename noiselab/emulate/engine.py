@@ -131,6 +131,11 @@ class BasisDistributions:
         """
         batches = self.trajectory_batches_ideal if ideal else self.trajectory_batches
         if batches is None:
+            if self.trajectory_values is not None:  # never 0.0 for a run that has an error
+                raise ValueError(
+                    "trajectory_std: this run kept per-batch values, not distributions; "
+                    "use batch_functional"
+                )
             return 0.0
         vals = np.array([estimator(b) for b in batches])
         return float(vals.std(ddof=1) / np.sqrt(len(vals)))
