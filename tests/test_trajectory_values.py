@@ -75,13 +75,23 @@ def demo_trajectory_context():
     emulation = study.emulation.model_copy(
         update={"method": "trajectory", "trajectories": 32, "batches": 4}
     )
-    study = dataclasses.replace(study, emulation=emulation)
+    suppressed = {  # the suppression passes with the others they combine with
+        "mt_readout": ({"pass": "measure_twirl"}, {"pass": "readout"}),
+        "twirl_ps": ({"pass": "twirl"}, {"pass": "postselect", "mode": "discard"}),
+        "decouple_zne": (
+            {"pass": "decouple"},
+            {"pass": "readout"},
+            {"pass": "extrapolate", "amplifier": "stretch", "scales": [1, 2, 3], "fit": "linear"},
+        ),
+    }
+    study = dataclasses.replace(study, emulation=emulation, recipes={**study.recipes, **suppressed})
     return study, build_context(study)
 
 
 def test_values_store_equals_distribution_store(demo_trajectory_context) -> None:
-    """Every demo recipe (raw, readout, discard and verify post-selection, extrapolation) gives
-    the same energy, standard error and trajectory error from either store (same seed)."""
+    """Every demo recipe (raw, readout, discard and verify post-selection, extrapolation), and
+    the suppression passes, give the same energy, standard error and trajectory error from
+    either store (same seed)."""
     study, ctx = demo_trajectory_context
     assert ctx.experiment.trajectory_values  # chosen: every demo recipe reads parities only
     out = {}
