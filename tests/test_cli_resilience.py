@@ -41,8 +41,8 @@ rehearse:
   loop_recipe: [{{pass: readout, method: per_qubit_inverse}}]
 """
 
-SWEEP = ["--vary", "two-qubit-error", "--from", "0.002", "--to", "0.05", "--points", "20", "--log"]
-FILES = [f"sweep-two-qubit-error.{ext}" for ext in ("csv", "json", "svg", "pdf", "png")]
+SWEEP = ["--vary", "two_qubit_error", "--from", "0.002", "--to", "0.05", "--points", "20", "--log"]
+FILES = [f"sweep-two_qubit_error.{ext}" for ext in ("csv", "json", "svg", "pdf", "png")]
 
 
 @pytest.fixture(scope="module")
@@ -149,8 +149,9 @@ WILD = {
     "--points": st.one_of(NUMBERS, st.integers(-3, 10**6).map(str)),
     "--from": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
     "--to": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
-    "--vary": st.sampled_from(["noise-scale", "readout-error", "coherence-us", "knob", ""]),
+    "--vary": st.sampled_from(["noise_scale", "readout_error", "coherence_us", "noise-scale", ""]),
     "--recipe": st.sampled_from(["zne", "raw", "nope", ""]),
+    "--recipes": st.sampled_from(["zne", "raw", "nope", ""]),
     "--top": st.one_of(NUMBERS, st.integers(-3, 10**7).map(str)),
     "--fit": st.sampled_from(["linear", "richardson", "spline", ""]),
     "--scales": st.sampled_from(["1,3", "1,2,3", "1", "1,1e9", "a,b", "1,nan", ""]),
@@ -175,8 +176,9 @@ TAME = {
     "--points": st.sampled_from(["2", "3", "3e0"]),
     "--from": st.sampled_from(["0.5", "1", "0.01"]),
     "--to": st.sampled_from(["2", "3", "0.02"]),
-    "--vary": st.sampled_from(["noise-scale", "readout-error"]),
+    "--vary": st.sampled_from(["noise_scale", "readout_error"]),
     "--recipe": st.sampled_from(["zne", "raw"]),
+    "--recipes": st.sampled_from(["zne", "raw"]),
     "--top": st.sampled_from(["1", "5", "1e1"]),
     "--fit": st.sampled_from(["linear", "richardson"]),
     "--scales": st.sampled_from(["1,3", "1,2,3"]),
@@ -196,14 +198,14 @@ SCAN_TAME = {"--from": st.sampled_from(["0.6", "0.7"]), "--to": st.sampled_from(
 OPTIONS = {
     "assess": ["--shots", "--seed", "--method", "--trajectories"],
     "sweep": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--points",
-              "--from", "--to", "--vary", "--recipe"],
+              "--from", "--to", "--vary", "--recipes"],
     "tune": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--top", "--fit",
              "--scales", "--readout"],
     "budget": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--recipe"],
     "rehearse": ["--seed", "--iterations", "--repeats", "--shots-per-evaluation", "--max-shots",
                  "--optimizer", "--start"],
     "compare": ["--devices", "--shots", "--seed", "--method", "--trajectories"],
-    "scan": ["--bond", "--from", "--to", "--points", "--refine", "--recipe", "--shots",
+    "scan": ["--bond", "--from", "--to", "--points", "--refine", "--recipes", "--shots",
              "--seed", "--method", "--trajectories", "--workers"],
 }  # fmt: skip
 #: what a tame line of a job always carries, unless the option was drawn (small, fast runs)
@@ -212,7 +214,7 @@ REQUIRED = {
     "rehearse": [("--iterations", "1"), ("--repeats", "1"), ("--shots-per-evaluation", "100")],
     "compare": [("--devices", "cobaltgrid-12")],
     "scan": [("--bond", ["0", "1"]), ("--from", "0.6"), ("--to", "0.8"), ("--points", "2"),
-             ("--refine", "0"), ("--recipe", "raw")],
+             ("--refine", "0"), ("--recipes", "raw")],
 }  # fmt: skip
 
 

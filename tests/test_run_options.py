@@ -82,7 +82,7 @@ def test_unusable_out_is_refused_before_any_work(job: str, out: str, tmp_path: P
     if out == "FILE":
         target.write_text("x", encoding="utf-8")
     elif out == "FOLDER":
-        first = {"assess": "assess.json", "tune": "tune.csv", "sweep": "sweep-noise-scale.csv",
+        first = {"assess": "assess.json", "tune": "tune.csv", "sweep": "sweep-noise_scale.csv",
                  "budget": "budget.csv", "rehearse": "rehearse.json", "compare": "compare.json",
                  "scan": "scan.json"}[job]  # fmt: skip
         (target / first).mkdir(parents=True)

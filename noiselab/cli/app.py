@@ -11,9 +11,12 @@ import sys
 from typing import Any
 
 import typer
+from typer.core import TyperCommand
 
 from noiselab import __version__
 from noiselab.cli import commands
+from noiselab.cli.options import option_of
+from noiselab.cli.values import ValuesCommand
 from noiselab.common.errors import NoiselabError
 from noiselab.common.wording import CAUTION
 
@@ -61,6 +64,18 @@ def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
     for register in commands.REGISTRY:
         register(app)
+    _list_allowed_values(app)
+
+
+def _list_allowed_values(typer_app: typer.Typer) -> None:
+    """Every command's ``--help`` lists the allowed values of its fixed-set options
+    (:class:`noiselab.cli.values.ValuesCommand`), sub-groups included."""
+    for info in typer_app.registered_commands:
+        if info.cls in (None, TyperCommand):
+            info.cls = ValuesCommand
+    for group in typer_app.registered_groups:
+        if group.typer_instance is not None:
+            _list_allowed_values(group.typer_instance)
 
 
 def _command() -> Any:
@@ -94,7 +109,8 @@ def main(argv: list[str] | None = None) -> None:
     try:
         rc = command.main(args=args, prog_name="noiselab", standalone_mode=False)
     except NoiselabError as exc:
-        typer.echo(f"noiselab: error: {exc.message}", err=True)
+        # the study layer names a job's arguments (``points``); here they are options
+        typer.echo(f"noiselab: error: {exc.with_options(option_of).message}", err=True)
         sys.exit(exc.exit_code)
     except usage_error as exc:
         ctx = getattr(exc, "ctx", None)

@@ -88,7 +88,7 @@ def scan_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipesOpt = None,
+    recipes: RecipesOpt = None,
 ) -> None:
     """Potential-energy curve under noise along one geometry coordinate."""
     from noiselab.report.scan_figures import write_scan_outputs
@@ -97,7 +97,7 @@ def scan_cmd(
     result, written = run_job(
         scan, study, run, write=write_scan_outputs, executor=True,
         bond=bond, scale=scale or None, start=start, stop=stop, points=points, refine=refine,
-        recipes=recipe or None,
+        recipes=recipes or None,
     )  # fmt: skip
     unit = result.axis.unit
     headers = ("coordinate", "exact (Ha)", "HF (Ha)", *(f"{n} bias (mHa)" for n in result.recipes))
@@ -135,6 +135,6 @@ def register(app: typer.Typer) -> None:
     app.command(
         "scan",
         epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --from 0.5 --to 2.5 "
-        "--points 9 --recipe zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
+        "--points 9 --recipes zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
         "2 bad input, 130 interrupted (finished points stay in the cache).",
     )(scan_cmd)

@@ -31,9 +31,8 @@ if TYPE_CHECKING:
 # (noiselab --help stays fast).
 
 KNOB_HELP = (
-    "What to vary: noise-scale (every channel, 1 = device as profiled), two-qubit-error, "
-    "one-qubit-error, readout-error (probabilities 0..1, shown in %), coherence-us (T1 in us, "
-    "T2 scaled with it)."
+    "The knob to vary: errors are probabilities 0..1 (shown in %), coherence_us is T1 in us "
+    "(T2 scaled with it), noise_scale scales every channel (1 = device as profiled)."
 )
 
 TRAJECTORY_NOTE = (
@@ -66,7 +65,7 @@ def sweep_cmd(
         str | None,
         typer.Option(
             "--vary",
-            help=KNOB_HELP + " Default: the study's sweep.vary, else noise-scale.",
+            help=KNOB_HELP + " Default: the study's sweep.vary, else noise_scale.",
             show_default=False,
         ),
     ] = None,
@@ -105,7 +104,7 @@ def sweep_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipesOpt = None,
+    recipes: RecipesOpt = None,
     report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
@@ -132,7 +131,7 @@ def sweep_cmd(
         stop=stop,
         points=points,
         log=log,
-        recipes=recipe or None,
+        recipes=recipes or None,
     )
     from noiselab.report.tables import sweep_table
 
@@ -217,7 +216,7 @@ def register(app: typer.Typer) -> None:
         "sweep",
         help=_SWEEP_HELP,
         epilog=epilog(
-            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
+            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two_qubit_error "
             "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep",
             CLUSTER_CODES,
             ", 130 interrupted (finished points stay in the cache)",

@@ -120,9 +120,9 @@ MEANINGS: dict[str, str] = {
     # tune
     "tune.readout": "readout-correction methods to try (none: no correction)",
     "tune.postselect": "postselection modes to try (none: no postselection)",
-    "tune.amplification": "amplifiers to try (none: no extrapolation; clifford_regression: "
+    "tune.amplifier": "amplifiers to try (none: no extrapolation; clifford_regression: "
     "Clifford data regression in place of an extrapolation)",
-    "tune.scales": "noise-scale sets to try, each a list of at least two factors",
+    "tune.scales": "noise scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
     "sweep.vary": "the knob to vary",

@@ -22,7 +22,7 @@ import dataclasses
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, did_you_mean, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.device.profile import scale_profile
 from noiselab.mitigate.recipe import run_recipe
@@ -47,10 +47,10 @@ from noiselab.study.results import RunStats, trajectory_std_of
 
 #: What the coherence knob does to the gate errors (said in its output).
 COHERENCE_NOTE = (
-    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
+    "the coherence_us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
     "idle relaxation and the split of each gate's error between relaxation and depolarizing "
     "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
-    "errors too, sweep one-qubit-error or two-qubit-error alongside"
+    "errors too, sweep single_qubit_error or two_qubit_error alongside"
 )
 
 
@@ -117,14 +117,14 @@ class SweepResult(NotebookDisplay):
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
         knob = self.knob_spec
         out: list[str] = []
-        if knob.name == "coherence-us":
+        if knob.name == "coherence_us":
             out.append(COHERENCE_NOTE)
         low = [p.value for p in self.points if p.floored]
         if low:
             out.append(
                 f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what "
                 "T1/T2 alone cause during the gate: the noise model uses relaxation alone there, "
-                "so the error no longer falls with the knob (use coherence-us to lower that floor)"
+                "so the error no longer falls with the knob (use coherence_us to lower that floor)"
             )
         return tuple(out)
 
@@ -214,7 +214,7 @@ RAW_RECIPE = "raw"
 
 
 def chosen_recipes(
-    study: Any, names: Sequence[str] | None, where: str = "--recipe"
+    study: Any, names: Sequence[str] | None, where: str = arg("recipes")
 ) -> tuple[tuple[str, tuple[dict[str, Any], ...]], ...]:
     """Raw (no passes) first, then the named recipes of the study (default: all of them).
 
@@ -231,7 +231,10 @@ def chosen_recipes(
     for n in picked:
         if n not in all_recipes and n != RAW_RECIPE:
             raise input_error(
-                str(study.source), where, f"unknown recipe {n!r}", ", ".join(all_recipes)
+                str(study.source),
+                where,
+                f"unknown recipe {n!r}{did_you_mean(n, list(all_recipes))}",
+                ", ".join(all_recipes),
             )
     raw_name = next((n for n, p in all_recipes.items() if len(p) == 0), None)
     out: list[tuple[str, tuple[dict[str, Any], ...]]] = [(raw_name or RAW_RECIPE, ())]
@@ -314,7 +317,7 @@ def sweep(
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
     Every argument left as None comes from the study's ``sweep:`` section, else the built-in
-    default: knob ``noise-scale``, a quarter to four times the device's value, 5 points, even
+    default: knob ``noise_scale``, a quarter to four times the device's value, 5 points, even
     spacing, all of the study's recipes (raw always first). ``values`` gives the knob values
     explicitly instead. ``cache``: a ResultsCache, a path, None (the user cache folder) or
     False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
@@ -334,7 +337,7 @@ def sweep(
         from_study = getattr(defaults, name, None)
         return fallback if from_study is None else from_study
 
-    spec = get_knob(default("vary", knob, "noise-scale"))
+    spec = get_knob(default("vary", knob, "noise_scale"))
     same_knob = knob is None or getattr(defaults, "vary", None) in (None, knob)
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
@@ -347,16 +350,16 @@ def sweep(
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     if points < 2 and values is None:
-        raise input_error("sweep", "--points", f"{points} points", "2 or more")
+        raise input_error("sweep", arg("points"), f"{points} points", "2 or more")
     # refuse a bad range before the (slow) context is built
     if start is not None:
-        spec.check(start, "--from", log)
+        spec.check(start, "start", log)
     if stop is not None:
-        spec.check(stop, "--to", log)
+        spec.check(stop, "stop", log)
     if values is not None:
         values = [spec.check(v, "values", log) for v in values]
         if len(values) < 1:
-            raise input_error("sweep", "values", "no knob values", "at least one value")
+            raise input_error("sweep", arg("values"), "no knob values", "at least one value")
     with own_executor(workers, cluster, executor) as ex:
         return _sweep_with(
             study,
