@@ -233,7 +233,7 @@ def test_tune_refuses_unknown_axis_value(study) -> None:
     from noiselab.study.tune import GridOverride, resolve_grid
 
     # from Python the message names the argument, not the command line's option
-    with pytest.raises(InputError, match="^fit: unknown value 'cubic'"):
+    with pytest.raises(InputError, match=r"^fit: unknown value 'cubic'"):
         resolve_grid(study, GridOverride(fit=["cubic"]))
 
 

@@ -166,7 +166,7 @@ def test_worker_processes_give_the_same_sweep(study_path: Path, tmp_path: Path) 
 def test_study_sweep_section_gives_the_defaults(tmp_path: Path) -> None:
     p = tmp_path / "with-sweep.yaml"
     section = (
-        "sweep:\n  vary: two_qubit_error\n  start: 0.004\n  stop: 0.016\n  points: 2\n"
+        "sweep:\n  knob: two_qubit_error\n  start: 0.004\n  stop: 0.016\n  points: 2\n"
         "  log: true\n  recipes: [raw]\n"
     )
     p.write_text(TINY_STUDY + section, encoding="utf-8")

@@ -15,7 +15,7 @@ from typer.core import TyperCommand
 
 from noiselab import __version__
 from noiselab.cli import commands
-from noiselab.cli.options import option_of
+from noiselab.cli.options import FORMER_OPTIONS, option_of
 from noiselab.cli.values import ValuesCommand
 from noiselab.common.errors import NoiselabError
 from noiselab.common.wording import CAUTION
@@ -98,6 +98,15 @@ def _cli_error_classes() -> tuple[type[Exception], type[Exception]]:
     return bases["UsageError"], bases["ClickException"]
 
 
+def _usage_message(exc: Exception) -> str:
+    """The usage error's message; an option renamed to follow the study file's key gets its
+    present name as the suggestion."""
+    name = getattr(exc, "option_name", None)
+    if type(exc).__name__ == "NoSuchOption" and name in FORMER_OPTIONS:
+        return f"No such option: {name} (did you mean `{FORMER_OPTIONS[name]}`?)"
+    return str(exc.format_message())  # type: ignore[attr-defined]
+
+
 INTERRUPTED = "noiselab: interrupted; finished results are kept in the cache"
 
 
@@ -115,7 +124,7 @@ def main(argv: list[str] | None = None) -> None:
     except usage_error as exc:
         ctx = getattr(exc, "ctx", None)
         hint = f" (see '{ctx.command_path} --help')" if ctx is not None else ""
-        typer.echo(f"noiselab: error: {exc.format_message()}{hint}", err=True)
+        typer.echo(f"noiselab: error: {_usage_message(exc)}{hint}", err=True)
         sys.exit(2)
     except (typer.Abort, KeyboardInterrupt):
         typer.echo(INTERRUPTED, err=True)

@@ -44,11 +44,16 @@ RecipesOpt = Annotated[
 #: Python argument -> command-line option, where the option is not ``--`` + the argument with
 #: hyphens for underscores (errors raised by the study layer name the argument; the command line
 #: shows the option: :meth:`noiselab.common.errors.NoiselabError.with_options`).
-OPTION_OF_ARGUMENT = {
-    "start": "--from",
-    "stop": "--to",
-    "knob": "--vary",
-    "use_cache": "--no-cache",
+OPTION_OF_ARGUMENT = {"use_cache": "--no-cache"}
+
+
+#: Options renamed to the study file's spelling -> their present name (a "did you mean").
+FORMER_OPTIONS = {
+    "--vary": "--knob",
+    "--from": "--start",
+    "--to": "--stop",
+    "--recipe": "--recipes",
+    "--amplification": "--amplifier",
 }
 
 

@@ -61,18 +61,18 @@ def _print(table: Any) -> None:
 def sweep_cmd(
     study: StudyArg,
     run: RunOptions,
-    vary: Annotated[
+    knob: Annotated[
         str | None,
         typer.Option(
-            "--vary",
-            help=KNOB_HELP + " Default: the study's sweep.vary, else noise_scale.",
+            "--knob",
+            help=KNOB_HELP + " Default: the study's sweep.knob, else noise_scale.",
             show_default=False,
         ),
     ] = None,
     start: Annotated[
         float | None,
         typer.Option(
-            "--from",
+            "--start",
             help="First knob value (base units: probability, us or factor). "
             "Default: the study's sweep.start, else a quarter of the device's value.",
             show_default=False,
@@ -81,7 +81,7 @@ def sweep_cmd(
     stop: Annotated[
         float | None,
         typer.Option(
-            "--to",
+            "--stop",
             help="Last knob value. Default: the study's sweep.stop, else four times the "
             "device's value.",
             show_default=False,
@@ -112,8 +112,8 @@ def sweep_cmd(
     from noiselab.report.outputs import write_sweep_outputs
     from noiselab.study.sweep import get_knob, sweep
 
-    if vary is not None:
-        get_knob(vary)  # a bad knob fails before any work
+    if knob is not None:
+        get_knob(knob)  # a bad knob fails before any work
     report_dir = check_report_dir(report, "sweep")
 
     def write(res: Any, folder: Any) -> list[Any]:
@@ -126,7 +126,7 @@ def sweep_cmd(
         run,
         write=write,
         executor=True,
-        knob=vary,
+        knob=knob,
         start=start,
         stop=stop,
         points=points,
@@ -216,8 +216,8 @@ def register(app: typer.Typer) -> None:
         "sweep",
         help=_SWEEP_HELP,
         epilog=epilog(
-            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two_qubit_error "
-            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep",
+            "noiselab sweep configs/studies/h2-equilibrium.yaml --knob two_qubit_error "
+            "--start 0.001 --stop 0.03 --points 7 --log --out results/h2-sweep",
             CLUSTER_CODES,
             ", 130 interrupted (finished points stay in the cache)",
         ),

@@ -32,7 +32,7 @@ def _tune_axis(axis: str) -> Callable[[], tuple[str, ...]]:
 
 
 def knobs() -> tuple[str, ...]:
-    """The sweep's knobs (``--vary``, ``sweep.vary``)."""
+    """The sweep's knobs (``--knob``, ``sweep.knob``)."""
     from noiselab.study.knobs import KNOBS
 
     return tuple(KNOBS)
@@ -69,20 +69,30 @@ def two_qubit_gates() -> tuple[str, ...]:
 #: study keys' ``--which`` (the one list the command checks against)
 KEY_SETS = ("study", "profile", "both")
 
-#: option -> its allowed values (the same option means the same thing on every command)
+#: option, or "command option" where commands differ, -> its allowed values
 ALLOWED: dict[str, Callable[[], tuple[str, ...]]] = {
     "--readout": _tune_axis("readout"),
     "--postselect": _tune_axis("postselect"),
     "--amplifier": _tune_axis("amplifier"),
     "--fit": _tune_axis("fit"),
     "--family": _tune_axis("family"),
-    "--vary": knobs,
+    "--knob": knobs,
     "--method": emulation_methods,
     "--optimizer": optimizers,
-    "--start": loop_starts,
+    "rehearse --start": loop_starts,
     "--two-qubit-gate": two_qubit_gates,
     "--which": lambda: KEY_SETS,
 }
+
+
+def allowed_values(command: str, options: Any) -> tuple[str, ...] | None:
+    """The allowed values of the option called ``options`` (its names) on ``command``; None
+    when it takes no value from a fixed set."""
+    for name in options:
+        provider = ALLOWED.get(f"{command} {name}") or ALLOWED.get(name)
+        if provider is not None:
+            return provider()
+    return None
 
 
 def allowed_sentence(values: tuple[str, ...]) -> str:
@@ -96,8 +106,8 @@ class ValuesCommand(TyperCommand):
 
     def format_help(self, ctx: Any, formatter: Any) -> None:
         for param in self.params:
-            names = [n for n in getattr(param, "opts", ()) if n in ALLOWED]
+            values = allowed_values(str(self.name), getattr(param, "opts", ()))
             help_text = getattr(param, "help", None)
-            if names and help_text is not None and " Allowed: " not in help_text:
-                param.help = help_text.rstrip() + allowed_sentence(ALLOWED[names[0]]())
+            if values and help_text is not None and " Allowed: " not in help_text:
+                param.help = help_text.rstrip() + allowed_sentence(values)
         super().format_help(ctx, formatter)

@@ -75,6 +75,7 @@ class NoiselabError(Exception):
             return self
         out = copy.copy(self)
         out.args = (one_line(_render(self.template, option_of)),)
+        out.template = None  # its names are final
         return out
 
     @property
@@ -119,8 +120,17 @@ def _loc_to_path(loc: Sequence[Any]) -> str:
     return out or "(top level)"
 
 
+#: File keys renamed so that a file, the command line and the results use one word (the tune
+#: axis ``amplification`` is ``amplifier`` like the recipes' option; ``sweep.vary`` is
+#: ``sweep.knob`` like the sweep's results): the former name suggests the present one.
+FORMER_KEYS = {"amplification": "amplifier", "vary": "knob"}
+
+
 def closest_key(key: str, allowed: Sequence[str]) -> str | None:
-    """The allowed key closest to ``key`` (case ignored; difflib ratio >= 0.6), or None."""
+    """The allowed key closest to ``key`` (a former name: its present one; else case ignored,
+    difflib ratio >= 0.6), or None."""
+    if FORMER_KEYS.get(key) in allowed:
+        return FORMER_KEYS[key]
     by_lower = {a.lower(): a for a in allowed}
     if key.lower() in by_lower:
         return by_lower[key.lower()]

@@ -125,7 +125,7 @@ MEANINGS: dict[str, str] = {
     "tune.scales": "noise scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
-    "sweep.vary": "the knob to vary",
+    "sweep.knob": "the knob to vary",
     "sweep.start": "first value, in the knob's base units",
     "sweep.stop": "last value, in the knob's base units",
     "sweep.points": "number of values",
@@ -284,7 +284,7 @@ ALLOWED: dict[str, str] = {
     "scan.recipes": "names of recipes under recipes",
     "rehearse.final_recipe": "a name of a recipe under recipes",
     "scan.bond": "two distinct atom indices (0-based) that share a bond",
-    "sweep.vary": ", ".join(KNOBS),
+    "sweep.knob": ", ".join(KNOBS),
     "tune.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct",
     **{f"tune.{axis}": ", ".join(values) for axis, values in axis_values().items()},
     "extrapolate.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct, at least 2",

@@ -1,7 +1,7 @@
 """Sweep knobs: the device-noise quantities a sweep can vary, each with its units, its bounds
 and its own reference value (the device's value over the circuit's qubits or pairs).
 
-Below :mod:`noiselab.study.spec` (a study's ``sweep.vary`` names a knob) and
+Below :mod:`noiselab.study.spec` (a study's ``sweep.knob`` names a knob) and
 :mod:`noiselab.study.sweep` (which scales the device along one). A new device channel that a
 sweep should vary needs one entry in :data:`KNOBS`: its channels, bounds and reference.
 """

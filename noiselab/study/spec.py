@@ -218,21 +218,21 @@ class TuneGrid(_Strict):
 class SweepDefaults(_Strict):
     """Defaults for ``noiselab sweep`` on this study (the command line overrides each).
 
-    ``vary``: the knob (noise_scale, two_qubit_error, single_qubit_error, coherence_us,
+    ``knob``: the knob to vary (noise_scale, two_qubit_error, single_qubit_error, coherence_us,
     readout_error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
     or a factor); ``points``; ``log`` spacing; ``recipes`` to follow.
     """
 
-    vary: str | None = None
+    knob: str | None = None
     start: float | None = None
     stop: float | None = None
     points: Count | None = Field(default=None, ge=2, le=MAX_SWEEP_POINTS)
     log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
 
-    @field_validator("vary")
+    @field_validator("knob")
     @classmethod
-    def _check_vary(cls, value: str | None) -> str | None:
+    def _check_knob(cls, value: str | None) -> str | None:
         if value is None:
             return value
         if value not in KNOBS:

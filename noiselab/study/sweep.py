@@ -337,8 +337,8 @@ def sweep(
         from_study = getattr(defaults, name, None)
         return fallback if from_study is None else from_study
 
-    spec = get_knob(default("vary", knob, "noise_scale"))
-    same_knob = knob is None or getattr(defaults, "vary", None) in (None, knob)
+    spec = get_knob(default("knob", knob, "noise_scale"))
+    same_knob = knob is None or getattr(defaults, "knob", None) in (None, knob)
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
     stop = stop if not same_knob else default("stop", stop, None)
