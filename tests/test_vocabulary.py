@@ -222,14 +222,13 @@ def test_a_former_knob_in_the_study_file_is_refused_with_the_present_one() -> No
 
 def test_errors_from_python_name_the_argument() -> None:
     import noiselab
-    from noiselab.study.scan import scan
 
     cases = [
         (lambda: noiselab.sweep(DEMO, points=1, cache=False), r": points 1: "),
         (lambda: noiselab.sweep(DEMO, "noise_scale", start=-1.0, cache=False), r": start -1.0: "),
         (lambda: noiselab.sweep(DEMO, "noise_scale", recipes=["nope"], cache=False),
          r"recipes: unknown recipe 'nope'"),
-        (lambda: scan(DEMO, bond=(0, 1), points=1, cache=False), r"^points: 1; allowed"),
+        (lambda: noiselab.scan(DEMO, bond=(0, 1), points=1, cache=False), r"^points: 1; allowed"),
         (lambda: noiselab.assess(DEMO, drift=5000, cache=False), r"^drift: 5000 draws"),
         (lambda: noiselab.assess(DEMO, shots="2.5", cache=False), r": shots '2.5': "),
     ]  # fmt: skip
