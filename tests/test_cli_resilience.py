@@ -241,7 +241,8 @@ def command_lines(
         if kind != "absent":
             table = tame if kind == "tame" else WILD
             # "job --option" where one option means different things on different jobs
-            args += _words(option, draw(table.get(f"{job} {option}") or table[option]))
+            own = f"{job} {option}"
+            args += _words(option, draw(table[own] if own in table else table[option]))
     for option, value in REQUIRED.get(job, []):  # the job's own defaults would be long runs
         if option not in args:
             args += _words(option, value)
