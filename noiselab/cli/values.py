@@ -59,6 +59,21 @@ def loop_starts() -> tuple[str, ...]:
     return _literal(RehearseSettings, "start")
 
 
+def figure_styles() -> tuple[str, ...]:
+    """``--style`` (the figures' look)."""
+    from noiselab.report.style import STYLES
+
+    return tuple(STYLES)
+
+
+def coherence_modes() -> tuple[str, ...]:
+    """sweep's ``--coherence-gate-errors`` (``sweep.coherence_gate_errors``)."""
+    from noiselab.study.spec import SweepDefaults
+
+    field = SweepDefaults.model_fields["coherence_gate_errors"].annotation
+    return tuple(str(v) for t in typing.get_args(field) for v in typing.get_args(t))
+
+
 def two_qubit_gates() -> tuple[str, ...]:
     """profile import's ``--two-qubit-gate``."""
     from noiselab.device.profile import TWO_QUBIT_GATES
@@ -81,6 +96,8 @@ ALLOWED: dict[str, Callable[[], tuple[str, ...]]] = {
     "--optimizer": optimizers,
     "rehearse --start": loop_starts,
     "--two-qubit-gate": two_qubit_gates,
+    "--style": figure_styles,
+    "--coherence-gate-errors": coherence_modes,
     "--which": lambda: KEY_SETS,
 }
 

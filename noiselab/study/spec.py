@@ -220,7 +220,9 @@ class SweepDefaults(_Strict):
 
     ``knob``: the knob to vary (noise_scale, two_qubit_error, single_qubit_error, coherence_us,
     readout_error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
-    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow.
+    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow;
+    ``coherence_gate_errors`` (coherence_us only): ``follow`` (default) moves the relaxation
+    part of every quoted gate error with T1/T2, ``fixed`` keeps the quoted errors.
     """
 
     knob: str | None = None
@@ -229,6 +231,7 @@ class SweepDefaults(_Strict):
     points: Count | None = Field(default=None, ge=2, le=MAX_SWEEP_POINTS)
     log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
+    coherence_gate_errors: Literal["follow", "fixed"] | None = None
 
     @field_validator("knob")
     @classmethod
@@ -566,11 +569,21 @@ def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[st
 
 
 def validate_sweep_options(
-    source: str, *, points: Any = None, start: Any = None, stop: Any = None
+    source: str,
+    *,
+    points: Any = None,
+    start: Any = None,
+    stop: Any = None,
+    coherence_gate_errors: Any = None,
 ) -> SweepDefaults:
     """Command-line sweep values through the file's own ``sweep:`` model (bounds included);
     a refused value is named by its argument (``points``; on the command line ``--points``)."""
-    data = {"points": points, "start": start, "stop": stop}
+    data = {
+        "points": points,
+        "start": start,
+        "stop": stop,
+        "coherence_gate_errors": coherence_gate_errors,
+    }
     try:
         return SweepDefaults.model_validate(data)
     except ValidationError as exc:
