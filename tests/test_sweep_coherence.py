@@ -133,8 +133,12 @@ def test_fixed_mode_keeps_the_quoted_errors_and_says_so() -> None:
 
 
 def test_bad_mode_is_refused_naming_the_option() -> None:
-    with pytest.raises(InputError, match="--coherence-gate-errors"):
+    from noiselab.cli.options import option_of
+
+    # from Python the argument; the command line (main) shows the option
+    with pytest.raises(InputError, match=r": coherence_gate_errors 'both': ") as refused:
         sweep("h2-equilibrium", "coherence_us", values=[200.0], coherence_gate_errors="both")
+    assert "--coherence-gate-errors 'both'" in refused.value.with_options(option_of).message
 
 
 def test_shipped_profiles_scale_without_clipping() -> None:
