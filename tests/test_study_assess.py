@@ -203,6 +203,7 @@ def test_tune_simulates_each_distinct_variant_once(study, context, tmp_path: Pat
         amplification=["none", "stretch"],
         scales=[[1, 2, 3], [1, 3, 5]],
         fit=["linear", "richardson"],
+        suppress=["none"],
     )
     result = tune(study, grid=grid, cache=tmp_path / "t.db", context=context)
     # 2 readout x 2 post-selection x (no ZNE + 2 scale sets x 2 fits) = 20 settings (by hand)

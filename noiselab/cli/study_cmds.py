@@ -61,6 +61,11 @@ FamilyOpt = repeated(
     "--family",
     "Mitigation family(ies) to try besides the stack: none, error_cancellation, distillation.",
 )
+SuppressOpt = repeated(
+    "--suppress",
+    "Suppression to try before mitigation: none, twirl, decouple, measure_twirl, or several "
+    "joined by + (e.g. twirl+decouple).",
+)
 
 
 def _context_lines(ctx: Any) -> list[str]:
@@ -208,6 +213,7 @@ def tune_cmd(
     scales: ScalesOpt = None,
     fit: FitOpt = None,
     family: FamilyOpt = None,
+    suppress: SuppressOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
@@ -224,6 +230,7 @@ def tune_cmd(
         scales=_parse_scale_sets(scales),
         fit=fit or None,
         family=family or None,
+        suppress=suppress or None,
     )
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override
