@@ -121,3 +121,39 @@ def test_measure_twirl_shares_the_state_simulation() -> None:
     assert np.max(np.abs(got.probs - direct.probs)) < 1e-12
     assert np.max(np.abs(got.probs_ideal - direct.probs_ideal)) < 1e-12
     assert np.max(np.abs(got.probs - runner(base).probs)) > 1e-6  # the readout did change
+
+
+def test_tune_with_suppression_shares_simulations(tmp_path) -> None:
+    from noiselab.study.tune import tune
+
+    grid = GridOverride(
+        readout=["none", "per_qubit_inverse"],
+        postselect=["none"],
+        amplification=["none"],
+        family=["none"],
+        suppress=["none", "twirl", "measure_twirl"],
+    )
+    result = tune(DEMO, grid=grid, cache=tmp_path / "t.db", reuse=False)
+    # by hand: 2 readout choices x (none, twirl) + measure_twirl with the readout correction
+    assert len(result.entries) == 5
+    # circuits: the device as it is, twirled, measure-twirled (read from the first's state)
+    assert result.distinct_variants == 3
+    assert result.stats.simulations == 2
+    by = {(e.setting["suppress"], e.setting["readout"]): e.result for e in result.entries}
+    # by hand: the per-qubit inverse undoes either per-qubit assignment exactly (and the demo's
+    # joint flip is symmetric, and off its patch), so measurement twirling leaves the corrected
+    # bias as it is
+    plain, twirled = by[("none", "per_qubit_inverse")], by[("measure_twirl", "per_qubit_inverse")]
+    assert abs(plain.bias_exact_mha - twirled.bias_exact_mha) < 1e-6
+    assert by[("twirl", "none")].bias_exact_mha != by[("none", "none")].bias_exact_mha
+
+
+def test_suppress_axis_refuses_unknown_values(tmp_path) -> None:
+    from helpers.cli import run_main
+
+    code, out, err = run_main(
+        ["tune", str(DEMO), "--suppress", "twril", "--cache", str(tmp_path / "never.db")]
+    )
+    assert code == 2 and out == ""
+    assert "--suppress" in err and "twril" in err and "twirl+decouple" in err
+    assert len(err.strip().splitlines()) == 1
