@@ -217,12 +217,18 @@ class MeasureTwirlPass(_SuppressPass):
 
     def no_op(self, ctx: ExperimentContext) -> str | None:
         """Measurement twirling changes nothing when every measured qubit's assignment is
-        symmetric already (P(1|0) = P(0|1))."""
+        symmetric already (P(1|0) = P(0|1)) and no outcome-dependent flip joins two measured
+        qubits (the joint flips are symmetric)."""
         if ctx.compiled is None:
             return None
-        patch, measured = tuple(ctx.compiled.patch), ctx.compiled.logical_to_circuit
-        for c in measured:
-            qp = ctx.profile.qubit(patch[c])
+        patch = tuple(ctx.compiled.patch)
+        measured = {patch[c] for c in ctx.compiled.logical_to_circuit}
+        for q in measured:
+            qp = ctx.profile.qubit(q)
             if qp.flip_0to1 != qp.flip_1to0:
+                return None
+        for e in ctx.profile.readout_crosstalk:
+            conditional = e.flip_a_if_b_reads_1 > 0.0 or e.flip_b_if_a_reads_1 > 0.0
+            if conditional and set(e.pair) <= measured:
                 return None
         return "every measured qubit's readout error is symmetric already"
