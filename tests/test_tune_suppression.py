@@ -94,6 +94,15 @@ def test_noop_suppression_is_left_out_with_a_note() -> None:
     assert {s.options["suppress"] for s in kept} == {"none", "decouple"}
     assert any(n.startswith("twirl left out: ") for n in notes)
     assert any(n.startswith("measure_twirl left out: ") for n in notes)
+    # an outcome-dependent flip between two measured qubits is asymmetric (by hand: a flips
+    # only when b reads 1), so measurement twirling is no no-op there
+    patch = ctx.compiled.patch
+    leaky = _with_profile_values(
+        flat, readout_crosstalk=[{"pair": [patch[0], patch[1]], "flip_a_if_b_reads_1": 0.01}]
+    )
+    mt = make_pass({"pass": "measure_twirl"}, where="t")
+    assert mt.no_op(quiet) is not None
+    assert mt.no_op(replace_experiment(ctx, profile=leaky)) is None
     # decoupling still acts without T1 (pulse errors): not a no-op while pulses fit
     assert make_pass({"pass": "decouple"}, where="t").no_op(quiet) is None
     huge = make_pass({"pass": "decouple", "min_window_ns": 1e6}, where="t")
