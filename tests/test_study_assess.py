@@ -289,6 +289,8 @@ def test_tune_cli_writes_ranked_csv(cli_runs: dict, tmp_path: Path) -> None:
         "linear",
         "--fit",
         "richardson",
+        "--suppress",
+        "none",
         "--cache",
         str(cli_runs["cache_a"]),
         "--seed",
