@@ -126,3 +126,16 @@ def test_draws_refused_where_not_emulated() -> None:
     )
     with pytest.raises(InputError, match=r"recipe\[0\]\.draws: 4 random twirls .* always-on"):
         run_recipe([{"pass": "twirl", "draws": 4}], zz, make_runner(zz))
+
+
+def test_spread_of_few_draws_can_limit_the_verdict() -> None:
+    import dataclasses
+
+    ctx, runner = _coherent_context()
+    exact = run_recipe([{"pass": "twirl"}], ctx, runner)
+    # a target just above the exact twirl's |bias|: the draws' spread (several mHa at 4 draws)
+    # keeps P below the confidence at any shot count (P from the normal model, target.py)
+    near = dataclasses.replace(ctx, target_mha=abs(exact.bias_exact_mha) + 2.0)
+    r = run_recipe([{"pass": "twirl", "draws": 4}], near, runner)
+    assert r.limited_by == "twirl" and r.shots_needed is None
+    assert run_recipe([{"pass": "twirl"}], near, runner).limited_by in ("none", "shots")
