@@ -256,6 +256,7 @@ def _small_grid():
         amplifier=["none", "stretch", "two_qubit_gates"],
         scales=[[1.0, 2.0, 3.0]],
         fit=["linear"],
+        suppress=["none"],
     )
 
 

@@ -203,6 +203,7 @@ def test_tune_simulates_each_distinct_variant_once(study, context, tmp_path: Pat
         amplifier=["none", "stretch"],
         scales=[[1, 2, 3], [1, 3, 5]],
         fit=["linear", "richardson"],
+        suppress=["none"],
     )
     result = tune(study, grid=grid, cache=tmp_path / "t.db", context=context)
     # 2 readout x 2 post-selection x (no ZNE + 2 scale sets x 2 fits) = 20 settings (by hand)
@@ -289,6 +290,8 @@ def test_tune_cli_writes_ranked_csv(cli_runs: dict, tmp_path: Path) -> None:
         "linear",
         "--fit",
         "richardson",
+        "--suppress",
+        "none",
         "--cache",
         str(cli_runs["cache_a"]),
         "--seed",

@@ -17,6 +17,7 @@ SMALL_GRID = GridOverride(
     amplifier=["none", "stretch"],
     scales=[[1, 3, 5]],
     fit=["linear"],
+    suppress=["none"],
 )
 
 

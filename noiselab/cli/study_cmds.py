@@ -59,6 +59,10 @@ AmplifierOpt = repeated("--amplifier", "Noise amplifier(s) to try.")
 ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
 FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
 FamilyOpt = repeated("--family", "Mitigation family(ies) to try besides the stack.")
+SuppressOpt = repeated(
+    "--suppress",
+    "Suppression to try before mitigation (passes joined by +).",
+)
 
 
 def _context_lines(ctx: Any) -> list[str]:
@@ -206,6 +210,7 @@ def tune_cmd(
     scales: ScalesOpt = None,
     fit: FitOpt = None,
     family: FamilyOpt = None,
+    suppress: SuppressOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
@@ -234,6 +239,7 @@ def tune_cmd(
         scales=_parse_scale_sets(scales),
         fit=fit or None,
         family=family or None,
+        suppress=suppress or None,
     )
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override

@@ -91,6 +91,7 @@ ALLOWED: dict[str, Callable[[], tuple[str, ...]]] = {
     "--amplifier": _tune_axis("amplifier"),
     "--fit": _tune_axis("fit"),
     "--family": _tune_axis("family"),
+    "--suppress": _tune_axis("suppress"),
     "--knob": knobs,
     "--method": emulation_methods,
     "--optimizer": optimizers,

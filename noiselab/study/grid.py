@@ -7,6 +7,7 @@ Below :mod:`noiselab.study.spec` (which checks a study file's ``tune:`` section 
 from __future__ import annotations
 
 import dataclasses
+import itertools
 from typing import Any
 
 from noiselab.common.errors import InputError
@@ -26,6 +27,11 @@ DEFAULT_FIT = ("linear", "richardson")
 #: Mitigation families besides the stack above: none, or one whole-circuit method.
 FAMILIES = (NONE, "error_cancellation", "distillation")
 DEFAULT_FAMILY = FAMILIES
+#: Suppression passes (circuit transforms, first in a recipe); an axis value is "none" or their
+#: names joined by "+" in this order ("twirl+decouple").
+SUPPRESSION_PASSES = ("twirl", "decouple", "measure_twirl")
+#: measure_twirl only where readout correction is on (see ``noiselab.study.tune``)
+DEFAULT_SUPPRESS = (NONE, "twirl", "decouple", "twirl+decouple", "measure_twirl")
 #: The built-in default of every axis, in the grid's axis order.
 DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "readout": DEFAULT_READOUT,
@@ -34,6 +40,7 @@ DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "scales": DEFAULT_SCALES,
     "fit": DEFAULT_FIT,
     "family": DEFAULT_FAMILY,
+    "suppress": DEFAULT_SUPPRESS,
 }
 
 
@@ -47,6 +54,7 @@ class Grid:
     scales: tuple[tuple[float, ...], ...]
     fit: tuple[str, ...]
     family: tuple[str, ...] = (NONE,)
+    suppress: tuple[str, ...] = (NONE,)
 
 
 def check_tune_section(section: Any, source: str) -> None:
@@ -63,6 +71,7 @@ def check_tune_section(section: Any, source: str) -> None:
         scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
         fit=tuple(values["fit"]),
         family=tuple(values["family"]),
+        suppress=tuple(values["suppress"]),
     )
     check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
 
@@ -79,7 +88,19 @@ def axis_values() -> dict[str, tuple[str, ...]]:
         "amplifier": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
         "family": FAMILIES,
+        "suppress": suppression_values(),
     }
+
+
+def suppression_values() -> tuple[str, ...]:
+    """Every value of the suppress axis: none, or a non-empty subset of the suppression passes
+    joined by "+" in :data:`SUPPRESSION_PASSES` order (smaller subsets first)."""
+    subsets = (
+        "+".join(c)
+        for k in range(1, len(SUPPRESSION_PASSES) + 1)
+        for c in itertools.combinations(SUPPRESSION_PASSES, k)
+    )
+    return (NONE, *subsets)
 
 
 def check_axes(grid: Grid, origin: dict[str, str]) -> None:

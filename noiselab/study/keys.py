@@ -212,6 +212,8 @@ MEANINGS: dict[str, str] = {
     "circuits",
     "tune.family": "mitigation families to try beside the readout/postselect/extrapolate stack "
     "(none: the stack alone)",
+    "tune.suppress": "suppression before mitigation to try: none, or suppression passes joined "
+    "by + (measure_twirl only with readout correction; the families run without suppression)",
     "rehearse.grid": "the settings noiselab rehearse --grid tries (every combination)",
     "rehearse.grid.shots_per_evaluation": "shots per evaluation to try",
     "rehearse.grid.optimizer": "optimizers to try",

@@ -235,6 +235,13 @@ def verdict_line(
             f"{head}: the uncertainty of its learned noise model{learn} does not shrink with "
             "more shots."
         )
+    elif str(best.limited_by) == "twirl":
+        std = details.get("std_twirl_mha")
+        tw = f" ({float(std):.3g} mHa)" if std is not None else ""
+        text = (
+            f"{head}: the spread between its {details.get('twirl_instances', 'finite')} random "
+            f"twirls{tw} does not shrink with more shots; raise the twirl pass's draws."
+        )
     else:
         text = f"{head}: its bias keeps it out of reach at any shot count."
     return False, _with_amplification(text, best)

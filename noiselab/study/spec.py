@@ -192,6 +192,7 @@ class TuneGrid(_Strict):
     scales: list[list[float]] | None = Field(default=None, min_length=1)
     fit: list[str] | None = Field(default=None, min_length=1)
     family: list[str] | None = Field(default=None, min_length=1)
+    suppress: list[str] | None = Field(default=None, min_length=1)
 
     @field_validator("scales")
     @classmethod

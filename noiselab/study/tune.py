@@ -55,6 +55,7 @@ class GridOverride:
     scales: Sequence[Sequence[float]] | None = None
     fit: Sequence[str] | None = None
     family: Sequence[str] | None = None
+    suppress: Sequence[str] | None = None
 
 
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
@@ -85,6 +86,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
         family=tuple(dict.fromkeys(str(v) for v in values["family"])),
+        suppress=tuple(dict.fromkeys(str(v) for v in values["suppress"])),
     )
     check_axes(grid, origin)
     return grid, origin
@@ -124,7 +126,11 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
 
     The families beyond the stack: ``error_cancellation`` runs first, with every readout and
     post-selection choice but no extrapolation; ``distillation`` alone (it composes with no
-    readout correction, and is itself the estimator). Both keep the grid small.
+    readout correction, and is itself the estimator). Both keep the grid small, and run without
+    suppression. Suppression passes come first in a setting's recipe; ``measure_twirl`` only
+    with a readout correction (it symmetrizes the assignment for the correction to invert), and
+    ``clifford_regression`` takes no suppression partner (its training circuits are not
+    transformed).
     """
     notes: list[str] = []
     post_axis = grid.postselect
@@ -132,62 +138,83 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
         notes.append("post-selection left out: the encoding keeps no symmetry to check")
         post_axis = (NONE,)
     with_family = any(f != NONE for f in grid.family)
+    with_suppress = any(s != NONE for s in grid.suppress)
     settings: list[Setting] = []
-    skipped = 0
+    skipped = refused = 0
     for family in grid.family:
-        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplifier):
-            if family == "error_cancellation" and amp != NONE:
-                continue
-            if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
-                continue
-            zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
-            if amp in (NONE, REGRESSION):
-                zne_choices = [(None, None)]
-            else:
-                zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
-            for scales, fit in zne_choices:
-                passes: list[dict[str, Any]] = []
-                if family == "error_cancellation":
-                    passes.append({"pass": "error_cancellation"})
-                if ro != NONE:
-                    passes.append({"pass": "readout", "method": ro})
-                if ps != NONE:
-                    passes.append({"pass": "postselect", "mode": ps})
-                if family == "distillation":
-                    passes.append({"pass": "distillation"})
-                if amp == REGRESSION:
-                    passes.append({"pass": REGRESSION})
-                elif amp != NONE:
-                    passes.append(
-                        {
-                            "pass": "extrapolate",
-                            "amplifier": amp,
-                            "scales": list(scales),
-                            "fit": fit,
-                        }
-                    )
-                try:
-                    specs = tuple(make_pass(p, where="tune").spec() for p in passes)
-                except InputError:
-                    skipped += 1  # e.g. an exponential fit given only two scale factors
+        suppress_axis = grid.suppress if family == NONE else (NONE,)
+        if family != NONE and NONE not in grid.suppress:
+            continue
+        for sup in suppress_axis:
+            suppressors = [] if sup == NONE else sup.split("+")
+            for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplifier):
+                if family == "error_cancellation" and amp != NONE:
                     continue
-                options = {
-                    "readout": ro,
-                    "postselect": ps,
-                    "amplifier": amp,
-                    "scales": list(scales) if scales is not None else [],
-                    "fit": fit or NONE,
-                }
-                if with_family:
-                    options["family"] = family
-                settings.append(Setting(_label(options), options, specs))
+                if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
+                    continue
+                if "measure_twirl" in suppressors and ro == NONE:
+                    continue
+                zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
+                if amp in (NONE, REGRESSION):
+                    zne_choices = [(None, None)]
+                else:
+                    zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
+                for scales, fit in zne_choices:
+                    passes: list[dict[str, Any]] = [{"pass": name} for name in suppressors]
+                    if family == "error_cancellation":
+                        passes.append({"pass": "error_cancellation"})
+                    if ro != NONE:
+                        passes.append({"pass": "readout", "method": ro})
+                    if ps != NONE:
+                        passes.append({"pass": "postselect", "mode": ps})
+                    if family == "distillation":
+                        passes.append({"pass": "distillation"})
+                    if amp == REGRESSION:
+                        passes.append({"pass": REGRESSION})
+                    elif amp != NONE:
+                        passes.append(
+                            {
+                                "pass": "extrapolate",
+                                "amplifier": amp,
+                                "scales": list(scales),
+                                "fit": fit,
+                            }
+                        )
+                    try:
+                        specs = tuple(make_pass(p, where="tune").spec() for p in passes)
+                    except InputError:
+                        skipped += 1  # e.g. an exponential fit given only two scale factors
+                        continue
+                    try:
+                        parse_recipe(list(specs), where="tune")
+                    except InputError:
+                        refused += 1  # a pair of passes that declare each other incompatible
+                        continue
+                    options = {
+                        "readout": ro,
+                        "postselect": ps,
+                        "amplifier": amp,
+                        "scales": list(scales) if scales is not None else [],
+                        "fit": fit or NONE,
+                    }
+                    if with_family:
+                        options["family"] = family
+                    if with_suppress:
+                        options["suppress"] = sup
+                    settings.append(Setting(_label(options), options, specs))
     if skipped:
         notes.append(f"{skipped} combination(s) left out: the fit needs more scale factors")
+    if refused:
+        notes.append(
+            f"{refused} combination(s) left out: {REGRESSION} takes no suppression partner"
+        )
     return settings, notes
 
 
 def _label(o: dict[str, Any]) -> str:
     parts = [] if o.get("family", NONE) == NONE else [f"family={o['family']}"]
+    if o.get("suppress", NONE) != NONE:
+        parts.append(f"suppress={o['suppress']}")
     parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
     if o["amplifier"] == NONE:
         parts.append("zne=none")
@@ -201,9 +228,11 @@ def _label(o: dict[str, Any]) -> str:
 
 def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting], list[str]]:
     """The settings whose passes this experiment allows, and a note per family left out
-    (e.g. distillation on a device without 2n + 1 qubits)."""
+    (e.g. distillation on a device without 2n + 1 qubits) and per suppression pass that changes
+    nothing here (its settings equal those without it, which the grid has or the note says)."""
     kept: list[Setting] = []
     notes: dict[str, str] = {}
+    settings, noop_notes = _drop_noop_suppression(ctx, settings)
     for s in settings:
         family = s.options.get("family", NONE)
         if family == NONE or family in notes:
@@ -217,7 +246,27 @@ def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting
             notes[family] = f"{family} left out: {str(exc).split(': ', 1)[-1]}"
             continue
         kept.append(s)
-    return kept, list(notes.values())
+    return kept, [*noop_notes, *notes.values()]
+
+
+def _drop_noop_suppression(
+    ctx: StudyContext, settings: list[Setting]
+) -> tuple[list[Setting], list[str]]:
+    """Leave out the settings with a suppression pass that is a no-op on this experiment
+    (``MitigationPass.no_op``): the same setting without it gives the same energy."""
+    reasons: dict[str, str | None] = {}
+    kept: list[Setting] = []
+    for s in settings:
+        sup = s.options.get("suppress", NONE)
+        names = [] if sup == NONE else sup.split("+")
+        for name in names:
+            if name not in reasons:
+                reasons[name] = make_pass({"pass": name}, where="tune").no_op(ctx.experiment)
+        if any(reasons[n] for n in names):
+            continue
+        kept.append(s)
+    notes = [f"{n} left out: {why}" for n, why in reasons.items() if why]
+    return kept, notes
 
 
 def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:
