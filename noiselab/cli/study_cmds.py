@@ -16,7 +16,6 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
-    STUDY_JOB,
     CountOpt,
     JsonOpt,
     StudyArg,
@@ -97,7 +96,7 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    STUDY_JOB,
+    EXECUTOR_JOB,  # --workers / --cluster: used by pauli_propagation (one task per group)
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -131,7 +130,9 @@ def assess_cmd(
         # the files carry the provenance block; --json (a stream compared between runs) does not
         return _write_assess_outputs(res, folder, job_provenance(study, res.seed))
 
-    result, written = run_job(assess, study, run, write=write, quiet=json_out, drift=draws)
+    result, written = run_job(
+        assess, study, run, write=write, executor=True, quiet=json_out, drift=draws
+    )
     if json_out:
         print_json(result.to_json(with_stats=timings))
         emit_report("assess", result, report_dir, study, result.seed)
