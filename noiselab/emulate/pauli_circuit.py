@@ -175,16 +175,19 @@ class PauliEnergy:
     tasks: int = 1
 
 
-#: One unit of work: (observable terms of some groups, program, rule, sampling or None).
-PropagationTask = tuple[PauliTerms, Sequence[Instruction], Truncation, Sampling | None]
+#: One unit of work: (observable terms of some groups, program, rule, sampling or None, the
+#: finer-expanded means for the estimate's check run or None).
+PropagationTask = tuple[
+    PauliTerms, Sequence[Instruction], Truncation, Sampling | None, PauliTerms | None
+]
 
 
 def propagate_task(item: PropagationTask) -> tuple[Propagated, TruncationEstimate | None]:
     """One task of :func:`pauli_energy` (module level and picklable: an executor's ``fn``)."""
-    observable, program, rule, sampling = item
+    observable, program, rule, sampling, check = item
     if sampling is None:
         return propagate(observable, program, rule), None
-    return propagate_estimated(observable, program, rule, sampling)
+    return propagate_estimated(observable, program, rule, sampling, check)
 
 
 def pauli_energy(
@@ -217,11 +220,13 @@ def pauli_energy(
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
-    # with sampling the expansion keeps finer products: the main truncation then drops them,
+    cut = rule.min_abs_coeff
+    # the estimate's check run expands more finely: its truncation then drops those products,
     # so they are sampled too, instead of joining only the bound
-    cut = rule.min_abs_coeff * (EXPANSION_REFINE * sampling.finer if sampling is not None else 1.0)
+    fine_cut = cut * EXPANSION_REFINE * (sampling.finer if sampling is not None else 1.0)
     parts: list[PauliTerms] = []
-    lost = np.zeros(len(groups))
+    checks: list[PauliTerms] = []
+    lost, fine_lost = np.zeros(len(groups)), np.zeros(len(groups))
     for g, (basis, terms) in enumerate(groups):
         measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
         layer_ns = layer_duration_ns(measured, layer)
@@ -240,20 +245,27 @@ def pauli_energy(
             }
         # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
         first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
-        if outcome_values is not None and lost[g] > 0:  # an M of norm > 1 may follow a cut
+        if sampling is not None:
+            fine, fine_lost[g] = basis_observable(
+                terms, observables, circuit_qubit, fine_cut, 2 * g
+            )
+            checks.append(fine)
+        if outcome_values is not None:  # an M of norm > 1 may follow a cut
             norm = max(1.0, *(float(np.abs(m).sum()) for m in observables.values()))
-            lost[g] *= norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
+            power = norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
+            lost[g] *= power
+            fine_lost[g] *= power
         second, _ = basis_observable(
             _squared_terms(terms, outcome_values is not None),
             observables,
             circuit_qubit,
-            rule.min_abs_coeff,
+            cut,
             2 * g + 1,
             squared,
         )
         parts += [first, second]
     n_tags = 2 * len(groups)
-    done = _run_tasks(parts, program, rule, sampling, executor)
+    done = _run_tasks(parts, checks, program, rule, sampling, executor)
     values, bounds = np.zeros(n_tags), np.zeros(n_tags)
     estimate, var, residual = np.zeros(n_tags), np.zeros(n_tags), np.zeros(n_tags)
     for result, est in done:
@@ -271,7 +283,7 @@ def pauli_energy(
         extra = {
             "truncation_estimate_ha": float(estimate[0::2].sum()),
             "truncation_std_ha": float(np.sqrt(var[0::2].sum())),
-            "estimate_residual_ha": float(residual[0::2].sum() + lost.sum()),
+            "estimate_residual_ha": float(residual[0::2].sum() + fine_lost.sum()),
         }
     return PauliEnergy(
         float(constant_ha + means.sum()),
@@ -286,18 +298,27 @@ def pauli_energy(
 
 def _run_tasks(
     parts: list[PauliTerms],
+    checks: list[PauliTerms],
     program: list[Instruction],
     rule: Truncation,
     sampling: Sampling | None,
     executor: Any,
 ) -> list[tuple[Propagated, TruncationEstimate | None]]:
-    """One joint propagation in-process (numpy on long arrays), or one task per group pair
-    (mean, second moment) on ``executor``; tags are the groups' own, so results add up."""
+    """One joint propagation in-process (numpy on long arrays), or one task per group (mean and
+    second moment; its check observable) on ``executor``; tags are the groups' own, so the
+    results add up."""
     if executor is None or getattr(executor, "in_process", False):
-        return [propagate_task((PauliTerms.join(parts), program, rule, sampling))]
+        check = PauliTerms.join(checks) if checks else None
+        return [propagate_task((PauliTerms.join(parts), program, rule, sampling, check))]
     items = [
-        (PauliTerms.join(parts[i : i + 2]), program, rule, sampling)
-        for i in range(0, len(parts), 2)
+        (
+            PauliTerms.join(parts[2 * g : 2 * g + 2]),
+            program,
+            rule,
+            sampling,
+            checks[g] if checks else None,
+        )
+        for g in range(len(parts) // 2)
     ]
     return list(executor.map(propagate_task, items))
 

@@ -11,7 +11,7 @@ between the two thresholds contribute (deterministic; most of the error, as drop
 damped by the noise still ahead). (2) What the check run itself drops: every such term is kept
 independently with probability ``p_i = min(1, |c_i| / tau)`` (Poisson sampling; ``tau`` per
 observable: its dropped mass over ``samples``, so about ``samples`` terms are kept) and
-carried on to the start with the finer threshold ``refine * tau``; the Horvitz-Thompson sum
+carried on to the start with the threshold ``refine * mass / samples``; the Horvitz-Thompson sum
 ``sum_kept c_i f_i / p_i`` is unbiased for the missing part (Horvitz and Thompson 1952), up to
 what the continuation itself drops (``residual``: a bound, in the same units). Error bar: the
 kept terms with ``p_i < 1`` are spread at random over ``batches`` batches; ``batches`` times the
@@ -48,7 +48,7 @@ class Sampling:
 
     ``seed``: of the hash; ``samples``: expected kept terms per observable; ``batches``: for
     the error bar; ``finer``: the check run's threshold over the main one (1: no check run);
-    ``refine``: continuation threshold over ``tau``; ``tag_step``: only tags divisible by it
+    ``refine``: continuation threshold over mass / samples; ``tag_step``: only tags divisible by it
     are estimated (e.g. 2: means, not second moments)."""
 
     seed: int
@@ -114,11 +114,15 @@ def propagate_estimated(
     program: Sequence[Instruction],
     rule: Truncation,
     sampling: Sampling,
+    check_observable: PauliTerms | None = None,
 ) -> tuple[Propagated, TruncationEstimate]:
-    """:func:`propagate` with ``rule``, and the estimate of what its truncation missed."""
+    """:func:`propagate` with ``rule``, and the estimate of what its truncation missed;
+    ``check_observable``: the same observables expanded more finely, for the check run (None:
+    ``observable``; tags absent from it count as not estimated)."""
     main = propagate(observable, program, rule)
     check_rule = dataclasses.replace(rule, min_abs_coeff=rule.min_abs_coeff * sampling.finer)
-    check, est = _sampled(observable, program, check_rule, sampling)
+    check_obs = observable if check_observable is None else check_observable
+    check, est = _sampled(check_obs, program, check_rule, sampling)
     n = max(len(main.values), len(check.values))
     diff = _pad(check.values, n) - _pad(main.values, n)
     diff[np.arange(n) % max(int(sampling.tag_step), 1) != 0] = 0.0
@@ -172,7 +176,10 @@ def _sampled(
     joined = {step: PauliTerms.join(parts) for step, parts in inject.items()}
     empty = np.zeros(0, dtype=np.uint64)
     start = PauliTerms(empty, empty, np.zeros(0), np.zeros(0, dtype=np.int64))
-    cut = np.repeat(sampling.refine * tau, b + 1)
+    # relative to the dropped mass per sample, not to tau: where little is dropped (tau at its
+    # floor) the few carried terms are continued almost exactly
+    per_sample = main.bounds / max(int(sampling.samples), 1)
+    cut = np.repeat(sampling.refine * np.maximum(per_sample, 1e-15), b + 1)
     carry = Truncation(max_strings=rule.max_strings)
     cont = propagate(start, program, carry, cut=cut, inject=joined)
     per = _pad(cont.values, n_tags * (b + 1)).reshape(n_tags, b + 1)

@@ -142,6 +142,7 @@ def _score(
         "emulation_method": METHOD,
         "truncation_bound_mha": 1e3 * got.truncation_bound_ha,
         "peak_strings": int(got.peak_strings),
+        "propagation_tasks": int(got.tasks),
         "notice": NOTICE,
     }
     fixed = 0.0
