@@ -17,7 +17,10 @@ for a recipe that twirls and an approximation otherwise; callers must say so.
 weight above ``max_weight``) are dropped. Each dropped term ``c P`` changes the result by
 ``|c <P>_rho|`` for the state at that point, so the sum of the dropped ``|c|`` bounds the
 truncation error (unital Pauli channels and unitaries never increase a Heisenberg operator's
-norm). The bound is reported beside the value.
+norm). The bound is reported beside the value; it is loose by orders of magnitude (most dropped
+strings are damped by the noise still ahead), so :mod:`noiselab.emulate.pauli_truncation`
+estimates the error itself, with a standard error (``on_drop`` / ``inject`` / ``cut`` below
+serve it).
 
 Strings are two uint64 words (X bits, Z bits): at most 64 qubits. A string ``(x, z)`` is the
 Hermitian operator ``i^{|x & z|} X^x Z^z`` (so ``(1, 1)`` is Y).

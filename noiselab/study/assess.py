@@ -140,6 +140,12 @@ def assess(
         pauli_ok=True,
     )
     study, store, t0 = job.study, job.store, job.t0
+    parallel = (workers or 1) > 1 or cluster is not None or executor is not None
+    if parallel and study.emulation.method != PAULI_METHOD:  # refused before any work
+        raise InputError(
+            f"--workers/--cluster: assess spreads work only with emulation.method "
+            f"{PAULI_METHOD}; allowed here: leave them out (method {study.emulation.method})"
+        )
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = override_key_options(study, seed, shots, method, trajectories)
@@ -158,11 +164,6 @@ def assess(
             result = _assess_pauli(study, ctx, drift, t0, ex)
         save_job_result(store, key, result)
         return result
-    if (workers or 1) > 1 or cluster is not None or executor is not None:
-        raise InputError(
-            f"--workers/--cluster: assess spreads work only with emulation.method "
-            f"{PAULI_METHOD}; allowed here: leave them out (method {ctx.emulation_method})"
-        )
     check_recipes(ctx, study.recipes)
     runner = CachingRunner(ctx.experiment, store)
     with naming_source(study.source):
