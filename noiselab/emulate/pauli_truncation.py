@@ -52,7 +52,7 @@ class Sampling:
     are estimated (e.g. 2: means, not second moments)."""
 
     seed: int
-    samples: int = 256
+    samples: int = 1024
     batches: int = 16
     finer: float = 0.1
     refine: float = 0.1
