@@ -305,7 +305,7 @@ def threshold_figure(parts: list[dict], path: Path) -> Path:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 4.2))
+    fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 5.2))
     for k, part in enumerate(parts):
         col = f"C{k}"
         thr = [r["threshold"] for r in part["rows"]]
@@ -351,7 +351,7 @@ def threshold_figure(parts: list[dict], path: Path) -> Path:
     ax.set_title("Truncation error against the density matrix (twirled noise)")
     bx.set_ylabel("time (s)")
     bx.set_title("Time (thin lines: density matrix)")
-    ax.legend(fontsize=6.5)
+    ax.legend(fontsize=6.5, loc="center left", bbox_to_anchor=(0.0, 0.5))
     bx.legend(fontsize=6.5)
     fig.tight_layout()
     path.parent.mkdir(parents=True, exist_ok=True)
