@@ -31,6 +31,8 @@ _LAZY: dict[str, str] = {
     "sweep_figure": "noiselab.report.figures:sweep_figure",
     "budget_figure": "noiselab.report.figures:budget_figure",
     "write_report": "noiselab.report.proposal:write_report",
+    "figure_style": "noiselab.report.style:figure_style",
+    "write_tuned_study": "noiselab.study.tuned_copy:write_tuned_study",
 }
 
 

@@ -164,6 +164,8 @@ WILD = {
     "--devices": st.sampled_from(["cobaltgrid-12", "no-such-chip", "", "/dev/null"]),
     "--refine": st.one_of(NUMBERS, st.integers(-3, 100).map(str)),
     "--bond": st.sampled_from([["0", "1"], ["0", "0"], ["0", "7"], ["-1", "1"], ["a", "1"]]),
+    "--style": st.sampled_from(["paper", "talk", "poster", ""]),
+    "--coherence-gate-errors": st.sampled_from(["follow", "fixed", "both", ""]),
 }
 # values that keep a valid run small (2 qubits, a few points, cached simulations)
 TAME = {
@@ -190,13 +192,15 @@ TAME = {
     "--devices": st.sampled_from(["cobaltgrid-12", "tallowtrap-8"]),
     "--refine": st.sampled_from(["0", "0e0"]),
     "--bond": st.just(["0", "1"]),
+    "--style": st.sampled_from(["paper", "talk"]),
+    "--coherence-gate-errors": st.sampled_from(["follow", "fixed"]),
 }
 # scan: a tame line keeps its geometry small (two points near equilibrium, no refinement)
 SCAN_TAME = {"--from": st.sampled_from(["0.6", "0.7"]), "--to": st.sampled_from(["0.8", "0.9"])}
 OPTIONS = {
-    "assess": ["--shots", "--seed", "--method", "--trajectories"],
+    "assess": ["--shots", "--seed", "--method", "--trajectories", "--style"],
     "sweep": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--points",
-              "--from", "--to", "--vary", "--recipe"],
+              "--from", "--to", "--vary", "--recipe", "--style", "--coherence-gate-errors"],
     "tune": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--top", "--fit",
              "--scales", "--readout"],
     "budget": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--recipe"],

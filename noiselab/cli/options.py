@@ -130,11 +130,22 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         ),
         None,
     ),
+    "style": (
+        str,
+        _option(
+            "--style",
+            help="Look of the figures written: paper (for a document; the default) or talk "
+            "(larger type, thicker lines, larger figures, for slides).",
+        ),
+        "paper",
+    ),
 }
 
 #: The run options of a study job without and with an executor.
 STUDY_JOB = ("out", "cache", "no_cache", "seed", "shots", "quiet", "method", "trajectories")
 EXECUTOR_JOB = (*STUDY_JOB, "workers", "cluster")
+#: Add to a command's run options when it writes figures.
+FIGURES = ("style",)
 
 
 def run_options(
@@ -183,9 +194,19 @@ def run_options(
             from noiselab.study.run_options import RunOptions
 
             given = {name: kwargs.pop(name) for name in names}
+            style = given.pop("style", None)
+            if style is None:
+                names_out = files() if callable(files) else files
+                run = RunOptions.from_command_line(out_files=names_out, **given)
+                return command(*args, run=run, **kwargs)
+            # figures are drawn and saved in the style asked for (report layer: on call)
+            from noiselab.report.style import figure_style, get_style
+
+            get_style(style)  # an unknown style is refused before any work
             names_out = files() if callable(files) else files
             run = RunOptions.from_command_line(out_files=names_out, **given)
-            return command(*args, run=run, **kwargs)
+            with figure_style(style):
+                return command(*args, run=run, **kwargs)
 
         params = [p for p in kept if p.kind != inspect.Parameter.KEYWORD_ONLY]
         params += [p for p in kept if p.kind == inspect.Parameter.KEYWORD_ONLY] + added

@@ -12,7 +12,15 @@ import typer
 
 from noiselab.cli.console import echo_written, print_json, print_table
 from noiselab.cli.jobs import run_job
-from noiselab.cli.options import CountOpt, JsonOpt, StudyArg, epilog, option, run_options
+from noiselab.cli.options import (
+    FIGURES,
+    CountOpt,
+    JsonOpt,
+    StudyArg,
+    epilog,
+    option,
+    run_options,
+)
 
 if TYPE_CHECKING:
     from noiselab.study.run_options import RunOptions
@@ -29,7 +37,7 @@ GRID_FILES = ("rehearse_grid.json", "rehearse_grid.csv")
 
 
 @run_options(
-    ("out", "seed", "cache", "no_cache", "quiet"),
+    ("out", "seed", "cache", "no_cache", "quiet", *FIGURES),
     files=(*REHEARSE_FILES, *GRID_FILES),
     helps={
         "out": "Folder for rehearse.json, rehearse_traces.csv and rehearse.png. "

@@ -11,6 +11,7 @@ from noiselab.cli.console import print_plain_table as _table
 from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     EXECUTOR_JOB,
+    FIGURES,
     STUDY_JOB,
     CountOpt,
     RecipesOpt,
@@ -28,7 +29,7 @@ COMPARE_FILES = ("compare.json", "compare.csv", *(f"compare.{e}" for e in FIGURE
 SCAN_FILES = ("scan.json", "scan.csv", *(f"scan.{e}" for e in FIGURE_EXTS))
 
 
-@run_options(STUDY_JOB, files=COMPARE_FILES, helps=OUT_HELP)
+@run_options((*STUDY_JOB, *FIGURES), files=COMPARE_FILES, helps=OUT_HELP)
 def compare_cmd(
     ctx: typer.Context,
     study: StudyArg,
@@ -55,7 +56,7 @@ def compare_cmd(
     echo_written(written)
 
 
-@run_options(EXECUTOR_JOB, files=SCAN_FILES, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=SCAN_FILES, helps=OUT_HELP)
 def scan_cmd(
     study: StudyArg,
     run: RunOptions,

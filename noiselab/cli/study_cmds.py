@@ -16,6 +16,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
+    FIGURES,
     CountOpt,
     JsonOpt,
     StudyArg,
@@ -96,7 +97,8 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    EXECUTOR_JOB,  # --workers / --cluster: used by pauli_propagation (one task per group)
+    # --workers / --cluster: used by pauli_propagation (one task per group)
+    (*EXECUTOR_JOB, *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -212,12 +214,24 @@ def tune_cmd(
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
+    study_copy: Annotated[
+        Path | None,
+        typer.Option(
+            "--study-copy",
+            help="Also write a copy of the study to this YAML file with the first-ranked "
+            "setting added under recipes (as 'tuned'); never the study file itself.",
+            show_default=False,
+        ),
+    ] = None,
 ) -> None:
     """Rank a grid of mitigation settings by the probability of reaching the target."""
     from noiselab.common.counts import parse_count
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
+    from noiselab.study.tuned_copy import check_copy_target, write_tuned_study
 
     n_top = parse_count(top, "--top", 1, 10**6)
+    if study_copy is not None:
+        check_copy_target(study, study_copy)  # refused before any work
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
@@ -229,6 +243,8 @@ def tune_cmd(
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override
     )
+    if study_copy is not None:
+        written = [*written, write_tuned_study(result, study, study_copy)]
     if json_out:
         print_json(result.to_json(with_stats=timings))
         return
@@ -274,7 +290,7 @@ def tune_cmd(
 
 
 @run_options(
-    ("out", "cache", "no_cache", "quiet"),
+    ("out", "cache", "no_cache", "quiet", *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for the demo's files (in the current directory)."},
     defaults={"out": DEMO_DIR},

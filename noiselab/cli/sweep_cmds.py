@@ -15,6 +15,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
+    FIGURES,
     CountOpt,
     RecipesOpt,
     StudyArg,
@@ -58,7 +59,7 @@ def _print(table: Any) -> None:
     console().print(table)
 
 
-@run_options(EXECUTOR_JOB, files=sweep_files, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=sweep_files, helps=OUT_HELP)
 def sweep_cmd(
     study: StudyArg,
     run: RunOptions,
@@ -106,6 +107,16 @@ def sweep_cmd(
         ),
     ] = None,
     recipe: RecipesOpt = None,
+    coherence_gate_errors: Annotated[
+        str | None,
+        typer.Option(
+            "--coherence-gate-errors",
+            help="With --vary coherence-us: follow (the relaxation part of every quoted gate "
+            "error moves with T1/T2, the rest is held) or fixed (quoted gate errors kept). "
+            "Default: the study's sweep.coherence_gate_errors, else follow.",
+            show_default=False,
+        ),
+    ] = None,
     report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
@@ -133,6 +144,7 @@ def sweep_cmd(
         points=points,
         log=log,
         recipes=recipe or None,
+        coherence_gate_errors=coherence_gate_errors,
     )
     from noiselab.report.tables import sweep_table
 
@@ -155,7 +167,7 @@ def sweep_cmd(
     emit_report("sweep", result, report_dir, study, run.seed)
 
 
-@run_options(EXECUTOR_JOB, files=BUDGET_FILES, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=BUDGET_FILES, helps=OUT_HELP)
 def budget_cmd(
     study: StudyArg,
     run: RunOptions,

@@ -8,16 +8,22 @@ decoupling in idle windows, measurement twirling.
   Pauli transfer matrix; Wallman and Emerson 2016). The always-on terms of
   :mod:`noiselab.device.evolution` are not twirled (``decouple`` acts on them).
 * :class:`Decouple` (``decouple``): every idle window (a ``delay`` after the qubit's first gate)
-  long enough gets an X-X or XY4 sequence, pulses centred at (2k+1) D / (2n) of the window D
-  (CPMG spacing), each a native x (Y = rz(pi) then x, rz virtual) with the profile's error and
-  duration. Neighbours on the coupling graph are staggered (graph two-colouring): the second
-  colour runs the sequence twice as often, so that the always-on ZZ between two decoupled
-  neighbours is refocused too (their toggling signs are orthogonal over the window).
+  that the pulses fit in gets an XY4 or X-X sequence (X-X where XY4 does not fit), pulses centred
+  at (2k+1) D / (2n) of the window D (CPMG spacing), each a native x (Y = rz(pi) then x, rz
+  virtual) with the profile's error and duration. Neighbours on the coupling graph are staggered
+  (graph two-colouring): the second colour runs the sequence twice as often, so that the
+  always-on ZZ between two decoupled neighbours is refocused too (their toggling signs are
+  orthogonal over the window). Windows before a qubit's first gate are left alone (the qubit is
+  in |0>, where decoupling is not the usual practice; with the symmetric ZZ of
+  :mod:`noiselab.device.evolution` its neighbours still pick up a phase then, which stays).
 * :class:`MeasureTwirl` (``measure_twirl``): a random X before each measurement, undone
   classically. The exact average replaces each qubit's assignment matrix A by (A + X A X) / 2
-  (P(1|0) = P(0|1) = their mean); the joint flips are symmetric already. The X pulse's own gate
-  error on half the shots is left out (in the experiment's favour; it is a single-qubit error,
-  small beside readout error). The readout calibration circuits are twirled the same way.
+  (P(1|0) = P(0|1) = their mean); the joint flips are symmetric already. Outcome-dependent
+  flips are not: on the qubits they touch the readout map becomes the exact average over the
+  2^m flips (``untwirled_readout_flips``, :func:`noiselab.device.readout_map.readout_terms`). The X
+  pulse's own gate error on half the shots is left out (in the experiment's favour; it is a
+  single-qubit error, small beside readout error). The readout calibration circuits are
+  twirled the same way.
 """
 
 from __future__ import annotations
@@ -95,6 +101,18 @@ class MeasureTwirl(CircuitTransform):
         data = profile.model_dump(exclude_unset=True)
         for q, values in overrides.items():
             data["qubits"].setdefault("overrides", {}).setdefault(q, {}).update(values)
+        conditional = sorted(
+            {
+                q
+                for e in profile.readout_crosstalk
+                if e.flip_a_if_b_reads_1 > 0.0 or e.flip_b_if_a_reads_1 > 0.0
+                for q in e.pair
+            }
+        )
+        if conditional and not profile.untwirled_readout_flips:
+            data["untwirled_readout_flips"] = [
+                (q, profile.qubit(q).flip_0to1, profile.qubit(q).flip_1to0) for q in conditional
+            ]
         out = DeviceProfile.model_validate(data, context={_CTX_ALLOW_INFINITE: True})
         out._source = profile.source
         return Applied(compiled, out, 1.0)
@@ -119,7 +137,7 @@ def _colouring(num_qubits: int, links: set[tuple[int, int]]) -> list[int]:
 @dataclass(frozen=True)
 class Decouple(CircuitTransform):
     """Dynamical decoupling (``sequence``: "x_x" | "xy4") in idle windows of at least
-    ``min_window_ns`` (and room for the pulses: twice their total duration)."""
+    ``min_window_ns`` that the pulses fit in (X-X where XY4 does not fit)."""
 
     kind: ClassVar[str] = "decouple"
     changes_circuit: ClassVar[bool] = True  # realized scale: error budget with the pulses
@@ -139,6 +157,15 @@ class Decouple(CircuitTransform):
             compiled.circuit, profile, compiled.patch, self.sequence, self.min_window_ns
         )
         return Applied(dataclasses.replace(compiled, circuit=circ), profile, 1.0)
+
+
+def _fitting_pulses(sequence: str, colour: int, window_ns: float, pulse_ns: float) -> tuple:
+    """The longest of ``sequence`` and X-X (times 1 + ``colour``) whose pulses fit the window."""
+    for name in dict.fromkeys((sequence, "x_x")):
+        pulses = DD_SEQUENCES[name] * (1 + colour)
+        if len(pulses) * pulse_ns <= window_ns * (1.0 + 1e-9):
+            return pulses
+    return ()
 
 
 def decouple_circuit(
@@ -169,11 +196,11 @@ def decouple_circuit(
             continue
         q = qs[0]
         window_ns = delay_seconds(op) * 1e9
-        pulses = DD_SEQUENCES[sequence] * (1 + colour[q])
-        n = len(pulses)
-        if not started[q] or window_ns < max(min_window_ns, 2.0 * n * pulse_ns):
+        pulses = _fitting_pulses(sequence, colour[q], window_ns, pulse_ns)
+        if not started[q] or window_ns < min_window_ns or not pulses:
             out.append(op, qs)
             continue
+        n = len(pulses)
         gap_ns = (window_ns - n * pulse_ns) / n
         out.delay(gap_ns / 2 * 1e-9, q, unit="s")
         for m, name in enumerate(pulses):

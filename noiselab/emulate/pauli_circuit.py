@@ -5,8 +5,8 @@ rotations followed by the Pauli-twirled channel the device's noise model attache
 idle window (``delay``) as the twirled relaxation channel the model's noise pass inserts, and
 the measured observable of each measurement basis including the basis-change layer (its gates'
 noise and the idle relaxation of qubits waiting for it, exactly, as single-qubit channels) and
-the readout assignment matrix of each qubit. Readout crosstalk (joint flips) is left out: a
-product of per-qubit observables cannot carry it (callers say so).
+the readout assignment matrix of each qubit. Readout crosstalk (joint and outcome-dependent
+flips) is left out: a product of per-qubit observables cannot carry it (callers say so).
 
 ``pauli_energy(...)`` gives the energy a plan's grouped measurement would estimate, its variance
 per shot of each group, and the truncation bound, without any density matrix.

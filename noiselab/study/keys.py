@@ -131,6 +131,9 @@ MEANINGS: dict[str, str] = {
     "sweep.points": "number of values",
     "sweep.log": "space the values logarithmically",
     "sweep.recipes": "recipes to follow (names under recipes)",
+    "sweep.coherence_gate_errors": "coherence-us knob only: follow (the relaxation part of "
+    "each quoted gate error moves with T1/T2, the rest is held) or fixed (quoted gate errors "
+    "kept); default follow",
     # scan
     "scan.bond": "the two atoms (0-based) whose bond is stretched",
     "scan.scale": "scale the whole geometry instead of one bond",
@@ -252,9 +255,19 @@ MEANINGS: dict[str, str] = {
     "shot, Gaussian between shots)",
     "twirled_two_qubit_gates": "set by the twirl pass, not by hand: two-qubit gate errors "
     "replaced by their Pauli-twirled part",
+    "zz_during_own_gate": "whether a pair's always-on ZZ also acts during its own two-qubit "
+    "gate: in_calibration (no, the default: the gate's conditional phase was calibrated with the "
+    "static ZZ present, as on a chip) or extra (yes, on top of the calibrated gate)",
     "readout_crosstalk": "correlated readout errors of linked pairs",
     "readout_crosstalk[i].pair": "the linked pair [a, b]",
     "readout_crosstalk[i].joint_flip": "probability that both bits flip together",
+    "readout_crosstalk[i].flip_a_if_b_reads_1": "probability that a's reported bit flips when "
+    "b reads 1 (b's reported bit after its own assignment error: b's readout signal is the "
+    "disturbance); outcome-dependent, so the readout map is no tensor product",
+    "readout_crosstalk[i].flip_b_if_a_reads_1": "probability that b's reported bit flips when "
+    "a reads 1",
+    "untwirled_readout_flips": "set by the measure_twirl pass, not by hand: [qubit, P(1|0), "
+    "P(0|1)] before twirling, of the qubits with outcome-dependent readout flips",
     "drift": "relative day-to-day spreads of the device's values (noiselab assess --drift)",
     "drift.t1_rel_std": "relative standard deviation of T1",
     "drift.t2_rel_std": "relative standard deviation of T2",
@@ -310,6 +323,8 @@ UNITS: dict[str, str] = {
     "flip_0to1": "probability",
     "flip_1to0": "probability",
     "readout_crosstalk[i].joint_flip": "probability",
+    "readout_crosstalk[i].flip_a_if_b_reads_1": "probability",
+    "readout_crosstalk[i].flip_b_if_a_reads_1": "probability",
     "confidence": "probability",
     "extrapolate.scales": "factor",
     "tune.scales": "factor",

@@ -219,7 +219,9 @@ class SweepDefaults(_Strict):
 
     ``vary``: the knob (noise-scale, two-qubit-error, one-qubit-error, coherence-us,
     readout-error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
-    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow.
+    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow;
+    ``coherence_gate_errors`` (coherence-us only): ``follow`` (default) moves the relaxation
+    part of every quoted gate error with T1/T2, ``fixed`` keeps the quoted errors.
     """
 
     vary: str | None = None
@@ -228,6 +230,7 @@ class SweepDefaults(_Strict):
     points: Count | None = Field(default=None, ge=2, le=MAX_SWEEP_POINTS)
     log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
+    coherence_gate_errors: Literal["follow", "fixed"] | None = None
 
     @field_validator("vary")
     @classmethod
@@ -563,15 +566,30 @@ def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[st
         raise error from None
 
 
-_SWEEP_OPTIONS = {"points": "--points", "start": "--from", "stop": "--to"}
+_SWEEP_OPTIONS = {
+    "points": "--points",
+    "start": "--from",
+    "stop": "--to",
+    "coherence_gate_errors": "--coherence-gate-errors",
+}
 
 
 def validate_sweep_options(
-    source: str, *, points: Any = None, start: Any = None, stop: Any = None
+    source: str,
+    *,
+    points: Any = None,
+    start: Any = None,
+    stop: Any = None,
+    coherence_gate_errors: Any = None,
 ) -> SweepDefaults:
     """Command-line sweep values through the file's own ``sweep:`` model (bounds included);
     a refused value is named by its option (``--points``)."""
-    data = {"points": points, "start": start, "stop": stop}
+    data = {
+        "points": points,
+        "start": start,
+        "stop": stop,
+        "coherence_gate_errors": coherence_gate_errors,
+    }
     try:
         return SweepDefaults.model_validate(data)
     except ValidationError as exc:

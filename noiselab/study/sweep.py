@@ -12,8 +12,8 @@ Each knob (:mod:`noiselab.study.knobs`) carries its bounds and its reference val
 of the target (:mod:`noiselab.study.crossings`) are located by bisection on the knob with new
 evaluations between the grid points that bracket them, through the results cache.
 
-Just over 400 lines: the sweep record and its JSON, the configuration tasks that budget
-reuses, and the job itself.
+About 500 lines: the sweep record and its JSON (notes on the coherence knob's two modes
+included), the configuration tasks that budget reuses, and the job itself.
 """
 
 from __future__ import annotations
@@ -24,6 +24,7 @@ from typing import Any
 
 from noiselab.common.errors import input_error
 from noiselab.common.wording import CAUTION
+from noiselab.device.coherence import scale_coherence_with_gates
 from noiselab.device.profile import scale_profile
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.cache import CachingRunner
@@ -45,13 +46,23 @@ from noiselab.study.results import RunStats, trajectory_std_of
 # ---------------------------------------------------------------- records
 
 
-#: What the coherence knob does to the gate errors (said in its output).
+#: What the coherence knob does to the gate errors (said in its output), per mode of
+#: ``sweep.coherence_gate_errors`` / ``--coherence-gate-errors``.
 COHERENCE_NOTE = (
-    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
+    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed "
+    "(coherence_gate_errors: fixed): only the "
     "idle relaxation and the split of each gate's error between relaxation and depolarizing "
     "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
     "errors too, sweep one-qubit-error or two-qubit-error alongside"
 )
+COHERENCE_FOLLOW_NOTE = (
+    "the coherence-us knob changes T1 and T2 and moves the relaxation part of every quoted gate "
+    "error with them (coherence_gate_errors: follow): each gate error is what T1/T2 cause over "
+    "the gate's duration plus the rest of the quoted error, held fixed (the rest is assumed "
+    "independent of coherence)"
+)
+#: The modes of the coherence knob; the first is the default.
+COHERENCE_GATE_MODES = ("follow", "fixed")
 
 
 @dataclasses.dataclass(frozen=True, repr=False)
@@ -74,6 +85,10 @@ class SweepResult(NotebookDisplay):
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
     confidence: float = 0.95
+    #: coherence-us only: "follow" or "fixed" (None for the other knobs)
+    coherence_gate_errors: str | None = None
+    #: coherence-us with "follow": where a gate error was clipped (rest below 0, or too large)
+    clipped: tuple[str, ...] = ()
 
     @property
     def knob_spec(self) -> Knob:
@@ -118,7 +133,15 @@ class SweepResult(NotebookDisplay):
         knob = self.knob_spec
         out: list[str] = []
         if knob.name == "coherence-us":
-            out.append(COHERENCE_NOTE)
+            follow = self.coherence_gate_errors == "follow"
+            out.append(COHERENCE_FOLLOW_NOTE if follow else COHERENCE_NOTE)
+        if self.clipped:
+            shown = "; ".join(self.clipped[:4]) + ("; ..." if len(self.clipped) > 4 else "")
+            out.append(
+                f"clipped gate errors ({shown}): where the quoted error is below what T1/T2 "
+                "cause over the gate, its other part is taken as 0; an error above the maximum "
+                "is held at the maximum"
+            )
         low = [p.value for p in self.points if p.floored]
         if low:
             out.append(
@@ -149,6 +172,11 @@ class SweepResult(NotebookDisplay):
                 knob.unit
             ],
             "log_spacing": self.log,
+            **(
+                {"coherence_gate_errors": self.coherence_gate_errors}
+                if self.coherence_gate_errors is not None
+                else {}
+            ),
             "current_value": self.current_value,
             "target_mha": self.target_mha,
             "confidence": self.confidence,
@@ -310,6 +338,7 @@ def sweep(
     method: str | None = None,
     trajectories: int | None = None,
     cluster: Any = None,
+    coherence_gate_errors: str | None = None,
 ) -> SweepResult:
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
@@ -320,7 +349,9 @@ def sweep(
     False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
     e.g. a dask one; ``cluster``: a Dask scheduler address or Client). ``on_point(index,
     point)`` is called in the calling process as each point finishes. ``method`` /
-    ``trajectories`` override the study's ``emulation:`` section.
+    ``trajectories`` override the study's ``emulation:`` section. ``coherence_gate_errors``
+    (coherence-us only): "follow" (default) moves the relaxation part of every quoted gate
+    error with T1/T2 (:mod:`noiselab.device.coherence`), "fixed" keeps the quoted errors.
     """
     job = start_job(
         study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
@@ -341,8 +372,15 @@ def sweep(
     stop = stop if not same_knob else default("stop", stop, None)
     from noiselab.study.spec import validate_sweep_options
 
-    given = validate_sweep_options(str(study.source), points=points, start=start, stop=stop)
+    given = validate_sweep_options(
+        str(study.source),
+        points=points,
+        start=start,
+        stop=stop,
+        coherence_gate_errors=coherence_gate_errors,
+    )
     start, stop = given.start, given.stop
+    mode = default("coherence_gate_errors", given.coherence_gate_errors, COHERENCE_GATE_MODES[0])
     points = int(default("points", given.points, 5))
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
@@ -367,6 +405,7 @@ def sweep(
             log,
             picked,
             values,
+            mode if spec.name == "coherence-us" else None,
             store,
             ex,
             progress,
@@ -385,6 +424,7 @@ def _sweep_with(
     log: bool,
     picked: tuple[tuple[str, tuple[dict[str, Any], ...]], ...],
     values: Sequence[float] | None,
+    mode: str | None,
     store: Any,
     executor: Any,
     progress: ProgressHook | None,
@@ -404,7 +444,16 @@ def _sweep_with(
     values = tuple(float(v) for v in values)
     factors_used = tuple(spec.factor(v, ref) for v in values)
     channels = None if spec.channels is None else list(spec.channels)
-    profiles = [scale_profile(profile, f, channels) for f in factors_used]
+    clipped: dict[str, None] = {}
+
+    def scaled(factor: float) -> Any:
+        if mode != "follow":
+            return scale_profile(profile, factor, channels)
+        moved = scale_coherence_with_gates(profile, factor)
+        clipped.update(dict.fromkeys(moved.clipped))
+        return moved.profile
+
+    profiles = [scaled(f) for f in factors_used]
     floored = [spec.below_floor(p, patch) for p in profiles]
     tasks = [ConfigTask(ctx.experiment, p, picked, store) for p in profiles]
     label = f"sweep {spec.name}"
@@ -435,7 +484,7 @@ def _sweep_with(
 
     def evaluator(name: str, passes: tuple[dict[str, Any], ...]) -> Evaluate:
         def evaluate(value: float) -> SweepEntry:
-            prof = scale_profile(profile, spec.factor(value, ref), channels)
+            prof = scaled(spec.factor(value, ref))
             out = run_config(ConfigTask(ctx.experiment, prof, ((name, passes),), store))
             extra.append(out)
             return entry_from(name, out.results[0][1])
@@ -455,5 +504,7 @@ def _sweep_with(
         current_value=ref,
         points=pts,
         crossings=crossings,
+        coherence_gate_errors=mode,
+        clipped=tuple(clipped),
         **scan_fields(study, ctx, names, stats),
     )
