@@ -271,6 +271,8 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
             "bias_mha": r.bias_exact_mha,
             "std_mha": r.std_mha,
             "truncation_bound_mha": r.details["truncation_bound_mha"],
+            "truncation_estimate_mha": r.details.get("truncation_estimate_mha"),
+            "truncation_estimate_std_mha": r.details.get("truncation_estimate_std_mha"),
         }
         for name, r in results.items()
     }
@@ -278,7 +280,9 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
         f"  study slice, {n} qubits: {len(used.groups)} of {plan.n_groups} groups, both recipes "
         f"in {seconds:.1f} s (plan {plan_s:.1f} s, no dense weights); "
         + "; ".join(
-            f"{k}: bias {v['bias_mha']:+.1f} mHa, bound {v['truncation_bound_mha']:.3g} mHa"
+            f"{k}: bias {v['bias_mha']:+.1f} mHa, bound {v['truncation_bound_mha']:.3g} mHa, "
+            f"estimate {v['truncation_estimate_mha']:+.3g} "
+            f"+- {v['truncation_estimate_std_mha']:.2g} mHa"
             for k, v in rows.items()
         )
         + (" (partial groups: energies are not the full energy)" if max_groups else ""),
