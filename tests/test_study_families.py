@@ -38,7 +38,7 @@ def test_tune_ranks_the_families(tmp_path: Path) -> None:
     grid = GridOverride(
         readout=["none", "per_qubit_inverse"],
         postselect=["none"],
-        amplification=["none"],
+        amplifier=["none"],
         family=["none", "error_cancellation", "distillation"],
     )
     result = tune(DEMO, grid=grid, cache=tmp_path / "t.db", reuse=False)
@@ -65,7 +65,7 @@ def test_families_the_experiment_refuses_are_left_out_with_a_note() -> None:
         GridOverride(
             readout=["none"],
             postselect=["none"],
-            amplification=["none"],
+            amplifier=["none"],
             family=["none", "distillation"],
         ),
     )[0]

@@ -54,13 +54,10 @@ TUNE_FILES = ("tune.csv", "tune.json")
 # tune's grid axes, each given any number of times
 ReadoutOpt = repeated("--readout", "Readout correction method(s) to try (repeat the option).")
 PostselectOpt = repeated("--postselect", "Symmetry post-selection mode(s) to try.")
-AmplificationOpt = repeated("--amplification", "Noise amplification method(s) to try.")
+AmplifierOpt = repeated("--amplifier", "Noise amplifier(s) to try.")
 ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
 FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
-FamilyOpt = repeated(
-    "--family",
-    "Mitigation family(ies) to try besides the stack: none, error_cancellation, distillation.",
-)
+FamilyOpt = repeated("--family", "Mitigation family(ies) to try besides the stack.")
 
 
 def _context_lines(ctx: Any) -> list[str]:
@@ -207,7 +204,7 @@ def tune_cmd(
     run: RunOptions,
     readout: ReadoutOpt = None,
     postselect: PostselectOpt = None,
-    amplification: AmplificationOpt = None,
+    amplifier: AmplifierOpt = None,
     scales: ScalesOpt = None,
     fit: FitOpt = None,
     family: FamilyOpt = None,
@@ -235,7 +232,7 @@ def tune_cmd(
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
-        amplification=amplification or None,
+        amplifier=amplifier or None,
         scales=_parse_scale_sets(scales),
         fit=fit or None,
         family=family or None,
@@ -320,7 +317,7 @@ _ASSESS_HELP = (
 )
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
-    "The grid is readout method x post-selection mode x amplification method x scale set x "
+    "The grid is readout method x post-selection mode x amplifier x scale set x "
     "fit, plus the families error cancellation and distillation, from the options here, else "
     "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
     "need the same circuits share their simulations."

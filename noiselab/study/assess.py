@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.common.shipped import shipped_path
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
@@ -127,7 +127,7 @@ def assess(
     ``pauli_propagation`` every measured group is one task on them; other methods refuse them.
     """
     if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
-        raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
+        raise InputError(f"{arg('drift')}: {drift} draws; allowed: 0 to {MAX_DRAWS}")
     drift = int(drift) if drift else 0
     # every input is read (bounded) and validated before the cache key reads the files again
     job = start_job(
@@ -209,7 +209,7 @@ def _assess_pauli(
 ) -> AssessResult:
     """assess under ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess)."""
     if drift:
-        raise InputError(f"--drift: not available with {PAULI_METHOD}; allowed: 0")
+        raise InputError(f"{arg('drift')}: not available with {PAULI_METHOD}; allowed: 0")
     with naming_source(study.source):
         t = time.perf_counter()
         results = pauli_recipes(ctx, executor)

@@ -29,7 +29,7 @@ from typing import Any
 import numpy as np
 import platformdirs
 
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.common.reading import read_input_bytes
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.emulate.engine import BasisDistributions
@@ -195,15 +195,16 @@ class ResultsCache:
     def _prepare(self) -> None:
         assert self.path is not None
         if self.path.exists() and self.path.is_dir():
-            raise InputError(f"{self.path}: --cache: is a folder; allowed: a cache file path")
+            where = f"{self.path}: {arg('cache')}"
+            raise InputError(f"{where}: is a folder; allowed: a cache file path")
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             with self._connection() as conn:
                 conn.execute(_SCHEMA)
         except (OSError, sqlite3.DatabaseError) as exc:
             raise InputError(
-                f"{self.path}: --cache: cannot open the results cache ({exc}); "
-                "allowed: a writable SQLite file path, or --no-cache"
+                f"{self.path}: {arg('cache')}: cannot open the results cache ({exc}); "
+                "allowed: a writable SQLite file path, or no cache"
             ) from None
 
     @contextlib.contextmanager

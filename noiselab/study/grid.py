@@ -15,12 +15,12 @@ from noiselab.mitigate.passes.postselect import PostselectOptions
 from noiselab.mitigate.passes.readout import ReadoutOptions
 
 NONE = "none"
-#: The amplification axis also offers Clifford data regression (default options) in place of
+#: The amplifier axis also offers Clifford data regression (default options) in place of
 #: an extrapolation: the other combination of the grid, with no scale set or fit of its own.
 REGRESSION = "clifford_regression"
 DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
 DEFAULT_POSTSELECT = (NONE, "discard", "verify")
-DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
+DEFAULT_AMPLIFIER = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
 DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
 DEFAULT_FIT = ("linear", "richardson")
 #: Mitigation families besides the stack above: none, or one whole-circuit method.
@@ -30,7 +30,7 @@ DEFAULT_FAMILY = FAMILIES
 DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "readout": DEFAULT_READOUT,
     "postselect": DEFAULT_POSTSELECT,
-    "amplification": DEFAULT_AMPLIFICATION,
+    "amplifier": DEFAULT_AMPLIFIER,
     "scales": DEFAULT_SCALES,
     "fit": DEFAULT_FIT,
     "family": DEFAULT_FAMILY,
@@ -43,7 +43,7 @@ class Grid:
 
     readout: tuple[str, ...]
     postselect: tuple[str, ...]
-    amplification: tuple[str, ...]
+    amplifier: tuple[str, ...]
     scales: tuple[tuple[float, ...], ...]
     fit: tuple[str, ...]
     family: tuple[str, ...] = (NONE,)
@@ -59,7 +59,7 @@ def check_tune_section(section: Any, source: str) -> None:
     grid = Grid(
         readout=tuple(values["readout"]),
         postselect=tuple(values["postselect"]),
-        amplification=tuple(values["amplification"]),
+        amplifier=tuple(values["amplifier"]),
         scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
         fit=tuple(values["fit"]),
         family=tuple(values["family"]),
@@ -76,7 +76,7 @@ def axis_values() -> dict[str, tuple[str, ...]]:
     return {
         "readout": (NONE, *allowed(ReadoutOptions, "method")),
         "postselect": (NONE, *allowed(PostselectOptions, "mode")),
-        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
+        "amplifier": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
         "family": FAMILIES,
     }

@@ -120,18 +120,18 @@ MEANINGS: dict[str, str] = {
     # tune
     "tune.readout": "readout-correction methods to try (none: no correction)",
     "tune.postselect": "postselection modes to try (none: no postselection)",
-    "tune.amplification": "amplifiers to try (none: no extrapolation; clifford_regression: "
+    "tune.amplifier": "amplifiers to try (none: no extrapolation; clifford_regression: "
     "Clifford data regression in place of an extrapolation)",
-    "tune.scales": "noise-scale sets to try, each a list of at least two factors",
+    "tune.scales": "noise scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
-    "sweep.vary": "the knob to vary",
+    "sweep.knob": "the knob to vary",
     "sweep.start": "first value, in the knob's base units",
     "sweep.stop": "last value, in the knob's base units",
     "sweep.points": "number of values",
     "sweep.log": "space the values logarithmically",
     "sweep.recipes": "recipes to follow (names under recipes)",
-    "sweep.coherence_gate_errors": "coherence-us knob only: follow (the relaxation part of "
+    "sweep.coherence_gate_errors": "coherence_us knob only: follow (the relaxation part of "
     "each quoted gate error moves with T1/T2, the rest is held) or fixed (quoted gate errors "
     "kept); default follow",
     # scan
@@ -301,7 +301,7 @@ ALLOWED: dict[str, str] = {
     "scan.recipes": "names of recipes under recipes",
     "rehearse.final_recipe": "a name of a recipe under recipes",
     "scan.bond": "two distinct atom indices (0-based) that share a bond",
-    "sweep.vary": ", ".join(KNOBS),
+    "sweep.knob": ", ".join(KNOBS),
     "tune.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct",
     **{f"tune.{axis}": ", ".join(values) for axis, values in axis_values().items()},
     "extrapolate.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct, at least 2",

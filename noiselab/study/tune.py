@@ -1,7 +1,7 @@
 """The tune job: rank a grid of mitigation settings by the probability of reaching the target.
 
 A setting is one choice on each axis: readout correction method, symmetry post-selection mode,
-noise amplification method, set of noise scale factors and extrapolation fit. Each becomes a
+noise amplifier, set of noise scale factors and extrapolation fit. Each becomes a
 recipe (readout, post-selection, extrapolation passes in that order). The distinct circuit
 variants of the whole grid are simulated first, in parallel through the executor when asked,
 and cached; evaluating a setting afterwards costs no further simulation.
@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.mitigate.recipe import EstimateMemo, parse_recipe, run_recipe
 from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
@@ -51,7 +51,7 @@ class GridOverride:
 
     readout: Sequence[str] | None = None
     postselect: Sequence[str] | None = None
-    amplification: Sequence[str] | None = None
+    amplifier: Sequence[str] | None = None
     scales: Sequence[Sequence[float]] | None = None
     fit: Sequence[str] | None = None
     family: Sequence[str] | None = None
@@ -60,7 +60,8 @@ class GridOverride:
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
     """Axes from the command line, else the study's tune section, else the defaults.
 
-    Returns the grid and, per axis, where it came from (for messages: '--fit' or 'tune.fit').
+    Returns the grid and, per axis, where it came from (for messages: the argument ``fit``, on
+    the command line ``--fit``, or 'tune.fit').
     """
     override = override or GridOverride()
     _validate_override(override)
@@ -72,7 +73,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         cli = getattr(override, axis)
         file_value = getattr(section, axis)
         if cli is not None:
-            values[axis], origin[axis] = cli, f"--{axis}"
+            values[axis], origin[axis] = cli, arg(axis)
         elif file_value is not None:
             values[axis], origin[axis] = file_value, f"{study.source}: tune.{axis}"
         else:
@@ -80,7 +81,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     grid = Grid(
         readout=tuple(dict.fromkeys(str(v) for v in values["readout"])),
         postselect=tuple(dict.fromkeys(str(v) for v in values["postselect"])),
-        amplification=tuple(dict.fromkeys(str(v) for v in values["amplification"])),
+        amplifier=tuple(dict.fromkeys(str(v) for v in values["amplifier"])),
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
         family=tuple(dict.fromkeys(str(v) for v in values["family"])),
@@ -90,8 +91,8 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
 
 
 def _validate_override(override: GridOverride) -> None:
-    """Command-line axes through the file's own ``tune:`` model (bounds included); a refused
-    value is named by its option (``--scales``)."""
+    """Given axes through the file's own ``tune:`` model (bounds included); a refused value is
+    named by its argument (``scales``; on the command line ``--scales``)."""
     from pydantic import ValidationError
 
     from noiselab.common.errors import from_validation_error
@@ -106,7 +107,7 @@ def _validate_override(override: GridOverride) -> None:
     except ValidationError as exc:
         text = str(from_validation_error(exc, None))
         axis = text.split(":", 1)[0].split(".")[0].split("[")[0]
-        raise InputError(f"--{axis}: {text.removeprefix(axis).lstrip(':. ')}") from None
+        raise InputError(f"{arg(axis)}: {text.removeprefix(axis).lstrip(':. ')}") from None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -134,7 +135,7 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
     settings: list[Setting] = []
     skipped = 0
     for family in grid.family:
-        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
+        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplifier):
             if family == "error_cancellation" and amp != NONE:
                 continue
             if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
@@ -173,7 +174,7 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
                 options = {
                     "readout": ro,
                     "postselect": ps,
-                    "amplification": amp,
+                    "amplifier": amp,
                     "scales": list(scales) if scales is not None else [],
                     "fit": fit or NONE,
                 }
@@ -188,13 +189,13 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
 def _label(o: dict[str, Any]) -> str:
     parts = [] if o.get("family", NONE) == NONE else [f"family={o['family']}"]
     parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
-    if o["amplification"] == NONE:
+    if o["amplifier"] == NONE:
         parts.append("zne=none")
-    elif o["amplification"] == REGRESSION:
+    elif o["amplifier"] == REGRESSION:
         parts.append(f"zne=none {REGRESSION}")
     else:
         scales = ",".join(f"{s:g}" for s in o["scales"])
-        parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
+        parts.append(f"zne={o['amplifier']}[{scales}]/{o['fit']}")
     return " ".join(parts)
 
 
