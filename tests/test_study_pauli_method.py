@@ -231,4 +231,4 @@ def test_workers_are_refused_for_other_methods_in_one_line(tmp_path: Path) -> No
     path.write_text(path.read_text().replace("method: pauli_propagation", "method: density_matrix"))
     with pytest.raises(InputError) as err:
         assess(path, cache=False, workers=2)
-    assert "--workers" in str(err.value) and "\n" not in str(err.value)
+    assert "workers/cluster: " in str(err.value) and "\n" not in str(err.value)

@@ -143,7 +143,7 @@ def assess(
     parallel = (workers or 1) > 1 or cluster is not None or executor is not None
     if parallel and study.emulation.method != PAULI_METHOD:  # refused before any work
         raise InputError(
-            f"--workers/--cluster: assess spreads work only with emulation.method "
+            f"{arg('workers')}/{arg('cluster')}: assess spreads work only with emulation.method "
             f"{PAULI_METHOD}; allowed here: leave them out (method {study.emulation.method})"
         )
     key = None
