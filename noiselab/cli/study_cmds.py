@@ -17,7 +17,6 @@ from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
     FIGURES,
-    STUDY_JOB,
     CountOpt,
     JsonOpt,
     StudyArg,
@@ -99,7 +98,8 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    (*STUDY_JOB, *FIGURES),
+    # --workers / --cluster: used by pauli_propagation (one task per group)
+    (*EXECUTOR_JOB, *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -133,7 +133,9 @@ def assess_cmd(
         # the files carry the provenance block; --json (a stream compared between runs) does not
         return _write_assess_outputs(res, folder, job_provenance(study, res.seed))
 
-    result, written = run_job(assess, study, run, write=write, quiet=json_out, drift=draws)
+    result, written = run_job(
+        assess, study, run, write=write, executor=True, quiet=json_out, drift=draws
+    )
     if json_out:
         print_json(result.to_json(with_stats=timings))
         emit_report("assess", result, report_dir, study, result.seed)

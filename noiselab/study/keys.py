@@ -150,6 +150,10 @@ MEANINGS: dict[str, str] = {
     "emulation.truncation.min_abs_coeff": "drop Pauli strings whose |coefficient| (Ha) falls "
     "below this",
     "emulation.truncation.max_weight": "drop strings acting on more qubits (null: no weight cut)",
+    "emulation.truncation.estimate": "also estimate the truncation error with its standard "
+    "error (check run and seeded Monte Carlo)",
+    "emulation.truncation.check_factor": "threshold of the estimate's check run, as a fraction "
+    "of min_abs_coeff",
     "emulation.batches": "batches the trajectories are split into (their spread is the "
     "trajectory error bar)",
     "emulation.max_density_matrix_qubits": "widest circuit emulated as a density matrix "

@@ -404,6 +404,8 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     out["trajectory_std_mha"] = None if traj is None else float(traj)
     if isinstance(details, Mapping) and "truncation_bound_mha" in details:  # pauli_propagation
         out["truncation_bound_mha"] = float(details["truncation_bound_mha"])
+        for k in ("truncation_estimate_mha", "truncation_estimate_std_mha"):
+            out[k] = float(details[k]) if k in details else None
     if passes is not None:
         out["passes"] = jsonable(list(passes))
     out["details"] = without_timings(jsonable(getattr(result, "details", {}) or {}))

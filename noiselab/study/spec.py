@@ -262,11 +262,16 @@ class TruncationSettings(_Strict):
 
     ``min_abs_coeff``: Pauli strings whose |coefficient| (Ha) falls below it are dropped;
     ``max_weight``: strings acting on more qubits are dropped (None: no weight cut). The sum
-    of what was dropped bounds the truncation error and is reported in mHa.
+    of what was dropped bounds the truncation error and is reported in mHa. ``estimate``: also
+    estimate the truncation error with its standard error (a check run at ``check_factor``
+    times the threshold, plus a seeded Monte Carlo estimate of what the check run drops;
+    noiselab.emulate.pauli_truncation); costs a few times the main run.
     """
 
     min_abs_coeff: float = Field(default=1e-5, ge=0.0, le=1.0)
     max_weight: Count | None = Field(default=None, ge=1, le=64)
+    estimate: bool = True
+    check_factor: float = Field(default=0.1, gt=0.0, le=1.0)
 
 
 class EmulationSettings(_Strict):
