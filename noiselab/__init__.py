@@ -18,6 +18,7 @@ _LAZY: dict[str, str] = {
     "tune": "noiselab.study.tune:tune",
     "sweep": "noiselab.study.sweep:sweep",
     "budget": "noiselab.study.budget:budget",
+    "scan": "noiselab.study.scan:scan",
     "load_study": "noiselab.study.spec:load_study",
     "load_profile": "noiselab.device.profile:load_profile",
     "profile_from_target": "noiselab.device.qiskit_target:profile_from_target",

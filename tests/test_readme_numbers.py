@@ -31,7 +31,7 @@ DEMO = _golden("assess-h2-equilibrium")
 STRETCHED = _golden("assess-h2-stretched")
 LIH = _golden("assess-lih-active-space")
 TUNE = _golden("tune-h2-equilibrium")
-SWEEP = _golden("sweep-h2-equilibrium-two-qubit-error")
+SWEEP = _golden("sweep-h2-equilibrium-two_qubit_error")
 
 
 def shown(text: str, value: float) -> None:

@@ -77,7 +77,7 @@ def test_talk_pngs_have_more_pixels(tmp_path: Path) -> None:
 
 
 def test_unknown_style_is_refused_naming_the_option() -> None:
-    with pytest.raises(InputError, match=r"--style.*allowed: paper, talk"):
+    with pytest.raises(InputError, match=r"^style: .*allowed: paper, talk"):  # Python: argument
         get_style("poster")
     code, _, err = run_main(["assess", "h2-equilibrium", "--style", "poster"])
     assert code == 2 and "--style" in err and "Traceback" not in err
@@ -105,7 +105,7 @@ def test_assess_writes_talk_figures(tmp_path: Path) -> None:
 
 
 @pytest.mark.parametrize("style", ["paper", "talk"])
-@pytest.mark.parametrize("knob", ["two-qubit-error", "coherence-us"])
+@pytest.mark.parametrize("knob", ["two_qubit_error", "coherence_us"])
 def test_sweep_and_budget_titles_stay_clear_of_the_legend(style: str, knob: str) -> None:
     sweep = dataclasses.replace(_hand_sweep(), knob=knob, shots_total=4_000_000)
     with figure_style(style):

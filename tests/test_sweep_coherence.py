@@ -102,7 +102,7 @@ def test_quoted_error_below_its_relaxation_part_is_clipped_and_said() -> None:
 
 def test_raw_error_falls_monotonically_with_t1_on_the_demo() -> None:
     res = sweep(
-        "h2-equilibrium", "coherence-us", 100.0, 1000.0, 3, True, recipes=["raw"], cache=False
+        "h2-equilibrium", "coherence_us", 100.0, 1000.0, 3, True, recipes=["raw"], cache=False
     )
     assert res.coherence_gate_errors == "follow"  # the default
     errors, _ = res.series(res.recipes[0])
@@ -120,7 +120,7 @@ def test_raw_error_falls_monotonically_with_t1_on_the_demo() -> None:
 def test_fixed_mode_keeps_the_quoted_errors_and_says_so() -> None:
     res = sweep(
         "h2-equilibrium",
-        "coherence-us",
+        "coherence_us",
         values=[200.0],
         recipes=["raw"],
         cache=False,
@@ -128,13 +128,17 @@ def test_fixed_mode_keeps_the_quoted_errors_and_says_so() -> None:
     )
     assert res.to_json()["coherence_gate_errors"] == "fixed"
     assert COHERENCE_NOTE in res.notes()
-    other = sweep("h2-equilibrium", "readout-error", values=[0.01], recipes=["raw"], cache=False)
+    other = sweep("h2-equilibrium", "readout_error", values=[0.01], recipes=["raw"], cache=False)
     assert "coherence_gate_errors" not in other.to_json()
 
 
 def test_bad_mode_is_refused_naming_the_option() -> None:
-    with pytest.raises(InputError, match="--coherence-gate-errors"):
-        sweep("h2-equilibrium", "coherence-us", values=[200.0], coherence_gate_errors="both")
+    from noiselab.cli.options import option_of
+
+    # from Python the argument; the command line (main) shows the option
+    with pytest.raises(InputError, match=r": coherence_gate_errors 'both': ") as refused:
+        sweep("h2-equilibrium", "coherence_us", values=[200.0], coherence_gate_errors="both")
+    assert "--coherence-gate-errors 'both'" in refused.value.with_options(option_of).message
 
 
 def test_shipped_profiles_scale_without_clipping() -> None:

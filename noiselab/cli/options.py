@@ -36,11 +36,32 @@ TimingsOpt = Annotated[
 RecipesOpt = Annotated[
     list[str] | None,
     typer.Option(
-        "--recipe",
-        help="Recipe of the study to follow (repeat the option). Default: all of the study's.",
+        "--recipes",
+        help="Recipe(s) of the study to follow (repeat the option). Default: all of the study's.",
         show_default=False,
     ),
 ]
+#: Python argument -> command-line option, where the option is not ``--`` + the argument with
+#: hyphens for underscores (errors raised by the study layer name the argument; the command line
+#: shows the option: :meth:`noiselab.common.errors.NoiselabError.with_options`).
+OPTION_OF_ARGUMENT = {"use_cache": "--no-cache", "copy": "--study-copy"}
+
+
+#: Options renamed to the study file's spelling -> their present name (a "did you mean").
+FORMER_OPTIONS = {
+    "--vary": "--knob",
+    "--from": "--start",
+    "--to": "--stop",
+    "--recipe": "--recipes",
+    "--amplification": "--amplifier",
+}
+
+
+def option_of(argument: str) -> str:
+    """The option that sets the job argument ``argument`` (``points``: ``--points``)."""
+    return OPTION_OF_ARGUMENT.get(argument, "--" + argument.replace("_", "-"))
+
+
 # Counts are read as text and validated by the study file's own bounds (RunOptions, or the
 # job's own model), so --shots 1e6 works like shots: 1e6 in the file.
 CountOpt = str | None
@@ -114,10 +135,9 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         str | None,
         _option(
             "--method",
-            help="Emulation method: auto (density matrix while it fits in memory, else Monte "
-            "Carlo trajectories), density_matrix (exact; refuse when too large), trajectory or "
-            "pauli_propagation (assess only; twirled noise, raw and per-qubit readout recipes). "
-            "Default: the study's emulation.method, else auto.",
+            help="Emulation method: auto is the density matrix while it fits in memory, else "
+            "Monte Carlo trajectories; pauli_propagation: assess only (twirled noise, raw and "
+            "per-qubit readout recipes). Default: the study's emulation.method, else auto.",
         ),
         None,
     ),
@@ -134,8 +154,8 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         str,
         _option(
             "--style",
-            help="Look of the figures written: paper (for a document; the default) or talk "
-            "(larger type, thicker lines, larger figures, for slides).",
+            help="Look of the figures written: paper is for a document (the default), talk for "
+            "slides (larger type, thicker lines, larger figures).",
         ),
         "paper",
     ),

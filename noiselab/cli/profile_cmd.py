@@ -226,7 +226,7 @@ def import_tables(
         ),
     ] = None,
     two_qubit_gate: Annotated[
-        str, typer.Option("--two-qubit-gate", help="Native two-qubit gate: cz, cx or ecr.")
+        str, typer.Option("--two-qubit-gate", help="Native two-qubit gate.")
     ] = "cz",
     description: Annotated[
         str | None, typer.Option("--description", help="Description line of the profile.")

@@ -49,7 +49,7 @@ def rehearse_cmd(
     study: StudyArg,
     run: RunOptions,
     optimizer: Annotated[
-        str | None, option("--optimizer", "spsa, parameter_shift, cobyla or nelder_mead.")
+        str | None, option("--optimizer", "Optimizer of the loop.")
     ] = None,
     iterations: Annotated[CountOpt, option("--iterations", "Optimizer iterations.")] = None,
     shots_per_evaluation: Annotated[
@@ -61,7 +61,7 @@ def rehearse_cmd(
     ] = None,
     repeats: Annotated[CountOpt, option("--repeats", "Runs of the loop.")] = None,
     start: Annotated[
-        str | None, option("--start", "hartree_fock, perturbed_optimum or random.")
+        str | None, option("--start", "Parameters the loop starts from.")
     ] = None,
     grid: Annotated[
         bool,

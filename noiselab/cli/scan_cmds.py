@@ -72,11 +72,11 @@ def scan_cmd(
     start: Annotated[
         float | None,
         typer.Option(
-            "--from", help="First value (Angstrom, or factor with --scale).", show_default=False
+            "--start", help="First value (Angstrom, or factor with --scale).", show_default=False
         ),
     ] = None,
     stop: Annotated[
-        float | None, typer.Option("--to", help="Last value.", show_default=False)
+        float | None, typer.Option("--stop", help="Last value.", show_default=False)
     ] = None,
     points: Annotated[
         CountOpt, typer.Option("--points", help="Grid points (default 9).", show_default=False)
@@ -89,7 +89,7 @@ def scan_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipesOpt = None,
+    recipes: RecipesOpt = None,
 ) -> None:
     """Potential-energy curve under noise along one geometry coordinate."""
     from noiselab.report.scan_figures import write_scan_outputs
@@ -98,7 +98,7 @@ def scan_cmd(
     result, written = run_job(
         scan, study, run, write=write_scan_outputs, executor=True,
         bond=bond, scale=scale or None, start=start, stop=stop, points=points, refine=refine,
-        recipes=recipe or None,
+        recipes=recipes or None,
     )  # fmt: skip
     unit = result.axis.unit
     headers = ("coordinate", "exact (Ha)", "HF (Ha)", *(f"{n} bias (mHa)" for n in result.recipes))
@@ -135,7 +135,7 @@ def register(app: typer.Typer) -> None:
     )(compare_cmd)
     app.command(
         "scan",
-        epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --from 0.5 --to 2.5 "
-        "--points 9 --recipe zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
+        epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --start 0.5 --stop 2.5 "
+        "--points 9 --recipes zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
         "2 bad input, 130 interrupted (finished points stay in the cache).",
     )(scan_cmd)

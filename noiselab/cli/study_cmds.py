@@ -17,7 +17,6 @@ from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
     FIGURES,
-    STUDY_JOB,
     CountOpt,
     JsonOpt,
     StudyArg,
@@ -55,12 +54,13 @@ TUNE_FILES = ("tune.csv", "tune.json")
 # tune's grid axes, each given any number of times
 ReadoutOpt = repeated("--readout", "Readout correction method(s) to try (repeat the option).")
 PostselectOpt = repeated("--postselect", "Symmetry post-selection mode(s) to try.")
-AmplificationOpt = repeated("--amplification", "Noise amplification method(s) to try.")
+AmplifierOpt = repeated("--amplifier", "Noise amplifier(s) to try.")
 ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
 FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
-FamilyOpt = repeated(
-    "--family",
-    "Mitigation family(ies) to try besides the stack: none, error_cancellation, distillation.",
+FamilyOpt = repeated("--family", "Mitigation family(ies) to try besides the stack.")
+SuppressOpt = repeated(
+    "--suppress",
+    "Suppression to try before mitigation (passes joined by +).",
 )
 
 
@@ -98,7 +98,8 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    (*STUDY_JOB, *FIGURES),
+    # --workers / --cluster: used by pauli_propagation (one task per group)
+    (*EXECUTOR_JOB, *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -132,7 +133,9 @@ def assess_cmd(
         # the files carry the provenance block; --json (a stream compared between runs) does not
         return _write_assess_outputs(res, folder, job_provenance(study, res.seed))
 
-    result, written = run_job(assess, study, run, write=write, quiet=json_out, drift=draws)
+    result, written = run_job(
+        assess, study, run, write=write, executor=True, quiet=json_out, drift=draws
+    )
     if json_out:
         print_json(result.to_json(with_stats=timings))
         emit_report("assess", result, report_dir, study, result.seed)
@@ -205,10 +208,11 @@ def tune_cmd(
     run: RunOptions,
     readout: ReadoutOpt = None,
     postselect: PostselectOpt = None,
-    amplification: AmplificationOpt = None,
+    amplifier: AmplifierOpt = None,
     scales: ScalesOpt = None,
     fit: FitOpt = None,
     family: FamilyOpt = None,
+    suppress: SuppressOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
@@ -233,10 +237,11 @@ def tune_cmd(
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
-        amplification=amplification or None,
+        amplifier=amplifier or None,
         scales=_parse_scale_sets(scales),
         fit=fit or None,
         family=family or None,
+        suppress=suppress or None,
     )
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override
@@ -318,7 +323,7 @@ _ASSESS_HELP = (
 )
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
-    "The grid is readout method x post-selection mode x amplification method x scale set x "
+    "The grid is readout method x post-selection mode x amplifier x scale set x "
     "fit, plus the families error cancellation and distillation, from the options here, else "
     "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
     "need the same circuits share their simulations."

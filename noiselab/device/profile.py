@@ -131,6 +131,9 @@ SCHEMA_VERSION = 1
 SINGLE_QUBIT_GATES: tuple[str, ...] = ("rz", "sx", "x")
 TWO_QUBIT_GATES: tuple[str, ...] = ("cz", "cx", "ecr")
 VIRTUAL_GATES: frozenset[str] = frozenset({"rz"})
+#: ideal, zero-duration frames a transform writes (random twirl Paulis, merged into the
+#: neighbouring single-qubit gates on a device): no error, no time, no noise rule
+FRAME_GATES: frozenset[str] = frozenset({"pauli"})
 ALL_TO_ALL = "all-to-all"
 
 # physical maxima (MAX_*) and CHANNELS come from noiselab.device.channel_registry

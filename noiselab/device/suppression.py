@@ -34,8 +34,10 @@ from collections import deque
 from dataclasses import dataclass
 from typing import Any, ClassVar
 
+import numpy as np
 from qiskit import QuantumCircuit
-from qiskit.circuit.library import RZGate, XGate
+from qiskit.circuit.library import PauliGate, RZGate, XGate
+from qiskit.quantum_info import Clifford, Pauli
 
 from noiselab.device.noise import delay_seconds
 from noiselab.device.profile import _CTX_ALLOW_INFINITE, VIRTUAL_GATES, DeviceProfile
@@ -80,11 +82,72 @@ class PauliTwirl(CircuitTransform):
 
 
 @dataclass(frozen=True)
+class TwirlDraw(CircuitTransform):
+    """One random instance of the Pauli twirl (``twirl`` with ``draws``): around every two-qubit
+    gate U a random two-qubit Pauli P after it and U^dagger P U before it (drawn from
+    ``numpy.random.default_rng([seed, index])`` in circuit order), so that the gate's error
+    channel E becomes P E(P . P) P and the ideal circuit is unchanged. The frames are ideal,
+    zero-duration ``pauli`` instructions (``device.profile.FRAME_GATES``: merged into the
+    neighbouring single-qubit layers at no cost, as in :class:`PauliTwirl`); their average is
+    :class:`PauliTwirl`. Profiles with always-on terms are refused by the pass (their timeline
+    does not know the frames)."""
+
+    kind: ClassVar[str] = "twirl_draw"
+    changes_circuit: ClassVar[bool] = True  # same error budget: frames cost nothing
+    seed: int
+    index: int
+
+    def label(self) -> str:
+        return f"twirl_draw={self.index}"
+
+    def apply(self, compiled: Any, profile: Any, tools: TransformRealizer) -> Applied:
+        circ = twirl_draw_circuit(
+            compiled.circuit, profile.two_qubit_gate, np.random.default_rng([self.seed, self.index])
+        )
+        return Applied(dataclasses.replace(compiled, circuit=circ), profile, 1.0)
+
+
+_TWO_QUBIT_PAULIS = tuple(a + b for a in "IXYZ" for b in "IXYZ")
+
+
+def twirl_draw_circuit(
+    circuit: QuantumCircuit, two_qubit_gate: str, rng: np.random.Generator
+) -> QuantumCircuit:
+    """``circuit`` with every ``two_qubit_gate`` framed by a random Pauli P after it and
+    U^dagger P U before it (see :class:`TwirlDraw`); other operations copied as they are."""
+    out = QuantumCircuit(circuit.num_qubits, name=circuit.name)
+    frames: dict[tuple[str, str], str] = {}
+    for inst in circuit.data:
+        op = inst.operation
+        qs = [circuit.find_bit(q).index for q in inst.qubits]
+        if op.name != two_qubit_gate or len(qs) != 2:
+            out.append(op, qs)
+            continue
+        after = _TWO_QUBIT_PAULIS[int(rng.integers(16))]
+        key = (op.name, after)
+        if key not in frames:
+            frames[key] = frame_before(op, after)
+        out.append(PauliGate(frames[key]), qs)
+        out.append(op, qs)
+        out.append(PauliGate(after), qs)
+    return out
+
+
+def frame_before(gate: Any, after: str) -> str:
+    """The Pauli label U^dagger P U (global phase dropped) for a Clifford two-qubit ``gate`` U
+    and the Pauli label ``after`` P (qiskit order: the last letter acts on the gate's first
+    qubit)."""
+    before = Pauli(after).evolve(Clifford(gate), frame="h")
+    return Pauli((before.z, before.x)).to_label()
+
+
+@dataclass(frozen=True)
 class MeasureTwirl(CircuitTransform):
     """Measurement twirling: symmetric readout assignment per qubit (see the module docstring)."""
 
     kind: ClassVar[str] = "measure_twirl"
     changes_circuit: ClassVar[bool] = False
+    readout_only: ClassVar[bool] = True
 
     def label(self) -> str:
         return "measure_twirled"
@@ -212,5 +275,5 @@ def decouple_circuit(
     return out
 
 
-for _cls in (PauliTwirl, MeasureTwirl, Decouple):
+for _cls in (PauliTwirl, TwirlDraw, MeasureTwirl, Decouple):
     register_transform(_cls)

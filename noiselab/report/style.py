@@ -19,7 +19,7 @@ from typing import Any
 
 import matplotlib
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, input_error
 
 
 @dataclasses.dataclass(frozen=True)
@@ -61,8 +61,9 @@ DEFAULT_STYLE = "paper"
 _CURRENT: ContextVar[FigureStyle] = ContextVar("figure_style", default=STYLES[DEFAULT_STYLE])
 
 
-def get_style(name: str, option: str = "--style") -> FigureStyle:
-    """The style called ``name``; a one-line InputError naming ``option`` otherwise."""
+def get_style(name: str, option: str = arg("style")) -> FigureStyle:
+    """The style called ``name``; a one-line InputError naming ``option`` otherwise (the
+    argument ``style``; the command line shows ``--style``)."""
     if name not in STYLES:
         raise input_error(None, option, f"unknown style {name!r}", ", ".join(STYLES))
     return STYLES[name]

@@ -120,18 +120,18 @@ MEANINGS: dict[str, str] = {
     # tune
     "tune.readout": "readout-correction methods to try (none: no correction)",
     "tune.postselect": "postselection modes to try (none: no postselection)",
-    "tune.amplification": "amplifiers to try (none: no extrapolation; clifford_regression: "
+    "tune.amplifier": "amplifiers to try (none: no extrapolation; clifford_regression: "
     "Clifford data regression in place of an extrapolation)",
-    "tune.scales": "noise-scale sets to try, each a list of at least two factors",
+    "tune.scales": "noise scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
-    "sweep.vary": "the knob to vary",
+    "sweep.knob": "the knob to vary",
     "sweep.start": "first value, in the knob's base units",
     "sweep.stop": "last value, in the knob's base units",
     "sweep.points": "number of values",
     "sweep.log": "space the values logarithmically",
     "sweep.recipes": "recipes to follow (names under recipes)",
-    "sweep.coherence_gate_errors": "coherence-us knob only: follow (the relaxation part of "
+    "sweep.coherence_gate_errors": "coherence_us knob only: follow (the relaxation part of "
     "each quoted gate error moves with T1/T2, the rest is held) or fixed (quoted gate errors "
     "kept); default follow",
     # scan
@@ -151,6 +151,10 @@ MEANINGS: dict[str, str] = {
     "emulation.truncation.min_abs_coeff": "drop Pauli strings whose |coefficient| (Ha) falls "
     "below this",
     "emulation.truncation.max_weight": "drop strings acting on more qubits (null: no weight cut)",
+    "emulation.truncation.estimate": "also estimate the truncation error with its standard "
+    "error (check run and seeded Monte Carlo)",
+    "emulation.truncation.check_factor": "threshold of the estimate's check run, as a fraction "
+    "of min_abs_coeff",
     "emulation.batches": "batches the trajectories are split into (their spread is the "
     "trajectory error bar)",
     "emulation.max_density_matrix_qubits": "widest circuit emulated as a density matrix "
@@ -213,6 +217,8 @@ MEANINGS: dict[str, str] = {
     "circuits",
     "tune.family": "mitigation families to try beside the readout/postselect/extrapolate stack "
     "(none: the stack alone)",
+    "tune.suppress": "suppression before mitigation to try: none, or suppression passes joined "
+    "by + (measure_twirl only with readout correction; the families run without suppression)",
     "rehearse.grid": "the settings noiselab rehearse --grid tries (every combination)",
     "rehearse.grid.shots_per_evaluation": "shots per evaluation to try",
     "rehearse.grid.optimizer": "optimizers to try",
@@ -298,7 +304,7 @@ ALLOWED: dict[str, str] = {
     "scan.recipes": "names of recipes under recipes",
     "rehearse.final_recipe": "a name of a recipe under recipes",
     "scan.bond": "two distinct atom indices (0-based) that share a bond",
-    "sweep.vary": ", ".join(KNOBS),
+    "sweep.knob": ", ".join(KNOBS),
     "tune.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct",
     **{f"tune.{axis}": ", ".join(values) for axis, values in axis_values().items()},
     "extrapolate.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct, at least 2",

@@ -22,7 +22,7 @@ import dataclasses
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, did_you_mean, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.device.coherence import scale_coherence_with_gates
 from noiselab.device.profile import scale_profile
@@ -49,14 +49,14 @@ from noiselab.study.results import RunStats, trajectory_std_of
 #: What the coherence knob does to the gate errors (said in its output), per mode of
 #: ``sweep.coherence_gate_errors`` / ``--coherence-gate-errors``.
 COHERENCE_NOTE = (
-    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed "
+    "the coherence_us knob changes T1 and T2 with every quoted gate error kept fixed "
     "(coherence_gate_errors: fixed): only the "
     "idle relaxation and the split of each gate's error between relaxation and depolarizing "
     "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
-    "errors too, sweep one-qubit-error or two-qubit-error alongside"
+    "errors too, sweep single_qubit_error or two_qubit_error alongside"
 )
 COHERENCE_FOLLOW_NOTE = (
-    "the coherence-us knob changes T1 and T2 and moves the relaxation part of every quoted gate "
+    "the coherence_us knob changes T1 and T2 and moves the relaxation part of every quoted gate "
     "error with them (coherence_gate_errors: follow): each gate error is what T1/T2 cause over "
     "the gate's duration plus the rest of the quoted error, held fixed (the rest is assumed "
     "independent of coherence)"
@@ -85,9 +85,9 @@ class SweepResult(NotebookDisplay):
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
     confidence: float = 0.95
-    #: coherence-us only: "follow" or "fixed" (None for the other knobs)
+    #: coherence_us only: "follow" or "fixed" (None for the other knobs)
     coherence_gate_errors: str | None = None
-    #: coherence-us with "follow": where a gate error was clipped (rest below 0, or too large)
+    #: coherence_us with "follow": where a gate error was clipped (rest below 0, or too large)
     clipped: tuple[str, ...] = ()
 
     @property
@@ -132,7 +132,7 @@ class SweepResult(NotebookDisplay):
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
         knob = self.knob_spec
         out: list[str] = []
-        if knob.name == "coherence-us":
+        if knob.name == "coherence_us":
             follow = self.coherence_gate_errors == "follow"
             out.append(COHERENCE_FOLLOW_NOTE if follow else COHERENCE_NOTE)
         if self.clipped:
@@ -147,7 +147,7 @@ class SweepResult(NotebookDisplay):
             out.append(
                 f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what "
                 "T1/T2 alone cause during the gate: the noise model uses relaxation alone there, "
-                "so the error no longer falls with the knob (use coherence-us to lower that floor)"
+                "so the error no longer falls with the knob (use coherence_us to lower that floor)"
             )
         return tuple(out)
 
@@ -242,7 +242,7 @@ RAW_RECIPE = "raw"
 
 
 def chosen_recipes(
-    study: Any, names: Sequence[str] | None, where: str = "--recipe"
+    study: Any, names: Sequence[str] | None, where: str = arg("recipes")
 ) -> tuple[tuple[str, tuple[dict[str, Any], ...]], ...]:
     """Raw (no passes) first, then the named recipes of the study (default: all of them).
 
@@ -259,7 +259,10 @@ def chosen_recipes(
     for n in picked:
         if n not in all_recipes and n != RAW_RECIPE:
             raise input_error(
-                str(study.source), where, f"unknown recipe {n!r}", ", ".join(all_recipes)
+                str(study.source),
+                where,
+                f"unknown recipe {n!r}{did_you_mean(n, list(all_recipes))}",
+                ", ".join(all_recipes),
             )
     raw_name = next((n for n, p in all_recipes.items() if len(p) == 0), None)
     out: list[tuple[str, tuple[dict[str, Any], ...]]] = [(raw_name or RAW_RECIPE, ())]
@@ -343,14 +346,14 @@ def sweep(
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
     Every argument left as None comes from the study's ``sweep:`` section, else the built-in
-    default: knob ``noise-scale``, a quarter to four times the device's value, 5 points, even
+    default: knob ``noise_scale``, a quarter to four times the device's value, 5 points, even
     spacing, all of the study's recipes (raw always first). ``values`` gives the knob values
     explicitly instead. ``cache``: a ResultsCache, a path, None (the user cache folder) or
     False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
     e.g. a dask one; ``cluster``: a Dask scheduler address or Client). ``on_point(index,
     point)`` is called in the calling process as each point finishes. ``method`` /
     ``trajectories`` override the study's ``emulation:`` section. ``coherence_gate_errors``
-    (coherence-us only): "follow" (default) moves the relaxation part of every quoted gate
+    (coherence_us only): "follow" (default) moves the relaxation part of every quoted gate
     error with T1/T2 (:mod:`noiselab.device.coherence`), "fixed" keeps the quoted errors.
     """
     job = start_job(
@@ -365,8 +368,8 @@ def sweep(
         from_study = getattr(defaults, name, None)
         return fallback if from_study is None else from_study
 
-    spec = get_knob(default("vary", knob, "noise-scale"))
-    same_knob = knob is None or getattr(defaults, "vary", None) in (None, knob)
+    spec = get_knob(default("knob", knob, "noise_scale"))
+    same_knob = knob is None or getattr(defaults, "knob", None) in (None, knob)
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
     stop = stop if not same_knob else default("stop", stop, None)
@@ -385,16 +388,16 @@ def sweep(
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     if points < 2 and values is None:
-        raise input_error("sweep", "--points", f"{points} points", "2 or more")
+        raise input_error("sweep", arg("points"), f"{points} points", "2 or more")
     # refuse a bad range before the (slow) context is built
     if start is not None:
-        spec.check(start, "--from", log)
+        spec.check(start, "start", log)
     if stop is not None:
-        spec.check(stop, "--to", log)
+        spec.check(stop, "stop", log)
     if values is not None:
         values = [spec.check(v, "values", log) for v in values]
         if len(values) < 1:
-            raise input_error("sweep", "values", "no knob values", "at least one value")
+            raise input_error("sweep", arg("values"), "no knob values", "at least one value")
     with own_executor(workers, cluster, executor) as ex:
         return _sweep_with(
             study,
@@ -405,7 +408,7 @@ def sweep(
             log,
             picked,
             values,
-            mode if spec.name == "coherence-us" else None,
+            mode if spec.name == "coherence_us" else None,
             store,
             ex,
             progress,

@@ -17,13 +17,14 @@ from typing import Any
 import yaml
 
 from noiselab.common.atomic import atomic_path
-from noiselab.common.errors import InputError, input_error
+from noiselab.common.errors import InputError, arg, input_error
 from noiselab.common.reading import read_input_text
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.yamlio import MAX_YAML_BYTES, parse_yaml_mapping
 from noiselab.study.spec import load_study
 
-OPTION = "--study-copy"
+#: the copy's argument (``copy``; the command line shows ``--study-copy``)
+OPTION = arg("copy")
 _RECIPES_LINE = re.compile(r"^recipes:[ \t]*(#.*)?$", re.MULTILINE)
 
 
