@@ -8,6 +8,10 @@ matrix with the Heisenberg-evolved effects of the noisy basis-change layer (see
 (:mod:`noiselab.emulate.readout`). Past the memory guard, ``method="auto"`` switches to Monte Carlo
 wavefunction trajectories (:mod:`noiselab.emulate.trajectory`), whose statistical error is kept
 apart from shot noise in ``trajectory_batches``.
+
+Longer than the usual 400 lines on purpose: it is the one dispatch point of both methods and both
+trajectory storage modes (distributions or per-batch values); the arithmetic lives in the modules
+it names.
 """
 
 from __future__ import annotations
