@@ -93,7 +93,7 @@ def test_concurrent_processes_write_whole_entries(tmp_path: Path) -> None:
 def test_not_a_database_is_refused_in_one_line(tmp_path: Path) -> None:
     bad = tmp_path / "junk.db"
     bad.write_bytes(b"this is not sqlite" * 100)
-    with pytest.raises(InputError, match="--cache") as info:
+    with pytest.raises(InputError, match="cache: cannot open") as info:
         ResultsCache(bad)
     assert "\n" not in str(info.value)
     with pytest.raises(InputError, match="folder"):
