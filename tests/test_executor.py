@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 import sys
 import time
@@ -168,6 +169,15 @@ def test_pool_runs_items_while_they_are_produced(pool: ProcessPoolExecutor, tmp_
     # the generator waits for item 0 to have run: a map that collected the items first would
     # time out in the generator instead
     assert pool.map(marker_task, _produce_after_first_ran(tmp_path, 4)) == [0, 1, 2, 3]
+
+
+def test_pool_start_spawns_every_worker_before_any_task() -> None:
+    before = {p.pid for p in multiprocessing.active_children()}
+    with ProcessPoolExecutor(2) as executor:
+        executor.start()
+        executor.start()  # once started, nothing more
+        assert len({p.pid for p in multiprocessing.active_children()} - before) == 2
+        assert executor.map(seeded_task, ITEMS[:3]) == _expected()[:3]
 
 
 def test_pool_stops_when_the_items_fail(pool: ProcessPoolExecutor) -> None:

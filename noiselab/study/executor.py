@@ -218,7 +218,9 @@ class ProcessPoolExecutor(_Base):
 
     def start(self) -> None:
         """Start every worker now, without waiting for them (each spawned worker imports the
-        stack, seconds): the caller's own work then overlaps the start-up."""
+        stack, seconds): the caller's own work then overlaps the start-up. No-op once started."""
+        if self._pool is not None:
+            return
         pool = self._ensure_pool()
         # a process is spawned per submitted task until ``workers`` exist (spawn start method)
         with _environment(self._env()):
