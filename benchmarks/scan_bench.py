@@ -121,6 +121,7 @@ def _breakdown(rows: list[dict[str, float]], began: float, ended: float) -> dict
         "worker_busy_fraction": sum(busy) / (len({r["pid"] for r in rows}) * (ended - began)),
         "point_task_s": {"min": min(busy), "max": max(busy), "mean": sum(busy) / len(busy)},
         "point_task_cpu_s": [round(r["task_cpu"], 3) for r in rows],
+        "worker_task_cpu_s": sum(r["task_cpu"] for r in rows),
         "first_task_started_after_s": min(r["started"] for r in rows) - began,
         "queued_before_start_s_mean": sum(r["started"] - r["produced"] for r in rows) / len(rows),
         "result_back_after_s_mean": sum(r["received"] - r["ended"] for r in rows) / len(rows),
@@ -149,6 +150,7 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
     scan(path, cache=False, points=4, executor=pool, **SCAN)  # each worker runs a point
     warm_up_s, warmed = time.perf_counter() - t, len({r["pid"] for r in pool.rows})
     times: dict[str, list[float]] = {"one": [], "two": [], "started": []}
+    cpu: dict[str, list[float]] = {"one": [], "two": [], "started": []}  # the calling process
     loads: list[float] = []
     outputs: set[str] = set()
     breakdowns: dict[str, list[dict[str, Any]]] = {"two": [], "started": []}
@@ -156,8 +158,7 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
         for _ in range(rounds):
             for name in ("one", "two", "started"):
                 loads.append(_load())
-                t = time.perf_counter()
-                began = time.time()
+                t, began, cpu_began = time.perf_counter(), time.time(), time.process_time()
                 if name == "one":
                     result = scan(path, cache=False, points=points, workers=1, **SCAN)
                 else:
@@ -171,6 +172,7 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
                             ex.close()
                     breakdowns[name].append(_breakdown(ex.rows, began, time.time()))
                 times[name].append(time.perf_counter() - t)
+                cpu[name].append(time.process_time() - cpu_began)
                 outputs.add(json.dumps(result.to_json()))
     finally:
         pool.close()
@@ -194,6 +196,7 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
         "two_workers_started_pool_wall_s": started_s,
         "ratio_started_pool": one_s / started_s,
         "all_wall_s": times,
+        "caller_cpu_s": cpu,
         "pool_start_and_warm_up_s": warm_up_s,
         "workers_warmed": warmed,
         "outputs_identical": len(outputs) == 1,
@@ -211,6 +214,8 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
             "scan",
             "each configuration timed in every round, best round kept; outputs_identical: the "
             "scan JSON of every run is the same",
-            "two workers need two idle cores: see load_average_1min (before each run, and after)",
+            "two workers need two idle cores: see load_average_1min (before each run, and "
+            "after); CPU seconds barely depend on the load: caller_cpu_s (the calling process, "
+            "all of the 1-worker run) and the breakdown's worker_task_cpu_s",
         ],
     }
