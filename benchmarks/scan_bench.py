@@ -7,6 +7,7 @@ import json
 import os
 import time
 from collections.abc import Callable, Iterator
+from pathlib import Path
 from typing import Any
 
 #: the demo's H2 along its bond, 0.5-2.5 Angstrom, no refinement points (exactly N points)
@@ -134,6 +135,14 @@ def _load() -> float:
     return round(os.getloadavg()[0], 2)
 
 
+def _autogroup() -> bool | None:
+    """Whether the kernel shares CPU per session (autogroup) rather than per process."""
+    try:
+        return Path("/proc/sys/kernel/sched_autogroup_enabled").read_text().strip() == "1"
+    except OSError:
+        return None
+
+
 def bench_scan_workers(quick: bool) -> dict[str, Any]:
     """The 10-point H2 scan (4 with --quick) with 1 worker / with 2 process workers started by
     the scan itself (headline); also on a started, warmed pool. Best of 2 rounds (1 quick)."""
@@ -202,6 +211,7 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
         "outputs_identical": len(outputs) == 1,
         "breakdown": best,
         "load_average_1min": loads,
+        "sched_autogroup": _autogroup(),
         "notes": [
             "demo study h2-equilibrium (the scan benchmark's), the scan's default recipes (raw "
             "and zne_linear, from its sweep: section), 0.5-2.5 Angstrom, no refinement points",
@@ -217,5 +227,8 @@ def bench_scan_workers(quick: bool) -> dict[str, Any]:
             "two workers need two idle cores: see load_average_1min (before each run, and "
             "after); CPU seconds barely depend on the load: caller_cpu_s (the calling process, "
             "all of the 1-worker run) and the breakdown's worker_task_cpu_s",
+            "with sched_autogroup the kernel shares a busy machine per session, not per process: "
+            "under load the two workers then get about the CPU the one process got, so a ratio "
+            "measured under load says nothing about the pool",
         ],
     }
