@@ -2,14 +2,19 @@
 
 Not a test (timings depend on the machine). Run from the repository root:
 
-    python benchmarks/pauli_propagation.py            # 8 and 10 qubits vs density matrix; 20
+    python benchmarks/pauli_propagation.py            # 8, 10, 12 qubits vs density matrix; 20
     python benchmarks/pauli_propagation.py --quick    # 8 qubits, 20 qubits with 2 groups
+    python benchmarks/pauli_propagation.py --agreement-only --qubits 8 10 12   # part 1 only
     python benchmarks/pauli_propagation.py --study-groups 16   # part 3 on 16 groups
 
-Part 1 (hchain-8, hchain-10 on bench-line-14, optimized layered circuit): the grouped energy of
+Part 1 (hchain-8, -10, -12 on bench-line-14, optimized layered circuit): the grouped energy of
 the density-matrix engine under the explicitly twirled device noise (no idle pass) against
-Pauli propagation of the same noise, exact and at truncation thresholds; the error must stay
-inside the reported bound, and the bound's looseness (bound / error) is reported.
+Pauli propagation of the same noise at truncation thresholds 1e-3, 1e-4, 1e-5: the true error
+against the rigorous bound (sum of dropped |c|) and against the truncation-error estimate with
+its standard error (noiselab.emulate.pauli_truncation: check run at threshold / 10 plus a seeded
+Monte Carlo), and the time of each; the error must stay inside the bound and within 3 standard
+errors of the estimate. Figure: threshold against error and time
+(benchmarks/results/pauli-threshold-<date>.png).
 Part 2 (linear H chains, Jordan-Wigner, STO-3G, 1.8 Angstrom; a two-layer layered circuit with
 seeded small random angles on the invented 44-qubit line bench-line-44): time, peak strings and
 truncation bound of the full noisy energy at 20 qubits (twirled device noise, idle
@@ -34,6 +39,7 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 from noiselab.emulate.pauli_propagation import Truncation  # noqa: E402
+from noiselab.emulate.pauli_truncation import Sampling  # noqa: E402
 
 THRESHOLDS = (1e-5, 1e-4, 1e-3)
 
@@ -96,34 +102,47 @@ def agreement(qubits: int) -> dict:
         float(dist.probs[i] @ g.weights) for i, g in enumerate(plan.groups)
     )
     rows = []
-    for thr in (1e-8, *THRESHOLDS):  # 1e-8: near exact (threshold 0 expands 4**w strings per term)
+    for thr in THRESHOLDS:
+        common = (c.circuit, model, _groups(plan), c.logical_to_circuit, layer, readout)
+        t = time.perf_counter()
+        plain = pauli_energy(*common, Truncation(min_abs_coeff=thr), constant_ha=plan.constant)
+        plain_s = time.perf_counter() - t
         t = time.perf_counter()
         got = pauli_energy(
-            c.circuit,
-            model,
-            _groups(plan),
-            c.logical_to_circuit,
-            layer,
-            readout,
+            *common,
             Truncation(min_abs_coeff=thr),
             constant_ha=plan.constant,
+            sampling=Sampling(seed=study.seed, tag_step=2),
         )
-        err = abs(got.energy_ha - dm_energy)
+        est_s = time.perf_counter() - t
+        true = dm_energy - got.energy_ha  # what the estimate estimates (signed)
+        est, std = got.truncation_estimate_ha, got.truncation_std_ha
         rows.append(
             {
                 "threshold": thr,
-                "seconds": time.perf_counter() - t,
-                "error_mha": err * 1e3,
-                "bound_mha": got.truncation_bound_ha * 1e3,
-                "within_bound": err <= got.truncation_bound_ha + 1e-10,
-                "looseness": (got.truncation_bound_ha / err) if err > 1e-12 else None,
-                "peak_strings": got.peak_strings,
+                "seconds": plain_s,
+                "seconds_with_estimate": est_s,
+                "error_mha": abs(dm_energy - plain.energy_ha) * 1e3,
+                "bound_mha": plain.truncation_bound_ha * 1e3,
+                "within_bound": abs(dm_energy - plain.energy_ha) <= plain.truncation_bound_ha,
+                "looseness": plain.truncation_bound_ha
+                / max(abs(dm_energy - plain.energy_ha), 1e-15),
+                "peak_strings": plain.peak_strings,
+                "signed_error_mha": true * 1e3,
+                "estimate_mha": est * 1e3,
+                "estimate_std_mha": std * 1e3,
+                "estimate_residual_bound_mha": got.estimate_residual_ha * 1e3,
+                "within_3_std": abs(true - est) <= 3 * std,
+                "estimate_over_error": abs(est) / max(abs(true), 1e-15),
             }
         )
+        r = rows[-1]
         print(
-            f"  {qubits} qubits, threshold {thr:g}: error {err * 1e3:.3g} mHa, bound "
-            f"{got.truncation_bound_ha * 1e3:.3g} mHa, {rows[-1]['seconds']:.2f} s "
-            f"(density matrix {dm_s:.2f} s), peak {got.peak_strings} strings",
+            f"  {qubits} qubits, threshold {thr:g}: error {r['error_mha']:.3g} mHa, bound "
+            f"{r['bound_mha']:.3g} mHa ({plain_s:.2f} s); with estimate: error "
+            f"{r['signed_error_mha']:+.3g} mHa, estimate {r['estimate_mha']:+.3g} +- "
+            f"{r['estimate_std_mha']:.2g} mHa ({est_s:.2f} s); density matrix {dm_s:.2f} s, "
+            f"peak {plain.peak_strings} strings",
             flush=True,
         )
     return {
@@ -252,6 +271,8 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
             "bias_mha": r.bias_exact_mha,
             "std_mha": r.std_mha,
             "truncation_bound_mha": r.details["truncation_bound_mha"],
+            "truncation_estimate_mha": r.details.get("truncation_estimate_mha"),
+            "truncation_estimate_std_mha": r.details.get("truncation_estimate_std_mha"),
         }
         for name, r in results.items()
     }
@@ -259,7 +280,9 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
         f"  study slice, {n} qubits: {len(used.groups)} of {plan.n_groups} groups, both recipes "
         f"in {seconds:.1f} s (plan {plan_s:.1f} s, no dense weights); "
         + "; ".join(
-            f"{k}: bias {v['bias_mha']:+.1f} mHa, bound {v['truncation_bound_mha']:.3g} mHa"
+            f"{k}: bias {v['bias_mha']:+.1f} mHa, bound {v['truncation_bound_mha']:.3g} mHa, "
+            f"estimate {v['truncation_estimate_mha']:+.3g} "
+            f"+- {v['truncation_estimate_std_mha']:.2g} mHa"
             for k, v in rows.items()
         )
         + (" (partial groups: energies are not the full energy)" if max_groups else ""),
@@ -278,6 +301,69 @@ def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
     }
 
 
+def threshold_figure(parts: list[dict], path: Path) -> Path:
+    """Threshold against |true error|, rigorous bound and estimate (+- 1 standard error), and
+    against seconds (with and without the estimate), one colour per qubit count."""
+    import matplotlib
+
+    matplotlib.use("Agg")
+    import matplotlib.pyplot as plt
+
+    fig, (ax, bx) = plt.subplots(1, 2, figsize=(11, 5.2))
+    for k, part in enumerate(parts):
+        col = f"C{k}"
+        thr = [r["threshold"] for r in part["rows"]]
+        q = part["qubits"]
+        ax.plot(
+            thr,
+            [r["error_mha"] for r in part["rows"]],
+            "o-",
+            color=col,
+            label=f"{q} qubits: |true error|",
+        )
+        ax.plot(
+            thr,
+            [r["bound_mha"] for r in part["rows"]],
+            "s:",
+            color=col,
+            label=f"{q} qubits: rigorous bound",
+        )
+        ax.errorbar(
+            [t * 1.08 for t in thr],
+            [abs(r["estimate_mha"]) for r in part["rows"]],
+            yerr=[r["estimate_std_mha"] for r in part["rows"]],
+            fmt="^--",
+            color=col,
+            capsize=3,
+            label=f"{q} qubits: |estimate| +- 1 s.e.",
+        )
+        bx.plot(thr, [r["seconds"] for r in part["rows"]], "o-", color=col, label=f"{q} qubits")
+        bx.plot(
+            thr,
+            [r["seconds_with_estimate"] for r in part["rows"]],
+            "^--",
+            color=col,
+            label=f"{q} qubits, with estimate",
+        )
+        bx.axhline(part["density_matrix_s"], color=col, lw=0.8, alpha=0.6)
+    for a in (ax, bx):
+        a.set_xscale("log")
+        a.set_yscale("log")
+        a.set_xlabel("truncation threshold min_abs_coeff (Ha)")
+        a.grid(True, which="major", alpha=0.3)
+    ax.set_ylabel("truncation error of the energy (mHa)")
+    ax.set_title("Truncation error against the density matrix (twirled noise)")
+    bx.set_ylabel("time (s)")
+    bx.set_title("Time (thin lines: density matrix)")
+    ax.legend(fontsize=6.5, loc="center left", bbox_to_anchor=(0.0, 0.5))
+    bx.legend(fontsize=6.5)
+    fig.tight_layout()
+    path.parent.mkdir(parents=True, exist_ok=True)
+    fig.savefig(path, dpi=120)
+    plt.close(fig)
+    return path
+
+
 def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--quick", action="store_true")
@@ -287,6 +373,8 @@ def main() -> int:
         default=None,
         help="groups of the 20-qubit study slice (default: all; --quick: 2)",
     )
+    ap.add_argument("--qubits", type=int, nargs="+", default=None, help="part 1 sizes")
+    ap.add_argument("--agreement-only", action="store_true", help="part 1 and its figure only")
     args = ap.parse_args()
     out = {
         "date": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
@@ -294,8 +382,18 @@ def main() -> int:
         "scaling": [],
     }
     print("agreement with the density matrix (twirled noise):")
-    for q in (8,) if args.quick else (8, 10):
+    stamp = f"{dt.date.today().isoformat()}{'-quick' if args.quick else ''}"
+    figure = HERE / "results" / f"pauli-threshold-{stamp}.png"
+    for q in args.qubits or ((8,) if args.quick else (8, 10, 12)):
         out["agreement"].append(agreement(q))
+        threshold_figure(out["agreement"], figure)  # after each size: a long run keeps a figure
+        if args.agreement_only:
+            path = HERE / "results" / f"pauli-agreement-{stamp}.json"
+            path.write_text(json.dumps(out, indent=1) + "\n")
+    print(f"figure: {figure}")
+    if args.agreement_only:
+        print(f"results: {path}")
+        return 0
     print("scaling (twirled device noise, truncation 1e-4):")
     for atoms in (
         10,

@@ -294,10 +294,11 @@ def bench_grid(quick: bool) -> dict[str, Any]:
     grid = GridOverride(
         readout=["none", "per_qubit_inverse"],
         postselect=["none", "discard"],
-        amplification=["none", "stretch"],
+        amplifier=["none", "stretch"],
         scales=[[float(s) for s in sc] for sc in GRID_SCALES],
         fit=["linear", "richardson"],
         family=["none"],  # the stack only (the families' circuits are other benchmarks)
+        suppress=["none"],  # suppression changes the circuits: not the point measured here
     )
     t = time.perf_counter()
     tuned = tune(study, grid=grid, cache=False)

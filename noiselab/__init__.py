@@ -18,6 +18,7 @@ _LAZY: dict[str, str] = {
     "tune": "noiselab.study.tune:tune",
     "sweep": "noiselab.study.sweep:sweep",
     "budget": "noiselab.study.budget:budget",
+    "scan": "noiselab.study.scan:scan",
     "load_study": "noiselab.study.spec:load_study",
     "load_profile": "noiselab.device.profile:load_profile",
     "profile_from_target": "noiselab.device.qiskit_target:profile_from_target",
@@ -31,6 +32,8 @@ _LAZY: dict[str, str] = {
     "sweep_figure": "noiselab.report.figures:sweep_figure",
     "budget_figure": "noiselab.report.figures:budget_figure",
     "write_report": "noiselab.report.proposal:write_report",
+    "figure_style": "noiselab.report.style:figure_style",
+    "write_tuned_study": "noiselab.study.tuned_copy:write_tuned_study",
 }
 
 

@@ -29,11 +29,11 @@ def test_sweep_on_a_cluster_writes_the_same_csv(
     sweep = [
         "sweep",
         str(demo_study_path()),
-        "--vary",
-        "noise-scale",
-        "--from",
+        "--knob",
+        "noise_scale",
+        "--start",
         "0.5",
-        "--to",
+        "--stop",
         "2",
         "--points",
         "3",
@@ -55,8 +55,8 @@ def test_sweep_on_a_cluster_writes_the_same_csv(
     assert "dask cluster" in out  # the run line names the executor
     rc, _, err = _run([*sweep, "--out", str(tmp_path / "B")], capsys)
     assert rc == 0, err
-    a = (tmp_path / "A" / "sweep-noise-scale.csv").read_text(encoding="utf-8")
-    b = (tmp_path / "B" / "sweep-noise-scale.csv").read_text(encoding="utf-8")
+    a = (tmp_path / "A" / "sweep-noise_scale.csv").read_text(encoding="utf-8")
+    b = (tmp_path / "B" / "sweep-noise_scale.csv").read_text(encoding="utf-8")
     # reference: the in-process run of the same command (common practice, no source)
     assert a == b
     assert len(a.strip().splitlines()) == 1 + 3 * 2  # header, 3 points x (raw, zne_linear)

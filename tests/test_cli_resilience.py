@@ -41,8 +41,9 @@ rehearse:
   loop_recipe: [{{pass: readout, method: per_qubit_inverse}}]
 """
 
-SWEEP = ["--vary", "two-qubit-error", "--from", "0.002", "--to", "0.05", "--points", "20", "--log"]
-FILES = [f"sweep-two-qubit-error.{ext}" for ext in ("csv", "json", "svg", "pdf", "png")]
+SWEEP = ["--knob", "two_qubit_error", "--start", "0.002", "--stop", "0.05", "--points", "20"]
+SWEEP += ["--log"]
+FILES = [f"sweep-two_qubit_error.{ext}" for ext in ("csv", "json", "svg", "pdf", "png")]
 
 
 @pytest.fixture(scope="module")
@@ -147,10 +148,11 @@ WILD = {
     "--trajectories": st.one_of(NUMBERS, st.integers(-3, 10**8).map(str)),
     "--workers": st.sampled_from(["1", "0", "-2", "1e9", "1.5", "w", "100000"]),
     "--points": st.one_of(NUMBERS, st.integers(-3, 10**6).map(str)),
-    "--from": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
-    "--to": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
-    "--vary": st.sampled_from(["noise-scale", "readout-error", "coherence-us", "knob", ""]),
+    "--start": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
+    "--stop": st.one_of(NUMBERS, st.floats(width=32).map(repr)),
+    "--knob": st.sampled_from(["noise_scale", "readout_error", "coherence_us", "noise-scale", ""]),
     "--recipe": st.sampled_from(["zne", "raw", "nope", ""]),
+    "--recipes": st.sampled_from(["zne", "raw", "nope", ""]),
     "--top": st.one_of(NUMBERS, st.integers(-3, 10**7).map(str)),
     "--fit": st.sampled_from(["linear", "richardson", "spline", ""]),
     "--scales": st.sampled_from(["1,3", "1,2,3", "1", "1,1e9", "a,b", "1,nan", ""]),
@@ -160,10 +162,12 @@ WILD = {
     "--shots-per-evaluation": st.one_of(NUMBERS, st.integers(-3, 10**10).map(str)),
     "--max-shots": st.one_of(NUMBERS, st.integers(-3, 10**16).map(str)),
     "--optimizer": st.sampled_from(["spsa", "cobyla", "newton", ""]),
-    "--start": st.sampled_from(["hartree_fock", "random", "middle", ""]),
+    "rehearse --start": st.sampled_from(["hartree_fock", "random", "middle", ""]),
     "--devices": st.sampled_from(["cobaltgrid-12", "no-such-chip", "", "/dev/null"]),
     "--refine": st.one_of(NUMBERS, st.integers(-3, 100).map(str)),
     "--bond": st.sampled_from([["0", "1"], ["0", "0"], ["0", "7"], ["-1", "1"], ["a", "1"]]),
+    "--style": st.sampled_from(["paper", "talk", "poster", ""]),
+    "--coherence-gate-errors": st.sampled_from(["follow", "fixed", "both", ""]),
 }
 # values that keep a valid run small (2 qubits, a few points, cached simulations)
 TAME = {
@@ -173,10 +177,11 @@ TAME = {
     "--trajectories": st.sampled_from(["32", "64", "2e1"]),
     "--workers": st.just("1"),
     "--points": st.sampled_from(["2", "3", "3e0"]),
-    "--from": st.sampled_from(["0.5", "1", "0.01"]),
-    "--to": st.sampled_from(["2", "3", "0.02"]),
-    "--vary": st.sampled_from(["noise-scale", "readout-error"]),
+    "--start": st.sampled_from(["0.5", "1", "0.01"]),
+    "--stop": st.sampled_from(["2", "3", "0.02"]),
+    "--knob": st.sampled_from(["noise_scale", "readout_error"]),
     "--recipe": st.sampled_from(["zne", "raw"]),
+    "--recipes": st.sampled_from(["zne", "raw"]),
     "--top": st.sampled_from(["1", "5", "1e1"]),
     "--fit": st.sampled_from(["linear", "richardson"]),
     "--scales": st.sampled_from(["1,3", "1,2,3"]),
@@ -186,24 +191,26 @@ TAME = {
     "--shots-per-evaluation": st.sampled_from(["100", "1e3"]),
     "--max-shots": st.sampled_from(["1e9", "5000"]),
     "--optimizer": st.sampled_from(["spsa", "cobyla"]),
-    "--start": st.sampled_from(["hartree_fock", "random"]),
+    "rehearse --start": st.sampled_from(["hartree_fock", "random"]),
     "--devices": st.sampled_from(["cobaltgrid-12", "tallowtrap-8"]),
     "--refine": st.sampled_from(["0", "0e0"]),
     "--bond": st.just(["0", "1"]),
+    "--style": st.sampled_from(["paper", "talk"]),
+    "--coherence-gate-errors": st.sampled_from(["follow", "fixed"]),
 }
 # scan: a tame line keeps its geometry small (two points near equilibrium, no refinement)
-SCAN_TAME = {"--from": st.sampled_from(["0.6", "0.7"]), "--to": st.sampled_from(["0.8", "0.9"])}
+SCAN_TAME = {"--start": st.sampled_from(["0.6", "0.7"]), "--stop": st.sampled_from(["0.8", "0.9"])}
 OPTIONS = {
-    "assess": ["--shots", "--seed", "--method", "--trajectories"],
+    "assess": ["--shots", "--seed", "--method", "--trajectories", "--style"],
     "sweep": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--points",
-              "--from", "--to", "--vary", "--recipe"],
+              "--start", "--stop", "--knob", "--recipes", "--style", "--coherence-gate-errors"],
     "tune": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--top", "--fit",
              "--scales", "--readout"],
     "budget": ["--shots", "--seed", "--method", "--trajectories", "--workers", "--recipe"],
     "rehearse": ["--seed", "--iterations", "--repeats", "--shots-per-evaluation", "--max-shots",
                  "--optimizer", "--start"],
     "compare": ["--devices", "--shots", "--seed", "--method", "--trajectories"],
-    "scan": ["--bond", "--from", "--to", "--points", "--refine", "--recipe", "--shots",
+    "scan": ["--bond", "--start", "--stop", "--points", "--refine", "--recipes", "--shots",
              "--seed", "--method", "--trajectories", "--workers"],
 }  # fmt: skip
 #: what a tame line of a job always carries, unless the option was drawn (small, fast runs)
@@ -211,8 +218,8 @@ REQUIRED = {
     "tune": [("--scales", "1,3"), ("--fit", "linear"), ("--readout", "none")],
     "rehearse": [("--iterations", "1"), ("--repeats", "1"), ("--shots-per-evaluation", "100")],
     "compare": [("--devices", "cobaltgrid-12")],
-    "scan": [("--bond", ["0", "1"]), ("--from", "0.6"), ("--to", "0.8"), ("--points", "2"),
-             ("--refine", "0"), ("--recipe", "raw")],
+    "scan": [("--bond", ["0", "1"]), ("--start", "0.6"), ("--stop", "0.8"), ("--points", "2"),
+             ("--refine", "0"), ("--recipes", "raw")],
 }  # fmt: skip
 
 
@@ -230,13 +237,16 @@ def command_lines(
     tame_only = draw(st.integers(0, 2)) == 0
     args = [job, str(study), "--cache", str(cache), "-q"]
     if job == "tune":
-        args += ["--postselect", "none", "--amplification", "stretch"]
+        args += ["--postselect", "none", "--amplifier", "stretch"]
     kinds = ["absent", "tame"] if tame_only else ["absent", "tame", "wild"]
     for option in OPTIONS[job]:
         kind = draw(st.sampled_from(kinds))
         tame = {**TAME, **SCAN_TAME} if job == "scan" else TAME
         if kind != "absent":
-            args += _words(option, draw((tame if kind == "tame" else WILD)[option]))
+            table = tame if kind == "tame" else WILD
+            # "job --option" where one option means different things on different jobs
+            own = f"{job} {option}"
+            args += _words(option, draw(table[own] if own in table else table[option]))
     for option, value in REQUIRED.get(job, []):  # the job's own defaults would be long runs
         if option not in args:
             args += _words(option, value)

@@ -14,6 +14,7 @@ from noiselab.common.errors import ProblemTooLargeError
 from noiselab.device.evolution import evolution_ensemble, evolution_spec
 from noiselab.device.noise import noise_spec
 from noiselab.device.profile import DeviceProfile, scale_profile
+from noiselab.device.suppression import _with_profile_values
 from noiselab.emulate.engine import emulate_bases
 
 GATE_NS = 0.001  # the shortest allowed duration: gates are (nearly) instantaneous
@@ -101,6 +102,39 @@ def test_idle_zz_conditional_phase_and_echo(method: str) -> None:
         profile, 0.0, method, True
     )
     assert abs(echoed) < 1e-9
+
+
+def test_own_cz_carries_no_extra_zz_but_a_neighbours_cz_does() -> None:
+    """The pair's own 300 ns cz: its calibration holds the static ZZ (the convention of
+    device/evolution.py), so qubit 0 turns only during the second half of the 1 ps preparation
+    pulses; a cz of qubit 1 with qubit 2 leaves the ZZ of (0, 1) acting over its 300 ns."""
+    nu_khz = 50.0
+    profile, base = coherent_only(zz_khz=nu_khz), coherent_only()
+
+    def phase_shift(qc: QuantumCircuit) -> float:
+        got = bloch_xy(profile, qc, "density_matrix")[0] - bloch_xy(base, qc, "density_matrix")[0]
+        return (got + math.pi) % (2 * math.pi) - math.pi
+
+    def expected(t_ns: float) -> float:
+        # source: closed form as in the idle test: with qubit 1 in |1>, rzz(pi nu t) turns
+        # qubit 0 by -pi nu t (qiskit's rzz(theta) = exp(-i theta ZZ / 2), from memory)
+        return -math.pi * nu_khz * 1e3 * t_ns * 1e-9
+
+    own = QuantumCircuit(3)
+    own.sx(0)
+    own.x(1)
+    own.cz(0, 1)
+    assert phase_shift(own) == pytest.approx(expected(GATE_NS / 2), abs=1e-12)
+    other = QuantumCircuit(3)
+    other.sx(0)
+    other.x(1)
+    other.delay(GATE_NS * 1e-9, 0, unit="s")
+    other.cz(1, 2)  # 300 ns, from 1 ps; qubit 0 waits until 300.002 ns
+    other.delay(300e-9, 0, unit="s")
+    assert phase_shift(other) == pytest.approx(expected(GATE_NS / 2 + 300.0 + GATE_NS), abs=1e-12)
+    # the other convention: a gate calibrated without the static ZZ present carries it too
+    profile = _with_profile_values(profile, zz_during_own_gate="extra")
+    assert phase_shift(own) == pytest.approx(expected(GATE_NS / 2 + 300.0), abs=1e-12)
 
 
 def test_quasi_static_detuning_ramsey_gaussian_and_echo() -> None:

@@ -312,9 +312,10 @@ def _small_grid():
     return GridOverride(
         readout=["none", "per_qubit_inverse"],
         postselect=["none"],
-        amplification=["none", "stretch", "two_qubit_gates"],
+        amplifier=["none", "stretch", "two_qubit_gates"],
         scales=[[1.0, 2.0, 3.0]],
         fit=["linear"],
+        suppress=["none"],
     )
 
 
@@ -330,7 +331,7 @@ def _sweep_csv(study, ctx, executor) -> str:
     from noiselab.study.sweep import sweep
 
     result = sweep(
-        study, "noise-scale", values=[0.5, 1.0, 2.0], cache=False, context=ctx, executor=executor
+        study, "noise_scale", values=[0.5, 1.0, 2.0], cache=False, context=ctx, executor=executor
     )
     return csv_text(sweep_rows(result))
 

@@ -125,7 +125,7 @@ def test_budget_never_calls_a_removal_that_raises_the_error_the_largest_cost() -
 
 
 def test_sweep_crossing_quoted_to_its_resolution(tmp_path: Path) -> None:
-    knob = get_knob("two-qubit-error")
+    knob = get_knob("two_qubit_error")
     # bisection to 1 % of the value: the midpoint is known to ±0.5 % (0.4312 % -> ±0.0022 %)
     assert BISECTION_REL_TOL == 0.01
     assert F.crossing_text(knob, 0.004312) == "0.431 ± 0.002 %"

@@ -212,8 +212,8 @@ def test_shots_in_scientific_notation_on_the_command_line(tiny_study: Path, tmp_
         (["assess", "--trajectories", "1e9"], ["--trajectories"]),
         (["sweep", "--points", "100000"], ["--points", "200"]),
         (["sweep", "--points", "2.5"], ["--points"]),
-        (["sweep", "--vary", "noise-scale", "--to", "1e9"], ["--to", "100"]),
-        (["sweep", "--vary", "coherence-us", "--from", "1e-30"], ["--from"]),
+        (["sweep", "--knob", "noise_scale", "--stop", "1e9"], ["--stop", "100"]),
+        (["sweep", "--knob", "coherence_us", "--start", "1e-30"], ["--start"]),
         (["sweep", "--workers", "100000"], ["--workers", "256"]),
         (["tune", "--top", "0"], ["--top"]),
         (["tune", "--scales", "1,1e9"], ["scales", "100"]),
@@ -247,7 +247,7 @@ def test_unusable_out_is_refused_before_any_work(
         out = str(blocker / "sub")
     else:
         folder = tmp_path / "out"
-        name = {"assess": "assess.csv", "sweep": "sweep-noise-scale.png"}.get(job, f"{job}.csv")
+        name = {"assess": "assess.csv", "sweep": "sweep-noise_scale.png"}.get(job, f"{job}.csv")
         (folder / name).mkdir(parents=True)
         out = str(folder)
     cache = tmp_path / "cache.sqlite"

@@ -202,7 +202,12 @@ def test_in_tune_default_grid_and_in_a_small_tune(tmp_path) -> None:
     bare = study.__class__(**{**study.__dict__, "tune": None})
     settings, _ = grid_settings(resolve_grid(bare, GridOverride())[0])
     assert any(s.passes[-1]["pass"] == "clifford_regression" for s in settings if s.passes)
-    grid = GridOverride(readout=["none"], postselect=["none"], amplification=["none", CDR["pass"]])
+    grid = GridOverride(
+        readout=["none"],
+        postselect=["none"],
+        amplifier=["none", CDR["pass"]],
+        suppress=["none"],
+    )
     result = tune(study, grid=grid, cache=tmp_path / "t.db")
     by_label = {e.label: e.result for e in result.entries}
     assert len(by_label) == 2

@@ -28,7 +28,7 @@ def _grid() -> list:
     grid = Grid(
         readout=("none", "per_qubit_inverse", "full_inverse", "nearest_probability"),
         postselect=("none", "discard", "verify"),
-        amplification=("none", "stretch", "two_qubit_gates"),
+        amplifier=("none", "stretch", "two_qubit_gates"),
         scales=((1.0, 2.0, 3.0), (1.0, 3.0, 5.0)),
         fit=("linear", "richardson"),
     )

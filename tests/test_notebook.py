@@ -36,5 +36,5 @@ def test_notebook_executes(tmp_path: Path, monkeypatch: pytest.MonkeyPatch) -> N
     svgs = [o for o in outputs if "image/svg+xml" in o.get("data", {})]
     assert images and svgs  # the figures are shown inline
     assert "two-qubit gate error (%)" in svgs[0]["data"]["image/svg+xml"]
-    for name in ("assess-bias.png", "sweep-two-qubit-error.svg", "sweep-two-qubit-error.png"):
+    for name in ("assess-bias.png", "sweep-two_qubit_error.svg", "sweep-two_qubit_error.png"):
         assert (tmp_path / name).is_file()

@@ -102,7 +102,7 @@ def test_report_is_valid_html_with_every_figure(kind: str, tmp_path: Path) -> No
     for p in pngs:
         assert f"]({p.name})" in md and (tmp_path / p.name).is_file()
     assert "## Provenance" in md and "## Assumptions" in md and "## Cautions" in md
-    data = json.loads((tmp_path / f"{'budget' if kind == 'budget' else 'sweep-two-qubit-error'}"
+    data = json.loads((tmp_path / f"{'budget' if kind == 'budget' else 'sweep-two_qubit_error'}"
                                    ".json").read_text())  # fmt: skip
     assert data["provenance"]["files"]["study"]["path"] == str(DEMO)
 

@@ -42,7 +42,7 @@ EXACT_HA = -1.137
 
 
 def _hand_sweep(log: bool = True) -> SweepResult:
-    knob = get_knob("two-qubit-error")
+    knob = get_knob("two_qubit_error")
     values = knob.values(1e-3, 5e-2, 6, log)
     points = []
     for v in values:
@@ -71,7 +71,7 @@ def _hand_sweep(log: bool = True) -> SweepResult:
         for r in recipes
     )
     return SweepResult(
-        "h2-hand", "toy-chip", "two-qubit-error", log, 0.01, CHEMICAL_ACCURACY_MHA, 100_000,
+        "h2-hand", "toy-chip", "two_qubit_error", log, 0.01, CHEMICAL_ACCURACY_MHA, 100_000,
         EXACT_HA, EXACT_HA + 1e-4, recipes, tuple(points), crossings,
     )  # fmt: skip
 
@@ -216,7 +216,7 @@ def test_sweep_outputs_and_csv(tmp_path: Path) -> None:
     res = _hand_sweep()
     written = write_sweep_outputs(res, tmp_path)
     names = sorted(p.name for p in written)
-    stem = "sweep-two-qubit-error"
+    stem = "sweep-two_qubit_error"
     assert names == sorted(f"{stem}.{e}" for e in ("csv", "json", "svg", "pdf", "png"))
     with open(tmp_path / f"{stem}.csv", newline="") as fh:
         rows = list(csv.DictReader(fh))

@@ -200,9 +200,10 @@ def test_tune_simulates_each_distinct_variant_once(study, context, tmp_path: Pat
     grid = GridOverride(
         readout=["none", "per_qubit_inverse"],
         postselect=["none", "discard"],
-        amplification=["none", "stretch"],
+        amplifier=["none", "stretch"],
         scales=[[1, 2, 3], [1, 3, 5]],
         fit=["linear", "richardson"],
+        suppress=["none"],
     )
     result = tune(study, grid=grid, cache=tmp_path / "t.db", context=context)
     # 2 readout x 2 post-selection x (no ZNE + 2 scale sets x 2 fits) = 20 settings (by hand)
@@ -232,7 +233,8 @@ def test_tune_refuses_unknown_axis_value(study) -> None:
     from noiselab.common.errors import InputError
     from noiselab.study.tune import GridOverride, resolve_grid
 
-    with pytest.raises(InputError, match="--fit: unknown value 'cubic'"):
+    # from Python the message names the argument, not the command line's option
+    with pytest.raises(InputError, match=r"^fit: unknown value 'cubic'"):
         resolve_grid(study, GridOverride(fit=["cubic"]))
 
 
@@ -280,7 +282,7 @@ def test_tune_cli_writes_ranked_csv(cli_runs: dict, tmp_path: Path) -> None:
         "per_qubit_inverse",
         "--postselect",
         "discard",
-        "--amplification",
+        "--amplifier",
         "stretch",
         "--scales",
         "1,3,5",
@@ -288,6 +290,8 @@ def test_tune_cli_writes_ranked_csv(cli_runs: dict, tmp_path: Path) -> None:
         "linear",
         "--fit",
         "richardson",
+        "--suppress",
+        "none",
         "--cache",
         str(cli_runs["cache_a"]),
         "--seed",

@@ -110,7 +110,12 @@ def test_assess_with_verify_measures_the_extra_bases(studies, store, measured) -
 def test_tune_measures_the_extra_bases_only_with_a_verify_axis(studies, store, measured) -> None:
     _, plain = studies
     ctx = build_context(plain, cache=store)
-    small = {"readout": ["none"], "amplification": ["none"], "family": ["none"]}
+    small = {
+        "readout": ["none"],
+        "amplifier": ["none"],
+        "family": ["none"],
+        "suppress": ["none"],
+    }
     tune(plain, grid=GridOverride(postselect=["none", "discard"], **small), cache=store)
     tuned = tune(plain, grid=GridOverride(postselect=["none", "verify"], **small), cache=store)
     # a context given without the verification bases is extended when the grid verifies

@@ -19,7 +19,7 @@ from noiselab.study.tune import GridOverride, applicable, grid_settings, resolve
 def test_default_grid_holds_the_families() -> None:
     study = load_study(DEMO)
     bare = study.__class__(**{**study.__dict__, "tune": None})
-    grid, _ = resolve_grid(bare, GridOverride())
+    grid, _ = resolve_grid(bare, GridOverride(suppress=["none"]))
     settings, _ = grid_settings(grid)
     families = [s.options["family"] for s in settings]
     # by hand: error cancellation with 4 readout x 3 post-selection choices and no
@@ -30,7 +30,8 @@ def test_default_grid_holds_the_families() -> None:
     assert families.count("none") == 168
     assert len(settings) == 181
     # the demo's own tune section names no family beyond none: its 81 settings as they were
-    own, _ = resolve_grid(study, GridOverride())
+    # (without suppression; tests/test_tune_suppression.py counts the suppress axis)
+    own, _ = resolve_grid(study, GridOverride(suppress=["none"]))
     assert len(grid_settings(own)[0]) == 81
 
 
@@ -38,8 +39,9 @@ def test_tune_ranks_the_families(tmp_path: Path) -> None:
     grid = GridOverride(
         readout=["none", "per_qubit_inverse"],
         postselect=["none"],
-        amplification=["none"],
+        amplifier=["none"],
         family=["none", "error_cancellation", "distillation"],
+        suppress=["none"],
     )
     result = tune(DEMO, grid=grid, cache=tmp_path / "t.db", reuse=False)
     # by hand: 2 plain + 2 with error cancellation + distillation; circuits: the device as it
@@ -65,8 +67,9 @@ def test_families_the_experiment_refuses_are_left_out_with_a_note() -> None:
         GridOverride(
             readout=["none"],
             postselect=["none"],
-            amplification=["none"],
+            amplifier=["none"],
             family=["none", "distillation"],
+            suppress=["none"],
         ),
     )[0]
     kept, notes = applicable(small, grid_settings(grid)[0])

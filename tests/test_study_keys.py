@@ -233,7 +233,7 @@ def test_listed_tune_values_are_the_ones_the_grid_accepts() -> None:
     from noiselab.study.grid import check_tune_section
 
     rows = {r.path: r for r in keymod.study_keys()}
-    for axis in ("readout", "postselect", "amplification", "fit", "family"):
+    for axis in ("readout", "postselect", "amplifier", "fit", "family"):
         listed = [v.strip() for v in rows[f"tune.{axis}"].allowed.split(",")]
         for value in listed:
             check_tune_section(TuneGrid(**{axis: [value]}), "s.yaml")  # accepted

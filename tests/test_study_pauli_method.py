@@ -186,3 +186,49 @@ def test_jobs_other_than_assess_are_refused_in_one_line(tmp_path: Path) -> None:
             job(path, cache=False)
         text = str(info.value)
         assert "\n" not in text and str(path) in text and "assess only" in text
+
+
+def test_truncation_estimate_is_reported_and_workers_give_the_same_numbers(
+    tmp_path: Path,
+) -> None:
+    # reference for the estimate: the untruncated assess of the same study (equal to aer's
+    # density matrix above); the pool path must give the in-process numbers (one task per
+    # group, draws hashed per string: noiselab.emulate.pauli_truncation)
+    from noiselab.study.assess import assess
+
+    exact = assess(_study(tmp_path), cache=False).recipes["raw"]
+    inproc = assess(_study(tmp_path, cut=1e-3), cache=False)
+    pooled = assess(_study(tmp_path, cut=1e-3), cache=False, workers=2)
+    raw = inproc.recipes["raw"]
+    est, std = raw.details["truncation_estimate_mha"], raw.details["truncation_estimate_std_mha"]
+    true_mha = (exact.energy_ha - raw.energy_ha) * 1e3
+    assert abs(true_mha - est) <= 3 * std
+    assert abs(true_mha) <= raw.details["truncation_bound_mha"]
+    entry = inproc.to_json()["recipes"]["raw"]
+    assert entry["truncation_estimate_mha"] == est
+    assert entry["truncation_estimate_std_mha"] == std
+    assert "truncation error estimate" in inproc.emulation_notice
+    assert raw.details["propagation_tasks"] == 1
+    assert pooled.recipes["raw"].details["propagation_tasks"] == len(raw.shots_per_circuit) > 1
+    print(f"h2 at 1e-3: true {true_mha:.4g} mHa, estimate {est:.4g} +- {std:.3g} mHa")
+    for name, r in inproc.recipes.items():
+        p = pooled.recipes[name]
+        assert p.energy_ha == pytest.approx(r.energy_ha, abs=1e-12)
+        assert p.std_mha == pytest.approx(r.std_mha, rel=1e-9)
+        for key in (
+            "truncation_bound_mha",
+            "truncation_estimate_mha",
+            "truncation_estimate_std_mha",
+        ):
+            assert p.details[key] == pytest.approx(r.details[key], rel=1e-9, abs=1e-9)
+        assert p.p_within_target == pytest.approx(r.p_within_target, abs=1e-12)
+
+
+def test_workers_are_refused_for_other_methods_in_one_line(tmp_path: Path) -> None:
+    from noiselab.study.assess import assess
+
+    path = _study(tmp_path)
+    path.write_text(path.read_text().replace("method: pauli_propagation", "method: density_matrix"))
+    with pytest.raises(InputError) as err:
+        assess(path, cache=False, workers=2)
+    assert "workers/cluster: " in str(err.value) and "\n" not in str(err.value)

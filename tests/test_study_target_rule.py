@@ -14,9 +14,10 @@ STUDIES = sorted((ROOT / "configs" / "studies").glob("*.yaml"))
 SMALL_GRID = GridOverride(
     readout=["none", "per_qubit_inverse"],
     postselect=["none"],
-    amplification=["none", "stretch"],
+    amplifier=["none", "stretch"],
     scales=[[1, 3, 5]],
     fit=["linear"],
+    suppress=["none"],
 )
 
 
@@ -73,7 +74,7 @@ def test_sweep_and_budget_json(store, loose_study: Path) -> None:
     seen: set[bool] = set()
     for path in _all_studies(loose_study):
         sj = sweep(
-            path, "noise-scale", 0.5, 2.0, 2, True, recipes=["raw"], cache=store
+            path, "noise_scale", 0.5, 2.0, 2, True, recipes=["raw"], cache=store
         ).to_json()
         for point in sj["points"]:
             seen |= {_check(e, sj["confidence"]) for e in point["results"]}

@@ -56,14 +56,15 @@ def _run(argv: list[str], capsys: pytest.CaptureFixture[str]) -> tuple[int, str,
 @pytest.mark.parametrize(
     ("extra", "needle"),
     [
-        (["--vary", "gate-fidelity"], "--vary"),  # not a knob
-        (["--vary", "two-qubit-error", "--from", "-0.01", "--to", "0.02"], "--from"),  # negative
-        (["--vary", "one-qubit-error", "--from", "0.001", "--to", "1.5"], "--to"),  # error > 1
-        (["--vary", "readout-error", "--from", "0.01", "--to", "0.6"], "--to"),  # worse than a coin
-        (["--vary", "coherence-us", "--from", "0", "--to", "100"], "--from"),  # zero T1
-        (["--vary", "noise-scale", "--from", "0", "--to", "2", "--log"], "--from"),  # log of 0
-        (["--vary", "noise-scale", "--points", "1"], "--points"),
-        (["--vary", "noise-scale", "--recipe", "nonesuch"], "--recipe"),
+        (["--knob", "gate-fidelity"], "--knob"),  # not a knob
+        # a negative error; an error above 1; a readout worse than a coin toss
+        (["--knob", "two_qubit_error", "--start", "-0.01", "--stop", "0.02"], "--start"),
+        (["--knob", "single_qubit_error", "--start", "0.001", "--stop", "1.5"], "--stop"),
+        (["--knob", "readout_error", "--start", "0.01", "--stop", "0.6"], "--stop"),
+        (["--knob", "coherence_us", "--start", "0", "--stop", "100"], "--start"),  # zero T1
+        (["--knob", "noise_scale", "--start", "0", "--stop", "2", "--log"], "--start"),  # log of 0
+        (["--knob", "noise_scale", "--points", "1"], "--points"),
+        (["--knob", "noise_scale", "--recipes", "nonesuch"], "--recipes"),
     ],
 )
 def test_bad_sweep_input_exits_2_with_one_line(
@@ -81,7 +82,7 @@ def test_bad_budget_recipe_and_missing_study(
 ) -> None:
     rc, _, err = _run(["budget", str(study), "--no-cache", "--recipe", "nonesuch"], capsys)
     assert rc == 2 and "nonesuch" in err and len(err.strip().splitlines()) == 1
-    rc, _, err = _run(["sweep", str(tmp_path / "missing.yaml"), "--vary", "scale"], capsys)
+    rc, _, err = _run(["sweep", str(tmp_path / "missing.yaml"), "--knob", "noise_scale"], capsys)
     assert rc == 2 and "not found" in err
 
 
@@ -90,7 +91,7 @@ def test_sweep_writes_files_and_states_the_crossing(
 ) -> None:
     out_dir = tmp_path / "out"
     argv = ["sweep", str(study), "--cache", str(tmp_path / "c.sqlite"), "--quiet"]
-    argv += ["--vary", "two-qubit-error", "--from", "0.005", "--to", "0.05", "--points", "3"]
+    argv += ["--knob", "two_qubit_error", "--start", "0.005", "--stop", "0.05", "--points", "3"]
     argv += ["--log", "--out", str(out_dir)]
     rc, out, err = _run(argv, capsys)
     assert rc == 0, err
@@ -98,6 +99,6 @@ def test_sweep_writes_files_and_states_the_crossing(
     assert "raw " in out and "zne " in out
     sentences = [line for line in out.splitlines() if "chemical accuracy" in line]
     assert any(line.startswith("zne ") for line in sentences)
-    stem = "sweep-two-qubit-error"
+    stem = "sweep-two_qubit_error"
     for ext in ("csv", "json", "svg", "pdf", "png"):
         assert (out_dir / f"{stem}.{ext}").is_file()

@@ -70,7 +70,7 @@ def test_rule_crossing_comes_before_the_bias_crossing() -> None:
     # bias = x mHa with a std of 0.5 mHa: the bias alone crosses at x = t; the rule needs
     # P(|N(x, 0.5)| <= t) >= 0.95, reached for x < t - 1.645 * 0.5 to good approximation
     # (source: standard normal quantile 1.645 for a one-sided 95 %; the other tail is negligible)
-    knob = get_knob("noise-scale")
+    knob = get_knob("noise_scale")
     xs = (0.25, 0.5, 1.0, 2.0, 4.0)
     pts = [SweepPoint(x, x, (dataclasses.replace(_entry(x, 0.5), recipe="raw"),)) for x in xs]
 
@@ -99,7 +99,7 @@ def test_over_correction_between_two_outside_points_is_probed() -> None:
 
 
 def test_sentences_in_device_units() -> None:
-    knob = get_knob("two-qubit-error")
+    knob = get_knob("two_qubit_error")
     t = CHEMICAL_ACCURACY_MHA
     s = crossing_sentence(
         "zne", knob, [0.001, 0.01], [True, False], [0.0042], [True, False], [0.0051], t, 0.95
@@ -109,7 +109,7 @@ def test_sentences_in_device_units() -> None:
         "two-qubit gate error is below 0.42 %; its bias alone (unlimited shots) is within the "
         "target while the two-qubit gate error is below 0.51 %"
     )
-    coh = get_knob("coherence-us")
+    coh = get_knob("coherence_us")
     # error falls as T1 grows: within target above the crossing
     s = crossing_sentence("raw", coh, [20.0, 200.0], [False, True], [120.0], [False, True],
                           [110.0], t, 0.95)  # fmt: skip
@@ -130,30 +130,30 @@ def test_sentences_in_device_units() -> None:
 @pytest.mark.parametrize(
     ("knob", "start", "stop"),
     [
-        ("two-qubit-error", -0.01, 0.02),  # a negative error rate
-        ("two-qubit-error", 0.001, 1.5),  # an error above 1
-        ("readout-error", 0.01, 0.7),  # readout worse than a coin toss
-        ("coherence-us", 0.0, 100.0),  # zero coherence time
-        ("noise-scale", 0.0, 2.0),  # zero with log spacing (below)
+        ("two_qubit_error", -0.01, 0.02),  # a negative error rate
+        ("two_qubit_error", 0.001, 1.5),  # an error above 1
+        ("readout_error", 0.01, 0.7),  # readout worse than a coin toss
+        ("coherence_us", 0.0, 100.0),  # zero coherence time
+        ("noise_scale", 0.0, 2.0),  # zero with log spacing (below)
     ],
 )
 def test_bad_ranges_are_input_errors(knob: str, start: float, stop: float) -> None:
     with pytest.raises(InputError):
-        get_knob(knob).values(start, stop, 3, log=knob == "noise-scale")
+        get_knob(knob).values(start, stop, 3, log=knob == "noise_scale")
 
 
 def test_unknown_knob() -> None:
-    with pytest.raises(InputError, match="allowed: noise-scale"):
+    with pytest.raises(InputError, match="allowed: noise_scale"):
         get_knob("gate-fidelity")
 
 
 def test_knob_values_and_factors() -> None:
-    vals = get_knob("coherence-us").values(10.0, 1000.0, 3, log=True)
+    vals = get_knob("coherence_us").values(10.0, 1000.0, 3, log=True)
     assert vals == pytest.approx((10.0, 100.0, 1000.0))
     # coherence: twice the T1 halves the relaxation rate
-    assert get_knob("coherence-us").factor(200.0, 100.0) == pytest.approx(0.5)
-    assert get_knob("two-qubit-error").factor(0.02, 0.01) == pytest.approx(2.0)
-    assert get_knob("scale").factor(1.7, 123.0) == pytest.approx(1.7)
+    assert get_knob("coherence_us").factor(200.0, 100.0) == pytest.approx(0.5)
+    assert get_knob("two_qubit_error").factor(0.02, 0.01) == pytest.approx(2.0)
+    assert get_knob("noise_scale").factor(1.7, 123.0) == pytest.approx(1.7)
 
 
 def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
@@ -182,14 +182,14 @@ def _profile(gate_error_2q: float, gate_error_1q: float = 3e-4) -> object:
 
 
 def test_relaxation_floor_and_reference_values() -> None:
-    knob = get_knob("two-qubit-error")
+    knob = get_knob("two_qubit_error")
     # T1 = 50 us over a 300 ns gate costs of order t / T1 = 0.6 % of fidelity (Nielsen & Chuang
     # sec. 8.3, to first order): 1e-5 is far below that floor, 5 % far above
     assert knob.below_floor(_profile(1e-5), (0, 1))
     assert not knob.below_floor(_profile(5e-2), (0, 1))
-    assert not get_knob("readout-error").below_floor(_profile(1e-5), (0, 1))
+    assert not get_knob("readout_error").below_floor(_profile(1e-5), (0, 1))
     p = _profile(2e-2)
     assert knob.reference(p, (0, 1)) == pytest.approx(2e-2)
     # readout knob: the mean of P(1|0) and P(0|1), (0.01 + 0.02) / 2
-    assert get_knob("readout-error").reference(p, (0, 1)) == pytest.approx(0.015)
-    assert get_knob("coherence-us").reference(p, (0, 1)) == pytest.approx(50.0)
+    assert get_knob("readout_error").reference(p, (0, 1)) == pytest.approx(0.015)
+    assert get_knob("coherence_us").reference(p, (0, 1)) == pytest.approx(50.0)

@@ -12,7 +12,7 @@ from noiselab.study.sweep import COHERENCE_NOTE
 def test_coherence_knob_says_gate_errors_stay_fixed() -> None:
     sweep = _hand_sweep()
     assert COHERENCE_NOTE not in sweep.notes()
-    coherence = dataclasses.replace(sweep, knob="coherence-us")
+    coherence = dataclasses.replace(sweep, knob="coherence_us")
     assert COHERENCE_NOTE in coherence.notes()
     assert COHERENCE_NOTE in coherence.to_json()["notes"]
     assert "kept fixed" in COHERENCE_NOTE

@@ -43,7 +43,7 @@ recipes:
 """
 
 SWEEP_ARGS = {
-    "knob": "two-qubit-error",
+    "knob": "two_qubit_error",
     "start": 0.005,
     "stop": 0.04,
     "points": 3,
@@ -118,7 +118,7 @@ def test_interrupted_sweep_resumes_without_repeating_points(
 def test_sweep_content(study_path: Path, tmp_path: Path) -> None:
     res = sweep(study_path, cache=open_cache(tmp_path / "c.sqlite"), **SWEEP_ARGS)
     assert res.recipes == ("raw", "zne")
-    assert res.knob == "two-qubit-error"
+    assert res.knob == "two_qubit_error"
     # the device's own value: the coupler default of the profile (1.0e-2)
     assert res.current_value == pytest.approx(1.0e-2)
     # channel factor = value / device value (the knob scales the device's two-qubit errors)
@@ -144,7 +144,7 @@ def test_noise_scale_one_is_the_device(study_path: Path, tmp_path: Path) -> None
 
     store = open_cache(tmp_path / "c.sqlite")
     a = assess(study_path, cache=store)
-    res = sweep(study_path, knob="noise-scale", values=[1.0], recipes=["raw"], cache=store)
+    res = sweep(study_path, knob="noise_scale", values=[1.0], recipes=["raw"], cache=store)
     # a sweep point at scale 1 is the assessed experiment itself: the same simulation (read
     # from the cache) and the same energy
     assert res.stats.simulations == 0
@@ -166,12 +166,12 @@ def test_worker_processes_give_the_same_sweep(study_path: Path, tmp_path: Path) 
 def test_study_sweep_section_gives_the_defaults(tmp_path: Path) -> None:
     p = tmp_path / "with-sweep.yaml"
     section = (
-        "sweep:\n  vary: two-qubit-error\n  start: 0.004\n  stop: 0.016\n  points: 2\n"
+        "sweep:\n  knob: two_qubit_error\n  start: 0.004\n  stop: 0.016\n  points: 2\n"
         "  log: true\n  recipes: [raw]\n"
     )
     p.write_text(TINY_STUDY + section, encoding="utf-8")
     res = sweep(p, cache=open_cache(tmp_path / "c.sqlite"))
-    assert res.knob == "two-qubit-error" and res.log
+    assert res.knob == "two_qubit_error" and res.log
     assert res.values == pytest.approx((0.004, 0.016))
     assert res.recipes == ("raw",)
     # the command line (here: arguments) overrides the study's section

@@ -11,9 +11,12 @@ import sys
 from typing import Any
 
 import typer
+from typer.core import TyperCommand
 
 from noiselab import __version__
 from noiselab.cli import commands
+from noiselab.cli.options import FORMER_OPTIONS, option_of
+from noiselab.cli.values import ValuesCommand
 from noiselab.common.errors import NoiselabError
 from noiselab.common.wording import CAUTION
 
@@ -61,6 +64,18 @@ def _register_commands() -> None:
     # Each module defines ``register(app)``; keep this list in data-flow order.
     for register in commands.REGISTRY:
         register(app)
+    _list_allowed_values(app)
+
+
+def _list_allowed_values(typer_app: typer.Typer) -> None:
+    """Every command's ``--help`` lists the allowed values of its fixed-set options
+    (:class:`noiselab.cli.values.ValuesCommand`), sub-groups included."""
+    for info in typer_app.registered_commands:
+        if info.cls in (None, TyperCommand):
+            info.cls = ValuesCommand
+    for group in typer_app.registered_groups:
+        if group.typer_instance is not None:
+            _list_allowed_values(group.typer_instance)
 
 
 def _command() -> Any:
@@ -83,6 +98,15 @@ def _cli_error_classes() -> tuple[type[Exception], type[Exception]]:
     return bases["UsageError"], bases["ClickException"]
 
 
+def _usage_message(exc: Exception) -> str:
+    """The usage error's message; an option renamed to follow the study file's key gets its
+    present name as the suggestion."""
+    name = getattr(exc, "option_name", None)
+    if type(exc).__name__ == "NoSuchOption" and name in FORMER_OPTIONS:
+        return f"No such option: {name} (did you mean `{FORMER_OPTIONS[name]}`?)"
+    return str(exc.format_message())  # type: ignore[attr-defined]
+
+
 INTERRUPTED = "noiselab: interrupted; finished results are kept in the cache"
 
 
@@ -94,12 +118,13 @@ def main(argv: list[str] | None = None) -> None:
     try:
         rc = command.main(args=args, prog_name="noiselab", standalone_mode=False)
     except NoiselabError as exc:
-        typer.echo(f"noiselab: error: {exc.message}", err=True)
+        # the study layer names a job's arguments (``points``); here they are options
+        typer.echo(f"noiselab: error: {exc.with_options(option_of).message}", err=True)
         sys.exit(exc.exit_code)
     except usage_error as exc:
         ctx = getattr(exc, "ctx", None)
         hint = f" (see '{ctx.command_path} --help')" if ctx is not None else ""
-        typer.echo(f"noiselab: error: {exc.format_message()}{hint}", err=True)
+        typer.echo(f"noiselab: error: {_usage_message(exc)}{hint}", err=True)
         sys.exit(2)
     except (typer.Abort, KeyboardInterrupt):
         typer.echo(INTERRUPTED, err=True)

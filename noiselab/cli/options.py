@@ -36,11 +36,32 @@ TimingsOpt = Annotated[
 RecipesOpt = Annotated[
     list[str] | None,
     typer.Option(
-        "--recipe",
-        help="Recipe of the study to follow (repeat the option). Default: all of the study's.",
+        "--recipes",
+        help="Recipe(s) of the study to follow (repeat the option). Default: all of the study's.",
         show_default=False,
     ),
 ]
+#: Python argument -> command-line option, where the option is not ``--`` + the argument with
+#: hyphens for underscores (errors raised by the study layer name the argument; the command line
+#: shows the option: :meth:`noiselab.common.errors.NoiselabError.with_options`).
+OPTION_OF_ARGUMENT = {"use_cache": "--no-cache", "copy": "--study-copy"}
+
+
+#: Options renamed to the study file's spelling -> their present name (a "did you mean").
+FORMER_OPTIONS = {
+    "--vary": "--knob",
+    "--from": "--start",
+    "--to": "--stop",
+    "--recipe": "--recipes",
+    "--amplification": "--amplifier",
+}
+
+
+def option_of(argument: str) -> str:
+    """The option that sets the job argument ``argument`` (``points``: ``--points``)."""
+    return OPTION_OF_ARGUMENT.get(argument, "--" + argument.replace("_", "-"))
+
+
 # Counts are read as text and validated by the study file's own bounds (RunOptions, or the
 # job's own model), so --shots 1e6 works like shots: 1e6 in the file.
 CountOpt = str | None
@@ -114,10 +135,9 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         str | None,
         _option(
             "--method",
-            help="Emulation method: auto (density matrix while it fits in memory, else Monte "
-            "Carlo trajectories), density_matrix (exact; refuse when too large), trajectory or "
-            "pauli_propagation (assess only; twirled noise, raw and per-qubit readout recipes). "
-            "Default: the study's emulation.method, else auto.",
+            help="Emulation method: auto is the density matrix while it fits in memory, else "
+            "Monte Carlo trajectories; pauli_propagation: assess only (twirled noise, raw and "
+            "per-qubit readout recipes). Default: the study's emulation.method, else auto.",
         ),
         None,
     ),
@@ -130,11 +150,22 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         ),
         None,
     ),
+    "style": (
+        str,
+        _option(
+            "--style",
+            help="Look of the figures written: paper is for a document (the default), talk for "
+            "slides (larger type, thicker lines, larger figures).",
+        ),
+        "paper",
+    ),
 }
 
 #: The run options of a study job without and with an executor.
 STUDY_JOB = ("out", "cache", "no_cache", "seed", "shots", "quiet", "method", "trajectories")
 EXECUTOR_JOB = (*STUDY_JOB, "workers", "cluster")
+#: Add to a command's run options when it writes figures.
+FIGURES = ("style",)
 
 
 def run_options(
@@ -183,9 +214,19 @@ def run_options(
             from noiselab.study.run_options import RunOptions
 
             given = {name: kwargs.pop(name) for name in names}
+            style = given.pop("style", None)
+            if style is None:
+                names_out = files() if callable(files) else files
+                run = RunOptions.from_command_line(out_files=names_out, **given)
+                return command(*args, run=run, **kwargs)
+            # figures are drawn and saved in the style asked for (report layer: on call)
+            from noiselab.report.style import figure_style, get_style
+
+            get_style(style)  # an unknown style is refused before any work
             names_out = files() if callable(files) else files
             run = RunOptions.from_command_line(out_files=names_out, **given)
-            return command(*args, run=run, **kwargs)
+            with figure_style(style):
+                return command(*args, run=run, **kwargs)
 
         params = [p for p in kept if p.kind != inspect.Parameter.KEYWORD_ONLY]
         params += [p for p in kept if p.kind == inspect.Parameter.KEYWORD_ONLY] + added

@@ -103,6 +103,7 @@ def _pair_table(profile: Any) -> Any:
         "2q relaxation-only error",
         "ZZ angle (rad)",
         "readout joint flip (probability)",
+        "readout flip a | b reads 1, b | a reads 1 (probability)",
     ):
         table.add_column(head, justify="right")
     for a, b in profile.pairs():
@@ -113,6 +114,7 @@ def _pair_table(profile: Any) -> Any:
             _fmt(relaxation_gate_infidelity(profile, g2, (a, b))),
             _fmt(pp.zz_angle_rad),
             _fmt(profile.joint_flip(a, b)),
+            " / ".join(_fmt(f) for f in profile.conditional_flips(a, b)),
         )
     return table
 
@@ -224,7 +226,7 @@ def import_tables(
         ),
     ] = None,
     two_qubit_gate: Annotated[
-        str, typer.Option("--two-qubit-gate", help="Native two-qubit gate: cz, cx or ecr.")
+        str, typer.Option("--two-qubit-gate", help="Native two-qubit gate.")
     ] = "cz",
     description: Annotated[
         str | None, typer.Option("--description", help="Description line of the profile.")

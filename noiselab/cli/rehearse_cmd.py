@@ -12,7 +12,15 @@ import typer
 
 from noiselab.cli.console import echo_written, print_json, print_table
 from noiselab.cli.jobs import run_job
-from noiselab.cli.options import CountOpt, JsonOpt, StudyArg, epilog, option, run_options
+from noiselab.cli.options import (
+    FIGURES,
+    CountOpt,
+    JsonOpt,
+    StudyArg,
+    epilog,
+    option,
+    run_options,
+)
 
 if TYPE_CHECKING:
     from noiselab.study.run_options import RunOptions
@@ -29,7 +37,7 @@ GRID_FILES = ("rehearse_grid.json", "rehearse_grid.csv")
 
 
 @run_options(
-    ("out", "seed", "cache", "no_cache", "quiet"),
+    ("out", "seed", "cache", "no_cache", "quiet", *FIGURES),
     files=(*REHEARSE_FILES, *GRID_FILES),
     helps={
         "out": "Folder for rehearse.json, rehearse_traces.csv and rehearse.png. "
@@ -41,7 +49,7 @@ def rehearse_cmd(
     study: StudyArg,
     run: RunOptions,
     optimizer: Annotated[
-        str | None, option("--optimizer", "spsa, parameter_shift, cobyla or nelder_mead.")
+        str | None, option("--optimizer", "Optimizer of the loop.")
     ] = None,
     iterations: Annotated[CountOpt, option("--iterations", "Optimizer iterations.")] = None,
     shots_per_evaluation: Annotated[
@@ -53,7 +61,7 @@ def rehearse_cmd(
     ] = None,
     repeats: Annotated[CountOpt, option("--repeats", "Runs of the loop.")] = None,
     start: Annotated[
-        str | None, option("--start", "hartree_fock, perturbed_optimum or random.")
+        str | None, option("--start", "Parameters the loop starts from.")
     ] = None,
     grid: Annotated[
         bool,

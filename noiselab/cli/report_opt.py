@@ -26,14 +26,17 @@ def check_report_dir(report: str | None, kind: str) -> Path | None:
     """``--report`` as a folder Path, refused in one line before any work when unusable."""
     if report is None:
         return None
+    from noiselab.cli.options import option_of
     from noiselab.common.atomic import check_output_dir
     from noiselab.common.errors import InputError
     from noiselab.report.proposal import report_files
 
     try:
         return check_output_dir(report, report_files(kind))
-    except InputError as exc:  # the folder check speaks of --out; this folder is --report's
-        raise InputError("--report" + exc.message.removeprefix("--out")) from None
+    except InputError as exc:  # the folder check names its argument out; this is --report
+        raise exc.with_options(
+            lambda name: "--report" if name == "out" else option_of(name)
+        ) from None
 
 
 def job_provenance(study: Path, seed: Any) -> dict[str, Any]:

@@ -11,6 +11,7 @@ from noiselab.cli.console import print_plain_table as _table
 from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     EXECUTOR_JOB,
+    FIGURES,
     STUDY_JOB,
     CountOpt,
     RecipesOpt,
@@ -28,7 +29,7 @@ COMPARE_FILES = ("compare.json", "compare.csv", *(f"compare.{e}" for e in FIGURE
 SCAN_FILES = ("scan.json", "scan.csv", *(f"scan.{e}" for e in FIGURE_EXTS))
 
 
-@run_options(STUDY_JOB, files=COMPARE_FILES, helps=OUT_HELP)
+@run_options((*STUDY_JOB, *FIGURES), files=COMPARE_FILES, helps=OUT_HELP)
 def compare_cmd(
     ctx: typer.Context,
     study: StudyArg,
@@ -55,7 +56,7 @@ def compare_cmd(
     echo_written(written)
 
 
-@run_options(EXECUTOR_JOB, files=SCAN_FILES, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=SCAN_FILES, helps=OUT_HELP)
 def scan_cmd(
     study: StudyArg,
     run: RunOptions,
@@ -71,11 +72,11 @@ def scan_cmd(
     start: Annotated[
         float | None,
         typer.Option(
-            "--from", help="First value (Angstrom, or factor with --scale).", show_default=False
+            "--start", help="First value (Angstrom, or factor with --scale).", show_default=False
         ),
     ] = None,
     stop: Annotated[
-        float | None, typer.Option("--to", help="Last value.", show_default=False)
+        float | None, typer.Option("--stop", help="Last value.", show_default=False)
     ] = None,
     points: Annotated[
         CountOpt, typer.Option("--points", help="Grid points (default 9).", show_default=False)
@@ -88,7 +89,7 @@ def scan_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipesOpt = None,
+    recipes: RecipesOpt = None,
 ) -> None:
     """Potential-energy curve under noise along one geometry coordinate."""
     from noiselab.report.scan_figures import write_scan_outputs
@@ -97,7 +98,7 @@ def scan_cmd(
     result, written = run_job(
         scan, study, run, write=write_scan_outputs, executor=True,
         bond=bond, scale=scale or None, start=start, stop=stop, points=points, refine=refine,
-        recipes=recipe or None,
+        recipes=recipes or None,
     )  # fmt: skip
     unit = result.axis.unit
     headers = ("coordinate", "exact (Ha)", "HF (Ha)", *(f"{n} bias (mHa)" for n in result.recipes))
@@ -134,7 +135,7 @@ def register(app: typer.Typer) -> None:
     )(compare_cmd)
     app.command(
         "scan",
-        epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --from 0.5 --to 2.5 "
-        "--points 9 --recipe zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
+        epilog="Example: noiselab scan h2-equilibrium --bond 0 1 --start 0.5 --stop 2.5 "
+        "--points 9 --recipes zne_linear --out results/h2-scan. Exit codes: 0 done, 1 failure, "
         "2 bad input, 130 interrupted (finished points stay in the cache).",
     )(scan_cmd)

@@ -16,7 +16,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
-    STUDY_JOB,
+    FIGURES,
     CountOpt,
     JsonOpt,
     StudyArg,
@@ -54,12 +54,13 @@ TUNE_FILES = ("tune.csv", "tune.json")
 # tune's grid axes, each given any number of times
 ReadoutOpt = repeated("--readout", "Readout correction method(s) to try (repeat the option).")
 PostselectOpt = repeated("--postselect", "Symmetry post-selection mode(s) to try.")
-AmplificationOpt = repeated("--amplification", "Noise amplification method(s) to try.")
+AmplifierOpt = repeated("--amplifier", "Noise amplifier(s) to try.")
 ScalesOpt = repeated("--scales", "Noise scale set(s) to try, comma-separated, e.g. 1,2,3.")
 FitOpt = repeated("--fit", "Extrapolation fit(s) to try.")
-FamilyOpt = repeated(
-    "--family",
-    "Mitigation family(ies) to try besides the stack: none, error_cancellation, distillation.",
+FamilyOpt = repeated("--family", "Mitigation family(ies) to try besides the stack.")
+SuppressOpt = repeated(
+    "--suppress",
+    "Suppression to try before mitigation (passes joined by +).",
 )
 
 
@@ -97,7 +98,8 @@ def _write_assess_outputs(result: Any, out: Path, prov: dict[str, Any] | None = 
 
 
 @run_options(
-    STUDY_JOB,
+    # --workers / --cluster: used by pauli_propagation (one task per group)
+    (*EXECUTOR_JOB, *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for assess.json, assess.csv and figures."},
 )
@@ -131,7 +133,9 @@ def assess_cmd(
         # the files carry the provenance block; --json (a stream compared between runs) does not
         return _write_assess_outputs(res, folder, job_provenance(study, res.seed))
 
-    result, written = run_job(assess, study, run, write=write, quiet=json_out, drift=draws)
+    result, written = run_job(
+        assess, study, run, write=write, executor=True, quiet=json_out, drift=draws
+    )
     if json_out:
         print_json(result.to_json(with_stats=timings))
         emit_report("assess", result, report_dir, study, result.seed)
@@ -204,30 +208,46 @@ def tune_cmd(
     run: RunOptions,
     readout: ReadoutOpt = None,
     postselect: PostselectOpt = None,
-    amplification: AmplificationOpt = None,
+    amplifier: AmplifierOpt = None,
     scales: ScalesOpt = None,
     fit: FitOpt = None,
     family: FamilyOpt = None,
+    suppress: SuppressOpt = None,
     top: Annotated[str, typer.Option("--top", help="How many settings to print.")] = "10",
     json_out: JsonOpt = False,
     timings: TimingsOpt = False,
+    study_copy: Annotated[
+        Path | None,
+        typer.Option(
+            "--study-copy",
+            help="Also write a copy of the study to this YAML file with the first-ranked "
+            "setting added under recipes (as 'tuned'); never the study file itself.",
+            show_default=False,
+        ),
+    ] = None,
 ) -> None:
     """Rank a grid of mitigation settings by the probability of reaching the target."""
     from noiselab.common.counts import parse_count
     from noiselab.study.tune import GridOverride, tune, write_tune_outputs
+    from noiselab.study.tuned_copy import check_copy_target, write_tuned_study
 
     n_top = parse_count(top, "--top", 1, 10**6)
+    if study_copy is not None:
+        check_copy_target(study, study_copy)  # refused before any work
     override = GridOverride(
         readout=readout or None,
         postselect=postselect or None,
-        amplification=amplification or None,
+        amplifier=amplifier or None,
         scales=_parse_scale_sets(scales),
         fit=fit or None,
         family=family or None,
+        suppress=suppress or None,
     )
     result, written = run_job(
         tune, study, run, write=write_tune_outputs, executor=True, quiet=json_out, grid=override
     )
+    if study_copy is not None:
+        written = [*written, write_tuned_study(result, study, study_copy)]
     if json_out:
         print_json(result.to_json(with_stats=timings))
         return
@@ -273,7 +293,7 @@ def tune_cmd(
 
 
 @run_options(
-    ("out", "cache", "no_cache", "quiet"),
+    ("out", "cache", "no_cache", "quiet", *FIGURES),
     files=ASSESS_FILES,
     helps={"out": "Folder for the demo's files (in the current directory)."},
     defaults={"out": DEMO_DIR},
@@ -303,7 +323,7 @@ _ASSESS_HELP = (
 )
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
-    "The grid is readout method x post-selection mode x amplification method x scale set x "
+    "The grid is readout method x post-selection mode x amplifier x scale set x "
     "fit, plus the families error cancellation and distillation, from the options here, else "
     "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
     "need the same circuits share their simulations."

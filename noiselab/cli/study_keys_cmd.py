@@ -13,6 +13,8 @@ from typing import Annotated
 
 import typer
 
+from noiselab.cli.values import KEY_SETS
+
 # Deliberately lazy: the study layer and rich are imported inside the command functions.
 
 
@@ -23,7 +25,7 @@ def keys(
     ] = False,
     which: Annotated[
         str,
-        typer.Option("--which", help="Which keys: study, profile or both.", show_default=True),
+        typer.Option("--which", help="Which keys.", show_default=True),
     ] = "both",
 ) -> None:
     """Every key of a study file and of a device profile: type, default, unit, allowed values,
@@ -34,8 +36,8 @@ def keys(
     from noiselab.common.errors import input_error
     from noiselab.study.keys import HEADERS, key_cells, keys_markdown, profile_keys, study_keys
 
-    if which not in ("study", "profile", "both"):
-        raise input_error(None, "--which", repr(which), "study, profile, both")
+    if which not in KEY_SETS:
+        raise input_error(None, "--which", repr(which), ", ".join(KEY_SETS))
     if markdown:
         sys.stdout.write(keys_markdown())
         return

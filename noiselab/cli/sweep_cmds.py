@@ -15,6 +15,7 @@ from noiselab.cli.jobs import run_job
 from noiselab.cli.options import (
     CLUSTER_CODES,
     EXECUTOR_JOB,
+    FIGURES,
     CountOpt,
     RecipesOpt,
     StudyArg,
@@ -31,9 +32,8 @@ if TYPE_CHECKING:
 # (noiselab --help stays fast).
 
 KNOB_HELP = (
-    "What to vary: noise-scale (every channel, 1 = device as profiled), two-qubit-error, "
-    "one-qubit-error, readout-error (probabilities 0..1, shown in %), coherence-us (T1 in us, "
-    "T2 scaled with it)."
+    "The knob to vary: errors are probabilities 0..1 (shown in %), coherence_us is T1 in us "
+    "(T2 scaled with it), noise_scale scales every channel (1 = device as profiled)."
 )
 
 TRAJECTORY_NOTE = (
@@ -58,22 +58,22 @@ def _print(table: Any) -> None:
     console().print(table)
 
 
-@run_options(EXECUTOR_JOB, files=sweep_files, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=sweep_files, helps=OUT_HELP)
 def sweep_cmd(
     study: StudyArg,
     run: RunOptions,
-    vary: Annotated[
+    knob: Annotated[
         str | None,
         typer.Option(
-            "--vary",
-            help=KNOB_HELP + " Default: the study's sweep.vary, else noise-scale.",
+            "--knob",
+            help=KNOB_HELP + " Default: the study's sweep.knob, else noise_scale.",
             show_default=False,
         ),
     ] = None,
     start: Annotated[
         float | None,
         typer.Option(
-            "--from",
+            "--start",
             help="First knob value (base units: probability, us or factor). "
             "Default: the study's sweep.start, else a quarter of the device's value.",
             show_default=False,
@@ -82,7 +82,7 @@ def sweep_cmd(
     stop: Annotated[
         float | None,
         typer.Option(
-            "--to",
+            "--stop",
             help="Last knob value. Default: the study's sweep.stop, else four times the "
             "device's value.",
             show_default=False,
@@ -105,7 +105,17 @@ def sweep_cmd(
             show_default=False,
         ),
     ] = None,
-    recipe: RecipesOpt = None,
+    recipes: RecipesOpt = None,
+    coherence_gate_errors: Annotated[
+        str | None,
+        typer.Option(
+            "--coherence-gate-errors",
+            help="With --knob coherence_us: follow (the relaxation part of every quoted gate "
+            "error moves with T1/T2, the rest is held); fixed: quoted gate errors kept. "
+            "Default: the study's sweep.coherence_gate_errors, else follow.",
+            show_default=False,
+        ),
+    ] = None,
     report: ReportOpt = None,
 ) -> None:
     """Energy error against one device-noise knob, raw and mitigated, and the target crossings."""
@@ -113,8 +123,8 @@ def sweep_cmd(
     from noiselab.report.outputs import write_sweep_outputs
     from noiselab.study.sweep import get_knob, sweep
 
-    if vary is not None:
-        get_knob(vary)  # a bad knob fails before any work
+    if knob is not None:
+        get_knob(knob)  # a bad knob fails before any work
     report_dir = check_report_dir(report, "sweep")
 
     def write(res: Any, folder: Any) -> list[Any]:
@@ -127,12 +137,13 @@ def sweep_cmd(
         run,
         write=write,
         executor=True,
-        knob=vary,
+        knob=knob,
         start=start,
         stop=stop,
         points=points,
         log=log,
-        recipes=recipe or None,
+        recipes=recipes or None,
+        coherence_gate_errors=coherence_gate_errors,
     )
     from noiselab.report.tables import sweep_table
 
@@ -155,7 +166,7 @@ def sweep_cmd(
     emit_report("sweep", result, report_dir, study, run.seed)
 
 
-@run_options(EXECUTOR_JOB, files=BUDGET_FILES, helps=OUT_HELP)
+@run_options((*EXECUTOR_JOB, *FIGURES), files=BUDGET_FILES, helps=OUT_HELP)
 def budget_cmd(
     study: StudyArg,
     run: RunOptions,
@@ -217,8 +228,8 @@ def register(app: typer.Typer) -> None:
         "sweep",
         help=_SWEEP_HELP,
         epilog=epilog(
-            "noiselab sweep configs/studies/h2-equilibrium.yaml --vary two-qubit-error "
-            "--from 0.001 --to 0.03 --points 7 --log --out results/h2-sweep",
+            "noiselab sweep configs/studies/h2-equilibrium.yaml --knob two_qubit_error "
+            "--start 0.001 --stop 0.03 --points 7 --log --out results/h2-sweep",
             CLUSTER_CODES,
             ", 130 interrupted (finished points stay in the cache)",
         ),

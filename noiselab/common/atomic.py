@@ -9,7 +9,10 @@ import tempfile
 from collections.abc import Callable, Iterable, Iterator, Sequence
 from pathlib import Path
 
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
+
+#: The output folder's argument (the command line shows ``--out``).
+OUT = arg("out")
 
 
 @contextlib.contextmanager
@@ -66,17 +69,17 @@ def check_output_dir(out: str | Path | None, names: Iterable[str] = ()) -> Path 
         return None
     text = str(out)
     if not text.strip():
-        raise InputError("--out: empty path; allowed: a folder path (new or existing)")
+        raise InputError(f"{OUT}: empty path; allowed: a folder path (new or existing)")
     p = Path(text).expanduser()
     if p.exists():
         if not p.is_dir():
-            raise InputError(f"--out: {p} is a file; allowed: a folder path (new or existing)")
+            raise InputError(f"{OUT}: {p} is a file; allowed: a folder path (new or existing)")
         if not os.access(p, os.W_OK | os.X_OK):
-            raise InputError(f"--out: {p} is not writable; allowed: a writable folder")
+            raise InputError(f"{OUT}: {p} is not writable; allowed: a writable folder")
         for name in names:
             if (p / name).is_dir():
                 raise InputError(
-                    f"--out: {p / name} is a folder where the file {name} goes; "
+                    f"{OUT}: {p / name} is a folder where the file {name} goes; "
                     "allowed: a folder without it"
                 )
         return p
@@ -84,9 +87,9 @@ def check_output_dir(out: str | Path | None, names: Iterable[str] = ()) -> Path 
     while not parent.exists() and parent != parent.parent:
         parent = parent.parent
     if not parent.is_dir():
-        raise InputError(f"--out: {parent} is a file, so {p} cannot be created; allowed: a folder")
+        raise InputError(f"{OUT}: {parent} is a file, so {p} cannot be created; allowed: a folder")
     if not os.access(parent, os.W_OK | os.X_OK):
-        raise InputError(f"--out: {p} cannot be created in {parent} (not writable)")
+        raise InputError(f"{OUT}: {p} cannot be created in {parent} (not writable)")
     return p
 
 
@@ -133,7 +136,7 @@ def write_output_set(out: str | Path, write: Callable[[Path], Sequence[Path]]) -
         stage = Path(tempfile.mkdtemp(prefix=f"{STAGING_PREFIX}{os.getpid()}-", dir=folder))
     except OSError as exc:
         raise InputError(
-            f"--out: {folder}: cannot write here ({exc.strerror or exc}); allowed: a writable "
+            f"{OUT}: {folder}: cannot write here ({exc.strerror or exc}); allowed: a writable "
             "folder"
         ) from None
     try:
@@ -145,7 +148,7 @@ def write_output_set(out: str | Path, write: Callable[[Path], Sequence[Path]]) -
                 os.replace(path, target)
             except OSError as exc:
                 raise InputError(
-                    f"--out: {target}: cannot write ({exc.strerror or exc}); allowed: a "
+                    f"{OUT}: {target}: cannot write ({exc.strerror or exc}); allowed: a "
                     "writable file path"
                 ) from None
             final.append(target)

@@ -1,14 +1,20 @@
 """Error types with the exit codes the command line uses.
 
 Every message is one line: ``<source>: <key.path>: <what is wrong>; allowed: <what is allowed>``.
+
+A message about a function's argument marks the argument with :func:`arg`: raised from Python
+it names the argument (``points``); the command line names its option instead (``--points``,
+:meth:`NoiselabError.with_options`).
 """
 
 from __future__ import annotations
 
+import copy
 import difflib
+import re
 import types
 import typing
-from collections.abc import Sequence
+from collections.abc import Callable, Sequence
 from typing import Any
 
 #: Longest one-line message; a longer one keeps its start (file, key) and end (what is allowed).
@@ -38,13 +44,39 @@ def one_line(message: str, limit: int = MAX_MESSAGE_CHARS) -> str:
     return text
 
 
+_ARG = re.compile("\x1e([A-Za-z_][A-Za-z0-9_]*)\x1f")
+
+
+def arg(name: str) -> str:
+    """``name`` marked as an argument in a message: shown as ``name``; the command line shows
+    its option instead (see :meth:`NoiselabError.with_options`)."""
+    return f"\x1e{name}\x1f"
+
+
+def _render(text: str, option_of: Callable[[str], str] | None = None) -> str:
+    return _ARG.sub(lambda m: option_of(m.group(1)) if option_of else m.group(1), text)
+
+
 class NoiselabError(Exception):
     """A failure noiselab reports as one line (exit code 1)."""
 
     exit_code = 1
 
     def __init__(self, message: str) -> None:
-        super().__init__(one_line(message))
+        text = str(message)
+        #: the message with its arguments still marked (None: it marks none)
+        self.template = text if _ARG.search(text) else None
+        super().__init__(one_line(_render(text)))
+
+    def with_options(self, option_of: Callable[[str], str]) -> NoiselabError:
+        """The same error with each marked argument named by ``option_of(name)`` (the command
+        line's option, e.g. ``--points``); itself when it marks none."""
+        if self.template is None:
+            return self
+        out = copy.copy(self)
+        out.args = (one_line(_render(self.template, option_of)),)
+        out.template = None  # its names are final
+        return out
 
     @property
     def message(self) -> str:
@@ -88,8 +120,17 @@ def _loc_to_path(loc: Sequence[Any]) -> str:
     return out or "(top level)"
 
 
+#: File keys renamed so that a file, the command line and the results use one word (the tune
+#: axis ``amplification`` is ``amplifier`` like the recipes' option; ``sweep.vary`` is
+#: ``sweep.knob`` like the sweep's results): the former name suggests the present one.
+FORMER_KEYS = {"amplification": "amplifier", "vary": "knob"}
+
+
 def closest_key(key: str, allowed: Sequence[str]) -> str | None:
-    """The allowed key closest to ``key`` (case ignored; difflib ratio >= 0.6), or None."""
+    """The allowed key closest to ``key`` (a former name: its present one; else case ignored,
+    difflib ratio >= 0.6), or None."""
+    if FORMER_KEYS.get(key) in allowed:
+        return FORMER_KEYS[key]
     by_lower = {a.lower(): a for a in allowed}
     if key.lower() in by_lower:
         return by_lower[key.lower()]

@@ -33,7 +33,7 @@ from qiskit.transpiler.exceptions import TranspilerError
 from noiselab.common.errors import InputError, input_error
 from noiselab.device import thermal
 from noiselab.device.noise import delay_seconds, gate_infidelity
-from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
+from noiselab.device.profile import FRAME_GATES, VIRTUAL_GATES, DeviceProfile, check_patch
 
 _STRUCTURAL = frozenset({"delay", "barrier"})
 
@@ -244,7 +244,7 @@ def operation_errors(
         name = inst.operation.name
         idx = tuple(circuit.find_bit(q).index for q in inst.qubits)
         phys = tuple(patch[i] for i in idx)
-        if name == "barrier" or name in VIRTUAL_GATES:
+        if name == "barrier" or name in VIRTUAL_GATES or name in FRAME_GATES:
             continue
         if name == "delay":
             qp = profile.qubit(phys[0])

@@ -7,9 +7,13 @@ a transform all see the same evolution:
 
 * always-on ZZ of a linked pair, rate nu (kHz): H = h nu Z x Z / 4, i.e. rzz(pi nu t) over a time
   t (conditional phase 2 pi nu t). It acts during idle windows and during every gate on either
-  qubit except the pair's own two-qubit gate (its calibration absorbs the static ZZ; the residual
-  is ``zz_angle_rad``). Between two gates touching the pair it is one rzz; during a gate (or a
-  run of overlapping gates) on the pair's qubits half of that time is put before and half after
+  qubit except the pair's own two-qubit gate, whatever the gate (cz included, though it commutes
+  with ZZ): the gate's calibration tunes its conditional phase with the static ZZ present, so
+  that part is in the calibrated gate, and what calibration misses is ``zz_angle_rad`` (profile
+  key ``zz_during_own_gate: in_calibration``, the default; ``extra`` lets it act then too, for a
+  gate calibrated without the static ZZ present). Between
+  two gates touching the pair it is one rzz; during a gate (or a run of overlapping gates) on
+  the pair's qubits half of that time is put before and half after
   (midpoint rule: exact for instantaneous pulses, and a symmetric echo still cancels exactly);
 * quasi-static detuning of a qubit, std sigma (kHz): rz(2 pi delta t) with delta constant in a
   shot and Gaussian N(0, sigma^2) between shots, placed like the ZZ. The emulated state is the
@@ -57,6 +61,9 @@ class EvolutionSpec:
     two_qubit_gate: str
     single_qubit_ns: float
     two_qubit_ns: float
+    #: the profile's ``zz_during_own_gate``: "in_calibration" (the pair's own gate carries no
+    #: extra ZZ) or "extra" (the ZZ acts during it too)
+    zz_during_own_gate: str = "in_calibration"
 
     @property
     def is_empty(self) -> bool:
@@ -93,6 +100,7 @@ def evolution_spec(profile: DeviceProfile, patch: Sequence[int]) -> EvolutionSpe
         profile.two_qubit_gate,
         float(d.single_qubit_ns),
         float(d.two_qubit_ns),
+        profile.zz_during_own_gate,
     )
     return None if spec.is_empty else spec
 
@@ -140,14 +148,22 @@ def _phase_events(
 ) -> list[tuple[float, float]]:
     """(time ns, accumulated time ns) at which to place the term of ``qubits``: between runs of
     gates touching them, with each run's active time split half before, half after."""
+
+    def own(t: _Timed) -> bool:
+        return own_gate is not None and t.name == own_gate and set(t.qubits) == set(qubits)
+
+    # the pair's own gate is a block even where it commutes with Z (cz): its time is taken out
     busy = sorted(
-        (t for t in timed if set(t.qubits) & set(qubits) and not _commutes_with_z(t.name)),
+        (
+            t
+            for t in timed
+            if set(t.qubits) & set(qubits) and (own(t) or not _commutes_with_z(t.name))
+        ),
         key=lambda t: (t.start_ns, t.index),
     )
     blocks: list[list[float]] = []  # [start, end, time of the pair's own gate]
     for t in busy:
-        own = own_gate is not None and t.name == own_gate and set(t.qubits) == set(qubits)
-        own_ns = t.end_ns - t.start_ns if own else 0.0
+        own_ns = t.end_ns - t.start_ns if own(t) else 0.0
         if blocks and t.start_ns < blocks[-1][1]:
             blocks[-1][1] = max(blocks[-1][1], t.end_ns)
             blocks[-1][2] += own_ns
@@ -195,7 +211,8 @@ def evolve_circuit(
                     placed.append(_Placed(t.end_ns, 0, 2 * t.index + 1, RZGate(phi), (other,)))
     extra = 0
     for i, j, nu in spec.zz:
-        for when, dt in _phase_events(timed, total_ns, (i, j), spec.two_qubit_gate):
+        own = spec.two_qubit_gate if spec.zz_during_own_gate == "in_calibration" else None
+        for when, dt in _phase_events(timed, total_ns, (i, j), own):
             theta = math.pi * nu * dt * 1e-6  # kHz x ns
             if theta != 0.0:
                 extra += 1

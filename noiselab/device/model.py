@@ -52,6 +52,8 @@ class DeviceModel:
     pair_gate_error: np.ndarray
     zz_angle_rad: np.ndarray
     joint_flip: np.ndarray
+    flip_i_if_j_reads_1: np.ndarray  # pair (i, j): P(i's bit flips | j reads 1)
+    flip_j_if_i_reads_1: np.ndarray
     zz_rate_khz: np.ndarray
     spectator_phase_rad: np.ndarray
 
@@ -92,6 +94,7 @@ def resolve_device(profile: Any, patch: Sequence[int] | None = None) -> DeviceMo
         if profile.has_pair(patch_t[i], patch_t[j])
     ]
     pps = [profile.pair(patch_t[i], patch_t[j]) for i, j in pairs]
+    conds = [profile.conditional_flips(patch_t[i], patch_t[j]) for i, j in pairs]
     d = profile.durations
     return DeviceModel(
         patch=patch_t,
@@ -109,6 +112,8 @@ def resolve_device(profile: Any, patch: Sequence[int] | None = None) -> DeviceMo
         pair_gate_error=_frozen([p.gate_error for p in pps]),
         zz_angle_rad=_frozen([p.zz_angle_rad for p in pps]),
         joint_flip=_frozen([profile.joint_flip(patch_t[i], patch_t[j]) for i, j in pairs]),
+        flip_i_if_j_reads_1=_frozen([cond[0] for cond in conds]),
+        flip_j_if_i_reads_1=_frozen([cond[1] for cond in conds]),
         zz_rate_khz=_frozen([p.zz_rate_khz for p in pps]),
         spectator_phase_rad=_frozen([p.spectator_phase_rad for p in pps]),
     )

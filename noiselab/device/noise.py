@@ -11,8 +11,9 @@ Per native gate, the error channel applied after the ideal gate is, in this orde
    rx(f * angle) after sx (angle pi/2) and x (angle pi) (``over_rotation_fraction``).
 
 rz is virtual: no error, zero duration. Readout assignment errors are not in the noise model;
-:func:`readout_matrices` and :func:`readout_crosstalk` describe them for the emulator (decay
-during the readout is part of P(0|1); ``readout_ns`` only sets the Target's Measure duration).
+:mod:`noiselab.device.readout_map` describes them for the emulator (decay during the readout is
+part of P(0|1); ``readout_ns`` only sets the Target's Measure duration); its functions are
+re-exported here.
 
 Idle qubits: scheduled circuits (see :mod:`noiselab.device.compile`) carry ``delay``
 instructions. :func:`build_noise_model` registers a noise pass that aer runs on every circuit
@@ -20,9 +21,6 @@ containing delays (``idle_relaxation=True``, the default): after each delay of d
 qubit it appends thermal relaxation over t. Delay units s/ms/us/ns/ps are converted exactly;
 ``dt`` needs ``dt_s``. Alternatively call :func:`attach_idle_relaxation` on the circuit yourself
 and build the model with ``idle_relaxation=False`` (never both: that doubles the idle decay).
-
-Just over 400 lines: the noise specification and the qiskit-aer model built from it, plus
-the readout matrices, are one channel order that must not drift apart.
 """
 
 from __future__ import annotations
@@ -41,11 +39,19 @@ from qiskit.quantum_info import PTM, Kraus, Operator, SuperOp, average_gate_fide
 from qiskit_aer.noise import NoiseModel, QuantumError, thermal_relaxation_error
 from qiskit_aer.noise.passes import LocalNoisePass
 
-from noiselab.common.errors import InputError, ProblemTooLargeError, input_error
+from noiselab.common.errors import InputError, input_error
 from noiselab.device import thermal
 from noiselab.device.aer_adapter import add_noise_pass
 from noiselab.device.evolution import EvolutionSpec, evolution_spec
 from noiselab.device.profile import VIRTUAL_GATES, DeviceProfile, check_patch
+from noiselab.device.readout_map import (  # re-exported: the readout half of the device's noise
+    MAX_DENSE_READOUT_QUBITS as MAX_DENSE_READOUT_QUBITS,
+)
+from noiselab.device.readout_map import conditional_flip_matrix as conditional_flip_matrix
+from noiselab.device.readout_map import readout_crosstalk as readout_crosstalk
+from noiselab.device.readout_map import readout_matrices as readout_matrices
+from noiselab.device.readout_map import readout_terms as readout_terms
+from noiselab.device.readout_map import readout_transfer_matrix as readout_transfer_matrix
 
 _UNIT_SECONDS = {"s": 1.0, "ms": 1e-3, "us": 1e-6, "ns": 1e-9, "ps": 1e-12}
 _ROTATION_ANGLE_RAD = {"sx": math.pi / 2, "x": math.pi}
@@ -380,64 +386,3 @@ def build_noise_model(
     """
     spec = noise_spec(profile, patch, idle_relaxation=idle_relaxation, dt_s=dt_s)
     return noise_model_from_spec(profile, spec)
-
-
-# ---- readout --------------------------------------------------------------------------------
-
-
-def readout_matrices(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray:
-    """Per-qubit assignment matrices, shape (k, 2, 2); columns are the prepared state:
-    A = [[1 - P(1|0), P(0|1)], [P(1|0), 1 - P(0|1)]]."""
-    patch = check_patch(profile, patch)
-    out = np.empty((len(patch), 2, 2))
-    for i, q in enumerate(patch):
-        qp = profile.qubit(q)
-        out[i] = [
-            [1.0 - qp.flip_0to1, qp.flip_1to0],
-            [qp.flip_0to1, 1.0 - qp.flip_1to0],
-        ]
-    return out
-
-
-def readout_crosstalk(
-    profile: DeviceProfile, patch: Sequence[int]
-) -> tuple[tuple[int, int, float], ...]:
-    """Joint-flip terms ``(i, j, c)`` on circuit qubits i < j of the patch (c > 0 only).
-
-    On a probability vector p over the k circuit qubits (entry m has bit_q = (m >> q) & 1) each
-    term maps p -> (1 - c) p + c p[m ^ (1<<i) ^ (1<<j)], applied after the per-qubit matrices.
-    """
-    patch = check_patch(profile, patch)
-    out = []
-    for i, qi in enumerate(patch):
-        for j in range(i + 1, len(patch)):
-            c = profile.joint_flip(qi, patch[j])
-            if c > 0.0:
-                out.append((i, j, c))
-    return tuple(out)
-
-
-MAX_DENSE_READOUT_QUBITS = 12
-
-
-def readout_transfer_matrix(profile: DeviceProfile, patch: Sequence[int]) -> np.ndarray:
-    """Dense readout map M (2^k x 2^k, columns = true outcome) including crosstalk.
-
-    M = (prod of C_ij) @ (A_{k-1} x ... x A_0), C_ij = (1 - c) I + c F_ij. For checks; k <= 12.
-    """
-    patch = check_patch(profile, patch)
-    k = len(patch)
-    if k > MAX_DENSE_READOUT_QUBITS:
-        raise ProblemTooLargeError(
-            f"readout matrix: {k} qubits; "
-            f"allowed: at most {MAX_DENSE_READOUT_QUBITS} for the dense form"
-        )
-    mats = readout_matrices(profile, patch)
-    m = np.ones((1, 1))
-    for a in mats:  # qubit 0 ends up least significant
-        m = np.kron(a, m)
-    idx = np.arange(2**k)
-    for i, j, c in readout_crosstalk(profile, patch):
-        flipped = idx ^ (1 << i) ^ (1 << j)
-        m = (1.0 - c) * m + c * m[flipped, :]
-    return m

@@ -34,7 +34,8 @@ A profile file looks like this (units are in the key names; rates are probabilit
       overrides:
         - {pair: [1, 2], gate_error: 1.2e-2}
     readout_crosstalk:                   # optional
-      - {pair: [0, 1], joint_flip: 0.004}
+      - {pair: [0, 1], joint_flip: 0.004, flip_a_if_b_reads_1: 0.0, flip_b_if_a_reads_1: 0.0}
+    zz_during_own_gate: in_calibration   # optional; or extra (ZZ also during the pair's gate)
     repetition_delay_us: 250             # optional; time between shots, reset included
     drift:                               # optional; day-to-day relative standard deviations
       t1_rel_std: 0.2                    # (these are the defaults; see noiselab.device.drift)
@@ -51,9 +52,20 @@ The full readout map is M = (prod over pairs of C_ab) @ (A_{n-1} x ... x A_0); t
 with each other. A joint flip keeps the parity Z_a Z_b, so a per-qubit (tensor-product)
 inversion, which sees it as an extra symmetric flip on each qubit, over-corrects correlations.
 
+Outcome-dependent readout crosstalk of the pair [a, b]: ``flip_a_if_b_reads_1`` is the
+probability that a's reported bit flips when b's reported bit (after b's own assignment error)
+is 1, ``flip_b_if_a_reads_1`` the other way round. It is conditioned on what b *reads*, not on
+the state b was in: the disturbance is b's readout signal (its resonator response, which the
+same readout of b classifies), and a qubit that decays during readout also looks like 0 to its
+neighbour; it also keeps the readout map a product of local terms. On a pair, the 4x4 map K_ab
+(index bit_a + 2 bit_b) flips a and b independently given the bits before it. The full map is
+M = (prod of C_ab) @ (prod of K_ab, pairs in ascending order) @ (A_{n-1} x ... x A_0): no longer
+a tensor product, so only a full (2^n) inversion undoes it.
+
 Always-on terms (see :mod:`noiselab.device.evolution`): ``zz_rate_khz`` nu of a linked pair acts
 as exp(-i pi nu t Z x Z / 2) (conditional phase 2 pi nu t) during every idle window and every
-gate except the pair's own two-qubit gate, whose calibration absorbs it; ``detuning_std_khz``
+gate except the pair's own two-qubit gate, whose calibration absorbs it (``zz_during_own_gate:
+extra`` lets it act then too); ``detuning_std_khz``
 sigma is a frequency offset constant within a shot, Gaussian between shots (free decay
 exp(-(2 pi sigma t)^2 / 2) on top of T2, which stays the echo time); ``spectator_phase_rad``
 phi: each two-qubit gate of the pair applies rz(phi) to every other qubit linked to it.
@@ -119,6 +131,9 @@ SCHEMA_VERSION = 1
 SINGLE_QUBIT_GATES: tuple[str, ...] = ("rz", "sx", "x")
 TWO_QUBIT_GATES: tuple[str, ...] = ("cz", "cx", "ecr")
 VIRTUAL_GATES: frozenset[str] = frozenset({"rz"})
+#: ideal, zero-duration frames a transform writes (random twirl Paulis, merged into the
+#: neighbouring single-qubit gates on a device): no error, no time, no noise rule
+FRAME_GATES: frozenset[str] = frozenset({"pauli"})
 ALL_TO_ALL = "all-to-all"
 
 # physical maxima (MAX_*) and CHANNELS come from noiselab.device.channel_registry
@@ -280,11 +295,15 @@ class PairSection(BaseModel):
 
 
 class CrosstalkEntry(BaseModel):
-    """Correlated readout error on a linked pair: both bits flip together with ``joint_flip``."""
+    """Correlated readout error on a linked pair ``[a, b]``: both bits flip together with
+    ``joint_flip``; a's bit flips with ``flip_a_if_b_reads_1`` when b reads 1 (and the other
+    way round)."""
 
     model_config = _CFG
     pair: Pair
-    joint_flip: JointFlip
+    joint_flip: JointFlip = 0.0
+    flip_a_if_b_reads_1: JointFlip = 0.0
+    flip_b_if_a_reads_1: JointFlip = 0.0
 
 
 RelStd = _num(0.0, 2.0)
@@ -367,6 +386,14 @@ class DeviceProfile(BaseModel):
     #: set by the ``twirl`` transform (not a device property): two-qubit gate errors are
     #: replaced by their Pauli-twirled part
     twirled_two_qubit_gates: bool = False
+    #: whether the always-on ZZ of a pair acts during the pair's own two-qubit gate:
+    #: "in_calibration" (no: the gate was calibrated with it present; its residual is
+    #: zz_angle_rad) or "extra" (yes, on top of the calibrated gate)
+    zz_during_own_gate: Literal["in_calibration", "extra"] = "in_calibration"
+    #: set by the ``measure_twirl`` transform (not a device property): (qubit, P(1|0), P(0|1))
+    #: before twirling, of the qubits with a conditional readout flip, whose flips the twirled
+    #: profile has made symmetric; readout then applies the exact twirl average
+    untwirled_readout_flips: tuple[tuple[StrictInt, ReadoutRate, ReadoutRate], ...] = ()
     #: not part of the noise: excluded from dumps, the fingerprint and simulation cache keys
     drift: DriftSpec = Field(default_factory=DriftSpec, exclude=True)
     #: time between shots, reset included (us); None: the rehearse job's common-practice
@@ -515,6 +542,16 @@ class DeviceProfile(BaseModel):
                 return entry.joint_flip
         return 0.0
 
+    def conditional_flips(self, a: int, b: int) -> tuple[float, float]:
+        """(P(a's bit flips | b reads 1), P(b's bit flips | a reads 1)) of pair (a, b), in the
+        order asked; (0.0, 0.0) when none is given."""
+        for entry in self.readout_crosstalk:
+            if tuple(entry.pair) == (a, b):
+                return entry.flip_a_if_b_reads_1, entry.flip_b_if_a_reads_1
+            if tuple(entry.pair) == (b, a):
+                return entry.flip_b_if_a_reads_1, entry.flip_a_if_b_reads_1
+        return 0.0, 0.0
+
     def resolve(self, patch: Iterable[int] | None = None) -> DeviceModel:
         """The profile on ``patch`` (default: every qubit) as read-only arrays (``DeviceModel``)."""
         return resolve_device(self, None if patch is None else check_patch(self, patch))
@@ -620,6 +657,11 @@ def _check_semantics(p: DeviceProfile) -> None:
 
     check_linked_list("couplers.overrides", p.couplers.overrides)
     check_linked_list("readout_crosstalk", p.readout_crosstalk)
+    for i, entry in enumerate(p.untwirled_readout_flips):
+        if not 0 <= entry[0] < n:
+            raise ProfileCheckError(
+                f"untwirled_readout_flips[{i}]", f"qubit {entry[0]} does not exist", f"0..{n - 1}"
+            )
 
     for q in range(n):
         rq = p.qubit(q)

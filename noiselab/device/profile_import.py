@@ -28,7 +28,7 @@ from typing import Any
 import numpy as np
 import yaml
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, input_error
 from noiselab.common.yamlio import parse_yaml_mapping
 from noiselab.device.caltable import CalibrationTable
 from noiselab.device.profile import (
@@ -269,7 +269,7 @@ def profile_from_tables(
         raise input_error(source, None, "no calibration tables given", "one or more table files")
     if two_qubit_gate not in TWO_QUBIT_GATES:
         raise input_error(
-            None, "--two-qubit-gate", f"{two_qubit_gate!r}", ", ".join(TWO_QUBIT_GATES)
+            None, arg("two_qubit_gate"), f"{two_qubit_gate!r}", ", ".join(TWO_QUBIT_GATES)
         )
     _same_layout(tables)
     notes: list[str] = []

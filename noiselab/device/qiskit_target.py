@@ -8,7 +8,10 @@ error (average infidelity, relaxation included; coherent terms on top, as in the
 subclasses that qiskit keeps: :class:`GateProperties` (``over_rotation_fraction`` on sx/x,
 ``zz_angle_rad`` and the readout ``joint_flip`` of the pair on the two-qubit gate) and
 :class:`ReadoutProperties` (``flip_0to1``, ``flip_1to0``). The profile's ``drift`` and
-``repetition_delay_us`` describe no noise and are not carried.
+``repetition_delay_us`` describe no noise and are not carried; neither are the always-on terms
+(``zz_rate_khz``, ``detuning_std_khz``, ``spectator_phase_rad``) and the outcome-dependent
+readout flips (``flip_a_if_b_reads_1``, ``flip_b_if_a_reads_1``), for which a ``Target`` has
+no place.
 
 :func:`profile_from_target` reads any ``Target`` (one from :func:`profile_to_target` gives the
 same profile back). The profile holds less than a ``Target`` can say; each choice is returned

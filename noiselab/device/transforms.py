@@ -52,6 +52,8 @@ class CircuitTransform:
 
     kind: ClassVar[str] = ""
     changes_circuit: ClassVar[bool] = False
+    #: changes only the readout error (the state simulation is that of the variant without it)
+    readout_only: ClassVar[bool] = False
     absent_key: ClassVar[Mapping[str, Any]] = {}
 
     @property

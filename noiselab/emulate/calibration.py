@@ -152,8 +152,9 @@ def per_qubit_assignment(
 ) -> list[np.ndarray]:
     """Exact 2x2 matrices ``A_l[reported, prepared]`` that the all-0 and all-1 calibration
     circuits of :func:`calibration_distributions` give for each measured qubit l (its
-    marginals), without forming any 2**n distribution; readout crosstalk (joint flips) is left
-    out, so this equals the marginals of ``calibration_distributions`` only without crosstalk."""
+    marginals), without forming any 2**n distribution; readout crosstalk (joint and
+    outcome-dependent flips) is left out, so this equals the marginals of
+    ``calibration_distributions`` only without crosstalk."""
     patch = tuple(int(q) for q in patch)
     k = len(patch)
     qubits = [int(c) for c in measured]

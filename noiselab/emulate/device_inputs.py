@@ -12,7 +12,8 @@ from typing import Any
 
 import numpy as np
 
-from noiselab.device.noise import build_noise_model, readout_crosstalk, readout_matrices
+from noiselab.device.noise import build_noise_model
+from noiselab.device.readout_map import readout_matrices, readout_terms
 from noiselab.emulate.channels import BasisLayerSpec
 from noiselab.emulate.readout import PairMatrix
 
@@ -29,7 +30,7 @@ def layer_spec_for(profile: Any, num_qubits: int) -> BasisLayerSpec:
 def logical_readout(
     profile: Any, patch: Sequence[int], qubits: Sequence[int]
 ) -> tuple[list[np.ndarray], list[PairMatrix]]:
-    """Readout matrices and joint-flip terms in LOGICAL indices.
+    """Readout matrices and crosstalk terms (``readout_map.readout_terms``) in LOGICAL indices.
 
     ``qubits[l]`` is the circuit position of logical qubit l; circuit position i is physical
     ``patch[i]``. Crosstalk terms touching an unmeasured patch qubit are dropped (that qubit is
@@ -37,11 +38,12 @@ def logical_readout(
     """
     mats = readout_matrices(profile, patch)
     where = {c: l for l, c in enumerate(qubits)}
-    terms: list[PairMatrix] = [
-        (where[i], where[j], c)
-        for i, j, c in readout_crosstalk(profile, patch)
-        if i in where and j in where
-    ]
+    terms: list[PairMatrix] = []
+    for term in readout_terms(profile, patch, measured=list(where)):
+        if len(term) == 2:
+            terms.append((tuple(where[c] for c in term[0]), term[1]))
+        else:
+            terms.append((where[term[0]], where[term[1]], term[2]))
     return [mats[c] for c in qubits], terms
 
 

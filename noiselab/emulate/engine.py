@@ -14,7 +14,7 @@ from __future__ import annotations
 
 import time
 from collections.abc import Callable, Hashable, Sequence
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -448,3 +448,15 @@ def emulate_bases(
         evolution=evolution_spec(profile, patch),
     )
 
+
+
+def with_readout(dist: BasisDistributions, compiled: Any, profile: Any) -> BasisDistributions:
+    """``dist`` (exact) under the readout error of ``profile`` instead of its own: the same state
+    simulation (``probs_ideal``), read out again as :func:`emulate_bases` does. For transforms
+    that change only the readout (measurement twirling), which then cost no simulation."""
+    if not dist.is_exact:
+        raise ValueError("with_readout: exact distributions only (no trajectory batches)")
+    qubits = list(compiled.logical_to_circuit)
+    mats, terms = logical_readout(profile, tuple(compiled.patch), qubits)
+    probs = apply_readout(dist.probs_ideal, mats, terms)
+    return replace(dist, probs=probs, engine_seconds=0.0, engine_calls=0)

@@ -5,8 +5,8 @@ rotations followed by the Pauli-twirled channel the device's noise model attache
 idle window (``delay``) as the twirled relaxation channel the model's noise pass inserts, and
 the measured observable of each measurement basis including the basis-change layer (its gates'
 noise and the idle relaxation of qubits waiting for it, exactly, as single-qubit channels) and
-the readout assignment matrix of each qubit. Readout crosstalk (joint flips) is left out: a
-product of per-qubit observables cannot carry it (callers say so).
+the readout assignment matrix of each qubit. Readout crosstalk (joint and outcome-dependent
+flips) is left out: a product of per-qubit observables cannot carry it (callers say so).
 
 ``pauli_energy(...)`` gives the energy a plan's grouped measurement would estimate, its variance
 per shot of each group, and the truncation bound, without any density matrix.
@@ -16,6 +16,7 @@ from __future__ import annotations
 
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 from qiskit.quantum_info import Kraus
@@ -27,6 +28,7 @@ from noiselab.emulate.pauli_propagation import (
     Instruction,
     PauliDiagonal,
     PauliTerms,
+    Propagated,
     Truncation,
     gate_rotations,
     merge,
@@ -34,8 +36,11 @@ from noiselab.emulate.pauli_propagation import (
     propagate,
     twirled_fidelities,
 )
+from noiselab.emulate.pauli_truncation import Sampling, TruncationEstimate, propagate_estimated
 
 _ONE = np.uint64(1)
+#: With sampling, the measured observable is expanded with this fraction of the threshold.
+EXPANSION_REFINE = 1e-2
 
 
 def circuit_program(circuit: object, noise_model: object | None) -> list[Instruction]:
@@ -151,13 +156,38 @@ def basis_observable(
 
 @dataclass(frozen=True)
 class PauliEnergy:
-    """Energy (Ha) of a grouped measurement by Pauli propagation, with its pieces."""
+    """Energy (Ha) of a grouped measurement by Pauli propagation, with its pieces.
+
+    ``truncation_bound_ha``: rigorous bound on ``energy_ha``'s truncation error (sum of the
+    dropped |c|); with sampling, ``truncation_estimate_ha`` estimates that error (the untruncated
+    energy is about ``energy_ha + truncation_estimate_ha``), ``truncation_std_ha`` is the
+    estimate's standard error and ``estimate_residual_ha`` bounds what the estimate itself
+    misses (:mod:`noiselab.emulate.pauli_truncation`)."""
 
     energy_ha: float
     group_energy_ha: tuple[float, ...]
     group_variance_ha2: tuple[float, ...]  # per shot, of each group's estimator
     truncation_bound_ha: float  # on the energy (sum of the groups' bounds)
     peak_strings: int
+    truncation_estimate_ha: float | None = None
+    truncation_std_ha: float | None = None
+    estimate_residual_ha: float | None = None
+    tasks: int = 1
+
+
+#: One unit of work: (observable terms of some groups, program, rule, sampling or None, the
+#: finer-expanded means for the estimate's check run or None).
+PropagationTask = tuple[
+    PauliTerms, Sequence[Instruction], Truncation, Sampling | None, PauliTerms | None
+]
+
+
+def propagate_task(item: PropagationTask) -> tuple[Propagated, TruncationEstimate | None]:
+    """One task of :func:`pauli_energy` (module level and picklable: an executor's ``fn``)."""
+    observable, program, rule, sampling, check = item
+    if sampling is None:
+        return propagate(observable, program, rule), None
+    return propagate_estimated(observable, program, rule, sampling, check)
 
 
 def pauli_energy(
@@ -170,6 +200,8 @@ def pauli_energy(
     rule: Truncation = EXACT,
     constant_ha: float = 0.0,
     outcome_values: Sequence[np.ndarray] | None = None,
+    sampling: Sampling | None = None,
+    executor: Any = None,
 ) -> PauliEnergy:
     """Energy and per-shot variance of each measured group.
 
@@ -181,13 +213,20 @@ def pauli_energy(
     ``outcome_values[l]``: the values (for reported 0, 1) the estimator gives logical qubit l's
     outcome (None: +-1; a per-qubit readout correction ``A_l^-T (1, -1)``); then a shared
     qubit of o_t o_s contributes its squared value, and the partial products dropped while
-    expanding are bounded with each M's norm bound (sum of |Pauli coefficients|)."""
+    expanding are bounded with each M's norm bound (sum of |Pauli coefficients|).
+    ``sampling``: also estimate the truncation error (means only); ``executor``: an object with
+    ``map(fn, items)`` and ``parallelism`` (noiselab.study.executor) that runs the groups as
+    :func:`propagate_task` tasks (same numbers as one joint run, up to rounding)."""
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
     cut = rule.min_abs_coeff
+    # the estimate's check run expands more finely: its truncation then drops those products,
+    # so they are sampled too, instead of joining only the bound
+    fine_cut = cut * EXPANSION_REFINE * (sampling.finer if sampling is not None else 1.0)
     parts: list[PauliTerms] = []
-    lost = np.zeros(len(groups))
+    checks: list[PauliTerms] = []
+    lost, fine_lost = np.zeros(len(groups)), np.zeros(len(groups))
     for g, (basis, terms) in enumerate(groups):
         measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
         layer_ns = layer_duration_ns(measured, layer)
@@ -206,9 +245,16 @@ def pauli_energy(
             }
         # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
         first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
-        if outcome_values is not None and lost[g] > 0:  # an M of norm > 1 may follow a cut
+        if sampling is not None:
+            fine, fine_lost[g] = basis_observable(
+                terms, observables, circuit_qubit, fine_cut, 2 * g
+            )
+            checks.append(fine)
+        if outcome_values is not None:  # an M of norm > 1 may follow a cut
             norm = max(1.0, *(float(np.abs(m).sum()) for m in observables.values()))
-            lost[g] *= norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
+            power = norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
+            lost[g] *= power
+            fine_lost[g] *= power
         second, _ = basis_observable(
             _squared_terms(terms, outcome_values is not None),
             observables,
@@ -218,19 +264,63 @@ def pauli_energy(
             squared,
         )
         parts += [first, second]
-    result = propagate(PauliTerms.join(parts), program, rule)
-    values = np.zeros(2 * len(groups))
-    values[: len(result.values)] = result.values[: 2 * len(groups)]
+    n_tags = 2 * len(groups)
+    done = _run_tasks(parts, checks, program, rule, sampling, executor)
+    values, bounds = np.zeros(n_tags), np.zeros(n_tags)
+    estimate, var, residual = np.zeros(n_tags), np.zeros(n_tags), np.zeros(n_tags)
+    for result, est in done:
+        k = min(len(result.values), n_tags)
+        values[:k] += result.values[:k]
+        bounds[:k] += result.bounds[:k]
+        if est is not None:
+            k = min(len(est.estimate), n_tags)
+            estimate[:k] += est.estimate[:k]
+            var[:k] += est.std[:k] ** 2
+            residual[:k] += est.residual[:k]
     means, moments = values[0::2], values[1::2]
-    bounds = np.zeros(2 * len(groups))
-    bounds[: len(result.bounds)] = result.bounds[: 2 * len(groups)]
+    extra: dict[str, Any] = {}
+    if sampling is not None:
+        extra = {
+            "truncation_estimate_ha": float(estimate[0::2].sum()),
+            "truncation_std_ha": float(np.sqrt(var[0::2].sum())),
+            "estimate_residual_ha": float(residual[0::2].sum() + fine_lost.sum()),
+        }
     return PauliEnergy(
         float(constant_ha + means.sum()),
         tuple(float(v) for v in means),
         tuple(float(max(0.0, m2 - m1**2)) for m1, m2 in zip(means, moments, strict=True)),
         float(bounds[0::2].sum() + lost.sum()),
-        result.peak_strings,
+        max(r.peak_strings for r, _ in done),
+        tasks=len(done),
+        **extra,
     )
+
+
+def _run_tasks(
+    parts: list[PauliTerms],
+    checks: list[PauliTerms],
+    program: list[Instruction],
+    rule: Truncation,
+    sampling: Sampling | None,
+    executor: Any,
+) -> list[tuple[Propagated, TruncationEstimate | None]]:
+    """One joint propagation in-process (numpy on long arrays), or one task per group (mean and
+    second moment; its check observable) on ``executor``; tags are the groups' own, so the
+    results add up."""
+    if executor is None or getattr(executor, "in_process", False):
+        check = PauliTerms.join(checks) if checks else None
+        return [propagate_task((PauliTerms.join(parts), program, rule, sampling, check))]
+    items = [
+        (
+            PauliTerms.join(parts[2 * g : 2 * g + 2]),
+            program,
+            rule,
+            sampling,
+            checks[g] if checks else None,
+        )
+        for g in range(len(parts) // 2)
+    ]
+    return list(executor.map(propagate_task, items))
 
 
 def _qubit_observable(

@@ -9,7 +9,9 @@ Correlated readout (crosstalk) acts on a pair of qubits ``(a, b)`` after the per
 A term is ``(a, b, c)`` with a number c, the device layer's joint flip (both reported bits flip
 together with probability c: ``p -> (1 - c) p + c p[m ^ (1<<a) ^ (1<<b)]``, see
 :mod:`noiselab.device.profile`), or ``(a, b, M)`` with a general 4x4 column-stochastic matrix
-indexed ``i = bit_a + 2 * bit_b`` (``a`` the lower bit inside the pair).
+indexed ``i = bit_a + 2 * bit_b`` (``a`` the lower bit inside the pair; the outcome-dependent
+flips of the device layer are such matrices), or ``(qubits, M)`` with a 2^m x 2^m matrix on m
+qubits (a measurement-twirled group of them).
 """
 
 from __future__ import annotations
@@ -20,8 +22,9 @@ import numpy as np
 
 from noiselab.common.errors import InputError
 
-#: A crosstalk term: (qubit a, qubit b, joint-flip probability or 4x4 matrix on the pair).
-PairMatrix = tuple[int, int, "float | np.ndarray"]
+#: A crosstalk term: (qubit a, qubit b, joint-flip probability or 4x4 matrix on the pair), or
+#: (qubits, 2^m x 2^m matrix) on m qubits, bit l of its index the bit of ``qubits[l]``.
+PairMatrix = tuple[int, int, "float | np.ndarray"] | tuple[tuple[int, ...], np.ndarray]
 
 
 def joint_flip_matrix(c: float) -> np.ndarray:
@@ -86,21 +89,27 @@ def apply_readout(
         if a.shape != (2, 2):
             raise InputError(f"readout: matrix of qubit {q} has shape {a.shape}; allowed: (2, 2)")
         x = apply_on_axis(x, a, _axis(nb, n, q))
-    for qa, qb, m in crosstalk:
-        if qa == qb or not (0 <= qa < n and 0 <= qb < n):
+    for term in crosstalk:
+        if len(term) == 2:
+            qs, local = tuple(int(q) for q in term[0]), np.asarray(term[1], dtype=float)
+        else:
+            qs, local = (int(term[0]), int(term[1])), np.asarray(term[2], dtype=float)
+            if local.ndim == 0:
+                local = joint_flip_matrix(float(local))
+        m = len(qs)
+        if len(set(qs)) != m or not all(0 <= q < n for q in qs):
             raise InputError(
-                f"readout: crosstalk pair ({qa}, {qb}); allowed: two different qubits 0..{n - 1}"
+                f"readout: crosstalk pair or group {qs}; allowed: different qubits 0..{n - 1}"
             )
-        m4 = np.asarray(m, dtype=float)
-        if m4.ndim == 0:
-            m4 = joint_flip_matrix(float(m4))
-        if m4.shape != (4, 4):
-            raise InputError(f"readout: crosstalk matrix has shape {m4.shape}; allowed: (4, 4)")
-        # m4[i_out, i_in] with i = bit_a + 2*bit_b  ->  t[out_b, out_a, in_b, in_a]
-        t = m4.reshape(2, 2, 2, 2)
-        axb, axa = _axis(nb, n, qb), _axis(nb, n, qa)
-        y = np.tensordot(t, x, axes=([2, 3], [axb, axa]))
-        x = np.moveaxis(y, [0, 1], [axb, axa])
+        if local.shape != (2**m, 2**m):
+            raise InputError(
+                f"readout: crosstalk matrix has shape {local.shape}; allowed: {(2**m, 2**m)}"
+            )
+        # local[i_out, i_in], i = sum_l bit(qs[l]) << l  ->  t[out_{m-1}..out_0, in_{m-1}..in_0]
+        t = local.reshape((2,) * (2 * m))
+        axes = [_axis(nb, n, q) for q in reversed(qs)]
+        y = np.tensordot(t, x, axes=(list(range(m, 2 * m)), axes))
+        x = np.moveaxis(y, list(range(m)), axes)
     return np.ascontiguousarray(x.reshape(p.shape))
 
 

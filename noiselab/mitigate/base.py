@@ -149,6 +149,22 @@ class SpreadTerm:
     details_key: str
 
 
+@dataclass(frozen=True, eq=False)
+class InstanceTerm:
+    """A random part no shot count shrinks that a pass realizes as a finite number of random
+    instances (e.g. ``twirl`` with ``draws``: randomly twirled copies of every circuit): a real
+    run averages the recipe over its instances. The exact energy (the bias) stays the pass as it
+    is, their expectation. The recipe is evaluated exactly with the pass replaced by each of
+    ``instances`` (its realized instances, seeded from the study's seed); the variance of their
+    mean, sample variance / n, enters ``std_mha`` as the fixed variance ``name``
+    (``std_<name>_mha`` in the details, with ``<name>_mean_offset_mha``: the instances' mean
+    minus the exact energy, and ``<name>_instances``), and a sampled evaluation reports their
+    mean (the shot noise on top)."""
+
+    name: str
+    instances: tuple[MitigationPass, ...]
+
+
 class MitigationPass(ABC):
     """A pass: options, a stage, and the hooks of its stage."""
 
@@ -187,6 +203,16 @@ class MitigationPass(ABC):
         """Options of this pass whose real-run value is random (:class:`SpreadTerm`; default
         none)."""
         return ()
+
+    def instance_term(self, ctx: ExperimentContext) -> InstanceTerm | None:
+        """The random instances a real run of this pass averages (:class:`InstanceTerm`;
+        default None: the pass is exact)."""
+        return None
+
+    def no_op(self, ctx: ExperimentContext) -> str | None:
+        """Why this pass changes nothing on this experiment (one line), or None (default: it
+        may change something). ``tune`` leaves out settings that differ only by a no-op."""
+        return None
 
     def transforms(self, ctx: ExperimentContext) -> tuple[Any, ...]:
         """Circuit transforms a correction or estimator pass adds to every circuit variant of its

@@ -39,6 +39,7 @@ from noiselab.mitigate.base import (
     STAGE_CORRECT,
     STAGE_ESTIMATE,
     STAGE_NAMES,
+    InstanceTerm,
     MitigationPass,
     SpreadTerm,
 )
@@ -199,6 +200,46 @@ def spread_sensitivities(
     return tuple(out)
 
 
+def _replaced_energy(
+    parsed: ParsedRecipe,
+    i: int,
+    q: MitigationPass,
+    ctx: ExperimentContext,
+    runner: Runner,
+    calibrator: Calibrator,
+    memo: EstimateMemo | None,
+) -> float:
+    """The recipe's exact energy (Ha) with its pass ``i`` replaced by ``q``."""
+    other = ParsedRecipe(parsed.name, (*parsed.passes[:i], q, *parsed.passes[i + 1 :]))
+    variants, bases = other.variants(ctx), other.bases(ctx)
+    data = measure(runner, variants, bases)
+    cal = CalibrationSource(calibrator)
+    ev = evaluate(other.passes, ctx, variants, bases, data.probs, cal, memo, (runner,))
+    return float(ev.estimate.value)
+
+
+def instance_energies(
+    parsed: ParsedRecipe,
+    ctx: ExperimentContext,
+    runner: Runner,
+    calibrator: Calibrator,
+    memo: EstimateMemo | None = None,
+) -> tuple[tuple[InstanceTerm, np.ndarray], ...]:
+    """Each :class:`InstanceTerm` of the recipe's passes with the exact energy (Ha) of the
+    recipe on each of its instances (their circuit variants emulated and cached like any
+    other)."""
+    out = []
+    for i, p in enumerate(parsed.passes):
+        term = p.instance_term(ctx)
+        if term is None:
+            continue
+        energies = [
+            _replaced_energy(parsed, i, q, ctx, runner, calibrator, memo) for q in term.instances
+        ]
+        out.append((term, np.asarray(energies, dtype=float)))
+    return tuple(out)
+
+
 def run_recipe(
     recipe: Sequence[Mapping[str, Any]] | RecipeSpec | ParsedRecipe,
     ctx: ExperimentContext,
@@ -237,6 +278,10 @@ def run_recipe(
     if spreads:
         fixed = {t.name: (sens * t.std) ** 2 for t, sens in spreads}
         exact = dataclasses.replace(exact, fixed_variance={**exact.fixed_variance, **fixed})
+    instances = instance_energies(parsed, ctx, runner, calibrator, memo)
+    if instances:  # the variance of the instances' mean
+        fixed = {t.name: float(np.var(e, ddof=1)) / len(e) for t, e in instances}
+        exact = dataclasses.replace(exact, fixed_variance={**exact.fixed_variance, **fixed})
     alloc = allocate(ctx, exact.estimate, data, parsed.shot_split())
     used, used_data = exact, data
     if sampled:
@@ -244,8 +289,12 @@ def run_recipe(
         used_data = draw(data, alloc, rng)
         cal = CalibrationSource(calibrator, rng, calibration_record)
         used = evaluate(parsed.passes, ctx, variants, bases, used_data.probs, cal)
+        shift = 0.0
         if spreads:  # draw each spread option's realized value (linearized)
-            shift = sum(sens * t.std * float(rng.normal()) for t, sens in spreads)
+            shift += sum(sens * t.std * float(rng.normal()) for t, sens in spreads)
+        # the realized instances' mean in place of their expectation
+        shift += sum(float(np.mean(e)) - float(exact.estimate.value) for _, e in instances)
+        if shift != 0.0:
             est = Estimate(used.estimate.value + shift, used.estimate.influence)
             used = dataclasses.replace(used, estimate=est)
     errors = variance(exact, used, used_data, alloc, memo)
@@ -260,6 +309,10 @@ def run_recipe(
         if isinstance(own, dict):
             own[f"std_{t.name}_mha"] = abs(sens * t.std) * HA_TO_MHA
             own[f"{t.name}_sensitivity_mha"] = sens * HA_TO_MHA
+    for t, e in instances:  # std_<name>_mha is there already (a fixed variance)
+        offset = float(np.mean(e)) - float(exact.estimate.value)
+        details[f"{t.name}_mean_offset_mha"] = offset * HA_TO_MHA
+        details[f"{t.name}_instances"] = len(e)
     return RecipeResult(
         recipe=parsed.name,
         spec=tuple(parsed.spec()),

@@ -5,11 +5,12 @@ from __future__ import annotations
 import dataclasses
 import math
 from dataclasses import dataclass, field
-from typing import Any, Literal, TypeVar
+from typing import Any, TypeVar
 
 import numpy as np
 
 from noiselab.mitigate.reports import PassReport, VariantScore
+from noiselab.mitigate.target import LimitedBy
 
 ReportType = TypeVar("ReportType", bound=PassReport)
 
@@ -46,7 +47,7 @@ class RecipeResult:
     engine_seconds: float
     p_within_target: float
     shots_needed: int | None
-    limited_by: Literal["bias", "calibration", "amplification", "learning", "shots", "none"]
+    limited_by: LimitedBy
     reaches_target: bool = False
     details: dict[str, Any] = field(default_factory=dict)
     sampled: bool = False

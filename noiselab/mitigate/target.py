@@ -15,8 +15,9 @@ calibration with its own fixed shot count).
 (|b| >= t, or b alone too close to t); "calibration" (or "amplification") when |b| < t but the
 fixed variance C keeps the probability below the confidence at any measurement budget, C being
 mostly readout-calibration noise (more calibration shots would help), the uncertainty of the
-realized noise amplification of an extrapolation, or ("learning") that of the learned noise
-model of error cancellation; "shots" when the confidence needs more shots
+realized noise amplification of an extrapolation, ("learning") that of the learned noise
+model of error cancellation, or ("twirl") the spread between a finite number of random Pauli
+twirls; "shots" when the confidence needs more shots
 than the budget; "none" when the budget suffices.
 """
 
@@ -29,13 +30,16 @@ from typing import Literal
 from scipy.optimize import brentq
 from scipy.special import ndtr
 
-LimitedBy = Literal["bias", "calibration", "amplification", "learning", "shots", "none"]
+LimitedBy = Literal[
+    "bias", "calibration", "amplification", "learning", "twirl", "shots", "none"
+]
 MAX_SHOTS = 10**15
 #: how a note names the fixed part of the variance that keeps P low
 FIXED_WORDS = {
     "calibration": "the fixed readout-calibration noise",
     "amplification": "the uncertainty of the realized noise amplification",
     "learning": "the uncertainty of the learned noise model",
+    "twirl": "the spread between the finite number of random twirls",
 }
 
 

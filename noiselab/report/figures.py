@@ -35,6 +35,7 @@ from noiselab.common.units import HA_TO_MHA
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.passes.extrapolate import ExtrapolationReport
 from noiselab.mitigate.result import RecipeResult
+from noiselab.report.style import current_style, font, line, mark, size
 from noiselab.study.budget import BudgetResult
 from noiselab.study.results import AssessResult
 from noiselab.study.sweep import BISECTION_REL_TOL, SweepResult
@@ -117,20 +118,32 @@ class BiasFigureData:
 
 
 def _new_figure(width_in: float = 7.0, height_in: float = 4.6) -> Any:
-    fig = Figure(figsize=(width_in, height_in), layout="constrained")
+    """A figure of the paper size (inches) scaled by the current style, on an Agg canvas."""
+    fig = Figure(figsize=size(width_in, height_in), layout="constrained")
     FigureCanvasAgg(fig)
     return fig
 
 
-def _decorate(fig: Any, ax: Any, title: str, study: str, device: str) -> None:
+def _decorate(fig: Any, ax: Any, title: str, study: str, device: str, room: float = 1.0) -> None:
     """Title, subtitle ``study S on D`` (``D``: 'device NAME', or words such as '4 devices')
-    and the caution line."""
+    and the caution line. ``room``: the share of the figure's width the title may take (less
+    beside a legend outside the axes); a longer title is wrapped."""
     where = device if " " in device else f"device {device}"
-    ax.set_title(f"{title}\nstudy {study} on {where}", fontsize=10)
+    # about 13 characters per inch at 10 pt; a legend beside the axes grows with the type
+    style = current_style()
+    chars = int(room * style.size_scale / style.font_scale * fig.get_figwidth() * 130 / font(10))
+    if len(title) > chars and " (" in title:  # a parenthesis goes to its own line first
+        head, _, tail = title.rpartition(" (")
+        title = f"{head}\n({tail}"
+    title = "\n".join(textwrap.fill(part, width=chars) for part in title.split("\n"))
+    ax.set_title(f"{title}\nstudy {study} on {where}", fontsize=font(10))
     # a figure-level x label is laid out below everything else (outside legends included)
     # wrapped to the figure's width (about 17 characters per inch at 7 pt)
-    caution = textwrap.fill(CAUTION, width=int(17 * fig.get_figwidth()))
-    fig.supxlabel(caution, x=0.995, ha="right", ma="right", fontsize=7, style="italic", color="0.4")
+    chars = 17 * fig.get_figwidth() / current_style().font_scale
+    caution = textwrap.fill(CAUTION, width=int(chars))
+    fig.supxlabel(
+        caution, x=0.995, ha="right", ma="right", fontsize=font(7), style="italic", color="0.4"
+    )
     ax.grid(True, which="major", alpha=0.3)
 
 
@@ -289,7 +302,7 @@ def _draw_extrapolation(
     ax.axhline(
         0.0,
         color="k",
-        lw=1.0,
+        lw=line(1.0),
         label=f"exact energy {data.exact_energy_ha:.6f} Ha" if legend else None,
     )
     for i, s in enumerate(data.series):
@@ -302,7 +315,7 @@ def _draw_extrapolation(
             yerr=es,
             fmt="o",
             color=c,
-            capsize=3,
+            capsize=mark(3),
             label=f"{s.recipe}: {s.describe()}" if legend else None,
         )
         if s.curve_scales:
@@ -312,7 +325,7 @@ def _draw_extrapolation(
                 cy,
                 "-",
                 color=c,
-                lw=1.2,
+                lw=line(1.2),
                 alpha=0.8,
             )
         if s.estimate_ha is not None:
@@ -323,11 +336,11 @@ def _draw_extrapolation(
                 [y0],
                 yerr=e0,
                 fmt="*",
-                ms=11,
+                ms=mark(11),
                 color=c,
-                capsize=3,
+                capsize=mark(3),
                 mec="k",
-                mew=0.5,
+                mew=line(0.5),
                 label=(
                     f"{s.recipe}: extrapolated {y0:+.2f} ± {(e0 or [0.0])[0]:.2f} mHa"
                     if legend
@@ -403,11 +416,11 @@ def extrapolation_figure(result: AssessResult | ExtrapolationFigureData, ax: Any
         zx.set_xlim(-half, half)  # around scale 0, where the stars are
         zx.set_xticks([0.0], ["0"])
         zx.set_xlabel("noise scale factor 0 (extrapolated)")
-        zx.set_title("zoom on the target band:\nthe extrapolated energies", fontsize=9)
+        zx.set_title("zoom on the target band:\nthe extrapolated energies", fontsize=font(9))
         if outside:
             zx.text(
                 0.02, 0.02, "outside this panel: " + ", ".join(outside),
-                transform=zx.transAxes, fontsize=7, va="bottom",
+                transform=zx.transAxes, fontsize=font(7), va="bottom",
                 bbox={"fc": "white", "ec": "0.6", "alpha": 0.9},
             )  # fmt: skip
         zx.grid(True, alpha=0.3)
@@ -416,7 +429,7 @@ def extrapolation_figure(result: AssessResult | ExtrapolationFigureData, ax: Any
         loc="upper left",
         bbox_to_anchor=(0.0, -0.13),
         ncols=1 if zoom else 2,
-        fontsize=8,
+        fontsize=font(8),
         framealpha=0.9,
     )
     _decorate(fig, ax, "Zero-noise extrapolation", data.study_name, data.device_name)
@@ -457,13 +470,15 @@ def bias_figure(result: AssessResult | BiasFigureData, ax: Any = None) -> Figure
     styles = [VERDICT_STYLE[bar_colour(b, target)] for b in bars]
     xs = list(range(len(bars)))
     ax.axhspan(-target, target, color=TARGET_COLOUR, alpha=0.15, lw=0, zorder=0)
-    ax.axhline(0.0, color="k", lw=0.8)
+    ax.axhline(0.0, color="k", lw=line(0.8))
     drawn = ax.bar(
-        xs, biases, color=[c for c, _ in styles], alpha=0.85, edgecolor="k", lw=0.6, zorder=2
+        xs, biases, color=[c for c, _ in styles], alpha=0.85, edgecolor="k", lw=line(0.6), zorder=2
     )
     for patch, (_, hatch) in zip(drawn, styles, strict=True):
         patch.set_hatch(hatch)
-    ax.errorbar(xs, biases, yerr=stds, fmt="none", ecolor="k", capsize=4, lw=1, zorder=3)
+    ax.errorbar(
+        xs, biases, yerr=stds, fmt="none", ecolor="k", capsize=mark(4), lw=line(1), zorder=3
+    )
     for i, b in enumerate(bars):
         up = b.bias_mha >= 0
         ax.annotate(
@@ -473,7 +488,7 @@ def bias_figure(result: AssessResult | BiasFigureData, ax: Any = None) -> Figure
             xytext=(0, 3 if up else -3),
             ha="center",
             va="bottom" if up else "top",
-            fontsize=7,
+            fontsize=font(7),
         )
     many = len(bars) > 4
     ax.set_xticks(xs, names, rotation=20 if many else 0, ha="right" if many else "center")
@@ -499,7 +514,7 @@ def bias_figure(result: AssessResult | BiasFigureData, ax: Any = None) -> Figure
             )
         ),
     ]  # fmt: skip
-    ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
+    ax.legend(handles=handles, fontsize=font(7), loc="best", framealpha=0.9)
     _decorate(fig, ax, "Bias per recipe (error bars: ±1 std at the shot budget)", study, device)
     return fig
 
@@ -549,28 +564,32 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         hi = [abs(e) + s for e, s in zip(err, std, strict=True)]
         c = colors[name]
         ls = "--" if _is_raw(name) else "-"
-        ax.plot(xs, mag, ls, color=c, lw=1.6, label=name)
+        ax.plot(xs, mag, ls, color=c, lw=line(1.6), label=name)
         # filled: energy above the exact one; open: below it (over-correction)
         for x, e, m in zip(xs, err, mag, strict=True):
-            ax.plot([x], [m], "o", ms=4.5, color=c, mfc=c if e >= 0 else "white", mew=1.2)
+            ax.plot(
+                [x], [m], "o", ms=mark(4.5), color=c, mfc=c if e >= 0 else "white", mew=line(1.2)
+            )
         ax.fill_between(xs, lo, hi, color=c, alpha=0.14, lw=0)
         any_negative = any_negative or any(e < 0 for e in err)
     ax.axhspan(floor * 0.5, t, color=TARGET_COLOUR, alpha=0.12, zorder=0)
-    ax.axhline(t, color=TARGET_COLOUR, lw=1.0, label=target_words(t) + " (shaded below)")
+    ax.axhline(t, color=TARGET_COLOUR, lw=line(1.0), label=target_words(t) + " (shaded below)")
     k = 0
     for c_ in sweep_result.crossings:
         col = colors.get(c_.recipe, "k")
         for x in c_.bias_crossings:
-            ax.plot([x * d], [t], marker="D", ms=7, color="white", markeredgecolor=col, zorder=5)
+            ax.plot(
+                [x * d], [t], marker="D", ms=mark(7), color="white", markeredgecolor=col, zorder=5
+            )
         for x in c_.crossings:
-            ax.plot([x * d], [t], marker="X", ms=10, color=col, markeredgecolor="k", zorder=5)
+            ax.plot([x * d], [t], marker="X", ms=mark(10), color=col, markeredgecolor="k", zorder=5)
             # stagger the labels so that neighbouring crossings stay readable
             ax.annotate(
                 crossing_text(knob, x),
                 (x * d, t),
                 textcoords="offset points",
                 xytext=(6, -14 - 11 * k),
-                fontsize=7,
+                fontsize=font(7),
                 color=col,
                 fontweight="bold",
                 bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": "none", "alpha": 0.8},
@@ -581,7 +600,7 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         cur,
         color="0.35",
         ls=":",
-        lw=1.3,
+        lw=line(1.3),
         label=f"device now: {knob.show(sweep_result.current_value)}",
     )
     low = [p.value * d for p in sweep_result.points if p.floored]
@@ -610,7 +629,9 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         ax.xaxis.set_major_locator(LogLocator(base=10, subs=(1.0, 2.0, 5.0)))
         ax.xaxis.set_major_formatter(FuncFormatter(lambda v, _pos: f"{v:g}"))
         ax.xaxis.set_minor_formatter(NullFormatter())
-    ax.set_xlabel(knob.axis_label)
+    mode = sweep_result.coherence_gate_errors
+    gates = {"follow": "; gate errors follow (relaxation part)", "fixed": "; gate errors fixed"}
+    ax.set_xlabel(knob.axis_label + gates.get(mode or "", ""))
     ax.set_ylabel("|energy − exact energy| (mHa)")
     conf = sweep_result.confidence
     ax.plot(
@@ -625,9 +646,9 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
     if any_negative:
         ax.plot([], [], "o", color="0.3", mfc="white", label="open: energy below the exact one")
     if own:
-        fig.legend(loc="outside right upper", fontsize=7, framealpha=0.9)
+        fig.legend(loc="outside right upper", fontsize=font(7), framealpha=0.9)
     else:
-        ax.legend(fontsize=7, framealpha=0.9)
+        ax.legend(fontsize=font(7), framealpha=0.9)
     _decorate(
         fig,
         ax,
@@ -635,6 +656,7 @@ def sweep_figure(sweep_result: SweepResult, ax: Any = None) -> Figure:
         f"{sweep_result.shots_total:,} shots)",
         sweep_result.study_name,
         sweep_result.device_name,
+        room=0.6 if own else 1.0,  # the legend takes the rest
     )
     return fig
 
@@ -677,7 +699,8 @@ def _ticks_with_target(ax: Any, t: float, negative: bool) -> None:
     extra = [t, -t] if negative else [t]
     # drop a default tick too close to a target tick to be read apart
     span = hi - lo
-    kept = [v for v in ticks if all(abs(v - e) > 0.07 * span for e in extra)]
+    near = 0.07 * current_style().font_scale  # larger type needs more room
+    kept = [v for v in ticks if all(abs(v - e) > near * span for e in extra)]
     if ax.get_xscale() == "symlog":
         kept = [v for v in ticks if all(abs(v - e) > 0.25 * abs(e) or v == 0 for e in extra)]
     ax.set_xticks(sorted({*kept, *extra}))
@@ -718,9 +741,9 @@ def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
             color=colors[name],
             alpha=0.85,
             edgecolor="k",
-            lw=0.5,
+            lw=line(0.5),
             xerr=errs,
-            error_kw={"capsize": 2, "lw": 0.8},
+            error_kw={"capsize": mark(2), "lw": line(0.8)},
         )
         for bar, h in zip(bars, hatches, strict=True):
             bar.set_hatch(h)
@@ -732,13 +755,13 @@ def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
                 xytext=(4 if v >= 0 else -4, 0),
                 ha="left" if v >= 0 else "right",
                 va="center",
-                fontsize=6.5,
+                fontsize=font(6.5),
             )
     t = b.target_mha
-    ax.axvline(t, color=TARGET_COLOUR, ls="--", lw=1.2)
+    ax.axvline(t, color=TARGET_COLOUR, ls="--", lw=line(1.2))
     if any(r.errors_mha[k] < 0 for r in order for k in range(n)):
-        ax.axvline(-t, color=TARGET_COLOUR, ls="--", lw=1.2)
-    ax.axvline(0.0, color="k", lw=0.6)
+        ax.axvline(-t, color=TARGET_COLOUR, ls="--", lw=line(1.2))
+    ax.axvline(0.0, color="k", lw=line(0.6))
     values = [abs(v) for r in order for v in r.errors_mha]
     symlog = bool(values) and max(values) > 30 * t
     if symlog:
@@ -750,8 +773,8 @@ def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
     # room for the value labels beyond the bars
     ax.set_xlim(lo_x * (3.0 if symlog else 1.25), hi_x * (3.0 if symlog else 1.15))
     for sep in (0.5, 0.5 + len([r for r in order if r.kind == "alone"])):
-        ax.axhline(sep, color="0.6", lw=0.6)
-    ax.set_yticks(range(len(order)), [budget_label(r) for r in order], fontsize=8)
+        ax.axhline(sep, color="0.6", lw=line(0.6))
+    ax.set_yticks(range(len(order)), [budget_label(r) for r in order], fontsize=font(8))
     _ticks_with_target(ax, t, any(r.errors_mha[k] < 0 for r in order for k in range(n)))
     ax.invert_yaxis()
     ax.set_xlabel(
@@ -765,10 +788,10 @@ def budget_figure(budget_result: BudgetResult, ax: Any = None) -> Figure:
     )
     handles.append(Line2D([], [], color=TARGET_COLOUR, ls="--", label=target_words(t)))
     if own:
-        fig.legend(handles=handles, fontsize=7, loc="outside right upper", framealpha=0.9)
+        fig.legend(handles=handles, fontsize=font(7), loc="outside right upper", framealpha=0.9)
     else:
-        ax.legend(handles=handles, fontsize=7, framealpha=0.9)
-    _decorate(fig, ax, budget_title(b), b.study_name, b.device_name)
+        ax.legend(handles=handles, fontsize=font(7), framealpha=0.9)
+    _decorate(fig, ax, budget_title(b), b.study_name, b.device_name, room=0.45 if own else 1.0)
     return fig
 
 
@@ -793,15 +816,15 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
         ax.scatter(
             [i + o for o in offsets],
             biases,
-            s=10,
+            s=mark(10**0.5) ** 2,  # an area in points^2
             color=OKABE_ITO["blue"],
             alpha=0.55,
             lw=0,
             zorder=3,
         )
-        ax.vlines(i, d.bias_mha_p05, d.bias_mha_p95, color="k", lw=2.2, zorder=4)
+        ax.vlines(i, d.bias_mha_p05, d.bias_mha_p95, color="k", lw=line(2.2), zorder=4)
         nominal = float(r.recipes[name].bias_exact_mha)
-        ax.plot([i], [nominal], marker="D", color="k", ms=5, zorder=5)
+        ax.plot([i], [nominal], marker="D", color="k", ms=mark(5), zorder=5)
         top = max(max(biases), nominal, target)
         ax.annotate(
             f"reaches {d.reaching}/{d.draws}",
@@ -809,7 +832,7 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
             textcoords="offset points",
             xytext=(0, 5),
             ha="center",
-            fontsize=7,
+            fontsize=font(7),
         )
     if _wide_range(everything):
         ax.set_yscale("symlog", linthresh=target)
@@ -825,10 +848,10 @@ def plot_drift(assess_result: Any, path: str | Path) -> Path:
         Line2D(
             [], [], ls="", marker="o", color=OKABE_ITO["blue"], alpha=0.55, label="one drawn day"
         ),
-        Line2D([], [], color="k", lw=2.2, label="5th-95th percentile"),
+        Line2D([], [], color="k", lw=line(2.2), label="5th-95th percentile"),
         Line2D([], [], ls="", marker="D", color="k", label="nominal device"),
     ]
-    ax.legend(handles=handles, fontsize=7, loc="best", framealpha=0.9)
+    ax.legend(handles=handles, fontsize=font(7), loc="best", framealpha=0.9)
     study, device = r.context.study, r.context.device
     title = (
         f"Bias over {draws} drawn device days; reaches: P(within target) >= "

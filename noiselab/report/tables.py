@@ -167,6 +167,13 @@ def sweep_table(result: Any, plain: bool = False) -> Any:
         f"{result.study_name} on {result.device_name}: sweep of {knob.phrase} "
         f"(* does not reach ±{result.target_mha:.3g} mHa at the budget: P < {conf:g})"
     )
+    mode = getattr(result, "coherence_gate_errors", None)
+    if mode is not None:
+        title += (
+            "; gate errors follow T1/T2 (their relaxation part)"
+            if mode == "follow"
+            else "; quoted gate errors held fixed"
+        )
     return _table(title, headers, rows, plain)
 
 

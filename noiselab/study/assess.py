@@ -15,7 +15,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.common.shipped import shipped_path
 from noiselab.mitigate.recipe import parse_recipe, run_recipe
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
@@ -37,6 +37,7 @@ from noiselab.study.job import (
     job_fields,
     load_job_result,
     override_key_options,
+    own_executor,
     save_job_result,
     start_job,
 )
@@ -109,6 +110,9 @@ def assess(
     method: str | None = None,
     trajectories: int | None = None,
     drift: int | None = None,
+    workers: int | None = None,
+    cluster: Any = None,
+    executor: Any = None,
 ) -> AssessResult:
     """Run every recipe of the study at its budget and name the best.
 
@@ -119,9 +123,11 @@ def assess(
     study given as a path; False recomputes, still reading simulations from the cache).
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     ``drift``: also run every recipe on this many drawn device days (noiselab.study.drift).
+    ``workers`` / ``cluster`` / ``executor`` (noiselab.study.executor): under
+    ``pauli_propagation`` every measured group is one task on them; other methods refuse them.
     """
     if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
-        raise InputError(f"--drift: {drift} draws; allowed: 0 to {MAX_DRAWS}")
+        raise InputError(f"{arg('drift')}: {drift} draws; allowed: 0 to {MAX_DRAWS}")
     drift = int(drift) if drift else 0
     # every input is read (bounded) and validated before the cache key reads the files again
     job = start_job(
@@ -134,6 +140,12 @@ def assess(
         pauli_ok=True,
     )
     study, store, t0 = job.study, job.store, job.t0
+    parallel = (workers or 1) > 1 or cluster is not None or executor is not None
+    if parallel and study.emulation.method != PAULI_METHOD:  # refused before any work
+        raise InputError(
+            f"{arg('workers')}/{arg('cluster')}: assess spreads work only with emulation.method "
+            f"{PAULI_METHOD}; allowed here: leave them out (method {study.emulation.method})"
+        )
     key = None
     if reuse and store.enabled and context is None and not isinstance(study_or_path, Study):
         options = override_key_options(study, seed, shots, method, trajectories)
@@ -148,7 +160,8 @@ def assess(
     else:  # measures the verification bases exactly when a recipe verifies
         ctx = build_context(study, cache=store, progress=progress)
     if ctx.emulation_method == PAULI_METHOD:
-        result = _assess_pauli(study, ctx, drift, t0)
+        with own_executor(workers, cluster, executor) as ex:
+            result = _assess_pauli(study, ctx, drift, t0, ex)
         save_job_result(store, key, result)
         return result
     check_recipes(ctx, study.recipes)
@@ -191,13 +204,15 @@ def assess(
     return result
 
 
-def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> AssessResult:
+def _assess_pauli(
+    study: Study, ctx: StudyContext, drift: int, t0: float, executor: Any = None
+) -> AssessResult:
     """assess under ``emulation.method: pauli_propagation`` (noiselab.study.pauli_assess)."""
     if drift:
-        raise InputError(f"--drift: not available with {PAULI_METHOD}; allowed: 0")
+        raise InputError(f"{arg('drift')}: not available with {PAULI_METHOD}; allowed: 0")
     with naming_source(study.source):
         t = time.perf_counter()
-        results = pauli_recipes(ctx)
+        results = pauli_recipes(ctx, executor)
         seconds = time.perf_counter() - t
     best = best_of(results)
     overhead_s = circuit_overhead_s(study)
@@ -210,7 +225,17 @@ def _assess_pauli(study: Study, ctx: StudyContext, drift: int, t0: float) -> Ass
     bounds = ", ".join(
         f"{name} {r.details['truncation_bound_mha']:.3g} mHa" for name, r in results.items()
     )
-    notice = f"{PAULI_NOTICE}; truncation bound: {bounds}"
+    notice = f"{PAULI_NOTICE}; truncation bound (rigorous): {bounds}"
+    if all("truncation_estimate_mha" in r.details for r in results.values()):
+        estimates = ", ".join(
+            f"{name} {r.details['truncation_estimate_mha']:+.3g} "
+            f"± {r.details['truncation_estimate_std_mha']:.2g} mHa"
+            for name, r in results.items()
+        )
+        notice += (
+            f"; truncation error estimate (seeded Monte Carlo, not a bound; energies not "
+            f"corrected, the verdict takes the worse reading): {estimates}"
+        )
     if any("calibration_note" in r.details for r in results.values()):
         notice += (
             "; the readout recipes' std leaves out the finite calibration's variance "

@@ -13,6 +13,7 @@ import dataclasses
 from collections.abc import Callable
 from typing import Any
 
+from noiselab.common.errors import arg
 from noiselab.device.channel_registry import CHANNELS
 from noiselab.device.profile import scale_profile
 from noiselab.study.context import build_context
@@ -190,7 +191,7 @@ def budget(
     job = start_job(
         study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
     )
-    picked = chosen_recipes(job.study, [] if recipe is None else [recipe])
+    picked = chosen_recipes(job.study, [] if recipe is None else [recipe], where=arg("recipe"))
     with own_executor(workers, cluster, executor) as ex:
         return _budget_with(job.study, picked, job.store, ex, progress, context, job.t0)
 

@@ -29,11 +29,12 @@ from typing import Any
 import numpy as np
 import platformdirs
 
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.common.reading import read_input_bytes
 from noiselab.common.yamlio import parse_yaml_mapping
-from noiselab.emulate.engine import BasisDistributions
-from noiselab.mitigate.experiment import make_runner, variant_key_material
+from noiselab.emulate.engine import BasisDistributions, with_readout
+from noiselab.mitigate.experiment import make_runner, variant_inputs, variant_key_material
+from noiselab.mitigate.variants import CircuitVariant
 from noiselab.study.spec import device_profile_path
 
 CACHE_FILE_NAME = "results-v1.sqlite"
@@ -195,15 +196,16 @@ class ResultsCache:
     def _prepare(self) -> None:
         assert self.path is not None
         if self.path.exists() and self.path.is_dir():
-            raise InputError(f"{self.path}: --cache: is a folder; allowed: a cache file path")
+            where = f"{self.path}: {arg('cache')}"
+            raise InputError(f"{where}: is a folder; allowed: a cache file path")
         try:
             self.path.parent.mkdir(parents=True, exist_ok=True)
             with self._connection() as conn:
                 conn.execute(_SCHEMA)
         except (OSError, sqlite3.DatabaseError) as exc:
             raise InputError(
-                f"{self.path}: --cache: cannot open the results cache ({exc}); "
-                "allowed: a writable SQLite file path, or --no-cache"
+                f"{self.path}: {arg('cache')}: cannot open the results cache ({exc}); "
+                "allowed: a writable SQLite file path, or no cache"
             ) from None
 
     @contextlib.contextmanager
@@ -329,6 +331,15 @@ def _simulate(item: tuple[Any, Any]) -> Any:
     return make_runner(experiment)(variant)
 
 
+def _state_variant(variant: Any) -> Any:
+    """``variant`` without its readout-only transforms (``CircuitTransform.readout_only``), or
+    None when it has none: both need the same state simulation."""
+    transforms = getattr(variant, "transforms", ())
+    if not any(getattr(t, "readout_only", False) for t in transforms):
+        return None
+    return CircuitVariant(tuple(t for t in transforms if not t.readout_only))
+
+
 class CachingRunner:
     """``runner(variant) -> BasisDistributions``, shared by every recipe of a job.
 
@@ -381,6 +392,18 @@ class CachingRunner:
         self.cache.put(SIMULATION_KIND, self.key(variant), pack_record(value), seconds)
 
     def __call__(self, variant: Any) -> Any:
+        shared = _state_variant(variant)
+        if shared is not None:  # readout-only transforms: the state simulation is shared
+            with self._lock:
+                self.requested.add(variant)
+                if variant in self._memory:
+                    return self._memory[variant]
+            base = self(shared)
+            if base.is_exact:
+                compiled, profile, _ = variant_inputs(self.experiment, variant)
+                with self._lock:
+                    self._memory[variant] = with_readout(base, compiled, profile)
+                    return self._memory[variant]
         with self._lock:
             self.requested.add(variant)
             value = self._lookup(variant)
@@ -398,7 +421,8 @@ class CachingRunner:
             todo = []
             for v in dict.fromkeys(variants):
                 self.requested.add(v)
-                if self._lookup(v) is None:
+                v = _state_variant(v) or v  # readout-only: simulate the state once
+                if v not in todo and self._lookup(v) is None:
                     todo.append(v)
         if not todo:
             return 0

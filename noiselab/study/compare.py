@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.common.errors import InputError, input_error
+from noiselab.common.errors import InputError, arg, input_error
 from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.wording import CAUTION, target_words
 from noiselab.mitigate.target import reaches_target
@@ -131,15 +131,15 @@ def resolve_device(value: str) -> Path:
     """A ``--devices`` entry: an existing profile file, or a shipped profile name."""
     text = str(value).strip()
     if not text:
-        raise input_error("--devices", "device", "empty entry", "a profile path or shipped name")
+        raise input_error(arg("devices"), "device", "empty entry", "a profile path or shipped name")
     p = Path(text).expanduser()
     if p.is_file():
         return p.resolve()
     if not p.exists() and looks_like_name(text):
-        return shipped_path("devices", text, "--devices", "device")
+        return shipped_path("devices", text, arg("devices"), "device")
     what = "is a folder" if p.is_dir() else "no such file"
     raise input_error(
-        "--devices",
+        arg("devices"),
         text,
         f"device profile not found ({what})",
         "a profile YAML path or a shipped profile name (noiselab shipped)",
@@ -247,7 +247,7 @@ def compare(
     device is checked (found, enough qubits) before any computation.
     """
     if not devices:
-        raise input_error("--devices", "devices", "no device given", "one or more profiles")
+        raise input_error(None, arg("devices"), "no device given", "one or more profiles")
     job = start_job(
         study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
     )

@@ -7,6 +7,7 @@ Below :mod:`noiselab.study.spec` (which checks a study file's ``tune:`` section 
 from __future__ import annotations
 
 import dataclasses
+import itertools
 from typing import Any
 
 from noiselab.common.errors import InputError
@@ -15,25 +16,31 @@ from noiselab.mitigate.passes.postselect import PostselectOptions
 from noiselab.mitigate.passes.readout import ReadoutOptions
 
 NONE = "none"
-#: The amplification axis also offers Clifford data regression (default options) in place of
+#: The amplifier axis also offers Clifford data regression (default options) in place of
 #: an extrapolation: the other combination of the grid, with no scale set or fit of its own.
 REGRESSION = "clifford_regression"
 DEFAULT_READOUT = (NONE, "per_qubit_inverse", "full_inverse", "nearest_probability")
 DEFAULT_POSTSELECT = (NONE, "discard", "verify")
-DEFAULT_AMPLIFICATION = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
+DEFAULT_AMPLIFIER = (NONE, "stretch", "whole_circuit", "two_qubit_gates", REGRESSION)
 DEFAULT_SCALES: tuple[tuple[float, ...], ...] = ((1.0, 2.0, 3.0), (1.0, 3.0, 5.0))
 DEFAULT_FIT = ("linear", "richardson")
 #: Mitigation families besides the stack above: none, or one whole-circuit method.
 FAMILIES = (NONE, "error_cancellation", "distillation")
 DEFAULT_FAMILY = FAMILIES
+#: Suppression passes (circuit transforms, first in a recipe); an axis value is "none" or their
+#: names joined by "+" in this order ("twirl+decouple").
+SUPPRESSION_PASSES = ("twirl", "decouple", "measure_twirl")
+#: measure_twirl only where readout correction is on (see ``noiselab.study.tune``)
+DEFAULT_SUPPRESS = (NONE, "twirl", "decouple", "twirl+decouple", "measure_twirl")
 #: The built-in default of every axis, in the grid's axis order.
 DEFAULT_AXES: dict[str, tuple[Any, ...]] = {
     "readout": DEFAULT_READOUT,
     "postselect": DEFAULT_POSTSELECT,
-    "amplification": DEFAULT_AMPLIFICATION,
+    "amplifier": DEFAULT_AMPLIFIER,
     "scales": DEFAULT_SCALES,
     "fit": DEFAULT_FIT,
     "family": DEFAULT_FAMILY,
+    "suppress": DEFAULT_SUPPRESS,
 }
 
 
@@ -43,10 +50,11 @@ class Grid:
 
     readout: tuple[str, ...]
     postselect: tuple[str, ...]
-    amplification: tuple[str, ...]
+    amplifier: tuple[str, ...]
     scales: tuple[tuple[float, ...], ...]
     fit: tuple[str, ...]
     family: tuple[str, ...] = (NONE,)
+    suppress: tuple[str, ...] = (NONE,)
 
 
 def check_tune_section(section: Any, source: str) -> None:
@@ -59,10 +67,11 @@ def check_tune_section(section: Any, source: str) -> None:
     grid = Grid(
         readout=tuple(values["readout"]),
         postselect=tuple(values["postselect"]),
-        amplification=tuple(values["amplification"]),
+        amplifier=tuple(values["amplifier"]),
         scales=tuple(tuple(float(x) for x in sc) for sc in values["scales"]),
         fit=tuple(values["fit"]),
         family=tuple(values["family"]),
+        suppress=tuple(values["suppress"]),
     )
     check_axes(grid, {a: f"{source}: tune.{a}" for a in defaults})
 
@@ -76,10 +85,22 @@ def axis_values() -> dict[str, tuple[str, ...]]:
     return {
         "readout": (NONE, *allowed(ReadoutOptions, "method")),
         "postselect": (NONE, *allowed(PostselectOptions, "mode")),
-        "amplification": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
+        "amplifier": (NONE, *allowed(ExtrapolateOptions, "amplifier"), REGRESSION),
         "fit": tuple(f for f in allowed(ExtrapolateOptions, "fit") if f != "polynomial"),
         "family": FAMILIES,
+        "suppress": suppression_values(),
     }
+
+
+def suppression_values() -> tuple[str, ...]:
+    """Every value of the suppress axis: none, or a non-empty subset of the suppression passes
+    joined by "+" in :data:`SUPPRESSION_PASSES` order (smaller subsets first)."""
+    subsets = (
+        "+".join(c)
+        for k in range(1, len(SUPPRESSION_PASSES) + 1)
+        for c in itertools.combinations(SUPPRESSION_PASSES, k)
+    )
+    return (NONE, *subsets)
 
 
 def check_axes(grid: Grid, origin: dict[str, str]) -> None:

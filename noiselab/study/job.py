@@ -15,7 +15,7 @@ from collections.abc import Iterator
 from pathlib import Path
 from typing import Any
 
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.study.cache import JOB_KIND, ResultsCache, open_cache
 from noiselab.study.context import StudyContext
@@ -59,7 +59,7 @@ def refuse_pauli_method(study: Study) -> None:
     if study.emulation.method == "pauli_propagation":
         raise InputError(
             f"{study.source}: emulation.method: pauli_propagation serves assess only; allowed "
-            "for this job: auto, density_matrix, trajectory (--method)"
+            f"for this job: auto, density_matrix, trajectory ({arg('method')})"
         )
 
 

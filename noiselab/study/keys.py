@@ -120,17 +120,20 @@ MEANINGS: dict[str, str] = {
     # tune
     "tune.readout": "readout-correction methods to try (none: no correction)",
     "tune.postselect": "postselection modes to try (none: no postselection)",
-    "tune.amplification": "amplifiers to try (none: no extrapolation; clifford_regression: "
+    "tune.amplifier": "amplifiers to try (none: no extrapolation; clifford_regression: "
     "Clifford data regression in place of an extrapolation)",
-    "tune.scales": "noise-scale sets to try, each a list of at least two factors",
+    "tune.scales": "noise scale sets to try, each a list of at least two factors",
     "tune.fit": "extrapolation fits to try",
     # sweep
-    "sweep.vary": "the knob to vary",
+    "sweep.knob": "the knob to vary",
     "sweep.start": "first value, in the knob's base units",
     "sweep.stop": "last value, in the knob's base units",
     "sweep.points": "number of values",
     "sweep.log": "space the values logarithmically",
     "sweep.recipes": "recipes to follow (names under recipes)",
+    "sweep.coherence_gate_errors": "coherence_us knob only: follow (the relaxation part of "
+    "each quoted gate error moves with T1/T2, the rest is held) or fixed (quoted gate errors "
+    "kept); default follow",
     # scan
     "scan.bond": "the two atoms (0-based) whose bond is stretched",
     "scan.scale": "scale the whole geometry instead of one bond",
@@ -147,6 +150,10 @@ MEANINGS: dict[str, str] = {
     "emulation.truncation.min_abs_coeff": "drop Pauli strings whose |coefficient| (Ha) falls "
     "below this",
     "emulation.truncation.max_weight": "drop strings acting on more qubits (null: no weight cut)",
+    "emulation.truncation.estimate": "also estimate the truncation error with its standard "
+    "error (check run and seeded Monte Carlo)",
+    "emulation.truncation.check_factor": "threshold of the estimate's check run, as a fraction "
+    "of min_abs_coeff",
     "emulation.batches": "batches the trajectories are split into (their spread is the "
     "trajectory error bar)",
     "emulation.max_density_matrix_qubits": "widest circuit emulated as a density matrix "
@@ -209,6 +216,8 @@ MEANINGS: dict[str, str] = {
     "circuits",
     "tune.family": "mitigation families to try beside the readout/postselect/extrapolate stack "
     "(none: the stack alone)",
+    "tune.suppress": "suppression before mitigation to try: none, or suppression passes joined "
+    "by + (measure_twirl only with readout correction; the families run without suppression)",
     "rehearse.grid": "the settings noiselab rehearse --grid tries (every combination)",
     "rehearse.grid.shots_per_evaluation": "shots per evaluation to try",
     "rehearse.grid.optimizer": "optimizers to try",
@@ -248,9 +257,19 @@ MEANINGS: dict[str, str] = {
     "shot, Gaussian between shots)",
     "twirled_two_qubit_gates": "set by the twirl pass, not by hand: two-qubit gate errors "
     "replaced by their Pauli-twirled part",
+    "zz_during_own_gate": "whether a pair's always-on ZZ also acts during its own two-qubit "
+    "gate: in_calibration (no, the default: the gate's conditional phase was calibrated with the "
+    "static ZZ present, as on a chip) or extra (yes, on top of the calibrated gate)",
     "readout_crosstalk": "correlated readout errors of linked pairs",
     "readout_crosstalk[i].pair": "the linked pair [a, b]",
     "readout_crosstalk[i].joint_flip": "probability that both bits flip together",
+    "readout_crosstalk[i].flip_a_if_b_reads_1": "probability that a's reported bit flips when "
+    "b reads 1 (b's reported bit after its own assignment error: b's readout signal is the "
+    "disturbance); outcome-dependent, so the readout map is no tensor product",
+    "readout_crosstalk[i].flip_b_if_a_reads_1": "probability that b's reported bit flips when "
+    "a reads 1",
+    "untwirled_readout_flips": "set by the measure_twirl pass, not by hand: [qubit, P(1|0), "
+    "P(0|1)] before twirling, of the qubits with outcome-dependent readout flips",
     "drift": "relative day-to-day spreads of the device's values (noiselab assess --drift)",
     "drift.t1_rel_std": "relative standard deviation of T1",
     "drift.t2_rel_std": "relative standard deviation of T2",
@@ -284,7 +303,7 @@ ALLOWED: dict[str, str] = {
     "scan.recipes": "names of recipes under recipes",
     "rehearse.final_recipe": "a name of a recipe under recipes",
     "scan.bond": "two distinct atom indices (0-based) that share a bond",
-    "sweep.vary": ", ".join(KNOBS),
+    "sweep.knob": ", ".join(KNOBS),
     "tune.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct",
     **{f"tune.{axis}": ", ".join(values) for axis, values in axis_values().items()},
     "extrapolate.scales": f"factors from 1 to {MAX_SCALE_FACTOR:g}, distinct, at least 2",
@@ -306,6 +325,8 @@ UNITS: dict[str, str] = {
     "flip_0to1": "probability",
     "flip_1to0": "probability",
     "readout_crosstalk[i].joint_flip": "probability",
+    "readout_crosstalk[i].flip_a_if_b_reads_1": "probability",
+    "readout_crosstalk[i].flip_b_if_a_reads_1": "probability",
     "confidence": "probability",
     "extrapolate.scales": "factor",
     "tune.scales": "factor",

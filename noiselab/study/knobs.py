@@ -1,7 +1,7 @@
 """Sweep knobs: the device-noise quantities a sweep can vary, each with its units, its bounds
 and its own reference value (the device's value over the circuit's qubits or pairs).
 
-Below :mod:`noiselab.study.spec` (a study's ``sweep.vary`` names a knob) and
+Below :mod:`noiselab.study.spec` (a study's ``sweep.knob`` names a knob) and
 :mod:`noiselab.study.sweep` (which scales the device along one). A new device channel that a
 sweep should vary needs one entry in :data:`KNOBS`: its channels, bounds and reference.
 """
@@ -13,7 +13,7 @@ import math
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, closest_key, input_error, quote
 from noiselab.device.profile import (
     MAX_COHERENCE_US,
     MAX_READOUT_ERROR,
@@ -73,16 +73,17 @@ class Knob:
         so lowering the knob further changes nothing)."""
         return False if self.floor_of is None else self.floor_of(profile, patch)
 
-    def check(self, value: float, option: str, log: bool = False) -> float:
-        """``value`` (base units) if the knob allows it, else InputError naming ``option``."""
+    def check(self, value: float, argument: str, log: bool = False) -> float:
+        """``value`` (base units) if the knob allows it, else InputError naming ``argument``
+        (the sweep's ``start``, ``stop`` or ``values``)."""
         v = float(value)
         if not math.isfinite(v):
-            raise input_error("sweep", option, f"{value} is not a finite number")
+            raise input_error("sweep", arg(argument), f"{value} is not a finite number")
         strict = not self.allow_zero or log
         if v < 0 or (v == 0 and strict):
             raise input_error(
                 "sweep",
-                option,
+                arg(argument),
                 f"{value} is out of range for {self.name}",
                 "> 0" if strict else ">= 0",
             )
@@ -90,7 +91,7 @@ class Knob:
         if (self.upper is not None and v > self.upper) or (v > 0 and v < low):
             raise input_error(
                 "sweep",
-                option,
+                arg(argument),
                 f"{value} is out of range for {self.name}",
                 f"{low:g}..{self.upper:g} ({self.reason})",
             )
@@ -103,12 +104,13 @@ class Knob:
         the physical maximum, zero coherence time, zero ends with ``log``) and for fewer than 2
         points.
         """
-        start = self.check(start, "--from", log)
-        stop = self.check(stop, "--to", log)
+        start = self.check(start, "start", log)
+        stop = self.check(stop, "stop", log)
         if start == stop:
-            raise input_error("sweep", "--from/--to", "the range is empty", "two different values")
+            where = f"{arg('start')}/{arg('stop')}"
+            raise input_error("sweep", where, "the range is empty", "two different values")
         if points < 2:
-            raise input_error("sweep", "--points", f"{points} points", "2 or more")
+            raise input_error("sweep", arg("points"), f"{points} points", "2 or more")
         if log:
             a, b = math.log10(start), math.log10(stop)
             inner = [10 ** (a + (b - a) * i / (points - 1)) for i in range(1, points - 1)]
@@ -124,7 +126,7 @@ class Knob:
         if reference <= 0:
             raise input_error(
                 "sweep",
-                "--vary",
+                arg("knob"),
                 f"the device has no {self.phrase.removeprefix('the ')} to scale (reference "
                 "value 0)",
                 "a knob whose channel is present in the profile",
@@ -193,8 +195,8 @@ def _one_qubit_floor(profile: Any, patch: Patch) -> bool:
 
 
 KNOBS: dict[str, Knob] = {
-    "noise-scale": Knob(
-        name="noise-scale",
+    "noise_scale": Knob(
+        name="noise_scale",
         phrase="the noise scale factor",
         axis_label="noise scale factor (1 = device as profiled)",
         unit="",
@@ -202,8 +204,8 @@ KNOBS: dict[str, Knob] = {
         upper=MAX_NOISE_SCALE,
         reason="beyond, every circuit is close to fully depolarized",
     ),
-    "two-qubit-error": Knob(
-        name="two-qubit-error",
+    "two_qubit_error": Knob(
+        name="two_qubit_error",
         phrase="the two-qubit gate error",
         axis_label="two-qubit gate error (%)",
         unit="%",
@@ -213,8 +215,8 @@ KNOBS: dict[str, Knob] = {
         reference_of=_two_qubit_error,
         floor_of=_two_qubit_floor,
     ),
-    "one-qubit-error": Knob(
-        name="one-qubit-error",
+    "single_qubit_error": Knob(
+        name="single_qubit_error",
         phrase="the single-qubit gate error",
         axis_label="single-qubit gate error (%)",
         unit="%",
@@ -224,8 +226,8 @@ KNOBS: dict[str, Knob] = {
         reference_of=_one_qubit_error,
         floor_of=_one_qubit_floor,
     ),
-    "coherence-us": Knob(
-        name="coherence-us",
+    "coherence_us": Knob(
+        name="coherence_us",
         phrase="T1 (with T2 scaled alongside)",
         axis_label="T1 (us), T2 scaled with it",
         unit="us",
@@ -237,8 +239,8 @@ KNOBS: dict[str, Knob] = {
         reason="T1 from 1 ns to 1000 s; outside, a unit typo",
         reference_of=_t1_us,
     ),
-    "readout-error": Knob(
-        name="readout-error",
+    "readout_error": Knob(
+        name="readout_error",
         phrase="the readout assignment error",
         axis_label="readout assignment error (%)",
         unit="%",
@@ -248,12 +250,28 @@ KNOBS: dict[str, Knob] = {
         reference_of=_readout_error,
     ),
 }
-KNOB_ALIASES = {"scale": "noise-scale"}
+#: Names knobs had before they were spelt like the channels (underscores): each is refused with
+#: its present name as the suggestion.
+FORMER_KNOB_NAMES = {
+    "noise-scale": "noise_scale",
+    "scale": "noise_scale",
+    "two-qubit-error": "two_qubit_error",
+    "one-qubit-error": "single_qubit_error",
+    "one_qubit_error": "single_qubit_error",
+    "coherence-us": "coherence_us",
+    "readout-error": "readout_error",
+}
+
+
+def unknown_knob(name: str) -> str:
+    """"unknown knob 'x' (did you mean `y`?)" for a name that is no knob."""
+    near = FORMER_KNOB_NAMES.get(name) or closest_key(name.replace("-", "_"), list(KNOBS))
+    hint = f" (did you mean `{near}`?)" if near else ""
+    return f"unknown knob {quote(name)}{hint}"
 
 
 def get_knob(name: str) -> Knob:
     """The knob called ``name``; InputError naming the allowed ones otherwise."""
-    key = KNOB_ALIASES.get(name, name)
-    if key not in KNOBS:
-        raise input_error("sweep", "--vary", f"unknown knob {name!r}", ", ".join(KNOBS))
-    return KNOBS[key]
+    if name not in KNOBS:
+        raise input_error("sweep", arg("knob"), unknown_knob(name), ", ".join(KNOBS))
+    return KNOBS[name]

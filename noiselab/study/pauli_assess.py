@@ -9,6 +9,15 @@ calibration assigns each outcome of logical qubit l the value ``A_l^-T (1, -1)``
 single-qubit observable), with ``A_l`` the exact per-qubit matrix of the all-0 / all-1
 calibration circuits; the finite calibration's extra variance is left out and the recipe's
 details say so. Recipes that need distributions (other passes) are refused in one line.
+
+Truncation (``emulation.truncation``): beside the rigorous bound (sum of the dropped |c|, loose
+by orders of magnitude), ``estimate: true`` reports an estimate of the truncation error with its
+standard error (noiselab.emulate.pauli_truncation; seeded by the study's seed). The energy and
+bias are **not** corrected by it: a bias is an expectation without random draws, and the
+correction's Monte Carlo part is one. The verdict does not ignore it either: P(within target) is
+the lower of the values at the bias and at the bias plus the estimate, with the estimate's
+variance as a fixed (shot-independent) variance ("truncation"), so it is never the more
+optimistic reading. With an ``executor`` (``workers`` / ``cluster``) every group is one task.
 """
 
 from __future__ import annotations
@@ -24,6 +33,7 @@ from noiselab.emulate.calibration import per_qubit_assignment
 from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, noise_model_for
 from noiselab.emulate.pauli_circuit import PauliEnergy, pauli_energy
 from noiselab.emulate.pauli_propagation import Truncation
+from noiselab.emulate.pauli_truncation import Sampling
 from noiselab.mitigate.plan import allocate_shots
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.result import RecipeResult
@@ -34,6 +44,11 @@ ALLOWED = "no passes ([]) or one {pass: readout, method: per_qubit_inverse}"
 NOTICE = (
     "pauli_propagation: gate and idle noise are Pauli-twirled (exact for twirled runs, an "
     "approximation otherwise) and readout crosstalk is left out"
+)
+TRUNCATION_NOTE = (
+    "energy and bias are the truncated propagation's (not corrected); the truncation estimate "
+    "is a seeded Monte Carlo estimate, not a bound; the verdict takes the worse of the bias with "
+    "and without it, with its variance as a fixed variance"
 )
 CALIBRATION_NOTE = (
     "exact calibration matrices: the finite calibration's extra variance is left out of std_mha"
@@ -64,9 +79,11 @@ def _groups(plan: Any) -> list[tuple[str, list[tuple[str, float]]]]:
     return [(g.basis, list(zip(g.labels, np.real(g.coeffs), strict=True))) for g in plan.groups]
 
 
-def pauli_recipes(ctx: Any) -> dict[str, RecipeResult]:
-    """RecipeResult per recipe (truncation bound in ``details["truncation_bound_mha"]``) of a
-    study context whose emulation method is ``pauli_propagation``."""
+def pauli_recipes(ctx: Any, executor: Any = None) -> dict[str, RecipeResult]:
+    """RecipeResult per recipe (truncation bound in ``details["truncation_bound_mha"]``, the
+    estimate in ``truncation_estimate_mha`` +- ``truncation_estimate_std_mha``) of a study
+    context whose emulation method is ``pauli_propagation``; ``executor``: runs the groups as
+    tasks (noiselab.study.executor; None: in-process)."""
     study, exp = ctx.study, ctx.experiment
     kinds = recipe_kinds(str(study.source), study.recipes)
     compiled, profile = ctx.compiled, study.profile
@@ -76,6 +93,10 @@ def pauli_recipes(ctx: Any) -> dict[str, RecipeResult]:
     layer = layer_spec_for(profile, compiled.circuit.num_qubits)
     t = study.emulation.truncation
     rule = Truncation(min_abs_coeff=float(t.min_abs_coeff), max_weight=t.max_weight)
+    sampling = None
+    if getattr(t, "estimate", False):
+        seed = int(getattr(study, "seed", 0) or 0)
+        sampling = Sampling(seed=seed, finer=float(t.check_factor), tag_step=2)
     groups = _groups(ctx.plan)
     memo: dict[bool, PauliEnergy] = {}
     out: dict[str, RecipeResult] = {}
@@ -96,6 +117,8 @@ def pauli_recipes(ctx: Any) -> dict[str, RecipeResult]:
                 rule,
                 constant_ha=float(ctx.plan.constant),
                 outcome_values=values,
+                sampling=sampling,
+                executor=executor,
             )
         out[name] = _score(name, study.recipes[name], memo[corrected], exp, ctx.plan, readout)
     return out
@@ -114,16 +137,34 @@ def _score(
     var_ha2 = float(np.sum(sigmas**2 / shots))
     std_mha = 1e3 * math.sqrt(var_ha2)
     bias = 1e3 * (got.energy_ha - float(exp.exact_energy_ha))
-    verdict = assess_target(
-        bias, std_mha**2 * int(exp.shots), 0.0, int(exp.shots), exp.target_mha, exp.confidence
-    )
-    cal_shots = 0
+    budget = int(exp.shots)
     details: dict[str, Any] = {
         "emulation_method": METHOD,
         "truncation_bound_mha": 1e3 * got.truncation_bound_ha,
         "peak_strings": int(got.peak_strings),
+        "propagation_tasks": int(got.tasks),
         "notice": NOTICE,
     }
+    fixed = 0.0
+    readings = [bias]
+    if got.truncation_estimate_ha is not None:
+        est, est_std = 1e3 * got.truncation_estimate_ha, 1e3 * float(got.truncation_std_ha or 0.0)
+        details["truncation_estimate_mha"] = est
+        details["truncation_estimate_std_mha"] = est_std
+        details["truncation_estimate_residual_bound_mha"] = 1e3 * float(
+            got.estimate_residual_ha or 0.0
+        )
+        details["truncation_note"] = TRUNCATION_NOTE
+        fixed = est_std**2
+        readings.append(bias + est)
+    verdicts = [
+        assess_target(
+            b, std_mha**2 * budget, fixed, budget, exp.target_mha, exp.confidence, "truncation"
+        )
+        for b in readings
+    ]
+    verdict = min(verdicts, key=lambda v: v.p_within_target)
+    cal_shots = 0
     if readout is not None:
         per = readout.options.calibration_shots or 0
         cal_shots = 2 * int(per)

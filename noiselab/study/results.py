@@ -235,6 +235,13 @@ def verdict_line(
             f"{head}: the uncertainty of its learned noise model{learn} does not shrink with "
             "more shots."
         )
+    elif str(best.limited_by) == "twirl":
+        std = details.get("std_twirl_mha")
+        tw = f" ({float(std):.3g} mHa)" if std is not None else ""
+        text = (
+            f"{head}: the spread between its {details.get('twirl_instances', 'finite')} random "
+            f"twirls{tw} does not shrink with more shots; raise the twirl pass's draws."
+        )
     else:
         text = f"{head}: its bias keeps it out of reach at any shot count."
     return False, _with_amplification(text, best)
@@ -397,6 +404,8 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     out["trajectory_std_mha"] = None if traj is None else float(traj)
     if isinstance(details, Mapping) and "truncation_bound_mha" in details:  # pauli_propagation
         out["truncation_bound_mha"] = float(details["truncation_bound_mha"])
+        for k in ("truncation_estimate_mha", "truncation_estimate_std_mha"):
+            out[k] = float(details[k]) if k in details else None
     if passes is not None:
         out["passes"] = jsonable(list(passes))
     out["details"] = without_timings(jsonable(getattr(result, "details", {}) or {}))

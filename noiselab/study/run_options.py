@@ -4,8 +4,9 @@ Seed, shots, emulation method and trajectories (overrides of the study file), re
 executor (workers or a Dask cluster), progress display and output folder. Every count is a
 :data:`~noiselab.common.counts.Count` with the bounds of the study file's own field (read from
 :class:`~noiselab.study.spec.StudyFile`, so the two cannot drift apart); a refused value is
-named by its option (``--shots '1e20': ...``), exit code 2, before any work. ``--out`` is
-checked here too (not empty, not a file, no folder where a file of the job goes).
+named by its argument (the command line shows its option: ``--shots '1e20': ...``), exit code
+2, before any work. ``--out`` is checked here too (not empty, not a file, no folder where a file
+of the job goes).
 """
 
 from __future__ import annotations
@@ -19,7 +20,7 @@ from pydantic import BaseModel, ConfigDict, Field, ValidationError, model_valida
 
 from noiselab.common.atomic import check_output_dir, write_output_set
 from noiselab.common.counts import MAX_SHOTS, Count
-from noiselab.common.errors import InputError, from_validation_error, quote
+from noiselab.common.errors import InputError, arg, from_validation_error, quote
 from noiselab.study.cache import ResultsCache, open_cache
 from noiselab.study.executor import MAX_WORKERS
 from noiselab.study.spec import EMULATION_METHODS, EmulationSettings, StudyFile
@@ -43,19 +44,6 @@ COUNT_BOUNDS = {
     "workers": {"ge": 1, "le": MAX_WORKERS},
 }
 
-#: Command-line option of each field (a refused value is named by it).
-OPTION_NAMES = {
-    "seed": "--seed",
-    "shots": "--shots",
-    "method": "--method",
-    "trajectories": "--trajectories",
-    "cache": "--cache",
-    "use_cache": "--no-cache",
-    "workers": "--workers",
-    "cluster": "--cluster",
-    "quiet": "--quiet",
-    "out": "--out",
-}
 
 
 def _allowed(name: str) -> str:
@@ -69,14 +57,15 @@ def _allowed(name: str) -> str:
 
 
 def _one_line(exc: ValidationError, given: dict[str, Any]) -> InputError:
-    """The first refused option as one line: ``--shots '1e20': ...; allowed: ...``."""
+    """The first refused value as one line: ``shots '1e20': ...; allowed: ...`` (the command
+    line shows ``--shots``)."""
     first = exc.errors(include_url=False)[0]
     loc = first.get("loc") or ()
     if not loc:  # the model's own check
         text = str(first.get("msg", "")).removeprefix("Value error, ")
-        return InputError(f"--cache: {text}")
+        return InputError(f"{arg('cache')}: {text}")
     key = str(loc[0])
-    option = OPTION_NAMES.get(key, key)
+    option = arg(key)  # the command line shows its option
     value = quote(given.get(key))
     kind = str(first.get("type", ""))
     if key in ("seed", "shots", "trajectories", "workers", "method") and kind in (
@@ -113,7 +102,7 @@ class RunOptions(BaseModel):
     @model_validator(mode="after")
     def _check(self) -> RunOptions:
         if not self.use_cache and self.cache is not None:
-            raise ValueError("given together with --no-cache; allowed: one of them")
+            raise ValueError(f"given together with {arg('use_cache')}; allowed: one of them")
         return self
 
     @classmethod

@@ -61,7 +61,7 @@ from noiselab.chem.optimize import OptimizationResult, optimize_noiseless
 from noiselab.chem.stability import hf_stability
 from noiselab.common.atomic import write_text_atomic
 from noiselab.common.counts import Count, parse_count
-from noiselab.common.errors import from_validation_error, input_error
+from noiselab.common.errors import arg, from_validation_error, input_error
 from noiselab.common.wording import CAUTION
 from noiselab.emulate.memory import MEMORY_LIMIT_ENV
 from noiselab.mitigate.target import reaches_target
@@ -151,7 +151,7 @@ def moving_atoms(atoms: Sequence[Atom], i: int, j: int) -> tuple[int, ...]:
     if i in side:
         raise input_error(
             "scan",
-            "--bond",
+            arg("bond"),
             f"atoms {i} and {j} are in a ring",
             "a bond whose cut splits the molecule",
         )
@@ -200,20 +200,24 @@ def scan_axis(
     except ValidationError as exc:
         raise from_validation_error(exc, src, prefix="scan", model=ScanSection) from None
     if bond is not None and scale:
-        raise input_error("scan", "--bond/--scale", "both given", "one of --bond I J or --scale")
+        bond_or_scale = f"{arg('bond')} or {arg('scale')}"
+        raise input_error("scan", bond_or_scale, "both given", f"one of {bond_or_scale}")
     if bond is None and not scale:
         bond = section.bond
         scale = section.scale if bond is None else False
     if bond is None and not scale:
         raise input_error(
-            src, "scan", "no coordinate to vary", "--bond I J, --scale, or a scan: section"
+            src,
+            "scan",
+            "no coordinate to vary",
+            f"{arg('bond')}, {arg('scale')}, or a scan: section",
         )
     n_atoms = len(study.molecule.geometry)
     if bond is not None:
         pair = tuple(int(b) for b in bond)
         if len(pair) != 2 or pair[0] == pair[1] or not all(0 <= b < n_atoms for b in pair):
             raise input_error(
-                src, "--bond", f"{list(bond)}", f"two different atom indices 0..{n_atoms - 1}"
+                src, arg("bond"), f"{list(bond)}", f"two different atom indices 0..{n_atoms - 1}"
             )
     kind = "scale" if scale else "bond"
     atoms = study.molecule.geometry
@@ -225,9 +229,9 @@ def scan_axis(
     start = section.start if start is None else start
     stop = section.stop if stop is None else stop
     start, stop = (lo_d if start is None else float(start)), (hi_d if stop is None else float(stop))
-    points = section.points if points is None else parse_count(points, "--points", 2, MAX_POINTS)
-    refine = section.refine if refine is None else parse_count(refine, "--refine", 0, MAX_REFINE)
-    for key, v in (("--from", start), ("--to", stop)):
+    points = section.points if points is None else parse_count(points, arg("points"), 2, MAX_POINTS)
+    refine = section.refine if refine is None else parse_count(refine, arg("refine"), 0, MAX_REFINE)
+    for key, v in ((arg("start"), start), (arg("stop"), stop)):
         if not math.isfinite(v) or v <= 0:
             raise input_error(
                 "scan",
@@ -236,11 +240,16 @@ def scan_axis(
                 f"a positive {('distance in Angstrom' if kind == 'bond' else 'factor')}",
             )
     if stop <= start:
-        raise input_error("scan", "--to", f"{stop} <= --from {start}", "a value above --from")
+        raise input_error(
+            "scan",
+            arg("stop"),
+            f"{stop} <= {arg('start')} {start}",
+            f"a value above {arg('start')}",
+        )
     if not 2 <= points <= MAX_POINTS:
-        raise input_error("scan", "--points", f"{points}", f"2 to {MAX_POINTS}")
+        raise input_error("scan", arg("points"), f"{points}", f"2 to {MAX_POINTS}")
     if not 0 <= refine <= MAX_REFINE:
-        raise input_error("scan", "--refine", f"{refine}", f"0 to {MAX_REFINE}")
+        raise input_error("scan", arg("refine"), f"{refine}", f"0 to {MAX_REFINE}")
     return ScanAxis(kind, pair if kind == "bond" else None, start, stop, points, refine)
 
 
@@ -637,10 +646,12 @@ def scan(
     )
     study, store, t0 = job.study, job.store, job.t0
     axis = scan_axis(study, bond, scale, start, stop, points, refine)
+    where = arg("recipes")
     if recipes is None:
         section = study.raw.get("scan") if isinstance(study.raw, dict) else None
         recipes = (section or {}).get("recipes")
-    picked = chosen_recipes(study, recipes)
+        where = "scan.recipes"
+    picked = chosen_recipes(study, recipes, where=where)
     for v in (axis.start, axis.stop):  # refuse a bad geometry before any work
         study_at(study, axis, v)
     done: dict[float, ScanPoint] = {}

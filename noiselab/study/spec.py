@@ -39,6 +39,7 @@ from noiselab.chem.sources import fcidump_source, read_xyz, source_qubit_count
 from noiselab.common.counts import MAX_SEED, MAX_SHOTS, Count, whole_number
 from noiselab.common.errors import (
     InputError,
+    arg,
     did_you_mean,
     from_validation_error,
     input_error,
@@ -52,7 +53,7 @@ from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
 from noiselab.study.grid import check_tune_section
-from noiselab.study.knobs import KNOB_ALIASES, KNOBS
+from noiselab.study.knobs import KNOBS, unknown_knob
 from noiselab.study.preflight import check_sizes
 from noiselab.study.rehearse_spec import RehearseSettings
 
@@ -187,10 +188,11 @@ class TuneGrid(_Strict):
 
     readout: list[str] | None = Field(default=None, min_length=1)
     postselect: list[str] | None = Field(default=None, min_length=1)
-    amplification: list[str] | None = Field(default=None, min_length=1)
+    amplifier: list[str] | None = Field(default=None, min_length=1)
     scales: list[list[float]] | None = Field(default=None, min_length=1)
     fit: list[str] | None = Field(default=None, min_length=1)
     family: list[str] | None = Field(default=None, min_length=1)
+    suppress: list[str] | None = Field(default=None, min_length=1)
 
     @field_validator("scales")
     @classmethod
@@ -217,25 +219,28 @@ class TuneGrid(_Strict):
 class SweepDefaults(_Strict):
     """Defaults for ``noiselab sweep`` on this study (the command line overrides each).
 
-    ``vary``: the knob (noise-scale, two-qubit-error, one-qubit-error, coherence-us,
-    readout-error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
-    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow.
+    ``knob``: the knob to vary (noise_scale, two_qubit_error, single_qubit_error, coherence_us,
+    readout_error); ``start`` / ``stop`` in the knob's base units (a probability, microseconds
+    or a factor); ``points``; ``log`` spacing; ``recipes`` to follow;
+    ``coherence_gate_errors`` (coherence_us only): ``follow`` (default) moves the relaxation
+    part of every quoted gate error with T1/T2, ``fixed`` keeps the quoted errors.
     """
 
-    vary: str | None = None
+    knob: str | None = None
     start: float | None = None
     stop: float | None = None
     points: Count | None = Field(default=None, ge=2, le=MAX_SWEEP_POINTS)
     log: StrictBool | None = None
     recipes: list[str] | None = Field(default=None, min_length=1)
+    coherence_gate_errors: Literal["follow", "fixed"] | None = None
 
-    @field_validator("vary")
+    @field_validator("knob")
     @classmethod
-    def _check_vary(cls, value: str | None) -> str | None:
+    def _check_knob(cls, value: str | None) -> str | None:
         if value is None:
             return value
-        if KNOB_ALIASES.get(value, value) not in KNOBS:
-            raise ValueError(f"unknown knob {quote(value)}; allowed: {', '.join(KNOBS)}")
+        if value not in KNOBS:
+            raise ValueError(f"{unknown_knob(value)}; allowed: {', '.join(KNOBS)}")
         return value
 
     @field_validator("start", "stop")
@@ -257,11 +262,16 @@ class TruncationSettings(_Strict):
 
     ``min_abs_coeff``: Pauli strings whose |coefficient| (Ha) falls below it are dropped;
     ``max_weight``: strings acting on more qubits are dropped (None: no weight cut). The sum
-    of what was dropped bounds the truncation error and is reported in mHa.
+    of what was dropped bounds the truncation error and is reported in mHa. ``estimate``: also
+    estimate the truncation error with its standard error (a check run at ``check_factor``
+    times the threshold, plus a seeded Monte Carlo estimate of what the check run drops;
+    noiselab.emulate.pauli_truncation); costs a few times the main run.
     """
 
     min_abs_coeff: float = Field(default=1e-5, ge=0.0, le=1.0)
     max_weight: Count | None = Field(default=None, ge=1, le=64)
+    estimate: bool = True
+    check_factor: float = Field(default=0.1, gt=0.0, le=1.0)
 
 
 class EmulationSettings(_Strict):
@@ -462,7 +472,8 @@ class Study:
         Each override goes through the file's own model (:class:`StudyFile`), bounds included,
         so ``--shots 1e6`` is accepted like ``shots: 1e6`` and ``--shots 2.5``, ``--shots 1e20``
         and ``--seed -1`` are refused like the same values in the file; the message names the
-        option. A smaller ``--trajectories`` than the file's batches lowers the batches.
+        argument (on the command line, its option). A smaller ``--trajectories`` than the
+        file's batches lowers the batches.
         """
         overrides = {"seed": seed, "shots": shots, "method": method, "trajectories": trajectories}
         if all(v is None for v in overrides.values()):
@@ -490,14 +501,15 @@ class Study:
         return self.with_overrides(shots=shots)
 
 
-#: Command-line option of each overridable file key (a refused override names the option).
-OVERRIDE_OPTIONS = {
-    "seed": "--seed",
-    "shots": "--shots",
-    "emulation.method": "--method",
-    "emulation.trajectories": "--trajectories",
-    "emulation.batches": "--trajectories",
-    "emulation": "--trajectories",
+#: Argument of each overridable file key (a refused override names the argument; the command
+#: line, its option).
+OVERRIDE_ARGUMENTS = {
+    "seed": "seed",
+    "shots": "shots",
+    "emulation.method": "method",
+    "emulation.trajectories": "trajectories",
+    "emulation.batches": "trajectories",
+    "emulation": "trajectories",
 }
 
 
@@ -510,7 +522,8 @@ def apply_overrides(
     ``overrides`` maps ``seed``, ``shots``, ``method``, ``trajectories`` to a value (None: keep
     the file's). ``--shots 1e6`` is accepted like ``shots: 1e6``; ``--shots 2.5``, ``--shots
     1e20`` and ``--seed -1`` are refused like the same values in the file, and the one-line
-    message names the option. A ``--trajectories`` below the file's batches lowers the batches.
+    message names the argument (on the command line, its option). A ``--trajectories`` below
+    the file's batches lowers the batches.
     """
     out = dict(data)
     given = {k: v for k, v in (overrides or {}).items() if v is not None}
@@ -549,33 +562,42 @@ def _validate_overridden(data: Mapping[str, Any], source: str, given: Mapping[st
     except ValidationError as exc:
         error = from_validation_error(exc, source, model=StudyFile)
         text = str(error)
-        for key, option in OVERRIDE_OPTIONS.items():
+        for key, name in OVERRIDE_ARGUMENTS.items():
             head = f"{source}: {key}: "
-            name = option.removeprefix("--")
             if text.startswith(head) and name in given:
                 value = quote(given[name])
-                raise InputError(f"{source}: {option} {value}: {text.removeprefix(head)}") from None
+                raise InputError(
+                    f"{source}: {arg(name)} {value}: {text.removeprefix(head)}"
+                ) from None
         raise error from None
 
 
-_SWEEP_OPTIONS = {"points": "--points", "start": "--from", "stop": "--to"}
 
 
 def validate_sweep_options(
-    source: str, *, points: Any = None, start: Any = None, stop: Any = None
+    source: str,
+    *,
+    points: Any = None,
+    start: Any = None,
+    stop: Any = None,
+    coherence_gate_errors: Any = None,
 ) -> SweepDefaults:
     """Command-line sweep values through the file's own ``sweep:`` model (bounds included);
-    a refused value is named by its option (``--points``)."""
-    data = {"points": points, "start": start, "stop": stop}
+    a refused value is named by its argument (``points``; on the command line ``--points``)."""
+    data = {
+        "points": points,
+        "start": start,
+        "stop": stop,
+        "coherence_gate_errors": coherence_gate_errors,
+    }
     try:
         return SweepDefaults.model_validate(data)
     except ValidationError as exc:
         first = exc.errors(include_url=False)[0]
         key = str(first.get("loc", ("?",))[0])
-        option = _SWEEP_OPTIONS.get(key, key)
         text = str(from_validation_error(exc, None))
         text = text.removeprefix(f"{key}: ")
-        raise InputError(f"{source}: {option} {quote(data.get(key))}: {text}") from None
+        raise InputError(f"{source}: {arg(key)} {quote(data.get(key))}: {text}") from None
 
 
 def load_study(path: str | Path, overrides: Mapping[str, Any] | None = None) -> Study:

@@ -12,8 +12,8 @@ Each knob (:mod:`noiselab.study.knobs`) carries its bounds and its reference val
 of the target (:mod:`noiselab.study.crossings`) are located by bisection on the knob with new
 evaluations between the grid points that bracket them, through the results cache.
 
-Just over 400 lines: the sweep record and its JSON, the configuration tasks that budget
-reuses, and the job itself.
+About 500 lines: the sweep record and its JSON (notes on the coherence knob's two modes
+included), the configuration tasks that budget reuses, and the job itself.
 """
 
 from __future__ import annotations
@@ -22,8 +22,9 @@ import dataclasses
 from collections.abc import Callable, Sequence
 from typing import Any
 
-from noiselab.common.errors import input_error
+from noiselab.common.errors import arg, did_you_mean, input_error
 from noiselab.common.wording import CAUTION
+from noiselab.device.coherence import scale_coherence_with_gates
 from noiselab.device.profile import scale_profile
 from noiselab.mitigate.recipe import run_recipe
 from noiselab.study.cache import CachingRunner
@@ -45,13 +46,23 @@ from noiselab.study.results import RunStats, trajectory_std_of
 # ---------------------------------------------------------------- records
 
 
-#: What the coherence knob does to the gate errors (said in its output).
+#: What the coherence knob does to the gate errors (said in its output), per mode of
+#: ``sweep.coherence_gate_errors`` / ``--coherence-gate-errors``.
 COHERENCE_NOTE = (
-    "the coherence-us knob changes T1 and T2 with every quoted gate error kept fixed: only the "
+    "the coherence_us knob changes T1 and T2 with every quoted gate error kept fixed "
+    "(coherence_gate_errors: fixed): only the "
     "idle relaxation and the split of each gate's error between relaxation and depolarizing "
     "change, so the error need not fall as T1 rises; to see longer coherence lower the gate "
-    "errors too, sweep one-qubit-error or two-qubit-error alongside"
+    "errors too, sweep single_qubit_error or two_qubit_error alongside"
 )
+COHERENCE_FOLLOW_NOTE = (
+    "the coherence_us knob changes T1 and T2 and moves the relaxation part of every quoted gate "
+    "error with them (coherence_gate_errors: follow): each gate error is what T1/T2 cause over "
+    "the gate's duration plus the rest of the quoted error, held fixed (the rest is assumed "
+    "independent of coherence)"
+)
+#: The modes of the coherence knob; the first is the default.
+COHERENCE_GATE_MODES = ("follow", "fixed")
 
 
 @dataclasses.dataclass(frozen=True, repr=False)
@@ -74,6 +85,10 @@ class SweepResult(NotebookDisplay):
     emulation_method: str = "density_matrix"  # or "trajectory"
     emulation_notice: str | None = None
     confidence: float = 0.95
+    #: coherence_us only: "follow" or "fixed" (None for the other knobs)
+    coherence_gate_errors: str | None = None
+    #: coherence_us with "follow": where a gate error was clipped (rest below 0, or too large)
+    clipped: tuple[str, ...] = ()
 
     @property
     def knob_spec(self) -> Knob:
@@ -117,14 +132,22 @@ class SweepResult(NotebookDisplay):
         """Plain-language remarks about the sweep (the relaxation floor of gate errors)."""
         knob = self.knob_spec
         out: list[str] = []
-        if knob.name == "coherence-us":
-            out.append(COHERENCE_NOTE)
+        if knob.name == "coherence_us":
+            follow = self.coherence_gate_errors == "follow"
+            out.append(COHERENCE_FOLLOW_NOTE if follow else COHERENCE_NOTE)
+        if self.clipped:
+            shown = "; ".join(self.clipped[:4]) + ("; ..." if len(self.clipped) > 4 else "")
+            out.append(
+                f"clipped gate errors ({shown}): where the quoted error is below what T1/T2 "
+                "cause over the gate, its other part is taken as 0; an error above the maximum "
+                "is held at the maximum"
+            )
         low = [p.value for p in self.points if p.floored]
         if low:
             out.append(
                 f"at {knob.phrase} up to {knob.show(max(low))} the quoted value is below what "
                 "T1/T2 alone cause during the gate: the noise model uses relaxation alone there, "
-                "so the error no longer falls with the knob (use coherence-us to lower that floor)"
+                "so the error no longer falls with the knob (use coherence_us to lower that floor)"
             )
         return tuple(out)
 
@@ -149,6 +172,11 @@ class SweepResult(NotebookDisplay):
                 knob.unit
             ],
             "log_spacing": self.log,
+            **(
+                {"coherence_gate_errors": self.coherence_gate_errors}
+                if self.coherence_gate_errors is not None
+                else {}
+            ),
             "current_value": self.current_value,
             "target_mha": self.target_mha,
             "confidence": self.confidence,
@@ -214,7 +242,7 @@ RAW_RECIPE = "raw"
 
 
 def chosen_recipes(
-    study: Any, names: Sequence[str] | None, where: str = "--recipe"
+    study: Any, names: Sequence[str] | None, where: str = arg("recipes")
 ) -> tuple[tuple[str, tuple[dict[str, Any], ...]], ...]:
     """Raw (no passes) first, then the named recipes of the study (default: all of them).
 
@@ -231,7 +259,10 @@ def chosen_recipes(
     for n in picked:
         if n not in all_recipes and n != RAW_RECIPE:
             raise input_error(
-                str(study.source), where, f"unknown recipe {n!r}", ", ".join(all_recipes)
+                str(study.source),
+                where,
+                f"unknown recipe {n!r}{did_you_mean(n, list(all_recipes))}",
+                ", ".join(all_recipes),
             )
     raw_name = next((n for n, p in all_recipes.items() if len(p) == 0), None)
     out: list[tuple[str, tuple[dict[str, Any], ...]]] = [(raw_name or RAW_RECIPE, ())]
@@ -310,17 +341,20 @@ def sweep(
     method: str | None = None,
     trajectories: int | None = None,
     cluster: Any = None,
+    coherence_gate_errors: str | None = None,
 ) -> SweepResult:
     """Sweep ``knob`` from ``start`` to ``stop`` (base units) over ``points`` values.
 
     Every argument left as None comes from the study's ``sweep:`` section, else the built-in
-    default: knob ``noise-scale``, a quarter to four times the device's value, 5 points, even
+    default: knob ``noise_scale``, a quarter to four times the device's value, 5 points, even
     spacing, all of the study's recipes (raw always first). ``values`` gives the knob values
     explicitly instead. ``cache``: a ResultsCache, a path, None (the user cache folder) or
     False. ``workers`` > 1 runs points in local processes (``executor``: any study executor,
     e.g. a dask one; ``cluster``: a Dask scheduler address or Client). ``on_point(index,
     point)`` is called in the calling process as each point finishes. ``method`` /
-    ``trajectories`` override the study's ``emulation:`` section.
+    ``trajectories`` override the study's ``emulation:`` section. ``coherence_gate_errors``
+    (coherence_us only): "follow" (default) moves the relaxation part of every quoted gate
+    error with T1/T2 (:mod:`noiselab.device.coherence`), "fixed" keeps the quoted errors.
     """
     job = start_job(
         study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
@@ -334,29 +368,36 @@ def sweep(
         from_study = getattr(defaults, name, None)
         return fallback if from_study is None else from_study
 
-    spec = get_knob(default("vary", knob, "noise-scale"))
-    same_knob = knob is None or getattr(defaults, "vary", None) in (None, knob)
+    spec = get_knob(default("knob", knob, "noise_scale"))
+    same_knob = knob is None or getattr(defaults, "knob", None) in (None, knob)
     # the study's range belongs to the study's knob; another knob gets the built-in range
     start = start if not same_knob else default("start", start, None)
     stop = stop if not same_knob else default("stop", stop, None)
     from noiselab.study.spec import validate_sweep_options
 
-    given = validate_sweep_options(str(study.source), points=points, start=start, stop=stop)
+    given = validate_sweep_options(
+        str(study.source),
+        points=points,
+        start=start,
+        stop=stop,
+        coherence_gate_errors=coherence_gate_errors,
+    )
     start, stop = given.start, given.stop
+    mode = default("coherence_gate_errors", given.coherence_gate_errors, COHERENCE_GATE_MODES[0])
     points = int(default("points", given.points, 5))
     log = bool(default("log", log, False))
     picked = chosen_recipes(study, recipes)
     if points < 2 and values is None:
-        raise input_error("sweep", "--points", f"{points} points", "2 or more")
+        raise input_error("sweep", arg("points"), f"{points} points", "2 or more")
     # refuse a bad range before the (slow) context is built
     if start is not None:
-        spec.check(start, "--from", log)
+        spec.check(start, "start", log)
     if stop is not None:
-        spec.check(stop, "--to", log)
+        spec.check(stop, "stop", log)
     if values is not None:
         values = [spec.check(v, "values", log) for v in values]
         if len(values) < 1:
-            raise input_error("sweep", "values", "no knob values", "at least one value")
+            raise input_error("sweep", arg("values"), "no knob values", "at least one value")
     with own_executor(workers, cluster, executor) as ex:
         return _sweep_with(
             study,
@@ -367,6 +408,7 @@ def sweep(
             log,
             picked,
             values,
+            mode if spec.name == "coherence_us" else None,
             store,
             ex,
             progress,
@@ -385,6 +427,7 @@ def _sweep_with(
     log: bool,
     picked: tuple[tuple[str, tuple[dict[str, Any], ...]], ...],
     values: Sequence[float] | None,
+    mode: str | None,
     store: Any,
     executor: Any,
     progress: ProgressHook | None,
@@ -404,7 +447,16 @@ def _sweep_with(
     values = tuple(float(v) for v in values)
     factors_used = tuple(spec.factor(v, ref) for v in values)
     channels = None if spec.channels is None else list(spec.channels)
-    profiles = [scale_profile(profile, f, channels) for f in factors_used]
+    clipped: dict[str, None] = {}
+
+    def scaled(factor: float) -> Any:
+        if mode != "follow":
+            return scale_profile(profile, factor, channels)
+        moved = scale_coherence_with_gates(profile, factor)
+        clipped.update(dict.fromkeys(moved.clipped))
+        return moved.profile
+
+    profiles = [scaled(f) for f in factors_used]
     floored = [spec.below_floor(p, patch) for p in profiles]
     tasks = [ConfigTask(ctx.experiment, p, picked, store) for p in profiles]
     label = f"sweep {spec.name}"
@@ -435,7 +487,7 @@ def _sweep_with(
 
     def evaluator(name: str, passes: tuple[dict[str, Any], ...]) -> Evaluate:
         def evaluate(value: float) -> SweepEntry:
-            prof = scale_profile(profile, spec.factor(value, ref), channels)
+            prof = scaled(spec.factor(value, ref))
             out = run_config(ConfigTask(ctx.experiment, prof, ((name, passes),), store))
             extra.append(out)
             return entry_from(name, out.results[0][1])
@@ -455,5 +507,7 @@ def _sweep_with(
         current_value=ref,
         points=pts,
         crossings=crossings,
+        coherence_gate_errors=mode,
+        clipped=tuple(clipped),
         **scan_fields(study, ctx, names, stats),
     )

@@ -1,7 +1,7 @@
 """The tune job: rank a grid of mitigation settings by the probability of reaching the target.
 
 A setting is one choice on each axis: readout correction method, symmetry post-selection mode,
-noise amplification method, set of noise scale factors and extrapolation fit. Each becomes a
+noise amplifier, set of noise scale factors and extrapolation fit. Each becomes a
 recipe (readout, post-selection, extrapolation passes in that order). The distinct circuit
 variants of the whole grid are simulated first, in parallel through the executor when asked,
 and cached; evaluating a setting afterwards costs no further simulation.
@@ -17,7 +17,7 @@ from pathlib import Path
 from typing import Any
 
 from noiselab.common.atomic import write_text_atomic
-from noiselab.common.errors import InputError
+from noiselab.common.errors import InputError, arg
 from noiselab.mitigate.recipe import EstimateMemo, parse_recipe, run_recipe
 from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import CachingRunner, ResultsCache, job_key
@@ -51,16 +51,18 @@ class GridOverride:
 
     readout: Sequence[str] | None = None
     postselect: Sequence[str] | None = None
-    amplification: Sequence[str] | None = None
+    amplifier: Sequence[str] | None = None
     scales: Sequence[Sequence[float]] | None = None
     fit: Sequence[str] | None = None
     family: Sequence[str] | None = None
+    suppress: Sequence[str] | None = None
 
 
 def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Grid, dict[str, str]]:
     """Axes from the command line, else the study's tune section, else the defaults.
 
-    Returns the grid and, per axis, where it came from (for messages: '--fit' or 'tune.fit').
+    Returns the grid and, per axis, where it came from (for messages: the argument ``fit``, on
+    the command line ``--fit``, or 'tune.fit').
     """
     override = override or GridOverride()
     _validate_override(override)
@@ -72,7 +74,7 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
         cli = getattr(override, axis)
         file_value = getattr(section, axis)
         if cli is not None:
-            values[axis], origin[axis] = cli, f"--{axis}"
+            values[axis], origin[axis] = cli, arg(axis)
         elif file_value is not None:
             values[axis], origin[axis] = file_value, f"{study.source}: tune.{axis}"
         else:
@@ -80,18 +82,19 @@ def resolve_grid(study: Study, override: GridOverride | None = None) -> tuple[Gr
     grid = Grid(
         readout=tuple(dict.fromkeys(str(v) for v in values["readout"])),
         postselect=tuple(dict.fromkeys(str(v) for v in values["postselect"])),
-        amplification=tuple(dict.fromkeys(str(v) for v in values["amplification"])),
+        amplifier=tuple(dict.fromkeys(str(v) for v in values["amplifier"])),
         scales=tuple(dict.fromkeys(tuple(float(x) for x in s) for s in values["scales"])),
         fit=tuple(dict.fromkeys(str(v) for v in values["fit"])),
         family=tuple(dict.fromkeys(str(v) for v in values["family"])),
+        suppress=tuple(dict.fromkeys(str(v) for v in values["suppress"])),
     )
     check_axes(grid, origin)
     return grid, origin
 
 
 def _validate_override(override: GridOverride) -> None:
-    """Command-line axes through the file's own ``tune:`` model (bounds included); a refused
-    value is named by its option (``--scales``)."""
+    """Given axes through the file's own ``tune:`` model (bounds included); a refused value is
+    named by its argument (``scales``; on the command line ``--scales``)."""
     from pydantic import ValidationError
 
     from noiselab.common.errors import from_validation_error
@@ -106,7 +109,7 @@ def _validate_override(override: GridOverride) -> None:
     except ValidationError as exc:
         text = str(from_validation_error(exc, None))
         axis = text.split(":", 1)[0].split(".")[0].split("[")[0]
-        raise InputError(f"--{axis}: {text.removeprefix(axis).lstrip(':. ')}") from None
+        raise InputError(f"{arg(axis)}: {text.removeprefix(axis).lstrip(':. ')}") from None
 
 
 @dataclasses.dataclass(frozen=True)
@@ -123,7 +126,11 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
 
     The families beyond the stack: ``error_cancellation`` runs first, with every readout and
     post-selection choice but no extrapolation; ``distillation`` alone (it composes with no
-    readout correction, and is itself the estimator). Both keep the grid small.
+    readout correction, and is itself the estimator). Both keep the grid small, and run without
+    suppression. Suppression passes come first in a setting's recipe; ``measure_twirl`` only
+    with a readout correction (it symmetrizes the assignment for the correction to invert), and
+    ``clifford_regression`` takes no suppression partner (its training circuits are not
+    transformed).
     """
     notes: list[str] = []
     post_axis = grid.postselect
@@ -131,78 +138,101 @@ def grid_settings(grid: Grid, symmetries_available: bool = True) -> tuple[list[S
         notes.append("post-selection left out: the encoding keeps no symmetry to check")
         post_axis = (NONE,)
     with_family = any(f != NONE for f in grid.family)
+    with_suppress = any(s != NONE for s in grid.suppress)
     settings: list[Setting] = []
-    skipped = 0
+    skipped = refused = 0
     for family in grid.family:
-        for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplification):
-            if family == "error_cancellation" and amp != NONE:
-                continue
-            if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
-                continue
-            zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
-            if amp in (NONE, REGRESSION):
-                zne_choices = [(None, None)]
-            else:
-                zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
-            for scales, fit in zne_choices:
-                passes: list[dict[str, Any]] = []
-                if family == "error_cancellation":
-                    passes.append({"pass": "error_cancellation"})
-                if ro != NONE:
-                    passes.append({"pass": "readout", "method": ro})
-                if ps != NONE:
-                    passes.append({"pass": "postselect", "mode": ps})
-                if family == "distillation":
-                    passes.append({"pass": "distillation"})
-                if amp == REGRESSION:
-                    passes.append({"pass": REGRESSION})
-                elif amp != NONE:
-                    passes.append(
-                        {
-                            "pass": "extrapolate",
-                            "amplifier": amp,
-                            "scales": list(scales),
-                            "fit": fit,
-                        }
-                    )
-                try:
-                    specs = tuple(make_pass(p, where="tune").spec() for p in passes)
-                except InputError:
-                    skipped += 1  # e.g. an exponential fit given only two scale factors
+        suppress_axis = grid.suppress if family == NONE else (NONE,)
+        if family != NONE and NONE not in grid.suppress:
+            continue
+        for sup in suppress_axis:
+            suppressors = [] if sup == NONE else sup.split("+")
+            for ro, ps, amp in itertools.product(grid.readout, post_axis, grid.amplifier):
+                if family == "error_cancellation" and amp != NONE:
                     continue
-                options = {
-                    "readout": ro,
-                    "postselect": ps,
-                    "amplification": amp,
-                    "scales": list(scales) if scales is not None else [],
-                    "fit": fit or NONE,
-                }
-                if with_family:
-                    options["family"] = family
-                settings.append(Setting(_label(options), options, specs))
+                if family == "distillation" and (ro, ps, amp) != (NONE, NONE, NONE):
+                    continue
+                if "measure_twirl" in suppressors and ro == NONE:
+                    continue
+                zne_choices: list[tuple[tuple[float, ...] | None, str | None]]
+                if amp in (NONE, REGRESSION):
+                    zne_choices = [(None, None)]
+                else:
+                    zne_choices = [(sc, fit) for sc in grid.scales for fit in grid.fit]
+                for scales, fit in zne_choices:
+                    passes: list[dict[str, Any]] = [{"pass": name} for name in suppressors]
+                    if family == "error_cancellation":
+                        passes.append({"pass": "error_cancellation"})
+                    if ro != NONE:
+                        passes.append({"pass": "readout", "method": ro})
+                    if ps != NONE:
+                        passes.append({"pass": "postselect", "mode": ps})
+                    if family == "distillation":
+                        passes.append({"pass": "distillation"})
+                    if amp == REGRESSION:
+                        passes.append({"pass": REGRESSION})
+                    elif amp != NONE:
+                        passes.append(
+                            {
+                                "pass": "extrapolate",
+                                "amplifier": amp,
+                                "scales": list(scales),
+                                "fit": fit,
+                            }
+                        )
+                    try:
+                        specs = tuple(make_pass(p, where="tune").spec() for p in passes)
+                    except InputError:
+                        skipped += 1  # e.g. an exponential fit given only two scale factors
+                        continue
+                    try:
+                        parse_recipe(list(specs), where="tune")
+                    except InputError:
+                        refused += 1  # a pair of passes that declare each other incompatible
+                        continue
+                    options = {
+                        "readout": ro,
+                        "postselect": ps,
+                        "amplifier": amp,
+                        "scales": list(scales) if scales is not None else [],
+                        "fit": fit or NONE,
+                    }
+                    if with_family:
+                        options["family"] = family
+                    if with_suppress:
+                        options["suppress"] = sup
+                    settings.append(Setting(_label(options), options, specs))
     if skipped:
         notes.append(f"{skipped} combination(s) left out: the fit needs more scale factors")
+    if refused:
+        notes.append(
+            f"{refused} combination(s) left out: {REGRESSION} takes no suppression partner"
+        )
     return settings, notes
 
 
 def _label(o: dict[str, Any]) -> str:
     parts = [] if o.get("family", NONE) == NONE else [f"family={o['family']}"]
+    if o.get("suppress", NONE) != NONE:
+        parts.append(f"suppress={o['suppress']}")
     parts += [f"readout={o['readout']}", f"post={o['postselect']}"]
-    if o["amplification"] == NONE:
+    if o["amplifier"] == NONE:
         parts.append("zne=none")
-    elif o["amplification"] == REGRESSION:
+    elif o["amplifier"] == REGRESSION:
         parts.append(f"zne=none {REGRESSION}")
     else:
         scales = ",".join(f"{s:g}" for s in o["scales"])
-        parts.append(f"zne={o['amplification']}[{scales}]/{o['fit']}")
+        parts.append(f"zne={o['amplifier']}[{scales}]/{o['fit']}")
     return " ".join(parts)
 
 
 def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting], list[str]]:
     """The settings whose passes this experiment allows, and a note per family left out
-    (e.g. distillation on a device without 2n + 1 qubits)."""
+    (e.g. distillation on a device without 2n + 1 qubits) and per suppression pass that changes
+    nothing here (its settings equal those without it, which the grid has or the note says)."""
     kept: list[Setting] = []
     notes: dict[str, str] = {}
+    settings, noop_notes = _drop_noop_suppression(ctx, settings)
     for s in settings:
         family = s.options.get("family", NONE)
         if family == NONE or family in notes:
@@ -216,7 +246,27 @@ def applicable(ctx: StudyContext, settings: list[Setting]) -> tuple[list[Setting
             notes[family] = f"{family} left out: {str(exc).split(': ', 1)[-1]}"
             continue
         kept.append(s)
-    return kept, list(notes.values())
+    return kept, [*noop_notes, *notes.values()]
+
+
+def _drop_noop_suppression(
+    ctx: StudyContext, settings: list[Setting]
+) -> tuple[list[Setting], list[str]]:
+    """Leave out the settings with a suppression pass that is a no-op on this experiment
+    (``MitigationPass.no_op``): the same setting without it gives the same energy."""
+    reasons: dict[str, str | None] = {}
+    kept: list[Setting] = []
+    for s in settings:
+        sup = s.options.get("suppress", NONE)
+        names = [] if sup == NONE else sup.split("+")
+        for name in names:
+            if name not in reasons:
+                reasons[name] = make_pass({"pass": name}, where="tune").no_op(ctx.experiment)
+        if any(reasons[n] for n in names):
+            continue
+        kept.append(s)
+    notes = [f"{n} left out: {why}" for n, why in reasons.items() if why]
+    return kept, notes
 
 
 def needed_variants(ctx: StudyContext, settings: Sequence[Setting]) -> list[Any]:

@@ -6,7 +6,7 @@ studies' fixed seeds and an isolated temporary results cache:
 - ``assess`` on every study in ``configs/studies/*.yaml`` -> ``assess-<study>.json``;
 - ``tune`` on the demo study (h2-equilibrium) -> ``tune-h2-equilibrium.json``;
 - ``sweep`` of the demo study over the two-qubit gate error, 3 points ->
-  ``sweep-h2-equilibrium-two-qubit-error.json``.
+  ``sweep-h2-equilibrium-two_qubit_error.json``.
 
 Only volatile fields are dropped (run statistics and timings, file paths); everything else is
 kept as the jobs write it. ``tests/test_golden.py`` recomputes these and compares.
@@ -38,7 +38,7 @@ ROOT = Path(__file__).resolve().parents[2]
 GOLDEN_DIR = Path(__file__).resolve().parent
 STUDIES = ROOT / "configs" / "studies"
 DEMO = "h2-equilibrium"
-SWEEP_KNOB = "two-qubit-error"
+SWEEP_KNOB = "two_qubit_error"
 SWEEP_POINTS = 3
 
 #: Environment the computation runs in (threads: see the module docstring).
