@@ -2,6 +2,7 @@
 
 python benchmarks/memory_child.py baseline          # imports only
 python benchmarks/memory_child.py assess STUDY.yaml # a full assess, no cache
+python benchmarks/memory_child.py assess STUDY.yaml trajectory   # ... with that method
 """
 
 from __future__ import annotations
@@ -40,10 +41,11 @@ def main(argv: list[str]) -> int:
     wall = 0.0
     if argv[0] == "assess":
         t = time.perf_counter()
-        assess_module.assess(argv[1], cache=False)
+        method = argv[2] if len(argv) > 2 else None
+        assess_module.assess(argv[1], cache=False, method=method)
         wall = time.perf_counter() - t
     elif argv[0] != "baseline":
-        raise SystemExit("usage: memory_child.py baseline | assess STUDY")
+        raise SystemExit("usage: memory_child.py baseline | assess STUDY [METHOD]")
     print(json.dumps({"mode": argv[0], "maxrss_bytes": peak_rss_bytes(), "wall_s": wall}))
     return 0
 

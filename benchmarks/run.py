@@ -375,6 +375,37 @@ def bench_memory(quick: bool) -> dict[str, Any]:
     }
 
 
+def bench_trajectory16(quick: bool) -> dict[str, Any]:
+    """A 16-qubit study (H8 chain, ``studies/hchain-16-traj.yaml``) through ``assess`` with the
+    trajectory method keeping per-batch values: peak RSS / the memory the guard lets a job use
+    (``--quick``: the 8-qubit chain with ``--method trajectory``)."""
+    from noiselab.common.memory import memory_budget
+
+    path = study_path(8) if quick else HERE / "studies" / "hchain-16-traj.yaml"
+    qubits = 8 if quick else 16
+    budget = memory_budget()
+    run = _child(["assess", str(path), "trajectory"])
+    ratio = run["maxrss_bytes"] / budget.usable
+    _say(
+        f"  {qubits} qubits: assess {run['wall_s']:.0f} s, peak "
+        f"{run['maxrss_bytes'] / 2**30:.2f} GiB, guard {budget.usable / 2**30:.2f} GiB"
+    )
+    return {
+        "ratio": ratio,
+        "target": "<= 1 (the whole assess inside the memory guard)",
+        "met": ratio <= 1,
+        "qubits": qubits,
+        "assess_wall_s": run["wall_s"],
+        "assess_maxrss_gib": run["maxrss_bytes"] / 2**30,
+        "guard_usable_gib": budget.usable / 2**30,
+        "notes": [
+            "fresh child process, no cache, optimizer included; the trajectory run keeps "
+            "per-batch estimator values (noiselab/emulate/batch_values.py)",
+            "emulation alone against its estimate: benchmarks/trajectory_memory.py",
+        ],
+    }
+
+
 # --------------------------------------------------------------------------- scaling
 
 
@@ -704,6 +735,7 @@ BENCHMARKS: dict[str, Callable[[bool], dict[str, Any]]] = {
     "rehearse": bench_rehearse,
     "rehearse8": bench_rehearse8,
     "refusal": bench_refusal,
+    "trajectory16": bench_trajectory16,
     "scan": bench_scan_cost,
     "scan_workers": bench_scan_workers,
 }

@@ -147,6 +147,18 @@ def calibration_distributions(
     )
 
 
+def per_qubit_matrices(p_all0: np.ndarray, p_all1: np.ndarray, n: int) -> list[np.ndarray]:
+    """2x2 assignment matrices A_q[measured, prepared] from the all-0 and all-1 calibration runs."""
+    k = np.arange(2**n)
+    mats = []
+    for q in range(n):
+        bit = (k >> q) & 1
+        e0 = float(np.dot(p_all0, bit))  # P(1 | 0)
+        e1 = float(np.dot(p_all1, 1 - bit))  # P(0 | 1)
+        mats.append(np.array([[1.0 - e0, e1], [e0, 1.0 - e1]]))
+    return mats
+
+
 def per_qubit_assignment(
     profile: Any, patch: Sequence[int], measured: Sequence[int], noise_model: Any = None
 ) -> list[np.ndarray]:

@@ -8,6 +8,10 @@ matrix with the Heisenberg-evolved effects of the noisy basis-change layer (see
 (:mod:`noiselab.emulate.readout`). Past the memory guard, ``method="auto"`` switches to Monte Carlo
 wavefunction trajectories (:mod:`noiselab.emulate.trajectory`), whose statistical error is kept
 apart from shot noise in ``trajectory_batches``.
+
+Longer than the usual 400 lines on purpose: it is the one dispatch point of both methods and both
+trajectory storage modes (distributions or per-batch values); the arithmetic lives in the modules
+it names.
 """
 
 from __future__ import annotations
@@ -22,6 +26,7 @@ from qiskit_aer import AerSimulator
 
 from noiselab.common.errors import InputError, ProblemTooLargeError
 from noiselab.device.evolution import EvolutionSpec, evolution_ensemble, evolution_spec
+from noiselab.emulate.batch_values import BatchValueSpec, batch_functional
 from noiselab.emulate.channels import (
     BasisLayerSpec,
     EffectCache,
@@ -38,7 +43,7 @@ from noiselab.emulate.memory import (
     fits_in_memory,
 )
 from noiselab.emulate.readout import PairMatrix, apply_readout
-from noiselab.emulate.trajectory import trajectory_distributions
+from noiselab.emulate.trajectory import trajectory_batches
 
 METHODS = ("auto", "density_matrix", "trajectory")
 
@@ -70,6 +75,10 @@ class BasisDistributions:
     means of the trajectory distributions (``probs`` is their mean); the trajectory standard error
     of any estimator f linear in the distributions is ``std(f(batch), ddof=1) / sqrt(n_batches)``
     (:meth:`trajectory_std`). ``None`` for the exact method.
+    ``trajectory_values`` ``(n_batches, n_values)``: instead of ``trajectory_batches``, only the
+    per-batch values of :class:`~noiselab.emulate.batch_values.BatchValueSpec` (after readout
+    error), laid out by ``value_masks`` (concatenated per basis), ``value_counts`` (masks per
+    basis) and ``value_transforms`` ``(n_t, n, 2, 2)``; read with :meth:`batch_functional`.
     """
 
     bases: tuple[str, ...]
@@ -83,10 +92,33 @@ class BasisDistributions:
     trajectory_batches: np.ndarray | None = None
     trajectory_batches_ideal: np.ndarray | None = None
     num_trajectories: int = 0
+    trajectory_values: np.ndarray | None = None
+    value_masks: np.ndarray | None = None
+    value_counts: np.ndarray | None = None
+    value_transforms: np.ndarray | None = None
 
     @property
     def is_exact(self) -> bool:
-        return self.trajectory_batches is None
+        return self.trajectory_batches is None and self.trajectory_values is None
+
+    def batch_functional(self, basis: str, u: np.ndarray) -> np.ndarray | None:
+        """``u . probs_batch`` of ``basis`` for every trajectory batch (after readout error), from
+        the stored batches or the stored per-batch values; None for the exact method."""
+        i = self.bases.index(basis)
+        if self.trajectory_batches is not None:
+            return self.trajectory_batches[:, i, :] @ u
+        if self.trajectory_values is None:
+            return None
+        assert self.value_masks is not None and self.value_counts is not None
+        assert self.value_transforms is not None
+        return batch_functional(
+            self.trajectory_values,
+            self.value_masks,
+            self.value_counts,
+            self.value_transforms,
+            i,
+            u,
+        )
 
     def row(self, basis: str, *, ideal: bool = False) -> np.ndarray:
         """The distribution measured in ``basis``."""
@@ -103,6 +135,11 @@ class BasisDistributions:
         """
         batches = self.trajectory_batches_ideal if ideal else self.trajectory_batches
         if batches is None:
+            if self.trajectory_values is not None:  # never 0.0 for a run that has an error
+                raise ValueError(
+                    "trajectory_std: this run kept per-batch values, not distributions; "
+                    "use batch_functional"
+                )
             return 0.0
         vals = np.array([estimator(b) for b in batches])
         return float(vals.std(ddof=1) / np.sqrt(len(vals)))
@@ -159,9 +196,7 @@ def simulate_density_matrix(circuit: Any, noise_model: Any) -> np.ndarray:
 _MIXTURE_CHUNK = 32
 
 
-def simulate_mixture(
-    ensemble: Sequence[tuple[float, Any]], noise_model: Any
-) -> np.ndarray:
+def simulate_mixture(ensemble: Sequence[tuple[float, Any]], noise_model: Any) -> np.ndarray:
     """sum_i w_i rho_i over weighted circuits (one circuit: :func:`simulate_density_matrix`)."""
     if len(ensemble) == 1:
         return simulate_density_matrix(ensemble[0][1], noise_model)
@@ -264,6 +299,7 @@ def emulate_circuit_bases(
     seed: int | None = None,
     max_density_matrix_qubits: int | None = None,
     evolution: EvolutionSpec | None = None,
+    batch_values: BatchValueSpec | None = None,
 ) -> BasisDistributions:
     """Lower-level :func:`emulate_bases` on a circuit and a qiskit-aer noise model.
 
@@ -271,6 +307,8 @@ def emulate_circuit_bases(
     circuit qubits). ``readout_matrices[l]`` / ``readout_crosstalk``: readout error in LOGICAL
     indices (``None``: no readout error). ``basis_noise=False`` makes the basis layer noiseless.
     ``evolution``: the always-on terms (``device.evolution``), written into the circuit first.
+    ``batch_values``: with trajectories, keep these per-batch values instead of the per-batch
+    distributions (masks per basis in the order of ``bases``).
     """
     check_circuit(circuit)
     k = circuit.num_qubits
@@ -309,15 +347,19 @@ def emulate_circuit_bases(
             method="density_matrix",
             notice=notice,
         )
+    if batch_values is not None and len(batch_values.masks) != len(bases_t):
+        raise ValueError("emulate_circuit_bases: batch_values needs one mask array per basis")
     check_memory(
         k,
         "trajectory",
         trajectories_per_batch=max(1, num_trajectories // max(1, num_batches)),
         num_bases=len(bases_t),
         num_batches=num_batches,
+        num_qubits_measured=n,
+        num_values=-1 if batch_values is None else batch_values.num_values,
     )
     calls0 = engine_call_count()
-    batches_ideal = trajectory_distributions(
+    batches = trajectory_batches(
         ensemble,
         noise_model,
         qubits,
@@ -328,19 +370,47 @@ def emulate_circuit_bases(
         seed=seed,
         counter=_ENGINE_CALLS,
     )
-    batches = apply_readout(batches_ideal, mats, readout_crosstalk)
+    common = {
+        "bases": bases_t,
+        "num_qubits": n,
+        "method": "trajectory",
+        "notice": notice,
+        "num_trajectories": int(num_trajectories // num_batches * num_batches),
+    }
+    if batch_values is None:
+        batches_ideal = np.empty((num_batches, len(bases_t), 2**n))
+        for b, part in enumerate(batches):
+            batches_ideal[b] = part
+        probs_b = apply_readout(batches_ideal, mats, readout_crosstalk)
+        return BasisDistributions(
+            probs_ideal=batches_ideal.mean(axis=0),
+            probs=probs_b.mean(axis=0),
+            engine_seconds=time.perf_counter() - t0,
+            engine_calls=engine_call_count() - calls0,
+            trajectory_batches=probs_b,
+            trajectory_batches_ideal=batches_ideal,
+            **common,
+        )
+    # per-batch values only: the sums of the batch means and one batch at a time
+    sum_ideal = np.zeros((len(bases_t), 2**n))
+    sum_probs = np.zeros((len(bases_t), 2**n))
+    values = []
+    for part in batches:
+        sum_ideal += part
+        part = apply_readout(part, mats, readout_crosstalk)
+        sum_probs += part
+        values.append(batch_values.reduce(part))
+        del part
     return BasisDistributions(
-        bases=bases_t,
-        probs_ideal=batches_ideal.mean(axis=0),
-        probs=batches.mean(axis=0),
-        num_qubits=n,
+        probs_ideal=sum_ideal / num_batches,
+        probs=sum_probs / num_batches,
         engine_seconds=time.perf_counter() - t0,
         engine_calls=engine_call_count() - calls0,
-        method="trajectory",
-        notice=notice,
-        trajectory_batches=batches,
-        trajectory_batches_ideal=batches_ideal,
-        num_trajectories=int(num_trajectories // num_batches * num_batches),
+        trajectory_values=np.array(values),
+        value_masks=np.concatenate(batch_values.masks).astype(np.uint64),
+        value_counts=np.array([len(m) for m in batch_values.masks], dtype=np.int64),
+        value_transforms=batch_values.transform_array(n),
+        **common,
     )
 
 
@@ -417,6 +487,7 @@ def emulate_bases(
     num_batches: int = 16,
     seed: int | None = None,
     max_density_matrix_qubits: int | None = None,
+    batch_values: BatchValueSpec | None = None,
 ) -> BasisDistributions:
     """Measured distributions of ``compiled`` (a ``CompiledCircuit``) in every basis of ``bases``.
 
@@ -425,6 +496,7 @@ def emulate_bases(
     guard). The basis layer is noisy (the profile's gate channels, relaxation of idle qubits over
     its duration) unless ``basis_noise=False``; ``readout=False`` makes ``probs`` equal
     ``probs_ideal``. ``noise_model`` overrides the one built from ``profile`` and the patch.
+    ``batch_values``: see :func:`emulate_circuit_bases`.
     """
     circuit = compiled.circuit
     patch = tuple(compiled.patch)
@@ -446,8 +518,8 @@ def emulate_bases(
         seed=seed,
         max_density_matrix_qubits=max_density_matrix_qubits,
         evolution=evolution_spec(profile, patch),
+        batch_values=batch_values,
     )
-
 
 
 def with_readout(dist: BasisDistributions, compiled: Any, profile: Any) -> BasisDistributions:

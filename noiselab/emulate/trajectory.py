@@ -6,14 +6,15 @@ channels); qiskit-aer's statevector method samples one Kraus branch per instruct
 noisy density matrix. We run the circuit in ``num_batches`` batches of
 ``num_trajectories // num_batches`` shots with ``save_statevector(pershot=True)``; every
 trajectory's state serves all bases through the pure-state kernel
-(:func:`noiselab.emulate.contract.sv_batch_mean_distributions`), and the per-batch means are kept
-so that the trajectory error can be estimated separately from shot noise (batch means are
-independent: standard error = std of batch means / sqrt(n_batches)).
+(:func:`noiselab.emulate.contract.sv_batch_mean_distributions`), and the per-batch means (or
+the estimator values read from them, :mod:`noiselab.emulate.batch_values`) are kept so that
+the trajectory error can be estimated separately from shot noise (batch means are independent:
+standard error = std of batch means / sqrt(n_batches)).
 """
 
 from __future__ import annotations
 
-from collections.abc import Hashable, Sequence
+from collections.abc import Hashable, Iterator, Sequence
 from typing import Any
 
 import numpy as np
@@ -82,7 +83,7 @@ def simulate_trajectories(circuit: Any, shots: int, seed: int | None) -> np.ndar
     return np.array([np.asarray(getattr(s, "data", s)) for s in states])
 
 
-def trajectory_distributions(
+def trajectory_batches(
     circuit: Any,
     noise_model: Any,
     qubits: Sequence[int],
@@ -93,8 +94,9 @@ def trajectory_distributions(
     num_batches: int,
     seed: int | None = None,
     counter: list[int] | None = None,
-) -> np.ndarray:
-    """Batch-mean distributions ``(num_batches, n_bases, 2**n)`` before readout error.
+) -> Iterator[np.ndarray]:
+    """Each batch's mean distributions ``(n_bases, 2**n)`` before readout error, one batch at a
+    time (the caller keeps what it needs of each: all of them, or per-batch estimator values).
 
     ``circuit``: one circuit, or weighted circuits ``((w, circuit), ...)`` whose weighted state
     average is wanted (each batch runs every one of them; quadrature of static detuning)."""
@@ -108,14 +110,46 @@ def trajectory_distributions(
     ensemble = ((1.0, circuit),) if isinstance(circuit, QuantumCircuit) else tuple(circuit)
     noisy = [(w, unravelled_circuit(c, noise_model)) for w, c in ensemble]
     rng = np.random.default_rng(seed)
-    out = np.zeros((num_batches, len(effects), 2 ** len(qubits)))
-    for b in range(num_batches):
+    for _ in range(num_batches):
         batch_seed = int(rng.integers(0, 2**31 - 1))
+        out: np.ndarray | None = None
         for w, circ in noisy:
             if counter is not None:
                 counter[0] += 1
             psis = simulate_trajectories(circ, per_batch, batch_seed)
             part = sv_batch_mean_distributions(psis, qubits, rotations, keys)
-            out[b] = part if len(noisy) == 1 else out[b] + w * part
+            out = part if len(noisy) == 1 else (w * part if out is None else out + w * part)
             del psis
-    return clean_probabilities(out, what="trajectory distribution")
+        assert out is not None
+        yield clean_probabilities(out, what="trajectory distribution")
+
+
+def trajectory_distributions(
+    circuit: Any,
+    noise_model: Any,
+    qubits: Sequence[int],
+    effects: Sequence[Sequence[np.ndarray]],
+    keys: Sequence[Sequence[Hashable]],
+    *,
+    num_trajectories: int,
+    num_batches: int,
+    seed: int | None = None,
+    counter: list[int] | None = None,
+) -> np.ndarray:
+    """Batch-mean distributions ``(num_batches, n_bases, 2**n)`` before readout error (every
+    batch of :func:`trajectory_batches` kept)."""
+    return np.stack(
+        list(
+            trajectory_batches(
+                circuit,
+                noise_model,
+                qubits,
+                effects,
+                keys,
+                num_trajectories=num_trajectories,
+                num_batches=num_batches,
+                seed=seed,
+                counter=counter,
+            )
+        )
+    )

@@ -27,6 +27,7 @@ from noiselab.device.transforms import TransformRealizer
 from noiselab.emulate.calibration import calibration_distributions
 from noiselab.emulate.engine import choose_method, emulate_bases
 from noiselab.mitigate import symmetry
+from noiselab.mitigate.batch_spec import batch_value_spec, value_masks
 from noiselab.mitigate.plan import MeasurementPlan, build_plan
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD, CircuitVariant
 
@@ -57,6 +58,9 @@ class ExperimentContext:
     amplified point of an extrapolation (enters ``std_mha``; 0: ideal amplification).
     ``amplification_offset``: relative, systematic error of the stretch amplifier (each stretched
     point is emulated at c (1 + offset) while the fit assumes c: enters the bias).
+    ``trajectory_values``: a trajectory run keeps per-batch estimator values
+    (:func:`noiselab.mitigate.batch_spec.batch_value_spec`) instead of per-batch distributions;
+    only for recipes that read term parities alone (``batch_spec.needs_distributions``).
     """
 
     problem: Any
@@ -77,6 +81,7 @@ class ExperimentContext:
     verification_bases: bool = True
     amplification_spread: float = DEFAULT_AMPLIFICATION_SPREAD
     amplification_offset: float = 0.0
+    trajectory_values: bool = False
 
     def __post_init__(self) -> None:
         if int(self.shots) < 1:
@@ -205,6 +210,12 @@ def variant_key_material(ctx: ExperimentContext, variant: CircuitVariant) -> dic
     }
     if method != "density_matrix":
         material["trajectories"] = [int(ctx.num_trajectories), int(ctx.num_batches)]
+        if ctx.trajectory_values:  # which values: the masks per basis (the transforms follow
+            # from the profile, already in the key)
+            h = hashlib.sha256()
+            for m in value_masks(ctx):
+                h.update(np.asarray(m, dtype=np.uint64).tobytes() + b"|")
+            material["kept"] = f"per-batch values {h.hexdigest()}"
     return material
 
 
@@ -220,10 +231,14 @@ def make_runner(ctx: ExperimentContext) -> Runner:
             if own is not None:
                 memo[variant] = own.emulate_variant(ctx, compiled, profile)
                 return memo[variant]
+            values = None
+            if ctx.trajectory_values and ctx.emulation_method != "density_matrix":
+                values = batch_value_spec(ctx, variant)
             memo[variant] = emulate_bases(
                 compiled,
                 profile,
                 list(ctx.measured_bases),
+                batch_values=values,
                 method=ctx.emulation_method,
                 seed=ctx.seed,
                 num_trajectories=ctx.num_trajectories,

@@ -156,7 +156,7 @@ def build_plan(op: SparsePauliOp, what: str = "hamiltonian", dense: bool = True)
     return MeasurementPlan(num_qubits=op.num_qubits, constant=constant, groups=tuple(groups))
 
 
-def _first_compatible(labels: Sequence[str], bases: Sequence[str]) -> np.ndarray:
+def first_compatible(labels: Sequence[str], bases: Sequence[str]) -> np.ndarray:
     """Index of the first basis each label is measurable in, -1 for none (``measurable_in``,
     vectorized: the verification bases of a 12-qubit problem compare ~4000 terms to ~800 bases)."""
     out = np.full(len(labels), -1, dtype=int)
@@ -189,7 +189,7 @@ def assign_to_bases(
     left_labels: list[str] = []
     left_coeffs: list[float] = []
     labels = rest.paulis.to_labels()
-    first = _first_compatible(labels, list(bases))
+    first = first_compatible(labels, list(bases))
     for lab, c, j in zip(labels, rest.coeffs.real, first, strict=True):
         if j >= 0:
             b = bases[j]

@@ -184,21 +184,22 @@ def variance(
 
 
 def _trajectory_std(est: Estimate, data: Measurements) -> float | None:
-    """Trajectory standard error of the estimate (linearized), or None for exact emulation."""
+    """Trajectory standard error of the estimate (linearized), or None for exact emulation:
+    the estimate's influence on each measured basis read on every batch (from the per-batch
+    distributions or the per-batch values the run kept)."""
     total = 0.0
     found = False
     for v in data.variants:
         d = data.runs[v]
-        batches = getattr(d, "trajectory_batches", None)
-        if batches is None:
+        if getattr(d, "is_exact", True):
             continue
         found = True
-        vals = np.zeros(batches.shape[0])
+        vals: np.ndarray | float = 0.0
         for b in data.bases:
             u = est.influence.get(meas_key(v, b))
             if u is not None:
-                vals += batches[:, d.bases.index(b), :] @ u
-        if len(vals) > 1:
+                vals = vals + d.batch_functional(b, u)
+        if isinstance(vals, np.ndarray) and len(vals) > 1:
             total += float(vals.var(ddof=1)) / len(vals)
     return math.sqrt(total) if found else None
 

@@ -28,7 +28,7 @@ from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.plan import build_plan
 from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
-from noiselab.study.preflight import preflight, resolve_emulation
+from noiselab.study.preflight import preflight, resolve_store
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import CircuitAnsatz, LayeredAnsatz, Study
 
@@ -216,10 +216,15 @@ def _build_context(
     a recipe of the study verifies (jobs that run other recipes, like tune, say so, or call
     :func:`with_verification` on a context they were given). ``optimum``: a noiseless optimum
     computed elsewhere for this study's circuit (the scan's warm-started one); None: optimize.
+    With ``verification`` None the job runs the study's recipes, so a trajectory run may keep
+    per-batch values for them (:func:`noiselab.study.preflight.resolve_store`); a job with
+    recipes of its own keeps per-batch distributions.
     """
     preflight(study)  # every heavy step's size, before the first of them
+    job_recipes = None
     if verification is None:
         verification = recipes_verify(study.recipes.values())
+        job_recipes = study.recipes
 
     steps = ("exact energy (PySCF)", "noiseless optimum", "compile to device")
     seconds: dict[str, float] = {}
@@ -267,9 +272,11 @@ def _build_context(
     seconds["compile"] = time.perf_counter() - t
     tick(3)
     experiment = make_experiment(study, qp, compiled, plan, optimum, verification)
-    method, notice = resolve_emulation(
-        study, int(compiled.circuit.num_qubits), len(experiment.measured_bases)
+    method, notice, values = resolve_store(
+        study, int(compiled.circuit.num_qubits), experiment, job_recipes
     )
+    if values:
+        experiment = replace_experiment(experiment, trajectory_values=True)
     return StudyContext(
         study=study,
         problem=problem,
@@ -311,6 +318,9 @@ def replace_experiment(experiment: Any, **changes: Any) -> Any:
     known = experiment.__dict__.get("measured_bases")
     if known is not None and not {"plan", "problem", "verification_bases"} & changes.keys():
         out.__dict__["measured_bases"] = known
+    masks = experiment.__dict__.get("_value_masks")  # batch_spec.value_masks: bases and problem
+    if masks is not None and not {"plan", "problem", "verification_bases"} & changes.keys():
+        out.__dict__["_value_masks"] = masks
     realizer = experiment.__dict__.get("realizer")  # realized transforms: circuit and profile
     if realizer is not None and not {"compiled", "profile"} & changes.keys():
         out.__dict__["realizer"] = realizer
@@ -337,9 +347,13 @@ def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
     if not needed or ctx.experiment.verification_bases:
         return ctx
     experiment = replace_experiment(ctx.experiment, verification_bases=True)
-    method, notice = resolve_emulation(
-        ctx.study, int(ctx.compiled.circuit.num_qubits), len(experiment.measured_bases)
+    method, notice, values = resolve_store(
+        ctx.study,
+        int(ctx.compiled.circuit.num_qubits),
+        experiment,
+        ctx.study.recipes if experiment.trajectory_values else None,
     )
+    experiment = replace_experiment(experiment, trajectory_values=values)
     return dataclasses.replace(
         ctx, experiment=experiment, emulation_method=method, emulation_notice=notice
     )

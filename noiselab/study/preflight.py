@@ -25,6 +25,7 @@ The estimates are upper bounds from counting, not measurements:
 
 from __future__ import annotations
 
+from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from math import comb
 from typing import Any
@@ -32,6 +33,8 @@ from typing import Any
 from noiselab.chem.sources import source_sizes
 from noiselab.common.errors import ProblemTooLargeError, input_error
 from noiselab.common.memory import GIB, memory_budget
+from noiselab.emulate.memory import estimate_memory_bytes
+from noiselab.mitigate.batch_spec import VALUE_RECIPES, needs_distributions, value_masks
 
 #: float64 vectors over the determinants the exact solver keeps (Davidson subspace, 3 roots).
 FCI_VECTORS = 40
@@ -145,7 +148,13 @@ def preflight(study: Any) -> None:
 
 
 def emulation_method(
-    source: str, emulation: Any, circuit_qubits: int, num_bases: int = 1
+    source: str,
+    emulation: Any,
+    circuit_qubits: int,
+    num_bases: int = 1,
+    *,
+    num_values: int = -1,
+    num_qubits_measured: int | None = None,
 ) -> tuple[str, str | None]:
     """(method, notice) the emulator will use for ``circuit_qubits`` compiled qubits under the
     study's ``emulation`` settings.
@@ -153,7 +162,8 @@ def emulation_method(
     An emulation that cannot fit (``density_matrix`` beyond the memory guard or beyond
     ``emulation.max_density_matrix_qubits``; trajectories beyond the memory guard) is refused
     here, before any simulation: one line naming the study file, the qubit count and the
-    memory estimate in GiB.
+    memory estimate in GiB. ``num_values >= 0``: trajectories keep that many per-batch values
+    instead of per-batch distributions (:mod:`noiselab.emulate.batch_values`).
     """
     from noiselab.emulate.engine import choose_method
     from noiselab.emulate.memory import check_memory
@@ -178,6 +188,8 @@ def emulation_method(
                 trajectories_per_batch=max(1, e.trajectories // e.batches),
                 num_bases=num_bases,
                 num_batches=e.batches,
+                num_values=num_values,
+                num_qubits_measured=num_qubits_measured,
             )
     except ProblemTooLargeError as exc:
         raise ProblemTooLargeError(f"{source}: {exc.message}") from None
@@ -189,3 +201,67 @@ def resolve_emulation(
 ) -> tuple[str, str | None]:
     """:func:`emulation_method` for a resolved study (a :class:`noiselab.study.spec.Study`)."""
     return emulation_method(str(study.source), study.emulation, circuit_qubits, num_bases)
+
+
+def resolve_store(
+    study: Any,
+    circuit_qubits: int,
+    experiment: Any,
+    recipes: Mapping[str, Sequence[Mapping[str, Any]]] | None,
+) -> tuple[str, str | None, bool]:
+    """(method, notice, keep per-batch values) for a study's experiment, checked against the
+    memory guard before any simulation.
+
+    Under the trajectory method, per-batch values are kept when every recipe of ``recipes``
+    (the job's; None: recipes not known here, keep distributions) reads term parities only
+    (:func:`noiselab.mitigate.batch_spec.needs_distributions`). Otherwise the per-batch
+    distributions are kept; when they do not fit, a recipe that needs them is refused in one
+    line naming it and the alternatives.
+    """
+    source = str(study.source)
+    bases = len(experiment.measured_bases)
+    n = int(experiment.plan.num_qubits)
+    method, notice = emulation_method(source, study.emulation, circuit_qubits, 1)
+    if method != "trajectory":
+        return (*emulation_method(source, study.emulation, circuit_qubits, bases), False)
+    blockers = (
+        {"(this job's recipes)": "unknown"}
+        if recipes is None
+        else {k: r for k, p in recipes.items() if (r := needs_distributions(p)) is not None}
+    )
+    if not blockers:
+        values = 2 * sum(len(m) for m in value_masks(experiment))  # identity and readout inverse
+        method, notice = emulation_method(
+            source,
+            study.emulation,
+            circuit_qubits,
+            bases,
+            num_values=values,
+            num_qubits_measured=n,
+        )
+        return method, notice, True
+    try:
+        method, notice = emulation_method(
+            source, study.emulation, circuit_qubits, bases, num_qubits_measured=n
+        )
+    except ProblemTooLargeError as exc:
+        if recipes is None:
+            raise
+        name, why = next(iter(blockers.items()))
+        e = study.emulation
+        need = estimate_memory_bytes(
+            circuit_qubits,
+            "trajectory",
+            trajectories_per_batch=max(1, e.trajectories // e.batches),
+            num_bases=bases,
+            num_batches=e.batches,
+            num_qubits_measured=n,
+        )
+        raise ProblemTooLargeError(
+            f"{source}: recipes.{name}: {why} needs the per-batch outcome distributions of the "
+            f"trajectory method ({n} qubits, {bases} bases, {e.batches} batches: about "
+            f"{need / GIB:.3g} GiB) but only {memory_budget().describe()}; allowed: recipes "
+            f"with no passes or only {VALUE_RECIPES} (they keep per-batch values), "
+            "emulation.method pauli_propagation, or fewer qubits"
+        ) from exc
+    return method, notice, False

@@ -31,6 +31,7 @@ from pydantic import Field
 
 from noiselab.common.counts import MAX_SHOTS, Count
 from noiselab.common.errors import InputError
+from noiselab.emulate.calibration import per_qubit_matrices
 from noiselab.mitigate.base import (
     STAGE_CORRECT,
     Corrected,
@@ -119,18 +120,6 @@ def _calibration_gradients(
     u0 = -(g10 - g00) @ bits
     u1 = -(g01 - g11) @ (1.0 - bits)
     return u0, u1
-
-
-def per_qubit_matrices(p_all0: np.ndarray, p_all1: np.ndarray, n: int) -> list[np.ndarray]:
-    """2x2 assignment matrices A_q[measured, prepared] from the all-0 and all-1 calibration runs."""
-    k = np.arange(2**n)
-    mats = []
-    for q in range(n):
-        bit = (k >> q) & 1
-        e0 = float(np.dot(p_all0, bit))  # P(1 | 0)
-        e1 = float(np.dot(p_all1, 1 - bit))  # P(0 | 1)
-        mats.append(np.array([[1.0 - e0, e1], [e0, 1.0 - e1]]))
-    return mats
 
 
 def project_to_simplex(x: np.ndarray) -> np.ndarray:
