@@ -2,8 +2,11 @@
 
 from __future__ import annotations
 
+import multiprocessing
 import os
 import sys
+import time
+from collections.abc import Iterator
 from pathlib import Path
 
 import numpy as np
@@ -40,6 +43,24 @@ def dies_once_task(item: tuple[str, int]) -> int:
         marker.write_text("first attempt")
         os._exit(1)
     return index * index
+
+
+def marker_task(item: tuple[str, int]) -> int:
+    """Leave a marker file that item ``index`` ran, and return the index."""
+    marker_dir, index = item
+    (Path(marker_dir) / f"ran-{index}").write_text("ran")
+    return index
+
+
+def _produce_after_first_ran(folder: Path, count: int) -> Iterator[tuple[str, int]]:
+    """Items for marker_task; the second exists only once the first has run somewhere else."""
+    yield (str(folder), 0)
+    deadline = time.monotonic() + 60
+    while not (folder / "ran-0").exists():
+        assert time.monotonic() < deadline, "item 0 did not run while the items were produced"
+        time.sleep(0.02)
+    for index in range(1, count):
+        yield (str(folder), index)
 
 
 def always_dies_task(item: int) -> int:
@@ -144,6 +165,38 @@ def test_pool_workers_run_aer_single_threaded(pool: ProcessPoolExecutor) -> None
     assert pool.map(aer_threads_task, [0, 1]) == [1, 1]
 
 
+def test_pool_runs_items_while_they_are_produced(pool: ProcessPoolExecutor, tmp_path: Path) -> None:
+    # the generator waits for item 0 to have run: a map that collected the items first would
+    # time out in the generator instead
+    assert pool.map(marker_task, _produce_after_first_ran(tmp_path, 4)) == [0, 1, 2, 3]
+
+
+def test_pool_start_spawns_every_worker_before_any_task() -> None:
+    before = {p.pid for p in multiprocessing.active_children()}
+    with ProcessPoolExecutor(2) as executor:
+        executor.start()
+        executor.start()  # once started, nothing more
+        assert len({p.pid for p in multiprocessing.active_children()} - before) == 2
+        assert executor.map(seeded_task, ITEMS[:3]) == _expected()[:3]
+
+
+def test_pool_stops_when_the_items_fail(pool: ProcessPoolExecutor) -> None:
+    def produce() -> Iterator[int]:
+        yield 0
+        raise ValueError("no item 1")
+
+    with pytest.raises(ValueError, match="no item 1"):
+        pool.map(raises_task, produce())
+    assert pool.map(raises_task, iter([0, 2])) == [0, 2]  # the pool is usable afterwards
+
+
+def test_pool_retries_a_killed_worker_while_items_are_produced(tmp_path: Path) -> None:
+    items = ((str(tmp_path), i) for i in range(5))
+    with ProcessPoolExecutor(2) as executor:
+        assert executor.map(dies_once_task, items) == [i * i for i in range(5)]
+        assert executor.restarts == 1
+
+
 def test_pool_retries_a_killed_worker(tmp_path: Path) -> None:
     items = [(str(tmp_path), i) for i in range(5)]
     seen: list[int] = []
@@ -223,6 +276,12 @@ def test_dask_retries_a_killed_worker(dask_client, tmp_path: Path) -> None:
         out = executor.map(dies_once_task, items)
     assert (tmp_path / "started-2").exists()  # the first attempt really killed its worker
     assert out == [i * i for i in range(5)]
+
+
+@pytest.mark.cluster
+def test_dask_runs_items_while_they_are_produced(dask_client, tmp_path: Path) -> None:
+    with DaskExecutor(dask_client) as executor:
+        assert executor.map(marker_task, _produce_after_first_ran(tmp_path, 3)) == [0, 1, 2]
 
 
 @pytest.mark.cluster

@@ -12,21 +12,25 @@ One interface, three back ends:
 ``map(fn, items)`` preserves order and returns the same values whichever back end runs it, as
 long as ``fn`` is deterministic given its item (carry seeds in the items; never draw fresh
 randomness inside a worker). ``fn`` must be a module-level function and the items picklable.
+``items`` may be a generator: the pool and Dask submit each item as soon as it is produced, so
+the caller's work producing the next item overlaps the tasks already running (results are
+reported between items). ``start()`` starts the workers early (a no-op in-process).
 A task whose worker process dies is run again (bounded attempts): a killed worker never loses a
 point. Exceptions raised by ``fn`` itself are not retried; they propagate to the caller.
 
-Just over 400 lines: three back ends behind one ``map`` (in-process, process pool with
-retries, Dask), kept together so they keep one contract.
+About 460 lines: three back ends behind one ``map`` (in-process, process pool with retries
+and items submitted as they are produced, Dask), kept together so they keep one contract.
 """
 
 from __future__ import annotations
 
+import atexit
 import concurrent.futures
 import contextlib
 import multiprocessing
 import os
 import re
-from collections.abc import Callable, Iterator, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures.process import BrokenProcessPool
 from typing import Any, Protocol, TypeVar, runtime_checkable
 
@@ -71,7 +75,7 @@ class Executor(Protocol):
     def map(
         self,
         fn: Callable[[Any], Any],
-        items: Sequence[Any],
+        items: Iterable[Any],
         *,
         on_result: ResultCallback | None = None,
     ) -> list[Any]:
@@ -98,6 +102,9 @@ class _Base:
     def __exit__(self, *exc: object) -> None:
         self.close()
 
+    def start(self) -> None:
+        """Start the workers now, without waiting (a no-op where there is nothing to start)."""
+
     def close(self) -> None:  # pragma: no cover - overridden
         pass
 
@@ -112,7 +119,7 @@ class InProcessExecutor(_Base):
     def map(
         self,
         fn: Callable[[Any], Any],
-        items: Sequence[Any],
+        items: Iterable[Any],
         *,
         on_result: ResultCallback | None = None,
     ) -> list[Any]:
@@ -132,10 +139,14 @@ class InProcessExecutor(_Base):
 
 
 def _worker_init(threads: int) -> None:
-    """Process-pool initializer: cap OpenMP / BLAS threads before any engine is loaded."""
+    """Pool initializer: cap OpenMP / BLAS threads before any engine is loaded; exit fast."""
     for name in THREAD_ENV_VARS:
         os.environ[name] = str(threads)
     os.environ[ENGINE_THREADS_ENV] = str(threads)
+    # Leave without tearing the modules down (qiskit, PySCF: about a quarter of their import
+    # time), which the pool's close would wait for: every result is sent by then, the results
+    # cache commits each write and the standard streams are flushed before the exit handlers.
+    atexit.register(os._exit, 0)
 
 
 @contextlib.contextmanager
@@ -205,53 +216,100 @@ class ProcessPoolExecutor(_Base):
                     process.terminate()
         pool.shutdown(wait=True, cancel_futures=True)
 
+    def start(self) -> None:
+        """Start every worker now, without waiting for them (each spawned worker imports the
+        stack, seconds): the caller's own work then overlaps the start-up. No-op once started."""
+        if self._pool is not None:
+            return
+        pool = self._ensure_pool()
+        # a process is spawned per submitted task until ``workers`` exist (spawn start method)
+        with _environment(self._env()):
+            for _ in range(self.workers):
+                pool.submit(os.getpid)
+
     def map(
         self,
         fn: Callable[[Any], Any],
-        items: Sequence[Any],
+        items: Iterable[Any],
         *,
         on_result: ResultCallback | None = None,
     ) -> list[Any]:
-        items = list(items)
+        stored: list[Any] = []
         results: dict[int, Any] = {}
-        tries = dict.fromkeys(range(len(items)), 0)
-        pending = list(range(len(items)))
-        while pending:
+        tries: dict[int, int] = {}
+        futures: dict[concurrent.futures.Future[Any], int] = {}
+
+        def submit(indices: Sequence[int]) -> bool:
+            """Submit; False when the pool is found broken (the tasks are left unsubmitted)."""
             pool = self._ensure_pool()
             # Spawned workers inherit the environment at start: cap their threads from the start.
             with _environment(self._env()):
-                futures = {pool.submit(fn, items[i]): i for i in pending}
-            for i in pending:
-                tries[i] += 1
-            broken = False
-            try:
-                for future in concurrent.futures.as_completed(futures):
-                    index = futures[future]
+                for i in indices:
                     try:
-                        result = future.result()
+                        futures[pool.submit(fn, stored[i])] = i
                     except BrokenProcessPool:
-                        broken = True
-                        continue
-                    results[index] = result
-                    if on_result is not None:
-                        on_result(index, result)
-            except BaseException:
-                for future in futures:
-                    future.cancel()
-                self._drop_pool(kill=True)
-                raise
-            pending = [i for i in pending if i not in results]
-            if broken or pending:
+                        return False
+                    tries[i] = tries.get(i, 0) + 1
+            return True
+
+        def harvest(timeout: float | None, every: bool = False) -> bool:
+            """Report finished tasks (waiting up to ``timeout`` s for one, or for all with
+            ``every``); True when a worker died under one."""
+            done, _ = concurrent.futures.wait(
+                futures,
+                timeout=timeout,
+                return_when=(
+                    concurrent.futures.ALL_COMPLETED
+                    if every
+                    else concurrent.futures.FIRST_COMPLETED
+                ),
+            )
+            broken = False
+            for future in done:
+                index = futures.pop(future)
+                try:
+                    result = future.result()
+                except BrokenProcessPool:
+                    broken = True
+                    continue
+                results[index] = result
+                if on_result is not None:
+                    on_result(index, result)
+            return broken
+
+        def restart() -> None:
+            """A worker died: keep what finished, rebuild the pool, submit the rest again."""
+            while True:
+                harvest(None, every=True)  # a broken pool fails its other tasks promptly
                 self._drop_pool()
                 self.restarts += 1
-                worst = max((tries[i] for i in pending), default=0)
+                pending = [i for i in range(len(stored)) if i not in results]
+                worst = max((tries.get(i, 0) for i in pending), default=0)
                 if worst >= self.attempts:
                     raise NoiselabError(
-                        f"{self.description}: a worker process died {worst} times while running "
-                        f"{len(pending)} unfinished task(s) (first: #{pending[0]}); "
+                        f"{self.description}: a worker process died {worst} times while "
+                        f"running {len(pending)} unfinished task(s) (first: #{pending[0]}); "
                         "likely out of memory or a crash in the engine"
                     )
-        return [results[i] for i in range(len(items))]
+                if submit(pending):
+                    return
+
+        try:
+            # Items are submitted as they are produced: the caller's work producing the next
+            # item overlaps the tasks already running.
+            for item in items:
+                stored.append(item)
+                if not submit([len(stored) - 1]) or harvest(0):
+                    restart()
+            while futures:
+                if harvest(None):
+                    restart()
+        except BaseException:
+            for future in futures:
+                future.cancel()
+            self._drop_pool(kill=True)
+            raise
+        return [results[i] for i in range(len(stored))]
 
     def close(self) -> None:
         self._drop_pool()
@@ -325,27 +383,31 @@ class DaskExecutor(_Base):
     def map(
         self,
         fn: Callable[[Any], Any],
-        items: Sequence[Any],
+        items: Iterable[Any],
         *,
         on_result: ResultCallback | None = None,
     ) -> list[Any]:
         distributed = _import_distributed()
-        items = list(items)
-        if not items:
-            return []
-        # pure=False: never let the scheduler merge two tasks, nor reuse results of an earlier map.
-        futures = [
-            self._client.submit(fn, item, retries=self.retries, pure=False) for item in items
-        ]
-        index_of = {future.key: i for i, future in enumerate(futures)}
+        futures: list[Any] = []
         results: dict[int, Any] = {}
+
+        def collect(index: int, future: Any) -> None:
+            results[index] = future.result()
+            if on_result is not None:
+                on_result(index, results[index])
+
         try:
-            for future in distributed.as_completed(futures, loop=self._client.loop):
-                index = index_of[future.key]
-                result = future.result()
-                results[index] = result
-                if on_result is not None:
-                    on_result(index, result)
+            # pure=False: never let the scheduler merge two tasks, nor reuse earlier results.
+            for item in items:  # submitted as produced; finished ones reported between items
+                futures.append(self._client.submit(fn, item, retries=self.retries, pure=False))
+                for index, future in enumerate(futures):
+                    if index not in results and future.done():
+                        collect(index, future)
+            index_of = {future.key: i for i, future in enumerate(futures)}
+            waiting = [f for i, f in enumerate(futures) if i not in results]
+            if waiting:
+                for future in distributed.as_completed(waiting, loop=self._client.loop):
+                    collect(index_of[future.key], future)
         except distributed.client.FutureCancelledError as exc:  # pragma: no cover
             raise NoiselabError(f"{self.description}: tasks were cancelled ({exc})") from None
         except BaseException as exc:
@@ -357,7 +419,7 @@ class DaskExecutor(_Base):
                     "(likely out of memory or a crash in the engine)"
                 ) from None
             raise
-        return [results[i] for i in range(len(items))]
+        return [results[i] for i in range(len(futures))]
 
     def close(self) -> None:
         if self._owns_client and self._client is not None:

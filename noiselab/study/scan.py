@@ -13,8 +13,11 @@ How points run:
    as ``warm_start_from``); cached under the point's study and that start.
 2. The points not in the results cache are independent tasks on the study executor (in-process,
    process pool or Dask): each builds its own context (PySCF, compile, plan) with the optimum of
-   step 1 and runs the recipes through a caching runner. A finished point is stored whole, so a
-   resumed scan computes only the missing ones.
+   step 1 and runs the recipes through a caching runner. A point is handed over as soon as its
+   optimum is known, so the next optimizations overlap the running points, and the workers are
+   started (spawned workers import the stack: seconds) before the first optimization when
+   there is no cache, else at the first missing point (a resumed scan may need none). A
+   finished point is stored whole, so a resumed scan computes only the missing ones.
 3. Refinement (``refine`` rounds, default 2): two more points at x* +- h/4**(r+1) around the
    exact curve's fitted minimum x* (h: the grid spacing), so the derived numbers rest on points
    near the minimum.
@@ -42,7 +45,7 @@ import json
 import math
 import os
 import time
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
@@ -657,6 +660,8 @@ def scan(
     own = executor is None
     ex = make_executor(workers, cluster) if own else executor
     try:
+        if not store.enabled:  # the workers start (seconds) while the first points optimize
+            _start(ex)
         values = list(axis.grid())
         for rnd in range(axis.refine + 1):
             _run_points(
@@ -701,6 +706,14 @@ def scan(
     )
 
 
+def _start(ex: Any) -> None:
+    """Start the executor's workers without waiting for them (executors without ``start``:
+    nothing to do)."""
+    start = getattr(ex, "start", None)
+    if start is not None:
+        start()
+
+
 def _run_points(
     study: Study,
     axis: ScanAxis,
@@ -714,50 +727,62 @@ def _run_points(
     progress: ProgressHook | None,
     on_point: Callable[[ScanPoint], None] | None,
 ) -> None:
-    """Optimize ``values`` in order (warm starts), then run the uncached points as tasks."""
-    tasks: list[tuple[str, PointTask]] = []
-    for v in values:
-        s = study_at(study, axis, v)
-        near = min(optima, key=lambda c: abs(c - v)) if optima else None
-        opt = _warm_optimum(s, None if near is None else optima[near], store)
-        optima[v] = np.asarray(opt.parameters)
-        key = _point_key(s, picked, opt)
-        hit = store.get(POINT_KIND, key) if store.enabled else None
-        if hit is not None:
-            try:
-                done[v] = point_from_record(json.loads(hit[0]))
-                totals[1] += 1
-                if on_point is not None:
-                    on_point(done[v])
-                continue
-            except (ValueError, TypeError, KeyError):
-                pass
-        tasks.append((key, PointTask(v, s, picked, store, opt, near)))
-    total = len(tasks)
+    """Optimize ``values`` in order (warm starts); each uncached point goes to the executor as
+    soon as its optimum is known, so the next optimizations overlap the running points."""
+    keys: list[str] = []
+    total = len(values)
     count = [0]
+
+    def advance() -> None:
+        if progress is not None:
+            count[0] += 1
+            progress("scan points", count[0], total)
+
+    def tasks() -> Iterator[PointTask]:
+        for v in values:
+            s = study_at(study, axis, v)
+            near = min(optima, key=lambda c: abs(c - v)) if optima else None
+            opt = _warm_optimum(s, None if near is None else optima[near], store)
+            optima[v] = np.asarray(opt.parameters)
+            key = _point_key(s, picked, opt)
+            hit = store.get(POINT_KIND, key) if store.enabled else None
+            if hit is not None:
+                try:
+                    done[v] = point_from_record(json.loads(hit[0]))
+                except (ValueError, TypeError, KeyError):
+                    pass
+                else:
+                    totals[1] += 1
+                    advance()
+                    if on_point is not None:
+                        on_point(done[v])
+                    continue
+            if not keys:  # a resumed scan starts no worker unless a point is missing
+                _start(ex)
+            keys.append(key)
+            yield PointTask(v, s, picked, store, opt, near)
+
     if progress is not None:
         progress("scan points", 0, total)
 
     def finished(i: int, out: PointOutcome) -> None:
-        key, _ = tasks[i]
         done[out.point.coordinate] = out.point
         if store.enabled:
-            store.put(POINT_KIND, key, json.dumps(jsonable(dataclasses.asdict(out.point))).encode())
+            store.put(
+                POINT_KIND, keys[i], json.dumps(jsonable(dataclasses.asdict(out.point))).encode()
+            )
         totals[0] += out.simulations
         totals[1] += out.cache_hits
         totals[2] += out.engine_seconds
-        if progress is not None:
-            count[0] += 1
-            progress("scan points", count[0], total)
+        advance()
         if on_point is not None:
             on_point(out.point)
 
-    items = [t for _, t in tasks]
     if getattr(ex, "in_process", True):
-        for i, t in enumerate(items):
+        for i, t in enumerate(tasks()):
             finished(i, run_point(t))
     else:
-        ex.map(run_point, items, on_result=finished)
+        ex.map(run_point, tasks(), on_result=finished)
 
 
 def write_scan_data(result: ScanResult, out: str | Path) -> list[Path]:
