@@ -144,3 +144,7 @@ def main(argv: list[str] | None = None) -> None:
     if rc == 130:  # typer turns Ctrl-C into a silent Exit(130) when not standalone
         typer.echo(INTERRUPTED, err=True)
     sys.exit(rc if isinstance(rc, int) else 0)
+
+
+if __name__ == "__main__":  # python -m noiselab.cli.app
+    main()

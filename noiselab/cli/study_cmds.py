@@ -323,10 +323,11 @@ _ASSESS_HELP = (
 )
 _TUNE_HELP = (
     "Rank a grid of mitigation settings by the probability of reaching the target.\n\n"
-    "The grid is readout method x post-selection mode x amplifier x scale set x "
-    "fit, plus the families error cancellation and distillation, from the options here, else "
-    "the study's tune: section, else a built-in grid of more than 150 settings. Settings that "
-    "need the same circuits share their simulations."
+    "The grid is suppression x readout method x post-selection mode x amplifier x scale set "
+    "x fit, plus the families error cancellation and distillation, from the options here, else "
+    "the study's tune: section, else the built-in grid (several hundred settings; suppression "
+    "that changes nothing on the profile is left out with a note). Settings that need the same "
+    "circuits share their simulations."
 )
 
 

@@ -415,7 +415,7 @@ def extrapolation_figure(result: AssessResult | ExtrapolationFigureData, ax: Any
         zx.set_ylim(lo, hi)
         zx.set_xlim(-half, half)  # around scale 0, where the stars are
         zx.set_xticks([0.0], ["0"])
-        zx.set_xlabel("noise scale factor 0 (extrapolated)")
+        zx.set_xlabel("noise scale 0\n(extrapolated)")
         zx.set_title("zoom on the target band:\nthe extrapolated energies", fontsize=font(9))
         if outside:
             zx.text(
