@@ -181,7 +181,7 @@ def test_optimum_warnings_name_each_failure(h2):
         )
 
     assert optimum_warnings(result(qp.exact_energy_ha, 30.0, 0.0), qp, 1.6, 0.0) == ()
-    mid = qp.exact_energy_ha + 0.005
+    mid = qp.exact_energy_ha + 0.001  # 1 mHa above exact: under the 1.6 mHa target
     (w,) = optimum_warnings(result(mid, 2.0, 0.0), qp, 1.6, 0.0)
     assert "two lowest of 4 starts differ by 2 mHa" in w
     assert optimum_warnings(result(mid, 1.0, 0.0), qp, 1.6, 0.0) == ()
@@ -192,6 +192,13 @@ def test_optimum_warnings_name_each_failure(h2):
     assert optimum_warnings(result(mid, 0.0, 2.0), qp, 1.6, None) == ()
     (w,) = optimum_warnings(result(qp.exact_energy_ha - 0.01, 0.0, 0.0), qp, 1.6, 0.0)
     assert "10 mHa below the exact energy" in w and "left that sector" in w
+    # 5 mHa above exact, over the target: the share of the correlation energy recovered is
+    # (E_HF - E) / (E_HF - E_FCI), with E_HF and E_FCI from PySCF's RHF and FCI (h2 fixture)
+    far = qp.exact_energy_ha + 0.005
+    share = 100.0 * (h2.hf_energy_ha - far) / (h2.hf_energy_ha - h2.exact_energy_ha)
+    (w,) = optimum_warnings(result(far, 0.0, 0.0), qp, 1.6, 0.0)
+    assert "5 mHa above the exact energy" in w and f"recovers {share:.0f} %" in w
+    assert "no mitigation removes that part" in w
 
 
 def test_stuck_optimum_is_warned_in_json_table_and_verdict(tmp_path, capsys) -> None:
