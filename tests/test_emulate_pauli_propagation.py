@@ -26,7 +26,7 @@ from noiselab.emulate.pauli_propagation import (
     terms_from_labels,
     twirled_fidelities,
 )
-from tests.helpers.twirl import explicit_twirl, twirled_noise_model
+from tests.helpers.twirl import explicit_twirl, twirled_study_reference
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -227,44 +227,21 @@ def test_grouped_energy_and_variance_equal_the_density_matrix_engine() -> None:
     # outside reference: qiskit-aer's density-matrix simulation (through noiselab's engine, which
     # adds the basis layer and the per-qubit readout to aer's state) of the same twirled noise;
     # each group's estimator mean and single-shot variance from the exact distributions
-    from noiselab.emulate.device_inputs import layer_spec_for
-    from noiselab.emulate.engine import emulate_circuit_bases
     from noiselab.emulate.pauli_circuit import pauli_energy
-    from noiselab.mitigate.plan import build_plan
-    from noiselab.study.context import build_context
-    from noiselab.study.spec import load_study
 
-    study = load_study(ROOT / "configs" / "studies" / "h2-equilibrium.yaml")
-    ctx = build_context(study)
-    compiled, profile = ctx.compiled, study.profile
-    model = twirled_noise_model(profile, compiled.patch)
-    plan = build_plan(ctx.qubit_problem.hamiltonian)
-    from noiselab.device.noise import readout_matrices
-
-    mats = readout_matrices(profile, compiled.patch)
-    readout = [mats[c] for c in compiled.logical_to_circuit]
-    layer = layer_spec_for(profile, compiled.circuit.num_qubits)
-    dist = emulate_circuit_bases(
-        compiled.circuit,
-        model,
-        plan.bases,
-        layer=layer,
-        logical_to_circuit=list(compiled.logical_to_circuit),
-        readout_matrices=readout,
-        method="density_matrix",
-    )
-    want_means = [float(dist.probs[i] @ g.weights) for i, g in enumerate(plan.groups)]
+    ref = twirled_study_reference(ROOT / "configs" / "studies" / "h2-equilibrium.yaml")
+    plan = ref.plan
+    want_means = [float(ref.probs[i] @ g.weights) for i, g in enumerate(plan.groups)]
     want_vars = [
-        float(dist.probs[i] @ g.weights**2) - want_means[i] ** 2 for i, g in enumerate(plan.groups)
+        float(ref.probs[i] @ g.weights**2) - want_means[i] ** 2 for i, g in enumerate(plan.groups)
     ]
-    groups = [(g.basis, list(zip(g.labels, np.real(g.coeffs), strict=True))) for g in plan.groups]
     got = pauli_energy(
-        compiled.circuit,
-        model,
-        groups,
-        compiled.logical_to_circuit,
-        layer,
-        readout,
+        ref.circuit,
+        ref.model,
+        ref.groups,
+        ref.logical_to_circuit,
+        ref.layer,
+        ref.readout,
         constant_ha=plan.constant,
     )
     assert got.group_energy_ha == pytest.approx(want_means, abs=1e-10)

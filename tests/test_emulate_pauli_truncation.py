@@ -19,7 +19,7 @@ from noiselab.emulate.pauli_propagation import (
     terms_from_labels,
 )
 from noiselab.emulate.pauli_truncation import Sampling, propagate_estimated
-from tests.helpers.twirl import twirled_noise_model
+from tests.helpers.twirl import twirled_study_reference
 
 ROOT = Path(__file__).resolve().parents[1]
 
@@ -109,44 +109,22 @@ def test_estimate_agrees_with_the_density_matrix_at_8_qubits() -> None:
     # 8-qubit benchmark study; the truncated energy plus the estimate must meet it within 3
     # standard errors, the estimate must be within 10x of the true difference, and the
     # rigorous bound must hold (it is far looser)
-    from noiselab.device.noise import readout_matrices
-    from noiselab.emulate.device_inputs import layer_spec_for
-    from noiselab.emulate.engine import emulate_circuit_bases
     from noiselab.emulate.pauli_circuit import pauli_energy
-    from noiselab.mitigate.plan import build_plan
-    from noiselab.study.context import build_context
-    from noiselab.study.spec import load_study
 
-    study = load_study(ROOT / "benchmarks" / "studies" / "hchain-8.yaml")
-    ctx = build_context(study)
-    c, profile = ctx.compiled, study.profile
-    model = twirled_noise_model(profile, c.patch)
-    plan = build_plan(ctx.qubit_problem.hamiltonian)
-    mats = readout_matrices(profile, c.patch)
-    readout = [mats[q] for q in c.logical_to_circuit]
-    layer = layer_spec_for(profile, c.circuit.num_qubits)
-    dist = emulate_circuit_bases(
-        c.circuit,
-        model,
-        plan.bases,
-        layer=layer,
-        logical_to_circuit=list(c.logical_to_circuit),
-        readout_matrices=readout,
-        method="density_matrix",
-    )
-    want = plan.constant + sum(float(dist.probs[i] @ g.weights) for i, g in enumerate(plan.groups))
-    groups = [(g.basis, list(zip(g.labels, np.real(g.coeffs), strict=True))) for g in plan.groups]
+    ref = twirled_study_reference(ROOT / "benchmarks" / "studies" / "hchain-8.yaml")
+    plan = ref.plan
+    want = plan.constant + sum(float(ref.probs[i] @ g.weights) for i, g in enumerate(plan.groups))
     for threshold in (1e-3, 1e-4):
         got = pauli_energy(
-            c.circuit,
-            model,
-            groups,
-            c.logical_to_circuit,
-            layer,
-            readout,
+            ref.circuit,
+            ref.model,
+            ref.groups,
+            ref.logical_to_circuit,
+            ref.layer,
+            ref.readout,
             Truncation(min_abs_coeff=threshold),
             constant_ha=plan.constant,
-            sampling=Sampling(seed=study.seed, tag_step=2),
+            sampling=Sampling(seed=ref.seed, tag_step=2),
         )
         true_error = want - got.energy_ha
         est, std = got.truncation_estimate_ha, got.truncation_std_ha
