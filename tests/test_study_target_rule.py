@@ -106,6 +106,42 @@ def test_closest_recipe_when_none_reaches_is_ranked_by_p_then_bias() -> None:
     assert best_of({"a": r(1.0, 0.5, 10**7), "b": r(-1.0, 0.5, 10**6)}) == "b"
 
 
+def test_every_fixed_variance_source_gets_its_own_verdict_words() -> None:
+    # a result kept out of reach by a fixed variance names that variance, its size and the
+    # remedy, never "its bias keeps it out of reach" (common practice, no source)
+    from types import SimpleNamespace
+
+    from noiselab.mitigate.target import FIXED_WORDS
+    from noiselab.study.results import FIXED_VERDICT, verdict_line
+
+    details = {
+        "std_calibration_mha": 1.1,
+        "std_amplification_mha": 2.2,
+        "error_cancellation": {"std_learning_mha": 3.3},
+        "std_twirl_mha": 4.4,
+        "twirl_instances": 8,
+        "truncation_estimate_std_mha": 5.5,
+    }
+    assert set(FIXED_VERDICT) == set(FIXED_WORDS)  # every named fixed source has its words
+    for i, source in enumerate(FIXED_VERDICT):
+        best = SimpleNamespace(
+            bias_exact_mha=0.5,
+            p_within_target=0.4,
+            shots_needed=None,
+            limited_by=source,
+            details=details,
+        )
+        ok, text = verdict_line("r", best, 1.5936, 0.95, 10**6)
+        assert not ok
+        assert f"({1.1 * (i + 1):.3g} mHa) does not shrink with more" in text, source
+        assert "its bias keeps it out of reach" not in text
+    best = SimpleNamespace(
+        bias_exact_mha=0.5, p_within_target=0.4, shots_needed=None, limited_by="twirl",
+        details=details,
+    )  # fmt: skip
+    assert "between its 8 random twirls (4.4 mHa)" in verdict_line("r", best, 1.6, 0.95, 10)[1]
+
+
 def test_study_where_every_recipe_fails_names_the_smallest_bias(store, tmp_path: Path) -> None:
     """H2 on the deliberately poor rustbucket-6: raw first in the file, no recipe close."""
     from noiselab.study.assess import assess

@@ -31,7 +31,7 @@ from scipy.optimize import brentq
 from scipy.special import ndtr
 
 LimitedBy = Literal[
-    "bias", "calibration", "amplification", "learning", "twirl", "shots", "none"
+    "bias", "calibration", "amplification", "learning", "twirl", "truncation", "shots", "none"
 ]
 MAX_SHOTS = 10**15
 #: how a note names the fixed part of the variance that keeps P low
@@ -40,6 +40,7 @@ FIXED_WORDS = {
     "amplification": "the uncertainty of the realized noise amplification",
     "learning": "the uncertainty of the learned noise model",
     "twirl": "the spread between the finite number of random twirls",
+    "truncation": "the uncertainty of the truncation estimate",
 }
 
 

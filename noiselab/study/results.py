@@ -179,6 +179,54 @@ def best_of(results: Mapping[str, Any]) -> str:
     return min(names, key=lambda n: (*rank_key(results[n]), names.index(n)))
 
 
+#: limited_by of a fixed (shot-independent) variance -> (what it is, with ``{twirls}`` for the
+#: number of random twirls; where its std sits in ``details``; the shots it ignores; the remedy)
+FIXED_VERDICT: dict[str, tuple[str, tuple[str, ...], str, str]] = {
+    "calibration": (
+        "its readout-calibration noise",
+        ("std_calibration_mha",),
+        "measurement shots",
+        "; raise the readout pass's calibration_shots",
+    ),
+    "amplification": (
+        "the uncertainty of its realized noise amplification",
+        ("std_amplification_mha",),
+        "shots",
+        "",
+    ),
+    "learning": (
+        "the uncertainty of its learned noise model",
+        ("error_cancellation", "std_learning_mha"),
+        "shots",
+        "",
+    ),
+    "twirl": (
+        "the spread between its {twirls} random twirls",
+        ("std_twirl_mha",),
+        "shots",
+        "; raise the twirl pass's draws",
+    ),
+    "truncation": (
+        "the uncertainty of its truncation estimate",
+        ("truncation_estimate_std_mha",),
+        "shots",
+        "; lower emulation.truncation.check_factor or min_abs_coeff",
+    ),
+}
+
+
+def fixed_variance_words(source: str, details: Mapping[str, Any]) -> str:
+    """'<what it is> (<std> mHa) does not shrink with more shots<; remedy>' for a result that
+    a fixed variance of ``source`` (a key of :data:`FIXED_VERDICT`) keeps out of reach."""
+    what, path, shots, remedy = FIXED_VERDICT[source]
+    std: Any = details
+    for key in path:
+        std = std.get(key) if isinstance(std, Mapping) else None
+    amount = f" ({float(std):.3g} mHa)" if std is not None else ""
+    what = what.format(twirls=details.get("twirl_instances", "finite"))
+    return f"{what}{amount} does not shrink with more {shots}{remedy}"
+
+
 def verdict_line(
     best_name: str,
     best: Any,
@@ -213,35 +261,8 @@ def verdict_line(
     details = getattr(best, "details", None) or {}
     if needed is not None:
         text = f"{head}: it would need {format_count(needed)} shots."
-    elif str(best.limited_by) == "calibration":
-        cal_std = details.get("std_calibration_mha")
-        cal = f" ({float(cal_std):.3g} mHa)" if cal_std is not None else ""
-        text = (
-            f"{head}: its readout-calibration noise{cal} does not shrink with more measurement "
-            "shots; raise the readout pass's calibration_shots."
-        )
-    elif str(best.limited_by) == "amplification":
-        amp_std = details.get("std_amplification_mha")
-        amp = f" ({float(amp_std):.3g} mHa)" if amp_std is not None else ""
-        text = (
-            f"{head}: the uncertainty of its realized noise amplification{amp} does not shrink "
-            "with more shots."
-        )
-    elif str(best.limited_by) == "learning":
-        ec = details.get("error_cancellation") or {}
-        std = ec.get("std_learning_mha")
-        learn = f" ({float(std):.3g} mHa)" if std is not None else ""
-        text = (
-            f"{head}: the uncertainty of its learned noise model{learn} does not shrink with "
-            "more shots."
-        )
-    elif str(best.limited_by) == "twirl":
-        std = details.get("std_twirl_mha")
-        tw = f" ({float(std):.3g} mHa)" if std is not None else ""
-        text = (
-            f"{head}: the spread between its {details.get('twirl_instances', 'finite')} random "
-            f"twirls{tw} does not shrink with more shots; raise the twirl pass's draws."
-        )
+    elif str(best.limited_by) in FIXED_VERDICT:
+        text = f"{head}: {fixed_variance_words(str(best.limited_by), details)}."
     else:
         text = f"{head}: its bias keeps it out of reach at any shot count."
     return False, _with_amplification(text, best)
