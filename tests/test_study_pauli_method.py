@@ -152,6 +152,24 @@ def test_recipes_needing_distributions_are_refused_in_one_line(tmp_path: Path) -
     assert "\n" not in text and "recipes.post" in text and "per_qubit_inverse" in text
 
 
+def test_former_check_factor_key_and_bad_keep_factor_get_one_line(tmp_path: Path) -> None:
+    from noiselab.study.spec import load_study
+
+    path = _study(tmp_path, cut=1e-3)
+    text = path.read_text()
+    for extra, words in (
+        ("check_factor: 0.1", ("check_factor", "did you mean `keep_factor`")),
+        ("keep_factor: 0", ("keep_factor", "greater than 0")),
+        ("keep_factor: 2", ("keep_factor", "less than or equal to 1")),
+    ):
+        path.write_text(text.replace("    min_abs_coeff:", f"    {extra}\n    min_abs_coeff:"))
+        with pytest.raises(InputError) as info:
+            load_study(path)
+        message = str(info.value)
+        assert "\n" not in message and str(path) in message, message
+        assert all(w in message for w in words), message
+
+
 def test_twenty_qubits_pass_the_emulation_guard_and_the_plan_stays_sparse() -> None:
     from noiselab.mitigate.plan import build_plan, weight_vector
     from noiselab.study.preflight import emulation_method
@@ -194,6 +212,7 @@ def test_truncation_estimate_is_reported_and_workers_give_the_same_numbers(
     # reference for the estimate: the untruncated assess of the same study (equal to aer's
     # density matrix above); the pool path must give the in-process numbers (one task per
     # group, draws hashed per string: noiselab.emulate.pauli_truncation)
+    from noiselab.emulate.pauli_circuit import ENERGY_CHUNKS
     from noiselab.study.assess import assess
 
     exact = assess(_study(tmp_path), cache=False).recipes["raw"]
@@ -204,12 +223,18 @@ def test_truncation_estimate_is_reported_and_workers_give_the_same_numbers(
     true_mha = (exact.energy_ha - raw.energy_ha) * 1e3
     assert abs(true_mha - est) <= 3 * std
     assert abs(true_mha) <= raw.details["truncation_bound_mha"]
+    assert abs(true_mha) <= raw.details["truncation_limit_mha"] == pytest.approx(abs(est) + 3 * std)
     entry = inproc.to_json()["recipes"]["raw"]
     assert entry["truncation_estimate_mha"] == est
     assert entry["truncation_estimate_std_mha"] == std
+    assert entry["truncation_limit_mha"] == raw.details["truncation_limit_mha"]
     assert "truncation error estimate" in inproc.emulation_notice
-    assert raw.details["propagation_tasks"] == 1
-    assert pooled.recipes["raw"].details["propagation_tasks"] == len(raw.shots_per_circuit) > 1
+    assert "truncation limit (|estimate| + 3 standard errors" in inproc.emulation_notice
+    # in-process: the energy sums and the groups' moments, one joint run each; pooled: each
+    # energy sum and each share of the moments is a task
+    assert raw.details["propagation_tasks"] == 2
+    chunks = min(ENERGY_CHUNKS, len(raw.shots_per_circuit))
+    assert pooled.recipes["raw"].details["propagation_tasks"] == 2 * chunks > 2
     print(f"h2 at 1e-3: true {true_mha:.4g} mHa, estimate {est:.4g} +- {std:.3g} mHa")
     for name, r in inproc.recipes.items():
         p = pooled.recipes[name]
@@ -219,6 +244,7 @@ def test_truncation_estimate_is_reported_and_workers_give_the_same_numbers(
             "truncation_bound_mha",
             "truncation_estimate_mha",
             "truncation_estimate_std_mha",
+            "truncation_limit_mha",
         ):
             assert p.details[key] == pytest.approx(r.details[key], rel=1e-9, abs=1e-9)
         assert p.p_within_target == pytest.approx(r.p_within_target, abs=1e-12)

@@ -122,8 +122,9 @@ def _loc_to_path(loc: Sequence[Any]) -> str:
 
 #: File keys renamed so that a file, the command line and the results use one word (the tune
 #: axis ``amplification`` is ``amplifier`` like the recipes' option; ``sweep.vary`` is
-#: ``sweep.knob`` like the sweep's results): the former name suggests the present one.
-FORMER_KEYS = {"amplification": "amplifier", "vary": "knob"}
+#: ``sweep.knob`` like the sweep's results; the truncation estimate's ``check_factor`` gave way
+#: to ``keep_factor``): the former name suggests the present one.
+FORMER_KEYS = {"amplification": "amplifier", "vary": "knob", "check_factor": "keep_factor"}
 
 
 def closest_key(key: str, allowed: Sequence[str]) -> str | None:

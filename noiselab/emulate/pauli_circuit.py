@@ -14,6 +14,7 @@ per shot of each group, and the truncation bound, without any density matrix.
 
 from __future__ import annotations
 
+import dataclasses
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass
 from typing import Any
@@ -39,7 +40,7 @@ from noiselab.emulate.pauli_propagation import (
 from noiselab.emulate.pauli_truncation import Sampling, TruncationEstimate, propagate_estimated
 
 _ONE = np.uint64(1)
-#: With sampling, the measured observable is expanded with this fraction of the threshold.
+#: The measured observables' means are expanded with this fraction of the threshold.
 EXPANSION_REFINE = 1e-2
 
 
@@ -175,19 +176,25 @@ class PauliEnergy:
     tasks: int = 1
 
 
-#: One unit of work: (observable terms of some groups, program, rule, sampling or None, the
-#: finer-expanded means for the estimate's check run or None).
-PropagationTask = tuple[
-    PauliTerms, Sequence[Instruction], Truncation, Sampling | None, PauliTerms | None
-]
+#: One unit of work: (observable terms, program, rule, sampling or None).
+PropagationTask = tuple[PauliTerms, Sequence[Instruction], Truncation, Sampling | None]
+
+#: The energy is propagated as this many sums of groups (group g in sum g mod ENERGY_CHUNKS, one
+#: tag each): equal strings of different groups merge, so a 20-qubit H10 energy at threshold
+#: 1e-6 keeps 1.4e6 strings alive where one tag per group kept more than 4e6
+#: (benchmarks/pauli_propagation.py); a fixed count: a pool's tasks give the in-process numbers.
+ENERGY_CHUNKS = 16
+#: Each group's mean and second moment (its shot variance) are propagated at this multiple of
+#: the threshold: they set the shot allocation and std_mha, not the energy.
+VARIANCE_FACTOR = 10.0
 
 
 def propagate_task(item: PropagationTask) -> tuple[Propagated, TruncationEstimate | None]:
     """One task of :func:`pauli_energy` (module level and picklable: an executor's ``fn``)."""
-    observable, program, rule, sampling, check = item
+    observable, program, rule, sampling = item
     if sampling is None:
         return propagate(observable, program, rule), None
-    return propagate_estimated(observable, program, rule, sampling, check)
+    return propagate_estimated(observable, program, rule, sampling)
 
 
 def pauli_energy(
@@ -207,26 +214,32 @@ def pauli_energy(
 
     ``groups``: (basis label over logical qubits, [(term label, coefficient), ...]) with every
     term qubit-wise compatible with its basis; ``readout[l]``: 2x2 assignment matrix of logical
-    qubit l (None: ideal). The variance of a group's single-shot estimator ``sum_t h_t o_t`` is
-    ``E[(sum h o)^2] - E[sum h o]^2``; each product ``o_t o_s`` of outcomes is the measured
-    observable on the qubits where exactly one of t, s acts, so both moments are propagated.
+    qubit l (None: ideal). The energy is propagated as :data:`ENERGY_CHUNKS` sums of the
+    groups' measured observables with ``rule`` (its truncation bound and, with ``sampling``, its
+    estimate are the energy's). The variance of a group's single-shot estimator ``sum_t h_t
+    o_t`` is ``E[(sum h o)^2] - E[sum h o]^2``; each product ``o_t o_s`` of outcomes is the
+    measured observable on the qubits where exactly one of t, s acts, so both moments of every
+    group are propagated, at :data:`VARIANCE_FACTOR` times the threshold.
     ``outcome_values[l]``: the values (for reported 0, 1) the estimator gives logical qubit l's
     outcome (None: +-1; a per-qubit readout correction ``A_l^-T (1, -1)``); then a shared
     qubit of o_t o_s contributes its squared value, and the partial products dropped while
     expanding are bounded with each M's norm bound (sum of |Pauli coefficients|).
-    ``sampling``: also estimate the truncation error (means only); ``executor``: an object with
-    ``map(fn, items)`` and ``parallelism`` (noiselab.study.executor) that runs the groups as
-    :func:`propagate_task` tasks (same numbers as one joint run, up to rounding)."""
+    ``executor``: an object with ``map(fn, items)`` and ``parallelism``
+    (noiselab.study.executor) that runs each energy sum and each share of the groups' moments as
+    a :func:`propagate_task` (the same numbers as in-process, up to rounding)."""
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
     cut = rule.min_abs_coeff
-    # the estimate's check run expands more finely: its truncation then drops those products,
-    # so they are sampled too, instead of joining only the bound
-    fine_cut = cut * EXPANSION_REFINE * (sampling.finer if sampling is not None else 1.0)
-    parts: list[PauliTerms] = []
-    checks: list[PauliTerms] = []
-    lost, fine_lost = np.zeros(len(groups)), np.zeros(len(groups))
+    var_rule = dataclasses.replace(rule, min_abs_coeff=cut * VARIANCE_FACTOR)
+    # the means are expanded more finely than the threshold: the propagation's truncation then
+    # drops those products, so the estimate samples them too, instead of their joining only the
+    # bound
+    mean_cut = cut * EXPANSION_REFINE
+    chunks = max(1, min(ENERGY_CHUNKS, len(groups)))
+    energy_parts: list[list[PauliTerms]] = [[] for _ in range(chunks)]
+    moment_parts: list[list[PauliTerms]] = [[] for _ in range(chunks)]
+    lost = np.zeros(len(groups))
     for g, (basis, terms) in enumerate(groups):
         measured = {int(circuit_qubit[l]): ch for l, ch in enumerate(reversed(basis)) if ch != "I"}
         layer_ns = layer_duration_ns(measured, layer)
@@ -243,37 +256,42 @@ def pauli_energy(
                 )
                 for l, ch in active
             }
-        # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
-        first, lost[g] = basis_observable(terms, observables, circuit_qubit, cut, 2 * g)
-        if sampling is not None:
-            fine, fine_lost[g] = basis_observable(
-                terms, observables, circuit_qubit, fine_cut, 2 * g
-            )
-            checks.append(fine)
+        energy, lost[g] = basis_observable(
+            terms, observables, circuit_qubit, mean_cut, g % chunks
+        )
         if outcome_values is not None:  # an M of norm > 1 may follow a cut
             norm = max(1.0, *(float(np.abs(m).sum()) for m in observables.values()))
-            power = norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
-            lost[g] *= power
-            fine_lost[g] *= power
+            lost[g] *= norm ** max(sum(ch != "I" for ch in t) for t, _ in terms)
+        # tag 2g: the group's estimator; tag 2g + 1: its square (second moment)
+        var_cut = var_rule.min_abs_coeff
+        first, _ = basis_observable(terms, observables, circuit_qubit, var_cut, 2 * g)
         second, _ = basis_observable(
             _squared_terms(terms, outcome_values is not None),
             observables,
             circuit_qubit,
-            cut,
+            var_cut,
             2 * g + 1,
             squared,
         )
-        parts += [first, second]
+        energy_parts[g % chunks].append(energy)
+        moment_parts[g % chunks] += [first, second]
+    energy_items = [(merge(PauliTerms.join(p)), program, rule, sampling) for p in energy_parts]
+    moment_items = [(PauliTerms.join(p), program, var_rule, None) for p in moment_parts]
+    done = _run_tasks(energy_items, moment_items, executor)
+    energy_done, moment_done = done[: len(done) // 2], done[len(done) // 2 :]
     n_tags = 2 * len(groups)
-    done = _run_tasks(parts, checks, program, rule, sampling, executor)
-    values, bounds = np.zeros(n_tags), np.zeros(n_tags)
-    estimate, var, residual = np.zeros(n_tags), np.zeros(n_tags), np.zeros(n_tags)
-    for result, est in done:
+    values = np.zeros(n_tags)
+    for result, _ in moment_done:
         k = min(len(result.values), n_tags)
         values[:k] += result.values[:k]
+    sums, bounds = np.zeros(chunks), np.zeros(chunks)
+    estimate, var, residual = np.zeros(chunks), np.zeros(chunks), np.zeros(chunks)
+    for result, est in energy_done:
+        k = min(len(result.values), chunks)
+        sums[:k] += result.values[:k]
         bounds[:k] += result.bounds[:k]
         if est is not None:
-            k = min(len(est.estimate), n_tags)
+            k = min(len(est.estimate), chunks)
             estimate[:k] += est.estimate[:k]
             var[:k] += est.std[:k] ** 2
             residual[:k] += est.residual[:k]
@@ -281,46 +299,37 @@ def pauli_energy(
     extra: dict[str, Any] = {}
     if sampling is not None:
         extra = {
-            "truncation_estimate_ha": float(estimate[0::2].sum()),
-            "truncation_std_ha": float(np.sqrt(var[0::2].sum())),
-            "estimate_residual_ha": float(residual[0::2].sum() + fine_lost.sum()),
+            "truncation_estimate_ha": float(estimate.sum()),
+            "truncation_std_ha": float(np.sqrt(var.sum())),
+            "estimate_residual_ha": float(residual.sum() + lost.sum()),
         }
+    peak = max(max(r.peak_strings, 0 if e is None else e.peak_strings) for r, e in done)
     return PauliEnergy(
-        float(constant_ha + means.sum()),
+        float(constant_ha + sums.sum()),
         tuple(float(v) for v in means),
         tuple(float(max(0.0, m2 - m1**2)) for m1, m2 in zip(means, moments, strict=True)),
-        float(bounds[0::2].sum() + lost.sum()),
-        max(r.peak_strings for r, _ in done),
+        float(bounds.sum() + lost.sum()),
+        peak,
         tasks=len(done),
         **extra,
     )
 
 
 def _run_tasks(
-    parts: list[PauliTerms],
-    checks: list[PauliTerms],
-    program: list[Instruction],
-    rule: Truncation,
-    sampling: Sampling | None,
-    executor: Any,
+    energy: list[PropagationTask], moments: list[PropagationTask], executor: Any
 ) -> list[tuple[Propagated, TruncationEstimate | None]]:
-    """One joint propagation in-process (numpy on long arrays), or one task per group (mean and
-    second moment; its check observable) on ``executor``; tags are the groups' own, so the
-    results add up."""
+    """The energy sums' results, then the moments' (as many of each): in-process one joint
+    propagation of each kind (numpy on long arrays; tags keep them apart), or every item as
+    one task on ``executor``."""
     if executor is None or getattr(executor, "in_process", False):
-        check = PauliTerms.join(checks) if checks else None
-        return [propagate_task((PauliTerms.join(parts), program, rule, sampling, check))]
-    items = [
-        (
-            PauliTerms.join(parts[2 * g : 2 * g + 2]),
-            program,
-            rule,
-            sampling,
-            checks[g] if checks else None,
-        )
-        for g in range(len(parts) // 2)
-    ]
-    return list(executor.map(propagate_task, items))
+        joint = [_joined(energy), _joined(moments)]
+        return [propagate_task(item) for item in joint]
+    return list(executor.map(propagate_task, [*energy, *moments]))
+
+
+def _joined(items: list[PropagationTask]) -> PropagationTask:
+    _, program, rule, sampling = items[0]
+    return (PauliTerms.join([item[0] for item in items]), program, rule, sampling)
 
 
 def _qubit_observable(

@@ -36,9 +36,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from noiselab.common.errors import ProblemTooLargeError
+from noiselab.common.memory import format_bytes, memory_budget
 
 MAX_PAULI_QUBITS = 64
 _ONE = np.uint64(1)
+#: Peak resident bytes per string alive, measured 218-222 (hchain-8 untruncated and at 1e-8:
+#: 4.5e6 and 1.6e6 strings; the rotation's branches, the merge's sort), doubled for what the
+#: truncation estimate keeps beside them.
+BYTES_PER_LIVE_STRING = 512
 
 
 @dataclass(frozen=True)
@@ -93,11 +98,12 @@ Instruction = Rotation | PauliDiagonal
 @dataclass(frozen=True)
 class Truncation:
     """What is dropped after each instruction: ``|c| < min_abs_coeff``, weight > ``max_weight``;
-    more than ``max_strings`` alive is refused (memory)."""
+    more than ``max_strings`` alive is refused (None: as many as the memory budget holds at
+    :data:`BYTES_PER_LIVE_STRING` each)."""
 
     min_abs_coeff: float = 0.0
     max_weight: int | None = None
-    max_strings: int = 4_000_000
+    max_strings: int | None = None
 
 
 #: No truncation (the default).
@@ -161,11 +167,17 @@ def merge(terms: PauliTerms) -> PauliTerms:
     """Equal strings of one tag summed into one (sorted by tag, then string)."""
     if len(terms) == 0:
         return terms
-    if int((terms.x | terms.z).max()) < 1 << 32:  # (x, z) in one 64-bit word: fewer keys
-        cols: tuple[np.ndarray, ...] = ((terms.x << np.uint64(32)) | terms.z, terms.tag)
+    width = int((terms.x | terms.z).max()).bit_length()
+    tag_bits = int(terms.tag.max()).bit_length()
+    cols: tuple[np.ndarray, ...]
+    if 2 * width + tag_bits <= 64:  # (tag, x, z) in one 64-bit key
+        w = np.uint64(width)
+        cols = ((terms.tag.astype(np.uint64) << (w + w)) | (terms.x << w) | terms.z,)
+        # stable: a timsort, near linear on the few sorted runs a rotation leaves
+        order = np.argsort(cols[0], kind="stable")
     else:
         cols = (terms.z, terms.x, terms.tag)
-    order = np.lexsort(cols)  # the last key is the primary one
+        order = np.lexsort(cols)  # the last key is the primary one
     same = np.ones(len(order) - 1, dtype=bool)
     for col in cols:
         sorted_col = col[order]
@@ -188,9 +200,11 @@ def apply_rotation(terms: PauliTerms, rot: Rotation) -> PauliTerms:
     c = 0.0 if abs(c) < 1e-15 else c
     s = 0.0 if abs(s) < 1e-15 else s
     moved = terms.select(anti)
-    parts = [terms.select(~anti)]
+    # the cosine part in place (keeps the strings' order: the merge's sort meets sorted runs)
+    kept = terms.select(~anti) if c == 0.0 else terms
     if c != 0.0:
-        parts.append(PauliTerms(moved.x, moved.z, c * moved.coeff, moved.tag))
+        kept = PauliTerms(terms.x, terms.z, np.where(anti, c * terms.coeff, terms.coeff), terms.tag)
+    parts = [kept]
     if s != 0.0:
         # i G P: the phase of G P is i^k with k odd for anticommuting strings: i^(k+1) = +-1
         k = (_phase_gp(moved.x, moved.z, rot.x, rot.z) + 1) % 4
@@ -226,12 +240,33 @@ def apply_pauli_diagonal(terms: PauliTerms, channel: PauliDiagonal) -> PauliTerm
 
 
 def _truncate(
-    terms: PauliTerms, rule: Truncation, bounds: np.ndarray, cut: np.ndarray | None = None
+    terms: PauliTerms,
+    rule: Truncation,
+    bounds: np.ndarray,
+    cut: np.ndarray | None = None,
+    roulette: Roulette | None = None,
+    step: int = 0,
 ) -> tuple[PauliTerms, PauliTerms | None]:
     """Drop what ``rule`` drops (``cut[tag]``, when given, replaces ``min_abs_coeff``); each
-    tag's dropped ``|c|`` is added to ``bounds``. Returns (kept, dropped or None)."""
+    tag's dropped ``|c|`` is added to ``bounds``. Returns (kept, dropped or None). With
+    ``roulette``, a term below the threshold survives with probability ``|c| / threshold`` as
+    ``sign(c) * threshold`` (unbiased; what does not survive joins no bound)."""
     limit = rule.min_abs_coeff if cut is None else cut[terms.tag]
     keep = np.abs(terms.coeff) >= limit
+    if roulette is not None and not keep.all():
+        below = np.flatnonzero(~keep)
+        sub = terms.select(below)
+        lim = limit if np.isscalar(limit) else limit[below]
+        live = roulette(step, sub) * lim < np.abs(sub.coeff)
+        if live.any():
+            coeff = terms.coeff.copy()
+            coeff[below[live]] = np.sign(sub.coeff[live]) * (lim if np.isscalar(lim) else lim[live])
+            terms = PauliTerms(terms.x, terms.z, coeff, terms.tag)
+            keep[below[live]] = True
+        keep &= terms.coeff != 0.0
+        if rule.max_weight is not None:
+            keep &= popcount(terms.x | terms.z) <= rule.max_weight
+        return terms.select(keep), None
     keep &= terms.coeff != 0.0
     if rule.max_weight is not None:
         keep &= popcount(terms.x | terms.z) <= rule.max_weight
@@ -244,6 +279,8 @@ def _truncate(
 
 #: ``on_drop(step, dropped)``: what truncation dropped with ``program[:step]`` still ahead.
 DropHook = Callable[[int, PauliTerms], None]
+#: ``roulette(step, terms)``: one uniform number in [0, 1) per term (see ``_truncate``).
+Roulette = Callable[[int, PauliTerms], np.ndarray]
 
 
 def propagate(
@@ -254,6 +291,7 @@ def propagate(
     cut: np.ndarray | None = None,
     on_drop: DropHook | None = None,
     inject: Mapping[int, PauliTerms] | None = None,
+    roulette: Roulette | None = None,
 ) -> Propagated:
     """Value on ``|0...0>`` of each observable (tag) after ``program`` (circuit order), with its
     truncation bound (sum of dropped ``|c|``).
@@ -261,34 +299,44 @@ def propagate(
     ``cut[tag]``: a per-tag coefficient threshold instead of ``rule.min_abs_coeff``;
     ``on_drop``: called with everything truncation drops; ``inject[step]``: terms added to the
     propagated ones once ``program[step:]`` has been applied (``step == len(program)``: at the
-    start), e.g. dropped strings carried on by :mod:`noiselab.emulate.pauli_truncation`."""
+    start), e.g. dropped strings carried on by :mod:`noiselab.emulate.pauli_truncation`;
+    ``roulette``: truncation by Russian roulette instead of dropping (unbiased, random)."""
     inject = inject or {}
     n_tags = max([observable.n_tags, 1, *(t.n_tags for t in inject.values())])
     bounds = np.zeros(n_tags)
     steps = len(program)
     start = [observable, inject[steps]] if steps in inject else [observable]
-    terms, lost = _truncate(merge(PauliTerms.join(start)), rule, bounds, cut)
+    terms, lost = _truncate(merge(PauliTerms.join(start)), rule, bounds, cut, roulette, steps)
     dropped = _dropped(lost, steps, on_drop)
     peak = len(terms)
+    cap = rule.max_strings if rule.max_strings is not None else _budget_strings()
     for step in range(steps - 1, -1, -1):
         inst = program[step]
         if isinstance(inst, Rotation):
             terms = apply_rotation(terms, inst)
         else:
             terms = apply_pauli_diagonal(terms, inst)
-        terms, lost = _truncate(terms, rule, bounds, cut)
+        terms, lost = _truncate(terms, rule, bounds, cut, roulette, step)
         dropped += _dropped(lost, step, on_drop)
         if step in inject:
             terms = merge(PauliTerms.join([terms, inject[step]]))
         peak = max(peak, len(terms))
-        if len(terms) > rule.max_strings:
+        if len(terms) > cap:
+            need = format_bytes(len(terms) * BYTES_PER_LIVE_STRING)
+            where = "set by max_strings"
+            if rule.max_strings is None:
+                where = memory_budget().describe()
             raise ProblemTooLargeError(
-                f"pauli propagation: {len(terms)} Pauli strings alive; allowed: at most "
-                f"{rule.max_strings} (raise the truncation threshold or lower the weight cap)"
+                f"pauli propagation: {len(terms)} Pauli strings alive (about {need}); allowed: at "
+                f"most {cap} ({where}; raise emulation.truncation.min_abs_coeff or set max_weight)"
             )
     on_zero = terms.x == 0
     values = np.bincount(terms.tag[on_zero], weights=terms.coeff[on_zero], minlength=n_tags)
     return Propagated(values, bounds, peak, dropped)
+
+
+def _budget_strings() -> int:
+    return max(1, memory_budget().usable // BYTES_PER_LIVE_STRING)
 
 
 def _dropped(lost: PauliTerms | None, step: int, on_drop: DropHook | None) -> int:

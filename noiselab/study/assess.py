@@ -239,9 +239,13 @@ def _assess_pauli(
             f"± {r.details['truncation_estimate_std_mha']:.2g} mHa"
             for name, r in results.items()
         )
+        limits = ", ".join(
+            f"{name} {r.details['truncation_limit_mha']:.2g} mHa" for name, r in results.items()
+        )
         notice += (
-            f"; truncation error estimate (seeded Monte Carlo, not a bound; energies not "
-            f"corrected, the verdict takes the worse reading): {estimates}"
+            f"; truncation error estimate (seeded Monte Carlo; energies not corrected, the "
+            f"verdict takes the worse reading): {estimates}; truncation limit (|estimate| + 3 "
+            f"standard errors, statistical, not rigorous): {limits}"
         )
     if auto_reason:
         notice = f"{auto_reason}. {notice}"

@@ -152,9 +152,9 @@ MEANINGS: dict[str, str] = {
     "below this",
     "emulation.truncation.max_weight": "drop strings acting on more qubits (null: no weight cut)",
     "emulation.truncation.estimate": "also estimate the truncation error with its standard "
-    "error (check run and seeded Monte Carlo)",
-    "emulation.truncation.check_factor": "threshold of the estimate's check run, as a fraction "
-    "of min_abs_coeff",
+    "error (seeded Monte Carlo) and the limit |estimate| + 3 standard errors",
+    "emulation.truncation.keep_factor": "the estimate carries a dropped term on with "
+    "probability |c| / (keep_factor x min_abs_coeff), at most 1 (smaller: tighter, slower)",
     "emulation.batches": "batches the trajectories are split into (their spread is the "
     "trajectory error bar)",
     "emulation.max_density_matrix_qubits": "widest circuit emulated as a density matrix "

@@ -12,7 +12,8 @@ details say so. Recipes that need distributions (other passes) are refused in on
 
 Truncation (``emulation.truncation``): beside the rigorous bound (sum of the dropped |c|, loose
 by orders of magnitude), ``estimate: true`` reports an estimate of the truncation error with its
-standard error (noiselab.emulate.pauli_truncation; seeded by the study's seed). The energy and
+standard error (noiselab.emulate.pauli_truncation; seeded by the study's seed) and the limit
+|estimate| + 3 standard errors (statistical, not rigorous). The energy and
 bias are **not** corrected by it: a bias is an expectation without random draws, and the
 correction's Monte Carlo part is one. The verdict does not ignore it either: P(within target) is
 the lower of the values at the bias and at the bias plus the estimate, with the estimate's
@@ -38,7 +39,7 @@ from noiselab.emulate.device_inputs import layer_spec_for, logical_readout, nois
 from noiselab.emulate.engine import choose_method
 from noiselab.emulate.pauli_circuit import PauliEnergy, pauli_energy
 from noiselab.emulate.pauli_propagation import Truncation
-from noiselab.emulate.pauli_truncation import Sampling
+from noiselab.emulate.pauli_truncation import Sampling, truncation_limit
 from noiselab.mitigate.plan import allocate_shots
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.result import RecipeResult
@@ -52,8 +53,9 @@ NOTICE = (
 )
 TRUNCATION_NOTE = (
     "energy and bias are the truncated propagation's (not corrected); the truncation estimate "
-    "is a seeded Monte Carlo estimate, not a bound; the verdict takes the worse of the bias with "
-    "and without it, with its variance as a fixed variance"
+    "is a seeded Monte Carlo estimate and its limit (|estimate| + 3 standard errors) a "
+    "statistical bound, not a rigorous one; the verdict takes the worse of the bias with and "
+    "without the estimate, with its variance as a fixed variance"
 )
 CALIBRATION_NOTE = (
     "exact calibration matrices: the finite calibration's extra variance is left out of std_mha"
@@ -124,7 +126,7 @@ def pauli_recipes(ctx: Any, executor: Any = None) -> dict[str, RecipeResult]:
     sampling = None
     if getattr(t, "estimate", False):
         seed = int(getattr(study, "seed", 0) or 0)
-        sampling = Sampling(seed=seed, finer=float(t.check_factor), tag_step=2)
+        sampling = Sampling(seed=seed, keep_factor=float(t.keep_factor))
     groups = _groups(ctx.plan)
     memo: dict[bool, PauliEnergy] = {}
     out: dict[str, RecipeResult] = {}
@@ -179,6 +181,7 @@ def _score(
         est, est_std = 1e3 * got.truncation_estimate_ha, 1e3 * float(got.truncation_std_ha or 0.0)
         details["truncation_estimate_mha"] = est
         details["truncation_estimate_std_mha"] = est_std
+        details["truncation_limit_mha"] = truncation_limit(est, est_std)
         details["truncation_estimate_residual_bound_mha"] = 1e3 * float(
             got.estimate_residual_ha or 0.0
         )

@@ -210,7 +210,7 @@ FIXED_VERDICT: dict[str, tuple[str, tuple[str, ...], str, str]] = {
         "the uncertainty of its truncation estimate",
         ("truncation_estimate_std_mha",),
         "shots",
-        "; lower emulation.truncation.check_factor or min_abs_coeff",
+        "; lower emulation.truncation.keep_factor or min_abs_coeff",
     ),
 }
 
@@ -425,7 +425,7 @@ def recipe_json(result: Any, passes: Sequence[Mapping[str, Any]] | None = None) 
     out["trajectory_std_mha"] = None if traj is None else float(traj)
     if isinstance(details, Mapping) and "truncation_bound_mha" in details:  # pauli_propagation
         out["truncation_bound_mha"] = float(details["truncation_bound_mha"])
-        for k in ("truncation_estimate_mha", "truncation_estimate_std_mha"):
+        for k in ("truncation_estimate_mha", "truncation_estimate_std_mha", "truncation_limit_mha"):
             out[k] = float(details[k]) if k in details else None
     if passes is not None:
         out["passes"] = jsonable(list(passes))

@@ -49,6 +49,7 @@ from noiselab.common.shipped import looks_like_name, shipped_path
 from noiselab.common.units import CHEMICAL_ACCURACY_MHA
 from noiselab.common.yamlio import load_yaml_mapping
 from noiselab.device.profile import load_profile, profile_from_mapping
+from noiselab.emulate.pauli_truncation import KEEP_FACTOR
 from noiselab.mitigate.passes.extrapolate import MAX_SCALE_FACTOR
 from noiselab.mitigate.recipe import parse_recipe
 from noiselab.mitigate.variants import DEFAULT_AMPLIFICATION_SPREAD
@@ -263,15 +264,16 @@ class TruncationSettings(_Strict):
     ``min_abs_coeff``: Pauli strings whose |coefficient| (Ha) falls below it are dropped;
     ``max_weight``: strings acting on more qubits are dropped (None: no weight cut). The sum
     of what was dropped bounds the truncation error and is reported in mHa. ``estimate``: also
-    estimate the truncation error with its standard error (a check run at ``check_factor``
-    times the threshold, plus a seeded Monte Carlo estimate of what the check run drops;
-    noiselab.emulate.pauli_truncation); costs a few times the main run.
+    estimate the truncation error with its standard error (a seeded Monte Carlo estimate of
+    what was dropped: each dropped term carried on with probability |c| / (``keep_factor`` x
+    ``min_abs_coeff``), at most 1; noiselab.emulate.pauli_truncation) and report the limit
+    |estimate| + 3 standard errors; a smaller ``keep_factor`` tightens it at more cost.
     """
 
     min_abs_coeff: float = Field(default=1e-5, ge=0.0, le=1.0)
     max_weight: Count | None = Field(default=None, ge=1, le=64)
     estimate: bool = True
-    check_factor: float = Field(default=0.1, gt=0.0, le=1.0)
+    keep_factor: float = Field(default=KEEP_FACTOR, gt=0.0, le=1.0)
 
 
 class EmulationSettings(_Strict):
