@@ -398,7 +398,18 @@ def assess_end_to_end(study: Path = STUDY_20) -> dict:
     out = json.loads(done.stdout.strip().splitlines()[-1])
     res = out["result"]
     rows = {
-        name: {k: r.get(k) for k in ("energy", "bias_mha", "std_mha", "truncation_bound_mha")}
+        name: {
+            k: r.get(k)
+            for k in (
+                "energy",
+                "bias_mha",
+                "std_mha",
+                "truncation_bound_mha",
+                "truncation_estimate_mha",
+                "truncation_estimate_std_mha",
+                "truncation_limit_mha",
+            )
+        }
         for name, r in res["recipes"].items()
     }
     print(
