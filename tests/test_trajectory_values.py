@@ -174,8 +174,14 @@ def test_recipe_needing_distributions_refused_before_simulation(
     )
     monkeypatch.setenv(MEMORY_LIMIT_ENV, str(need - 1))  # distributions just do not fit
     calls = engine_call_count()
-    with pytest.raises(SystemExit) as info:
-        main(["assess", str(path), "--no-cache", "--quiet", "--json"])
+
+    def optimizer_ran(*args: object, **kwargs: object) -> None:
+        raise AssertionError("the noiseless optimizer ran before the refusal")
+
+    with monkeypatch.context() as patched:  # refused before the optimizer, too
+        patched.setattr("noiselab.study.context.optimize", optimizer_ran)
+        with pytest.raises(SystemExit) as info:
+            main(["assess", str(path), "--no-cache", "--quiet", "--json"])
     out, err = capsys.readouterr()
     assert info.value.code == 2 and out == "" and "Traceback" not in err
     lines = err.strip().splitlines()

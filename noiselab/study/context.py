@@ -28,7 +28,7 @@ from noiselab.mitigate.experiment import ExperimentContext
 from noiselab.mitigate.plan import build_plan
 from noiselab.mitigate.registry import make_pass
 from noiselab.study.cache import ResultsCache, digest, pack_record, unpack_or_none
-from noiselab.study.preflight import preflight, resolve_store
+from noiselab.study.preflight import preflight, resolve_emulation, resolve_store
 from noiselab.study.results import ContextSummary
 from noiselab.study.spec import CircuitAnsatz, LayeredAnsatz, Study
 
@@ -247,6 +247,7 @@ def _build_context(
     t = time.perf_counter()
     circuit = ansatz_circuit(study, qp)
     if optimum is None:
+        refuse_store_early(study, qp, circuit, job_recipes, verification)
         optimum = optimize(study, qp, circuit, cache)
     exact_s2, warnings = optimum_checks(study, qp, optimum)
     seconds["optimize"] = time.perf_counter() - t
@@ -361,6 +362,34 @@ def with_verification(ctx: StudyContext, needed: bool) -> StudyContext:
     return dataclasses.replace(
         ctx, experiment=experiment, emulation_method=method, emulation_notice=notice
     )
+
+
+def refuse_store_early(
+    study: Study,
+    qp: Any,
+    circuit: Any,
+    recipes: Mapping[str, Any] | None,
+    verification: bool,
+) -> None:
+    """Refuse, before the noiseless optimizer runs (minutes at 16 qubits), a study whose
+    trajectory store cannot fit: when even the logical width leaves the density matrix, the
+    circuit at zero angles is compiled once and :func:`resolve_store` judges it as it will
+    judge the optimized one (same patch, bases and recipes; the angles change neither)."""
+    method, _ = resolve_emulation(study, int(qp.num_qubits))
+    if method != "trajectory":
+        return
+    zero = circuit.assign_parameters([0.0] * circuit.num_parameters, inplace=False)
+    compiled = compile_ensemble(
+        zero,
+        study.profile,
+        layout=study.layout,
+        optimization_level=study.optimization_level,
+        seeds=study.transpiler_seeds[:1],
+    ).chosen
+    plan = build_plan(qp.hamiltonian, dense=False)
+    unknown = dataclasses.make_dataclass("_NoOptimum", [("energy_ha", float)])(float("nan"))
+    experiment = make_experiment(study, qp, compiled, plan, unknown, verification)
+    resolve_store(study, int(compiled.circuit.num_qubits), experiment, recipes)
 
 
 def make_experiment(
