@@ -2,10 +2,11 @@
 
 Not a test (timings depend on the machine). Run from the repository root:
 
-    python benchmarks/pauli_propagation.py            # 8, 10, 12 qubits vs density matrix; 20
+    python benchmarks/pauli_propagation.py            # 8-12 qubits vs density matrix; 20-40
     python benchmarks/pauli_propagation.py --quick    # 8 qubits, 20 qubits with 2 groups
     python benchmarks/pauli_propagation.py --agreement-only --qubits 8 10 12   # part 1 only
     python benchmarks/pauli_propagation.py --study-groups 16   # part 3 on 16 groups
+    python benchmarks/pauli_propagation.py --scaling-only      # part 2 only: 20, 30, 40 qubits
 
 Part 1 (hchain-8, -10, -12 on bench-line-14, optimized layered circuit): the grouped energy of
 the density-matrix engine under the explicitly twirled device noise (no idle pass) against
@@ -16,10 +17,15 @@ and against the reported limit |estimate| + 3 standard errors, and the time of e
 must stay inside the bound, within 3 standard errors of the estimate and inside the limit, which
 should not be loose by more than 10x. Figure: threshold against error and time
 (benchmarks/results/pauli-threshold-<date>.png).
-Part 2 (linear H chains, Jordan-Wigner, STO-3G, 1.8 Angstrom; a two-layer layered circuit with
-seeded small random angles on the invented 44-qubit line bench-line-44): time, peak strings and
-truncation bound of the full noisy energy at 20 qubits (twirled device noise, idle
-relaxation included, basis layers and readout).
+Part 2 (linear H chains H10, H15 (charge +1), H20, Jordan-Wigner, STO-3G, 1.8 Angstrom; a
+two-layer layered circuit with seeded small random angles on the invented 44-qubit line
+bench-line-44): time, peak strings, peak resident memory and truncation bound of the full noisy
+energy at 20, 30 and 40 qubits (twirled device noise, idle relaxation included, basis layers and
+readout), one child process per size. The chemistry takes the integrals-only path
+(``integrals_problem``: compute_problem's (RO)HF and integrals without its FCI, which is refused
+at 30+ qubits), checked against compute_problem + encode on H4 (``check_integrals_path``); the
+plan is the pauli method's (sorted insertion, no dense weights). ``--scaling-only`` runs part 2
+at thresholds 1e-4 and 1e-5 and writes benchmarks/results/pauli-scaling-<date>.json.
 Part 3: the same 20-qubit chain through the study-level path of ``assess --method
 pauli_propagation`` (raw and readout recipes, allocation, target rule, truncation bound) with a
 plan that builds no dense weights. Writes benchmarks/results/pauli-<date>.json.
@@ -160,10 +166,122 @@ def agreement(qubits: int) -> dict:
     }
 
 
+def _chain_spec(atoms: int):
+    """Linear H chain, STO-3G, 1.8 Angstrom spacing; odd electron counts made even by charge +1."""
+    from noiselab.chem.molecule import molecule_from_mapping
+
+    geometry = "; ".join(f"H 0 0 {1.8 * i:.2f}" for i in range(atoms))
+    return molecule_from_mapping({"geometry": geometry, "basis": "sto-3g", "charge": atoms % 2})
+
+
+def integrals_problem(spec):
+    """The electronic problem of ``compute_problem`` without its exact energy (no FCI): the same
+    (RO)HF, orbital order and active-space integrals; ``exact_energy_ha`` and ``exact_s2`` are
+    NaN. For sizes where FCI is refused; ``check_integrals_path`` checks it against
+    ``compute_problem`` on H4."""
+    from pyscf import ao2mo, gto, mcscf, scf
+
+    from noiselab.chem.molecule import ElectronicProblem
+
+    mol = gto.M(
+        atom=[[a[0], (a[1], a[2], a[3])] for a in spec.geometry],
+        basis=spec.basis,
+        charge=spec.charge,
+        spin=spec.spin,
+        unit="Angstrom",
+        symmetry=spec.symmetry,
+        verbose=0,
+    )
+    n_elec, n_mo = int(mol.nelectron), int(mol.nao_nr())
+    if spec.active_space is None:
+        n_cas, ne_cas = n_mo, n_elec
+    else:
+        n_cas, ne_cas = spec.active_space.orbitals, spec.active_space.electrons
+    n_alpha, n_beta = (ne_cas + spec.spin) // 2, (ne_cas - spec.spin) // 2
+    n_core = (n_elec - ne_cas) // 2
+    mf = scf.RHF(mol) if spec.spin == 0 else scf.ROHF(mol)
+    mf.conv_tol = 1e-12
+    mf.max_cycle = 200
+    mf.kernel()
+    if not mf.converged:
+        mf = mf.newton()
+        mf.kernel()
+    if not mf.converged:
+        raise RuntimeError("Hartree-Fock did not converge")
+    order = np.argsort(-np.asarray(mf.mo_occ), kind="stable")
+    mo = np.asarray(mf.mo_coeff)[:, order]
+    cas = mcscf.CASCI(mf, n_cas, (n_alpha, n_beta))
+    cas.mo_coeff = mo
+    h1, e_core = cas.get_h1eff(mo)
+    h2 = ao2mo.restore(1, cas.get_h2eff(mo), n_cas)
+    nan = float("nan")
+    return ElectronicProblem(
+        spec=spec,
+        n_orb=n_cas,
+        n_alpha=n_alpha,
+        n_beta=n_beta,
+        n_core_orbitals=n_core,
+        n_basis_orbitals=n_mo,
+        h1=np.ascontiguousarray(h1, dtype=float),
+        h2=np.ascontiguousarray(h2, dtype=float),
+        e_core_ha=float(e_core),
+        nuclear_repulsion_ha=float(mol.energy_nuc()),
+        hf_energy_ha=float(mf.e_tot),
+        exact_energy_ha=nan,
+        exact_s2=nan,
+    )
+
+
+def check_integrals_path(atoms: int = 4, atol: float = 1e-10) -> float:
+    """Largest coefficient difference between the integrals-only qubit Hamiltonian and
+    ``encode(compute_problem(...))`` on an H chain (Jordan-Wigner); raises above ``atol``."""
+    from noiselab.chem.encode import encode
+    from noiselab.chem.molecule import compute_problem
+
+    spec = _chain_spec(atoms)
+    ref = encode(compute_problem(spec), "jordan_wigner")
+    got = encode(integrals_problem(spec), "jordan_wigner")
+    diff = (ref.hamiltonian - got.hamiltonian).simplify(atol=0.0)
+    worst = float(np.max(np.abs(diff.coeffs))) if len(diff) else 0.0
+    if worst > atol or ref.hf_bitstring != got.hf_bitstring:
+        raise AssertionError(
+            f"integrals-only path differs from compute_problem on H{atoms}: {worst:.3g} Ha"
+        )
+    return worst
+
+
+def _status_bytes(key: str) -> int:
+    """A /proc/self/status memory line (VmRSS, VmHWM) in bytes; 0 where unavailable."""
+    try:
+        with open("/proc/self/status") as fh:
+            for line in fh:
+                if line.startswith(key + ":"):
+                    return int(line.split()[1]) * 1024
+    except OSError:
+        pass
+    return 0
+
+
+def _reset_peak_rss() -> bool:
+    """Reset this process's VmHWM to its current resident size (Linux: clear_refs 5)."""
+    try:
+        with open("/proc/self/clear_refs", "w") as fh:
+            fh.write("5")
+        return True
+    except OSError:
+        return False
+
+
 def scaling(atoms: int, max_groups: int | None, threshold: float) -> dict:
+    """Time, peak strings and peak resident memory of the noisy energy of an H chain.
+
+    Chemistry by the integrals-only path (no FCI, so 30 and 40 qubits are reachable); the plan
+    is the pauli method's (sorted insertion, no dense weights). The peak resident memory of the
+    propagation is this process's VmHWM reset just before ``pauli_energy`` (so it includes what
+    was resident then: the interpreter, the Hamiltonian and the plan); run it in a child process
+    per size (``scaling_in_child``) so the peaks are separate."""
     from noiselab.chem.ansatz import layered_circuit
     from noiselab.chem.encode import encode
-    from noiselab.chem.molecule import compute_problem, molecule_from_mapping
     from noiselab.device.compile import compile_to_device
     from noiselab.device.noise import readout_matrices
     from noiselab.device.profile import load_profile
@@ -171,11 +289,8 @@ def scaling(atoms: int, max_groups: int | None, threshold: float) -> dict:
     from noiselab.emulate.pauli_circuit import pauli_energy
     from noiselab.mitigate.plan import build_plan
 
-    geometry = "; ".join(f"H 0 0 {1.8 * i:.2f}" for i in range(atoms))
-    charge = atoms % 2
-    spec = molecule_from_mapping({"geometry": geometry, "basis": "sto-3g", "charge": charge})
     t = time.perf_counter()
-    qp = encode(compute_problem(spec), "jordan_wigner")
+    qp = encode(integrals_problem(_chain_spec(atoms)), "jordan_wigner")
     chem_s = time.perf_counter() - t
     n = qp.num_qubits
     circuit = layered_circuit(n, 2, initial_bitstring=list(qp.hf_bitstring))
@@ -184,11 +299,15 @@ def scaling(atoms: int, max_groups: int | None, threshold: float) -> dict:
     profile = load_profile(HERE / "studies" / "bench-line-44.yaml")
     compiled = compile_to_device(bound, profile, layout=list(range(n)))
     model = noise_model_for(profile, compiled.patch)
-    plan = build_plan(qp.hamiltonian)
+    t = time.perf_counter()
+    plan = build_plan(qp.hamiltonian, dense=False, grouping="sorted_insertion")
+    plan_s = time.perf_counter() - t
     groups = _groups(plan)[: max_groups or None]
     mats = readout_matrices(profile, compiled.patch)
     readout = [mats[q] for q in compiled.logical_to_circuit]
     layer = layer_spec_for(profile, compiled.circuit.num_qubits)
+    rss_before = _status_bytes("VmRSS")
+    reset = _reset_peak_rss()
     t = time.perf_counter()
     got = pauli_energy(
         compiled.circuit,
@@ -201,23 +320,75 @@ def scaling(atoms: int, max_groups: int | None, threshold: float) -> dict:
         constant_ha=plan.constant,
     )
     seconds = time.perf_counter() - t
+    peak = _status_bytes("VmHWM")
     print(
-        f"  {n} qubits: {len(groups)} of {plan.n_groups} groups in {seconds:.1f} s "
-        f"(chemistry {chem_s:.1f} s), bound {got.truncation_bound_ha * 1e3:.3g} mHa, "
-        f"peak {got.peak_strings} strings, {compiled.two_qubit_count} two-qubit gates",
+        f"  {n} qubits, threshold {threshold:g}: {len(groups)} of {plan.n_groups} groups in "
+        f"{seconds:.1f} s (chemistry {chem_s:.1f} s, plan {plan_s:.1f} s), bound "
+        f"{got.truncation_bound_ha * 1e3:.3g} mHa, peak {got.peak_strings} strings, "
+        f"peak resident {peak / 2**30:.2f} GiB (before {rss_before / 2**30:.2f} GiB), "
+        f"{compiled.two_qubit_count} two-qubit gates",
+        file=sys.stderr,
         flush=True,
     )
     return {
         "qubits": n,
+        "hamiltonian_terms": len(qp.hamiltonian),
         "groups_run": len(groups),
         "groups": plan.n_groups,
         "seconds": seconds,
         "seconds_all_groups_est": seconds * plan.n_groups / len(groups),
+        "chemistry_seconds": chem_s,
+        "plan_seconds": plan_s,
         "bound_mha": got.truncation_bound_ha * 1e3,
         "threshold": threshold,
         "peak_strings": got.peak_strings,
+        "rss_before_propagation_gib": rss_before / 2**30,
+        "peak_rss_propagation_gib": peak / 2**30 if reset else None,
+        "peak_rss_process_gib": peak / 2**30,
         "two_qubit_gates": compiled.two_qubit_count,
+        "hf_energy_ha": qp.hf_energy_ha,
+        "energy_ha_groups_run": got.energy_ha,
     }
+
+
+#: H chains of part 2: 20, 30 and 40 qubits (H15 with charge +1).
+SCALING_ATOMS = (10, 15, 20)
+
+
+def _scaling_groups(atoms: int, requested: int | None) -> int | None:
+    """Groups to run: all by default; a subset's ``seconds_all_groups_est`` is linear in the
+    groups, an overestimate (the groups' strings merge in the 16 energy sums: H10 at 1e-4, 16
+    groups extrapolate to 65 s, all 1554 take 6 s)."""
+    return requested or None
+
+
+def scaling_in_child(
+    atoms: int, max_groups: int | None, threshold: float, timeout_s: float
+) -> dict:
+    """``scaling`` in a child process (OMP_NUM_THREADS=1): separate memory peaks per size; a
+    size past ``timeout_s`` or failing is recorded as such."""
+    import os
+    import subprocess
+
+    env = {**os.environ, "OMP_NUM_THREADS": "1", "PYTHONPATH": str(HERE.parent)}
+    cmd = [sys.executable, str(Path(__file__).resolve()), "--scaling-child", str(atoms)]
+    cmd += [str(threshold), str(max_groups or 0)]
+    load_before = os.getloadavg()
+    try:
+        done = subprocess.run(  # progress goes to this process's stderr as it comes
+            cmd, env=env, stdout=subprocess.PIPE, text=True, check=False, timeout=timeout_s
+        )
+    except subprocess.TimeoutExpired:
+        print(f"  H{atoms}, threshold {threshold:g}: past {timeout_s:.0f} s", flush=True)
+        return {"atoms": atoms, "threshold": threshold, "failed": f"past {timeout_s:.0f} s"}
+    row: dict = {"atoms": atoms, "threshold": threshold}
+    if done.returncode != 0:
+        row["failed"] = f"exit {done.returncode}"
+    else:
+        row.update(json.loads(done.stdout.strip().splitlines()[-1]))
+    row["loadavg_before"] = load_before
+    row["loadavg_after"] = os.getloadavg()
+    return row
 
 
 def study_slice(atoms: int, max_groups: int | None, threshold: float) -> dict:
@@ -513,7 +684,53 @@ def main() -> int:
     )
     ap.add_argument("--qubits", type=int, nargs="+", default=None, help="part 1 sizes")
     ap.add_argument("--agreement-only", action="store_true", help="part 1 and its figure only")
+    ap.add_argument(
+        "--scaling-only",
+        action="store_true",
+        help="only part 2 (20, 30, 40 qubits, thresholds 1e-4 and 1e-5, one child process per "
+        "size); writes results/pauli-scaling-<date>.json",
+    )
+    ap.add_argument(
+        "--scaling-groups",
+        type=int,
+        default=None,
+        help="groups per size in part 2 (default or 0: all; a subset extrapolates the time)",
+    )
+    ap.add_argument(
+        "--scaling-timeout", type=float, default=900.0, help="seconds per size in part 2"
+    )
+    ap.add_argument("--scaling-child", nargs=3, default=None, help=argparse.SUPPRESS)
     args = ap.parse_args()
+    if args.scaling_child:
+        atoms, thr, cap = args.scaling_child
+        row = scaling(int(atoms), int(cap) or None, float(thr))
+        print(json.dumps(row))
+        return 0
+    if args.scaling_only:
+        import os
+        import platform
+
+        got = {
+            "date": dt.datetime.now(dt.UTC).isoformat(timespec="seconds"),
+            "machine": f"{platform.node()}, {os.cpu_count()} cores, {platform.machine()}",
+            "integrals_path_check_ha": check_integrals_path(4),
+            "scaling": [],
+        }
+        path = HERE / "results" / f"pauli-scaling-{dt.date.today().isoformat()}.json"
+        print("scaling (integrals-only chemistry, twirled device noise):")
+        for thr in (1e-4, 1e-5):
+            for atoms in SCALING_ATOMS:
+                got["scaling"].append(
+                    scaling_in_child(
+                        atoms,
+                        _scaling_groups(atoms, args.scaling_groups),
+                        thr,
+                        args.scaling_timeout,
+                    )
+                )
+                path.write_text(json.dumps(got, indent=1) + "\n")  # after each size
+        print(f"results: {path}")
+        return 0
     if args.grouping:
         print("grouping: sorted insertion against qiskit's colouring:")
         rows = [grouping_cost(a) for a in (4, 5, 6, 10)]
@@ -547,11 +764,10 @@ def main() -> int:
     if args.agreement_only:
         print(f"results: {path}")
         return 0
-    print("scaling (twirled device noise, truncation 1e-4):")
-    for atoms in (
-        10,
-    ):  # 30+ qubits: compute_problem's FCI is refused there (no integrals-only path yet)
-        out["scaling"].append(scaling(atoms, 2 if args.quick else 8, 1e-4))
+    print("scaling (integrals-only chemistry, twirled device noise, truncation 1e-4):")
+    for atoms in (10,) if args.quick else SCALING_ATOMS:
+        groups = 2 if args.quick else _scaling_groups(atoms, args.scaling_groups)
+        out["scaling"].append(scaling_in_child(atoms, groups, 1e-4, args.scaling_timeout))
     print("20-qubit study slice (assess's pauli_propagation path, truncation 1e-4):")
     slice_groups = args.study_groups or (2 if args.quick else None)
     out["study_slice"] = study_slice(10, slice_groups, 1e-4)
