@@ -232,7 +232,7 @@ def test_compare_runs_each_device_through_the_pauli_method(
     assert got.to_json()["emulation_notice"] == got.emulation_notice
     with pytest.raises(SystemExit) as info:
         main(["compare", str(path), "--devices", *devices, "--no-cache", "--out", str(tmp_path)])
-    out, err = capsys.readouterr()
+    _, err = capsys.readouterr()
     assert info.value.code in (0, None), err
     written = json.loads((tmp_path / "compare.json").read_text())
     assert written["devices"][0]["device"] in devices
