@@ -247,3 +247,60 @@ def test_grouped_energy_and_variance_equal_the_density_matrix_engine() -> None:
     assert got.group_energy_ha == pytest.approx(want_means, abs=1e-10)
     assert got.group_variance_ha2 == pytest.approx(want_vars, abs=1e-10)
     assert got.energy_ha == pytest.approx(plan.constant + sum(want_means), abs=1e-10)
+
+
+@pytest.mark.parametrize("wide", [False, True])
+def test_merge_sums_equal_strings_of_each_tag(wide: bool) -> None:
+    # reference: a plain dictionary keyed by (tag, x, z); wide strings (40 qubits) cannot share
+    # one 64-bit key with their tag and take the other sort
+    from noiselab.emulate.pauli_propagation import PauliTerms, merge
+
+    rng = np.random.default_rng(7)
+    bits = 40 if wide else 6
+    n = 3000
+    x = rng.integers(0, 4, n).astype(np.uint64) << np.uint64(bits - 2)
+    z = rng.integers(0, 8, n).astype(np.uint64)
+    tag = rng.integers(0, 5, n).astype(np.int64)
+    coeff = rng.normal(size=n)
+    want: dict[tuple[int, int, int], float] = {}
+    for t, a, b, c in zip(tag, x, z, coeff, strict=True):
+        want[(int(t), int(a), int(b))] = want.get((int(t), int(a), int(b)), 0.0) + float(c)
+    got = merge(PauliTerms(x, z, coeff, tag))
+    keys = list(zip(got.tag.tolist(), got.x.tolist(), got.z.tolist(), strict=True))
+    assert len(keys) == len(set(keys)) == len(want)
+    for k, c in zip(keys, got.coeff, strict=True):
+        assert c == pytest.approx(want[k], abs=1e-12)
+    assert keys == sorted(keys)  # by tag, then x, then z
+
+
+def test_russian_roulette_truncation_is_unbiased() -> None:
+    # reference: the untruncated propagation; a term below the cut survives with probability
+    # |c| / cut as sign(c) * cut (Russian roulette, e.g. Kahn 1956 / Spanier and Gelbard 1969,
+    # from memory), so the mean over independent draws equals the exact value within its
+    # standard error even at a cut that drops most terms
+    from noiselab.emulate.pauli_propagation import Truncation, propagate
+
+    rng = np.random.default_rng(3)
+    n = 5
+    qc = QuantumCircuit(n)
+    for _ in range(4):
+        for q in range(n):
+            qc.ry(float(rng.uniform(-1, 1)), q)
+            qc.rz(float(rng.uniform(-1, 1)), q)
+        for q in range(n - 1):
+            qc.cx(q, q + 1)
+    program = circuit_program(qc, None)
+    obs = terms_from_labels(["ZZIII", "IXIXI", "YIIIZ"], [0.7, -0.4, 0.3])
+    exact = propagate(obs, program).value
+    cut = 0.05
+    rule = Truncation(min_abs_coeff=cut)
+    assert abs(propagate(obs, program, rule).value - exact) > 0.01  # plain dropping is off
+    values = []
+    for seed in range(300):
+        draws = np.random.default_rng(seed)
+        got = propagate(obs, program, rule, roulette=lambda step, t, d=draws: d.random(len(t)))
+        assert got.truncation_bound == 0.0  # nothing dropped for good, nothing to bound
+        values.append(got.value)
+    sem = float(np.std(values, ddof=1)) / np.sqrt(len(values))
+    assert sem > 0
+    assert abs(float(np.mean(values)) - exact) <= 3 * sem

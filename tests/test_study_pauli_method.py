@@ -203,7 +203,41 @@ def test_jobs_other_than_assess_are_refused_in_one_line(tmp_path: Path) -> None:
         with pytest.raises(InputError) as info:
             job(path, cache=False)
         text = str(info.value)
-        assert "\n" not in text and str(path) in text and "assess only" in text
+        assert "\n" not in text and str(path) in text and "assess and compare only" in text
+
+
+def test_compare_runs_each_device_through_the_pauli_method(
+    tmp_path: Path, capsys: pytest.CaptureFixture[str]
+) -> None:
+    # compare is one assess per device: under pauli_propagation each device's row is that
+    # device's assess (P, bias, std), and the notice says how they were emulated
+    import json
+
+    from noiselab.cli.app import main
+    from noiselab.study.assess import assess
+    from noiselab.study.compare import compare, resolve_device, study_on_device
+    from noiselab.study.spec import load_study
+
+    path = _study(tmp_path, cut=1e-3)
+    devices = ["cobaltgrid-12", "tallowtrap-8"]
+    got = compare(path, devices, cache=False)
+    assert sorted(r.device for r in got.rows) == sorted(devices)
+    for row in got.rows:
+        alone = assess(study_on_device(load_study(path), resolve_device(row.device)), cache=False)
+        best = alone.recipes[row.best_recipe]
+        assert row.p_within_target == pytest.approx(best.p_within_target, abs=1e-12)
+        assert row.bias_mha == pytest.approx(best.bias_exact_mha, abs=1e-9)
+        assert "truncation_limit_mha" in best.details
+    assert "pauli_propagation" in (got.emulation_notice or "")
+    assert got.to_json()["emulation_notice"] == got.emulation_notice
+    with pytest.raises(SystemExit) as info:
+        main(["compare", str(path), "--devices", *devices, "--no-cache", "--out", str(tmp_path)])
+    _, err = capsys.readouterr()
+    assert info.value.code in (0, None), err
+    written = json.loads((tmp_path / "compare.json").read_text())
+    assert written["devices"][0]["device"] in devices
+    assert "pauli_propagation" in written["emulation_notice"]
+    assert "note: " in err and "pauli_propagation" in err
 
 
 def test_truncation_estimate_is_reported_and_workers_give_the_same_numbers(

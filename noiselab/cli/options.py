@@ -136,8 +136,9 @@ _RUN: dict[str, tuple[Any, Any, Any]] = {
         _option(
             "--method",
             help="Emulation method: auto is the density matrix while it fits in memory, else "
-            "Monte Carlo trajectories; pauli_propagation: assess only (twirled noise, raw and "
-            "per-qubit readout recipes). Default: the study's emulation.method, else auto.",
+            "Monte Carlo trajectories; pauli_propagation: assess and compare only (twirled "
+            "noise, raw and per-qubit readout recipes). Default: the study's emulation.method, "
+            "else auto.",
         ),
         None,
     ),

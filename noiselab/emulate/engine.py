@@ -251,8 +251,8 @@ def choose_method(
     """``(method, notice)``: resolve "auto" with the memory guard; refuse impossible requests."""
     if method == "pauli_propagation":  # no distributions: noiselab.study.pauli_assess only
         raise InputError(
-            "emulation: method: pauli_propagation serves assess only (raw and per-qubit readout "
-            f"recipes); allowed for this job: {', '.join(METHODS)}"
+            "emulation: method: pauli_propagation serves assess and compare only (raw and "
+            f"per-qubit readout recipes); allowed for this job: {', '.join(METHODS)}"
         )
     if method not in METHODS:
         raise InputError(f"emulation: method: {method!r}; allowed: {', '.join(METHODS)}")

@@ -31,6 +31,7 @@ from noiselab.emulate.pauli_propagation import (
     PauliTerms,
     Propagated,
     Truncation,
+    budget_strings,
     gate_rotations,
     merge,
     pauli_matrix,
@@ -231,6 +232,10 @@ def pauli_energy(
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
     cut = rule.min_abs_coeff
+    pooled = executor is not None and not getattr(executor, "in_process", False)
+    if pooled and rule.max_strings is None:  # the workers share the memory budget
+        parallel = int(getattr(executor, "parallelism", 1))
+        rule = dataclasses.replace(rule, max_strings=budget_strings(parallel))
     var_rule = dataclasses.replace(rule, min_abs_coeff=cut * VARIANCE_FACTOR)
     # the means are expanded more finely than the threshold: the propagation's truncation then
     # drops those products, so the estimate samples them too, instead of their joining only the

@@ -265,7 +265,11 @@ def _truncate(
             keep[below[live]] = True
         keep &= terms.coeff != 0.0
         if rule.max_weight is not None:
-            keep &= popcount(terms.x | terms.z) <= rule.max_weight
+            heavy = keep & (popcount(terms.x | terms.z) > rule.max_weight)
+            bounds += np.bincount(
+                terms.tag[heavy], weights=np.abs(terms.coeff[heavy]), minlength=len(bounds)
+            )
+            keep &= ~heavy
         return terms.select(keep), None
     keep &= terms.coeff != 0.0
     if rule.max_weight is not None:
@@ -309,7 +313,7 @@ def propagate(
     terms, lost = _truncate(merge(PauliTerms.join(start)), rule, bounds, cut, roulette, steps)
     dropped = _dropped(lost, steps, on_drop)
     peak = len(terms)
-    cap = rule.max_strings if rule.max_strings is not None else _budget_strings()
+    cap = rule.max_strings if rule.max_strings is not None else budget_strings()
     for step in range(steps - 1, -1, -1):
         inst = program[step]
         if isinstance(inst, Rotation):
@@ -323,7 +327,7 @@ def propagate(
         peak = max(peak, len(terms))
         if len(terms) > cap:
             need = format_bytes(len(terms) * BYTES_PER_LIVE_STRING)
-            where = "set by max_strings"
+            where = "the memory budget's share of this process"
             if rule.max_strings is None:
                 where = memory_budget().describe()
             raise ProblemTooLargeError(
@@ -335,8 +339,9 @@ def propagate(
     return Propagated(values, bounds, peak, dropped)
 
 
-def _budget_strings() -> int:
-    return max(1, memory_budget().usable // BYTES_PER_LIVE_STRING)
+def budget_strings(processes: int = 1) -> int:
+    """Strings alive that the memory budget holds, shared by ``processes`` processes."""
+    return max(1, memory_budget().usable // BYTES_PER_LIVE_STRING // max(1, processes))
 
 
 def _dropped(lost: PauliTerms | None, step: int, on_drop: DropHook | None) -> int:

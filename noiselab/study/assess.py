@@ -84,8 +84,9 @@ def run_recipes(
     """``run_recipe`` for each named recipe with the shared runner; results in study order."""
     if ctx.emulation_method == PAULI_METHOD:  # no distributions to run recipes on
         raise InputError(
-            f"{ctx.study.source}: emulation.method: {PAULI_METHOD} is available to assess only "
-            "(raw and per-qubit readout recipes); allowed here: density_matrix, trajectory, auto"
+            f"{ctx.study.source}: emulation.method: {PAULI_METHOD} is available to assess and "
+            "compare only (raw and per-qubit readout recipes); allowed here: density_matrix, "
+            "trajectory, auto"
         )
     out: dict[str, Any] = {}
     total = len(recipes)

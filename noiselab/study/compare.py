@@ -74,6 +74,20 @@ class CompareResult:
     stats: RunStats
     caution: str = CAUTION
 
+    @property
+    def emulation_notice(self) -> str | None:
+        """The devices' emulation notices (how each was emulated, and what that leaves out),
+        each once, with the devices it concerns; None when there is none."""
+        by_notice: dict[str, list[str]] = {}
+        for row, result in zip(self.rows, self.assessed, strict=True):
+            if result.emulation_notice:
+                by_notice.setdefault(result.emulation_notice, []).append(row.device)
+        if not by_notice:
+            return None
+        if len(by_notice) == 1 and len(next(iter(by_notice.values()))) == len(self.rows):
+            return next(iter(by_notice))
+        return " | ".join(f"{', '.join(devs)}: {text}" for text, devs in by_notice.items())
+
     def to_json(self) -> dict[str, Any]:
         return jsonable(
             {
@@ -93,6 +107,7 @@ class CompareResult:
                     {"rank": i + 1, **dataclasses.asdict(r)} for i, r in enumerate(self.rows)
                 ],
                 "verdict": self.verdict,
+                "emulation_notice": self.emulation_notice,
                 "caution": self.caution,
             }
         )
@@ -248,8 +263,14 @@ def compare(
     """
     if not devices:
         raise input_error(None, arg("devices"), "no device given", "one or more profiles")
-    job = start_job(
-        study_or_path, cache, seed=seed, shots=shots, method=method, trajectories=trajectories
+    job = start_job(  # every device is one assess: the Pauli-propagation method serves it
+        study_or_path,
+        cache,
+        seed=seed,
+        shots=shots,
+        method=method,
+        trajectories=trajectories,
+        pauli_ok=True,
     )
     base, store, t0 = job.study, job.store, job.t0
     paths = list(dict.fromkeys(resolve_device(str(d)) for d in devices))

@@ -45,7 +45,8 @@ def start_job(
 ) -> JobStart:
     """Start the clock, resolve the study with its overrides (one-line refusals before any
     work), then open the results cache (``cache``: see :func:`as_cache`). ``pauli_ok``: the
-    job runs under ``emulation.method: pauli_propagation`` (assess only; others refuse it)."""
+    job runs under ``emulation.method: pauli_propagation`` (assess and compare; others refuse
+    it)."""
     t0 = time.perf_counter()
     study = resolve_study(study_or_path, seed, shots, method, trajectories)
     if not pauli_ok:
@@ -58,8 +59,8 @@ def refuse_pauli_method(study: Study) -> None:
     (it has no outcome distributions for the other jobs' recipes)."""
     if study.emulation.method == "pauli_propagation":
         raise InputError(
-            f"{study.source}: emulation.method: pauli_propagation serves assess only; allowed "
-            f"for this job: auto, density_matrix, trajectory ({arg('method')})"
+            f"{study.source}: emulation.method: pauli_propagation serves assess and compare only; "
+            f"allowed for this job: auto, density_matrix, trajectory ({arg('method')})"
         )
 
 

@@ -283,8 +283,8 @@ class EmulationSettings(_Strict):
     whose recipes are all raw or per-qubit readout, Pauli propagation, else Monte Carlo
     trajectories), ``density_matrix`` (exact; refuse when too large),
     ``trajectory`` or ``pauli_propagation`` (Heisenberg-picture Pauli strings under the
-    Pauli-twirled noise, truncated by ``truncation``; assess only, raw and per-qubit readout
-    recipes only).
+    Pauli-twirled noise, truncated by ``truncation``; assess and compare only, raw and
+    per-qubit readout recipes only).
     ``trajectories``: trajectories per circuit variant, in ``batches`` batches (the batch
     spread gives the trajectory error bar). ``max_density_matrix_qubits``: a cap on the
     circuit width for the density matrix (None: the memory guard alone decides).
