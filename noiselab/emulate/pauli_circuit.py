@@ -42,7 +42,7 @@ from noiselab.emulate.pauli_truncation import Sampling, TruncationEstimate, prop
 
 _ONE = np.uint64(1)
 #: The measured observables' means are expanded with this fraction of the threshold.
-EXPANSION_REFINE = 1e-2
+EXPANSION_REFINE = 1e-4
 
 
 def circuit_program(circuit: object, noise_model: object | None) -> list[Instruction]:

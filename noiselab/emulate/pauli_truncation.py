@@ -14,8 +14,11 @@ Thompson 1952), up to what the continuation itself drops (``residual``: a rigoro
 loose as any dropped-mass bound). Its variance ``sum_i c_i^2 f_i^2 (1 - p_i) / p_i <= tau
 sum_i |c_i| f_i^2`` shrinks with ``tau``: a smaller ``keep_factor`` carries more terms for a
 tighter estimate. Error bar: the kept terms with ``p_i < 1`` are spread at random over
-``batches`` batches; ``batches`` times the variance of the batch sums estimates the variance
-(conservative for Poisson sampling: the batches are slightly anti-correlated). The random
+``batches`` batches; ``batches`` times the variance of the batch sums estimates their variance
+(conservative for Poisson sampling: the batches are slightly anti-correlated). The terms kept for
+sure (``p_i = 1``) have no sampling randomness, but their continuation's roulette has: they are
+spread over ``batches`` groups, each carried twice at half weight with independent draws, and
+the sum of the squared replica differences estimates that variance. The random
 numbers are a hash of (seed, tag, step, string): the same draws whatever the grouping or order
 of the work, so a group propagated alone (in a worker) gives the same numbers as in a joint run.
 
@@ -46,9 +49,10 @@ _BATCH_SALT = np.uint64(0x9E3779B97F4A7C15)
 _ROULETTE_SALT = np.uint64(0xD6E8FEB86659FD93)
 
 
-#: Default smallest ``tau`` over the threshold (1/16: a standard error about 4-6x smaller than
-#: at 1 for 1.5-2x the time on the 8-qubit benchmark study; benchmarks/pauli_propagation.py).
-KEEP_FACTOR = 1.0 / 16.0
+#: Default smallest ``tau`` over the threshold. With ``refine`` 1 (roulette at ``tau``) the
+#: variance times the time falls as ``keep_factor`` does (hchain-10 at 1e-4: 1/16 and refine 0.1
+#: 0.95 mHa in 17 s; 1/64: 0.47 mHa in 13 s; 1/256: 0.14 mHa in 48 s); 1/64 keeps the time.
+KEEP_FACTOR = 1.0 / 64.0
 
 
 @dataclass(frozen=True)
@@ -62,9 +66,9 @@ class Sampling:
 
     seed: int
     keep_factor: float = KEEP_FACTOR
-    samples: int = 16384
+    samples: int = 65536
     batches: int = 16
-    refine: float = 0.1
+    refine: float = 1.0
 
 
 #: Standard errors in the statistical limit on the truncation error (two-sided 99.7 % for a
@@ -139,6 +143,7 @@ def propagate_estimated(
     n_tags = len(main.bounds)
     tau = np.maximum(tau0, main.bounds / max(int(sampling.samples), 1))
     b = max(int(sampling.batches), 2)
+    slots = 3 * b  # per tag: b Poisson batches, then b groups of sure terms in two replicas
     inject: dict[int, list[PauliTerms]] = {}
     kept = 0
     for step, lost, h in collect.parts:
@@ -150,23 +155,33 @@ def propagate_estimated(
         kept += len(lost)
         with np.errstate(over="ignore"):
             batch = (_mix(h ^ _BATCH_SALT) % np.uint64(b)).astype(np.int64)
-        batch[p >= 1.0] = b  # kept for sure: no randomness, no batch
-        tag = lost.tag * (b + 1) + batch
-        inject.setdefault(step, []).append(PauliTerms(lost.x, lost.z, lost.coeff / p, tag))
+        sure = p >= 1.0
+        base = lost.tag * slots
+        # a sure term (p = 1) has no sampling randomness but its continuation's roulette has:
+        # two half-weight replicas with independent draws measure it
+        tag = np.concatenate([base + np.where(sure, b, 0) + batch, (base + 2 * b + batch)[sure]])
+        coeff = np.concatenate([np.where(sure, 0.5, 1.0 / p) * lost.coeff, 0.5 * lost.coeff[sure]])
+        x = np.concatenate([lost.x, lost.x[sure]])
+        z = np.concatenate([lost.z, lost.z[sure]])
+        inject.setdefault(step, []).append(PauliTerms(x, z, coeff, tag))
     zero = np.zeros(n_tags)
     if not inject:
         return main, TruncationEstimate(zero, zero, zero, 0, 0)
     joined = {step: PauliTerms.join(parts) for step, parts in inject.items()}
     empty = np.zeros(0, dtype=np.uint64)
     start = PauliTerms(empty, empty, np.zeros(0), np.zeros(0, dtype=np.int64))
-    # relative to tau, the least weight of a carried term: each is continued to about ``refine``
-    cut = np.repeat(sampling.refine * tau, b + 1)
+    # relative to tau, the least weight of a carried term (half of it for the replicas): each
+    # is continued to about ``refine``, below which the roulette decides
+    scale = np.concatenate([np.ones(b), np.full(2 * b, 0.5)])
+    cut = (sampling.refine * tau[:, None] * scale[None, :]).ravel()
     carry = Truncation(max_strings=rule.max_strings)
     cont = propagate(start, program, carry, cut=cut, inject=joined, roulette=_roulette(sampling))
-    per = _pad(cont.values, n_tags * (b + 1)).reshape(n_tags, b + 1)
-    residual = _pad(cont.bounds, n_tags * (b + 1)).reshape(n_tags, b + 1).sum(axis=1)
+    per = _pad(cont.values, n_tags * slots).reshape(n_tags, slots)
+    residual = _pad(cont.bounds, n_tags * slots).reshape(n_tags, slots).sum(axis=1)
     estimate = per.sum(axis=1)
-    std = np.sqrt(b * per[:, :b].var(axis=1, ddof=1))
+    replicas = per[:, b : 2 * b] - per[:, 2 * b :]
+    var = b * per[:, :b].var(axis=1, ddof=1) + np.square(replicas).sum(axis=1)
+    std = np.sqrt(var)
     return main, TruncationEstimate(estimate, std, residual, kept, int(cont.peak_strings))
 
 
