@@ -8,10 +8,12 @@ tight: most dropped strings are damped by the noise still ahead or vanish on the
 **Estimate** (an estimate with a standard error, not a bound): every dropped term is kept
 independently with probability ``p_i = min(1, |c_i| / tau)`` (Poisson sampling; ``tau`` per
 observable: ``keep_factor`` times the threshold, raised to its dropped mass over ``samples``
-where that is larger) and carried on to the start with the threshold ``refine * tau``; the
-Horvitz-Thompson sum ``sum_kept c_i f_i / p_i`` is unbiased for the missing part (Horvitz and
-Thompson 1952), up to what the continuation itself drops (``residual``: a rigorous bound, as
-loose as any dropped-mass bound). Its variance ``sum_i c_i^2 f_i^2 (1 - p_i) / p_i <= tau
+where that is larger) and carried on to the start, truncated on the way by Russian roulette at
+``refine * tau`` (a term below survives with probability ``|c| / cut`` as ``sign(c) cut``:
+unbiased); the Horvitz-Thompson sum ``sum_kept c_i f_i / p_i`` is unbiased for the missing part
+(Horvitz and Thompson 1952), up to what the observables' expansion dropped before propagating
+(``residual``: a rigorous bound, small as the expansion runs far below the threshold). Its
+variance ``sum_i c_i^2 f_i^2 (1 - p_i) / p_i <= tau
 sum_i |c_i| f_i^2`` shrinks with ``tau``: a smaller ``keep_factor`` carries more terms for a
 tighter estimate. Error bar: the kept terms with ``p_i < 1`` are spread at random over
 ``batches`` batches; ``batches`` times the variance of the batch sums estimates their variance
@@ -85,9 +87,9 @@ def truncation_limit(estimate: float, std: float) -> float:
 @dataclass(frozen=True)
 class TruncationEstimate:
     """Per tag: estimated truncation error of the main run's value (add it to the value to
-    correct), its standard error, and a bound on what the estimate's own continuation dropped
-    (rigorous, as loose as any dropped-mass bound); all in the observable's units. ``kept``:
-    dropped terms carried on."""
+    correct), its standard error, and a rigorous bound on what the continuation dropped for good
+    (a weight cut; the roulette drops nothing unaccounted); all in the observable's units.
+    ``kept``: dropped terms carried on."""
 
     estimate: np.ndarray  # float64 (n_tags,)
     std: np.ndarray  # float64 (n_tags,)
