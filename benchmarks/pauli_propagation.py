@@ -175,61 +175,12 @@ def _chain_spec(atoms: int):
 
 
 def integrals_problem(spec):
-    """The electronic problem of ``compute_problem`` without its exact energy (no FCI): the same
-    (RO)HF, orbital order and active-space integrals; ``exact_energy_ha`` and ``exact_s2`` are
-    NaN. For sizes where FCI is refused; ``check_integrals_path`` checks it against
-    ``compute_problem`` on H4."""
-    from pyscf import ao2mo, gto, mcscf, scf
+    """``compute_problem(spec, exact=False)``: the (RO)HF and active-space integrals without the
+    FCI energy (NaN), for sizes where FCI is refused; ``check_integrals_path`` checks it against
+    ``compute_problem`` on small chains."""
+    from noiselab.chem.molecule import compute_problem
 
-    from noiselab.chem.molecule import ElectronicProblem
-
-    mol = gto.M(
-        atom=[[a[0], (a[1], a[2], a[3])] for a in spec.geometry],
-        basis=spec.basis,
-        charge=spec.charge,
-        spin=spec.spin,
-        unit="Angstrom",
-        symmetry=spec.symmetry,
-        verbose=0,
-    )
-    n_elec, n_mo = int(mol.nelectron), int(mol.nao_nr())
-    if spec.active_space is None:
-        n_cas, ne_cas = n_mo, n_elec
-    else:
-        n_cas, ne_cas = spec.active_space.orbitals, spec.active_space.electrons
-    n_alpha, n_beta = (ne_cas + spec.spin) // 2, (ne_cas - spec.spin) // 2
-    n_core = (n_elec - ne_cas) // 2
-    mf = scf.RHF(mol) if spec.spin == 0 else scf.ROHF(mol)
-    mf.conv_tol = 1e-12
-    mf.max_cycle = 200
-    mf.kernel()
-    if not mf.converged:
-        mf = mf.newton()
-        mf.kernel()
-    if not mf.converged:
-        raise RuntimeError("Hartree-Fock did not converge")
-    order = np.argsort(-np.asarray(mf.mo_occ), kind="stable")
-    mo = np.asarray(mf.mo_coeff)[:, order]
-    cas = mcscf.CASCI(mf, n_cas, (n_alpha, n_beta))
-    cas.mo_coeff = mo
-    h1, e_core = cas.get_h1eff(mo)
-    h2 = ao2mo.restore(1, cas.get_h2eff(mo), n_cas)
-    nan = float("nan")
-    return ElectronicProblem(
-        spec=spec,
-        n_orb=n_cas,
-        n_alpha=n_alpha,
-        n_beta=n_beta,
-        n_core_orbitals=n_core,
-        n_basis_orbitals=n_mo,
-        h1=np.ascontiguousarray(h1, dtype=float),
-        h2=np.ascontiguousarray(h2, dtype=float),
-        e_core_ha=float(e_core),
-        nuclear_repulsion_ha=float(mol.energy_nuc()),
-        hf_energy_ha=float(mf.e_tot),
-        exact_energy_ha=nan,
-        exact_s2=nan,
-    )
+    return compute_problem(spec, exact=False)
 
 
 def check_integrals_path(atoms: int = 4, atol: float = 1e-10) -> float:

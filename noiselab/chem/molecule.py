@@ -8,6 +8,7 @@ is folded into ``e_core_ha`` and into the one-electron integrals (PySCF ``CASCI.
 
 from __future__ import annotations
 
+import math
 import warnings
 from collections.abc import Mapping
 from dataclasses import dataclass
@@ -307,8 +308,11 @@ def _readonly(a: np.ndarray) -> np.ndarray:
     return a
 
 
-def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
-    """Run (RO)HF, build active-space integrals and the exact (FCI/CASCI) energy with PySCF."""
+def compute_problem(spec: MoleculeSpec, *, exact: bool = True) -> ElectronicProblem:
+    """Run (RO)HF, build active-space integrals and the exact (FCI/CASCI) energy with PySCF.
+
+    ``exact=False``: no FCI (``exact_energy_ha`` and ``exact_s2`` are NaN, no determinant cap);
+    for benchmarks of sizes FCI cannot reach, never for a study, whose verdict needs it."""
     mol = _build_mole(spec.geometry, spec.basis, spec.charge, spec.spin, spec.symmetry)
     n_elec = int(mol.nelectron)
     n_mo = int(mol.nao_nr())
@@ -320,7 +324,7 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
     n_beta = (ne_cas - spec.spin) // 2
     n_core = (n_elec - ne_cas) // 2
     n_det = _binom(n_cas, n_alpha) * _binom(n_cas, n_beta)
-    if n_det > MAX_DETERMINANTS:
+    if exact and n_det > MAX_DETERMINANTS:
         raise ProblemTooLargeError(
             f"molecule.active_space: {n_cas} orbitals give {n_det} determinants for the "
             "exact energy; "
@@ -360,16 +364,9 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
     cas.mo_coeff = mo
     h1, e_core = cas.get_h1eff(mo)
     h2 = ao2mo.restore(1, cas.get_h2eff(mo), n_cas)
-
-    solver = fci.direct_spin1.FCI()
-    solver.conv_tol = 1e-12
-    solver.max_cycle = 500
-    solver.nroots = min(3, n_det)
-    energies, vecs = solver.kernel(h1, h2, n_cas, (n_alpha, n_beta), ecore=e_core)
-    energies = np.atleast_1d(energies)
-    vecs = vecs if isinstance(vecs, list) else [vecs]
-    k = int(np.argmin(energies))
-    s2, _ = fci.spin_op.spin_square(vecs[k], n_cas, (n_alpha, n_beta))
+    exact_ha, exact_s2 = math.nan, math.nan
+    if exact:
+        exact_ha, exact_s2 = _fci(h1, h2, e_core, n_cas, n_alpha, n_beta, n_det)
 
     return ElectronicProblem(
         spec=spec,
@@ -383,9 +380,25 @@ def compute_problem(spec: MoleculeSpec) -> ElectronicProblem:
         e_core_ha=float(e_core),
         nuclear_repulsion_ha=float(mol.energy_nuc()),
         hf_energy_ha=float(mf.e_tot),
-        exact_energy_ha=float(energies[k]),
-        exact_s2=float(s2),
+        exact_energy_ha=exact_ha,
+        exact_s2=exact_s2,
     )
+
+
+def _fci(
+    h1: np.ndarray, h2: np.ndarray, e_core: float, n_cas: int, n_alpha: int, n_beta: int, n_det: int
+) -> tuple[float, float]:
+    """(lowest FCI energy in Ha, its <S^2>) of the active space."""
+    solver = fci.direct_spin1.FCI()
+    solver.conv_tol = 1e-12
+    solver.max_cycle = 500
+    solver.nroots = min(3, n_det)
+    energies, vecs = solver.kernel(h1, h2, n_cas, (n_alpha, n_beta), ecore=e_core)
+    energies = np.atleast_1d(energies)
+    vecs = vecs if isinstance(vecs, list) else [vecs]
+    k = int(np.argmin(energies))
+    s2, _ = fci.spin_op.spin_square(vecs[k], n_cas, (n_alpha, n_beta))
+    return float(energies[k]), float(s2)
 
 
 def _binom(n: int, k: int) -> int:

@@ -125,7 +125,8 @@ def assess(
     ``method`` / ``trajectories`` override the study's ``emulation:`` section.
     ``drift``: also run every recipe on this many drawn device days (noiselab.study.drift).
     ``workers`` / ``cluster`` / ``executor`` (noiselab.study.executor): under
-    ``pauli_propagation`` every measured group is one task on them; other methods refuse them.
+    ``pauli_propagation`` each energy sum and each share of the groups' moments is one task on them;
+    other methods refuse them.
     """
     if drift is not None and not 0 <= int(drift) <= MAX_DRAWS:
         raise InputError(f"{arg('drift')}: {drift} draws; allowed: 0 to {MAX_DRAWS}")
