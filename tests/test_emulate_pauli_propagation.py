@@ -304,3 +304,13 @@ def test_russian_roulette_truncation_is_unbiased() -> None:
     sem = float(np.std(values, ddof=1)) / np.sqrt(len(values))
     assert sem > 0
     assert abs(float(np.mean(values)) - exact) <= 3 * sem
+
+
+def test_no_measured_group_gives_the_constant() -> None:
+    # a Hamiltonian that is only a constant: its energy is that constant (definition)
+    from noiselab.emulate.pauli_circuit import pauli_energy
+    from noiselab.emulate.pauli_truncation import Sampling
+
+    got = pauli_energy(QuantumCircuit(2), None, [], [0, 1], None, None, constant_ha=-1.5,
+                       sampling=Sampling(seed=1))  # fmt: skip
+    assert got.energy_ha == -1.5 and got.truncation_std_ha == 0.0 and got.group_energy_ha == ()

@@ -228,6 +228,11 @@ def pauli_energy(
     ``executor``: an object with ``map(fn, items)`` and ``parallelism``
     (noiselab.study.executor) that runs each energy sum and each share of the groups' moments as
     a :func:`propagate_task` (the same numbers as in-process, up to rounding)."""
+    if not groups:  # a constant Hamiltonian: nothing to measure
+        extra = {} if sampling is None else dict.fromkeys(
+            ("truncation_estimate_ha", "truncation_std_ha", "estimate_residual_ha"), 0.0
+        )
+        return PauliEnergy(float(constant_ha), (), (), 0.0, 0, tasks=0, **extra)
     width = int(circuit.num_qubits)  # type: ignore[attr-defined]
     program = circuit_program(circuit, noise_model)
     cache = EffectCache(noise_model, width, layer, noisy=noise_model is not None)
